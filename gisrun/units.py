@@ -1,0 +1,147 @@
+"""One internal unit system (SI) and the conversions at the edges.
+
+Inside gisrun every depth is in metres, every time in seconds, every rate in
+metres per second and every area in square metres. Values that come in or go
+out are converted here and nowhere else. Column names carry their unit as a
+suffix (``runoff_depth_mm``, ``time_to_ponding_min``).
+
+Examples
+--------
+>>> round(to_si(25.4, "mm"), 6)
+0.0254
+>>> from_si(0.0254, "in")
+1.0
+>>> unit_system("us").depth
+'in'
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from .errors import InputError
+
+__all__ = [
+    "FACTORS_TO_SI",
+    "UnitSystem",
+    "SI",
+    "US",
+    "to_si",
+    "from_si",
+    "unit_system",
+    "column",
+]
+
+#: Multiply a value in the named unit by this factor to get SI.
+#: Exact by definition: 1 in = 0.0254 m, 1 ft = 0.3048 m (international yard
+#: and pound agreement, 1959); 1 acre = 43,560 ft^2.
+FACTORS_TO_SI: dict[str, float] = {
+    # length / depth -> m
+    "m": 1.0,
+    "cm": 1e-2,
+    "mm": 1e-3,
+    "in": 0.0254,
+    "ft": 0.3048,
+    # time -> s
+    "s": 1.0,
+    "min": 60.0,
+    "h": 3600.0,
+    # rate -> m/s
+    "m_per_s": 1.0,
+    "mm_per_h": 1e-3 / 3600.0,
+    "cm_per_h": 1e-2 / 3600.0,
+    "in_per_h": 0.0254 / 3600.0,
+    "um_per_s": 1e-6,
+    # area -> m2
+    "m2": 1.0,
+    "ha": 1e4,
+    "km2": 1e6,
+    "ft2": 0.3048**2,
+    "acre": 43560.0 * 0.3048**2,
+    # volume -> m3
+    "m3": 1.0,
+    "ft3": 0.3048**3,
+    "acre_ft": 43560.0 * 0.3048**3,
+}
+
+
+def to_si(value: ArrayLike, unit: str) -> NDArray[np.float64] | float:
+    """Convert a value from ``unit`` to SI (m, s, m/s, m2, m3).
+
+    Parameters
+    ----------
+    value : array_like
+        Value(s) in ``unit``.
+    unit : str
+        A key of :data:`FACTORS_TO_SI` (``"mm"``, ``"in_per_h"``, ...).
+
+    Returns
+    -------
+    float or ndarray
+        The value in SI.
+
+    Raises
+    ------
+    InputError
+        If ``unit`` is not known.
+    """
+    factor = _factor(unit)
+    arr = np.asarray(value, dtype=np.float64) * factor
+    return float(arr) if arr.ndim == 0 else arr
+
+
+def from_si(value: ArrayLike, unit: str) -> NDArray[np.float64] | float:
+    """Convert a value in SI to ``unit``; the inverse of :func:`to_si`."""
+    factor = _factor(unit)
+    arr = np.asarray(value, dtype=np.float64) / factor
+    return float(arr) if arr.ndim == 0 else arr
+
+
+def _factor(unit: str) -> float:
+    try:
+        return FACTORS_TO_SI[unit]
+    except KeyError:
+        raise InputError(
+            f"unit {unit!r}", "is not a known unit", f"use one of {sorted(FACTORS_TO_SI)}"
+        ) from None
+
+
+@dataclass(frozen=True)
+class UnitSystem:
+    """The units a user reads and writes in; names double as column suffixes."""
+
+    name: str
+    depth: str
+    rate: str
+    area: str
+    volume: str
+    time: str = "min"
+
+
+SI = UnitSystem("si", depth="mm", rate="mm_per_h", area="m2", volume="m3")
+US = UnitSystem("us", depth="in", rate="in_per_h", area="acre", volume="ft3")
+
+
+def unit_system(name: str) -> UnitSystem:
+    """Return the unit system called ``name`` (``"si"`` or ``"us"``).
+
+    Raises
+    ------
+    InputError
+        If the name is neither.
+    """
+    systems = {"si": SI, "us": US}
+    try:
+        return systems[name.strip().lower()]
+    except (KeyError, AttributeError):
+        raise InputError(
+            f"units {name!r}", "is not a unit system", "use 'si' or 'us'"
+        ) from None
+
+
+def column(quantity: str, unit: str) -> str:
+    """Name a column with its unit: ``column("runoff_depth", "mm")`` -> ``runoff_depth_mm``."""
+    return f"{quantity}_{unit}"
