@@ -1,0 +1,1 @@
+"""Command line: thin click commands over the Python API."""
