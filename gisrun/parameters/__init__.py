@@ -1,0 +1,1 @@
+"""Published infiltration and runoff parameter tables and their assignment to units."""
