@@ -18,9 +18,13 @@ Examples
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from .errors import InputError
 
@@ -33,6 +37,7 @@ __all__ = [
     "from_si",
     "unit_system",
     "column",
+    "present_frame",
 ]
 
 #: Multiply a value in the named unit by this factor to get SI.
@@ -145,3 +150,42 @@ def unit_system(name: str) -> UnitSystem:
 def column(quantity: str, unit: str) -> str:
     """Name a column with its unit: ``column("runoff_depth", "mm")`` -> ``runoff_depth_mm``."""
     return f"{quantity}_{unit}"
+
+
+#: SI column suffixes and the unit-system attribute they convert to, longest first.
+_SUFFIXES: tuple[tuple[str, str | None], ...] = (
+    ("_m_per_s", "rate"),
+    ("_per_s", None),  # other rates (1/s decay constants) are left in SI
+    ("_m2", "area"),
+    ("_m3", "volume"),
+    ("_m", "depth"),
+    ("_s", "time"),
+)
+
+
+def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
+    """Convert SI columns of a result frame to ``system``, renaming their suffixes.
+
+    Columns ending in ``_m_per_s``, ``_m2``, ``_m3``, ``_m`` or ``_s`` are
+    taken as SI rates, areas, volumes, depths and times; other columns are
+    left as they are.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> present_frame(pd.DataFrame({"runoff_depth_m": [0.0254], "time_to_ponding_s": [600.0]}),
+    ...               US).to_dict("list")
+    {'runoff_depth_in': [1.0], 'time_to_ponding_min': [10.0]}
+    """
+    out = frame.copy()
+    renames = {}
+    for name in frame.columns:
+        for suffix, kind in _SUFFIXES:
+            if isinstance(name, str) and name.endswith(suffix):
+                if kind is None:
+                    break
+                unit = getattr(system, kind)
+                out[name] = from_si(frame[name].to_numpy(dtype=np.float64), unit)
+                renames[name] = name[: -len(suffix)] + "_" + unit
+                break
+    return out.rename(columns=renames)

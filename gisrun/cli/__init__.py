@@ -1,1 +1,58 @@
-"""Command line: thin click commands over the Python API."""
+"""Command line: thin click commands over the Python API.
+
+``gisrun run PROJECT`` runs a project and writes its GeoPackage; ``gisrun check
+PROJECT`` checks every input and reports each problem on one line;
+``gisrun tables`` lists the shipped parameter tables and their sources;
+``gisrun storm`` makes and inspects design storms.
+
+Exit codes: 0 success, 2 a problem with the input or output the user can fix
+(one line on standard error), 1 an internal error (please report it; ``--debug``
+shows the traceback).
+"""
+
+from __future__ import annotations
+
+import sys
+import traceback
+
+import click
+
+from ..errors import GisrunError
+from .main import cli
+
+__all__ = ["cli", "main"]
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; return the exit code (also used as the console script)."""
+    args = list(sys.argv[1:] if argv is None else argv)
+    debug = "--debug" in args
+    try:
+        code = cli.main(args=args, prog_name="gisrun", standalone_mode=False)
+    except GisrunError as err:
+        click.echo(f"gisrun: error: {err}", err=True)
+        if debug:
+            traceback.print_exc()
+        return 2
+    except click.exceptions.Abort:
+        click.echo("gisrun: interrupted; no output was changed", err=True)
+        return 130
+    except click.ClickException as err:
+        err.show()
+        return err.exit_code
+    except KeyboardInterrupt:
+        click.echo("gisrun: interrupted; no output was changed", err=True)
+        return 130
+    except Exception as err:  # noqa: BLE001 - the last line of defence
+        if debug:
+            traceback.print_exc()
+        click.echo(
+            f"gisrun: internal error ({type(err).__name__}: {err}); please report it with the "
+            "command and project file (run again with --debug for the traceback)", err=True,
+        )
+        return 1
+    return code if isinstance(code, int) else 0
+
+
+def _entry() -> None:  # pragma: no cover - console script wrapper
+    sys.exit(main())

@@ -1,0 +1,241 @@
+"""Area-weighted results per subcatchment from per-unit loss results.
+
+A subcatchment's depth is the area-weighted mean of its units' depths, so its
+volume is the sum of its units' volumes. The mass balance
+``rain = infiltration + runoff + surface storage`` is checked per
+subcatchment, to a relative tolerance of 1e-9.
+
+Subcatchment time to ponding is the earliest ponding instant among its
+pervious units (an impervious surface has no infiltration capacity to exceed,
+so it is left out); it is missing (NaN) where no pervious unit ponds. The time
+runoff first leaves any part of the subcatchment is reported separately.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+from numpy.typing import NDArray
+
+from .errors import GisrunError
+
+__all__ = [
+    "MASS_BALANCE_TOLERANCE",
+    "area_weights",
+    "summarize_subcatchments",
+    "summarize_units",
+    "subcatchment_series",
+    "soil_shares",
+    "MassBalanceError",
+]
+
+#: Relative tolerance of the per-subcatchment mass balance check.
+MASS_BALANCE_TOLERANCE = 1e-9
+
+
+class MassBalanceError(GisrunError, ArithmeticError):
+    """Water was created or lost between rain and its fates (an internal fault)."""
+
+
+def area_weights(
+    unit_sub_ids: NDArray[np.object_] | pd.Series,
+    unit_area_m2: NDArray[np.float64],
+    sub_ids: NDArray[np.object_] | pd.Series,
+) -> sp.csr_matrix:
+    """Sparse matrix (subcatchments x units) of each unit's share of its subcatchment's area.
+
+    Rows sum to one for subcatchments with modelled area and to zero otherwise.
+
+    Examples
+    --------
+    >>> w = area_weights(np.array(["a", "a", "b"]), np.array([1.0, 3.0, 2.0]), np.array(["a", "b"]))
+    >>> w.toarray()
+    array([[0.25, 0.75, 0.  ],
+           [0.  , 0.  , 1.  ]])
+    """
+    index = pd.Index(np.asarray(sub_ids, dtype=object))
+    rows = index.get_indexer(np.asarray(unit_sub_ids, dtype=object))
+    if np.any(rows < 0):
+        raise ValueError("unit rows name subcatchments that are not in the list")
+    area = np.asarray(unit_area_m2, dtype=np.float64)
+    totals = np.bincount(rows, weights=area, minlength=len(index))
+    share = np.divide(area, totals[rows], out=np.zeros_like(area), where=totals[rows] > 0)
+    cols = np.arange(len(area))
+    return sp.csr_matrix((share, (rows, cols)), shape=(len(index), len(area)))
+
+
+def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataFrame:
+    """Per-unit totals in SI: rain, infiltration, runoff, storage, ponding time, peak excess.
+
+    Parameters
+    ----------
+    loss : LossResult
+        From :func:`gisrun.engine.run_losses`; arrays are (steps x units).
+    params : DataFrame
+        The unit parameter frame the loss was computed for (same row order).
+    dt_s : float
+        The run's time step, seconds.
+
+    Returns
+    -------
+    DataFrame
+        ``params``' identifying columns plus ``rain_depth_m``, ``infiltration_depth_m``,
+        ``runoff_depth_m``, ``storage_depth_m``, ``runoff_volume_m3``,
+        ``runoff_coefficient``, ``time_to_ponding_s``, ``peak_excess_intensity_m_per_s``.
+    """
+    keep = [c for c in ("subcatchment_id", "soil_class", "cover_class", "surface", "area_m2",
+                        "loss_method") if c in params.columns]
+    out = params[keep].reset_index(drop=True).copy()
+    rain = loss.rain_m.sum(axis=0)
+    out["rain_depth_m"] = rain
+    out["infiltration_depth_m"] = loss.infil_m.sum(axis=0)
+    out["runoff_depth_m"] = loss.excess_m.sum(axis=0)
+    out["storage_depth_m"] = loss.storage_m
+    out["runoff_volume_m3"] = out["runoff_depth_m"] * out["area_m2"]
+    out["runoff_coefficient"] = np.divide(
+        out["runoff_depth_m"].to_numpy(), rain, out=np.zeros(len(out)), where=rain > 0
+    )
+    out["time_to_ponding_s"] = loss.time_to_ponding_s
+    out["peak_excess_intensity_m_per_s"] = loss.excess_m.max(axis=0, initial=0.0) / dt_s
+    return out
+
+
+def summarize_subcatchments(
+    loss: object,
+    params: pd.DataFrame,
+    sub_ids: NDArray[np.object_] | pd.Series,
+    dt_s: float,
+) -> pd.DataFrame:
+    """Area-weighted subcatchment results in SI, with a checked mass balance.
+
+    Parameters
+    ----------
+    loss : LossResult
+        Per-unit results (steps x units) in the row order of ``params``.
+    params : DataFrame
+        Unit parameters with ``subcatchment_id``, ``area_m2`` and ``surface``.
+    sub_ids : array_like
+        Subcatchment ids in output order.
+    dt_s : float
+        Time step, seconds.
+
+    Returns
+    -------
+    DataFrame
+        One row per subcatchment: ``subcatchment_id``, ``modelled_area_m2``,
+        ``rain_depth_m``, ``infiltration_depth_m``, ``runoff_depth_m``,
+        ``storage_depth_m``, ``runoff_volume_m3``, ``runoff_coefficient``,
+        ``time_to_ponding_s``, ``runoff_start_s``, ``peak_excess_intensity_m_per_s``,
+        ``impervious_fraction``, ``mass_balance_error_m``.
+
+    Raises
+    ------
+    MassBalanceError
+        If rain differs from infiltration + runoff + storage by more than
+        :data:`MASS_BALANCE_TOLERANCE` (relative) in any subcatchment.
+    """
+    sub_ids = np.asarray(sub_ids, dtype=object)
+    weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    area = np.bincount(
+        pd.Index(sub_ids).get_indexer(params["subcatchment_id"]),
+        weights=params["area_m2"].to_numpy(), minlength=len(sub_ids),
+    )
+    depth = {
+        "rain_depth_m": weights @ loss.rain_m.sum(axis=0),
+        "infiltration_depth_m": weights @ loss.infil_m.sum(axis=0),
+        "runoff_depth_m": weights @ loss.excess_m.sum(axis=0),
+        "storage_depth_m": weights @ loss.storage_m,
+    }
+    out = pd.DataFrame({"subcatchment_id": sub_ids, "modelled_area_m2": area, **depth})
+    out["runoff_volume_m3"] = out["runoff_depth_m"] * area
+    rain = out["rain_depth_m"].to_numpy()
+    out["runoff_coefficient"] = np.divide(
+        out["runoff_depth_m"].to_numpy(), rain, out=np.zeros(len(out)), where=rain > 0
+    )
+    pervious = (params["surface"] != "impervious").to_numpy()
+    out["time_to_ponding_s"] = _group_min(loss.time_to_ponding_s, weights, pervious)
+    started = np.where(loss.excess_m > 0, 1.0, 0.0)
+    first_step = np.where(started.any(axis=0), started.argmax(axis=0) * dt_s, np.nan)
+    out["runoff_start_s"] = _group_min(first_step, weights, np.ones_like(pervious))
+    excess_by_sub = np.asarray(weights @ loss.excess_m.T)  # (subcatchments x steps)
+    out["peak_excess_intensity_m_per_s"] = excess_by_sub.max(axis=1, initial=0.0) / dt_s
+    impervious_area = np.asarray(weights @ (~pervious).astype(float)).ravel()
+    out["impervious_fraction"] = impervious_area
+    out["mass_balance_error_m"] = rain - (
+        out["infiltration_depth_m"] + out["runoff_depth_m"] + out["storage_depth_m"]
+    ).to_numpy()
+    _check_mass_balance(out)
+    return out
+
+
+def subcatchment_series(
+    loss: object,
+    params: pd.DataFrame,
+    sub_ids: NDArray[np.object_] | pd.Series,
+    dt_s: float,
+) -> pd.DataFrame:
+    """Long-format series per subcatchment and step: rain, infiltration and excess depths.
+
+    Returns
+    -------
+    DataFrame
+        ``subcatchment_id``, ``time_end_s`` (end of the step), ``rain_m``,
+        ``infiltration_m``, ``excess_m`` (area-weighted depths in the step).
+    """
+    sub_ids = np.asarray(sub_ids, dtype=object)
+    weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    n_steps = loss.rain_m.shape[0]
+    frames = {
+        name: np.asarray((weights @ arr.T)).ravel()  # (subs x steps) flattened, sub-major
+        for name, arr in (("rain_m", loss.rain_m), ("infiltration_m", loss.infil_m),
+                          ("excess_m", loss.excess_m))
+    }
+    return pd.DataFrame({
+        "subcatchment_id": np.repeat(sub_ids, n_steps),
+        "time_end_s": np.tile(np.arange(1, n_steps + 1) * dt_s, len(sub_ids)),
+        **frames,
+    })
+
+
+def soil_shares(units: pd.DataFrame, sub_ids: NDArray[np.object_] | pd.Series) -> pd.DataFrame:
+    """Area share of each soil class per subcatchment, one column per class.
+
+    Column names are ``soil_<class>_fraction`` with characters other than
+    letters and digits replaced by ``_`` (``B/D`` -> ``soil_B_D_fraction``).
+    """
+    table = units.pivot_table(index="subcatchment_id", columns="soil_class", values="area_m2",
+                              aggfunc="sum", fill_value=0.0)
+    table = table.reindex(pd.Index(np.asarray(sub_ids, dtype=object)), fill_value=0.0)
+    totals = table.sum(axis=1).to_numpy()[:, None]
+    shares = np.divide(table.to_numpy(), totals, out=np.zeros(table.shape), where=totals > 0)
+    names = [f"soil_{_safe(c)}_fraction" for c in table.columns]
+    return pd.DataFrame(shares, columns=names, index=table.index).reset_index(
+        names="subcatchment_id")
+
+
+def _safe(label: object) -> str:
+    return "".join(ch if ch.isalnum() else "_" for ch in str(label)).strip("_")
+
+
+def _group_min(values: NDArray[np.float64], weights: sp.csr_matrix,
+               mask: NDArray[np.bool_]) -> NDArray[np.float64]:
+    """Smallest non-NaN value of the masked units in each row of ``weights``; NaN if none."""
+    coo = weights.tocoo()
+    keep = mask[coo.col] & np.isfinite(values[coo.col]) & (coo.data > 0)
+    out = np.full(weights.shape[0], np.inf)
+    np.minimum.at(out, coo.row[keep], values[coo.col[keep]])
+    out[np.isinf(out)] = np.nan
+    return out
+
+
+def _check_mass_balance(out: pd.DataFrame) -> None:
+    scale = np.maximum(out["rain_depth_m"].to_numpy(), 1e-12)
+    rel = np.abs(out["mass_balance_error_m"].to_numpy()) / scale
+    if np.any(rel > MASS_BALANCE_TOLERANCE):
+        worst = int(np.argmax(rel))
+        raise MassBalanceError(
+            f"subcatchment {out['subcatchment_id'].iloc[worst]}",
+            f"mass balance is off by {rel[worst]:.2e} of the rain",
+            "this is an internal fault; please report it with the project file",
+        )

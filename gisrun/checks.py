@@ -1,0 +1,83 @@
+"""Check every input of a project and collect each problem as one line.
+
+Unlike a run, which stops at the first problem, a check goes on after each
+failed input so the user sees every problem at once. Steps that need an input
+that failed are skipped.
+"""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any, TypeVar
+
+from .errors import GisrunError, GisrunWarning
+
+__all__ = ["check_project"]
+
+T = TypeVar("T")
+
+
+def check_project(path: str | Path) -> tuple[list[str], list[str]]:
+    """Check a project's inputs without running it.
+
+    Parameters
+    ----------
+    path : path
+        Project file or folder.
+
+    Returns
+    -------
+    problems : list of str
+        One line per problem (empty when the project can run).
+    notes : list of str
+        Warnings raised while checking.
+    """
+    from . import pipeline
+
+    problems: list[str] = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", GisrunWarning)
+        project = _attempt(problems, pipeline.load_project, path)
+        if project is not None:
+            _check_inputs(project, problems)
+    notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
+    return problems, list(dict.fromkeys(notes))
+
+
+def _check_inputs(project: Any, problems: list[str]) -> None:
+    from . import pipeline
+
+    subs = _attempt(problems, pipeline.read_subcatchment_layer, project)
+    soil = _attempt(problems, pipeline.read_soil, project)
+    cover = _attempt(problems, pipeline.read_cover, project)
+    storms = _attempt(problems, pipeline.read_storms, project)
+    overrides = _attempt(problems, pipeline.read_overrides, project)
+    if subs is None or soil is None:
+        return
+    codes_ok = _check_codes(problems, soil, subs, project.soil.codes, project.where("soil"))
+    if project.cover is not None and cover is not None:
+        codes_ok &= _check_codes(problems, cover, subs, project.cover.codes,
+                                 project.where("cover"))
+    if project.cover is not None and cover is None or storms is None or not codes_ok:
+        return
+    inputs = pipeline.Inputs(subs, soil, cover, storms, overrides)
+    overlaid = _attempt(problems, pipeline.overlay_inputs, project, inputs)
+    if overlaid is not None:
+        _attempt(problems, pipeline.prepare_parameters, project, inputs, overlaid[0])
+
+
+def _check_codes(problems: list[str], raster: Any, subs: Any, codes: dict[int, str],
+                 where: str) -> bool:
+    from .pipeline import check_raster_codes
+
+    return _attempt(problems, check_raster_codes, raster, subs, codes, where) is not None
+
+
+def _attempt(problems: list[str], func: Callable[..., T], *args: Any, **kwargs: Any) -> T | None:
+    try:
+        return func(*args, **kwargs)
+    except GisrunError as err:
+        problems.append(str(err))
+        return None

@@ -1,0 +1,111 @@
+"""The ``gisrun`` command group and its ``run``, ``check`` and ``tables`` commands."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import click
+
+from .. import __version__
+from ..errors import GisrunError
+from . import summary
+
+__all__ = ["cli"]
+
+project_argument = click.argument(
+    "project", type=click.Path(path_type=Path), metavar="PROJECT",
+)
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="gisrun")
+@click.option("--debug", is_flag=True, help="Show tracebacks for errors.")
+def cli(debug: bool) -> None:
+    """Infiltration and runoff for every subcatchment, from soil and land-cover rasters.
+
+    Planning-level estimates: check results against local codes and agency
+    methods, and have them reviewed by a licensed engineer.
+    """
+
+
+@cli.command()
+@project_argument
+@click.option("--output", "-o", type=click.Path(path_type=Path),
+              help="GeoPackage to write (default: the project's [project] output).")
+@click.option("--overwrite", is_flag=True, help="Replace an existing output.")
+@click.option("--quiet", "-q", is_flag=True, help="Print only errors.")
+@click.option("--json", "as_json", is_flag=True, help="Print a machine-readable summary.")
+def run(project: Path, output: Path | None, overwrite: bool, quiet: bool, as_json: bool) -> None:
+    """Run PROJECT (a project file, or a folder holding gisrun.toml) and write its results."""
+    from ..pipeline import CAUTION, load_project, run as run_project, write_outputs
+
+    loaded = load_project(project)
+    target = Path(output) if output else loaded.output
+    if target.exists() and not overwrite:  # fail before the work, not after it
+        from ..errors import OutputExistsError
+
+        raise OutputExistsError(str(target), "already exists",
+                                "pass --overwrite or choose another output path")
+    say = (lambda text: None) if (quiet or as_json) else (
+        lambda text: click.echo(f"  {text} ...", err=True))
+    result = run_project(loaded, progress=say)
+    say("writing outputs")
+    written = write_outputs(result, output=target, overwrite=overwrite)
+    if as_json:
+        click.echo(json.dumps(summary.as_dict(result, written), indent=2))
+    elif not quiet:
+        summary.print_summary(result, written)
+        click.echo(f"\nCaution: {CAUTION}")
+
+
+@cli.command()
+@project_argument
+def check(project: Path) -> None:
+    """Check every input of PROJECT without running it; report each problem on one line."""
+    from ..checks import check_project
+
+    problems, notes = check_project(project)
+    for note in notes:
+        click.echo(f"gisrun: warning: {note}", err=True)
+    for problem in problems:
+        click.echo(f"gisrun: error: {problem}", err=True)
+    if problems:
+        click.echo(f"{len(problems)} problem(s) found.", err=True)
+        raise click.exceptions.Exit(2)
+    click.echo("No problems found.")
+
+
+@cli.command()
+@click.argument("name", required=False)
+def tables(name: str | None) -> None:
+    """List the shipped parameter tables and their sources (or print table NAME)."""
+    from ..parameters import list_tables
+
+    found = list_tables()
+    if name is None:
+        for table in found:
+            click.echo(f"{table[0]}: {table[1]}")
+            for line in table[2]:
+                click.echo(f"    {line}")
+        return
+    for table in found:
+        if table[0] == name:
+            click.echo(f"{table[0]}: {table[1]}")
+            for line in table[2]:
+                click.echo(f"# {line}")
+            click.echo(table[3].to_string(index=False))
+            return
+    names = [t[0] for t in found]
+    raise GisrunError(f"table {name!r}", "is not a shipped table", f"use one of {names}")
+
+
+def _register_storm() -> None:
+    try:
+        from .storm import storm
+    except ImportError:  # pragma: no cover - storm commands are optional at import time
+        return
+    cli.add_command(storm)
+
+
+_register_storm()

@@ -1,0 +1,81 @@
+"""What ``gisrun run`` prints: a short summary table, or a JSON document."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from rich.console import Console
+from rich.table import Table
+
+from ..units import from_si
+
+__all__ = ["as_dict", "print_summary"]
+
+
+def _storm_rows(result: Any) -> list[dict[str, Any]]:
+    system = result.project.units
+    rows = []
+    for storm in result.storms:
+        subs = storm.subcatchments
+        area = subs["modelled_area_m2"].to_numpy()
+        total_area = float(area.sum())
+        mean = (lambda col: float((subs[col] * area).sum() / total_area) if total_area else 0.0)
+        ponded = subs["time_to_ponding_s"].to_numpy()
+        rows.append({
+            "storm": storm.name,
+            f"rain_depth_{system.depth}": from_si(mean("rain_depth_m"), system.depth),
+            f"infiltration_depth_{system.depth}": from_si(mean("infiltration_depth_m"),
+                                                          system.depth),
+            f"runoff_depth_{system.depth}": from_si(mean("runoff_depth_m"), system.depth),
+            f"runoff_volume_{system.volume}": from_si(float(subs["runoff_volume_m3"].sum()),
+                                                      system.volume),
+            "runoff_coefficient": (mean("runoff_depth_m") / mean("rain_depth_m")
+                                   if mean("rain_depth_m") > 0 else 0.0),
+            "subcatchments_ponding": int(np.isfinite(ponded).sum()),
+            "earliest_ponding_min": (float(np.nanmin(ponded)) / 60.0
+                                     if np.isfinite(ponded).any() else None),
+        })
+    return rows
+
+
+def as_dict(result: Any, written: Path) -> dict[str, Any]:
+    """A JSON-ready summary of a run."""
+    from ..pipeline import CAUTION
+
+    return {
+        "output": str(written),
+        "subcatchments": int(len(result.subcatchments)),
+        "units": int(len(result.parameters)),
+        "loss_method": result.project.method,
+        "unit_system": result.project.units.name,
+        "storms": _storm_rows(result),
+        "warnings": list(result.warnings),
+        "caution": CAUTION,
+    }
+
+
+def print_summary(result: Any, written: Path) -> None:
+    """Print a table of catchment-wide figures per storm and where the output went."""
+    console = Console()
+    rows = _storm_rows(result)
+    table = Table(title=f"{result.project.name}: {len(result.subcatchments)} subcatchments, "
+                        f"{len(result.parameters)} soil x cover units, "
+                        f"method {result.project.method}")
+    for key in rows[0]:
+        table.add_column(key, justify="left" if key == "storm" else "right")
+    for row in rows:
+        table.add_row(*[_fmt(v) for v in row.values()])
+    console.print(table)
+    for note in result.warnings:
+        console.print(f"[yellow]warning:[/yellow] {note}", highlight=False)
+    console.print(f"Output written to {written}", highlight=False)
+
+
+def _fmt(value: Any) -> str:
+    if value is None:
+        return "-"
+    if isinstance(value, float):
+        return f"{value:,.3g}" if abs(value) < 1000 else f"{value:,.0f}"
+    return str(value)

@@ -1,0 +1,156 @@
+"""Write results: GeoPackage layers and tables, CSV, always atomically.
+
+Every output is first written to a temporary file beside its target (same
+folder, so the final move is a rename on one file system) and moved into
+place with :func:`os.replace` only once it is complete. A run that fails or
+is interrupted leaves the previous output untouched and no temporary file
+behind. An existing output is replaced only when ``overwrite`` is true.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import tempfile
+from collections.abc import Iterator, Mapping
+from contextlib import contextmanager
+from pathlib import Path
+
+import geopandas as gpd
+import pandas as pd
+import pyogrio
+
+from ..errors import OutputError, OutputExistsError
+
+__all__ = ["atomic_target", "write_geopackage", "write_csv", "layer_name"]
+
+
+@contextmanager
+def atomic_target(target: str | Path, *, overwrite: bool) -> Iterator[Path]:
+    """Yield a temporary path beside ``target``; move it onto ``target`` on success.
+
+    Parameters
+    ----------
+    target : path
+        The final output path.
+    overwrite : bool
+        Whether an existing ``target`` may be replaced.
+
+    Raises
+    ------
+    OutputExistsError
+        If ``target`` exists and ``overwrite`` is false.
+    OutputError
+        If the folder cannot be created or written.
+    """
+    target = Path(target)
+    if target.exists() and not overwrite:
+        raise OutputExistsError(
+            str(target), "already exists", "pass --overwrite or choose another output path"
+        )
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fd, name = tempfile.mkstemp(
+            prefix=f".{target.stem}.", suffix=f".partial{target.suffix}", dir=target.parent
+        )
+    except OSError as err:
+        raise OutputError(
+            str(target.parent), f"cannot be written ({err.strerror or err})",
+            "choose a folder you can write to",
+        ) from None
+    os.close(fd)
+    tmp = Path(name)
+    tmp.unlink()  # writers create the file themselves (GDAL will not open an empty file)
+    try:
+        yield tmp
+        os.replace(tmp, target)
+    except OSError as err:
+        if isinstance(err, OutputError):
+            raise
+        raise OutputError(
+            str(target), f"could not be written ({err.strerror or err})",
+            "check free disk space and permissions, then run again",
+        ) from None
+    finally:
+        _remove(tmp)
+
+
+def _remove(path: Path) -> None:
+    for extra in (path, Path(f"{path}-journal"), Path(f"{path}-wal"), Path(f"{path}-shm")):
+        try:
+            extra.unlink()
+        except FileNotFoundError:
+            pass
+        except IsADirectoryError:
+            shutil.rmtree(extra, ignore_errors=True)
+
+
+def layer_name(text: str) -> str:
+    """A GeoPackage-safe layer name: letters, digits and ``_``, not starting with a digit.
+
+    Examples
+    --------
+    >>> layer_name("runoff 10-yr/24 h")
+    'runoff_10_yr_24_h'
+    """
+    safe = "".join(ch if ch.isalnum() else "_" for ch in text.strip().lower())
+    safe = "_".join(part for part in safe.split("_") if part)
+    return safe if safe and not safe[0].isdigit() else f"l_{safe}"
+
+
+def write_geopackage(
+    target: str | Path,
+    layers: Mapping[str, pd.DataFrame | gpd.GeoDataFrame],
+    *,
+    overwrite: bool = False,
+) -> Path:
+    """Write several layers (spatial or plain tables) into one new GeoPackage, atomically.
+
+    Parameters
+    ----------
+    target : path
+        The GeoPackage to write.
+    layers : mapping of str to DataFrame or GeoDataFrame
+        Layer name to content, written in order; a plain DataFrame becomes a
+        table without geometry.
+    overwrite : bool
+        Replace an existing file.
+
+    Returns
+    -------
+    Path
+        ``target``.
+    """
+    target = Path(target)
+    with atomic_target(target, overwrite=overwrite) as tmp:
+        for name, frame in layers.items():
+            _write_layer(tmp, name, frame)
+    return target
+
+
+def _write_layer(path: Path, name: str, frame: pd.DataFrame) -> None:
+    frame = _plain_columns(frame)
+    kwargs = {"driver": "GPKG", "layer": name}
+    if isinstance(frame, gpd.GeoDataFrame):
+        kwargs["promote_to_multi"] = True
+    pyogrio.write_dataframe(frame, path, **kwargs)
+
+
+def _plain_columns(frame: pd.DataFrame) -> pd.DataFrame:
+    """Make column types GDAL can store (strings as object, no categoricals)."""
+    frame = frame.copy()
+    for col in frame.columns:
+        if col == getattr(frame, "_geometry_column_name", None):
+            continue
+        dtype = frame[col].dtype
+        if isinstance(dtype, pd.CategoricalDtype) or pd.api.types.is_string_dtype(dtype):
+            frame[col] = frame[col].astype(object).where(frame[col].notna(), None)
+    return frame
+
+
+def write_csv(target: str | Path, frame: pd.DataFrame, *, overwrite: bool = False) -> Path:
+    """Write a CSV file atomically (no index column)."""
+    target = Path(target)
+    with atomic_target(target, overwrite=overwrite) as tmp:
+        frame.to_csv(tmp, index=False)
+    return target

@@ -1,0 +1,109 @@
+"""Shape a run's results into the output layers and tables, in the project's units.
+
+Pure data shaping: SI frames in, frames with unit-suffixed columns out
+(:func:`gisrun.units.present_frame`). Writing them is :mod:`gisrun.io.output`'s job.
+
+Layers of the output GeoPackage:
+
+``runoff_<storm>``
+    One polygon layer per storm, one feature per subcatchment.
+``subcatchment_results``
+    The same figures for every storm in one table (column ``storm``).
+``excess_series``
+    Long table: subcatchment, storm, step end time, rain, infiltration and
+    excess depth in the step and as intensities.
+``unit_results``, ``unit_parameters``, ``parameter_sources``, ``coverage``
+    Per soil x cover unit results and parameters, where each parameter came
+    from, and nodata / outside-raster area per subcatchment.
+``run_info``
+    What was run: version, time, method, storms, units, input checksums,
+    warnings and the caution.
+"""
+
+from __future__ import annotations
+
+import geopandas as gpd
+import pandas as pd
+
+from . import __version__
+from .io.output import layer_name
+from .units import present_frame
+
+__all__ = ["build_layers", "run_info", "storm_layer_name"]
+
+
+def storm_layer_name(storm_name: str) -> str:
+    """Name of the polygon layer of one storm (``runoff_<storm>``)."""
+    return layer_name(f"runoff_{storm_name}")
+
+
+def build_layers(result: object) -> dict[str, pd.DataFrame]:
+    """All output layers of a :class:`gisrun.pipeline.RunResult`, in output units."""
+    from .pipeline import subcatchment_table
+
+    system = result.project.units
+    geoms = result.subcatchments[["subcatchment_id", "geometry"]]
+    layers: dict[str, pd.DataFrame] = {}
+    per_storm, series, units = [], [], []
+    for storm in result.storms:
+        table = present_frame(subcatchment_table(result, storm), system)
+        layer = geoms.merge(table, on="subcatchment_id", how="left")
+        layers[storm_layer_name(storm.name)] = gpd.GeoDataFrame(layer, geometry="geometry",
+                                                                crs=result.subcatchments.crs)
+        per_storm.append(table.assign(storm=storm.name))
+        series.append(present_frame(storm.series, system).assign(storm=storm.name))
+        units.append(present_frame(storm.units, system).assign(storm=storm.name))
+    layers["subcatchment_results"] = _storm_first(pd.concat(per_storm, ignore_index=True))
+    layers["excess_series"] = _storm_first(pd.concat(series, ignore_index=True))
+    layers["unit_results"] = _storm_first(pd.concat(units, ignore_index=True))
+    layers["unit_parameters"] = present_frame(result.parameters, system)
+    layers["parameter_sources"] = result.parameter_sources
+    layers["coverage"] = present_frame(result.coverage, system)
+    layers["run_info"] = run_info(result)
+    return layers
+
+
+def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:
+    cols = ["storm", *[c for c in frame.columns if c != "storm"]]
+    return frame[cols]
+
+
+def run_info(result: object) -> pd.DataFrame:
+    """Key-value table describing the run (provenance), one row per fact."""
+    from .pipeline import CAUTION
+
+    project = result.project
+    rows: list[tuple[str, str]] = [
+        ("gisrun_version", __version__),
+        ("started_utc", result.started_utc),
+        ("project_name", project.name),
+        ("project_file", project.path.name),
+        ("unit_system", project.units.name),
+        ("time_step_min", f"{project.time_step_s / 60:g}"),
+        ("loss_method", project.method),
+        ("combine", project.combine),
+        ("subcatchment_id_field", project.subcatchments.id_field),
+        ("subcatchment_crs", result.subcatchments.crs.to_string()),
+        ("soil_classification", project.soil.classification),
+        ("dual_group_condition", project.soil.dual_group_condition),
+        ("initial_saturation", f"{project.soil.initial_saturation:g}"),
+        ("nodata_rule", project.nodata_rule),
+        ("max_nodata_fraction", f"{project.max_nodata_fraction:g}"),
+        ("subcatchment_count", str(len(result.subcatchments))),
+        ("unit_count", str(len(result.parameters))),
+    ]
+    depth_unit = project.units.depth
+    for storm in result.storms:
+        h = storm.hyetograph
+        depth = present_frame(pd.DataFrame({"d_m": [h.total_depth_m]}), project.units).iloc[0, 0]
+        rows.append(("storm", f"{h.name}: {depth:.4g} {depth_unit} over {h.duration_s / 60:g} min"))
+    for name, digest in result.checksums.items():
+        rows.append((f"sha256:{name}", digest))
+    if "source" in result.parameter_sources.columns:
+        for source in pd.unique(result.parameter_sources["source"].astype(str)):
+            rows.append(("parameter_source", source))
+    for note in result.warnings:
+        rows.append(("warning", note))
+    rows.append(("caution", CAUTION))
+    return pd.DataFrame(rows, columns=["key", "value"])
+

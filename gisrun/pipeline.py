@@ -1,0 +1,399 @@
+"""The run, step by step: the only module that calls both the readers and the computation.
+
+A notebook user can call each step and look at what it returns::
+
+    project = load_project("demo_catchment")
+    inputs = read_inputs(project)
+    units, coverage, notes = overlay_inputs(project, inputs)
+    params, sources, notes = prepare_parameters(project, inputs, units)
+    storm = run_storm(params, inputs.storms[0], project.time_step_s, sub_ids=...)
+
+or all of it with :func:`run`, then :func:`write_outputs`.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import os
+import warnings
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from .aggregate import soil_shares, subcatchment_series, summarize_subcatchments, summarize_units
+from .engine import LossResult, run_losses
+from .errors import GisrunWarning, ParameterError, RasterError, VectorError
+from .io.raster import ClassRaster, read_class_raster
+from .io.storm import storms_from_config
+from .io.tables import read_parameter_overrides
+from .io.vector import read_subcatchments
+from .overlay import compute_unit_areas
+from .parameters import assign_parameters, composite_parameters
+from .project import Project, load_project
+from .storm import Hyetograph
+
+__all__ = [
+    "CAUTION",
+    "Inputs",
+    "StormResult",
+    "RunResult",
+    "read_inputs",
+    "overlay_inputs",
+    "prepare_parameters",
+    "run_storm",
+    "run",
+    "load_project",
+]
+
+#: Printed by the CLI, written into the run table and the report.
+CAUTION = (
+    "Planning-level estimates only. Runoff figures depend on published typical parameters and "
+    "simplified loss methods; before sizing drains or judging flood risk, check them against "
+    "local codes and agency methods and have them reviewed by a licensed engineer."
+)
+
+Progress = Callable[[str], None]
+
+
+@dataclass
+class Inputs:
+    """Everything read from disk for a run, checked and in SI."""
+
+    subcatchments: gpd.GeoDataFrame
+    soil: ClassRaster
+    cover: ClassRaster | None
+    storms: list[Hyetograph]
+    overrides: pd.DataFrame | None = None
+
+
+@dataclass
+class StormResult:
+    """Results of one storm: per unit, per subcatchment, and the step series."""
+
+    hyetograph: Hyetograph
+    rain_per_step_m: np.ndarray
+    loss: LossResult
+    units: pd.DataFrame
+    subcatchments: pd.DataFrame
+    series: pd.DataFrame
+
+    @property
+    def name(self) -> str:
+        """The storm's name."""
+        return self.hyetograph.name
+
+
+@dataclass
+class RunResult:
+    """A whole run: inputs' overlay, parameters, and one :class:`StormResult` per storm."""
+
+    project: Project
+    subcatchments: gpd.GeoDataFrame
+    units: pd.DataFrame
+    coverage: pd.DataFrame
+    parameters: pd.DataFrame
+    parameter_sources: pd.DataFrame
+    storms: list[StormResult]
+    warnings: list[str] = field(default_factory=list)
+    started_utc: str = ""
+    checksums: dict[str, str] = field(default_factory=dict)
+
+
+def _quiet(_: str) -> None:
+    return None
+
+
+def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
+    """Read the subcatchment polygons with the fields the run needs."""
+    src = project.subcatchments
+    keep = tuple(f for f in (src.method_field, project.rain_scale_field) if f)
+    return read_subcatchments(src.path, id_field=src.id_field, layer=src.layer, crs=src.crs,
+                              keep_fields=keep)
+
+
+def read_soil(project: Project) -> ClassRaster:
+    """Open the soil raster and check it against the project's code table."""
+    return read_class_raster(project.soil.path, codes=project.soil.codes,
+                             where=project.where("soil", "path"), crs=project.soil.crs)
+
+
+def read_cover(project: Project) -> ClassRaster | None:
+    """Open the land-cover raster, if the project names one."""
+    if project.cover is None:
+        return None
+    return read_class_raster(project.cover.path, codes=project.cover.codes,
+                             where=project.where("cover", "path"), crs=project.cover.crs)
+
+
+def read_storms(project: Project) -> list[Hyetograph]:
+    """Build every storm of the project (design storms and hyetograph files)."""
+    return storms_from_config(list(project.storms), base_dir=project.base_dir,
+                              units=project.units, where=project.path.name)
+
+
+def read_overrides(project: Project) -> pd.DataFrame | None:
+    """Read the user's parameter override table, if any."""
+    return read_parameter_overrides(project.overrides) if project.overrides else None
+
+
+def read_inputs(project: Project) -> Inputs:
+    """Read and check every input file named by the project.
+
+    Raises
+    ------
+    GisrunError
+        The first problem found, naming the file, field or value.
+    """
+    return Inputs(
+        subcatchments=read_subcatchment_layer(project),
+        soil=read_soil(project),
+        cover=read_cover(project),
+        storms=read_storms(project),
+        overrides=read_overrides(project),
+    )
+
+
+def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame, codes: dict[int, str],
+                       where: str) -> bool:
+    """Raise if the raster holds, under the subcatchments, codes missing from ``codes``.
+
+    Raises
+    ------
+    RasterError
+        Listing the unknown codes and the project file table to add them to.
+    """
+    unknown = raster.unknown_codes(tuple(subs.total_bounds), crs=subs.crs)
+    if len(unknown):
+        listed = ", ".join(str(int(c)) for c in sorted(unknown)[:10])
+        raise RasterError(
+            Path(raster.path).name, f"holds codes {listed} that {where}.codes does not list",
+            "add each code and its class to that table in the project file",
+        )
+    return True
+
+
+def overlay_inputs(project: Project, inputs: Inputs) -> tuple[pd.DataFrame, pd.DataFrame, list]:
+    """Areas of every (subcatchment, soil class, cover class) unit, and nodata per subcatchment.
+
+    Raises
+    ------
+    RasterError
+        If a raster holds codes its code table does not list, or nodata exceeds the limit.
+    """
+    check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
+                       project.where("soil"))
+    if inputs.cover is not None and project.cover is not None:
+        check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
+                           project.where("cover"))
+    return compute_unit_areas(
+        inputs.subcatchments, inputs.soil, inputs.cover,
+        soil_codes=project.soil.codes,
+        cover_codes=project.cover.codes if project.cover else None,
+        nodata_rule=project.nodata_rule,
+        max_nodata_fraction=project.max_nodata_fraction,
+    )
+
+
+def prepare_parameters(
+    project: Project, inputs: Inputs, units: pd.DataFrame
+) -> tuple[pd.DataFrame, pd.DataFrame, list]:
+    """Unit parameters (SI) from the published tables and the user's overrides."""
+    attributes = _subcatchment_attributes(project, inputs.subcatchments)
+    params, sources, notes = assign_parameters(
+        units,
+        classification=project.soil.classification,
+        dual_group_condition=project.soil.dual_group_condition,
+        initial_saturation=project.soil.initial_saturation,
+        method=project.method,
+        overrides=inputs.overrides,
+        subcatchment_attributes=attributes,
+    )
+    if project.combine == "composite":
+        params = composite_parameters(params)
+    return params.reset_index(drop=True), pd.DataFrame(sources), list(notes)
+
+
+def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
+    field_name = project.subcatchments.method_field
+    if not field_name:
+        return None
+    methods = subs[field_name].astype(object).where(subs[field_name].notna(), None)
+    methods = methods.map(lambda v: v.strip().lower() if isinstance(v, str) and v.strip() else None)
+    attrs = pd.DataFrame({"subcatchment_id": subs["subcatchment_id"], "loss_method": methods})
+    attrs = attrs.dropna(subset=["loss_method"])
+    _check_methods(attrs, project)
+    return attrs if len(attrs) else None
+
+
+def _check_methods(attrs: pd.DataFrame, project: Project) -> None:
+    import difflib
+
+    from .engine import ENGINES
+
+    for sub_id, name in zip(attrs["subcatchment_id"], attrs["loss_method"], strict=True):
+        if name not in ENGINES:
+            near = difflib.get_close_matches(name, sorted(ENGINES), n=1)
+            hint = f"did you mean {near[0]!r}?" if near else f"use one of {sorted(ENGINES)}"
+            raise VectorError(
+                f"{project.subcatchments.path.name}:{project.subcatchments.method_field}"
+                f":id={sub_id}", f"names an unknown method {name!r}", hint,
+            )
+
+
+def run_storm(
+    params: pd.DataFrame,
+    hyetograph: Hyetograph,
+    dt_s: float,
+    *,
+    sub_ids: np.ndarray,
+    rain_scale: np.ndarray | None = None,
+) -> StormResult:
+    """Run every unit through one storm and aggregate to subcatchments (all SI)."""
+    rain = hyetograph.resample(dt_s)
+    rain_units = rain if rain_scale is None else rain[:, None] * rain_scale[None, :]
+    loss = run_losses(params, rain_units, dt_s)
+    units = summarize_units(loss, params, dt_s)
+    subs = summarize_subcatchments(loss, params, sub_ids, dt_s)
+    series = subcatchment_series(loss, params, sub_ids, dt_s)
+    for name in ("rain", "infiltration", "excess"):
+        series[f"{name}_intensity_m_per_s"] = series[f"{name}_m"] / dt_s
+    return StormResult(hyetograph, rain, loss, units, subs, series)
+
+
+def _rain_scale(project: Project, inputs: Inputs, params: pd.DataFrame) -> np.ndarray | None:
+    field_name = project.rain_scale_field
+    if not field_name:
+        return None
+    subs = inputs.subcatchments
+    factor = pd.to_numeric(subs[field_name], errors="coerce")
+    bad = subs.loc[~np.isfinite(factor) | (factor < 0), "subcatchment_id"]
+    if len(bad):
+        raise ParameterError(
+            f"{project.subcatchments.path.name}:{field_name}:id={bad.iloc[0]}",
+            "is not a non-negative number", "give every subcatchment a rain depth factor",
+        )
+    by_id = pd.Series(factor.to_numpy(), index=subs["subcatchment_id"])
+    return by_id.reindex(params["subcatchment_id"]).to_numpy(dtype=np.float64)
+
+
+def run(project: Project | str | Path, *, progress: Progress | None = None) -> RunResult:
+    """Read the inputs, overlay, assign parameters and run every storm; write nothing.
+
+    Parameters
+    ----------
+    project : Project or path
+        A loaded project, or a project file / folder to load.
+    progress : callable, optional
+        Called with a short text as each step starts.
+
+    Returns
+    -------
+    RunResult
+
+    Raises
+    ------
+    GisrunError
+        On any bad input, naming the file, field or value.
+    """
+    say = progress or _quiet
+    if not isinstance(project, Project):
+        project = load_project(project)
+    started = _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", GisrunWarning)
+        say("reading inputs")
+        inputs = read_inputs(project)
+        say("overlaying subcatchments on the rasters")
+        units, coverage, notes_overlay = overlay_inputs(project, inputs)
+        say("assigning parameters")
+        params, sources, notes_params = prepare_parameters(project, inputs, units)
+        sub_ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
+        scale = _rain_scale(project, inputs, params)
+        results = []
+        for hyetograph in inputs.storms:
+            say(f"running storm {hyetograph.name}")
+            results.append(run_storm(params, hyetograph, project.time_step_s, sub_ids=sub_ids,
+                                     rain_scale=scale))
+    notes = [str(n) for n in (*notes_overlay, *notes_params)]
+    notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
+    return RunResult(
+        project=project,
+        subcatchments=inputs.subcatchments,
+        units=units,
+        coverage=coverage,
+        parameters=params,
+        parameter_sources=sources,
+        storms=results,
+        warnings=list(dict.fromkeys(notes)),
+        started_utc=started,
+        checksums=input_checksums(project),
+    )
+
+
+def input_checksums(project: Project) -> dict[str, str]:
+    """SHA-256 of every input file, so a result can be traced to its inputs."""
+    paths = [project.path, project.subcatchments.path, project.soil.path]
+    if project.cover:
+        paths.append(project.cover.path)
+    if project.overrides:
+        paths.append(project.overrides)
+    for spec in project.storms:
+        for key in ("path", "idf_table"):
+            if isinstance(spec.get(key), str):
+                paths.append((project.base_dir / spec[key]).resolve())
+    out = {}
+    for path in paths:
+        if Path(path).is_file():
+            out[os.path.relpath(path, project.base_dir)] = _sha256(path)
+    return out
+
+
+def _sha256(path: Path) -> str:
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def subcatchment_table(result: RunResult, storm: StormResult) -> pd.DataFrame:
+    """Subcatchment results of one storm with polygon area and soil shares (SI columns)."""
+    subs = storm.subcatchments.merge(
+        result.coverage, on="subcatchment_id", how="left", suffixes=("", "_coverage")
+    )
+    shares = soil_shares(result.units, subs["subcatchment_id"])
+    return subs.merge(shares, on="subcatchment_id", how="left")
+
+
+def write_outputs(
+    result: RunResult, *, output: str | Path | None = None, overwrite: bool = False
+) -> Path:
+    """Write the run's GeoPackage (atomically); returns its path.
+
+    Parameters
+    ----------
+    result : RunResult
+        From :func:`run`.
+    output : path, optional
+        Where to write; defaults to the project's ``output``.
+    overwrite : bool
+        Replace an existing file.
+
+    Raises
+    ------
+    OutputExistsError
+        If the output exists and ``overwrite`` is false.
+    OutputError
+        If it cannot be written; nothing is left half-written.
+    """
+    from .io.output import write_geopackage
+    from .layers import build_layers
+
+    target = Path(output) if output else result.project.output
+    return write_geopackage(target, build_layers(result), overwrite=overwrite)
