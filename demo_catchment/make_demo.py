@@ -1,0 +1,459 @@
+"""Write the invented Kestlow Vale demo data set into this folder.
+
+Kestlow Vale is an invented hillside town in an invented valley; nothing here is real data.
+The script is the record of how every file was made: run it again to get the same files
+(byte for byte where the libraries allow; the GeoPackage timestamp is pinned).
+
+    python demo_catchment/make_demo.py
+
+It writes, next to itself:
+
+- ``subcatchments.gpkg`` (layer ``subcatchments``): Voronoi cells clipped to the basin outline,
+  fields ``catchment_code``, ``name``, ``loss_method`` (null for most).
+- ``soil_groups.tif``: 10 m hydrologic soil group codes (uint8, 255 = nodata).
+- ``land_cover.tif``: 5 m cover codes on the same extent (2 x 2 cover cells = 1 soil cell).
+- ``storms/observed_event.csv``: an observed-style 5-minute hyetograph.
+- ``gisrun.toml``: the project file that ties them together.
+
+The data exist to show the program working; they are never a test reference.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pyogrio
+import rasterio
+import shapely
+from numpy.typing import NDArray
+from rasterio.features import rasterize
+from rasterio.transform import from_origin
+from scipy.ndimage import gaussian_filter
+
+HERE = Path(__file__).resolve().parent
+RNG_STATE = 20240611  # fixed state of the random-number generator: same files every run
+TOWN = "Kestlow Vale"
+CODE_PREFIX = "KV"
+CRS = "EPSG:32617"  # WGS 84 / UTM zone 17N; the coordinates below are invented
+HEAD_E_M, AXIS_N_M = 537_000.0, 4_381_200.0  # valley head (west end) on the valley axis
+VALLEY_LENGTH_M = 3_400.0
+MAX_HALF_WIDTH_M = 1_000.0
+SOIL_CELL_M, COVER_CELL_M = 10.0, 5.0
+MARGIN_M = 60.0  # the rasters reach this far past the basin on the west, north and south
+EAST_CUT_M = 20.0  # ... and stop this far short of the outlet on the east (a small sliver)
+N_CELLS_TARGET = 90
+GPKG_DATE = "2024-06-11T00:00:00.000Z"  # pinned so the GeoPackage is reproducible
+
+SOIL_CODES = {1: "A", 2: "B", 3: "C", 4: "D", 5: "B/D", 6: "C/D", 9: "water"}
+SOIL_NODATA = 255
+COVER_CODES = {
+    1: "impervious",
+    2: "residential_quarter_acre",
+    3: "residential_half_acre",
+    4: "commercial",
+    5: "open_space_good",
+    6: "woods_good",
+    7: "pasture_good",
+    8: "row_crops_good",
+}
+COVER_NODATA = 0
+DESIGN_STORMS_MM = {"2yr": 50, "10yr": 90, "100yr": 140}  # invented depths for the invented town
+
+SOIL_COLOURS = {1: (230, 200, 120), 2: (170, 200, 110), 3: (110, 160, 170), 4: (90, 90, 160),
+                5: (150, 130, 190), 6: (120, 100, 150), 9: (60, 120, 230)}
+COVER_COLOURS = {1: (90, 90, 90), 2: (230, 170, 150), 3: (240, 210, 170), 4: (200, 80, 80),
+                 5: (160, 220, 130), 6: (40, 120, 50), 7: (200, 220, 110), 8: (220, 190, 60)}
+
+
+# --- valley geometry (local frame: u along the valley from the head, v across, north +) ---
+
+def _valley_shape(rng: np.random.Generator) -> dict[str, NDArray[np.float64]]:
+    """Phases of the wobbles that make the outline and the stream look natural."""
+    return {"phase": rng.uniform(0.0, 2.0 * np.pi, size=5)}
+
+
+def centreline_v_m(u_m: NDArray[np.float64], shape: dict) -> NDArray[np.float64]:
+    """Across-valley offset of the stream from the valley axis, m."""
+    t = np.clip(u_m / VALLEY_LENGTH_M, 0.0, 1.0)
+    return 90.0 * np.sin(2.0 * np.pi * 1.2 * t + shape["phase"][0]) * (1.0 - 0.5 * t)
+
+
+def half_width_m(u_m: NDArray[np.float64], shape: dict, *, north: bool) -> NDArray[np.float64]:
+    """Distance from the stream to the basin divide on one side, m."""
+    t = np.clip(u_m / VALLEY_LENGTH_M, 0.0, 1.0)
+    s = 0.98 * t**0.8
+    base = MAX_HALF_WIDTH_M * np.sin(np.pi * s) ** 0.9
+    p1, p2 = (shape["phase"][1], shape["phase"][2]) if north else (shape["phase"][3],
+                                                                   shape["phase"][4])
+    wobble = 1.0 + 0.06 * np.sin(6.0 * np.pi * t + p1) + 0.04 * np.sin(14.0 * np.pi * t + p2)
+    return base * wobble * (0.92 if north else 1.0)
+
+
+def basin_outline(shape: dict) -> shapely.Polygon:
+    """Basin outline in local coordinates: a teardrop valley, rounded head, cut at the outlet."""
+    u = np.linspace(0.0, VALLEY_LENGTH_M, 341)
+    vc = centreline_v_m(u, shape)
+    north = np.column_stack([u, vc + half_width_m(u, shape, north=True)])
+    south = np.column_stack([u, vc - half_width_m(u, shape, north=False)])
+    ring = np.vstack([north, south[::-1]])
+    outline = shapely.Polygon(ring).buffer(-40.0).buffer(40.0)
+    return shapely.set_precision(outline, 0.01)
+
+
+def relative_height(u_m: NDArray[np.float64], v_m: NDArray[np.float64], shape: dict
+                    ) -> NDArray[np.float64]:
+    """0 on the stream, 1 on the divide (above 1 outside the basin): a stand-in for elevation."""
+    vc = centreline_v_m(u_m, shape)
+    north = v_m >= vc
+    width = np.where(north, half_width_m(u_m, shape, north=True),
+                     half_width_m(u_m, shape, north=False))
+    return np.abs(v_m - vc) / np.maximum(width, 60.0)
+
+
+# --- grids and smooth noise ---
+
+def grid_frame(outline_local: shapely.Polygon, cell_m: float) -> tuple[float, float, int, int]:
+    """West, north, columns and rows of a raster that covers the basin as described above."""
+    minu, minv, maxu, maxv = outline_local.bounds
+    west = np.floor((HEAD_E_M + minu - MARGIN_M) / SOIL_CELL_M) * SOIL_CELL_M
+    east = np.floor((HEAD_E_M + maxu - EAST_CUT_M) / SOIL_CELL_M) * SOIL_CELL_M
+    south = np.floor((AXIS_N_M + minv - MARGIN_M) / SOIL_CELL_M) * SOIL_CELL_M
+    north = np.ceil((AXIS_N_M + maxv + MARGIN_M) / SOIL_CELL_M) * SOIL_CELL_M
+    return west, north, int(round((east - west) / cell_m)), int(round((north - south) / cell_m))
+
+
+def cell_centres_local(frame: tuple[float, float, int, int], cell_m: float
+                       ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Local (u, v) of every cell centre, arrays of shape (rows, cols)."""
+    west, north, cols, rows = frame
+    x = west + (np.arange(cols) + 0.5) * cell_m - HEAD_E_M
+    y = north - (np.arange(rows) + 0.5) * cell_m - AXIS_N_M
+    return np.meshgrid(x, y)
+
+
+def smooth_noise(rng: np.random.Generator, shape: tuple[int, int], sigma_cells: float
+                 ) -> NDArray[np.float64]:
+    """Gaussian-filtered white noise rescaled to mean 0, standard deviation 1."""
+    field = gaussian_filter(rng.standard_normal(shape), sigma_cells, mode="reflect")
+    return (field - field.mean()) / field.std()
+
+
+def in_ellipse(u: NDArray, v: NDArray, centre: tuple[float, float], radii: tuple[float, float]
+               ) -> NDArray[np.bool_]:
+    """True where (u, v) lies inside an axis-aligned ellipse."""
+    return ((u - centre[0]) / radii[0]) ** 2 + ((v - centre[1]) / radii[1]) ** 2 <= 1.0
+
+
+def pond_centre(shape: dict) -> tuple[float, float]:
+    """Local centre of the mill pond, just south of the stream in the town."""
+    u = 0.62 * VALLEY_LENGTH_M
+    return u, float(centreline_v_m(np.array(u), shape)) - 55.0
+
+
+def quarry_mask(u: NDArray, v: NDArray, shape: dict) -> NDArray[np.bool_]:
+    """The old gravel workings: a strip on the south slope never soil-surveyed (nodata)."""
+    u0 = 0.30 * VALLEY_LENGTH_M
+    v0 = float(centreline_v_m(np.array(u0), shape)) - 0.62 * float(
+        half_width_m(np.array(u0), shape, north=False))
+    return (np.abs(u - u0) <= 100.0) & (np.abs(v - v0) <= 15.0)
+
+
+# --- soil ---
+
+def make_soil(rng: np.random.Generator, shape: dict, frame: tuple) -> NDArray[np.uint8]:
+    """Soil groups: wet alluvium on the valley floor, B and C on the slopes, A near the divides."""
+    u, v = cell_centres_local(frame, SOIL_CELL_M)
+    h = relative_height(u, v, shape) + 0.10 * smooth_noise(rng, u.shape, 8.0)
+    n = smooth_noise(rng, u.shape, 6.0)
+    soil = np.full(u.shape, 2, dtype=np.uint8)
+    floor, slope, upper = h < 0.16, (h >= 0.16) & (h < 0.62), h >= 0.62
+    soil[floor] = np.select([n[floor] < -0.4, n[floor] < 0.5], [4, 6], 5)
+    soil[slope] = np.select([n[slope] < -0.9, n[slope] < 0.35], [4, 2], 3)
+    soil[upper] = np.where(n[upper] < 0.0, 1, 2)
+    soil[in_ellipse(u, v, pond_centre(shape), (70.0, 38.0))] = 9
+    soil[quarry_mask(u, v, shape)] = SOIL_NODATA
+    return soil
+
+
+# --- land cover ---
+
+def _roads(shape: dict, frame: tuple) -> NDArray[np.bool_]:
+    """Impervious road network: the valley road plus streets climbing both slopes in town."""
+    u_along = np.linspace(0.08 * VALLEY_LENGTH_M, VALLEY_LENGTH_M + 100.0, 200)
+    valley_road = shapely.LineString(np.column_stack(
+        [u_along, centreline_v_m(u_along, shape) + 70.0]))
+    lines = [valley_road.buffer(6.0)]
+    for t in np.arange(0.46, 0.97, 0.075):
+        u0 = t * VALLEY_LENGTH_M
+        vc = float(centreline_v_m(np.array(u0), shape))
+        reach_n = 0.55 * float(half_width_m(np.array(u0), shape, north=True))
+        reach_s = 0.55 * float(half_width_m(np.array(u0), shape, north=False))
+        lines.append(shapely.LineString([(u0, vc + 70.0), (u0 + 40.0, vc + reach_n)]).buffer(4.0))
+        if t > 0.5:
+            lines.append(shapely.LineString([(u0, vc + 70.0), (u0 - 30.0, vc - reach_s)])
+                         .buffer(4.0))
+    west, north, cols, rows = frame
+    transform = from_origin(west - HEAD_E_M, north - AXIS_N_M, COVER_CELL_M, COVER_CELL_M)
+    return rasterize([(g, 1) for g in lines], out_shape=(rows, cols), transform=transform,
+                     fill=0, dtype="uint8").astype(bool)
+
+
+def make_cover(rng: np.random.Generator, shape: dict, frame: tuple) -> NDArray[np.uint8]:
+    """Cover classes: town core on the valley floor, housing up the slopes, woods above, farms
+    at the head of the valley, a green corridor along the stream."""
+    u, v = cell_centres_local(frame, COVER_CELL_M)
+    t = u / VALLEY_LENGTH_M + 0.04 * smooth_noise(rng, u.shape, 24.0)
+    h = relative_height(u, v, shape) + 0.08 * smooth_noise(rng, u.shape, 14.0)
+    n = smooth_noise(rng, u.shape, 10.0)
+    town_ramp = np.clip((t - 0.36) / 0.14, 0.0, 1.0)  # housing thins out towards the farms
+    dev_limit = town_ramp * (0.35 + 0.28 * np.exp(-(((t - 0.72) / 0.22) ** 2)))
+    cover = np.full(u.shape, 6, dtype=np.uint8)  # woods by default
+    farms = (t < 0.42) & (h < 0.75)
+    cover[farms] = np.where(n[farms] > 0.25, 8, 7)
+    cover[(h >= 0.75) & (n > 1.2)] = 5  # hill meadows
+    cover[(h < dev_limit)] = 3
+    cover[(h < 0.55 * dev_limit)] = 2
+    core = (t > 0.55) & (t < 0.92) & (h < 0.14)
+    cover[core] = np.where(n[core] > 0.3, 4, 1)
+    distance_to_stream = np.abs(v - centreline_v_m(u, shape))
+    cover[(distance_to_stream < 22.0) & (t > 0.2)] = 5
+    school = (np.abs(u - 0.80 * VALLEY_LENGTH_M) < 70.0) & (h > 0.3) & (h < 0.38) & (v > 0)
+    cover[school] = 5
+    cover[in_ellipse(u, v, pond_centre(shape), (82.0, 50.0))] = 5
+    cover[quarry_mask(u, v, shape)] = 5
+    cover[_roads(shape, frame)] = 1
+    return cover
+
+
+# --- subcatchments ---
+
+def make_subcatchments(rng: np.random.Generator, outline_local: shapely.Polygon, shape: dict
+                       ) -> gpd.GeoDataFrame:
+    """Voronoi cells from jittered points inside the basin, clipped to the outline."""
+    spacing = np.sqrt(outline_local.area / N_CELLS_TARGET)
+    minu, minv, maxu, maxv = outline_local.bounds
+    gu, gv = np.meshgrid(np.arange(minu, maxu, spacing), np.arange(minv, maxv, spacing))
+    pts = np.column_stack([gu.ravel(), gv.ravel()]) + spacing * (0.5 + rng.uniform(
+        -0.35, 0.35, size=(gu.size, 2)))
+    inner = outline_local.buffer(-0.25 * spacing)
+    pts = pts[shapely.contains_xy(inner, pts[:, 0], pts[:, 1])]
+    cells = shapely.voronoi_polygons(shapely.MultiPoint(pts), extend_to=outline_local.buffer(500))
+    geoms = shapely.intersection(np.asarray(cells.geoms), outline_local)
+    geoms = shapely.set_precision(geoms, 0.01)
+    if not all(g.geom_type == "Polygon" for g in geoms):
+        raise RuntimeError("a subcatchment came out in pieces; change RNG_STATE or the outline")
+    centres = shapely.get_coordinates(shapely.point_on_surface(geoms))
+    order = np.lexsort((centres[:, 1], centres[:, 0]))
+    geoms, centres = geoms[order], centres[order]
+    world = shapely.transform(geoms, lambda xy: xy + np.array([HEAD_E_M, AXIS_N_M]))
+    return gpd.GeoDataFrame(
+        {
+            "catchment_code": [f"{CODE_PREFIX}-{i + 1:03d}" for i in range(len(world))],
+            "name": _names(centres, shape),
+            "loss_method": _method_choices(centres, shape),
+        },
+        geometry=world,
+        crs=CRS,
+    )
+
+
+def _zone(u: float, v: float, shape: dict) -> str:
+    """Plain-language neighbourhood of a local point."""
+    t = u / VALLEY_LENGTH_M
+    h = float(relative_height(np.array(u), np.array(v), shape))
+    side = "north" if v >= float(centreline_v_m(np.array(u), shape)) else "south"
+    if t < 0.42:
+        return "Head farms" if h < 0.75 else f"Head woods {side}"
+    if t > 0.93:
+        return "Outlet reach"
+    if h < 0.2 and t > 0.55:
+        return "Town centre"
+    return f"{'Lower' if h < 0.45 else 'Upper'} {side} slope"
+
+
+def _names(centres: NDArray[np.float64], shape: dict) -> list[str]:
+    """Zone name plus a running number inside each zone."""
+    counts: dict[str, int] = {}
+    names = []
+    for u, v in centres:
+        zone = _zone(u, v, shape)
+        counts[zone] = counts.get(zone, 0) + 1
+        names.append(f"{zone} {counts[zone]}")
+    return names
+
+
+def _method_choices(centres: NDArray[np.float64], shape: dict) -> list[str | None]:
+    """Per-subcatchment method demo: curve number on the four most upstream (farm) cells,
+    Horton on the four cells nearest the pond; the rest use the project default (null)."""
+    methods: list[str | None] = [None] * len(centres)
+    for i in np.argsort(centres[:, 0])[:4]:
+        methods[i] = "curve_number"
+    pond = np.array(pond_centre(shape))
+    for i in np.argsort(np.hypot(*(centres - pond).T))[:4]:
+        methods[i] = "horton"
+    return methods
+
+
+# --- storms ---
+
+OBSERVED_MM_PER_H = [  # 5-minute intensities: a main burst, a dry gap, a second burst, a tail
+    1.2, 2.0, 1.6, 3.4, 6.0, 9.5, 14.0, 22.0, 38.0, 52.0, 41.0, 27.0,
+    16.0, 9.0, 4.2, 1.5, 0.0, 0.0, 0.0, 0.6, 2.4, 7.5, 18.0, 26.0,
+    19.0, 11.0, 6.0, 3.5, 2.0, 1.2, 0.8, 0.0, 0.5, 0.9, 0.4, 0.2,
+]
+
+
+def observed_event_csv(rng: np.random.Generator) -> str:
+    """CSV text; each row's time marks the END of its 5-minute interval."""
+    base = np.array(OBSERVED_MM_PER_H)
+    jittered = np.round(base * rng.uniform(0.9, 1.1, size=base.size), 1)
+    rows = [f"{5 * (i + 1)},{x:.1f}" for i, x in enumerate(jittered)]
+    return "time_min,intensity_mm_per_h\n" + "\n".join(rows) + "\n"
+
+
+# --- writing ---
+
+def write_raster(path: Path, data: NDArray[np.uint8], frame: tuple, cell_m: float, *,
+                 nodata: int, codes: dict[int, str], colours: dict) -> None:
+    """Tiled, DEFLATE-compressed uint8 GeoTIFF with a colour table and code-label tags."""
+    west, north, cols, rows = frame
+    profile = dict(driver="GTiff", width=cols, height=rows, count=1, dtype="uint8", crs=CRS,
+                   transform=from_origin(west, north, cell_m, cell_m), nodata=nodata,
+                   tiled=True, blockxsize=256, blockysize=256, compress="deflate", zlevel=9)
+    path.unlink(missing_ok=True)
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(data, 1)
+        dst.write_colormap(1, {c: (*rgb, 255) for c, rgb in colours.items()})
+        dst.update_tags(DATA="invented demo data for Kestlow Vale; not a real place",
+                        **{f"CODE_{c}": label for c, label in codes.items()})
+
+
+def write_project_file(path: Path) -> None:
+    """The demo project file, following the gisrun project file format."""
+    soil = "\n".join(f'"{c}" = "{label}"' for c, label in SOIL_CODES.items())
+    cover = "\n".join(f'"{c}" = "{label}"' for c, label in COVER_CODES.items())
+    storms = "\n\n".join(
+        f'[[storms]]\nname = "nrcs_ii_24h_{rp}_{mm}mm"\nkind = "nrcs_24h"\n'
+        f'distribution = "II"\ndepth = {mm}' for rp, mm in DESIGN_STORMS_MM.items())
+    text = PROJECT_TEMPLATE.format(town=TOWN, crs=CRS, soil_codes=soil, cover_codes=cover,
+                                   design_storms=storms)
+    path.write_text(text, encoding="utf-8", newline="\n")
+
+
+PROJECT_TEMPLATE = """\
+# gisrun project file for the Kestlow Vale demo (written by make_demo.py; edit freely).
+# Kestlow Vale is an invented town: every file in this folder is invented demo data.
+# Results are planning-level estimates only. Defer to local codes, agency methods and a
+# licensed engineer before sizing a drain or judging flood risk.
+# Paths are relative to this file's folder.
+
+# [project]: a name for the run, the unit system for everything you type and read
+# ("si": depths mm, rates mm/h, areas m2, volumes m3), where results go, and the time step.
+[project]
+name = "{town} demo"
+units = "si"
+output = "output/demo_runoff.gpkg"
+time_step_min = 5
+
+# [subcatchments]: the polygons to report on. id_field names the attribute holding each
+# subcatchment's unique code; method_field (optional) names an attribute that may choose a
+# different loss method for single subcatchments (empty = use [method] below).
+[subcatchments]
+path = "subcatchments.gpkg"
+layer = "subcatchments"
+id_field = "catchment_code"
+method_field = "loss_method"
+# crs = "{crs}"   # only needed when the file carries no CRS; this one does
+
+# [soil]: a categorical raster of soil classes. Each raster code (as a string) maps to a
+# hydrologic soil group; dual groups (B/D, C/D) are read as drained or undrained.
+# initial_saturation (0-1) is the effective saturation at the start of the storm (Green-Ampt).
+# "water" marks a code that does not infiltrate (the mill pond).
+[soil]
+path = "soil_groups.tif"
+classification = "hydrologic_soil_group"
+dual_group_condition = "undrained"
+initial_saturation = 0.3
+
+[soil.codes]
+{soil_codes}
+
+# [cover]: a categorical land-cover raster (here at 5 m, finer than the 10 m soil raster).
+# Each code maps to a cover class name from gisrun's shipped cover table.
+[cover]
+path = "land_cover.tif"
+
+[cover.codes]
+{cover_codes}
+
+# [nodata]: what to do where a subcatchment has no soil or cover data (the unsurveyed gravel
+# workings, and a thin strip at the outlet that the rasters do not reach).
+# "dominant" fills it from the subcatchment's most common class; any subcatchment with more
+# than max_fraction of its area missing stops the run.
+[nodata]
+rule = "dominant"
+max_fraction = 0.25
+
+# [method]: the default loss method, and whether each soil x cover unit is simulated on its
+# own and summed ("units") or parameters are area-weighted first ("composite").
+[method]
+name = "green_ampt"
+combine = "units"
+
+# [parameters]: optional CSV of your own parameter values that replace the published ones.
+# [parameters]
+# overrides = "my_parameters.csv"
+
+# [[storms]]: one block per storm; every storm is run. Design depths below are invented
+# for the invented town (a 2-, 10- and 100-year 24-hour depth); use your agency's values.
+{design_storms}
+
+# An observed-style event: 5-minute intensities, each row's time marks the end of its interval.
+[[storms]]
+name = "observed_event"
+kind = "file"
+path = "storms/observed_event.csv"
+
+# Other kinds, for reference:
+# [[storms]]
+# name = "block_2h"
+# kind = "alternating_block"      # or "chicago"; i = a / (t_min + b)^c in mm/h
+# idf = {{ a = 1200.0, b = 10.0, c = 0.8 }}
+# duration_min = 120
+# step_min = 5
+# peak_position = 0.5
+"""
+
+
+def main() -> None:
+    """Generate every demo file next to this script and print a short summary."""
+    rng = np.random.default_rng(RNG_STATE)
+    shape = _valley_shape(rng)
+    outline = basin_outline(shape)
+    subs = make_subcatchments(rng, outline, shape)
+    frame_soil = grid_frame(outline, SOIL_CELL_M)
+    frame_cover = grid_frame(outline, COVER_CELL_M)
+    soil = make_soil(rng, shape, frame_soil)
+    cover = make_cover(rng, shape, frame_cover)
+    (HERE / "storms").mkdir(exist_ok=True)
+    (HERE / "storms" / "observed_event.csv").write_text(observed_event_csv(rng), newline="\n")
+    write_raster(HERE / "soil_groups.tif", soil, frame_soil, SOIL_CELL_M, nodata=SOIL_NODATA,
+                 codes=SOIL_CODES, colours=SOIL_COLOURS)
+    write_raster(HERE / "land_cover.tif", cover, frame_cover, COVER_CELL_M, nodata=COVER_NODATA,
+                 codes=COVER_CODES, colours=COVER_COLOURS)
+    gpkg = HERE / "subcatchments.gpkg"
+    gpkg.unlink(missing_ok=True)
+    pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": GPKG_DATE})
+    subs.to_file(gpkg, layer="subcatchments", driver="GPKG", engine="pyogrio")
+    write_project_file(HERE / "gisrun.toml")
+    print(f"{TOWN}: {len(subs)} subcatchments, {subs.area.sum() / 1e6:.2f} km2; "
+          f"soil {soil.shape[1]}x{soil.shape[0]} @ {SOIL_CELL_M:g} m, "
+          f"cover {cover.shape[1]}x{cover.shape[0]} @ {COVER_CELL_M:g} m; written to {HERE}")
+
+
+if __name__ == "__main__":
+    os.environ.setdefault("OGR_CURRENT_DATE", GPKG_DATE)
+    main()
