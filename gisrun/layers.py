@@ -26,10 +26,22 @@ import geopandas as gpd
 import pandas as pd
 
 from . import __version__
-from .io.output import layer_name
 from .units import present_frame
 
-__all__ = ["build_layers", "run_info", "storm_layer_name"]
+__all__ = ["build_layers", "run_info", "storm_layer_name", "layer_name"]
+
+
+def layer_name(text: str) -> str:
+    """A GeoPackage-safe layer name: letters, digits and ``_``, not starting with a digit.
+
+    Examples
+    --------
+    >>> layer_name("runoff 10-yr/24 h")
+    'runoff_10_yr_24_h'
+    """
+    safe = "".join(ch if ch.isalnum() else "_" for ch in text.strip().lower())
+    safe = "_".join(part for part in safe.split("_") if part)
+    return safe if safe and not safe[0].isdigit() else f"l_{safe}"
 
 
 def storm_layer_name(storm_name: str) -> str:

@@ -22,7 +22,7 @@ import pyogrio
 
 from ..errors import OutputError, OutputExistsError
 
-__all__ = ["atomic_target", "write_geopackage", "write_csv", "layer_name"]
+__all__ = ["atomic_target", "write_geopackage", "write_csv"]
 
 
 @contextmanager
@@ -83,19 +83,6 @@ def _remove(path: Path) -> None:
             pass
         except IsADirectoryError:
             shutil.rmtree(extra, ignore_errors=True)
-
-
-def layer_name(text: str) -> str:
-    """A GeoPackage-safe layer name: letters, digits and ``_``, not starting with a digit.
-
-    Examples
-    --------
-    >>> layer_name("runoff 10-yr/24 h")
-    'runoff_10_yr_24_h'
-    """
-    safe = "".join(ch if ch.isalnum() else "_" for ch in text.strip().lower())
-    safe = "_".join(part for part in safe.split("_") if part)
-    return safe if safe and not safe[0].isdigit() else f"l_{safe}"
 
 
 def write_geopackage(
