@@ -1,0 +1,144 @@
+"""``gisrun storm``: make a design storm CSV, or summarise and plot a storm CSV.
+
+Thin over :mod:`gisrun.io.storm`; the options build the same table a project file's
+``[[storms]]`` holds. Errors are :class:`~gisrun.errors.GisrunError` and propagate to the main
+command, which prints them on one line and exits 2.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+from typing import Any
+
+import click
+import numpy as np
+
+from ..io.storm import read_hyetograph_csv, storm_from_config, write_hyetograph_csv
+from ..storm import Hyetograph
+from ..units import UnitSystem, from_si, unit_system
+
+__all__ = ["storm", "STORM_CAUTION"]
+
+STORM_CAUTION = (
+    "Planning-level design rainfall: before sizing drains or judging flood risk, use the storm "
+    "your local codes and agency methods require and have the work reviewed by a licensed engineer."
+)
+
+units_option = click.option(
+    "--units", "units_name", type=click.Choice(["si", "us"]), default="si", show_default=True,
+    help="si: depths mm, intensities mm/h; us: depths in, intensities in/h.",
+)
+plot_option = click.option(
+    "--plot", "plot_path", type=click.Path(dir_okay=False, path_type=Path),
+    help="Also draw the storm as a bar chart into this PNG file.",
+)
+
+
+@click.group("storm")
+def storm() -> None:
+    """Make design storms and inspect storm files (rain per time step)."""
+
+
+@storm.command("make")
+@click.option("--kind", type=click.Choice(["nrcs_24h", "alternating_block", "chicago", "uniform"]),
+              required=True, help="Design storm method.")
+@click.option("--distribution", help="nrcs_24h: rainfall distribution type I, IA, II or III.")
+@click.option("--depth", type=float, help="Total depth (nrcs_24h, uniform), in mm or in.")
+@click.option("--duration-min", type=float, help="Storm duration in minutes (not nrcs_24h).")
+@click.option("--step-min", type=float, help="Time step in minutes [6 for nrcs_24h, else 5].")
+@click.option("--idf-a", type=float, help="IDF i = a/(t+b)^c: a, for i in mm/h or in/h.")
+@click.option("--idf-b", type=float, help="IDF i = a/(t+b)^c: b in minutes.")
+@click.option("--idf-c", type=float, help="IDF i = a/(t+b)^c: exponent c.")
+@click.option("--idf-table", type=click.Path(dir_okay=False, path_type=Path),
+              help="alternating_block: CSV of duration_min, intensity_mm_per_h (or _in_per_h).")
+@click.option("--peak-position", type=float, help="Peak time as a fraction of the duration [0.5].")
+@click.option("--name", help="Storm name written into the file.")
+@click.option("--output", "-o", type=click.Path(dir_okay=False, path_type=Path), required=True,
+              help="CSV file to write.")
+@click.option("--overwrite", is_flag=True, help="Replace an existing CSV.")
+@units_option
+@plot_option
+def make(units_name: str, output: Path, overwrite: bool, plot_path: Path | None,
+         **options: Any) -> None:
+    """Make a design storm and write it as a storm CSV (time_min, depth)."""
+    units = unit_system(units_name)
+    spec = _spec_from_options(options)
+    h = storm_from_config(spec, base_dir=Path.cwd(), units=units, where="gisrun storm make")
+    write_hyetograph_csv(h, output, units=units, overwrite=overwrite)
+    _echo_summary(h, units)
+    click.echo(f"wrote {output}")
+    if plot_path is not None:
+        _plot(h, plot_path, units)
+        click.echo(f"wrote {plot_path}")
+    click.echo(f"Caution: {STORM_CAUTION}")
+
+
+def _spec_from_options(options: dict[str, Any]) -> dict[str, Any]:
+    idf = {k: options.pop(f"idf_{k}") for k in ("a", "b", "c")}
+    spec = {k: v for k, v in options.items() if v is not None}
+    if "idf_table" in spec:
+        spec["idf_table"] = str(spec["idf_table"])
+    if any(v is not None for v in idf.values()):
+        spec["idf"] = {k: v for k, v in idf.items() if v is not None}
+    return spec
+
+
+@storm.command("show")
+@click.argument("path", type=click.Path(dir_okay=False, path_type=Path), metavar="STORM_CSV")
+@units_option
+@plot_option
+def show(path: Path, units_name: str, plot_path: Path | None) -> None:
+    """Print a storm file's total depth, duration, peak intensity and step."""
+    units = unit_system(units_name)
+    h = read_hyetograph_csv(path, units=units)
+    _echo_summary(h, units)
+    if plot_path is not None:
+        _plot(h, plot_path, units)
+        click.echo(f"wrote {plot_path}")
+    click.echo(f"Caution: {STORM_CAUTION}")
+
+
+def _echo_summary(h: Hyetograph, units: UnitSystem) -> None:
+    steps_min = h.steps_s / 60.0
+    if np.allclose(steps_min, steps_min[0], rtol=1e-9):
+        step = f"{steps_min[0]:g} min"
+    elif np.allclose(steps_min[:-1], steps_min[0], rtol=1e-9):
+        step = f"{steps_min[0]:g} min (last step {steps_min[-1]:g} min)"
+    else:
+        step = f"irregular, {steps_min.min():g}-{steps_min.max():g} min"
+    click.echo(f"storm: {h.name}")
+    click.echo(f"total depth: {from_si(h.total_depth_m, units.depth):.4g} {units.depth}")
+    click.echo(f"duration: {h.duration_s / 60.0:g} min")
+    peak = from_si(h.peak_intensity_m_per_s, units.rate)
+    click.echo(f"peak intensity: {peak:.4g} {units.rate.replace('_per_', '/')}")
+    click.echo(f"step: {step}")
+
+
+def _plot(h: Hyetograph, path: Path, units: UnitSystem) -> None:
+    """Bar chart of interval-mean intensity against time (Agg canvas, no display needed)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    from ..errors import OutputError
+
+    fig = Figure(figsize=(8, 3.5), layout="constrained")
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot()
+    t_min = h.time_s / 60.0
+    ax.bar(t_min[:-1], from_si(h.intensity_m_per_s, units.rate), width=np.diff(t_min),
+           align="edge", color="#3b6ea8", edgecolor="none")
+    rate = units.rate.replace("_per_", "/")
+    ax.set(xlabel="time from storm start (min)", ylabel=f"rain intensity ({rate})",
+           title=f"{h.name}: {from_si(h.total_depth_m, units.depth):.4g} {units.depth} total")
+    ax.text(0.99, 0.97, "planning-level estimate", transform=ax.transAxes, ha="right",
+            va="top", fontsize=7, color="0.4")
+    tmp = path.with_name(f".{path.stem}.{os.getpid()}.partial{path.suffix}")
+    try:
+        fig.savefig(tmp, format="png", dpi=110)
+        os.replace(tmp, path)
+    except OSError as err:
+        raise OutputError(str(path), f"cannot be written ({err})",
+                          "check the folder exists and is writable") from None
+    finally:
+        tmp.unlink(missing_ok=True)
