@@ -253,6 +253,7 @@ def _cover() -> pd.DataFrame:
     raw = read_shipped_table("cover_curve_numbers").frame.set_index("cover_class")
     out = pd.DataFrame(index=raw.index)
     out["description"] = raw["description"]
+    out["tr55_table"] = raw["tr55_table"]
     out["impervious_fraction"] = raw["impervious_percent"].astype(float) / 100.0
     for group in HYDROLOGIC_SOIL_GROUPS:
         out[f"cn_{group}"] = raw[f"cn_{group.lower()}"].astype(float)
@@ -269,7 +270,8 @@ def cover_table() -> pd.DataFrame:
     Returns
     -------
     DataFrame
-        ``impervious_fraction`` (0-1), ``cn_A``..``cn_D`` (table CN),
+        ``description``, ``tr55_table`` (table number in TR-55 1986, or
+        ``none``), ``impervious_fraction`` (0-1), ``cn_A``..``cn_D`` (table CN),
         ``pervious_cn_A``..``pervious_cn_D`` (CN of the pervious part, NaN if
         none) and ``pervious_depression_storage_m`` (m, common practice).
     """

@@ -1,0 +1,383 @@
+"""Assign loss-method parameters to every soil x cover unit.
+
+Each unit of the unit table is split into a pervious and an impervious part by
+its cover's impervious fraction (TR-55 1986, Tables 2-2a-c); parts with zero
+area are dropped. A cover of ``"unspecified"`` (no cover raster) is fully
+pervious and takes the curve numbers of open space in good condition. Soil
+labels ``"water"`` and ``"rock"`` take no water: their whole area is impervious.
+
+Pervious part
+    Green-Ampt from Rawls, Brakensiek and Miller (1983) for the texture (with
+    ``classification="texture"``) or for the group's representative texture;
+    the hydrologic soil group from the label, or from the texture (TR-55 1986,
+    App. A). Dual groups A/D, B/D, C/D: drained -> the first group, undrained ->
+    D (NRCS NEH 630 Ch. 7, 2009). Horton by group; curve number of the cover's
+    pervious part for the group; moisture deficit = effective porosity x
+    (1 - initial_saturation); constant-loss rate and phi-index = midpoint of the
+    group's minimum infiltration range (TR-55 1986, App. A); initial loss =
+    depression storage + the group's initial soil loss (common practice).
+Impervious part
+    No infiltration: conductivity, Horton rates and loss rates 0, curve number
+    98 (TR-55 1986), depression storage ``impervious_depression_storage_m``
+    (1.5 mm by default, common practice), initial loss = that storage.
+
+Precedence (highest first); for every parameter of every unit the highest
+source that gives a value wins, and the provenance table records which:
+
+1. ``subcatchment_attributes`` (per-subcatchment values from the layer);
+2. override rows keyed by ``subcatchment_id`` (more keys rank higher: with soil
+   and cover, then with soil, then with cover, then the id alone);
+3. override rows keyed by ``soil_class`` and ``cover_class``;
+4. override rows keyed by ``soil_class`` alone, then by ``cover_class`` alone;
+5. the shipped tables.
+
+Override rows apply to the pervious part unless their ``surface`` is
+``impervious``; a ``loss_method`` applies to both parts. A derived value
+(moisture deficit, initial loss) is recomputed when its input was set by a
+higher source than the value itself.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Literal, NamedTuple
+
+import numpy as np
+import pandas as pd
+
+from ..errors import GisrunWarning, ParameterError
+from . import tables as T
+from ._soils import SoilInfo, check_cover_labels, resolve_soils
+from .overrides import PARAMETER_COLUMNS, check_loss_method, normalize_overrides
+
+__all__ = ["AssignedParameters", "assign_parameters"]
+
+_UNIT_COLUMNS = ("subcatchment_id", "soil_class", "cover_class", "area_m2")
+_HELPERS = ("effective_porosity", "total_porosity")
+_ALL = (*PARAMETER_COLUMNS, *_HELPERS, "loss_method")
+_ATTRIBUTE_RANK = 40
+
+
+class AssignedParameters(NamedTuple):
+    """What :func:`assign_parameters` returns (unpack as a 3-tuple)."""
+
+    params: pd.DataFrame
+    provenance: pd.DataFrame
+    warnings: list[GisrunWarning]
+
+
+def assign_parameters(
+    units: pd.DataFrame,
+    *,
+    classification: Literal["hydrologic_soil_group", "texture"],
+    dual_group_condition: Literal["drained", "undrained"] = "undrained",
+    initial_saturation: float,
+    method: str,
+    overrides: pd.DataFrame | None = None,
+    subcatchment_attributes: pd.DataFrame | None = None,
+    impervious_depression_storage_m: float = T.DEFAULT_IMPERVIOUS_DEPRESSION_STORAGE_M,
+) -> AssignedParameters:
+    """Give every unit SI parameters for every loss method.
+
+    Parameters
+    ----------
+    units : DataFrame
+        Unit table: ``subcatchment_id``, ``soil_class``, ``cover_class``,
+        ``area_m2`` (m2).
+    classification : {"hydrologic_soil_group", "texture"}
+        What the soil labels are.
+    dual_group_condition : {"drained", "undrained"}
+        How A/D, B/D, C/D are read (NEH 630 Ch. 7, 2009).
+    initial_saturation : float
+        Initial effective saturation, 0-1 (-).
+    method : str
+        Default loss method (``green_ampt``, ``horton``, ``curve_number``,
+        ``constant_loss``, ``phi_index``).
+    overrides : DataFrame, optional
+        Override table (see :mod:`gisrun.parameters.overrides`), raw or as
+        returned by :func:`gisrun.io.tables.read_parameter_overrides`.
+    subcatchment_attributes : DataFrame, optional
+        ``subcatchment_id`` and parameter columns (units in names) and/or
+        ``loss_method``, one row per subcatchment; blank cells set nothing.
+    impervious_depression_storage_m : float
+        Depression storage of impervious parts (m); 1.5 mm by default.
+
+    Returns
+    -------
+    AssignedParameters
+        ``params``: the unit parameter frame of DEVELOPERS.md plus
+        ``hydrologic_soil_group`` and ``antecedent_condition``;
+        ``provenance``: one row per unit part and parameter with the
+        ``source`` that won; ``warnings``: :class:`GisrunWarning` list.
+
+    Raises
+    ------
+    ParameterError
+        Unknown soil or cover class, option or loss method; initial saturation
+        outside 0-1; an override out of range or naming an unknown class; a
+        moisture deficit outside 0..porosity.
+    """
+    _check_options(classification, dual_group_condition, initial_saturation,
+                   impervious_depression_storage_m)
+    method = check_loss_method(method, "[method] name")
+    units = _checked_units(units)
+    warnings: list[GisrunWarning] = []
+    soils = resolve_soils(units["soil_class"].unique(), classification, dual_group_condition,
+                          warnings)
+    check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
+    rows = _expand(units, soils)
+    values, sources = _shipped(rows, soils, initial_saturation, impervious_depression_storage_m)
+    values["loss_method"], sources["loss_method"] = method, "run default ([method] name)"
+    ranks = pd.DataFrame(0, index=rows.index, columns=list(_ALL))
+    for rank, layer in _layers(overrides, subcatchment_attributes, classification):
+        _apply(rows, values, sources, ranks, rank, layer, warnings)
+    _rederive(rows, values, sources, ranks, initial_saturation)
+    _check_result(rows, values, sources)
+    return AssignedParameters(_params(rows, values), _provenance(rows, sources), warnings)
+
+
+def _check_options(classification: str, dual: str, saturation: float, ds_m: float) -> None:
+    if classification not in ("hydrologic_soil_group", "texture"):
+        raise ParameterError("[soil] classification", f"unknown value {classification!r}",
+                             "use 'hydrologic_soil_group' or 'texture'")
+    if dual not in ("drained", "undrained"):
+        raise ParameterError("[soil] dual_group_condition", f"unknown value {dual!r}",
+                             "use 'drained' or 'undrained'")
+    if not (np.isfinite(saturation) and 0.0 <= saturation <= 1.0):
+        raise ParameterError("[soil] initial_saturation", f"value {saturation!r} is outside 0-1",
+                             "give the initial effective saturation as a fraction from 0 to 1")
+    if not (np.isfinite(ds_m) and ds_m >= 0.0):
+        raise ParameterError("impervious depression storage", f"value {ds_m!r} m is negative",
+                             "give a depth of 0 or more")
+
+
+def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
+    missing = [c for c in _UNIT_COLUMNS if c not in units.columns]
+    if missing:
+        raise ParameterError("unit table", f"has no column(s) {missing}",
+                             "pass the overlay's unit table unchanged")
+    out = units.loc[:, list(_UNIT_COLUMNS)].reset_index(drop=True)
+    area = pd.to_numeric(out["area_m2"], errors="coerce").to_numpy(float)
+    bad = ~np.isfinite(area) | (area < 0)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise ParameterError(f"unit table:row {i + 1}:area_m2", f"value {units['area_m2'].iloc[i]!r}"
+                             " is not an area", "areas must be finite and not negative")
+    out["area_m2"] = area
+    for col in ("subcatchment_id", "soil_class", "cover_class"):
+        out[col] = out[col].astype(str)
+    return out
+
+
+def _expand(units: pd.DataFrame, soils: dict[str, SoilInfo]) -> pd.DataFrame:
+    cover = T.cover_table()
+    frac = units["cover_class"].map(
+        lambda c: 0.0 if c == T.UNSPECIFIED_COVER else cover.at[c, "impervious_fraction"])
+    infiltrates = units["soil_class"].map(lambda s: soils[s].infiltrates)
+    frac = frac.where(infiltrates, 1.0).to_numpy(float)
+    perv = units.assign(surface="pervious", area_m2=units["area_m2"] * (1.0 - frac))
+    imp = units.assign(surface="impervious", area_m2=units["area_m2"] * frac)
+    rows = pd.concat([perv, imp]).sort_index(kind="stable")
+    rows = rows[rows["area_m2"] > 0.0].reset_index(drop=True)
+    rows["hydrologic_soil_group"] = [
+        soils[s].group if surf == "pervious" else None
+        for s, surf in zip(rows["soil_class"], rows["surface"], strict=True)
+    ]
+    return rows
+
+
+def _shipped(
+    rows: pd.DataFrame, soils: dict[str, SoilInfo], saturation: float, imp_ds_m: float
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    values = pd.DataFrame(np.nan, index=rows.index, columns=list(_ALL), dtype=object)
+    sources = pd.DataFrame("", index=rows.index, columns=list(_ALL), dtype=object)
+    perv = rows["surface"] == "pervious"
+    for col, (vals, srcs) in _pervious(rows[perv], soils, saturation).items():
+        values.loc[perv, col] = vals
+        sources.loc[perv, col] = srcs
+    for col, (val, src) in _impervious(imp_ds_m).items():
+        values.loc[~perv, col] = val
+        sources.loc[~perv, col] = src
+    return values, sources
+
+
+def _pervious(rows: pd.DataFrame, soils: dict[str, SoilInfo], saturation: float
+              ) -> dict[str, tuple[object, object]]:
+    """Shipped values and sources of pervious parts, vectorized over rows."""
+    info = [soils[s] for s in rows["soil_class"]]
+    group = pd.Index([s.group for s in info])
+    ga = T.green_ampt_by_texture().loc[[s.texture for s in info]]
+    horton = T.horton_by_group().loc[group]
+    rate = T.hsg_conductivity().loc[group, "min_infiltration_mid_m_per_s"].to_numpy()
+    soil_loss = T.group_defaults().loc[group, "initial_soil_loss_m"].to_numpy()
+    unspecified = (rows["cover_class"] == T.UNSPECIFIED_COVER).to_numpy()
+    cover_key = np.where(unspecified, T.UNSPECIFIED_COVER_STANDS_FOR, rows["cover_class"])
+    cover = T.cover_table().loc[cover_key]
+    by_group = cover[[f"pervious_cn_{g}" for g in T.HYDROLOGIC_SOIL_GROUPS]].to_numpy(float)
+    cn = by_group[np.arange(len(group)), [T.HYDROLOGIC_SOIL_GROUPS.index(g) for g in group]]
+    ds = cover["pervious_depression_storage_m"].to_numpy()
+    ga_src = [s.green_ampt_source for s in info]
+    horton_src = [f"horton_hsg table, group {s.group} ({s.group_source}; f0 and decay Akan 1993,"
+                  " fc TR-55 1986 App. A)" for s in info]
+    cn_src = [f"TR-55 (1986) Table {t}, pervious part of {k}{' (cover unspecified)' if u else ''},"
+              f" group {s.group} ({s.group_source})"
+              for t, k, u, s in zip(cover["tr55_table"], cover_key, unspecified, info, strict=True)]
+    rate_src = [f"midpoint of group {g} minimum infiltration range (TR-55 1986 App. A)"
+                for g in group]
+    out: dict[str, tuple[object, object]] = {
+        col: (ga[col].to_numpy(), ga_src)
+        for col in ("ks_m_per_s", "suction_head_m", "effective_porosity", "total_porosity")}
+    out["moisture_deficit"] = (ga["effective_porosity"].to_numpy() * (1.0 - saturation),
+                               f"effective porosity x (1 - initial_saturation {saturation:g})")
+    out["depression_storage_m"] = (ds, [f"cover table, {k} (common practice)" for k in cover_key])
+    for col in ("horton_f0_m_per_s", "horton_fc_m_per_s", "horton_decay_per_s"):
+        out[col] = (horton[col].to_numpy(), horton_src)
+    out["horton_recovery_per_s"] = (
+        horton["horton_recovery_per_s"].to_numpy(),
+        [f"horton_hsg table, group {g} (common practice)" for g in group])
+    out["curve_number"] = (cn, cn_src)
+    out["initial_abstraction_ratio"] = (T.DEFAULT_INITIAL_ABSTRACTION_RATIO,
+                                        "TR-55 (1986): Ia = 0.2 S")
+    out["initial_loss_m"] = (ds + soil_loss, [
+        f"depression storage + initial soil loss of group {g} (common practice)" for g in group])
+    out["constant_loss_m_per_s"] = (rate, rate_src)
+    out["phi_index_m_per_s"] = (rate, rate_src)
+    return out
+
+
+def _impervious(ds_m: float) -> dict[str, tuple[object, object]]:
+    none = (0.0, "impervious: no infiltration")
+    out: dict[str, tuple[object, object]] = {
+        col: none for col in ("ks_m_per_s", "suction_head_m", "moisture_deficit",
+                              "horton_f0_m_per_s", "horton_fc_m_per_s", "horton_decay_per_s",
+                              "horton_recovery_per_s", "constant_loss_m_per_s",
+                              "phi_index_m_per_s")}
+    out["depression_storage_m"] = (ds_m, "impervious depression storage (common practice)")
+    out["initial_loss_m"] = (ds_m, "impervious: depression storage only")
+    out["curve_number"] = (T.IMPERVIOUS_CURVE_NUMBER, "TR-55 (1986) Table 2-2a: impervious CN 98")
+    out["initial_abstraction_ratio"] = (T.DEFAULT_INITIAL_ABSTRACTION_RATIO,
+                                        "TR-55 (1986): Ia = 0.2 S")
+    return out
+
+
+def _layers(overrides: pd.DataFrame | None, attributes: pd.DataFrame | None,
+            classification: str) -> list[tuple[int, dict[str, Any]]]:
+    layers: list[tuple[int, dict[str, Any]]] = []
+    if overrides is not None and len(overrides):
+        table = normalize_overrides(overrides)
+        check_override_labels(table, classification)
+        layers.extend((_rank(row), row) for row in table.to_dict("records"))
+    if attributes is not None and len(attributes):
+        if "subcatchment_id" not in attributes.columns:
+            raise ParameterError("subcatchment attributes", "have no subcatchment_id column",
+                                 "pass one row per subcatchment with its id")
+        names = [f"id={v}" for v in attributes["subcatchment_id"]]
+        table = normalize_overrides(attributes, where="subcatchment attributes", row_names=names)
+        layers.extend((_ATTRIBUTE_RANK, row) for row in table.to_dict("records"))
+    return sorted(layers, key=lambda item: item[0])
+
+
+def _rank(row: dict[str, Any]) -> int:
+    soil, cover = row["soil_class"] is not None, row["cover_class"] is not None
+    if row["subcatchment_id"] is not None:
+        return 30 + 2 * soil + cover
+    return 20 if (soil and cover) else (12 if soil else 11)
+
+
+def check_override_labels(table: pd.DataFrame, classification: str) -> None:
+    """Raise :class:`ParameterError` for an override soil or cover label that does not exist."""
+    from ._soils import check_soil_labels
+
+    for row in table.to_dict("records"):
+        where = row["override_source"]
+        if row["soil_class"] is not None:
+            check_soil_labels([row["soil_class"]], classification, f"{where}:soil_class")
+        if row["cover_class"] is not None:
+            check_cover_labels([row["cover_class"]], f"{where}:cover_class")
+
+
+def _apply(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame, ranks: pd.DataFrame,
+           rank: int, layer: dict[str, Any], warnings: list[GisrunWarning]) -> None:
+    match = np.ones(len(rows), dtype=bool)
+    for key in ("subcatchment_id", "soil_class", "cover_class"):
+        if layer.get(key) is not None:
+            match &= (rows[key] == layer[key]).to_numpy()
+    if not match.any():
+        warnings.append(GisrunWarning(f"{layer['override_source']}: matches no unit; it was not used"))
+        return
+    surface = layer.get("surface") or "pervious"
+    on_surface = match & (rows["surface"] == surface).to_numpy()
+    label = f"{layer['override_source']}" + ("" if rank < _ATTRIBUTE_RANK else " (subcatchment attribute)")
+    for col in _ALL:
+        value = layer.get(col)
+        if value is None or (isinstance(value, float) and np.isnan(value)):
+            continue
+        target = match if col == "loss_method" else on_surface
+        values.loc[target, col] = value
+        sources.loc[target, col] = label
+        ranks.loc[target, col] = rank
+
+
+def _rederive(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
+              ranks: pd.DataFrame, saturation: float) -> None:
+    redo = (ranks["effective_porosity"] > ranks["moisture_deficit"]).to_numpy()
+    if redo.any():
+        values.loc[redo, "moisture_deficit"] = (
+            values.loc[redo, "effective_porosity"].astype(float) * (1.0 - saturation))
+        sources.loc[redo, "moisture_deficit"] = (
+            "effective porosity from " + sources.loc[redo, "effective_porosity"]
+            + f" x (1 - initial_saturation {saturation:g})")
+    redo = ((ranks["depression_storage_m"] > ranks["initial_loss_m"])
+            & (rows["surface"] == "pervious")).to_numpy()
+    if redo.any():
+        soil_loss = rows.loc[redo, "hydrologic_soil_group"].map(
+            T.group_defaults()["initial_soil_loss_m"])
+        values.loc[redo, "initial_loss_m"] = (
+            values.loc[redo, "depression_storage_m"].astype(float) + soil_loss)
+        sources.loc[redo, "initial_loss_m"] = (
+            "depression storage from " + sources.loc[redo, "depression_storage_m"]
+            + " + initial soil loss of the group (common practice)")
+
+
+def _check_result(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame) -> None:
+    perv = (rows["surface"] == "pervious").to_numpy()
+    deficit = values["moisture_deficit"].astype(float).to_numpy()
+    porosity = values["total_porosity"].astype(float).to_numpy()
+    eff = values["effective_porosity"].astype(float).to_numpy()
+    checks = [
+        ("moisture_deficit", perv & ((deficit < 0) | (deficit > porosity)),
+         "moisture deficit {v:g} is outside 0..total porosity",
+         "give a deficit between 0 and the soil's porosity"),
+        ("effective_porosity", perv & (eff > porosity),
+         "effective porosity {v:g} exceeds the total porosity",
+         "give an effective porosity no larger than the total porosity"),
+    ]
+    f0 = values["horton_f0_m_per_s"].astype(float).to_numpy()
+    fc = values["horton_fc_m_per_s"].astype(float).to_numpy()
+    checks.append(("horton_fc_m_per_s", fc > f0, "Horton final rate {v:g} m/s exceeds f0",
+                   "give a final capacity no larger than the initial capacity"))
+    for col, bad, problem, fix in checks:
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            r = rows.loc[i]
+            where = (f"subcatchment {r['subcatchment_id']}, soil {r['soil_class']}, "
+                     f"cover {r['cover_class']}: {col} (from {sources.at[i, col]})")
+            raise ParameterError(where, problem.format(v=float(values.at[i, col])), fix)
+
+
+def _params(rows: pd.DataFrame, values: pd.DataFrame) -> pd.DataFrame:
+    out = rows.loc[:, ["subcatchment_id", "soil_class", "cover_class", "surface", "area_m2",
+                       "hydrologic_soil_group"]].copy()
+    for col in PARAMETER_COLUMNS:
+        out[col] = values[col].astype(float)
+    out["loss_method"] = values["loss_method"].astype(str)
+    out["antecedent_condition"] = T.DEFAULT_ANTECEDENT_CONDITION
+    return out
+
+
+def _provenance(rows: pd.DataFrame, sources: pd.DataFrame) -> pd.DataFrame:
+    keys = rows.loc[:, ["subcatchment_id", "soil_class", "cover_class", "surface"]]
+    cols = [*PARAMETER_COLUMNS, "loss_method"]
+    long = keys.join(sources[cols]).melt(
+        id_vars=list(keys.columns), value_vars=cols, var_name="parameter", value_name="source")
+    return long.reset_index(drop=True)
+

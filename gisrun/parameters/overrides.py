@@ -1,0 +1,263 @@
+"""User parameter overrides: column names with units, conversion to SI, checks.
+
+An override table (a CSV read by :func:`gisrun.io.tables.read_parameter_overrides`,
+or a DataFrame) has key columns and parameter columns. Keys say which units a
+row applies to; a blank key matches everything:
+
+``subcatchment_id``, ``soil_class``, ``cover_class``
+    Match the unit table's labels exactly (soil labels as mapped in the project's
+    soil code table, e.g. ``"B/D"``, not the group it resolves to).
+``surface``
+    ``pervious`` (the default when blank) or ``impervious``.
+
+Parameter columns carry their unit in the name: the SI name of the unit
+parameter contract (``ks_m_per_s``, ``suction_head_m``) or the same quantity in
+a published unit (``ks_mm_per_h``, ``ks_cm_per_h``, ``ks_in_per_h``,
+``suction_head_mm``, ``suction_head_cm``, ``suction_head_in``,
+``depression_storage_mm``, ``horton_decay_per_h``, ``horton_recovery_per_day``
+...). ``effective_porosity`` and ``total_porosity`` are accepted too: the moisture
+deficit is then recomputed from the effective porosity. A blank cell leaves the
+parameter alone. A ``note`` column is allowed and ignored.
+"""
+
+from __future__ import annotations
+
+import difflib
+
+import numpy as np
+import pandas as pd
+
+from ..errors import ParameterError
+from ..units import FACTORS_TO_SI
+
+__all__ = [
+    "KEY_COLUMNS",
+    "LOSS_METHODS",
+    "PARAMETER_COLUMNS",
+    "accepted_columns",
+    "normalize_overrides",
+    "check_loss_method",
+]
+
+#: Columns that say which units an override row applies to.
+KEY_COLUMNS: tuple[str, ...] = ("subcatchment_id", "soil_class", "cover_class", "surface")
+#: Loss methods a unit may use.
+LOSS_METHODS: tuple[str, ...] = (
+    "green_ampt", "horton", "curve_number", "constant_loss", "phi_index",
+)
+#: SI parameter columns of the unit parameter contract (DEVELOPERS.md), in order.
+PARAMETER_COLUMNS: tuple[str, ...] = (
+    "ks_m_per_s", "suction_head_m", "moisture_deficit", "depression_storage_m",
+    "horton_f0_m_per_s", "horton_fc_m_per_s", "horton_decay_per_s", "horton_recovery_per_s",
+    "curve_number", "initial_abstraction_ratio", "initial_loss_m", "constant_loss_m_per_s",
+    "phi_index_m_per_s",
+)
+_FRACTIONS = ("moisture_deficit", "effective_porosity", "total_porosity")
+_RATE_UNITS = ("m_per_s", "mm_per_h", "cm_per_h", "in_per_h", "um_per_s")
+_DEPTH_UNITS = ("m", "mm", "cm", "in")
+_PER_TIME = {"per_s": 1.0, "per_min": 1 / 60.0, "per_h": 1 / 3600.0, "per_day": 1 / 86400.0}
+_IGNORED = ("note",)
+
+
+def _build_aliases() -> dict[str, tuple[str, float]]:
+    aliases: dict[str, tuple[str, float]] = {}
+    for si in PARAMETER_COLUMNS:
+        if si.endswith("_m_per_s"):
+            stem = si[: -len("_m_per_s")]
+            aliases.update({f"{stem}_{u}": (si, FACTORS_TO_SI[u]) for u in _RATE_UNITS})
+        elif si.endswith("_per_s"):
+            stem = si[: -len("_per_s")]
+            aliases.update({f"{stem}_{u}": (si, f) for u, f in _PER_TIME.items()})
+        elif si.endswith("_m"):
+            stem = si[: -len("_m")]
+            aliases.update({f"{stem}_{u}": (si, FACTORS_TO_SI[u]) for u in _DEPTH_UNITS})
+        else:
+            aliases[si] = (si, 1.0)
+    for name in ("effective_porosity", "total_porosity"):
+        aliases[name] = (name, 1.0)
+    return aliases
+
+
+_ALIASES = _build_aliases()
+
+
+def accepted_columns() -> list[str]:
+    """Every column name an override table may have (keys, parameters, ``note``)."""
+    return [*KEY_COLUMNS, *sorted(_ALIASES), "loss_method", *_IGNORED]
+
+
+def check_loss_method(name: object, where: str) -> str:
+    """Return a valid loss method name or raise :class:`ParameterError`.
+
+    Examples
+    --------
+    >>> check_loss_method(" Horton ", "x")
+    'horton'
+    """
+    text = str(name).strip().lower()
+    if text in LOSS_METHODS:
+        return text
+    near = difflib.get_close_matches(text, LOSS_METHODS, n=1)
+    hint = f"did you mean {near[0]!r}? " if near else ""
+    raise ParameterError(where, f"unknown loss method {name!r}", f"{hint}use one of {list(LOSS_METHODS)}")
+
+
+def normalize_overrides(
+    frame: pd.DataFrame, *, where: str = "overrides", row_names: list[str] | None = None
+) -> pd.DataFrame:
+    """Check an override table and convert its parameter columns to SI.
+
+    Parameters
+    ----------
+    frame : DataFrame
+        Key columns and parameter columns (see the module docstring).
+    where : str
+        Name used in error messages (the CSV path).
+    row_names : list of str, optional
+        One name per row for messages (``"line 4"``); default ``"row 1"``...
+
+    Returns
+    -------
+    DataFrame
+        Key columns (str or None), SI parameter columns (float, NaN = not set),
+        ``loss_method`` if given, and ``override_source`` (``"<where>:<row>"``).
+        Already normalized input passes through unchanged.
+
+    Raises
+    ------
+    ParameterError
+        Unknown or doubled column, a row with no key, a value that is not a
+        number or out of its range, or two rows with the same keys.
+    """
+    if "override_source" in frame.columns:
+        return frame
+    names = row_names or [f"row {i + 1}" for i in range(len(frame))]
+    frame = frame.reset_index(drop=True)
+    frame.columns = [str(c).strip() for c in frame.columns]
+    out = pd.DataFrame(index=frame.index)
+    for key in KEY_COLUMNS:
+        out[key] = _key_column(frame, key)
+    for col in _parameter_columns(frame, where):
+        si, factor = _ALIASES[col]
+        out[si] = _numbers(frame[col], f"{where}:{col}", names) * factor
+        _check_range(out[si], si, f"{where}:{col}", names, out["surface"])
+    if "loss_method" in frame.columns:
+        out["loss_method"] = [
+            None if _blank(v) else check_loss_method(v, f"{where}:{names[i]}:loss_method")
+            for i, v in enumerate(frame["loss_method"])
+        ]
+    out["override_source"] = [f"{where}:{n}" for n in names]
+    _check_rows(out, where, names)
+    return out
+
+
+def _blank(value: object) -> bool:
+    return value is None or (isinstance(value, float) and np.isnan(value)) or str(value).strip() == ""
+
+
+def _key_column(frame: pd.DataFrame, key: str) -> pd.Series:
+    if key not in frame.columns:
+        return pd.Series([None] * len(frame), index=frame.index, dtype=object)
+    values = [None if _blank(v) else str(v).strip() for v in frame[key]]
+    if key == "surface":
+        values = [None if v is None else v.lower() for v in values]
+    return pd.Series(values, index=frame.index, dtype=object)
+
+
+def _parameter_columns(frame: pd.DataFrame, where: str) -> list[str]:
+    accepted = accepted_columns()
+    seen: dict[str, str] = {}
+    cols = []
+    for col in frame.columns:
+        if col in KEY_COLUMNS or col in _IGNORED or col == "loss_method":
+            continue
+        if col not in _ALIASES:
+            near = difflib.get_close_matches(col, accepted, n=1)
+            hint = f"did you mean {near[0]!r}? " if near else ""
+            raise ParameterError(
+                f"{where}:{col}", "is not a parameter column",
+                f"{hint}name a parameter with its unit, e.g. ks_mm_per_h, suction_head_mm",
+            )
+        si = _ALIASES[col][0]
+        if si in seen:
+            raise ParameterError(
+                f"{where}:{col}", f"gives the same parameter as column {seen[si]!r}",
+                "keep one of the two columns",
+            )
+        seen[si] = col
+        cols.append(col)
+    return cols
+
+
+def _numbers(series: pd.Series, where: str, names: list[str]) -> pd.Series:
+    values = pd.to_numeric(series.map(lambda v: np.nan if _blank(v) else v), errors="coerce")
+    bad = values.isna() & ~series.map(_blank)
+    bad |= ~np.isfinite(values.fillna(0.0))
+    if bad.any():
+        i = int(np.flatnonzero(bad.to_numpy())[0])
+        raise ParameterError(
+            f"{where}:{names[i]}", f"value {series.iloc[i]!r} is not a finite number",
+            "enter a number or leave the cell blank",
+        )
+    return values.astype(float)
+
+
+def _check_range(
+    values: pd.Series, si: str, where: str, names: list[str], surface: pd.Series
+) -> None:
+    low, high, low_open = 0.0, np.inf, False
+    if si in _FRACTIONS:
+        high = 1.0
+    elif si == "curve_number":
+        low_open, high = True, 100.0
+    elif si == "initial_abstraction_ratio":
+        high = 1.0
+    v = values.to_numpy()
+    bad = (v < low) | (v > high) | ((v == low) & low_open)
+    if si == "ks_m_per_s":
+        bad |= (v <= 0) & (surface.to_numpy() != "impervious")
+    if si in ("effective_porosity", "total_porosity"):
+        bad |= v == 0
+    bad &= ~np.isnan(v)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        allowed = _allowed_text(si)
+        raise ParameterError(
+            f"{where}:{names[i]}", f"value {v[i]:g} is out of range ({allowed})",
+            "correct the value or leave the cell blank",
+        )
+
+
+def _allowed_text(si: str) -> str:
+    if si == "ks_m_per_s":
+        return "conductivity must be greater than 0 on a pervious surface"
+    if si in ("effective_porosity", "total_porosity"):
+        return "a porosity is a fraction greater than 0 and at most 1"
+    if si in _FRACTIONS or si == "initial_abstraction_ratio":
+        return "a fraction between 0 and 1"
+    if si == "curve_number":
+        return "a curve number is greater than 0 and at most 100"
+    return "must not be negative"
+
+
+def _check_rows(out: pd.DataFrame, where: str, names: list[str]) -> None:
+    for i, row in enumerate(out.to_dict("records")):
+        if all(row[k] is None for k in ("subcatchment_id", "soil_class", "cover_class")):
+            raise ParameterError(
+                f"{where}:{names[i]}", "has no subcatchment_id, soil_class or cover_class",
+                "fill in at least one key so the row applies to known units",
+            )
+        if row["surface"] not in (None, "pervious", "impervious"):
+            raise ParameterError(
+                f"{where}:{names[i]}:surface", f"value {row['surface']!r} is not a surface",
+                "use 'pervious', 'impervious' or leave it blank (pervious)",
+            )
+    keys = out[list(KEY_COLUMNS)].fillna("\0").astype(str).agg("|".join, axis=1)
+    dup = keys.duplicated(keep="first")
+    if dup.any():
+        i = int(np.flatnonzero(dup.to_numpy())[0])
+        first = int(np.flatnonzero((keys == keys.iloc[i]).to_numpy())[0])
+        raise ParameterError(
+            f"{where}:{names[i]}", f"has the same keys as {names[first]}",
+            "merge the two rows into one",
+        )
