@@ -388,9 +388,12 @@ class IdfTable:
         return np.exp(log_i)
 
     def depth_m(self, duration_s: ArrayLike) -> FloatArray:
-        """Depth (m) of the most intense burst of a duration (s)."""
+        """Depth (m) of the most intense burst of a duration (s); 0 at duration 0."""
         d = np.asarray(duration_s, dtype=np.float64)
-        return self.intensity_m_per_s(d) * d
+        out = np.zeros_like(d)
+        positive = d > 0
+        out[positive] = self.intensity_m_per_s(d[positive]) * d[positive]
+        return out
 
 
 # --- IDF-based design storms -----------------------------------------------------------------
