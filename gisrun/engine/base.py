@@ -1,0 +1,233 @@
+"""Result types and shared helpers of the loss engine.
+
+Every method module returns a :class:`StepResult` per time step; the engine
+collects them into a :class:`LossResult` (arrays of shape ``(n_steps, n_units)``,
+all SI). The helpers here read and check parameter columns of the unit
+parameter frame, so each method module states only what it needs.
+
+Mass balance, per unit and per step, for every method::
+
+    rain = infiltration + excess + (storage at end - storage at start)
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields
+from typing import Any, TypeVar
+
+import numpy as np
+import pandas as pd
+from numpy.typing import NDArray
+
+from ..errors import ParameterError
+
+__all__ = [
+    "StepResult",
+    "LossResult",
+    "read_column",
+    "take_params",
+    "split_surface_water",
+    "PARAMETER_FRAME",
+]
+
+#: The name used for the unit parameter frame in error messages.
+PARAMETER_FRAME = "unit parameters"
+
+FloatArray = NDArray[np.float64]
+P = TypeVar("P")
+
+
+@dataclass(frozen=True)
+class StepResult:
+    """What one method did over one time step, per unit (all arrays ``(n_units,)``).
+
+    Attributes
+    ----------
+    infil_m : ndarray
+        Depth infiltrated (or otherwise lost) during the step, m.
+    excess_m : ndarray
+        Depth leaving as runoff (rainfall excess) during the step, m.
+    capacity_m_per_s : ndarray
+        Loss capacity at the end of the step, m/s; ``inf`` where any rate
+        would be absorbed, NaN where the method has no rate form.
+    ponding_offset_s : ndarray
+        Seconds after the start of the step at which ponding (or, for the curve
+        number, runoff) starts; NaN unless it starts inside this step.
+    """
+
+    infil_m: FloatArray
+    excess_m: FloatArray
+    capacity_m_per_s: FloatArray
+    ponding_offset_s: FloatArray
+
+    def __post_init__(self) -> None:
+        shape = np.shape(self.infil_m)
+        for f in fields(self):
+            if np.shape(getattr(self, f.name)) != shape:
+                raise ValueError(f"StepResult.{f.name} has shape {np.shape(getattr(self, f.name))}"
+                                 f", expected {shape}")
+
+
+@dataclass(frozen=True)
+class LossResult:
+    """Losses of every unit through a storm, all SI.
+
+    Attributes
+    ----------
+    rain_m, infil_m, excess_m : ndarray, shape (n_steps, n_units)
+        Rain, infiltration (losses) and rainfall excess per step, m.
+    capacity_m_per_s : ndarray, shape (n_steps, n_units)
+        Loss capacity at the end of each step, m/s (NaN where the method has
+        no rate form, ``inf`` where any rate would be absorbed).
+    storage_m : ndarray, shape (n_units,)
+        Surface (depression) storage left at the end, m.
+    time_to_ponding_s : ndarray, shape (n_units,)
+        Time from the storm start to ponding, s; for the curve number the time
+        runoff starts. NaN where it never happens.
+    dt_s : float
+        The fixed time step, s.
+    methods : tuple of str
+        The loss method of each unit.
+
+    Notes
+    -----
+    Arrays are made read-only. Per unit,
+    ``rain_m.sum(0) == infil_m.sum(0) + excess_m.sum(0) + storage_m`` to
+    rounding (see :meth:`mass_balance_error_m`).
+    """
+
+    rain_m: FloatArray
+    infil_m: FloatArray
+    excess_m: FloatArray
+    capacity_m_per_s: FloatArray
+    storage_m: FloatArray
+    time_to_ponding_s: FloatArray
+    dt_s: float
+    methods: tuple[str, ...] = field(default=())
+
+    def __post_init__(self) -> None:
+        shape = np.shape(self.rain_m)
+        if len(shape) != 2:
+            raise ValueError(f"LossResult.rain_m must be 2-D (n_steps, n_units), got {shape}")
+        for name in ("infil_m", "excess_m", "capacity_m_per_s"):
+            if np.shape(getattr(self, name)) != shape:
+                raise ValueError(f"LossResult.{name} has shape {np.shape(getattr(self, name))}, "
+                                 f"expected {shape}")
+        for name in ("storage_m", "time_to_ponding_s"):
+            if np.shape(getattr(self, name)) != (shape[1],):
+                raise ValueError(f"LossResult.{name} has shape {np.shape(getattr(self, name))}, "
+                                 f"expected {(shape[1],)}")
+        if not (np.isfinite(self.dt_s) and self.dt_s > 0):
+            raise ValueError(f"LossResult.dt_s must be positive, got {self.dt_s}")
+        methods = tuple(str(m) for m in self.methods)
+        if len(methods) != shape[1]:
+            raise ValueError(f"LossResult.methods has {len(methods)} names for {shape[1]} units")
+        object.__setattr__(self, "methods", methods)
+        object.__setattr__(self, "dt_s", float(self.dt_s))
+        for f in fields(self):
+            value = getattr(self, f.name)
+            if isinstance(value, np.ndarray):
+                value.flags.writeable = False
+
+    @property
+    def n_steps(self) -> int:
+        """Number of time steps."""
+        return int(self.rain_m.shape[0])
+
+    @property
+    def n_units(self) -> int:
+        """Number of units."""
+        return int(self.rain_m.shape[1])
+
+    @property
+    def runoff_depth_m(self) -> FloatArray:
+        """Total rainfall excess of each unit over the storm, m."""
+        return self.excess_m.sum(axis=0)
+
+    def mass_balance_error_m(self) -> FloatArray:
+        """Rain minus (infiltration + excess + storage left) per unit, m."""
+        return self.rain_m.sum(0) - (self.infil_m.sum(0) + self.excess_m.sum(0) + self.storage_m)
+
+
+def read_column(
+    frame: pd.DataFrame,
+    name: str,
+    *,
+    default: float | None = None,
+    low: float | None = None,
+    high: float | None = None,
+    low_open: bool = False,
+) -> FloatArray:
+    """Read one SI parameter column as float64 and check its range.
+
+    Parameters
+    ----------
+    frame : DataFrame
+        The unit parameter frame.
+    name : str
+        Column name (``"ks_m_per_s"``).
+    default : float, optional
+        Value used when the column is absent or a cell is empty; without it a
+        missing column or empty cell is an error.
+    low, high : float, optional
+        Allowed range (inclusive; ``low`` exclusive when ``low_open``).
+
+    Returns
+    -------
+    ndarray of float64, shape (len(frame),)
+
+    Raises
+    ------
+    ParameterError
+        Missing column, non-numeric, empty or out-of-range value (names the
+        column, row and value).
+    """
+    if name not in frame.columns:
+        if default is None:
+            raise ParameterError(f"{PARAMETER_FRAME}:{name}", "column is missing",
+                                 "add the column (SI units) or choose another loss method")
+        return np.full(len(frame), float(default))
+    try:
+        values = pd.to_numeric(frame[name], errors="raise").to_numpy(dtype=np.float64, copy=True)
+    except (ValueError, TypeError):
+        raise ParameterError(f"{PARAMETER_FRAME}:{name}", "holds values that are not numbers",
+                             "give numbers in SI units") from None
+    if default is not None:
+        values[np.isnan(values)] = default
+    bad = ~np.isfinite(values)
+    if low is not None:
+        bad |= (values <= low) if low_open else (values < low)
+    if high is not None:
+        bad |= values > high
+    if bad.any():
+        pos = int(np.flatnonzero(bad)[0])
+        limits = _describe_range(low, high, low_open)
+        raise ParameterError(f"{PARAMETER_FRAME}:{name}:row {frame.index[pos]!r}",
+                             f"value {values[pos]!r} is empty or outside {limits}",
+                             "correct the value or its parameter table entry")
+    return values
+
+
+def _describe_range(low: float | None, high: float | None, low_open: bool) -> str:
+    lo = "(-inf" if low is None else ("(" if low_open else "[") + repr(low)
+    hi = "inf)" if high is None else repr(high) + "]"
+    return f"{lo}, {hi}"
+
+
+def take_params(params: P, index: NDArray[np.intp]) -> P:
+    """Return the same kind of ``Params`` for the units at ``index`` (derived fields recomputed)."""
+    kwargs: dict[str, Any] = {
+        f.name: np.asarray(getattr(params, f.name))[index] for f in fields(params) if f.init
+    }
+    return type(params)(**kwargs)
+
+
+def split_surface_water(
+    water_m: FloatArray, depression_storage_m: FloatArray
+) -> tuple[FloatArray, FloatArray]:
+    """Split water left on the surface into (storage kept, excess that runs off), m.
+
+    Storage fills up to the depression storage depth; the rest is excess.
+    """
+    kept = np.minimum(water_m, depression_storage_m)
+    return kept, water_m - kept
