@@ -1,0 +1,90 @@
+"""The ``storm`` command group: make -> CSV readable by the reader, show, plots, errors."""
+
+from __future__ import annotations
+
+import pytest
+from click.testing import CliRunner
+
+from gisrun.cli.storm import storm
+from gisrun.errors import StormError
+from gisrun.io.storm import read_hyetograph_csv
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
+
+
+def test_make_nrcs_writes_a_readable_csv_and_plot(tmp_path):
+    out, png = tmp_path / "type2.csv", tmp_path / "type2.png"
+    result = CliRunner().invoke(storm, ["make", "--kind", "nrcs_24h", "--distribution", "II",
+                                        "--depth", "100", "-o", str(out), "--plot", str(png)])
+    assert result.exit_code == 0, result.output
+    h = read_hyetograph_csv(out)
+    assert h.total_depth_m == pytest.approx(0.100, rel=1e-12)
+    assert len(h.depth_m) == 240  # 6-min default step over 24 h
+    # peak 6-min block 0.306 * 0.1 / 0.25 * 100 mm = 12.24 mm -> 122.4 mm/h (TR-55 Type II
+    # ordinates 0.357 at 11.75 h and 0.663 at 12 h, Chow et al. 1988 Table 14.4.1, from memory)
+    assert "peak intensity: 122.4 mm/h" in result.output
+    assert "licensed engineer" in result.output
+    assert png.read_bytes()[:8] == PNG_SIGNATURE
+
+
+def test_make_us_units_and_show(tmp_path):
+    out = tmp_path / "u.csv"
+    runner = CliRunner()
+    made = runner.invoke(storm, ["make", "--kind", "uniform", "--depth", "2", "--duration-min",
+                                 "60", "--step-min", "15", "--units", "us", "-o", str(out)])
+    assert made.exit_code == 0, made.output
+    assert out.read_text().splitlines()[2] == "time_min,depth_in"
+    shown = runner.invoke(storm, ["show", str(out)])  # shown in SI: 2 in = 50.8 mm over 1 h
+    assert shown.exit_code == 0, shown.output
+    assert "total depth: 50.8 mm" in shown.output
+    assert "duration: 60 min" in shown.output
+    assert "peak intensity: 50.8 mm/h" in shown.output
+    assert "step: 15 min" in shown.output
+
+
+def test_show_irregular_file_with_plot(tmp_path):
+    src = tmp_path / "obs.csv"
+    src.write_text("time_min,depth_mm\n5,1\n12,0\n30,3.6\n")
+    png = tmp_path / "obs.png"
+    result = CliRunner().invoke(storm, ["show", str(src), "--plot", str(png)])
+    assert result.exit_code == 0, result.output
+    assert "total depth: 4.6 mm" in result.output
+    assert "peak intensity: 12 mm/h" in result.output  # 3.6 mm in 18 min, 1 mm in 5 min
+    assert "irregular, 5-18 min" in result.output
+    assert png.read_bytes()[:8] == PNG_SIGNATURE
+
+
+def test_make_chicago_and_alternating_block_from_options(tmp_path):
+    runner = CliRunner()
+    for kind in ("chicago", "alternating_block"):
+        out = tmp_path / f"{kind}.csv"
+        result = runner.invoke(storm, ["make", "--kind", kind, "--idf-a", "1500", "--idf-b", "10",
+                                       "--idf-c", "0.8", "--duration-min", "120", "-o", str(out)])
+        assert result.exit_code == 0, result.output
+        # both keep the IDF depth for 2 h: 1500 / 130^0.8 mm/h * 2 h (hand computation)
+        expected_m = 1500 / 130**0.8 * 2 / 1000
+        assert read_hyetograph_csv(out).total_depth_m == pytest.approx(expected_m, rel=1e-12)
+
+
+def test_errors_propagate_as_storm_errors(tmp_path):
+    runner = CliRunner()
+    bad = runner.invoke(storm, ["make", "--kind", "nrcs_24h", "--distribution", "V",
+                                "--depth", "100", "-o", str(tmp_path / "x.csv")])
+    assert isinstance(bad.exception, StormError)
+    assert "distribution" in str(bad.exception)
+    assert not (tmp_path / "x.csv").exists()
+    src = tmp_path / "neg.csv"
+    src.write_text("time_min,depth_mm\n5,1\n10,-1\n")
+    shown = runner.invoke(storm, ["show", str(src)])
+    assert isinstance(shown.exception, StormError)
+    assert "neg.csv:row 2" in str(shown.exception)
+
+
+def test_make_does_not_replace_without_overwrite(tmp_path):
+    out = tmp_path / "s.csv"
+    out.write_text("keep me")
+    args = ["make", "--kind", "uniform", "--depth", "10", "--duration-min", "30", "-o", str(out)]
+    result = CliRunner().invoke(storm, args)
+    assert result.exception is not None and "already exists" in str(result.exception)
+    assert out.read_text() == "keep me"
+    assert CliRunner().invoke(storm, [*args, "--overwrite"]).exit_code == 0
