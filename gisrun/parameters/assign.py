@@ -302,7 +302,10 @@ def _apply(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame, rank
         if layer.get(key) is not None:
             match &= (rows[key] == layer[key]).to_numpy()
     if not match.any():
-        warnings.append(GisrunWarning(f"{layer['override_source']}: matches no unit; it was not used"))
+        keys = ", ".join(f"{k}={layer[k]}" for k in ("subcatchment_id", "soil_class", "cover_class")
+                         if layer.get(k) is not None)
+        warnings.append(GisrunWarning(
+            f"{layer['override_source']} ({keys}): matches no unit; it was not used"))
         return
     surface = layer.get("surface") or "pervious"
     on_surface = match & (rows["surface"] == surface).to_numpy()

@@ -139,8 +139,8 @@ def normalize_overrides(
         out[key] = _key_column(frame, key)
     for col in _parameter_columns(frame, where):
         si, factor = _ALIASES[col]
-        out[si] = _numbers(frame[col], f"{where}:{col}", names) * factor
-        _check_range(out[si], si, f"{where}:{col}", names, out["surface"])
+        out[si] = _numbers(frame[col], where, col, names) * factor
+        _check_range(out[si], si, where, col, names, out["surface"])
     if "loss_method" in frame.columns:
         out["loss_method"] = [
             None if _blank(v) else check_loss_method(v, f"{where}:{names[i]}:loss_method")
@@ -189,21 +189,21 @@ def _parameter_columns(frame: pd.DataFrame, where: str) -> list[str]:
     return cols
 
 
-def _numbers(series: pd.Series, where: str, names: list[str]) -> pd.Series:
+def _numbers(series: pd.Series, where: str, col: str, names: list[str]) -> pd.Series:
     values = pd.to_numeric(series.map(lambda v: np.nan if _blank(v) else v), errors="coerce")
     bad = values.isna() & ~series.map(_blank)
     bad |= ~np.isfinite(values.fillna(0.0))
     if bad.any():
         i = int(np.flatnonzero(bad.to_numpy())[0])
         raise ParameterError(
-            f"{where}:{names[i]}", f"value {series.iloc[i]!r} is not a finite number",
+            f"{where}:{names[i]}:{col}", f"value {series.iloc[i]!r} is not a finite number",
             "enter a number or leave the cell blank",
         )
     return values.astype(float)
 
 
 def _check_range(
-    values: pd.Series, si: str, where: str, names: list[str], surface: pd.Series
+    values: pd.Series, si: str, where: str, col: str, names: list[str], surface: pd.Series
 ) -> None:
     low, high, low_open = 0.0, np.inf, False
     if si in _FRACTIONS:
@@ -223,7 +223,7 @@ def _check_range(
         i = int(np.flatnonzero(bad)[0])
         allowed = _allowed_text(si)
         raise ParameterError(
-            f"{where}:{names[i]}", f"value {v[i]:g} is out of range ({allowed})",
+            f"{where}:{names[i]}:{col}", f"value {v[i]:g} is out of range ({allowed})",
             "correct the value or leave the cell blank",
         )
 
