@@ -144,7 +144,7 @@ class Hyetograph:
         return np.maximum(depth, 0.0)
 
     def scaled(self, factor: float, *, name: str | None = None) -> Hyetograph:
-        """Return the storm with every depth multiplied by ``factor`` (>= 0), e.g. areal reduction."""
+        """Return the storm with every depth times ``factor`` (>= 0), e.g. areal reduction."""
         if not (math.isfinite(factor) and factor >= 0):
             raise StormError(
                 f"storm {self.name!r}", f"scale factor {factor!r} is not >= 0", "use a factor >= 0"
@@ -170,7 +170,8 @@ def _check_times(time_s: FloatArray, where: str) -> None:
 
 def _check_depths(depth_m: FloatArray, n: int, where: str) -> None:
     if depth_m.shape != (n,):
-        raise StormError(where, f"has {depth_m.size} depths for {n} intervals", "give one per interval")
+        raise StormError(where, f"has {depth_m.size} depths for {n} intervals",
+                         "give one depth per interval")
     bad = ~np.isfinite(depth_m) | (depth_m < 0)
     if np.any(bad):
         i = int(np.argmax(bad))

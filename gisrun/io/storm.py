@@ -40,6 +40,8 @@ __all__ = [
     "storm_from_config",
     "storms_from_config",
     "STORM_KINDS",
+    "IMPLAUSIBLE_DEPTH_M",
+    "warn_if_implausible",
 ]
 
 _TIME_COLUMNS: dict[str, float | None] = {"time_min": 60.0, "time_h": 3600.0, "time": None}
@@ -166,7 +168,7 @@ def _value_unit(column: str, units: UnitSystem | None, src: str) -> tuple[str, s
 
 
 def _parse_times(rows: list[tuple[int, list[str]]], time_col: str, src: str) -> np.ndarray:
-    """Times in seconds (elapsed, or clock seconds/timestamps) for every data row."""
+    """Parse every row's time into seconds (elapsed, clock time of day, or timestamp)."""
     factor = _TIME_COLUMNS[time_col]
     out = []
     for row, cells in rows:
@@ -290,7 +292,8 @@ def _check_gaps(time_s: np.ndarray, rows: np.ndarray, src: str) -> None:
         i = int(np.argmax(~regular))
         row = int(rows[i])
         raise StormError(
-            f"{src}:row {row}", f"a {steps[i] / 60:g}-min gap in a regular {base / 60:g}-min series",
+            f"{src}:row {row}",
+            f"a {steps[i] / 60:g}-min gap in a regular {base / 60:g}-min series",
             "add rows with zero rain for the missing steps",
         )
 
@@ -337,12 +340,14 @@ def write_hyetograph_csv(
 
     target = Path(path)
     if target.exists() and not overwrite:
-        raise OutputExistsError(str(target), "already exists", "pass --overwrite or pick another path")
+        raise OutputExistsError(str(target), "already exists",
+                                "pass --overwrite or pick another path")
     depth = np.asarray(h.depth_m) / to_si(1.0, units.depth)
     lines = [f"# name: {' '.join(h.name.split())}",
              "# gisrun hyetograph: times mark the end of each interval; planning-level estimate",
              f"time_min,depth_{units.depth}", "0,0"]
-    lines += [f"{t!r},{d!r}" for t, d in zip((h.time_s[1:] / 60.0).tolist(), depth.tolist(), strict=True)]
+    ends_min = (h.time_s[1:] / 60.0).tolist()
+    lines += [f"{t!r},{d!r}" for t, d in zip(ends_min, depth.tolist(), strict=True)]
     tmp = target.with_name(f".{target.name}.{os.getpid()}.partial")
     try:
         tmp.write_text("\n".join(lines) + "\n", encoding="utf-8")
@@ -379,7 +384,8 @@ def read_idf_table_csv(path: str | os.PathLike[str]) -> st.IdfTable:
             raise StormError(f"{src}:row {row}", f"{','.join(cells)!r} is not two numbers",
                              "write a duration and an intensity") from None
         if not (math.isfinite(d) and math.isfinite(i) and d > 0 and i > 0):
-            raise StormError(f"{src}:row {row}", "duration and intensity must be > 0", "fix the row")
+            raise StormError(f"{src}:row {row}", "duration and intensity must be > 0",
+                             "fix the row")
         numbers.append((d * 60.0, i))
     arr = np.array(numbers)
     if np.any(np.diff(arr[:, 0]) <= 0):
@@ -458,7 +464,8 @@ def storms_from_config(
     for i, spec in enumerate(specs, start=1):
         h = storm_from_config(spec, base_dir=base_dir, units=units, where=f"{where} {i}")
         if h.name in seen:
-            raise StormError(f"{where} {i}", f"name {h.name!r} is also used by storm {seen[h.name]}",
+            raise StormError(f"{where} {i}",
+                             f"name {h.name!r} is also used by storm {seen[h.name]}",
                              "give every storm its own name")
         seen[h.name] = i
         storms.append(h)
@@ -496,7 +503,8 @@ def _number(spec: Mapping[str, Any], key: str, where: str, default: float | None
     ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
     inside = ok and (value > low if strict else value >= low) and value <= high
     if not inside:
-        rng = f"{'>' if strict else '>='} {low:g}" + (f" and <= {high:g}" if high < math.inf else "")
+        rng = f"{'>' if strict else '>='} {low:g}"
+        rng += f" and <= {high:g}" if high < math.inf else ""
         raise StormError(f"{where}.{key}", f"{value!r} is not a number {rng}", f"set {key} {rng}")
     return float(value)
 
@@ -514,10 +522,12 @@ def _idf(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str
         return read_idf_table_csv(_path(spec, "idf_table", base_dir, where))
     idf = spec["idf"]
     if not isinstance(idf, Mapping):
-        raise StormError(f"{where}.idf", f"{idf!r} is not a table", "write idf = {a=..., b=..., c=...}")
+        raise StormError(f"{where}.idf", f"{idf!r} is not a table",
+                         "write idf = {a=..., b=..., c=...}")
     for key in idf:
         if key not in ("a", "b", "c"):
-            raise StormError(f"{where}.idf.{key}", "is not an IDF coefficient", _nearest(key, "abc"))
+            raise StormError(f"{where}.idf.{key}", "is not an IDF coefficient",
+                             _nearest(key, "abc"))
     w = f"{where}.idf"
     a = _number(idf, "a", w)
     return st.IdfFormula(float(to_si(a, units.rate)), _number(idf, "b", w, strict=False),
