@@ -142,10 +142,10 @@ def normalize_overrides(
         out[si] = _numbers(frame[col], where, col, names) * factor
         _check_range(out[si], si, where, col, names, out["surface"])
     if "loss_method" in frame.columns:
-        out["loss_method"] = [
+        out["loss_method"] = pd.Series([
             None if _blank(v) else check_loss_method(v, f"{where}:{names[i]}:loss_method")
             for i, v in enumerate(frame["loss_method"])
-        ]
+        ], index=out.index, dtype=object)
     out["override_source"] = [f"{where}:{n}" for n in names]
     _check_rows(out, where, names)
     return out
