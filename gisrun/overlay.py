@@ -1,0 +1,414 @@
+"""Exact overlay of subcatchment polygons on class rasters -> unit areas.
+
+A *unit* is the part of one subcatchment on one soil class and one cover
+class. Its area is exact at polygon edges: every raster cell contributes the
+area of the cell the polygon covers, so edge cells count partly and polygons
+smaller than a cell get their true area and the class under them.
+
+Method
+------
+Polygon edges are cut at the grid's row lines; inside one row a straight edge
+piece adds to each cell it crosses the exact area between the piece and the
+cell's right side (x is linear in y, so this is a closed form), and adds its
+whole height to every cell further right. A running sum along the row then
+gives each cell's covered fraction exactly (the accumulation used by exact
+area-coverage scan converters). Only cells touched by an edge are stored;
+between them the running sum is constant (0 outside, 1 inside), so interior
+cells are counted as runs read straight from the class raster. Work grows with
+the number of boundary cells plus covered cells, and subcatchments are handled
+in spatially compact chunks, each reading only its own raster window (in row
+bands when one window would be large), so memory does not grow with the
+raster.
+
+Two rasters (soil and cover) on different grids: the computation runs on the
+finer grid (smaller cell); the coarser raster is sampled at each fine cell's
+centre (nearest cell, never interpolated). When the grids share a CRS and the
+coarse cell size and origin offset are whole multiples of the fine cell size,
+each fine cell lies inside one coarse cell and the result is exact. Otherwise
+the only error is that a fine cell straddling a coarse cell edge goes wholly
+to the class at its centre: the area moved between classes is at most the
+area of the fine cells cut by coarse cell edges, a share of about
+``res_fine_x / res_coarse_x + res_fine_y / res_coarse_y`` of the area (each
+subcatchment's total area stays exact).
+
+CRS: polygons in another CRS than the rasters are transformed to the raster
+CRS (rasters are never resampled); each subcatchment's areas are then scaled
+so that its total equals its own area in its own CRS
+(:func:`gisrun.geometry.polygon_area_m2`), and the scaling is reported.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any, Literal, Protocol
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import shapely
+from numpy.typing import NDArray
+from pyproj import CRS
+
+from .errors import CRSError, InputError, RasterError
+from .geometry import cell_coverage, geodesic_cell_area_m2, linear_unit_m, polygon_area_m2
+
+__all__ = ["compute_unit_areas", "NODATA_RULES", "UNSPECIFIED_COVER"]
+
+NODATA_RULES = ("error", "dominant", "omit")
+UNSPECIFIED_COVER = "unspecified"
+_OUTSIDE, _NODATA = 0, 1  # class indices before the real (soil x cover) classes
+
+
+class ClassGrid(Protocol):
+    """What the overlay needs from a class raster (see ``gisrun.io.raster.ClassRaster``)."""
+
+    crs: CRS
+    transform: Any
+    width: int
+    height: int
+    nodata: float | None
+    where: str
+
+    def read_window(self, window: Any) -> tuple[NDArray[Any], Any]:
+        """Read ((row_start, row_stop), (col_start, col_stop)), clipped to the raster."""
+
+
+def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid, cover: ClassGrid | None = None,
+                       *, soil_codes: Mapping[int, str], cover_codes: Mapping[int, str] | None = None,
+                       nodata_rule: Literal["error", "dominant", "omit"] = "error",
+                       max_nodata_fraction: float = 0.0, chunk_cells: int = 4_000_000,
+                       ) -> tuple[pd.DataFrame, pd.DataFrame, list[str]]:
+    """Area of every subcatchment x soil class x cover class, exact at polygon edges.
+
+    Parameters
+    ----------
+    subcatchments : geopandas.GeoDataFrame
+        ``subcatchment_id`` and polygon geometry, with a CRS.
+    soil, cover : ClassRaster
+        Class rasters (``cover`` optional: then every unit's cover is ``"unspecified"``).
+    soil_codes, cover_codes : mapping of int to str
+        Raster code -> class label. Codes not in the table count as nodata.
+    nodata_rule : {"error", "dominant", "omit"}
+        What happens to nodata and outside-the-raster area: ``"dominant"`` adds
+        it to the subcatchment's largest unit, ``"omit"`` and ``"error"`` leave it
+        out (the units then sum to less than the subcatchment).
+    max_nodata_fraction : float
+        Largest allowed (nodata + outside) share of a subcatchment, 0-1; above
+        it a ``RasterError`` names the subcatchments, whatever the rule.
+    chunk_cells : int
+        Raster cells read at once (bounds memory).
+
+    Returns
+    -------
+    units : pandas.DataFrame
+        ``subcatchment_id``, ``soil_class``, ``cover_class``, ``area_m2``.
+    coverage : pandas.DataFrame
+        ``subcatchment_id``, ``area_m2``, ``covered_area_m2``, ``nodata_area_m2``,
+        ``outside_area_m2``, ``nodata_fraction``.
+    notes : list of str
+        What was done that a user should know (CRS transform, filled nodata).
+
+    Raises
+    ------
+    RasterError
+        A subcatchment above ``max_nodata_fraction``.
+    CRSError
+        Soil and cover rasters in different CRSs, or polygons without a CRS.
+    InputError
+        Unknown ``nodata_rule`` or a fraction outside 0-1.
+    """
+    _check_options(nodata_rule, max_nodata_fraction)
+    notes: list[str] = []
+    grid = _Grid.build(soil, cover, soil_codes, cover_codes, notes)
+    ids = subcatchments["subcatchment_id"].astype(str).to_numpy()
+    own_m2 = polygon_area_m2(subcatchments.geometry)
+    geoms = _to_grid_crs(subcatchments.geometry, grid.crs, notes)
+    sums = _class_sums(geoms, grid, chunk_cells)  # (poly, class, cell units) triples
+    return _finish(ids, own_m2, sums, grid, nodata_rule, max_nodata_fraction, notes)
+
+
+def _check_options(rule: str, fraction: float) -> None:
+    if rule not in NODATA_RULES:
+        raise InputError(f"nodata rule {rule!r}", "is not a rule", f"use one of {list(NODATA_RULES)}")
+    if not 0.0 <= fraction <= 1.0:
+        raise InputError(f"max nodata fraction {fraction!r}", "is outside 0-1", "give a share 0-1")
+
+
+class _Grid:
+    """The computation grid (the finer raster) and how to read classes on it."""
+
+    def __init__(self, fine: ClassGrid, coarse: ClassGrid | None, fine_lut: _Lookup,
+                 coarse_lut: _Lookup | None, fine_is_soil: bool, labels: list[tuple[str, str]]):
+        self.fine, self.coarse, self.fine_lut, self.coarse_lut = fine, coarse, fine_lut, coarse_lut
+        self.fine_is_soil, self.labels = fine_is_soil, labels
+        self.crs = CRS.from_user_input(fine.crs)
+        self.t = fine.transform
+        self.n_classes = 2 + len(labels)
+
+    @classmethod
+    def build(cls, soil: ClassGrid, cover: ClassGrid | None, soil_codes: Mapping[int, str],
+              cover_codes: Mapping[int, str] | None, notes: list[str]) -> _Grid:
+        soil_lut = _Lookup(soil_codes, soil.nodata)
+        if cover is None:
+            labels = [(s, UNSPECIFIED_COVER) for s in soil_lut.labels]
+            return cls(soil, None, soil_lut, None, True, labels)
+        if cover_codes is None:
+            raise InputError(f"{cover.where}", "cover raster given without a code table",
+                             "add the cover codes")
+        if not CRS.from_user_input(soil.crs).equals(CRS.from_user_input(cover.crs)):
+            raise CRSError(f"{cover.where}", f"CRS differs from the soil raster {soil.where}",
+                           "warp one raster to the other's CRS with nearest neighbour first")
+        cover_lut = _Lookup(cover_codes, cover.nodata)
+        labels = [(s, c) for s in soil_lut.labels for c in cover_lut.labels]
+        soil_cell = abs(soil.transform.a * soil.transform.e)
+        fine_is_soil = soil_cell <= abs(cover.transform.a * cover.transform.e)
+        fine, coarse = (soil, cover) if fine_is_soil else (cover, soil)
+        _note_alignment(fine, coarse, notes)
+        luts = (soil_lut, cover_lut) if fine_is_soil else (cover_lut, soil_lut)
+        return cls(fine, coarse, luts[0], luts[1], fine_is_soil, labels)
+
+    def classes(self, r0: int, r1: int, c0: int, c1: int) -> NDArray[np.intp]:
+        """Class index of fine cells rows r0:r1, cols c0:c1 (0 outside, 1 nodata)."""
+        fine = self.fine_lut.index(_read_padded(self.fine, r0, r1, c0, c1))
+        if self.coarse is None:
+            return fine
+        coarse = self.coarse_lut.index(self._coarse_on_fine(r0, r1, c0, c1))
+        soil, cover = (fine, coarse) if self.fine_is_soil else (coarse, fine)
+        n_cover = len(self.coarse_lut.labels if self.fine_is_soil else self.fine_lut.labels)
+        out = (soil - 2) * n_cover + (cover - 2) + 2
+        out = np.where((soil == _NODATA) | (cover == _NODATA), _NODATA, out)
+        return np.where((soil == _OUTSIDE) | (cover == _OUTSIDE), _OUTSIDE, out)
+
+    def _coarse_on_fine(self, r0: int, r1: int, c0: int, c1: int) -> NDArray[Any]:
+        t, ct = self.t, self.coarse.transform
+        xs = t.c + t.a * (np.arange(c0, c1) + 0.5)
+        ys = t.f + t.e * (np.arange(r0, r1) + 0.5)
+        cols = np.floor((xs - ct.c) / ct.a).astype(np.int64)
+        rows = np.floor((ys - ct.f) / ct.e).astype(np.int64)
+        cr0, cr1, cc0, cc1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
+        block = _read_padded(self.coarse, cr0, cr1, cc0, cc1)
+        return block[np.ix_(rows - cr0, cols - cc0)]
+
+    def row_weights(self, r0: int, r1: int) -> NDArray[np.float64] | None:
+        """Cell area per row in m2 for a geographic grid; None for a projected one."""
+        if not self.crs.is_geographic:
+            return None
+        t = self.t
+        edges = t.f + t.e * np.arange(r0, r1 + 1)
+        lat = np.clip(edges, -90.0, 90.0)
+        return geodesic_cell_area_m2(self.crs, t.c, t.c + t.a, lat[:-1], lat[1:])
+
+    @property
+    def cell_area_m2(self) -> float:
+        if self.crs.is_geographic:
+            return 1.0  # row weights carry the area
+        return abs(self.t.a * self.t.e) * linear_unit_m(self.crs) ** 2
+
+
+def _note_alignment(fine: ClassGrid, coarse: ClassGrid, notes: list[str]) -> None:
+    ft, ct = fine.transform, coarse.transform
+    ratios = np.array([ct.a / ft.a, ct.e / ft.e, (ct.c - ft.c) / ft.a, (ct.f - ft.f) / ft.e])
+    if np.allclose(ratios, np.round(ratios), rtol=0, atol=1e-6):
+        return
+    bound = abs(ft.a / ct.a) + abs(ft.e / ct.e)
+    notes.append(f"{coarse.where} is not aligned with {fine.where}: sampled at the finer grid's "
+                 f"cell centres; class shares may be off by up to about {bound:.1%} of each area")
+
+
+class _Lookup:
+    """Map raster codes to class indices: 0 outside, 1 nodata, 2.. labels (sorted)."""
+
+    def __init__(self, codes: Mapping[int, str], nodata: float | None) -> None:
+        self.labels = sorted(set(codes.values()))
+        pos = {label: i + 2 for i, label in enumerate(self.labels)}
+        items = sorted((int(k), pos[v]) for k, v in codes.items())
+        self.codes = np.array([k for k, _ in items], dtype=np.int64)
+        self.idx = np.array([v for _, v in items], dtype=np.intp)
+        self.nodata = nodata
+
+    def index(self, block: NDArray[Any]) -> NDArray[np.intp]:
+        outside = block.mask if np.ma.isMaskedArray(block) else np.zeros(block.shape, bool)
+        vals = np.asarray(block)
+        if vals.dtype.kind in "iub" and vals.dtype.itemsize <= 2 and self.codes.size:
+            out = self._small_int(vals)
+        else:
+            out = self._search(vals)
+        if self.nodata is not None and not np.isnan(self.nodata):
+            out[vals == self.nodata] = _NODATA
+        out[outside] = _OUTSIDE
+        return out
+
+    def _small_int(self, vals: NDArray[Any]) -> NDArray[np.intp]:
+        info = np.iinfo(vals.dtype)
+        lut = np.full(int(info.max) - int(info.min) + 1, _NODATA, dtype=np.intp)
+        keep = (self.codes >= info.min) & (self.codes <= info.max)
+        lut[self.codes[keep] - int(info.min)] = self.idx[keep]
+        return lut[vals.astype(np.int64) - int(info.min)] if info.min else lut[vals]
+
+    def _search(self, vals: NDArray[Any]) -> NDArray[np.intp]:
+        out = np.full(vals.shape, _NODATA, dtype=np.intp)
+        if not self.codes.size:
+            return out
+        keys = self.codes.astype(vals.dtype) if vals.dtype.kind == "f" else self.codes
+        pos = np.clip(np.searchsorted(keys, vals), 0, keys.size - 1)
+        hit = keys[pos] == vals
+        out[hit] = self.idx[pos[hit]]
+        return out
+
+
+def _read_padded(raster: ClassGrid, r0: int, r1: int, c0: int, c1: int) -> np.ma.MaskedArray:
+    """Rows r0:r1, cols c0:c1 of a raster; cells beyond its edge are masked."""
+    shape = (r1 - r0, c1 - c0)
+    rr0, rr1 = max(r0, 0), min(r1, raster.height)
+    cc0, cc1 = max(c0, 0), min(c1, raster.width)
+    if rr0 >= rr1 or cc0 >= cc1:
+        return np.ma.masked_all(shape, dtype=np.int64)
+    data, _ = raster.read_window(((rr0, rr1), (cc0, cc1)))
+    if shape == data.shape:
+        return np.ma.MaskedArray(data, mask=np.zeros(shape, bool))
+    out = np.ma.masked_all(shape, dtype=data.dtype)
+    out[rr0 - r0:rr1 - r0, cc0 - c0:cc1 - c0] = data
+    return out
+
+
+def _to_grid_crs(geoms: gpd.GeoSeries, crs: CRS, notes: list[str]) -> NDArray[Any]:
+    if geoms.crs is None:
+        raise CRSError("subcatchments", "have no CRS", "state the layer's CRS in the project file")
+    if not CRS.from_user_input(geoms.crs).equals(crs):
+        notes.append(f"subcatchments transformed from {CRS.from_user_input(geoms.crs).name} "
+                     f"to the raster CRS {crs.name} for the overlay; unit areas scaled so each "
+                     "subcatchment keeps its area in its own CRS")
+        geoms = geoms.to_crs(crs)
+    return shapely.orient_polygons(geoms.to_numpy())
+
+
+def _class_sums(geoms: NDArray[Any], grid: _Grid, chunk_cells: int) -> tuple[NDArray[Any], ...]:
+    """(polygon, class, area in cell units or m2) for every non-zero pair."""
+    t = grid.t
+    px = shapely.transform(geoms, lambda xy: np.column_stack(((xy[:, 0] - t.c) / t.a,
+                                                               (xy[:, 1] - t.f) / t.e)))
+    b = shapely.bounds(px)
+    box = np.column_stack([np.floor(b[:, 1]), np.ceil(b[:, 3]), np.floor(b[:, 0]),
+                           np.ceil(b[:, 2])]).astype(np.int64)  # r0, r1, c0, c1
+    out: list[tuple[NDArray[Any], ...]] = []
+    for idx in _compact_chunks(px, box, chunk_cells):
+        r0, r1 = box[idx, 0].min(), box[idx, 1].max()
+        c0, c1 = box[idx, 2].min(), box[idx, 3].max()
+        cov = cell_coverage(px[idx], origin=(float(c0), float(r0)))
+        local = _chunk_sums(cov, grid, len(idx), (int(r0), int(r1), int(c0), int(c1)), chunk_cells)
+        poly, cls = np.nonzero(local)
+        out.append((idx[poly], cls, local[poly, cls]))
+    return tuple(np.concatenate(parts) for parts in zip(*out, strict=True))
+
+
+def _compact_chunks(px: NDArray[Any], box: NDArray[np.int64], chunk_cells: int) -> list[NDArray[Any]]:
+    """Polygons grouped along a Hilbert curve so that each group's window stays small."""
+    order = np.asarray(gpd.GeoSeries(shapely.centroid(px)).hilbert_distance()).argsort(kind="stable")
+    chunks, current = [], []
+    r0 = c0 = np.iinfo(np.int64).max
+    r1 = c1 = np.iinfo(np.int64).min
+    for i in order.tolist():
+        nr0, nr1 = min(r0, box[i, 0]), max(r1, box[i, 1])
+        nc0, nc1 = min(c0, box[i, 2]), max(c1, box[i, 3])
+        if current and (nr1 - nr0) * (nc1 - nc0) > chunk_cells:
+            chunks.append(np.array(current))
+            current, (nr0, nr1, nc0, nc1) = [], box[i]
+        current.append(i)
+        r0, r1, c0, c1 = nr0, nr1, nc0, nc1
+    chunks.append(np.array(current))
+    return chunks
+
+
+def _chunk_sums(cov: Any, grid: _Grid, n_poly: int, win: tuple[int, int, int, int],
+                chunk_cells: int) -> NDArray[np.float64]:
+    """Covered area per (polygon, class) in one window, read in row bands."""
+    r0, r1, c0, c1 = win
+    width, n_cls = c1 - c0, grid.n_classes
+    sums = np.zeros(n_poly * n_cls)
+    band = max(1, chunk_cells // max(width, 1))
+    for a in range(0, r1 - r0, band):
+        b = min(a + band, r1 - r0)
+        cls = grid.classes(r0 + a, r0 + b, c0, c1).ravel()
+        area = grid.row_weights(r0 + a, r0 + b)
+        e0, e1 = np.searchsorted(cov.row, [a, b])
+        col = cov.col[e0:e1]
+        ok = (col >= 0) & (col < width)
+        rows = cov.row[e0:e1][ok] - a
+        w = cov.fraction[e0:e1][ok] * (area[rows] if area is not None else 1.0)
+        flat = rows * width + col[ok]
+        sums += np.bincount(cov.poly[e0:e1][ok] * n_cls + cls[flat], w, minlength=sums.size)
+        sums += _run_sums(cov, a, b, width, cls, area, n_cls, sums.size)
+    return sums.reshape(n_poly, n_cls)
+
+
+def _run_sums(cov: Any, a: int, b: int, width: int, cls: NDArray[np.intp],
+              area: NDArray[np.float64] | None, n_cls: int, size: int) -> NDArray[np.float64]:
+    """Area per (polygon, class) of the interior runs in rows a:b of a window."""
+    s0, s1 = np.searchsorted(cov.run_row, [a, b])
+    rows = cov.run_row[s0:s1] - a
+    start = np.clip(cov.run_start[s0:s1], 0, width)
+    n = np.clip(cov.run_stop[s0:s1], 0, width) - start
+    owner = np.repeat(np.arange(n.size), n)
+    flat = np.arange(owner.size) + np.repeat(rows * width + start - (np.cumsum(n) - n), n)
+    key = cov.run_poly[s0:s1][owner] * n_cls + cls[flat]
+    weight = cov.run_weight[s0:s1]
+    if area is None and np.all(weight == 1):
+        return np.bincount(key, minlength=size).astype(np.float64)
+    w = weight * (area[rows] if area is not None else 1.0)
+    return np.bincount(key, w[owner], minlength=size)
+
+
+def _finish(ids: NDArray[Any], own_m2: NDArray[np.float64], sums: tuple[NDArray[Any], ...],
+            grid: _Grid, rule: str, max_fraction: float, notes: list[str]
+            ) -> tuple[pd.DataFrame, pd.DataFrame, list[str]]:
+    poly, cls, area = sums
+    area = area * grid.cell_area_m2
+    total = np.bincount(poly, area, minlength=ids.size)
+    scale = np.divide(own_m2, total, out=np.zeros_like(own_m2), where=total > 0)
+    area = area * scale[poly]
+    outside = np.bincount(poly, np.where(cls == _OUTSIDE, area, 0.0), minlength=ids.size)
+    nodata = np.bincount(poly, np.where(cls == _NODATA, area, 0.0), minlength=ids.size)
+    missing = outside + nodata
+    fraction = np.divide(missing, own_m2, out=np.ones_like(own_m2), where=own_m2 > 0)
+    coverage = pd.DataFrame({"subcatchment_id": ids, "area_m2": own_m2,
+                             "covered_area_m2": own_m2 - missing, "nodata_area_m2": nodata,
+                             "outside_area_m2": outside, "nodata_fraction": fraction})
+    _check_fraction(ids, fraction, max_fraction, grid)
+    keep = (cls >= 2) & (area > 1e-9 * own_m2[poly])
+    poly, cls, area = poly[keep], cls[keep] - 2, area[keep]
+    if rule == "dominant":
+        area = _fill_dominant(poly, area, missing, ids, notes)
+    elif np.any(missing > 1e-9 * own_m2):
+        notes.append(f"{int(np.sum(missing > 1e-9 * own_m2))} subcatchment(s) have nodata or "
+                     "outside-raster area left out of their units (see coverage)")
+    labels = np.array(grid.labels, dtype=object).reshape(-1, 2)
+    units = pd.DataFrame({"subcatchment_id": ids[poly], "soil_class": labels[cls, 0],
+                          "cover_class": labels[cls, 1], "area_m2": area})
+    units = units.sort_values(["subcatchment_id", "soil_class", "cover_class"], ignore_index=True)
+    return units, coverage, notes
+
+
+def _check_fraction(ids: NDArray[Any], fraction: NDArray[np.float64], max_fraction: float,
+                    grid: _Grid) -> None:
+    over = fraction > max_fraction + 1e-9
+    if not over.any():
+        return
+    worst = [f"{i} ({f:.1%})" for i, f in zip(ids[over][:10], fraction[over][:10], strict=True)]
+    raise RasterError(f"{grid.fine.where}", f"nodata or outside-raster share above "
+                      f"{max_fraction:.1%} in subcatchments {', '.join(worst)}",
+                      "extend or fill the raster, fix the code table, or raise the nodata maximum")
+
+
+def _fill_dominant(poly: NDArray[Any], area: NDArray[np.float64], missing: NDArray[np.float64],
+                   ids: NDArray[Any], notes: list[str]) -> NDArray[np.float64]:
+    if poly.size == 0:
+        return area
+    order = np.lexsort((-area, poly))  # largest unit of each subcatchment first
+    first = order[np.r_[True, poly[order][1:] != poly[order][:-1]]]
+    area = area.copy()
+    area[first] += missing[poly[first]]
+    filled = np.intersect1d(poly[first], np.flatnonzero(missing > 0))
+    if filled.size:
+        notes.append(f"nodata or outside-raster area of {filled.size} subcatchment(s) given to "
+                     f"their dominant unit (e.g. {', '.join(map(str, ids[filled][:5]))})")
+    return area
