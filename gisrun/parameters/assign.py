@@ -160,7 +160,8 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
     bad = ~np.isfinite(area) | (area < 0)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
-        raise ParameterError(f"unit table:row {i + 1}:area_m2", f"value {units['area_m2'].iloc[i]!r}"
+        raise ParameterError(f"unit table:row {i + 1}:area_m2",
+                             f"value {units['area_m2'].iloc[i]!r}"
                              " is not an area", "areas must be finite and not negative")
     out["area_m2"] = area
     for col in ("subcatchment_id", "soil_class", "cover_class"):
@@ -309,7 +310,9 @@ def _apply(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame, rank
         return
     surface = layer.get("surface") or "pervious"
     on_surface = match & (rows["surface"] == surface).to_numpy()
-    label = f"{layer['override_source']}" + ("" if rank < _ATTRIBUTE_RANK else " (subcatchment attribute)")
+    label = layer["override_source"]
+    if rank >= _ATTRIBUTE_RANK:
+        label += " (subcatchment attribute)"
     for col in _ALL:
         value = layer.get(col)
         if value is None or (isinstance(value, float) and np.isnan(value)):

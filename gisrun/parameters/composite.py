@@ -92,7 +92,8 @@ def _one(sid: object, part: pd.DataFrame) -> dict[str, object]:
             distinct = part[col].unique()
             if len(distinct) > 1:
                 raise ParameterError(
-                    f"subcatchment {sid}", f"its parts have different {col} values {list(distinct)}",
+                    f"subcatchment {sid}",
+                    f"its parts have different {col} values {list(distinct)}",
                     "give the subcatchment one loss method or use combine = 'units'")
             row[col] = distinct[0]
     return row

@@ -99,7 +99,8 @@ def check_loss_method(name: object, where: str) -> str:
         return text
     near = difflib.get_close_matches(text, LOSS_METHODS, n=1)
     hint = f"did you mean {near[0]!r}? " if near else ""
-    raise ParameterError(where, f"unknown loss method {name!r}", f"{hint}use one of {list(LOSS_METHODS)}")
+    raise ParameterError(where, f"unknown loss method {name!r}",
+                         f"{hint}use one of {list(LOSS_METHODS)}")
 
 
 def normalize_overrides(
@@ -152,7 +153,9 @@ def normalize_overrides(
 
 
 def _blank(value: object) -> bool:
-    return value is None or (isinstance(value, float) and np.isnan(value)) or str(value).strip() == ""
+    if value is None or (isinstance(value, float) and np.isnan(value)):
+        return True
+    return str(value).strip() == ""
 
 
 def _key_column(frame: pd.DataFrame, key: str) -> pd.Series:

@@ -244,7 +244,7 @@ def _defaults() -> pd.DataFrame:
 
 
 def group_defaults() -> pd.DataFrame:
-    """Representative texture and initial soil loss (m) by group (common practice)."""
+    """Return the representative texture and initial soil loss (m) by group (common practice)."""
     return _defaults().copy()
 
 

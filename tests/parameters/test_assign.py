@@ -47,7 +47,8 @@ def test_split_by_impervious_fraction_keeps_area():
 
 
 def test_pervious_part_gets_soil_and_pervious_cn():
-    p, _, _ = assign(units(("S1", "B", "residential_quarter_acre", 1000.0)), initial_saturation=0.25)
+    table = units(("S1", "B", "residential_quarter_acre", 1000.0))
+    p, _, _ = assign(table, initial_saturation=0.25)
     perv = part(p, "pervious")
     # group B representative texture silt loam (common practice): Rawls et al. (1983),
     # Chow et al. (1988) Table 4.3.1 (from memory): K 0.65 cm/h, psi 16.68 cm, theta_e 0.486
@@ -93,7 +94,8 @@ def test_water_and_rock_behave_as_impervious(soil):
     assert p["curve_number"].iloc[0] == 98 and p["ks_m_per_s"].iloc[0] == 0.0
 
 
-@pytest.mark.parametrize(("condition", "group", "cn"), [("drained", "B", 61), ("undrained", "D", 80)])
+@pytest.mark.parametrize(("condition", "group", "cn"),
+                         [("drained", "B", 61), ("undrained", "D", 80)])
 def test_dual_groups(condition, group, cn):
     # NRCS NEH 630 Ch. 7 (2009): dual groups are the first letter when drained, D when not;
     # open space good B = 61, D = 80 (TR-55 1986 Table 2-2a)
@@ -105,8 +107,8 @@ def test_dual_groups(condition, group, cn):
 
 
 def test_texture_classification_uses_rawls_values_and_texture_group():
-    p, prov, warns = assign(units(("S1", "clay", "woods_good", 10.0), ("S1", "sand", "woods_good", 10.0)),
-                            classification="texture")
+    table = units(("S1", "clay", "woods_good", 10.0), ("S1", "sand", "woods_good", 10.0))
+    p, prov, warns = assign(table, classification="texture")
     clay, sand = part(p, "pervious", soil_class="clay"), part(p, "pervious", soil_class="sand")
     assert_allclose(clay["ks_m_per_s"], 0.03 * CM_PER_H)  # Chow et al. 1988 Table 4.3.1
     assert_allclose(sand["ks_m_per_s"], 11.78 * CM_PER_H)
@@ -128,7 +130,8 @@ def test_per_subcatchment_method_overrides_default():
                         method="curve_number", subcatchment_attributes=attrs)
     assert set(p.loc[p["subcatchment_id"] == "S1", "loss_method"]) == {"curve_number"}
     assert set(p.loc[p["subcatchment_id"] == "S2", "loss_method"]) == {"horton"}  # both parts
-    assert "subcatchment attribute" in source(prov, "loss_method", "impervious", subcatchment_id="S2")
+    s2_source = source(prov, "loss_method", "impervious", subcatchment_id="S2")
+    assert "subcatchment attribute" in s2_source
 
 
 def test_override_precedence_and_provenance():
@@ -268,7 +271,8 @@ def test_override_values_out_of_range(column, value, pattern):
 def test_moisture_deficit_above_porosity_names_the_unit():
     # sandy loam (group A representative) total porosity 0.453 (Rawls et al. 1983)
     overrides = pd.DataFrame({"soil_class": ["A"], "moisture_deficit": [0.6]})
-    with pytest.raises(ParameterError, match=r"subcatchment S1, soil A, cover meadow: moisture_deficit"):
+    culprit = r"subcatchment S1, soil A, cover meadow: moisture_deficit"
+    with pytest.raises(ParameterError, match=culprit):
         assign(units(("S1", "A", "meadow", 1.0)), overrides=overrides)
 
 

@@ -120,7 +120,8 @@ def test_horton_table_in_si():
     # decay 4.14 1/h (Akan 1993, from memory) in 1/s
     assert_allclose(horton["horton_decay_per_s"], 4.14 / 3600.0)
     # fc is the midpoint of the TR-55 (1986) App. A minimum infiltration range
-    assert_allclose(horton["horton_fc_m_per_s"], T.hsg_conductivity()["min_infiltration_mid_m_per_s"])
+    midpoints = T.hsg_conductivity()["min_infiltration_mid_m_per_s"]
+    assert_allclose(horton["horton_fc_m_per_s"], midpoints)
     assert (horton["horton_f0_m_per_s"] > horton["horton_fc_m_per_s"]).all()
     # recovery: common practice, faster on lighter soils
     assert horton["horton_recovery_per_s"].is_monotonic_decreasing
