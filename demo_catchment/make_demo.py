@@ -202,8 +202,10 @@ def _roads(shape: dict, frame: tuple) -> NDArray[np.bool_]:
 
 
 def make_cover(rng: np.random.Generator, shape: dict, frame: tuple) -> NDArray[np.uint8]:
-    """Cover classes: town core on the valley floor, housing up the slopes, woods above, farms
-    at the head of the valley, a green corridor along the stream."""
+    """Cover classes: town core on the valley floor, housing up the slopes, woods above.
+
+    Farms fill the head of the valley and a green corridor follows the stream.
+    """
     u, v = cell_centres_local(frame, COVER_CELL_M)
     t = u / VALLEY_LENGTH_M + 0.04 * smooth_noise(rng, u.shape, 24.0)
     h = relative_height(u, v, shape) + 0.08 * smooth_noise(rng, u.shape, 14.0)
@@ -286,8 +288,11 @@ def _names(centres: NDArray[np.float64], shape: dict) -> list[str]:
 
 
 def _method_choices(centres: NDArray[np.float64], shape: dict) -> list[str | None]:
-    """Per-subcatchment method demo: curve number on the four most upstream (farm) cells,
-    Horton on the four cells nearest the pond; the rest use the project default (null)."""
+    """Per-subcatchment method choice: a few cells get a method of their own.
+
+    Curve number on the four most upstream (farm) cells, Horton on the four cells nearest the
+    pond; the rest are null and use the project default.
+    """
     methods: list[str | None] = [None] * len(centres)
     for i in np.argsort(centres[:, 0])[:4]:
         methods[i] = "curve_number"
