@@ -203,7 +203,7 @@ def read_column(
         pos = int(np.flatnonzero(bad)[0])
         limits = _describe_range(low, high, low_open)
         raise ParameterError(f"{PARAMETER_FRAME}:{name}:row {frame.index[pos]!r}",
-                             f"value {values[pos]!r} is empty or outside {limits}",
+                             f"value {float(values[pos])!r} is empty or outside {limits}",
                              "correct the value or its parameter table entry")
     return values
 

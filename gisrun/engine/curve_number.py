@@ -183,7 +183,7 @@ def _check_allowed(frame: pd.DataFrame, name: str, values: FloatArray,
     if not ok.all():
         pos = int(np.flatnonzero(~ok)[0])
         raise ParameterError(f"{PARAMETER_FRAME}:{name}:row {frame.index[pos]!r}",
-                             f"value {values[pos]!r} is not allowed", fix)
+                             f"value {float(values[pos])!r} is not allowed", fix)
 
 
 @dataclass(frozen=True)

@@ -125,8 +125,8 @@ def _check_f0_above_fc(frame: pd.DataFrame, f0: FloatArray, fc: FloatArray) -> N
     if bad.size:
         row = frame.index[bad[0]]
         raise ParameterError(f"{PARAMETER_FRAME}:horton_f0_m_per_s:row {row!r}",
-                             f"initial capacity {f0[bad[0]]!r} m/s is below the final capacity "
-                             f"{fc[bad[0]]!r} m/s", "give horton_f0_m_per_s >= horton_fc_m_per_s")
+                             f"initial capacity {float(f0[bad[0]])!r} m/s is below the final capacity "
+                             f"{float(fc[bad[0]])!r} m/s", "give horton_f0_m_per_s >= horton_fc_m_per_s")
 
 
 @dataclass(frozen=True)

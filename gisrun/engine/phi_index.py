@@ -221,8 +221,8 @@ def _check_observed(observed: FloatArray, available: FloatArray, what: str) -> N
     if bad.any():
         j = int(np.flatnonzero(bad)[0])
         raise ParameterError(f"observed_runoff_m:unit {j}",
-                             f"runoff {observed[j]!r} m is negative or exceeds the {what} "
-                             f"{available[j]!r} m",
+                             f"runoff {float(observed[j])!r} m is negative or exceeds the {what} "
+                             f"{float(available[j])!r} m",
                              "check the observed runoff, the rain record and their units")
 
 
