@@ -54,13 +54,13 @@ def _check_inputs(project: Any, problems: list[str]) -> None:
     cover = _attempt(problems, pipeline.read_cover, project)
     storms = _attempt(problems, pipeline.read_storms, project)
     overrides = _attempt(problems, pipeline.read_overrides, project)
-    if subs is None or soil is None:
-        return
-    codes_ok = _check_codes(problems, soil, subs, project.soil.codes, project.where("soil"))
+    codes_ok = soil is not None and _check_codes(problems, soil, subs, project.soil.codes,
+                                                 project.where("soil"))
     if project.cover is not None and cover is not None:
         codes_ok &= _check_codes(problems, cover, subs, project.cover.codes,
                                  project.where("cover"))
-    if project.cover is not None and cover is None or storms is None or not codes_ok:
+    missing_cover = project.cover is not None and cover is None
+    if subs is None or missing_cover or storms is None or not codes_ok:
         return
     inputs = pipeline.Inputs(subs, soil, cover, storms, overrides)
     overlaid = _attempt(problems, pipeline.overlay_inputs, project, inputs)

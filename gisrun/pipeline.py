@@ -120,7 +120,8 @@ def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
 def read_soil(project: Project) -> ClassRaster:
     """Open the soil raster and check it against the project's code table."""
     return read_class_raster(project.soil.path, codes=project.soil.codes,
-                             where=project.where("soil", "path"), crs=project.soil.crs)
+                             where=f"{project.soil.path} ({project.where('soil', 'path')})",
+                             crs=project.soil.crs)
 
 
 def read_cover(project: Project) -> ClassRaster | None:
@@ -128,7 +129,8 @@ def read_cover(project: Project) -> ClassRaster | None:
     if project.cover is None:
         return None
     return read_class_raster(project.cover.path, codes=project.cover.codes,
-                             where=project.where("cover", "path"), crs=project.cover.crs)
+                             where=f"{project.cover.path} ({project.where('cover', 'path')})",
+                             crs=project.cover.crs)
 
 
 def read_storms(project: Project) -> list[Hyetograph]:
@@ -159,16 +161,19 @@ def read_inputs(project: Project) -> Inputs:
     )
 
 
-def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame, codes: dict[int, str],
-                       where: str) -> bool:
+def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
+                       codes: dict[int, str], where: str) -> bool:
     """Raise if the raster holds, under the subcatchments, codes missing from ``codes``.
+
+    With ``subs`` None the whole raster is scanned.
 
     Raises
     ------
     RasterError
         Listing the unknown codes and the project file table to add them to.
     """
-    unknown = raster.unknown_codes(tuple(subs.total_bounds), crs=subs.crs)
+    bounds = None if subs is None else _bounds_in(subs, raster.crs)
+    unknown = raster.unknown_codes(codes, bounds)
     if len(unknown):
         listed = ", ".join(str(int(c)) for c in sorted(unknown)[:10])
         raise RasterError(
@@ -176,6 +181,17 @@ def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame, codes: dict[
             "add each code and its class to that table in the project file",
         )
     return True
+
+
+def _bounds_in(subs: gpd.GeoDataFrame, crs: object) -> tuple[float, float, float, float]:
+    """The polygons' bounds in another CRS (densified edges, so the box still covers them)."""
+    from pyproj import CRS, Transformer
+
+    bounds = tuple(float(v) for v in subs.total_bounds)
+    if CRS.from_user_input(subs.crs) == CRS.from_user_input(crs):
+        return bounds
+    transformer = Transformer.from_crs(subs.crs, crs, always_xy=True)
+    return tuple(transformer.transform_bounds(*bounds, densify_pts=21))
 
 
 def overlay_inputs(project: Project, inputs: Inputs) -> tuple[pd.DataFrame, pd.DataFrame, list]:

@@ -58,7 +58,7 @@ def as_dict(result: Any, written: Path) -> dict[str, Any]:
 
 def print_summary(result: Any, written: Path) -> None:
     """Print a table of catchment-wide figures per storm and where the output went."""
-    console = Console()
+    console = Console(width=max(Console().width, 132))
     rows = _storm_rows(result)
     table = Table(title=f"{result.project.name}: {len(result.subcatchments)} subcatchments, "
                         f"{len(result.parameters)} soil x cover units, "
