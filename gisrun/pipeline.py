@@ -49,6 +49,15 @@ __all__ = [
     "run_storm",
     "run",
     "load_project",
+    "read_subcatchment_layer",
+    "read_soil",
+    "read_cover",
+    "read_storms",
+    "read_overrides",
+    "check_raster_codes",
+    "input_checksums",
+    "subcatchment_table",
+    "write_outputs",
 ]
 
 #: Printed by the CLI, written into the run table and the report.
