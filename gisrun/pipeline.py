@@ -87,7 +87,7 @@ class StormResult:
 
     hyetograph: Hyetograph
     rain_per_step_m: np.ndarray
-    loss: LossResult
+    loss: LossResult | None  # None when the run was asked not to keep step arrays
     units: pd.DataFrame
     subcatchments: pd.DataFrame
     series: pd.DataFrame
@@ -203,7 +203,8 @@ def _bounds_in(subs: gpd.GeoDataFrame, crs: object) -> tuple[float, float, float
     return tuple(transformer.transform_bounds(*bounds, densify_pts=21))
 
 
-def overlay_inputs(project: Project, inputs: Inputs) -> tuple[pd.DataFrame, pd.DataFrame, list]:
+def overlay_inputs(project: Project, inputs: Inputs, *, check_codes: bool = True
+                   ) -> tuple[pd.DataFrame, pd.DataFrame, list]:
     """Areas of every (subcatchment, soil class, cover class) unit, and nodata per subcatchment.
 
     Raises
@@ -211,11 +212,8 @@ def overlay_inputs(project: Project, inputs: Inputs) -> tuple[pd.DataFrame, pd.D
     RasterError
         If a raster holds codes its code table does not list, or nodata exceeds the limit.
     """
-    check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
-                       project.where("soil"))
-    if inputs.cover is not None and project.cover is not None:
-        check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
-                           project.where("cover"))
+    if check_codes:
+        check_inputs_codes(project, inputs)
     return compute_unit_areas(
         inputs.subcatchments, inputs.soil, inputs.cover,
         soil_codes=project.soil.codes,
@@ -223,6 +221,15 @@ def overlay_inputs(project: Project, inputs: Inputs) -> tuple[pd.DataFrame, pd.D
         nodata_rule=project.nodata_rule,
         max_nodata_fraction=project.max_nodata_fraction,
     )
+
+
+def check_inputs_codes(project: Project, inputs: Inputs) -> None:
+    """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`)."""
+    check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
+                       project.where("soil"))
+    if inputs.cover is not None and project.cover is not None:
+        check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
+                           project.where("cover"))
 
 
 def prepare_parameters(
@@ -291,7 +298,9 @@ def run_storm(
     return StormResult(hyetograph, rain, loss, units, subs, series)
 
 
-def _rain_scale(project: Project, inputs: Inputs, params: pd.DataFrame) -> np.ndarray | None:
+def rain_scale_for_units(project: Project, inputs: Inputs, params: pd.DataFrame
+                         ) -> np.ndarray | None:
+    """Per-unit factor on storm depth from the subcatchment attribute, if the project names one."""
     field_name = project.rain_scale_field
     if not field_name:
         return None
@@ -307,8 +316,23 @@ def _rain_scale(project: Project, inputs: Inputs, params: pd.DataFrame) -> np.nd
     return by_id.reindex(params["subcatchment_id"]).to_numpy(dtype=np.float64)
 
 
-def run(project: Project | str | Path, *, progress: Progress | None = None) -> RunResult:
+SeriesSink = Callable[[int, str, pd.DataFrame], None]
+
+
+def run(
+    project: Project | str | Path,
+    *,
+    progress: Progress | None = None,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    series_sink: SeriesSink | None = None,
+    keep_loss: bool = True,
+) -> RunResult:
     """Read the inputs, overlay, assign parameters and run every storm; write nothing.
+
+    The subcatchments are processed in spatially compact chunks sized to the
+    project's memory budget (:mod:`gisrun.chunked`); results are in the
+    layer's row order whatever the chunking or the workers.
 
     Parameters
     ----------
@@ -316,6 +340,15 @@ def run(project: Project | str | Path, *, progress: Progress | None = None) -> R
         A loaded project, or a project file / folder to load.
     progress : callable, optional
         Called with a short text as each step starts.
+    workers : int, optional
+        Run chunks on a local dask cluster of this many processes.
+    scheduler : str, optional
+        ``"synchronous"``/``"threads"`` or the address of a running dask scheduler.
+    series_sink : callable, optional
+        Called as ``sink(storm_index, storm_name, series)`` for each chunk's
+        excess-rainfall series instead of keeping them (memory stays flat).
+    keep_loss : bool
+        Keep the per-unit step arrays (:class:`LossResult`) for plots.
 
     Returns
     -------
@@ -326,6 +359,8 @@ def run(project: Project | str | Path, *, progress: Progress | None = None) -> R
     GisrunError
         On any bad input, naming the file, field or value.
     """
+    from .chunked import ChunkTask, chunk_size_for_budget, execute, plan_chunks
+
     say = progress or _quiet
     if not isinstance(project, Project):
         project = load_project(project)
@@ -334,30 +369,76 @@ def run(project: Project | str | Path, *, progress: Progress | None = None) -> R
         warnings.simplefilter("always", GisrunWarning)
         say("reading inputs")
         inputs = read_inputs(project)
-        say("overlaying subcatchments on the rasters")
-        units, coverage, notes_overlay = overlay_inputs(project, inputs)
-        say("assigning parameters")
-        params, sources, notes_params = prepare_parameters(project, inputs, units)
-        sub_ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
-        scale = _rain_scale(project, inputs, params)
-        results = []
-        for hyetograph in inputs.storms:
-            say(f"running storm {hyetograph.name}")
-            results.append(run_storm(params, hyetograph, project.time_step_s, sub_ids=sub_ids,
-                                     rain_scale=scale))
-    notes = [str(n) for n in (*notes_overlay, *notes_params)]
-    notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
+        check_inputs_codes(project, inputs)
+    n_steps = max(len(h.resample(project.time_step_s)) for h in inputs.storms)
+    size = chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms))
+    chunks = plan_chunks(inputs.subcatchments.geometry, size)
+    tasks = [ChunkTask(i, project, inputs.subcatchments.iloc[rows], inputs.soil, inputs.cover,
+                       inputs.storms, inputs.overrides, keep_loss=keep_loss)
+             for i, rows in enumerate(chunks)]
+    say(f"overlay, parameters and {len(inputs.storms)} storm(s) in {len(tasks)} chunk(s)")
+    outputs = []
+    for out in execute(tasks, workers=workers, scheduler=scheduler):
+        if series_sink is not None:
+            for k, h in enumerate(inputs.storms):
+                series_sink(k, h.name, out.storm_series[k])
+            out.storm_series = []
+        outputs.append(out)
+    notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
+    notes += [n for out in outputs for n in out.notes]
+    return _combine(project, inputs, outputs, started, notes, keep_series=series_sink is None)
+
+
+def _combine(project: Project, inputs: Inputs, outputs: list, started: str, notes: list[str],
+             *, keep_series: bool) -> RunResult:
+    """Put chunk outputs together in the subcatchment layer's row order."""
+    sub_ids = inputs.subcatchments["subcatchment_id"]
+    position = pd.Series(np.arange(len(sub_ids)), index=sub_ids.to_numpy(dtype=object))
+
+    def ordered(frames: list[pd.DataFrame]) -> pd.DataFrame:
+        frame = pd.concat(frames, ignore_index=True)
+        key = position.reindex(frame["subcatchment_id"].to_numpy(dtype=object)).to_numpy()
+        return frame.iloc[np.argsort(key, kind="stable")].reset_index(drop=True)
+
+    units = ordered([o.units for o in outputs])
+    params = pd.concat([o.parameters for o in outputs], ignore_index=True)
+    storms = []
+    for k, hyetograph in enumerate(inputs.storms):
+        loss = _concat_losses([o.storm_losses[k] for o in outputs if o.storm_losses])
+        storms.append(StormResult(
+            hyetograph=hyetograph,
+            rain_per_step_m=hyetograph.resample(project.time_step_s),
+            loss=loss,
+            units=pd.concat([o.storm_units[k] for o in outputs], ignore_index=True),
+            subcatchments=ordered([o.storm_subcatchments[k] for o in outputs]),
+            series=(ordered([o.storm_series[k] for o in outputs]) if keep_series
+                    else pd.DataFrame()),
+        ))
     return RunResult(
         project=project,
         subcatchments=inputs.subcatchments,
         units=units,
-        coverage=coverage,
+        coverage=ordered([o.coverage for o in outputs]),
         parameters=params,
-        parameter_sources=sources,
-        storms=results,
+        parameter_sources=pd.concat([o.parameter_sources for o in outputs], ignore_index=True),
+        storms=storms,
         warnings=list(dict.fromkeys(notes)),
         started_utc=started,
         checksums=input_checksums(project),
+    )
+
+
+def _concat_losses(losses: list[LossResult]) -> LossResult | None:
+    if not losses:
+        return None
+    if len(losses) == 1:
+        return losses[0]
+    join = (lambda name: np.concatenate([getattr(x, name) for x in losses], axis=-1))
+    return LossResult(
+        rain_m=join("rain_m"), infil_m=join("infil_m"), excess_m=join("excess_m"),
+        capacity_m_per_s=join("capacity_m_per_s"), storage_m=join("storage_m"),
+        time_to_ponding_s=join("time_to_ponding_s"), dt_s=losses[0].dt_s,
+        methods=tuple(m for x in losses for m in x.methods),
     )
 
 

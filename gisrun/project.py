@@ -66,7 +66,7 @@ COMBINE_RULES = ("units", "composite")
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
          "storms", "rain_scale"),
-    "project": ("name", "units", "output", "time_step_min"),
+    "project": ("name", "units", "output", "time_step_min", "memory_budget_mb"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation", "codes",
              "crs"),
@@ -142,6 +142,7 @@ class Project:
     combine: str = "units"
     overrides: Path | None = None
     rain_scale_field: str | None = None
+    memory_budget_mb: float = 1500.0
     raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     @property
@@ -250,6 +251,8 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         combine=reader.choice(method, "method", "combine", COMBINE_RULES, default="units"),
         overrides=reader.path(overrides) if overrides else None,
         rain_scale_field=reader.string(rain_scale, "rain_scale", "field", required=False),
+        memory_budget_mb=reader.number(top, "project", "memory_budget_mb", default=1500.0,
+                                       low=50.0),
         raw=raw,
     )
 

@@ -1,0 +1,214 @@
+"""Run a project in spatially compact chunks of subcatchments, serially or on dask.
+
+Subcatchments are ordered along a Hilbert curve through their centroids and
+cut into chunks of neighbours, so each chunk reads only a small window of the
+rasters. A chunk is processed end to end (overlay, parameters, every storm,
+aggregation) by :func:`process_chunk`, which takes only picklable inputs: the
+checked project, the chunk's polygons, the rasters as paths (a
+:class:`~gisrun.io.raster.ClassRaster` opens its file itself) and the storms.
+The same chunks run the same way whether one process runs them in turn or
+dask workers run them in parallel, so the results are equal to the last bit
+and are put back in the layer's row order.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+
+__all__ = [
+    "DEFAULT_MEMORY_BUDGET_MB",
+    "ChunkTask",
+    "ChunkOutput",
+    "plan_chunks",
+    "chunk_size_for_budget",
+    "process_chunk",
+    "execute",
+]
+
+#: Default memory budget of a run, MB (``[project] memory_budget_mb``).
+DEFAULT_MEMORY_BUDGET_MB = 1500.0
+
+#: Assumed units (soil x cover x surface parts) per subcatchment when sizing chunks.
+_UNITS_PER_SUBCATCHMENT = 24
+#: Arrays of (steps x units) alive at once per storm in the engine and aggregation.
+_ARRAYS_PER_UNIT_STEP = 10
+
+
+def plan_chunks(geoms: gpd.GeoSeries, max_per_chunk: int) -> list[np.ndarray]:
+    """Split polygons into chunks of neighbours along a Hilbert curve.
+
+    Parameters
+    ----------
+    geoms : GeoSeries
+        The subcatchment polygons.
+    max_per_chunk : int
+        Most polygons in one chunk.
+
+    Returns
+    -------
+    list of ndarray
+        Row positions of each chunk; together they are every row once.
+
+    Examples
+    --------
+    >>> from shapely.geometry import box
+    >>> g = gpd.GeoSeries([box(i, 0, i + 1, 1) for i in range(5)])
+    >>> [c.tolist() for c in plan_chunks(g, 2)]
+    [[0, 1], [2, 3], [4]]
+    """
+    n = len(geoms)
+    if n == 0:
+        return []
+    if n <= max_per_chunk:
+        return [np.arange(n)]
+    centroids = gpd.GeoSeries(geoms.centroid.values, crs=None)
+    order = np.argsort(np.asarray(centroids.hilbert_distance(total_bounds=geoms.total_bounds)),
+                       kind="stable")
+    return [np.sort(order[i:i + max_per_chunk]) for i in range(0, n, max_per_chunk)]
+
+
+def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int) -> int:
+    """Subcatchments per chunk that keep one chunk's arrays within half the budget.
+
+    Examples
+    --------
+    >>> chunk_size_for_budget(1500, 288, 3)
+    1412
+    """
+    per_sub = _UNITS_PER_SUBCATCHMENT * max(n_steps, 1) * 8 * _ARRAYS_PER_UNIT_STEP
+    per_sub *= 1 + 0.1 * max(n_storms - 1, 0)  # storm results kept until the chunk is written
+    return int(np.clip(budget_mb * 1e6 * 0.5 // per_sub, 16, 50_000))
+
+
+@dataclass
+class ChunkTask:
+    """Everything one chunk needs; picklable so a dask worker can run it."""
+
+    index: int
+    project: Any
+    subcatchments: gpd.GeoDataFrame
+    soil: Any
+    cover: Any
+    storms: list[Any]
+    overrides: pd.DataFrame | None = None
+    keep_loss: bool = True
+
+
+@dataclass
+class ChunkOutput:
+    """The results of one chunk, all SI."""
+
+    index: int
+    units: pd.DataFrame
+    coverage: pd.DataFrame
+    parameters: pd.DataFrame
+    parameter_sources: pd.DataFrame
+    notes: list[str]
+    storm_subcatchments: list[pd.DataFrame]
+    storm_units: list[pd.DataFrame]
+    storm_series: list[pd.DataFrame]
+    storm_losses: list[Any] = field(default_factory=list)
+
+
+def process_chunk(task: ChunkTask) -> ChunkOutput:
+    """Overlay, parameters and every storm for one chunk of subcatchments."""
+    import warnings
+
+    from . import pipeline
+    from .errors import GisrunWarning
+
+    project = task.project
+    inputs = pipeline.Inputs(task.subcatchments, task.soil, task.cover, task.storms,
+                             task.overrides)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", GisrunWarning)
+        units, coverage, notes_overlay = pipeline.overlay_inputs(project, inputs,
+                                                                 check_codes=False)
+        params, sources, notes_params = pipeline.prepare_parameters(project, inputs, units)
+        sub_ids = task.subcatchments["subcatchment_id"].to_numpy(dtype=object)
+        scale = pipeline.rain_scale_for_units(project, inputs, params)
+        results = [pipeline.run_storm(params, h, project.time_step_s, sub_ids=sub_ids,
+                                      rain_scale=scale) for h in task.storms]
+    notes = [str(n) for n in (*notes_overlay, *notes_params)]
+    notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
+    return ChunkOutput(
+        index=task.index, units=units, coverage=coverage, parameters=params,
+        parameter_sources=sources, notes=notes,
+        storm_subcatchments=[r.subcatchments for r in results],
+        storm_units=[r.units for r in results],
+        storm_series=[r.series for r in results],
+        storm_losses=[r.loss for r in results] if task.keep_loss else [],
+    )
+
+
+def execute(
+    tasks: Sequence[ChunkTask],
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    on_done: Callable[[int], None] | None = None,
+) -> Iterator[ChunkOutput]:
+    """Run chunk tasks and yield their outputs in task order.
+
+    Parameters
+    ----------
+    tasks : sequence of ChunkTask
+    workers : int, optional
+        Run on a local dask cluster of this many worker processes.
+    scheduler : str, optional
+        ``"synchronous"`` or ``"threads"`` (dask's local schedulers), or the
+        address of an existing dask scheduler (``tcp://host:8786``).
+    on_done : callable, optional
+        Called with the number of chunks finished so far.
+    """
+    done = 0
+    if not workers and not scheduler:
+        for task in tasks:
+            out = process_chunk(task)
+            done += 1
+            if on_done:
+                on_done(done)
+            yield out
+        return
+    if scheduler in ("synchronous", "threads", "sync", "processes") and not workers:
+        import dask
+
+        for task in tasks:  # one at a time keeps memory flat and the order fixed
+            (out,) = dask.compute(dask.delayed(process_chunk)(task), scheduler=scheduler)
+            done += 1
+            if on_done:
+                on_done(done)
+            yield out
+        return
+    yield from _distributed(tasks, workers=workers, address=scheduler, on_done=on_done)
+
+
+def _distributed(tasks: Sequence[ChunkTask], *, workers: int | None, address: str | None,
+                 on_done: Callable[[int], None] | None) -> Iterator[ChunkOutput]:
+    from dask.distributed import Client, LocalCluster
+
+    cluster = None
+    if address:
+        client = Client(address)
+    else:
+        cluster = LocalCluster(n_workers=int(workers or 1), threads_per_worker=1,
+                               processes=True, dashboard_address=None)
+        client = Client(cluster)
+    try:
+        futures = client.map(process_chunk, list(tasks), pure=False)
+        for done, future in enumerate(futures, start=1):
+            out = future.result()
+            future.release()
+            if on_done:
+                on_done(done)
+            yield out
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
