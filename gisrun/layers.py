@@ -28,7 +28,7 @@ import pandas as pd
 from . import __version__
 from .units import present_frame
 
-__all__ = ["build_layers", "run_info", "storm_layer_name", "layer_name"]
+__all__ = ["build_layers", "run_info", "storm_layer_name", "layer_name", "series_layer"]
 
 
 def layer_name(text: str) -> str:
@@ -63,7 +63,7 @@ def build_layers(result: object) -> dict[str, pd.DataFrame]:
         layers[storm_layer_name(storm.name)] = gpd.GeoDataFrame(layer, geometry="geometry",
                                                                 crs=result.subcatchments.crs)
         per_storm.append(table.assign(storm=storm.name))
-        series.append(present_frame(storm.series, system).assign(storm=storm.name))
+        series.append(series_layer(storm.series, storm.name, system))
         units.append(present_frame(storm.units, system).assign(storm=storm.name))
     layers["subcatchment_results"] = _storm_first(pd.concat(per_storm, ignore_index=True))
     layers["excess_series"] = _storm_first(pd.concat(series, ignore_index=True))
@@ -73,6 +73,11 @@ def build_layers(result: object) -> dict[str, pd.DataFrame]:
     layers["coverage"] = present_frame(result.coverage, system)
     layers["run_info"] = run_info(result)
     return layers
+
+
+def series_layer(series: pd.DataFrame, storm_name: str, system: object) -> pd.DataFrame:
+    """One storm's excess-rainfall series as written: storm first, output units."""
+    return _storm_first(present_frame(series, system).assign(storm=storm_name))
 
 
 def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:

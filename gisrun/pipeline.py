@@ -503,3 +503,48 @@ def write_outputs(
 
     target = Path(output) if output else result.project.output
     return write_geopackage(target, build_layers(result), overwrite=overwrite)
+
+
+#: Below this many subcatchments a CLI run keeps per-unit step arrays for plots.
+KEEP_STEP_ARRAYS_BELOW = 5000
+
+
+def run_and_write(
+    project: Project | str | Path,
+    *,
+    output: str | Path | None = None,
+    overwrite: bool = False,
+    progress: Progress | None = None,
+    workers: int | None = None,
+    scheduler: str | None = None,
+) -> tuple[RunResult, Path]:
+    """Run a project and write its GeoPackage, streaming the series chunk by chunk.
+
+    Memory stays within the project's budget however many subcatchments there
+    are: each chunk's excess-rainfall series is appended to the output as it
+    is computed. The GeoPackage is built in a temporary file beside the target
+    and moved into place only when complete.
+
+    Raises
+    ------
+    OutputExistsError
+        If the output exists and ``overwrite`` is false (checked before any work).
+    """
+    from .io.output import append_table, atomic_target, write_layers_into
+    from .layers import build_layers, series_layer
+
+    if not isinstance(project, Project):
+        project = load_project(project)
+    target = Path(output) if output else project.output
+    with atomic_target(target, overwrite=overwrite) as tmp:
+        def sink(_: int, name: str, series: pd.DataFrame) -> None:
+            append_table(tmp, "excess_series", series_layer(series, name, project.units))
+
+        count = len(read_subcatchment_layer(project)) if workers or scheduler else 0
+        result = run(project, progress=progress, workers=workers, scheduler=scheduler,
+                     series_sink=sink, keep_loss=count < KEEP_STEP_ARRAYS_BELOW)
+        (progress or _quiet)("writing outputs")
+        layers = build_layers(result)
+        layers.pop("excess_series", None)
+        write_layers_into(tmp, layers)
+    return result, target

@@ -36,22 +36,20 @@ def cli(debug: bool) -> None:
 @click.option("--overwrite", is_flag=True, help="Replace an existing output.")
 @click.option("--quiet", "-q", is_flag=True, help="Print only errors.")
 @click.option("--json", "as_json", is_flag=True, help="Print a machine-readable summary.")
-def run(project: Path, output: Path | None, overwrite: bool, quiet: bool, as_json: bool) -> None:
+@click.option("--workers", type=click.IntRange(1, 512),
+              help="Run chunks of subcatchments on a local dask cluster of N processes.")
+@click.option("--scheduler", metavar="ADDRESS",
+              help="Run on an existing dask scheduler (tcp://host:8786), or 'synchronous'.")
+def run(project: Path, output: Path | None, overwrite: bool, quiet: bool, as_json: bool,
+        workers: int | None, scheduler: str | None) -> None:
     """Run PROJECT (a project file, or a folder holding gisrun.toml) and write its results."""
-    from ..pipeline import CAUTION, load_project, run as run_project, write_outputs
+    from ..pipeline import CAUTION, load_project, run_and_write
 
     loaded = load_project(project)
-    target = Path(output) if output else loaded.output
-    if target.exists() and not overwrite:  # fail before the work, not after it
-        from ..errors import OutputExistsError
-
-        raise OutputExistsError(str(target), "already exists",
-                                "pass --overwrite or choose another output path")
     say = (lambda text: None) if (quiet or as_json) else (
         lambda text: click.echo(f"  {text} ...", err=True))
-    result = run_project(loaded, progress=say)
-    say("writing outputs")
-    written = write_outputs(result, output=target, overwrite=overwrite)
+    result, written = run_and_write(loaded, output=output, overwrite=overwrite, progress=say,
+                                    workers=workers, scheduler=scheduler)
     if as_json:
         click.echo(json.dumps(summary.as_dict(result, written), indent=2))
     elif not quiet:

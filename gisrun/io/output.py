@@ -22,7 +22,7 @@ import pyogrio
 
 from ..errors import OutputError, OutputExistsError
 
-__all__ = ["atomic_target", "write_geopackage", "write_csv"]
+__all__ = ["atomic_target", "write_geopackage", "write_csv", "write_layers_into", "append_table"]
 
 
 @contextmanager
@@ -141,3 +141,17 @@ def write_csv(target: str | Path, frame: pd.DataFrame, *, overwrite: bool = Fals
     with atomic_target(target, overwrite=overwrite) as tmp:
         frame.to_csv(tmp, index=False)
     return target
+
+
+def write_layers_into(path: str | Path, layers: Mapping[str, pd.DataFrame]) -> None:
+    """Add layers to a GeoPackage being built (e.g. the temporary file of :func:`atomic_target`)."""
+    for name, frame in layers.items():
+        _write_layer(Path(path), name, frame)
+
+
+def append_table(path: str | Path, name: str, frame: pd.DataFrame) -> None:
+    """Append rows to a table of a GeoPackage being built, creating it on first use."""
+    path = Path(path)
+    exists = path.exists() and name in {row[0] for row in pyogrio.list_layers(path)}
+    frame = _plain_columns(frame)
+    pyogrio.write_dataframe(frame, path, driver="GPKG", layer=name, append=exists)
