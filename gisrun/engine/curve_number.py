@@ -101,7 +101,8 @@ def retention_m(cn: FloatArray, ratio: FloatArray) -> FloatArray:
     ``S = 25.4 (1000/CN - 10)`` mm (TR-55 eq. 2-4); for a ratio of 0.05,
     ``S0.05 = 1.33 S0.20^1.15`` with S in inches (Woodward et al. 2003).
     """
-    s20 = INCH_M * (1000.0 / np.asarray(cn, dtype=np.float64) - 10.0)
+    # clip: AMC conversions of CN 100 may round a hair above 100
+    s20 = INCH_M * np.maximum(1000.0 / np.asarray(cn, dtype=np.float64) - 10.0, 0.0)
     s05 = INCH_M * 1.33 * (s20 / INCH_M) ** 1.15
     return np.where(np.isclose(ratio, 0.05), s05, s20)
 

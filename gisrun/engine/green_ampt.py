@@ -82,6 +82,8 @@ NEWTON_RTOL = 1e-9
 _MAX_NEWTON = 60
 #: Below this ``y`` the function ``y - log1p(y)`` is evaluated by its series.
 _SERIES_BELOW = 1e-3
+_NEGLIGIBLE_M = 1e-200
+_FLOOR = 1e-300
 
 
 @dataclass(frozen=True)
@@ -203,7 +205,8 @@ def capacity_m_per_s(params: Params, infil_m: FloatArray) -> FloatArray:
     """
     ks, pd_m = params.ks_m_per_s, params.suction_deficit_m
     wet = infil_m > 0
-    cap = ks * (1.0 + pd_m / np.where(wet, infil_m, 1.0))
+    with np.errstate(over="ignore"):  # F of a few 1e-308 m: capacity beyond float range
+        cap = ks * (1.0 + pd_m / np.where(wet, infil_m, 1.0))
     return np.where(wet, cap, np.where(ks * pd_m > 0, np.inf, ks))
 
 
@@ -237,22 +240,28 @@ def ponded_increment_m(start_m: FloatArray, suction_deficit_m: FloatArray,
     fs, p, k = np.broadcast_arrays(*(np.asarray(a, dtype=np.float64)
                                      for a in (start_m, suction_deficit_m, ks_time_m)))
     scale = fs + p
-    has_scale = scale > 0
+    # P + Fs below 1e-200 m: the suction term P ln(1 + G/(P+Fs)) is below 1e-197 m, so the
+    # capacity is the constant Ks and G = Ks tau (this also covers P = Fs = 0).
+    has_scale = scale > _NEGLIGIBLE_M
     q = np.where(has_scale, scale, 1.0)
     b = np.where(has_scale, fs / q, 1.0)
     t = np.where(has_scale, k / q, k)
     c1 = 2.0 * b - t
-    root = np.sqrt(c1 * c1 + 8.0 * t)
-    y = np.where(c1 >= 0, 4.0 * t / np.maximum(c1 + root, 1e-300), 0.5 * (root - c1))
-    y = np.where(has_scale, y, t)  # P = Fs = 0: constant capacity Ks, G = Ks tau
-    active = np.flatnonzero(np.abs(_residual(y, b, t)) > NEWTON_RTOL * t)
+    root = np.hypot(c1, np.sqrt(8.0 * t))
+    pos = c1 >= 0  # pick the form of the quadratic root that does not cancel
+    y = np.where(pos, 4.0 * t / np.where(pos, np.maximum(c1 + root, 1e-300), 1.0),
+                 0.5 * (root - c1))
+    # the absolute floor only matters for subnormal K tau, where relative precision is lost
+    active = np.flatnonzero(np.abs(_residual(y, b, t)) > NEWTON_RTOL * t + _FLOOR)
     for _ in range(_MAX_NEWTON):
         if active.size == 0:
             break
         ya, ba, ta = y[active], b[active], t[active]
-        ya = ya - _residual(ya, ba, ta) * (1.0 + ya) / (ba + ya)
+        move = _residual(ya, ba, ta) * (1.0 + ya) / (ba + ya)
+        ya = ya - move
         y[active] = ya
-        keep = np.abs(_residual(ya, ba, ta)) > NEWTON_RTOL * ta
+        keep = ((np.abs(_residual(ya, ba, ta)) > NEWTON_RTOL * ta + _FLOOR)
+                & (np.abs(move) > 4e-16 * ya))  # stop where float precision is exhausted
         active = active[keep]
     else:  # pragma: no cover - convex equation from a lower bound always converges
         raise RuntimeError("Green-Ampt Newton iteration did not converge")
@@ -266,7 +275,7 @@ def _residual(y: FloatArray, b: FloatArray, t: FloatArray) -> FloatArray:
 
 def _y_minus_log1p(y: FloatArray) -> FloatArray:
     small = y < _SERIES_BELOW
-    series = y * y * (0.5 - y * (1.0 / 3.0 - y * (0.25 - y * 0.2)))
-    with np.errstate(invalid="ignore"):
-        direct = y - np.log1p(np.where(small, 0.0, y))
+    ys = np.minimum(y, _SERIES_BELOW)
+    series = ys * ys * (0.5 - ys * (1.0 / 3.0 - ys * (0.25 - ys * 0.2)))
+    direct = y - np.log1p(np.where(small, 0.0, y))
     return np.where(small, series, direct)

@@ -201,8 +201,10 @@ def _ponding_point(p: Params, te: FloatArray, rate: FloatArray,
     span = p.f0_m_per_s - p.fc_m_per_s
     can = ~ponded_start & (rate > p.fc_m_per_s) & (p.decay_per_s > 0) & (span > 0)
     ratio = np.where(can, (rate - p.fc_m_per_s) / np.where(can, span, 1.0), 1.0)
-    t_p = np.where(can, -np.log(ratio) / np.where(can, p.decay_per_s, 1.0), te)
-    t_p = np.maximum(t_p, te)
+    with np.errstate(over="ignore"):  # a decay constant near 0 puts t_p beyond float range
+        t_p = -np.log(ratio) / np.where(can, p.decay_per_s, 1.0)
+    can &= np.isfinite(t_p)
+    t_p = np.where(can, np.maximum(t_p, te), te)
     tau = curve_increment_m(p, te, t_p - te) / np.where(can, rate, 1.0)
     return t_p, np.where(can, tau, np.inf)
 
