@@ -15,6 +15,9 @@ Layers of the output GeoPackage:
 ``unit_results``, ``unit_parameters``, ``parameter_sources``, ``coverage``
     Per soil x cover unit results and parameters, where each parameter came
     from, and nodata / outside-raster area per subcatchment.
+``ponding_rank_subcatchments``, ``ponding_rank_units``
+    Subcatchments and units ordered by time to ponding under each storm
+    (earliest first; those that never pond last, rank empty).
 ``run_info``
     What was run: version, time, method, storms, units, input checksums,
     warnings and the caution.
@@ -71,6 +74,9 @@ def build_layers(result: object) -> dict[str, pd.DataFrame]:
     layers["unit_parameters"] = present_frame(result.parameters, system)
     layers["parameter_sources"] = result.parameter_sources
     layers["coverage"] = present_frame(result.coverage, system)
+    subs_rank, units_rank = ponding_ranking(result)
+    layers["ponding_rank_subcatchments"] = present_frame(subs_rank, system)
+    layers["ponding_rank_units"] = present_frame(units_rank, system)
     layers["run_info"] = run_info(result)
     return layers
 
@@ -78,6 +84,38 @@ def build_layers(result: object) -> dict[str, pd.DataFrame]:
 def series_layer(series: pd.DataFrame, storm_name: str, system: object) -> pd.DataFrame:
     """One storm's excess-rainfall series as written: storm first, output units."""
     return _storm_first(present_frame(series, system).assign(storm=storm_name))
+
+
+def ponding_ranking(result: object) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Subcatchments and units ordered by time to ponding under each storm (SI columns).
+
+    Returns
+    -------
+    subcatchments, units : DataFrame
+        ``storm``, ``ponding_rank`` (1 = earliest, ties share a rank;
+        empty where it never ponds),
+        ids (``subcatchment_id``; units also ``soil_class``, ``cover_class``),
+        ``time_to_ponding_s``, ``runoff_depth_m``, ``runoff_coefficient`` and
+        ``area_m2`` / ``modelled_area_m2``. Impervious unit parts are left out
+        of the unit ranking (they have no infiltration capacity to exceed).
+    """
+    subs, units = [], []
+    for storm in result.storms:
+        s = storm.subcatchments[["subcatchment_id", "time_to_ponding_s", "runoff_depth_m",
+                                 "runoff_coefficient", "modelled_area_m2"]]
+        subs.append(_ranked(s, storm.name, ["subcatchment_id"]))
+        u = storm.units[storm.units["surface"] != "impervious"]
+        keys = ["subcatchment_id", "soil_class", "cover_class"]
+        u = u[[*keys, "time_to_ponding_s", "runoff_depth_m", "runoff_coefficient", "area_m2"]]
+        units.append(_ranked(u, storm.name, keys))
+    return pd.concat(subs, ignore_index=True), pd.concat(units, ignore_index=True)
+
+
+def _ranked(frame: pd.DataFrame, storm: str, keys: list[str]) -> pd.DataFrame:
+    out = frame.sort_values(["time_to_ponding_s", *keys], na_position="last", kind="stable")
+    rank = out["time_to_ponding_s"].rank(method="min").astype("Int64")  # ties share a rank
+    out = out.assign(storm=storm, ponding_rank=rank)
+    return out[["storm", "ponding_rank", *[c for c in frame.columns]]].reset_index(drop=True)
 
 
 def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:

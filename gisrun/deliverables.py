@@ -1,0 +1,439 @@
+"""Write what the engineer looks at and hands on, beside the GeoPackage.
+
+``<output stem>_files/`` holds:
+
+``rasters/``
+    Per storm, cell-level ``runoff_depth_<unit>_<storm>.tif`` and
+    ``time_to_ponding_min_<storm>.tif`` on the soil raster's grid.
+``maps/``
+    PNG maps and per-subcatchment infiltration plots.
+``report.html``
+    One self-contained HTML report (images embedded; opens offline).
+``model_inputs.csv``, ``excess_series.csv``
+    Per-subcatchment loss parameters and the excess-rainfall series.
+
+Everything is built in a temporary folder beside the target and moved into
+place at the end, so a failed run leaves either the old folder or none, never
+half a folder. This is the only module of these outputs that opens files;
+:mod:`gisrun.cellgrid`, :mod:`gisrun.maps`, :mod:`gisrun.report` and
+:mod:`gisrun.export` compute.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import shutil
+import tempfile
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import shapely
+from pyproj import CRS
+
+from . import cellgrid
+from .errors import OutputError, OutputExistsError
+from .io.geotiff import grid_of, read_padded, write_float_rasters
+from .layers import layer_name
+from .units import from_si
+
+__all__ = ["Deliverables", "extras_folder", "staged_folder", "cell_unit_results",
+           "write_cell_rasters", "write_deliverables", "write_all"]
+
+Progress = Callable[[str, int, int], None]
+
+
+@dataclass
+class Deliverables:
+    """Paths of everything written beside the GeoPackage (relative parts inside ``folder``)."""
+
+    folder: Path
+    rasters: dict[str, dict[str, Path]] = field(default_factory=dict)
+    maps: dict[str, Path] = field(default_factory=dict)
+    report: Path | None = None
+    model_inputs: Path | None = None
+    excess_series: Path | None = None
+    notes: list[str] = field(default_factory=list)
+
+    def as_dict(self) -> dict[str, Any]:
+        """JSON-ready paths."""
+        return {
+            "folder": str(self.folder),
+            "rasters": {s: {k: str(p) for k, p in d.items()} for s, d in self.rasters.items()},
+            "maps": {k: str(p) for k, p in self.maps.items()},
+            "report": str(self.report) if self.report else None,
+            "model_inputs": str(self.model_inputs) if self.model_inputs else None,
+            "excess_series": str(self.excess_series) if self.excess_series else None,
+        }
+
+    def moved_to(self, folder: Path) -> Deliverables:
+        """The same set with every path rebased from this folder to ``folder``."""
+        def rebase(p: Path | None) -> Path | None:
+            return None if p is None else folder / Path(p).relative_to(self.folder)
+        return Deliverables(
+            folder=folder,
+            rasters={s: {k: rebase(p) for k, p in d.items()} for s, d in self.rasters.items()},
+            maps={k: rebase(p) for k, p in self.maps.items()},
+            report=rebase(self.report), model_inputs=rebase(self.model_inputs),
+            excess_series=rebase(self.excess_series), notes=list(self.notes))
+
+
+def extras_folder(gpkg: str | Path) -> Path:
+    """``<output stem>_files`` beside the GeoPackage."""
+    gpkg = Path(gpkg)
+    return gpkg.with_name(f"{gpkg.stem}_files")
+
+
+@contextmanager
+def staged_folder(target: Path, *, overwrite: bool) -> Iterator[Path]:
+    """Yield an empty temporary folder beside ``target``; move it onto ``target`` on success.
+
+    Raises
+    ------
+    OutputExistsError
+        If ``target`` exists and ``overwrite`` is false.
+    OutputError
+        If the folder cannot be created or moved.
+    """
+    if target.exists() and not overwrite:
+        raise OutputExistsError(str(target), "already exists",
+                                "pass --overwrite or choose another output path")
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".partial",
+                                    dir=target.parent))
+    except OSError as err:
+        raise OutputError(str(target.parent), f"cannot be written ({err.strerror or err})",
+                          "choose a folder you can write to") from None
+    try:
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o777 & ~umask)  # mkdtemp makes it private; give it a normal folder's mode
+        yield tmp
+        _swap_in(tmp, target)
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+def _swap_in(tmp: Path, target: Path) -> None:
+    old = None
+    try:
+        if target.exists():
+            old = target.with_name(f".{target.name}.{os.getpid()}.old")
+            os.replace(target, old)
+        os.replace(tmp, target)
+    except OSError as err:
+        if old is not None and not target.exists():
+            os.replace(old, target)
+        raise OutputError(str(target), f"could not be moved into place ({err.strerror or err})",
+                          "check permissions of the output folder, then run again") from None
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)
+
+
+def cell_unit_results(result: Any) -> list[pd.DataFrame]:
+    """Per-unit results of every storm for the cell rasters (soil x cover x surface units).
+
+    With ``combine = "units"`` these are the run's own unit results. With
+    ``"composite"`` the units are assigned and run here (per-subcatchment
+    parameters would hide the hot spots the rasters are for).
+    """
+    project = result.project
+    if project.combine == "units":
+        return [storm.units for storm in result.storms]
+    from .aggregate import summarize_units
+    from .engine import run_losses
+    from .pipeline import Inputs, prepare_parameters, read_overrides
+
+    units_project = dataclasses.replace(project, combine="units")
+    inputs = Inputs(subcatchments=result.subcatchments, soil=None, cover=None, storms=[],
+                    overrides=read_overrides(project))
+    params, _, _ = prepare_parameters(units_project, inputs, result.units)
+    scale = _rain_scale(result, params)
+    out = []
+    for storm in result.storms:
+        rain = storm.rain_per_step_m
+        rain_units = rain if scale is None else rain[:, None] * scale[None, :]
+        loss = run_losses(params, rain_units, project.time_step_s)
+        out.append(summarize_units(loss, params, project.time_step_s))
+    return out
+
+
+def _rain_scale(result: Any, params: pd.DataFrame) -> np.ndarray | None:
+    name = result.project.rain_scale_field
+    if not name:
+        return None
+    subs = result.subcatchments
+    by_id = pd.Series(pd.to_numeric(subs[name], errors="coerce").to_numpy(),
+                      index=subs["subcatchment_id"])
+    return by_id.reindex(params["subcatchment_id"]).to_numpy(dtype=np.float64)
+
+
+def write_cell_rasters(result: Any, folder: Path, *, overwrite: bool = False,
+                       progress: Progress | None = None) -> tuple[dict[str, dict[str, Path]],
+                                                                   list[str]]:
+    """Cell-level runoff and time-to-ponding GeoTIFFs of every storm, on the soil grid.
+
+    Returns
+    -------
+    paths : dict
+        storm name -> {"runoff": path, "time_to_ponding": path}.
+    notes : list of str
+        What a user should know (cover sampled at nearest cell).
+    """
+    from .pipeline import read_cover, read_soil
+
+    project = result.project
+    soil, cover = read_soil(project), read_cover(project)
+    soil_labels = sorted(set(project.soil.codes.values()))
+    cover_labels = (sorted(set(project.cover.codes.values())) if project.cover
+                    else ["unspecified"])
+    sub_ids = result.subcatchments["subcatchment_id"].astype(str).tolist()
+    lookup = cellgrid.unit_lookup(cell_unit_results(result), sub_ids, soil_labels=soil_labels,
+                                  cover_labels=cover_labels,
+                                  fill_dominant=project.nodata_rule == "dominant")
+    plan = cellgrid.plan_cells(
+        _grid_coordinates(result.subcatchments, soil), soil_grid=soil, cover_grid=cover,
+        soil_codes=project.soil.codes, cover_codes=project.cover.codes if project.cover else None,
+        soil_labels=soil_labels, cover_labels=cover_labels)
+    depth_unit = project.units.depth
+    targets, paths = {}, {}
+    for k, storm in enumerate(result.storms):
+        stem = layer_name(storm.name)
+        runoff = folder / f"runoff_depth_{depth_unit}_{stem}.tif"
+        ponding = folder / f"time_to_ponding_min_{stem}.tif"
+        targets[(k, "runoff")], targets[(k, "ponding")] = runoff, ponding
+        paths[storm.name] = {"runoff": runoff, "time_to_ponding": ponding}
+    folder.mkdir(parents=True, exist_ok=True)
+    bands = _bands(plan, lookup, soil, cover, depth_unit, progress)
+    write_float_rasters(targets, grid_of(soil), bands, overwrite=overwrite)
+    return paths, [plan.note] if plan.note else []
+
+
+def _bands(plan: cellgrid.CellPlan, lookup: cellgrid.UnitLookup, soil: Any, cover: Any,
+           depth_unit: str, progress: Progress | None) -> Iterator[tuple[int, dict]]:
+    step = cellgrid.rows_per_band(plan)
+    for r0 in range(0, plan.height, step):
+        r1 = min(r0 + step, plan.height)
+        soil_block = read_padded(soil, (r0, r1), (0, plan.width))
+        cover_block = None
+        if cover is not None:
+            rows, cols = plan.cover_window(r0, r1)
+            cover_block = read_padded(cover, rows, cols)
+        runoff, ponding = cellgrid.band_values(plan, lookup, r0, soil_block, cover_block)
+        arrays = {}
+        for k in range(runoff.shape[0]):
+            arrays[(k, "runoff")] = from_si(runoff[k], depth_unit)
+            arrays[(k, "ponding")] = ponding[k] / 60.0
+        if progress:
+            progress("cell rasters", r1, plan.height)
+        yield r0, arrays
+
+
+def _grid_coordinates(subs: gpd.GeoDataFrame, soil: Any) -> np.ndarray:
+    """Polygons in the soil grid's (column, row) coordinates."""
+    geoms = subs.geometry
+    if not CRS.from_user_input(geoms.crs).equals(CRS.from_user_input(soil.crs)):
+        geoms = geoms.to_crs(soil.crs)
+    t = soil.transform
+    return shapely.transform(geoms.to_numpy(), lambda xy: np.column_stack(
+        ((xy[:, 0] - t.c) / t.a, (xy[:, 1] - t.f) / t.e)))
+
+
+@dataclass(frozen=True)
+class ExtrasOptions:
+    """Which extras to make."""
+
+    rasters: bool = True
+    maps: bool = True
+    report: bool = True
+    model_inputs: bool = True
+    plot_subcatchments: tuple[str, ...] = ()
+
+
+def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = ExtrasOptions(),
+                       progress: Progress | None = None) -> Deliverables:
+    """Write the extras into an existing, empty ``folder`` (no atomic move; see :func:`write_all`).
+
+    Raises
+    ------
+    VectorError
+        A subcatchment named for plotting does not exist.
+    """
+    from .io.output import write_csv
+
+    say = progress or (lambda *_: None)
+    out = Deliverables(folder=folder)
+    plots = _plot_ids(result, options.plot_subcatchments)
+    if options.rasters:
+        out.rasters, notes = write_cell_rasters(result, folder / "rasters", progress=say)
+        out.notes += notes
+    if options.model_inputs:
+        say("model inputs", 0, 1)
+        inputs, series = _model_tables(result)
+        out.model_inputs = write_csv(folder / "model_inputs.csv", inputs)
+        out.excess_series = write_csv(folder / "excess_series.csv", series)
+        say("model inputs", 1, 1)
+    figures = _write_maps(result, out, plots, say) if (options.maps or options.report) else None
+    if not options.maps:
+        shutil.rmtree(folder / "maps", ignore_errors=True)
+        out.maps = {}
+    if options.report and figures is not None:
+        out.report = _write_report(result, out, figures)
+    return out
+
+
+def _model_tables(result: Any) -> tuple[pd.DataFrame, pd.DataFrame]:
+    from .export import excess_series_table, model_inputs
+
+    sub_ids = result.subcatchments["subcatchment_id"].astype(str).tolist()
+    system = result.project.units
+    return (model_inputs(result.parameters, sub_ids, system, default_method=result.project.method),
+            excess_series_table(result.storms, system))
+
+
+def _plot_ids(result: Any, named: Sequence[str]) -> list[str]:
+    from .errors import VectorError
+
+    known = set(result.subcatchments["subcatchment_id"].astype(str))
+    for sid in named:
+        if str(sid) not in known:
+            near = sorted(known)[:3]
+            raise VectorError(f"subcatchment {sid!r}", "is not in the subcatchment layer",
+                              f"name an existing id (e.g. {', '.join(near)})")
+    return [str(s) for s in named]
+
+
+def _write_maps(result: Any, out: Deliverables, named: list[str], say: Progress) -> Any:
+    from . import maps
+    from .io.geotiff import read_preview
+    from .report import ReportFigures
+
+    project = result.project
+    system = project.units
+    folder = out.folder / "maps"
+    folder.mkdir(parents=True, exist_ok=True)
+    rate = system.rate.replace("_per_", "/")
+    hyeto = maps.hyetograph_plot(
+        [(s.name, s.hyetograph.time_s / 60.0, from_si(s.hyetograph.intensity_m_per_s,
+                                                      system.rate)) for s in result.storms],
+        rate_unit=rate)
+    figures = ReportFigures(hyetograph=_save(maps.figure_png(hyeto), folder / "hyetographs.png",
+                                             out, "hyetographs"))
+    crs = result.subcatchments.crs
+    total = len(result.storms)
+    for k, storm in enumerate(result.storms):
+        say("maps and plots", k, total)
+        stem = layer_name(storm.name)
+        gdf = result.subcatchments[["subcatchment_id", "geometry"]].merge(
+            storm.subcatchments, on="subcatchment_id", how="left")
+        gdf["runoff"] = from_si(gdf["runoff_depth_m"].to_numpy(float), system.depth)
+        gdf["ponding"] = gdf["time_to_ponding_s"] / 60.0
+        images = []
+        fig = maps.subcatchment_map(gdf, "runoff", title=f"Runoff depth per subcatchment, "
+                                    f"{storm.name}", label=f"runoff depth ({system.depth})",
+                                    crs=crs)
+        images.append((f"Runoff depth per subcatchment ({system.depth}), {storm.name}",
+                       _save(maps.figure_png(fig), folder / f"runoff_depth_{stem}.png", out,
+                             f"runoff_depth_{stem}")))
+        fig = maps.subcatchment_map(gdf, "ponding", title=f"Time to ponding, {storm.name}",
+                                    label="time to ponding (min)", crs=crs, cmap="viridis",
+                                    missing_label="does not pond")
+        images.append((f"Time to ponding (min, earliest pervious part), {storm.name}",
+                       _save(maps.figure_png(fig), folder / f"time_to_ponding_{stem}.png", out,
+                             f"time_to_ponding_{stem}")))
+        if storm.name in out.rasters:
+            values, extent = read_preview(out.rasters[storm.name]["runoff"])
+            outlines = result.subcatchments.to_crs(_raster_crs(project))
+            fig = maps.raster_map(values, extent, title=f"Cell-level runoff depth, {storm.name}",
+                                  label=f"runoff depth ({system.depth})",
+                                  crs=_raster_crs(project), outlines=outlines)
+            images.append((f"Cell-level runoff depth ({system.depth}) on the soil grid, "
+                           f"{storm.name}", _save(maps.figure_png(fig), folder /
+                                                  f"cell_runoff_depth_{stem}.png", out,
+                                                  f"cell_runoff_depth_{stem}")))
+        for sid in _earliest(storm, 1) + [s for s in named if s not in _earliest(storm, 1)]:
+            series = maps.pervious_series(storm.loss, result.parameters, sid, project.time_step_s)
+            fig = maps.infiltration_plot(
+                series, title=f"{sid}, {storm.name}: pervious area", rate_unit=rate,
+                to_rate=lambda v: from_si(np.asarray(v, float), system.rate))
+            key = f"infiltration_{stem}_{layer_name(sid)}"
+            images.append((f"Rain, infiltration capacity and infiltration over the pervious "
+                           f"area of {sid}, {storm.name}",
+                           _save(maps.figure_png(fig), folder / f"{key}.png", out, key)))
+        figures.per_storm[storm.name] = images
+    say("maps and plots", total, total)
+    return figures
+
+
+def _earliest(storm: Any, n: int) -> list[str]:
+    s = storm.subcatchments.dropna(subset=["time_to_ponding_s"])
+    s = s.sort_values(["time_to_ponding_s", "subcatchment_id"], kind="stable")
+    return s["subcatchment_id"].astype(str).head(n).tolist()
+
+
+def _raster_crs(project: Any) -> Any:
+    from .pipeline import read_soil
+
+    return read_soil(project).crs
+
+
+def _save(png: bytes, path: Path, out: Deliverables, key: str) -> bytes:
+    path.write_bytes(png)
+    out.maps[key] = path
+    return png
+
+
+def _write_report(result: Any, out: Deliverables, figures: Any) -> Path:
+    from .layers import ponding_ranking
+    from .pipeline import CAUTION
+    from .report import build_report
+
+    files = sorted(str(p.relative_to(out.folder)) for p in out.folder.rglob("*") if p.is_file())
+    text = build_report(result, figures, ranking=ponding_ranking(result), caution=CAUTION,
+                        files=files)
+    path = out.folder / "report.html"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def write_all(result: Any, output: str | Path | None = None, *, overwrite: bool = False,
+              options: ExtrasOptions = ExtrasOptions(),
+              progress: Progress | None = None) -> tuple[Path, Deliverables]:
+    """Write the GeoPackage and the ``<stem>_files/`` folder beside it, both atomically.
+
+    The folder is built in a temporary folder first; the GeoPackage is written
+    next, and the folder moved into place last. A failure at any point leaves
+    neither a half-written GeoPackage nor half a folder.
+
+    Returns
+    -------
+    (Path, Deliverables)
+        The GeoPackage and the extras (paths in their final place).
+
+    Raises
+    ------
+    OutputExistsError
+        If the GeoPackage or the folder exists and ``overwrite`` is false.
+    """
+    from .pipeline import write_outputs
+
+    gpkg = Path(output) if output else result.project.output
+    folder = extras_folder(gpkg)
+    if gpkg.exists() and not overwrite:
+        raise OutputExistsError(str(gpkg), "already exists",
+                                "pass --overwrite or choose another output path")
+    with staged_folder(folder, overwrite=overwrite) as tmp:
+        made = write_deliverables(result, tmp, options=options, progress=progress)
+        if progress:
+            progress("GeoPackage", 0, 1)
+        write_outputs(result, output=gpkg, overwrite=overwrite)
+        if progress:
+            progress("GeoPackage", 1, 1)
+    return gpkg, made.moved_to(folder)
