@@ -1,0 +1,125 @@
+"""End-to-end benchmark: a whole run against the I/O floor, and peak memory across raster sizes.
+
+For each raster size it generates inputs (``make_inputs.py``), then measures in one go:
+
+- the I/O floor: reading both rasters once, block by block, plus writing the run's output
+  GeoPackage once (its layers read back into memory first, untimed);
+- ``gisrun run`` in a child process: wall time and peak resident memory;
+- the same run with a second storm, to show what one more storm costs.
+
+It prints the ratios the targets are stated in: run time / I/O floor (target <= 3), peak memory
+(target < 2 GB) and its growth from the smallest to the largest raster (target within 20 %).
+
+    python benchmarks/bench_run.py                       # 8000 and 20000 cells, 100,000 polygons
+    python benchmarks/bench_run.py --cells 2000 4000 --polygons 2000   # quick look
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pyogrio
+import rasterio
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+
+from make_inputs import make_inputs  # noqa: E402
+
+MEASURE = """
+import resource, sys, time
+from gisrun.cli import main
+t = time.perf_counter()
+code = main(sys.argv[1:])
+wall = time.perf_counter() - t
+peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+print("MEASURED", code, wall, peak_mb)
+"""
+
+
+def read_rasters_once(paths: list[Path]) -> float:
+    start = time.perf_counter()
+    for path in paths:
+        with rasterio.open(path) as src:
+            for _, window in src.block_windows(1):
+                src.read(1, window=window)
+    return time.perf_counter() - start
+
+
+def write_geopackage_once(source: Path, target: Path) -> float:
+    layers = [(name, pyogrio.read_dataframe(source, layer=name))
+              for name, _ in pyogrio.list_layers(source)]
+    target.unlink(missing_ok=True)
+    start = time.perf_counter()
+    for name, frame in layers:
+        pyogrio.write_dataframe(frame, target, layer=name, driver="GPKG")
+    return time.perf_counter() - start
+
+
+def measured_run(project: Path, output: Path, extra: list[str] | None = None) -> dict:
+    args = ["run", str(project), "--output", str(output), "--overwrite", "--quiet", *(extra or [])]
+    proc = subprocess.run([sys.executable, "-c", MEASURE, *args], capture_output=True, text=True,
+                          check=False)
+    line = [ln for ln in proc.stdout.splitlines() if ln.startswith("MEASURED")]
+    if proc.returncode != 0 or not line:
+        raise SystemExit(f"gisrun run failed:\n{proc.stdout}\n{proc.stderr}")
+    _, code, wall, peak = line[-1].split()
+    if int(code) != 0:
+        raise SystemExit(f"gisrun run exited {code}:\n{proc.stderr}")
+    return {"wall_s": float(wall), "peak_mb": float(peak)}
+
+
+def with_second_storm(project: Path) -> Path:
+    text = project.read_text()
+    twin = project.with_name("gisrun_two_storms.toml")
+    block = text[text.index("[[storms]]"):]
+    second = block.replace('name = "', 'name = "second_', 1)
+    twin.write_text(text + "\n" + second.replace("depth = 90", "depth = 60"))
+    return twin
+
+
+def bench(n_cells: int, n_polygons: int) -> dict:
+    paths = make_inputs(n_cells=n_cells, n_polygons=n_polygons)
+    out_dir = Path(paths.project).parent
+    output = out_dir / "bench_output.gpkg"
+    run = measured_run(Path(paths.project), output)
+    read_s = read_rasters_once([Path(paths.soil), Path(paths.cover)])
+    write_s = write_geopackage_once(output, out_dir / "floor_copy.gpkg")
+    two = measured_run(with_second_storm(Path(paths.project)), out_dir / "bench_output2.gpkg")
+    floor = read_s + write_s
+    return {
+        "cells": n_cells, "polygons": n_polygons, "run_s": run["wall_s"],
+        "peak_mb": run["peak_mb"], "read_floor_s": read_s, "write_floor_s": write_s,
+        "io_floor_s": floor, "ratio_to_io_floor": run["wall_s"] / floor,
+        "second_storm_s": two["wall_s"] - run["wall_s"],
+    }
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--cells", type=int, nargs="+", default=[8000, 20000])
+    parser.add_argument("--polygons", type=int, default=100_000)
+    parser.add_argument("--json", action="store_true", help="print the figures as JSON")
+    args = parser.parse_args(argv)
+    rows = [bench(n, args.polygons) for n in args.cells]
+    if args.json:
+        print(json.dumps(rows, indent=2))
+        return
+    print(f"{'cells':>7} {'polygons':>9} {'run s':>8} {'floor s':>8} {'run/floor':>10} "
+          f"{'peak MB':>8} {'+1 storm s':>11}")
+    for r in rows:
+        print(f"{r['cells']:>7} {r['polygons']:>9} {r['run_s']:>8.1f} {r['io_floor_s']:>8.1f} "
+              f"{r['ratio_to_io_floor']:>10.2f} {r['peak_mb']:>8.0f} {r['second_storm_s']:>11.1f}")
+    growth = rows[-1]["peak_mb"] / rows[0]["peak_mb"] - 1
+    print(f"peak memory growth from {rows[0]['cells']} to {rows[-1]['cells']} cells: "
+          f"{growth:+.0%} (target within 20 %); largest peak {rows[-1]['peak_mb']:.0f} MB "
+          "(target < 2000 MB); run/floor target <= 3")
+
+
+if __name__ == "__main__":
+    main()
