@@ -43,8 +43,9 @@ from .io.geotiff import grid_of, read_padded, write_float_rasters
 from .layers import layer_name
 from .units import from_si
 
-__all__ = ["Deliverables", "extras_folder", "staged_folder", "cell_unit_results",
-           "write_cell_rasters", "write_deliverables", "write_all"]
+__all__ = ["Deliverables", "ExtrasOptions", "extras_folder", "staged_folder",
+           "cell_unit_results", "write_cell_rasters", "write_deliverables", "write_extras",
+           "write_all"]
 
 Progress = Callable[[str, int, int], None]
 
@@ -258,8 +259,12 @@ class ExtrasOptions:
 
 
 def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = ExtrasOptions(),
-                       progress: Progress | None = None) -> Deliverables:
-    """Write the extras into an existing, empty ``folder`` (no atomic move; see :func:`write_all`).
+                       gpkg: Path | None = None, progress: Progress | None = None
+                       ) -> Deliverables:
+    """Write the extras into an existing, empty ``folder`` (no atomic move; see :func:`write_extras`).
+
+    ``gpkg`` is the run's GeoPackage, read for the excess series when the run
+    streamed them there instead of keeping them in memory.
 
     Raises
     ------
@@ -276,7 +281,7 @@ def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = Ex
         out.notes += notes
     if options.model_inputs:
         say("model inputs", 0, 1)
-        inputs, series = _model_tables(result)
+        inputs, series = _model_tables(result, gpkg)
         out.model_inputs = write_csv(folder / "model_inputs.csv", inputs)
         out.excess_series = write_csv(folder / "excess_series.csv", series)
         say("model inputs", 1, 1)
@@ -289,13 +294,17 @@ def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = Ex
     return out
 
 
-def _model_tables(result: Any) -> tuple[pd.DataFrame, pd.DataFrame]:
+def _model_tables(result: Any, gpkg: Path | None) -> tuple[pd.DataFrame, pd.DataFrame]:
     from .export import excess_series_table, model_inputs
 
     sub_ids = result.subcatchments["subcatchment_id"].astype(str).tolist()
     system = result.project.units
-    return (model_inputs(result.parameters, sub_ids, system, default_method=result.project.method),
-            excess_series_table(result.storms, system))
+    inputs = model_inputs(result.parameters, sub_ids, system, default_method=result.project.method)
+    if all(s.series is not None and len(s.series) for s in result.storms) or gpkg is None:
+        return inputs, excess_series_table(result.storms, system)
+    import pyogrio  # the run streamed its series into the GeoPackage: copy them from there
+
+    return inputs, pyogrio.read_dataframe(gpkg, layer="excess_series", read_geometry=False)
 
 
 def _plot_ids(result: Any, named: Sequence[str]) -> list[str]:
@@ -358,7 +367,9 @@ def _write_maps(result: Any, out: Deliverables, named: list[str], say: Progress)
                            f"{storm.name}", _save(maps.figure_png(fig), folder /
                                                   f"cell_runoff_depth_{stem}.png", out,
                                                   f"cell_runoff_depth_{stem}")))
-        for sid in _earliest(storm, 1) + [s for s in named if s not in _earliest(storm, 1)]:
+        plotted = [] if storm.loss is None else _earliest(storm, 1)
+        plotted += [s for s in named if s not in plotted and storm.loss is not None]
+        for sid in plotted:
             series = maps.pervious_series(storm.loss, result.parameters, sid, project.time_step_s)
             fig = maps.infiltration_plot(
                 series, title=f"{sid}, {storm.name}: pervious area", rate_unit=rate,
@@ -403,37 +414,50 @@ def _write_report(result: Any, out: Deliverables, figures: Any) -> Path:
     return path
 
 
-def write_all(result: Any, output: str | Path | None = None, *, overwrite: bool = False,
-              options: ExtrasOptions = ExtrasOptions(),
-              progress: Progress | None = None) -> tuple[Path, Deliverables]:
-    """Write the GeoPackage and the ``<stem>_files/`` folder beside it, both atomically.
+def write_extras(result: Any, gpkg: str | Path, *, overwrite: bool = False,
+                 options: ExtrasOptions = ExtrasOptions(),
+                 progress: Progress | None = None) -> Deliverables:
+    """Write ``<gpkg stem>_files/`` beside an already written GeoPackage, atomically.
 
-    The folder is built in a temporary folder first; the GeoPackage is written
-    next, and the folder moved into place last. A failure at any point leaves
-    neither a half-written GeoPackage nor half a folder.
-
-    Returns
-    -------
-    (Path, Deliverables)
-        The GeoPackage and the extras (paths in their final place).
+    The folder is built in a temporary folder beside it and moved into place
+    only when complete; an old folder is replaced only with ``overwrite``.
 
     Raises
     ------
     OutputExistsError
-        If the GeoPackage or the folder exists and ``overwrite`` is false.
+        If the folder exists and ``overwrite`` is false.
+    """
+    gpkg = Path(gpkg)
+    folder = extras_folder(gpkg)
+    with staged_folder(folder, overwrite=overwrite) as tmp:
+        made = write_deliverables(result, tmp, options=options, gpkg=gpkg, progress=progress)
+    if any(s.loss is None for s in result.storms):
+        made.notes.append("infiltration plots skipped: the run did not keep per-unit step arrays")
+    return made.moved_to(folder)
+
+
+def write_all(result: Any, output: str | Path | None = None, *, overwrite: bool = False,
+              options: ExtrasOptions = ExtrasOptions(),
+              progress: Progress | None = None) -> tuple[Path, Deliverables]:
+    """Write the GeoPackage and the ``<stem>_files/`` folder beside it (for notebook use).
+
+    Returns
+    -------
+    (Path, Deliverables)
+
+    Raises
+    ------
+    OutputExistsError
+        If the GeoPackage or the folder exists and ``overwrite`` is false
+        (checked before anything is written).
     """
     from .pipeline import write_outputs
 
     gpkg = Path(output) if output else result.project.output
-    folder = extras_folder(gpkg)
-    if gpkg.exists() and not overwrite:
-        raise OutputExistsError(str(gpkg), "already exists",
-                                "pass --overwrite or choose another output path")
-    with staged_folder(folder, overwrite=overwrite) as tmp:
-        made = write_deliverables(result, tmp, options=options, progress=progress)
-        if progress:
-            progress("GeoPackage", 0, 1)
-        write_outputs(result, output=gpkg, overwrite=overwrite)
-        if progress:
-            progress("GeoPackage", 1, 1)
-    return gpkg, made.moved_to(folder)
+    for target in (gpkg, extras_folder(gpkg)):
+        if target.exists() and not overwrite:
+            raise OutputExistsError(str(target), "already exists",
+                                    "pass --overwrite or choose another output path")
+    write_outputs(result, output=gpkg, overwrite=overwrite)
+    return gpkg, write_extras(result, gpkg, overwrite=overwrite, options=options,
+                              progress=progress)

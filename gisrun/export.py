@@ -124,18 +124,11 @@ def _one(part: pd.DataFrame, sid: Any, default_method: str) -> dict[str, Any]:
 def excess_series_table(storms: Any, system: UnitSystem) -> pd.DataFrame:
     """Long table of every storm's per-subcatchment step series, in ``system`` units.
 
-    Columns: ``storm``, ``subcatchment_id``, ``time_end_min``, ``rain_<depth>``,
-    ``infiltration_<depth>``, ``excess_<depth>`` (depth in the step) and
-    ``excess_intensity_<rate>``.
+    The same columns as the GeoPackage's ``excess_series`` table: ``storm``,
+    ``subcatchment_id``, ``time_end_min``, ``rain_<depth>``, ``infiltration_<depth>``,
+    ``excess_<depth>`` (depth in the step) and the same as ``_intensity_<rate>``.
     """
-    frames = []
-    for storm in storms:
-        s = storm.series
-        frames.append(pd.DataFrame({
-            "storm": storm.name, "subcatchment_id": s["subcatchment_id"].to_numpy(),
-            "time_end_s": s["time_end_s"].to_numpy(), "rain_m": s["rain_m"].to_numpy(),
-            "infiltration_m": s["infiltration_m"].to_numpy(),
-            "excess_m": s["excess_m"].to_numpy(),
-            "excess_intensity_m_per_s": s["excess_intensity_m_per_s"].to_numpy(),
-        }))
-    return present_frame(pd.concat(frames, ignore_index=True), system)
+    from .layers import series_layer
+
+    frames = [series_layer(storm.series, storm.name, system) for storm in storms]
+    return pd.concat(frames, ignore_index=True)

@@ -40,20 +40,53 @@ def cli(debug: bool) -> None:
               help="Run chunks of subcatchments on a local dask cluster of N processes.")
 @click.option("--scheduler", metavar="ADDRESS",
               help="Run on an existing dask scheduler (tcp://host:8786), or 'synchronous'.")
+@click.option("--no-rasters", is_flag=True, help="Skip the cell-level GeoTIFFs.")
+@click.option("--no-maps", is_flag=True, help="Skip the PNG maps and plots (the report keeps them).")
+@click.option("--no-report", is_flag=True, help="Skip the HTML report.")
+@click.option("--no-extras", is_flag=True,
+              help="Write only the GeoPackage (no <output>_files folder).")
+@click.option("--plot", "plot_ids", multiple=True, metavar="ID",
+              help="Also plot infiltration through each storm for subcatchment ID (repeatable).")
 def run(project: Path, output: Path | None, overwrite: bool, quiet: bool, as_json: bool,
-        workers: int | None, scheduler: str | None) -> None:
-    """Run PROJECT (a project file, or a folder holding gisrun.toml) and write its results."""
+        workers: int | None, scheduler: str | None, no_rasters: bool, no_maps: bool,
+        no_report: bool, no_extras: bool, plot_ids: tuple[str, ...]) -> None:
+    """Run PROJECT (a project file, or a folder holding gisrun.toml) and write its results.
+
+    Beside the GeoPackage, a folder <output stem>_files/ gets cell-level rasters, maps,
+    an HTML report and model-input tables.
+    """
+    from ..deliverables import ExtrasOptions, extras_folder, write_extras
+    from ..errors import OutputExistsError
     from ..pipeline import CAUTION, load_project, run_and_write
+    from .progress import progress_display
 
     loaded = load_project(project)
-    say = (lambda text: None) if (quiet or as_json) else (
-        lambda text: click.echo(f"  {text} ...", err=True))
-    result, written = run_and_write(loaded, output=output, overwrite=overwrite, progress=say,
-                                    workers=workers, scheduler=scheduler)
+    target = Path(output) if output else loaded.output
+    folder = extras_folder(target)
+    for path in (target, *(() if no_extras else (folder,))):
+        if path.exists() and not overwrite:  # fail before the work, not after it
+            raise OutputExistsError(str(path), "already exists",
+                                    "pass --overwrite or choose another output path")
+    options = ExtrasOptions(rasters=not no_rasters, maps=not no_maps, report=not no_report,
+                            plot_subcatchments=plot_ids)
+    with progress_display(enabled=not (quiet or as_json)) as show:
+        result, written = run_and_write(loaded, output=target, overwrite=overwrite,
+                                        progress=show.step, workers=workers,
+                                        scheduler=scheduler)
+        extras = None if no_extras else write_extras(result, written, overwrite=overwrite,
+                                                     options=options, progress=show.advance)
+    if extras is not None:
+        result.warnings.extend(n for n in extras.notes if n not in result.warnings)
     if as_json:
-        click.echo(json.dumps(summary.as_dict(result, written), indent=2))
+        doc = summary.as_dict(result, written)
+        doc["extras"] = extras.as_dict() if extras is not None else None
+        click.echo(json.dumps(doc, indent=2))
     elif not quiet:
         summary.print_summary(result, written)
+        if extras is not None:
+            click.echo(f"Maps, rasters, report and model inputs in {extras.folder}")
+            if extras.report:
+                click.echo(f"Report: {extras.report}")
         click.echo(f"\nCaution: {CAUTION}")
 
 
