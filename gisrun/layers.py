@@ -18,6 +18,9 @@ Layers of the output GeoPackage:
 ``ponding_rank_subcatchments``, ``ponding_rank_units``
     Subcatchments and units ordered by time to ponding under each storm
     (earliest first; those that never pond last, rank empty).
+``model_inputs``
+    Per-subcatchment loss parameters of its method, area and impervious share
+    (:func:`gisrun.export.model_inputs`).
 ``run_info``
     What was run: version, time, method, storms, units, input checksums,
     warnings and the caution.
@@ -29,6 +32,7 @@ import geopandas as gpd
 import pandas as pd
 
 from . import __version__
+from .export import model_inputs
 from .units import present_frame
 
 __all__ = ["build_layers", "run_info", "storm_layer_name", "layer_name", "series_layer"]
@@ -77,6 +81,9 @@ def build_layers(result: object) -> dict[str, pd.DataFrame]:
     subs_rank, units_rank = ponding_ranking(result)
     layers["ponding_rank_subcatchments"] = present_frame(subs_rank, system)
     layers["ponding_rank_units"] = present_frame(units_rank, system)
+    layers["model_inputs"] = model_inputs(
+        result.parameters, result.subcatchments["subcatchment_id"].astype(str).tolist(), system,
+        default_method=result.project.method)
     layers["run_info"] = run_info(result)
     return layers
 
