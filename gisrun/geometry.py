@@ -274,14 +274,18 @@ def _running_sums(p: NDArray[Any], r: NDArray[Any], c: NDArray[Any], acc: NDArra
     group = (r - r0) * n_poly + p
     if n_group * n_col < 2**62:
         key = group * n_col + (c - c0)
-        order = np.argsort(key, kind="stable")
+        order = np.argsort(key, kind="stable")  # edges arrive nearly sorted by row
         key = key[order]
         first = np.flatnonzero(np.r_[True, key[1:] != key[:-1]])
+        acc = np.add.reduceat(acc[order], first)
+        key = key[first]
+        group, c = key // n_col, key % n_col + c0
+        p, r = group % n_poly, group // n_poly + r0
     else:
         order = np.lexsort((c, p, r))
         first = np.flatnonzero(np.r_[True, (np.diff(group[order]) != 0) | (np.diff(c[order]) != 0)])
-    acc = np.add.reduceat(acc[order], first)
-    p, r, c, group = p[order][first], r[order][first], c[order][first], group[order][first]
+        acc = np.add.reduceat(acc[order], first)
+        p, r, c, group = p[order][first], r[order][first], c[order][first], group[order][first]
     running = np.cumsum(acc)
     start = np.flatnonzero(np.r_[True, group[1:] != group[:-1]])
     before = np.r_[0.0, running][start]  # running sum before each group

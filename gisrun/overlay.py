@@ -223,7 +223,7 @@ class _Lookup:
         pos = {label: i + 2 for i, label in enumerate(self.labels)}
         items = sorted((int(k), pos[v]) for k, v in codes.items())
         self.codes = np.array([k for k, _ in items], dtype=np.int64)
-        self.idx = np.array([v for _, v in items], dtype=np.intp)
+        self.idx = np.array([v for _, v in items], dtype=np.int32)
         self.nodata = nodata
 
     def index(self, block: NDArray[Any]) -> NDArray[np.intp]:
@@ -240,13 +240,13 @@ class _Lookup:
 
     def _small_int(self, vals: NDArray[Any]) -> NDArray[np.intp]:
         info = np.iinfo(vals.dtype)
-        lut = np.full(int(info.max) - int(info.min) + 1, _NODATA, dtype=np.intp)
+        lut = np.full(int(info.max) - int(info.min) + 1, _NODATA, dtype=np.int32)
         keep = (self.codes >= info.min) & (self.codes <= info.max)
         lut[self.codes[keep] - int(info.min)] = self.idx[keep]
         return lut[vals.astype(np.int64) - int(info.min)] if info.min else lut[vals]
 
     def _search(self, vals: NDArray[Any]) -> NDArray[np.intp]:
-        out = np.full(vals.shape, _NODATA, dtype=np.intp)
+        out = np.full(vals.shape, _NODATA, dtype=np.int32)
         if not self.codes.size:
             return out
         keys = self.codes.astype(vals.dtype) if vals.dtype.kind == "f" else self.codes
@@ -348,14 +348,37 @@ def _run_sums(cov: Any, a: int, b: int, width: int, cls: NDArray[np.intp],
     rows = cov.run_row[s0:s1] - a
     start = np.clip(cov.run_start[s0:s1], 0, width)
     n = np.clip(cov.run_stop[s0:s1], 0, width) - start
+    poly, weight = cov.run_poly[s0:s1], cov.run_weight[s0:s1]
+    whole = (weight == 1) & (n > 0)
+    out = np.zeros(size)
+    if area is None and whole.any():
+        flat0 = rows[whole] * width + start[whole]
+        painted = _painted_counts(flat0, n[whole], poly[whole], cls, n_cls, size)
+        if painted is not None:
+            out += painted
+            poly, rows, start, n, weight = (v[~whole] for v in (poly, rows, start, n, weight))
     owner = np.repeat(np.arange(n.size), n)
     flat = np.arange(owner.size) + np.repeat(rows * width + start - (np.cumsum(n) - n), n)
-    key = cov.run_poly[s0:s1][owner] * n_cls + cls[flat]
-    weight = cov.run_weight[s0:s1]
-    if area is None and np.all(weight == 1):
-        return np.bincount(key, minlength=size).astype(np.float64)
     w = weight * (area[rows] if area is not None else 1.0)
-    return np.bincount(key, w[owner], minlength=size)
+    return out + np.bincount(poly[owner] * n_cls + cls[flat], w[owner], minlength=size)
+
+
+def _painted_counts(flat0: NDArray[np.int64], n: NDArray[np.int64], poly: NDArray[np.int64],
+                    cls: NDArray[np.intp], n_cls: int, size: int) -> NDArray[np.float64] | None:
+    """Cell counts per (polygon, class) by painting runs into a label raster.
+
+    Each run adds its label (polygon + 1) at its first cell and takes it off after
+    its last; a running sum then labels every cell. Returns None when runs
+    overlap (overlapping subcatchments), which the caller counts cell by cell.
+    """
+    mark = np.zeros(cls.size + 1, dtype=np.int32)
+    np.add.at(mark, flat0, (poly + 1).astype(np.int32))
+    np.add.at(mark, flat0 + n, -(poly + 1).astype(np.int32))
+    label = np.cumsum(mark[:-1], dtype=np.int32)
+    if np.count_nonzero(label) != n.sum():
+        return None
+    counts = np.bincount(label * n_cls + cls, minlength=size + n_cls)
+    return counts[n_cls:].astype(np.float64)  # label 0: cells in no run
 
 
 def _finish(ids: NDArray[Any], own_m2: NDArray[np.float64], sums: tuple[NDArray[Any], ...],
