@@ -180,8 +180,9 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     ponded_start = above_ks & (ks * (f0 + pd_m) <= rate * f0)
     rising = above_ks & ~ponded_start
     # Case 3: depth at which capacity falls to the supply rate, and when.
-    f_pond = np.where(rising, ks * pd_m / np.where(rising, rate - ks, 1.0), f0)
-    t_pond = np.where(rising, (f_pond - f0) / np.where(rising, rate, 1.0), np.inf)
+    with np.errstate(over="ignore"):  # rate a hair above Ks: ponds beyond float range (inf)
+        f_pond = np.where(rising, ks * pd_m / np.where(rising, rate - ks, 1.0), f0)
+        t_pond = np.where(rising, (f_pond - f0) / np.where(rising, rate, 1.0), np.inf)
     ponds_inside = rising & (t_pond < dt_s)
     ponded = ponded_start | ponds_inside
     start = np.where(ponds_inside, f_pond, f0)

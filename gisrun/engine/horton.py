@@ -205,7 +205,8 @@ def _ponding_point(p: Params, te: FloatArray, rate: FloatArray,
         t_p = -np.log(ratio) / np.where(can, p.decay_per_s, 1.0)
     can &= np.isfinite(t_p)
     t_p = np.where(can, np.maximum(t_p, te), te)
-    tau = curve_increment_m(p, te, t_p - te) / np.where(can, rate, 1.0)
+    with np.errstate(over="ignore"):  # inf: cannot pond within any step
+        tau = curve_increment_m(p, te, t_p - te) / np.where(can, rate, 1.0)
     return t_p, np.where(can, tau, np.inf)
 
 
