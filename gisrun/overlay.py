@@ -73,8 +73,9 @@ class ClassGrid(Protocol):
         """Read ((row_start, row_stop), (col_start, col_stop)), clipped to the raster."""
 
 
-def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid, cover: ClassGrid | None = None,
-                       *, soil_codes: Mapping[int, str], cover_codes: Mapping[int, str] | None = None,
+def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid,
+                       cover: ClassGrid | None = None, *, soil_codes: Mapping[int, str],
+                       cover_codes: Mapping[int, str] | None = None,
                        nodata_rule: Literal["error", "dominant", "omit"] = "error",
                        max_nodata_fraction: float = 0.0, chunk_cells: int = 4_000_000,
                        ) -> tuple[pd.DataFrame, pd.DataFrame, list[str]]:
@@ -129,7 +130,8 @@ def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid, cover: 
 
 def _check_options(rule: str, fraction: float) -> None:
     if rule not in NODATA_RULES:
-        raise InputError(f"nodata rule {rule!r}", "is not a rule", f"use one of {list(NODATA_RULES)}")
+        raise InputError(f"nodata rule {rule!r}", "is not a rule",
+                         f"use one of {list(NODATA_RULES)}")
     if not 0.0 <= fraction <= 1.0:
         raise InputError(f"max nodata fraction {fraction!r}", "is outside 0-1", "give a share 0-1")
 
@@ -301,9 +303,11 @@ def _class_sums(geoms: NDArray[Any], grid: _Grid, chunk_cells: int) -> tuple[NDA
     return tuple(np.concatenate(parts) for parts in zip(*out, strict=True))
 
 
-def _compact_chunks(px: NDArray[Any], box: NDArray[np.int64], chunk_cells: int) -> list[NDArray[Any]]:
+def _compact_chunks(px: NDArray[Any], box: NDArray[np.int64],
+                    chunk_cells: int) -> list[NDArray[Any]]:
     """Polygons grouped along a Hilbert curve so that each group's window stays small."""
-    order = np.asarray(gpd.GeoSeries(shapely.centroid(px)).hilbert_distance()).argsort(kind="stable")
+    hilbert = np.asarray(gpd.GeoSeries(shapely.centroid(px)).hilbert_distance())
+    order = hilbert.argsort(kind="stable")
     chunks, current = [], []
     r0 = c0 = np.iinfo(np.int64).max
     r1 = c1 = np.iinfo(np.int64).min
@@ -400,7 +404,8 @@ def _finish(ids: NDArray[Any], own_m2: NDArray[np.float64], sums: tuple[NDArray[
     keep = (cls >= 2) & (area > 1e-9 * own_m2[poly])
     poly, cls, area = poly[keep], cls[keep] - 2, area[keep]
     if rule == "dominant":
-        area = _fill_dominant(poly, area, missing, ids, notes)
+        area = _fill_dominant(poly, area, np.where(missing > 1e-9 * own_m2, missing, 0.0), ids,
+                              notes)
     elif np.any(missing > 1e-9 * own_m2):
         notes.append(f"{int(np.sum(missing > 1e-9 * own_m2))} subcatchment(s) have nodata or "
                      "outside-raster area left out of their units (see coverage)")

@@ -104,7 +104,8 @@ def test_cell_coverage_matches_shapely_cell_intersections():
 def test_half_and_half_by_hand(half_and_half_soil):
     # 10 m cells, code 1 in columns 0-4: x 0-25 over the full height -> 25 m x 100 m of class A
     soil = read_class_raster(half_and_half_soil)
-    units, cov, _ = compute_unit_areas(frame([box(0, 0, 25, 100)]), soil, soil_codes={1: "A", 2: "B"})
+    units, cov, _ = compute_unit_areas(frame([box(0, 0, 25, 100)]), soil,
+                                       soil_codes={1: "A", 2: "B"})
     assert by_class(units, "S0") == pytest.approx({"A": 2500.0})
     assert units.cover_class.tolist() == ["unspecified"]
     assert cov.nodata_fraction.tolist() == [0.0]
@@ -148,7 +149,8 @@ def test_chunking_and_row_bands_do_not_change_results(geotiff):
     codes = patchy_codes((60, 60))
     soil = read_class_raster(geotiff(codes, origin=(X0, Y0), cell=5.0))
     pts = RNG.uniform([X0, Y0 - 300], [X0 + 300, Y0], (40, 2))
-    cells = shapely.voronoi_polygons(shapely.MultiPoint(pts), extend_to=box(X0, Y0 - 300, X0 + 300, Y0))
+    extent = box(X0, Y0 - 300, X0 + 300, Y0)
+    cells = shapely.voronoi_polygons(shapely.MultiPoint(pts), extend_to=extent)
     geoms = [g.intersection(box(X0 - 7, Y0 - 307, X0 + 307, Y0 + 3)) for g in cells.geoms]
     gdf = frame(geoms)
     big, _, _ = compute_unit_areas(gdf, soil, soil_codes=SOIL, max_nodata_fraction=1.0)
@@ -207,7 +209,8 @@ def test_nodata_dominant_fills_the_largest_unit(soil_with_gaps):
 @pytest.mark.parametrize("rule", ["error", "dominant", "omit"])
 def test_any_rule_stops_above_the_maximum(soil_with_gaps, rule):
     gdf = frame([box(0, 0, 50, 100), box(50, 0, 100, 100)], ids=["west", "east"])
-    with pytest.raises(RasterError, match=r"soil\.tif: .*above 10\.0% in subcatchments east \(24\.0%\)"):
+    with pytest.raises(RasterError,
+                       match=r"soil\.tif: .*above 10\.0% in subcatchments east \(24\.0%\)"):
         compute_unit_areas(gdf, soil_with_gaps, soil_codes={1: "A", 2: "B"}, nodata_rule=rule,
                            max_nodata_fraction=0.1)
 
@@ -346,7 +349,8 @@ def test_unaligned_grids_stay_within_the_stated_bound(geotiff):
                          Y0 + 3 - rows * 17).ravel()
     ref: dict[tuple[str, str], float] = {}
     for (r, c), s in np.ndenumerate(soil_codes):
-        scell = box(X0 + c * 10, Y0 - (r + 1) * 10, X0 + (c + 1) * 10, Y0 - r * 10).intersection(poly)
+        scell = box(X0 + c * 10, Y0 - (r + 1) * 10, X0 + (c + 1) * 10, Y0 - r * 10)
+        scell = scell.intersection(poly)
         for cc, a in zip(cover_codes.ravel(), shapely.area(shapely.intersection(ccells, scell)),
                          strict=True):
             ref[(SOIL[s], COVER[cc])] = ref.get((SOIL[s], COVER[cc]), 0.0) + a

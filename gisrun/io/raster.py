@@ -133,7 +133,8 @@ class ClassRaster:
         return sorted(int(v) if float(v).is_integer() else v for v in found)
 
     def _blocks(self, bounds: tuple[float, float, float, float] | None) -> Iterable[NDArray[Any]]:
-        win = self._as_window(bounds) if bounds is not None else Window(0, 0, self.width, self.height)
+        full = Window(0, 0, self.width, self.height)
+        win = self._as_window(bounds) if bounds is not None else full
         (r0, r1), (c0, c1) = win.toranges()
         step = max(1, SCAN_BLOCK_CELLS // max(1, c1 - c0))
         with self._open() as src:

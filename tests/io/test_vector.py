@@ -36,8 +36,10 @@ def test_layer_choice_and_filter(tmp_path, polygon_file):
     path = polygon_file(SQUARES, layer="first", sid=["a", "b"])
     polygon_file([box(0, 0, 1, 1)], layer="second", sid=["z"])
     assert read_subcatchments(path, id_field="sid")["subcatchment_id"].tolist() == ["a", "b"]
-    assert read_subcatchments(path, id_field="sid", layer="second")["subcatchment_id"].tolist() == ["z"]
-    assert read_subcatchments(path, id_field="sid", where="sid = 'b'")["subcatchment_id"].tolist() == ["b"]
+    second = read_subcatchments(path, id_field="sid", layer="second")
+    assert second["subcatchment_id"].tolist() == ["z"]
+    only_b = read_subcatchments(path, id_field="sid", where="sid = 'b'")
+    assert only_b["subcatchment_id"].tolist() == ["b"]
 
 
 def test_missing_file(tmp_path):
@@ -54,13 +56,15 @@ def test_unreadable_file(tmp_path):
 
 def test_unknown_layer_lists_layers(polygon_file):
     path = polygon_file(SQUARES, layer="basins", sid=["a", "b"])
-    with pytest.raises(VectorError, match=r"sub\.gpkg:catchments: no such layer; use one of \['basins'\]"):
+    with pytest.raises(VectorError,
+                       match=r"sub\.gpkg:catchments: no such layer; use one of \['basins'\]"):
         read_subcatchments(path, id_field="sid", layer="catchments")
 
 
 def test_missing_field_suggests_nearest(polygon_file):
     path = polygon_file(SQUARES, basin_id=["a", "b"], area_ha=[1, 2])
-    with pytest.raises(VectorError, match=r"subcatchments:basinid: no such field; did you mean 'basin_id'"):
+    with pytest.raises(VectorError,
+                       match=r"subcatchments:basinid: no such field; did you mean 'basin_id'"):
         read_subcatchments(path, id_field="basinid")
     with pytest.raises(VectorError, match=r":slope_pct: no such field"):
         read_subcatchments(path, id_field="basin_id", keep_fields=["slope_pct"])
