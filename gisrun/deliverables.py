@@ -44,7 +44,7 @@ from .layers import layer_name
 from .units import from_si
 
 __all__ = ["Deliverables", "ExtrasOptions", "extras_folder", "staged_folder",
-           "cell_unit_results", "write_cell_rasters", "write_deliverables", "write_extras",
+           "check_plot_ids", "cell_unit_results", "write_cell_rasters", "write_deliverables", "write_extras",
            "write_all"]
 
 Progress = Callable[[str, int, int], None]
@@ -308,9 +308,20 @@ def _model_tables(result: Any, gpkg: Path | None) -> tuple[pd.DataFrame, pd.Data
 
 
 def _plot_ids(result: Any, named: Sequence[str]) -> list[str]:
+    return check_plot_ids(result.subcatchments, named)
+
+
+def check_plot_ids(subcatchments: gpd.GeoDataFrame, named: Sequence[str]) -> list[str]:
+    """The named subcatchment ids, checked against the layer.
+
+    Raises
+    ------
+    VectorError
+        Naming the first id that is not in the layer.
+    """
     from .errors import VectorError
 
-    known = set(result.subcatchments["subcatchment_id"].astype(str))
+    known = set(subcatchments["subcatchment_id"].astype(str))
     for sid in named:
         if str(sid) not in known:
             near = sorted(known)[:3]

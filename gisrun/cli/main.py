@@ -67,6 +67,11 @@ def run(project: Path, output: Path | None, overwrite: bool, quiet: bool, as_jso
         if path.exists() and not overwrite:  # fail before the work, not after it
             raise OutputExistsError(str(path), "already exists",
                                     "pass --overwrite or choose another output path")
+    if plot_ids and not no_extras:  # a wrong id fails before the work, not after it
+        from ..deliverables import check_plot_ids
+        from ..pipeline import read_subcatchment_layer
+
+        check_plot_ids(read_subcatchment_layer(loaded), plot_ids)
     options = ExtrasOptions(rasters=not no_rasters, maps=not no_maps, report=not no_report,
                             plot_subcatchments=plot_ids)
     with progress_display(enabled=not (quiet or as_json)) as show:
