@@ -145,7 +145,7 @@ def read_cover(project: Project) -> ClassRaster | None:
 def read_storms(project: Project) -> list[Hyetograph]:
     """Build every storm of the project (design storms and hyetograph files)."""
     return storms_from_config(list(project.storms), base_dir=project.base_dir,
-                              units=project.units, where=project.path.name)
+                              units=project.units, where=f"{project.path.name}:[[storms]]")
 
 
 def read_overrides(project: Project) -> pd.DataFrame | None:
