@@ -40,13 +40,13 @@ def check_project(path: str | Path) -> tuple[list[str], list[str]]:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
         project = _attempt(problems, pipeline.load_project, path)
-        if project is not None:
-            _check_inputs(project, problems)
+        later = _check_inputs(project, problems) if project is not None else []
     notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
-    return problems, list(dict.fromkeys(notes))
+    return problems, list(dict.fromkeys([*notes, *later]))
 
 
-def _check_inputs(project: Any, problems: list[str]) -> None:
+def _check_inputs(project: Any, problems: list[str]) -> list[str]:
+    """Run every reader and the overlay and parameter steps; return their notes."""
     from . import pipeline
 
     subs = _attempt(problems, pipeline.read_subcatchment_layer, project)
@@ -61,11 +61,14 @@ def _check_inputs(project: Any, problems: list[str]) -> None:
                                  project.where("cover"))
     missing_cover = project.cover is not None and cover is None
     if subs is None or missing_cover or storms is None or not codes_ok:
-        return
+        return []
     inputs = pipeline.Inputs(subs, soil, cover, storms, overrides)
     overlaid = _attempt(problems, pipeline.overlay_inputs, project, inputs)
-    if overlaid is not None:
-        _attempt(problems, pipeline.prepare_parameters, project, inputs, overlaid[0])
+    if overlaid is None:
+        return []
+    prepared = _attempt(problems, pipeline.prepare_parameters, project, inputs, overlaid[0])
+    notes = [*overlaid[2], *(prepared[2] if prepared is not None else [])]
+    return [str(note) for note in notes]
 
 
 def _check_codes(problems: list[str], raster: Any, subs: Any, codes: dict[int, str],

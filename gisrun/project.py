@@ -219,7 +219,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
     params = reader.table(raw, "parameters", required=False)
     rain_scale = reader.table(raw, "rain_scale", required=False)
     overrides = reader.string(params, "parameters", "overrides", required=False)
-    return Project(
+    project = Project(
         path=file,
         name=reader.string(top, "project", "name", default=file.parent.name) or file.parent.name,
         units=units,
@@ -255,6 +255,20 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
                                        low=50.0),
         raw=raw,
     )
+    _check_class_labels(reader, project)
+    return project
+
+
+def _check_class_labels(reader: _Reader, project: Project) -> None:
+    """Stop on a code table entry naming a class the parameter tables do not know."""
+    from .parameters._soils import check_cover_labels, check_soil_labels
+
+    for code, label in project.soil.codes.items():
+        check_soil_labels([label], project.soil.classification,
+                          reader.where("soil.codes", f'"{code}"'))
+    if project.cover is not None:
+        for code, label in project.cover.codes.items():
+            check_cover_labels([label], reader.where("cover.codes", f'"{code}"'))
 
 
 def _units(reader: _Reader, top: Mapping[str, Any]) -> UnitSystem:
@@ -305,8 +319,9 @@ class _Reader:
         self.file = file
 
     def where(self, section: str, key: str | None = None) -> str:
-        head = f"{self.file.name}:[{section}]" if section else self.file.name
-        return head + (f".{key}" if key else "")
+        if not section:  # a top-level key or table
+            return f"{self.file.name}:[{key}]" if key else self.file.name
+        return f"{self.file.name}:[{section}]" + (f".{key}" if key else "")
 
     def check_keys(self, section: str, table: Mapping[str, Any]) -> None:
         valid = _SCHEMA[section]

@@ -48,6 +48,12 @@ def atomic_target(target: str | Path, *, overwrite: bool) -> Iterator[Path]:
         raise OutputExistsError(
             str(target), "already exists", "pass --overwrite or choose another output path"
         )
+    if target.is_dir():
+        raise OutputError(str(target), "is a folder", "give a file path for the output")
+    blocker = _file_in_the_way(target.parent)
+    if blocker is not None:
+        raise OutputError(str(blocker), "is a file, not a folder, so the output cannot go under it",
+                          "choose another output path")
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
         fd, name = tempfile.mkstemp(
@@ -73,6 +79,14 @@ def atomic_target(target: str | Path, *, overwrite: bool) -> Iterator[Path]:
         ) from None
     finally:
         _remove(tmp)
+
+
+def _file_in_the_way(folder: Path) -> Path | None:
+    """The nearest existing ancestor of ``folder`` (itself included) if it is not a folder."""
+    for path in (folder, *folder.parents):
+        if path.exists():
+            return None if path.is_dir() else path
+    return None
 
 
 def _remove(path: Path) -> None:

@@ -107,6 +107,9 @@ def read_hyetograph_csv(
 def _read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]], str | None]:
     try:
         text = path.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise StormError(str(path), "cannot be read: it does not exist",
+                         "check the storm's path (relative to the project file)") from None
     except (OSError, UnicodeDecodeError) as err:
         raise StormError(str(path), f"cannot be read ({err.__class__.__name__}: {err})",
                          "check the path and that it is a UTF-8 text CSV") from None

@@ -140,8 +140,9 @@ def normalize_overrides(
         out[key] = _key_column(frame, key)
     for col in _parameter_columns(frame, where):
         si, factor = _ALIASES[col]
-        out[si] = _numbers(frame[col], where, col, names) * factor
-        _check_range(out[si], si, where, col, names, out["surface"])
+        given = _numbers(frame[col], where, col, names)
+        out[si] = given * factor
+        _check_range(out[si], si, where, col, names, out["surface"], given)
     if "loss_method" in frame.columns:
         out["loss_method"] = pd.Series([
             None if _blank(v) else check_loss_method(v, f"{where}:{names[i]}:loss_method")
@@ -206,7 +207,8 @@ def _numbers(series: pd.Series, where: str, col: str, names: list[str]) -> pd.Se
 
 
 def _check_range(
-    values: pd.Series, si: str, where: str, col: str, names: list[str], surface: pd.Series
+    values: pd.Series, si: str, where: str, col: str, names: list[str], surface: pd.Series,
+    given: pd.Series,
 ) -> None:
     low, high, low_open = 0.0, np.inf, False
     if si in _FRACTIONS:
@@ -226,7 +228,7 @@ def _check_range(
         i = int(np.flatnonzero(bad)[0])
         allowed = _allowed_text(si)
         raise ParameterError(
-            f"{where}:{names[i]}:{col}", f"value {v[i]:g} is out of range ({allowed})",
+            f"{where}:{names[i]}:{col}", f"value {given.iloc[i]:g} is out of range ({allowed})",
             "correct the value or leave the cell blank",
         )
 
