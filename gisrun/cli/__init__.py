@@ -12,8 +12,12 @@ shows the traceback).
 
 from __future__ import annotations
 
+import signal
 import sys
+import threading
 import traceback
+from collections.abc import Iterator
+from contextlib import contextmanager
 
 import click
 
@@ -23,8 +27,52 @@ from .main import cli
 __all__ = ["cli", "main"]
 
 
+#: Said when a run is stopped by Ctrl-C or SIGTERM: each output is written to a temporary file
+#: and moved into place only when complete, so none is ever half-written.
+INTERRUPTED = ("gisrun: interrupted; the output being written was discarded and any earlier "
+               "version of it is unchanged")
+
+
+class Terminated(BaseException):
+    """Raised in the main thread on SIGTERM so that cleanup code (``finally``) runs.
+
+    A ``BaseException``, like ``KeyboardInterrupt``, so ``except Exception`` does not catch it.
+    """
+
+
+def _raise_terminated(signum: int, _frame: object) -> None:
+    raise Terminated(signum)
+
+
+@contextmanager
+def _sigterm_raises() -> Iterator[None]:
+    """Turn SIGTERM into :class:`Terminated` while the command runs (main thread only)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGTERM, _raise_terminated)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Run the command line; return the exit code (also used as the console script)."""
+    """Run the command line; return the exit code (also used as the console script).
+
+    Exit codes: 0 success, 2 a problem the user can fix, 1 an internal error,
+    130 interrupted by Ctrl-C (SIGINT), 143 stopped by SIGTERM (128 + signal
+    number, common practice).
+    """
+    try:
+        with _sigterm_raises():
+            return _main(argv)
+    except Terminated:
+        click.echo(INTERRUPTED, err=True)
+        return 128 + signal.SIGTERM
+
+
+def _main(argv: list[str] | None) -> int:
     args = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in args
     try:
@@ -35,13 +83,13 @@ def main(argv: list[str] | None = None) -> int:
             traceback.print_exc()
         return 2
     except click.exceptions.Abort:
-        click.echo("gisrun: interrupted; no output was changed", err=True)
+        click.echo(INTERRUPTED, err=True)
         return 130
     except click.ClickException as err:
         err.show()
         return err.exit_code
     except KeyboardInterrupt:
-        click.echo("gisrun: interrupted; no output was changed", err=True)
+        click.echo(INTERRUPTED, err=True)
         return 130
     except Exception as err:  # noqa: BLE001 - the last line of defence
         if debug:

@@ -1,0 +1,94 @@
+"""A run stopped by Ctrl-C (SIGINT) or SIGTERM while writing leaves the earlier output intact.
+
+The demo is copied to ``tmp_path`` and run once to make an earlier output. A second run with
+``--overwrite`` starts in a subprocess; as soon as its temporary ``.partial`` GeoPackage appears
+beside the target (so it is writing), the test sends the signal. The earlier output must be
+byte-for-byte unchanged and no temporary file may remain. Exit codes 130 (SIGINT) and 143
+(SIGTERM) are 128 + the signal number (common practice).
+"""
+
+from __future__ import annotations
+
+import shutil
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from gisrun.cli import main
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
+WAIT_FOR_WRITING_S = 180.0
+
+pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="POSIX signals")
+
+
+@pytest.fixture(scope="module")
+def earlier_output(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The demo's GeoPackage from a finished run (written once for this module)."""
+    target = tmp_path_factory.mktemp("earlier") / "runoff.gpkg"
+    assert main(["run", str(DEMO), "--output", str(target), "--no-extras", "--quiet"]) == 0
+    return target
+
+
+def _snapshot(folder: Path) -> dict[str, bytes]:
+    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*"))
+            if p.is_file()}
+
+
+def _start_run(project: Path, target: Path) -> subprocess.Popen[str]:
+    # the child behaves as if started from a terminal: Ctrl-C raises KeyboardInterrupt even if
+    # this test process was started with SIGINT ignored (as background jobs are)
+    code = (
+        "import signal; signal.signal(signal.SIGINT, signal.default_int_handler)\n"
+        "from gisrun.cli import main\n"
+        f"raise SystemExit(main(['run', {str(project)!r}, '--output', {str(target)!r}, "
+        "'--overwrite', '--no-extras', '--quiet']))\n"
+    )
+    return subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+
+
+def _wait_until_writing(proc: subprocess.Popen[str], folder: Path) -> None:
+    deadline = time.monotonic() + WAIT_FOR_WRITING_S
+    while time.monotonic() < deadline:
+        if any(".partial" in p.name for p in folder.iterdir()):
+            return
+        if proc.poll() is not None:
+            out, err = proc.communicate()
+            pytest.fail(f"the run ended (exit {proc.returncode}) before writing began:\n{err}")
+        time.sleep(0.01)
+    proc.kill()
+    proc.communicate()
+    pytest.fail("no .partial file appeared in time")
+
+
+@pytest.mark.parametrize(("signum", "exit_code"), [(signal.SIGTERM, 143), (signal.SIGINT, 130)],
+                         ids=["SIGTERM", "SIGINT"])
+def test_interrupted_overwrite_keeps_the_earlier_output(tmp_path, earlier_output, signum,
+                                                         exit_code):
+    project = tmp_path / "demo"
+    shutil.copytree(DEMO, project, ignore=shutil.ignore_patterns("output"))
+    folder = tmp_path / "results"
+    folder.mkdir()
+    target = folder / "runoff.gpkg"
+    shutil.copyfile(earlier_output, target)
+    before = _snapshot(folder)
+
+    proc = _start_run(project, target)
+    _wait_until_writing(proc, folder)
+    proc.send_signal(signum)
+    try:
+        _, err = proc.communicate(timeout=120)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        proc.communicate()
+        pytest.fail("the run did not stop after the signal")
+
+    assert proc.returncode == exit_code, err
+    assert "Traceback" not in err
+    assert "interrupted" in err and "unchanged" in err
+    assert _snapshot(folder) == before  # same names (no temporary left) and same bytes
