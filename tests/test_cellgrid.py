@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import geopandas as gpd
 import numpy as np
 import pytest
 import rasterio
@@ -61,11 +62,28 @@ duration_min = 60
 """
 
 
+def write_geotiff(path: Path, codes: np.ndarray, *, origin: tuple[float, float], cell: float,
+                  nodata: float) -> Path:
+    """One-band GeoTIFF in EPSG:32617, row 0 northernmost, starting at ``origin`` (x, y)."""
+    from rasterio.transform import from_origin
+
+    with rasterio.open(path, "w", driver="GTiff", height=codes.shape[0], width=codes.shape[1],
+                       count=1, dtype=codes.dtype, crs="EPSG:32617", nodata=nodata,
+                       transform=from_origin(origin[0], origin[1], cell, cell)) as dst:
+        dst.write(codes, 1)
+    return path
+
+
+def write_polygons(path: Path, geoms: list, **fields: list) -> Path:
+    """Polygons with attribute columns into a GeoPackage layer ``subcatchments``."""
+    gdf = gpd.GeoDataFrame(dict(fields), geometry=list(geoms), crs="EPSG:32617")
+    gdf.to_file(path, layer="subcatchments", engine="pyogrio")
+    return path
+
+
 def tiny_project(folder: Path, *, combine: str = "units", rain_scale: tuple[float, float] | None
                  = None, cover_origin: tuple[float, float] = (0.0, 40.0)) -> Path:
     """Write the synthetic project into ``folder``; returns the project file."""
-    from conftest import write_geotiff, write_polygons
-
     folder.mkdir(parents=True, exist_ok=True)
     soil = np.ones((4, 6), dtype=np.uint8)
     soil[:, 3:] = 4
@@ -161,8 +179,6 @@ def test_cut_cell_weights_cover_and_subcatchment_parts_by_area(tiny):
 def patchy_project(folder: Path) -> Path:
     """A 600 m x 400 m case: soil and cover in patches of 40 m and 20 m, two subcatchments
     split by a slanted line, so cut cells are a few percent of each subcatchment's area."""
-    from conftest import write_geotiff, write_polygons
-
     tiny_project(folder)
     rows, cols = np.indices((40, 60))
     soil = np.where(((rows // 4) + (cols // 4)) % 3 == 0, 4, 1).astype(np.uint8)
