@@ -44,7 +44,8 @@ from .layers import layer_name
 from .units import from_si
 
 __all__ = ["Deliverables", "ExtrasOptions", "extras_folder", "staged_folder",
-           "check_plot_ids", "cell_unit_results", "write_cell_rasters", "write_deliverables", "write_extras",
+           "check_plot_ids", "cell_unit_results", "write_cell_rasters", "write_deliverables",
+           "write_extras",
            "write_all"]
 
 Progress = Callable[[str, int, int], None]
@@ -74,7 +75,7 @@ class Deliverables:
         }
 
     def moved_to(self, folder: Path) -> Deliverables:
-        """The same set with every path rebased from this folder to ``folder``."""
+        """Return the same set with every path rebased from this folder to ``folder``."""
         def rebase(p: Path | None) -> Path | None:
             return None if p is None else folder / Path(p).relative_to(self.folder)
         return Deliverables(
@@ -179,7 +180,7 @@ def _rain_scale(result: Any, params: pd.DataFrame) -> np.ndarray | None:
 def write_cell_rasters(result: Any, folder: Path, *, overwrite: bool = False,
                        progress: Progress | None = None) -> tuple[dict[str, dict[str, Path]],
                                                                    list[str]]:
-    """Cell-level runoff and time-to-ponding GeoTIFFs of every storm, on the soil grid.
+    """Write cell-level runoff and time-to-ponding GeoTIFFs of every storm, on the soil grid.
 
     Returns
     -------
@@ -261,7 +262,9 @@ class ExtrasOptions:
 def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = ExtrasOptions(),
                        gpkg: Path | None = None, progress: Progress | None = None
                        ) -> Deliverables:
-    """Write the extras into an existing, empty ``folder`` (no atomic move; see :func:`write_extras`).
+    """Write the extras into an existing, empty ``folder`` (no atomic move).
+
+    See :func:`write_extras` for the atomic version.
 
     ``gpkg`` is the run's GeoPackage, read for the excess series when the run
     streamed them there instead of keeping them in memory.
@@ -312,7 +315,7 @@ def _plot_ids(result: Any, named: Sequence[str]) -> list[str]:
 
 
 def check_plot_ids(subcatchments: gpd.GeoDataFrame, named: Sequence[str]) -> list[str]:
-    """The named subcatchment ids, checked against the layer.
+    """Check the named subcatchment ids against the layer and return them.
 
     Raises
     ------

@@ -113,7 +113,7 @@ def subcatchment_map(gdf: Any, column: str, *, title: str, label: str, crs: Any,
 def raster_map(values: NDArray[np.float64], extent: tuple[float, float, float, float], *,
                title: str, label: str, crs: Any, outlines: Any = None, cmap: str = "viridis",
                n_classes: int = 6) -> Figure:
-    """A float raster (NaN = nodata) with a classed colour bar and optional outlines."""
+    """Draw a float raster (NaN = nodata) with a classed colour bar and optional outlines."""
     edges, cm, norm = _classed(values, cmap, n_classes)
     fig, ax = plt.subplots(figsize=(8, 5.6), dpi=100)
     image = ax.imshow(np.ma.masked_invalid(values), extent=extent, cmap=cm, norm=norm,
@@ -175,8 +175,9 @@ class PerviousSeries:
 
 
 def pervious_series(loss: Any, params: pd.DataFrame, sub_id: str, dt_s: float) -> PerviousSeries:
-    """Area-weighted rain, infiltration capacity and infiltration over a subcatchment's
-    pervious units (capacity NaN where the method has no rate form).
+    """Area-weighted rain, infiltration capacity and infiltration over pervious units.
+
+    The capacity is NaN where the method has no rate form (curve number).
 
     Parameters
     ----------

@@ -52,7 +52,7 @@ class ReportFigures:
 
 def build_report(result: Any, figures: ReportFigures, *, ranking: tuple[pd.DataFrame, ...],
                  caution: str, files: Sequence[str] = (), top: int = 10) -> str:
-    """The report as one HTML document.
+    """Build the report as one HTML document.
 
     Parameters
     ----------

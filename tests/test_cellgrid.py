@@ -206,7 +206,7 @@ def test_area_weighted_cells_match_each_subcatchment_within_one_percent(tmp_path
 
 
 def coverage_weighted(raster, geom, transform):
-    """Mean of a raster over a polygon, each cell weighted by the polygon's exact cover (shapely)."""
+    """Mean of a raster over a polygon, cells weighted by the exact cover (shapely)."""
     rows, cols = np.indices(raster.shape)
     x0, y1 = transform @ (cols.ravel(), rows.ravel())
     x1, y0 = transform @ (cols.ravel() + 1, rows.ravel() + 1)

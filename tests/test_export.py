@@ -60,7 +60,8 @@ def test_csv_and_geopackage_round_trip(tiny_run):
     result, folder = tiny_run
     ids = result.subcatchments["subcatchment_id"].tolist()
     computed = model_inputs(result.parameters, ids, SI, default_method="green_ampt")
-    back = pd.read_csv(write_csv(folder / "model_inputs.csv", computed), dtype={"subcatchment_id": str})
+    back = pd.read_csv(write_csv(folder / "model_inputs.csv", computed),
+                       dtype={"subcatchment_id": str})
     assert_frame_equal(back, computed, check_dtype=False, rtol=1e-12)
     gpkg = write_outputs(result, output=folder / "out.gpkg")
     table = pyogrio.read_dataframe(gpkg, layer="model_inputs", read_geometry=False)

@@ -41,7 +41,8 @@ def cli(debug: bool) -> None:
 @click.option("--scheduler", metavar="ADDRESS",
               help="Run on an existing dask scheduler (tcp://host:8786), or 'synchronous'.")
 @click.option("--no-rasters", is_flag=True, help="Skip the cell-level GeoTIFFs.")
-@click.option("--no-maps", is_flag=True, help="Skip the PNG maps and plots (the report keeps them).")
+@click.option("--no-maps", is_flag=True,
+              help="Skip the PNG map files (the report still embeds them).")
 @click.option("--no-report", is_flag=True, help="Skip the HTML report.")
 @click.option("--no-extras", is_flag=True,
               help="Write only the GeoPackage (no <output>_files folder).")

@@ -21,7 +21,7 @@ class Display:
         self._tasks: dict[str, Any] = {}
 
     def step(self, text: str) -> None:
-        """A pipeline step started (shown as a spinner line)."""
+        """Show that a pipeline step started (a spinner line)."""
         if self._progress is None:
             return
         if self._step is not None:
@@ -29,7 +29,7 @@ class Display:
         self._step = self._progress.add_task(text, total=None)
 
     def advance(self, task: str, done: int, total: int) -> None:
-        """A counted step (cell raster bands, maps) moved on."""
+        """Move a counted step (cell raster bands, maps) on."""
         if self._progress is None:
             return
         if self._step is not None:

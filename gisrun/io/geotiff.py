@@ -41,7 +41,7 @@ class GridSpec:
 
 
 def grid_of(raster: Any) -> GridSpec:
-    """The grid of a :class:`gisrun.io.raster.ClassRaster`, nodata falling back to -9999."""
+    """Return the grid of a :class:`gisrun.io.raster.ClassRaster` (nodata -9999 if none)."""
     nodata = raster.nodata
     if nodata is None or (isinstance(nodata, float) and np.isnan(nodata)):
         nodata = DEFAULT_NODATA
