@@ -26,13 +26,16 @@ storage, spread over the step):
    concave, increasing :math:`F` (first guess :math:`i\Delta t / f(t_e)`, a
    lower bound; iterates increase monotonically to the root).
 
+The state is kept as the decay factor :math:`e = e^{-k t_e}`, so the capacity is
+:math:`f_c + (f_0 - f_c)\,e` and the ponding point is
+:math:`e_p = (i - f_c)/(f_0 - f_c)` without logarithms of times.
+
 Recovery (optional, ``horton_recovery_per_s`` :math:`k_r > 0`): in a step with
 no supply the capacity relaxes back toward :math:`f_0`,
-:math:`f \leftarrow f_0 - (f_0 - f)\,e^{-k_r \Delta t}`, and :math:`t_e` is set
-from the new capacity (common practice for continuous simulation; a
-first-order drying recovery as described e.g. by Bedient and Huber, Hydrology
-and Floodplain Analysis -- from memory). Without recovery the capacity does not
-change during dry spells.
+:math:`f \leftarrow f_0 - (f_0 - f)\,e^{-k_r \Delta t}` (i.e.
+:math:`1 - e \leftarrow (1 - e)\,e^{-k_r \Delta t}`); a first-order drying
+recovery is common practice in continuous simulation. Without recovery the
+capacity does not change during dry spells.
 
 Water that does not infiltrate fills depression storage; the rest is excess.
 
@@ -55,11 +58,11 @@ import pandas as pd
 from ..errors import ParameterError
 from .base import PARAMETER_FRAME, FloatArray, StepResult, read_column, split_surface_water
 
-__all__ = ["NAME", "Params", "State", "initial_state", "step", "curve_increment_m"]
+__all__ = ["NAME", "Params", "State", "initial_state", "step", "capacity_m_per_s"]
 
 NAME = "horton"
 
-_RTOL = 1e-12
+_RTOL = 1e-11
 _MAX_NEWTON = 100
 
 
@@ -125,15 +128,20 @@ def _check_f0_above_fc(frame: pd.DataFrame, f0: FloatArray, fc: FloatArray) -> N
     if bad.size:
         row = frame.index[bad[0]]
         raise ParameterError(f"{PARAMETER_FRAME}:horton_f0_m_per_s:row {row!r}",
-                             f"initial capacity {float(f0[bad[0]])!r} m/s is below the final capacity "
-                             f"{float(fc[bad[0]])!r} m/s", "give horton_f0_m_per_s >= horton_fc_m_per_s")
+                             f"initial capacity {float(f0[bad[0]])!r} m/s is below the final "
+                             f"capacity {float(fc[bad[0]])!r} m/s",
+                             "give horton_f0_m_per_s >= horton_fc_m_per_s")
 
 
 @dataclass(frozen=True)
 class State:
-    """Horton state per unit: equivalent time on the ponded curve, storage, ponded flag."""
+    """Horton state per unit.
 
-    equivalent_time_s: FloatArray
+    ``decay_factor`` is ``exp(-k t_e)`` at the equivalent time ``t_e`` on the ponded curve
+    (1 when dry), so the capacity is ``fc + (f0 - fc) * decay_factor``.
+    """
+
+    decay_factor: FloatArray
     storage_m: FloatArray
     ponded: np.ndarray
 
@@ -141,23 +149,12 @@ class State:
 def initial_state(params: Params) -> State:
     """Dry start: capacity ``f0``, empty storage, not ponded."""
     n = params.f0_m_per_s.shape[0]
-    return State(np.zeros(n), np.zeros(n), np.zeros(n, dtype=bool))
+    return State(np.ones(n), np.zeros(n), np.zeros(n, dtype=bool))
 
 
-def capacity_m_per_s(params: Params, equivalent_time_s: FloatArray) -> FloatArray:
-    """Horton capacity ``fc + (f0 - fc) exp(-k t)`` at an equivalent time, m/s."""
-    p = params
-    return p.fc_m_per_s + (p.f0_m_per_s - p.fc_m_per_s) * np.exp(-p.decay_per_s * equivalent_time_s)
-
-
-def curve_increment_m(params: Params, start_s: FloatArray, duration_s: FloatArray) -> FloatArray:
-    """``F(start + duration) - F(start)`` on the ponded Horton curve, m (exact, no cancellation)."""
-    p = params
-    k = p.decay_per_s
-    decayed = -np.expm1(-k * duration_s) / np.where(k > 0, k, 1.0)
-    decayed = np.where(k > 0, decayed, duration_s)
-    return (p.fc_m_per_s * duration_s
-            + (p.f0_m_per_s - p.fc_m_per_s) * np.exp(-k * start_s) * decayed)
+def capacity_m_per_s(params: Params, decay_factor: FloatArray) -> FloatArray:
+    """Horton capacity ``fc + (f0 - fc) exp(-k t_e)`` from the decay factor, m/s."""
+    return params.fc_m_per_s + (params.f0_m_per_s - params.fc_m_per_s) * decay_factor
 
 
 def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple[State, StepResult]:
@@ -167,83 +164,76 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     -------
     (State, StepResult)
     """
-    p, te = params, state.equivalent_time_s
+    p, e = params, state.decay_factor
     supply = rain_m + state.storage_m
-    rate = supply / dt_s
-    cap0 = capacity_m_per_s(p, te)
-    wet = supply > 0
-    ponded_start = wet & (rate >= cap0)
-    t_pond, tau_pond = _ponding_point(p, te, rate, ponded_start)
-    ponds_inside = tau_pond < dt_s
-    ponded = ponded_start | ponds_inside
-    advance = np.where(ponded_start, dt_s, (t_pond - te) + (dt_s - tau_pond))
-    advance = np.where(ponded, advance, 0.0)
-    d_infil = np.where(ponded, curve_increment_m(p, te, advance), supply)
-    d_infil = np.clip(d_infil, 0.0, supply)
-    unponded_wet = wet & ~ponded
-    te_new = te + advance
-    te_new = np.where(unponded_wet, te + _advance_for_depth(p, te, supply, unponded_wet), te_new)
-    te_new = np.where(wet, te_new, _recover(p, te, dt_s))
+    d_infil = supply.copy()  # all infiltrates unless the unit ponds
+    ponded = np.zeros(supply.shape, dtype=bool)
+    offset = np.full(supply.shape, np.nan)
+    e_new = e.copy()
+    hi = np.flatnonzero(supply > p.fc_m_per_s * dt_s)  # only these can pond
+    if hi.size:
+        d_sub, ponded_sub, tau_sub, e_sub = _above_fc(p, hi, e[hi], supply[hi], dt_s)
+        d_infil[hi], ponded[hi], e_new[hi] = d_sub, ponded_sub, e_sub
+        offset[hi] = np.where(ponded_sub & ~state.ponded[hi], tau_sub, np.nan)
+    light = np.flatnonzero((supply > 0) & ~ponded & (p.decay_per_s > 0))
+    if light.size:
+        e_new[light] = _after_infiltrating(p, light, e[light], supply[light])
+    dry = np.flatnonzero((supply <= 0) & (p.recovery_per_s > 0))
+    if dry.size:  # first-order recovery of the capacity toward f0
+        e_new[dry] = 1.0 - (1.0 - e[dry]) * np.exp(-p.recovery_per_s[dry] * dt_s)
     storage, excess = split_surface_water(supply - d_infil, p.depression_storage_m)
-    new_start = ~state.ponded
-    offset = np.where(ponded_start & new_start, 0.0,
-                      np.where(ponds_inside & new_start, tau_pond, np.nan))
-    result = StepResult(d_infil, excess, capacity_m_per_s(p, te_new), offset)
-    return State(te_new, storage, ponded), result
+    result = StepResult(d_infil, excess, capacity_m_per_s(p, e_new), offset)
+    return State(e_new, storage, ponded), result
 
 
-def _ponding_point(p: Params, te: FloatArray, rate: FloatArray,
-                   ponded_start: np.ndarray) -> tuple[FloatArray, FloatArray]:
-    """Equivalent time where capacity falls to ``rate`` and the step time to get there.
+def _decayed_s(k: FloatArray, duration_s: FloatArray) -> FloatArray:
+    """``(1 - exp(-k d)) / k``, and ``d`` where ``k = 0``, s."""
+    positive = k > 0
+    return np.where(positive, -np.expm1(-k * duration_s) / np.where(positive, k, 1.0), duration_s)
 
-    Returns ``(t_p, tau_p)``; ``tau_p = inf`` where the unit cannot pond this way.
+
+def _above_fc(p: Params, idx: np.ndarray, e: FloatArray, supply: FloatArray, dt_s: float
+              ) -> tuple[FloatArray, np.ndarray, FloatArray, FloatArray]:
+    """Units whose supply rate exceeds fc: (infiltration, ponded, tau_p, new decay factor).
+
+    The capacity falls to the rate ``i`` at decay factor ``e_p = (i - fc) / (f0 - fc)``, after
+    infiltrating ``D_p = [fc ln(e / e_p) + (f0 - fc)(e - e_p)] / k``, i.e. ``tau_p = D_p / i``
+    into the step (0 if ponded from the start); then the ponded curve for ``dt - tau_p``.
     """
-    span = p.f0_m_per_s - p.fc_m_per_s
-    can = ~ponded_start & (rate > p.fc_m_per_s) & (p.decay_per_s > 0) & (span > 0)
-    ratio = np.where(can, (rate - p.fc_m_per_s) / np.where(can, span, 1.0), 1.0)
-    with np.errstate(over="ignore"):  # a decay constant near 0 puts t_p beyond float range
-        t_p = -np.log(ratio) / np.where(can, p.decay_per_s, 1.0)
-    can &= np.isfinite(t_p)
-    t_p = np.where(can, np.maximum(t_p, te), te)
-    with np.errstate(over="ignore"):  # inf: cannot pond within any step
-        tau = curve_increment_m(p, te, t_p - te) / np.where(can, rate, 1.0)
-    return t_p, np.where(can, tau, np.inf)
+    k, fc = p.decay_per_s[idx], p.fc_m_per_s[idx]
+    span = p.f0_m_per_s[idx] - fc
+    rate = supply / dt_s
+    start = rate >= fc + span * e
+    can = ~start & (k > 0)  # k = 0: constant capacity f0 above the rate, never ponds
+    e_p = np.where(can, (rate - fc) / np.where(can, span, 1.0), e)
+    with np.errstate(over="ignore", divide="ignore"):  # k near 0: ponds beyond float range
+        depth = np.where(can, (fc * np.log(e / e_p) + span * (e - e_p)) / np.where(can, k, 1.0),
+                         np.where(start, 0.0, np.inf))
+        tau = depth / rate
+    ponded = tau < dt_s
+    rest = np.where(ponded, dt_s - tau, 0.0)
+    gain = fc * rest + span * e_p * _decayed_s(k, rest)
+    d_infil = np.where(ponded, np.minimum(np.where(ponded, depth, 0.0) + gain, supply), supply)
+    e_new = np.where(ponded, e_p * np.exp(-k * rest), e)
+    return d_infil, ponded, np.where(ponded, tau, np.nan), e_new
 
 
-def _advance_for_depth(p: Params, te: FloatArray, depth_m: FloatArray,
-                       mask: np.ndarray) -> FloatArray:
-    """Equivalent-time advance ``d`` with ``F(te + d) - F(te) = depth`` where ``mask``, s."""
-    d = np.zeros_like(te)
-    idx = np.flatnonzero(mask)
-    if idx.size == 0:
-        return d
-    sub = _SubParams(p, idx)
-    t0, target = te[idx], depth_m[idx]
-    x = target / capacity_m_per_s(sub, t0)  # first Newton step from 0: a lower bound
+def _after_infiltrating(p: Params, idx: np.ndarray, e: FloatArray, depth_m: FloatArray
+                        ) -> FloatArray:
+    """Return the decay factor after ``depth_m`` infiltrated without ponding (``k > 0``).
+
+    Solves ``fc u + (f0 - fc) e (1 - exp(-u)) = k D`` for ``u = k d`` by Newton's method
+    (concave, increasing; from the lower bound ``k D / f(e)`` iterates increase to the
+    root), then returns ``e exp(-u)``.
+    """
+    k, fc = p.decay_per_s[idx], p.fc_m_per_s[idx]
+    amp = (p.f0_m_per_s[idx] - fc) * e
+    target = k * depth_m
+    u = target / (fc + amp)
     for _ in range(_MAX_NEWTON):
-        miss = target - curve_increment_m(sub, t0, x)
-        todo = np.abs(miss) > _RTOL * target
+        miss = target - (fc * u - amp * np.expm1(-u))
+        todo = miss > _RTOL * target
         if not todo.any():
             break
-        x = x + np.where(todo, miss / capacity_m_per_s(sub, t0 + x), 0.0)
-    d[idx] = x
-    return d
-
-
-def _recover(p: Params, te: FloatArray, dt_s: float) -> FloatArray:
-    """Equivalent time after a dry step with recovery toward ``f0`` (unchanged if none)."""
-    k, kr = p.decay_per_s, p.recovery_per_s
-    use = (kr > 0) & (k > 0)
-    # fraction of the (f0 - fc) span lost: 1 - exp(-k te), relaxed by exp(-kr dt)
-    lost = -np.expm1(-k * te) * np.exp(-kr * dt_s)
-    te_rec = -np.log1p(-np.minimum(lost, 1.0 - 1e-16)) / np.where(use, k, 1.0)
-    return np.where(use, te_rec, te)
-
-
-class _SubParams:
-    """A view of some units' Horton parameters (no checks; internal to Newton)."""
-
-    def __init__(self, p: Params, idx: np.ndarray) -> None:
-        self.f0_m_per_s = p.f0_m_per_s[idx]
-        self.fc_m_per_s = p.fc_m_per_s[idx]
-        self.decay_per_s = p.decay_per_s[idx]
+        u = u + np.where(todo, miss / (fc + amp * np.exp(-u)), 0.0)
+    return e * np.exp(-u)

@@ -33,7 +33,7 @@ DEFAULTS = {
 
 
 def unit_frame(n: int = 1, **columns: object) -> pd.DataFrame:
-    """A unit parameter frame of ``n`` rows: defaults for every method, overridden by ``columns``."""
+    """Unit parameter frame of ``n`` rows: defaults for every method, overridden by ``columns``."""
     data = {k: np.broadcast_to(np.asarray(v), (n,)).copy() for k, v in DEFAULTS.items()}
     for k, v in columns.items():
         data[k] = np.broadcast_to(np.asarray(v), (n,)).copy()

@@ -7,8 +7,14 @@ import pytest
 from engine_helpers import unit_frame
 from numpy.testing import assert_array_equal
 
-from gisrun.engine import ENGINES, LossResult, method_name, run_losses, unique_parameter_sets
-from gisrun.engine import green_ampt
+from gisrun.engine import (
+    ENGINES,
+    LossResult,
+    green_ampt,
+    method_name,
+    run_losses,
+    unique_parameter_sets,
+)
 from gisrun.errors import ParameterError, StormError
 
 RAIN = np.array([0.0, 0.002, 0.006, 0.009, 0.004, 0.001, 0.0, 0.0])
