@@ -6,7 +6,8 @@ from pathlib import Path
 import pytest
 
 PACKAGE = Path(__file__).resolve().parents[1] / "gisrun"
-COMPUTE = ["overlay.py", "storm.py", "aggregate.py", "layers.py", "engine", "parameters"]
+COMPUTE = ["overlay.py", "storm.py", "aggregate.py", "layers.py", "cellgrid.py", "maps.py",
+           "report.py", "export.py", "chunked.py", "engine", "parameters"]
 IO_LIBRARIES = {"rasterio", "pyogrio", "fiona", "sqlite3"}
 
 
