@@ -517,6 +517,7 @@ def run_and_write(
     progress: Progress | None = None,
     workers: int | None = None,
     scheduler: str | None = None,
+    into: str | Path | None = None,
 ) -> tuple[RunResult, Path]:
     """Run a project and write its GeoPackage, streaming the series chunk by chunk.
 
@@ -525,20 +526,32 @@ def run_and_write(
     is computed. The GeoPackage is built in a temporary file beside the target
     and moved into place only when complete.
 
+    With ``into`` the layers are added to that existing GeoPackage instead
+    (a copy is built beside it and replaces it when complete); its other
+    layers are kept as they are, and a layer of the same name is replaced
+    only with ``overwrite``.
+
     Raises
     ------
     OutputExistsError
-        If the output exists and ``overwrite`` is false (checked before any work).
+        If the output (or, with ``into``, a layer name) exists and ``overwrite`` is false.
     """
-    from .io.output import append_table, atomic_target, write_layers_into
-    from .layers import build_layers, series_layer
+    from .io.output import append_table, open_output, write_layers_into
+    from .layers import build_layers, series_layer, storm_layer_name
 
     if not isinstance(project, Project):
         project = load_project(project)
-    target = Path(output) if output else project.output
-    with atomic_target(target, overwrite=overwrite) as tmp:
+    target = Path(into or output or project.output)
+    with open_output(target, into_existing=into is not None, overwrite=overwrite) as (tmp, check):
+        if into is not None:  # refuse a taken layer name before the work, not after it
+            check(["excess_series", "run_info",
+                   *(storm_layer_name(h.name) for h in read_storms(project))])
+        started: set[str] = set()
+
         def sink(_: int, name: str, series: pd.DataFrame) -> None:
-            append_table(tmp, "excess_series", series_layer(series, name, project.units))
+            append_table(tmp, "excess_series", series_layer(series, name, project.units),
+                         replace=not started)
+            started.add(name)
 
         count = len(read_subcatchment_layer(project)) if workers or scheduler else 0
         result = run(project, progress=progress, workers=workers, scheduler=scheduler,
@@ -546,5 +559,6 @@ def run_and_write(
         (progress or _quiet)("writing outputs")
         layers = build_layers(result)
         layers.pop("excess_series", None)
+        check(layers)
         write_layers_into(tmp, layers)
     return result, target

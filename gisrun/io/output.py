@@ -11,9 +11,10 @@ from __future__ import annotations
 
 import os
 import shutil
+import sqlite3
 import tempfile
-from collections.abc import Iterator, Mapping
-from contextlib import contextmanager
+from collections.abc import Callable, Iterable, Iterator, Mapping
+from contextlib import closing, contextmanager
 from pathlib import Path
 
 import geopandas as gpd
@@ -22,7 +23,19 @@ import pyogrio
 
 from ..errors import OutputError, OutputExistsError
 
-__all__ = ["atomic_target", "write_geopackage", "write_csv", "write_layers_into", "append_table"]
+__all__ = [
+    "atomic_target",
+    "write_geopackage",
+    "write_csv",
+    "write_layers_into",
+    "append_table",
+    "existing_geopackage_copy",
+    "write_layers_into_existing",
+    "open_output",
+]
+
+#: Checks layer names before they are written; raises if one may not be replaced.
+LayerCheck = Callable[[Iterable[str]], None]
 
 
 @contextmanager
@@ -163,9 +176,149 @@ def write_layers_into(path: str | Path, layers: Mapping[str, pd.DataFrame]) -> N
         _write_layer(Path(path), name, frame)
 
 
-def append_table(path: str | Path, name: str, frame: pd.DataFrame) -> None:
-    """Append rows to a table of a GeoPackage being built, creating it on first use."""
+def append_table(path: str | Path, name: str, frame: pd.DataFrame, *,
+                 replace: bool = False) -> None:
+    """Append rows to a table of a GeoPackage being built, creating it on first use.
+
+    With ``replace`` an existing table of that name is replaced instead (the
+    first rows a run writes into a copy of a user's GeoPackage).
+    """
     path = Path(path)
     exists = path.exists() and name in {row[0] for row in pyogrio.list_layers(path)}
     frame = _plain_columns(frame)
-    pyogrio.write_dataframe(frame, path, driver="GPKG", layer=name, append=exists)
+    pyogrio.write_dataframe(frame, path, driver="GPKG", layer=name, append=exists and not replace)
+
+
+_SQLITE_MAGIC = b"SQLite format 3\x00"
+
+
+def _existing_layers(target: Path) -> list[str]:
+    """Layer names of an existing GeoPackage, or an :class:`OutputError` saying why not."""
+    fix = "give an existing GeoPackage (.gpkg), or write a new file with --output"
+    if not target.is_file():
+        raise OutputError(str(target), "does not exist or is not a file", fix)
+    try:
+        with open(target, "rb") as handle:
+            is_sqlite = handle.read(len(_SQLITE_MAGIC)) == _SQLITE_MAGIC
+        with closing(sqlite3.connect(f"{target.resolve().as_uri()}?mode=ro", uri=True)) as db:
+            is_gpkg = is_sqlite and db.execute(
+                "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'gpkg_contents'"
+            ).fetchone() is not None
+    except (OSError, sqlite3.Error) as err:
+        raise OutputError(str(target), f"cannot be read ({err})", fix) from None
+    if not is_gpkg:
+        raise OutputError(str(target), "is not a GeoPackage", fix)
+    return [str(row[0]) for row in pyogrio.list_layers(target)]
+
+
+@contextmanager
+def existing_geopackage_copy(target: str | Path, *, overwrite: bool
+                             ) -> Iterator[tuple[Path, LayerCheck]]:
+    """Yield a temporary copy of a user's GeoPackage beside it; move it back on success.
+
+    The caller adds layers to the copy; the user's other layers are never
+    touched, and the file is replaced in one rename only when all is written,
+    so a failed or interrupted run leaves it as it was.
+
+    Parameters
+    ----------
+    target : path
+        An existing GeoPackage.
+    overwrite : bool
+        Whether layers already in it may be replaced by layers of the same name.
+
+    Yields
+    ------
+    path : Path
+        The temporary copy to write into.
+    check : callable
+        ``check(names)`` raises :class:`OutputExistsError` for a name that is
+        already a layer of ``target`` (unless ``overwrite``); call it before
+        writing those layers.
+
+    Raises
+    ------
+    OutputError
+        If ``target`` is not an existing GeoPackage or cannot be copied or replaced.
+    """
+    target = Path(target).resolve()  # replace the file a link points to, not the link
+    existing = {name.lower(): name for name in _existing_layers(target)}
+
+    def check(names: Iterable[str]) -> None:
+        for name in names:
+            taken = existing.get(name.lower())
+            if taken is not None and taken != name:  # SQLite table names ignore case
+                raise OutputExistsError(
+                    f"{target}:{taken}", f"differs from gisrun's layer {name!r} only in case",
+                    "rename that layer or choose another GeoPackage")
+            if taken is not None and not overwrite:
+                raise OutputExistsError(
+                    f"{target}:{existing[name.lower()]}", "is already a layer of this GeoPackage",
+                    "pass --overwrite to replace it (other layers are kept), or choose another "
+                    "GeoPackage")
+
+    with atomic_target(target, overwrite=True) as tmp:
+        _copy_geopackage(target, tmp)
+        yield tmp, check
+        shutil.copymode(target, tmp)
+
+
+def _copy_geopackage(src: Path, dst: Path) -> None:
+    """Copy a SQLite database consistently (pending journal or WAL content included)."""
+    try:
+        with closing(sqlite3.connect(f"{src.as_uri()}?mode=ro", uri=True)) as source, \
+                closing(sqlite3.connect(dst)) as copy:
+            source.backup(copy)
+    except sqlite3.Error as err:
+        raise OutputError(str(src), f"cannot be copied ({err})",
+                          "check that the GeoPackage is readable and the disk has space") from None
+
+
+def write_layers_into_existing(target: str | Path, layers: Mapping[str, pd.DataFrame], *,
+                               overwrite: bool = False) -> Path:
+    """Add layers to a user's existing GeoPackage, atomically, keeping every other layer.
+
+    Parameters
+    ----------
+    target : path
+        The user's GeoPackage.
+    layers : mapping of str to DataFrame or GeoDataFrame
+        Layer name to content.
+    overwrite : bool
+        Replace layers of ``target`` that have the same names.
+
+    Returns
+    -------
+    Path
+        ``target``.
+
+    Raises
+    ------
+    OutputExistsError
+        If a layer name is taken and ``overwrite`` is false (nothing is changed).
+    OutputError
+        If ``target`` is not a GeoPackage or cannot be written.
+    """
+    with existing_geopackage_copy(target, overwrite=overwrite) as (tmp, check):
+        check(layers)
+        write_layers_into(tmp, layers)
+    return Path(target)
+
+
+@contextmanager
+def open_output(target: str | Path, *, into_existing: bool, overwrite: bool
+                ) -> Iterator[tuple[Path, LayerCheck]]:
+    """A new GeoPackage (:func:`atomic_target`) or a copy of an existing one to add layers to.
+
+    Yields the temporary path and a layer-name check (a no-op for a new file).
+    """
+    if into_existing:
+        with existing_geopackage_copy(target, overwrite=overwrite) as opened:
+            yield opened
+        return
+    with atomic_target(target, overwrite=overwrite) as tmp:
+        yield tmp, _no_check
+
+
+def _no_check(_: Iterable[str]) -> None:
+    return None
