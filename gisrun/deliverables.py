@@ -286,7 +286,11 @@ def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = Ex
         say("model inputs", 0, 1)
         inputs, series = _model_tables(result, gpkg)
         out.model_inputs = write_csv(folder / "model_inputs.csv", inputs)
-        out.excess_series = write_csv(folder / "excess_series.csv", series)
+        if series is None:  # streamed into the GeoPackage: copy it in batches
+            out.excess_series = _copy_table_to_csv(gpkg, "excess_series",
+                                                   folder / "excess_series.csv")
+        else:
+            out.excess_series = write_csv(folder / "excess_series.csv", series)
         say("model inputs", 1, 1)
     figures = _write_maps(result, out, plots, say) if (options.maps or options.report) else None
     if not options.maps:
@@ -297,7 +301,7 @@ def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = Ex
     return out
 
 
-def _model_tables(result: Any, gpkg: Path | None) -> tuple[pd.DataFrame, pd.DataFrame]:
+def _model_tables(result: Any, gpkg: Path | None) -> tuple[pd.DataFrame, pd.DataFrame | None]:
     from .export import excess_series_table, model_inputs
 
     sub_ids = result.subcatchments["subcatchment_id"].astype(str).tolist()
@@ -305,9 +309,27 @@ def _model_tables(result: Any, gpkg: Path | None) -> tuple[pd.DataFrame, pd.Data
     inputs = model_inputs(result.parameters, sub_ids, system, default_method=result.project.method)
     if all(s.series is not None and len(s.series) for s in result.storms) or gpkg is None:
         return inputs, excess_series_table(result.storms, system)
-    import pyogrio  # the run streamed its series into the GeoPackage: copy them from there
+    return inputs, None  # the run streamed its series into the GeoPackage
 
-    return inputs, pyogrio.read_dataframe(gpkg, layer="excess_series", read_geometry=False)
+
+def _copy_table_to_csv(gpkg: Path, table: str, target: Path, batch_rows: int = 500_000) -> Path:
+    """Copy a GeoPackage table to CSV in batches, so memory does not grow with its size."""
+    import csv
+    import sqlite3
+
+    from .io.output import atomic_target
+
+    with atomic_target(target, overwrite=True) as tmp, \
+            sqlite3.connect(f"file:{gpkg}?mode=ro", uri=True) as con, \
+            open(tmp, "w", newline="", encoding="utf-8") as handle:
+        cursor = con.execute(f'SELECT * FROM "{table}" ORDER BY fid')  # noqa: S608 - our name
+        names = [d[0] for d in cursor.description if d[0] != "fid"]
+        keep = [i for i, d in enumerate(cursor.description) if d[0] != "fid"]
+        writer = csv.writer(handle)
+        writer.writerow(names)
+        while rows := cursor.fetchmany(batch_rows):
+            writer.writerows([row[i] for i in keep] for row in rows)
+    return target
 
 
 def _plot_ids(result: Any, named: Sequence[str]) -> list[str]:

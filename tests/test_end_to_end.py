@@ -155,3 +155,12 @@ def test_check_unknown_soil_code(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "soil_groups.tif" in err and "9" in err
     assert main(["check", str(DEMO)]) == 0
+
+
+def test_series_csv_is_a_batched_copy_of_the_streamed_table(demo_output):
+    # the CLI streams the series into the GeoPackage chunk by chunk and copies it to CSV in
+    # batches; both must hold the same rows
+    csv = pd.read_csv(demo_output.parent / f"{demo_output.stem}_files" / "excess_series.csv")
+    table = pyogrio.read_dataframe(demo_output, layer="excess_series")
+    assert list(csv.columns) == list(table.columns)
+    pd.testing.assert_frame_equal(csv, table, check_dtype=False)
