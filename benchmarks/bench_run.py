@@ -62,7 +62,8 @@ def write_geopackage_once(source: Path, target: Path) -> float:
 
 
 def measured_run(project: Path, output: Path, extra: list[str] | None = None) -> dict:
-    args = ["run", str(project), "--output", str(output), "--overwrite", "--quiet", *(extra or [])]
+    args = ["run", str(project), "--output", str(output), "--overwrite", "--quiet", "--no-extras",
+            *(extra or [])]
     proc = subprocess.run([sys.executable, "-c", MEASURE, *args], capture_output=True, text=True,
                           check=False)
     line = [ln for ln in proc.stdout.splitlines() if ln.startswith("MEASURED")]
