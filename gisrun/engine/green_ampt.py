@@ -109,6 +109,7 @@ class Params:
     moisture_deficit: FloatArray
     depression_storage_m: FloatArray
     suction_deficit_m: FloatArray = field(init=False)
+    ks_suction_m2_per_s: FloatArray = field(init=False)
 
     def __post_init__(self) -> None:
         arrays = [np.asarray(getattr(self, n), dtype=np.float64) for n in
@@ -123,6 +124,7 @@ class Params:
         if np.any(self.moisture_deficit > 1):
             raise ValueError("Green-Ampt moisture_deficit must be <= 1")
         object.__setattr__(self, "suction_deficit_m", self.suction_head_m * self.moisture_deficit)
+        object.__setattr__(self, "ks_suction_m2_per_s", self.ks_m_per_s * self.suction_deficit_m)
 
     @classmethod
     def from_frame(cls, frame: pd.DataFrame) -> Params:
@@ -203,7 +205,7 @@ def _above_ks(ks: FloatArray, pd_m: FloatArray, f0: FloatArray, supply: FloatArr
     ponded = t_pond < dt_s
     start = np.where(ponded, np.maximum(f_pond, f0), f0)
     tau = np.where(ponded, dt_s - t_pond, 0.0)
-    gain = ponded_increment_m(start, pd_m, ks * tau)
+    gain = _solve_ponded(start, pd_m, ks * tau)
     d_infil = np.where(ponded, np.minimum((start - f0) + gain, supply), supply)
     return d_infil, ponded, t_pond
 
@@ -213,11 +215,13 @@ def capacity_m_per_s(params: Params, infil_m: FloatArray) -> FloatArray:
 
     ``inf`` at ``F = 0`` where ``Ks > 0`` and ``P > 0``; ``Ks`` where ``P = 0``.
     """
-    ks, pd_m = params.ks_m_per_s, params.suction_deficit_m
-    wet = infil_m > 0
-    with np.errstate(over="ignore"):  # F of a few 1e-308 m: capacity beyond float range
-        cap = ks * (1.0 + pd_m / np.where(wet, infil_m, 1.0))
-    return np.where(wet, cap, np.where(ks * pd_m > 0, np.inf, ks))
+    # F of a few 1e-308 m or F = 0: capacity beyond float range (inf); 0/0 where Ks P = 0
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        cap = params.ks_m_per_s + params.ks_suction_m2_per_s / infil_m
+    undefined = np.isnan(cap)
+    if undefined.any():
+        cap[undefined] = params.ks_m_per_s[undefined]
+    return cap
 
 
 def ponded_increment_m(start_m: FloatArray, suction_deficit_m: FloatArray,
@@ -249,6 +253,11 @@ def ponded_increment_m(start_m: FloatArray, suction_deficit_m: FloatArray,
     """
     fs, p, k = np.broadcast_arrays(*(np.asarray(a, dtype=np.float64)
                                      for a in (start_m, suction_deficit_m, ks_time_m)))
+    return _solve_ponded(fs, p, k)
+
+
+def _solve_ponded(fs: FloatArray, p: FloatArray, k: FloatArray) -> FloatArray:
+    """:func:`ponded_increment_m` for float64 arrays of one shape."""
     scale = fs + p
     # P + Fs below 1e-200 m: the suction term P ln(1 + G/(P+Fs)) is below 1e-197 m, so the
     # capacity is the constant Ks and G = Ks tau (this also covers P = Fs = 0).
@@ -257,8 +266,11 @@ def ponded_increment_m(start_m: FloatArray, suction_deficit_m: FloatArray,
     b = np.where(has_scale, fs / q, 1.0)
     t = np.where(has_scale, k / q, k)
     y = _first_guess(b, t)
-    active = np.flatnonzero(t > 0)
-    ya, ba, ta = y[active], b[active], t[active]
+    if np.all(t > 0):
+        active, ya, ba, ta = slice(None), y, b, t
+    else:
+        active = np.flatnonzero(t > 0)
+        ya, ba, ta = y[active], b[active], t[active]
     for _ in range(_MAX_NEWTON):
         r = _residual(ya, ba, ta)
         # the absolute floor only matters for subnormal K tau, where precision is lost
@@ -270,7 +282,9 @@ def ponded_increment_m(start_m: FloatArray, suction_deficit_m: FloatArray,
         todo &= np.abs(move) > 4e-16 * ya  # stop where float precision is exhausted
         if not todo.all():
             y[active] = ya
-            active, ya, ba, ta = active[todo], ya[todo], ba[todo], ta[todo]
+            keep = np.flatnonzero(todo)
+            active = keep if isinstance(active, slice) else active[keep]
+            ya, ba, ta = ya[keep], ba[keep], ta[keep]
     else:  # pragma: no cover - convex increasing equation from a positive guess converges
         raise RuntimeError("Green-Ampt Newton iteration did not converge")
     y[active] = ya
@@ -285,9 +299,10 @@ def _first_guess(b: FloatArray, t: FloatArray) -> FloatArray:
     ``O(y^3)`` (below 3e-6 for ``y <= 0.01``, 3e-4 for ``y <= 0.1``). Newton on the convex,
     increasing residual converges from any positive guess.
     """
+    t = np.minimum(t, 1e150)  # keeps the squares finite; Newton takes it from there
     a2 = 3.0 + b
     b1 = 6.0 * b - 4.0 * t
-    root = np.hypot(b1, np.sqrt(24.0 * a2 * t))
+    root = np.sqrt(b1 * b1 + 24.0 * a2 * t)
     pos = b1 >= 0  # pick the form of the quadratic root that does not cancel
     return np.where(pos, 12.0 * t / np.where(pos, np.maximum(b1 + root, 1e-300), 1.0),
                     0.5 * (root - b1) / a2)
@@ -299,8 +314,9 @@ def _residual(y: FloatArray, b: FloatArray, t: FloatArray) -> FloatArray:
 
 
 def _y_minus_log1p(y: FloatArray) -> FloatArray:
+    out = y - np.log1p(y)
     small = y < _SERIES_BELOW
-    ys = np.minimum(y, _SERIES_BELOW)
-    series = ys * ys * (0.5 - ys * (1.0 / 3.0 - ys * (0.25 - ys * 0.2)))
-    direct = y - np.log1p(np.where(small, 0.0, y))
-    return np.where(small, series, direct)
+    if small.any():  # direct form cancels for small y: use the series there
+        ys = y[small]
+        out[small] = ys * ys * (0.5 - ys * (1.0 / 3.0 - ys * (0.25 - ys * 0.2)))
+    return out
