@@ -27,7 +27,7 @@ from gisrun.io.vector import read_subcatchments
 from gisrun.project import _SCHEMA, load_project
 from gisrun.units import unit_system
 
-FUZZ = settings(max_examples=40, deadline=None, derandomize=True,
+FUZZ = settings(max_examples=30, deadline=None, derandomize=True,
                 suppress_health_check=[HealthCheck.function_scoped_fixture,
                                        HealthCheck.too_slow])
 
