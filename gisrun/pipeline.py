@@ -69,6 +69,9 @@ CAUTION = (
 
 Progress = Callable[[str], None]
 
+#: Below this many subcatchments a CLI run keeps per-unit step arrays for plots.
+KEEP_STEP_ARRAYS_BELOW = 5000
+
 
 @dataclass
 class Inputs:
@@ -326,7 +329,7 @@ def run(
     workers: int | None = None,
     scheduler: str | None = None,
     series_sink: SeriesSink | None = None,
-    keep_loss: bool = True,
+    keep_loss: bool | None = True,
 ) -> RunResult:
     """Read the inputs, overlay, assign parameters and run every storm; write nothing.
 
@@ -347,8 +350,9 @@ def run(
     series_sink : callable, optional
         Called as ``sink(storm_index, storm_name, series)`` for each chunk's
         excess-rainfall series instead of keeping them (memory stays flat).
-    keep_loss : bool
-        Keep the per-unit step arrays (:class:`LossResult`) for plots.
+    keep_loss : bool or None
+        Keep the per-unit step arrays (:class:`LossResult`) for plots; None keeps
+        them below :data:`KEEP_STEP_ARRAYS_BELOW` subcatchments.
 
     Returns
     -------
@@ -370,6 +374,8 @@ def run(
         say("reading inputs")
         inputs = read_inputs(project)
         check_inputs_codes(project, inputs)
+    if keep_loss is None:
+        keep_loss = len(inputs.subcatchments) < KEEP_STEP_ARRAYS_BELOW
     n_steps = max(len(h.resample(project.time_step_s)) for h in inputs.storms)
     size = chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms))
     chunks = plan_chunks(inputs.subcatchments.geometry, size)
@@ -505,10 +511,6 @@ def write_outputs(
     return write_geopackage(target, build_layers(result), overwrite=overwrite)
 
 
-#: Below this many subcatchments a CLI run keeps per-unit step arrays for plots.
-KEEP_STEP_ARRAYS_BELOW = 5000
-
-
 def run_and_write(
     project: Project | str | Path,
     *,
@@ -553,9 +555,8 @@ def run_and_write(
                          replace=not started)
             started.add(name)
 
-        count = len(read_subcatchment_layer(project)) if workers or scheduler else 0
         result = run(project, progress=progress, workers=workers, scheduler=scheduler,
-                     series_sink=sink, keep_loss=count < KEEP_STEP_ARRAYS_BELOW)
+                     series_sink=sink, keep_loss=None)
         (progress or _quiet)("writing outputs")
         layers = build_layers(result)
         layers.pop("excess_series", None)

@@ -164,3 +164,21 @@ def test_series_csv_is_a_batched_copy_of_the_streamed_table(demo_output):
     table = pyogrio.read_dataframe(demo_output, layer="excess_series")
     assert list(csv.columns) == list(table.columns)
     pd.testing.assert_frame_equal(csv, table, check_dtype=False)
+
+
+def test_cli_into_an_existing_geopackage_keeps_its_layers(tmp_path, capsys):
+    from shapely.geometry import box
+
+    theirs = tmp_path / "their_project.gpkg"
+    roads = gpd.GeoDataFrame({"road": ["Mill Lane"]}, geometry=[box(0, 0, 5, 1)], crs=32617)
+    roads.to_file(theirs, layer="roads")
+    before = gpd.read_file(theirs, layer="roads")
+    args = ["run", str(DEMO), "--into", str(theirs), "--no-extras", "--quiet"]
+    assert main(args) == 0
+    layers = dict(pyogrio.list_layers(theirs))
+    assert "roads" in layers and any(name.startswith("runoff_") for name in layers)
+    pd.testing.assert_frame_equal(gpd.read_file(theirs, layer="roads"), before)
+    assert main(args) == 2  # gisrun's layers are there now: replaced only with --overwrite
+    assert "--overwrite" in capsys.readouterr().err
+    assert main([*args, "--overwrite"]) == 0
+    assert main(["run", str(DEMO), "--into", str(tmp_path / "none.gpkg"), "--quiet"]) == 2

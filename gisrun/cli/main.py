@@ -33,6 +33,9 @@ def cli(debug: bool) -> None:
 @project_argument
 @click.option("--output", "-o", type=click.Path(path_type=Path),
               help="GeoPackage to write (default: the project's [project] output).")
+@click.option("--into", type=click.Path(path_type=Path),
+              help="Add the results as layers to this existing GeoPackage; its other layers "
+                   "are kept as they are.")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output.")
 @click.option("--quiet", "-q", is_flag=True, help="Print only errors.")
 @click.option("--json", "as_json", is_flag=True, help="Print a machine-readable summary.")
@@ -48,7 +51,8 @@ def cli(debug: bool) -> None:
               help="Write only the GeoPackage (no <output>_files folder).")
 @click.option("--plot", "plot_ids", multiple=True, metavar="ID",
               help="Also plot infiltration through each storm for subcatchment ID (repeatable).")
-def run(project: Path, output: Path | None, overwrite: bool, quiet: bool, as_json: bool,
+def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, quiet: bool,
+        as_json: bool,
         workers: int | None, scheduler: str | None, no_rasters: bool, no_maps: bool,
         no_report: bool, no_extras: bool, plot_ids: tuple[str, ...]) -> None:
     """Run PROJECT (a project file, or a folder holding gisrun.toml) and write its results.
@@ -62,9 +66,12 @@ def run(project: Path, output: Path | None, overwrite: bool, quiet: bool, as_jso
     from .progress import progress_display
 
     loaded = load_project(project)
-    target = Path(output) if output else loaded.output
+    if into is not None and output is not None:
+        raise click.UsageError("give either --output or --into, not both")
+    target = Path(into or output or loaded.output)
     folder = extras_folder(target)
-    for path in (target, *(() if no_extras else (folder,))):
+    checked = (() if into is not None else (target,)) + (() if no_extras else (folder,))
+    for path in checked:
         if path.exists() and not overwrite:  # fail before the work, not after it
             raise OutputExistsError(str(path), "already exists",
                                     "pass --overwrite or choose another output path")
@@ -76,7 +83,8 @@ def run(project: Path, output: Path | None, overwrite: bool, quiet: bool, as_jso
     options = ExtrasOptions(rasters=not no_rasters, maps=not no_maps, report=not no_report,
                             plot_subcatchments=plot_ids)
     with progress_display(enabled=not (quiet or as_json)) as show:
-        result, written = run_and_write(loaded, output=target, overwrite=overwrite,
+        result, written = run_and_write(loaded, output=None if into else target,
+                                        into=into, overwrite=overwrite,
                                         progress=show.step, workers=workers,
                                         scheduler=scheduler)
         extras = None if no_extras else write_extras(result, written, overwrite=overwrite,
