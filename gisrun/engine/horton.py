@@ -62,7 +62,7 @@ __all__ = ["NAME", "Params", "State", "initial_state", "step", "capacity_m_per_s
 
 NAME = "horton"
 
-_RTOL = 1e-11
+_RTOL = 1e-10
 _MAX_NEWTON = 100
 
 
@@ -222,18 +222,27 @@ def _after_infiltrating(p: Params, idx: np.ndarray, e: FloatArray, depth_m: Floa
                         ) -> FloatArray:
     """Return the decay factor after ``depth_m`` infiltrated without ponding (``k > 0``).
 
-    Solves ``fc u + (f0 - fc) e (1 - exp(-u)) = k D`` for ``u = k d`` by Newton's method
-    (concave, increasing; from the lower bound ``k D / f(e)`` iterates increase to the
-    root), then returns ``e exp(-u)``.
+    Solves ``fc u + A (1 - exp(-u)) = k D`` (``A = (f0 - fc) e``) for ``u = k d`` by Newton's
+    method, then returns ``e exp(-u)``. First guess: the root of the model with
+    ``1 - exp(-u) ~ u - u^2/2`` (an upper bound, relative error O(u^2)), or ``k D / f`` where
+    that model has no root. The residual is concave and increasing, so Newton converges.
     """
     k, fc = p.decay_per_s[idx], p.fc_m_per_s[idx]
     amp = (p.f0_m_per_s[idx] - fc) * e
     target = k * depth_m
-    u = target / (fc + amp)
+    slope = fc + amp
+    disc = slope * slope - 2.0 * amp * target
+    u = np.where(disc > 0, 2.0 * target / (slope + np.sqrt(np.maximum(disc, 0.0))),
+                 target / slope)
+    active = np.arange(u.size)
+    ua, ta, fa, aa = u, target, fc, amp
     for _ in range(_MAX_NEWTON):
-        miss = target - (fc * u - amp * np.expm1(-u))
-        todo = miss > _RTOL * target
+        miss = ta - (fa * ua - aa * np.expm1(-ua))
+        todo = np.abs(miss) > _RTOL * ta
         if not todo.any():
             break
-        u = u + np.where(todo, miss / (fc + amp * np.exp(-u)), 0.0)
+        keep = np.flatnonzero(todo)
+        active, ua, ta, fa, aa, miss = (x[keep] for x in (active, ua, ta, fa, aa, miss))
+        ua = ua + miss / (fa + aa * np.exp(-ua))
+        u[active] = ua
     return e * np.exp(-u)
