@@ -5,6 +5,12 @@ columns, see ``DEVELOPERS.md``) and the rain per time step, runs each unit's
 loss method and returns a :class:`~gisrun.engine.base.LossResult`. The methods
 live in one module each and are listed in :data:`ENGINES`.
 
+Speed: every method is vectorized over units; the time loop runs over blocks of
+:data:`CHUNK_UNITS` units so the working arrays stay in cache. Units with the
+same parameters and the same rain are simulated once (:func:`unique_parameter_sets`;
+``deduplicate=False`` turns this off), which in a town of repeated soil x cover
+combinations removes most of the work without changing any result.
+
 Results are planning-level estimates; defer to local codes, agency methods and
 a licensed engineer for design.
 """

@@ -111,3 +111,8 @@ def test_loss_result_checks_itself_and_is_read_only():
 
 def test_method_name_normalises():
     assert method_name(" Curve Number ") == "curve_number"
+
+
+def test_no_units_gives_empty_arrays():
+    res = run_losses(unit_frame(0), RAIN, 600.0, method="horton")
+    assert res.infil_m.shape == (RAIN.size, 0) and res.methods == ()
