@@ -94,7 +94,9 @@ def test_renders_in_headless_chromium(report, tmp_path):
         pytest.skip("no chromium binary")
     _, _, path = report
     shot = tmp_path / "shot.png"
-    subprocess.run([browser, "--headless", "--no-sandbox", "--disable-gpu",
+    subprocess.run([browser, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+                    "--disable-background-networking", "--disable-component-update",
+                    "--disable-sync", f"--user-data-dir={tmp_path / 'profile'}",
                     f"--screenshot={shot}", "--window-size=1200,900", path.as_uri()],
                    check=True, timeout=120, capture_output=True)
     image = mpimg.imread(shot)
