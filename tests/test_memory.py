@@ -1,0 +1,74 @@
+"""Peak memory of the overlay does not grow with raster size (rasters are read by windows)."""
+
+import subprocess
+import sys
+import textwrap
+
+import numpy as np
+import rasterio
+from rasterio.transform import from_origin
+from rasterio.windows import Window
+from shapely.geometry import box
+
+from conftest import write_polygons
+
+CELL = 10.0
+SCRIPT = textwrap.dedent("""
+    import sys, tracemalloc
+    from gisrun.io.raster import read_class_raster
+    from gisrun.io.vector import read_subcatchments
+    from gisrun.overlay import compute_unit_areas
+    soil_path, sub_path = sys.argv[1:3]
+    subs = read_subcatchments(sub_path, id_field="code")
+    codes = {1: "A", 2: "B", 3: "C", 4: "D"}
+    soil = read_class_raster(soil_path, codes=codes)
+    tracemalloc.start()
+    units, coverage, _ = compute_unit_areas(subs, soil, None, soil_codes=codes,
+                                            nodata_rule="omit", max_nodata_fraction=1.0,
+                                            chunk_cells=250_000)
+    peak = tracemalloc.get_traced_memory()[1]
+    print(peak, units["area_m2"].sum())
+""")
+
+
+def striped_raster(path, n):
+    """n x n cells in 4 classes by diagonal stripes, written by row bands (never whole)."""
+    profile = dict(driver="GTiff", width=n, height=n, count=1, dtype="uint8", crs="EPSG:32617",
+                   transform=from_origin(0, n * CELL, CELL, CELL), tiled=True, blockxsize=256,
+                   blockysize=256, compress="deflate")
+    with rasterio.open(path, "w", **profile) as dst:
+        for r0 in range(0, n, 512):
+            rows = np.arange(r0, min(n, r0 + 512))[:, None]
+            cols = np.arange(n)[None, :]
+            band = ((rows + cols) // 37 % 4 + 1).astype("uint8")
+            dst.write(band, 1, window=Window(0, r0, n, len(rows)))
+
+
+def polygons(path, n, per_side=6):
+    """per_side^2 squares tiling the raster, edges cutting cells (offset by a third of a cell)."""
+    size = n * CELL / per_side
+    geoms, codes = [], []
+    for i in range(per_side):
+        for j in range(per_side):
+            x0, y0 = i * size + CELL / 3, j * size + CELL / 3
+            geoms.append(box(x0, y0, x0 + size - CELL, y0 + size - CELL))
+            codes.append(f"S{i}{j}")
+    write_polygons(path, geoms, code=codes)
+    return sum(g.area for g in geoms)
+
+
+def peak_bytes(tmp_path, n):
+    soil, subs = tmp_path / f"soil_{n}.tif", tmp_path / f"subs_{n}.gpkg"
+    striped_raster(soil, n)
+    area = polygons(subs, n)
+    out = subprocess.run([sys.executable, "-c", SCRIPT, str(soil), str(subs)], check=True,
+                         capture_output=True, text=True, timeout=300).stdout.split()
+    assert abs(float(out[1]) - area) / area < 1e-9  # every square's area is accounted for
+    return int(out[0])
+
+
+def test_overlay_peak_memory_flat_from_1500_to_4500_cells(tmp_path):
+    small = peak_bytes(tmp_path, 1500)   # 2.25 M cells
+    large = peak_bytes(tmp_path, 4500)   # 20.25 M cells: 9x the raster
+    # 9x the cells must not mean more than 1.5x the peak (a whole-raster read would be ~9x)
+    assert large < 1.5 * small + 8e6, (small, large)
