@@ -61,11 +61,11 @@ class StepResult:
     ponding_offset_s: FloatArray
 
     def __post_init__(self) -> None:
-        shape = np.shape(self.infil_m)
-        for f in fields(self):
-            if np.shape(getattr(self, f.name)) != shape:
-                raise ValueError(f"StepResult.{f.name} has shape {np.shape(getattr(self, f.name))}"
-                                 f", expected {shape}")
+        shape = np.shape(self.infil_m)  # called every step: keep it cheap
+        if not (np.shape(self.excess_m) == np.shape(self.capacity_m_per_s)
+                == np.shape(self.ponding_offset_s) == shape):
+            raise ValueError("StepResult arrays must share one shape, got "
+                             f"{[np.shape(getattr(self, f.name)) for f in fields(self)]}")
 
 
 @dataclass(frozen=True)

@@ -262,9 +262,12 @@ def _solve_ponded(fs: FloatArray, p: FloatArray, k: FloatArray) -> FloatArray:
     # P + Fs below 1e-200 m: the suction term P ln(1 + G/(P+Fs)) is below 1e-197 m, so the
     # capacity is the constant Ks and G = Ks tau (this also covers P = Fs = 0).
     has_scale = scale > _NEGLIGIBLE_M
-    q = np.where(has_scale, scale, 1.0)
-    b = np.where(has_scale, fs / q, 1.0)
-    t = np.where(has_scale, k / q, k)
+    if has_scale.all():
+        q, b, t = scale, fs / scale, k / scale
+    else:
+        q = np.where(has_scale, scale, 1.0)
+        b = np.where(has_scale, fs / q, 1.0)
+        t = np.where(has_scale, k / q, k)
     y = _first_guess(b, t)
     if np.all(t > 0):
         active, ya, ba, ta = slice(None), y, b, t
