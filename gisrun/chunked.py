@@ -135,6 +135,8 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         scale = pipeline.rain_scale_for_units(project, inputs, params)
         results = [pipeline.run_storm(params, h, project.time_step_s, sub_ids=sub_ids,
                                       rain_scale=scale) for h in task.storms]
+        if project.compare_composite and project.combine == "units":
+            pipeline.add_composite_comparison(project, inputs, params, results, sub_ids)
     notes = [str(n) for n in (*notes_overlay, *notes_params)]
     notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     return ChunkOutput(

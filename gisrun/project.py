@@ -72,7 +72,7 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
              "crs"),
     "cover": ("path", "codes", "crs"),
     "nodata": ("rule", "max_fraction"),
-    "method": ("name", "combine"),
+    "method": ("name", "combine", "compare_composite"),
     "parameters": ("overrides",),
     "rain_scale": ("field",),
 }
@@ -143,6 +143,7 @@ class Project:
     overrides: Path | None = None
     rain_scale_field: str | None = None
     memory_budget_mb: float = 1500.0
+    compare_composite: bool = False
     raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     @property
@@ -253,6 +254,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         rain_scale_field=reader.string(rain_scale, "rain_scale", "field", required=False),
         memory_budget_mb=reader.number(top, "project", "memory_budget_mb", default=1500.0,
                                        low=50.0),
+        compare_composite=reader.flag(method, "method", "compare_composite", default=False),
         raw=raw,
     )
     _check_class_labels(reader, project)
@@ -375,6 +377,15 @@ class _Reader:
                 self.where(section, key), f"is {value}, outside {span}", "give a value in range"
             )
         return float(value)
+
+    def flag(self, table: Mapping[str, Any], section: str, key: str, *, default: bool) -> bool:
+        value = table.get(key, default)
+        if not isinstance(value, bool):
+            raise ProjectFileError(
+                self.where(section, key), f"must be true or false, got {value!r}",
+                "write true or false without quotes",
+            )
+        return value
 
     def choice(self, table: Mapping[str, Any], section: str, key: str,
                valid: tuple[str, ...], *, default: str | None = None) -> str:
