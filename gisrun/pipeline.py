@@ -124,7 +124,8 @@ def _quiet(_: str) -> None:
 def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
     """Read the subcatchment polygons with the fields the run needs."""
     src = project.subcatchments
-    keep = tuple(f for f in (src.method_field, project.rain_scale_field) if f)
+    keep = tuple(dict.fromkeys(
+        f for f in (src.method_field, project.rain_scale_field, *src.parameter_fields) if f))
     return read_subcatchments(src.path, id_field=src.id_field, layer=src.layer, crs=src.crs,
                               keep_fields=keep)
 
@@ -255,14 +256,18 @@ def prepare_parameters(
 
 
 def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
+    """Per-subcatchment method choice and parameter values from the layer's fields."""
+    attrs = pd.DataFrame({"subcatchment_id": subs["subcatchment_id"]})
     field_name = project.subcatchments.method_field
-    if not field_name:
-        return None
-    methods = subs[field_name].astype(object).where(subs[field_name].notna(), None)
-    methods = methods.map(lambda v: v.strip().lower() if isinstance(v, str) and v.strip() else None)
-    attrs = pd.DataFrame({"subcatchment_id": subs["subcatchment_id"], "loss_method": methods})
-    attrs = attrs.dropna(subset=["loss_method"])
-    _check_methods(attrs, project)
+    if field_name:
+        methods = subs[field_name].astype(object).where(subs[field_name].notna(), None)
+        attrs["loss_method"] = methods.map(
+            lambda v: v.strip().lower() if isinstance(v, str) and v.strip() else None)
+        _check_methods(attrs.dropna(subset=["loss_method"]), project)
+    for name in project.subcatchments.parameter_fields:
+        attrs[name] = subs[name].to_numpy()
+    values = attrs.drop(columns="subcatchment_id")
+    attrs = attrs[values.notna().any(axis=1).to_numpy()] if values.shape[1] else attrs.iloc[:0]
     return attrs if len(attrs) else None
 
 

@@ -67,7 +67,7 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
          "storms", "rain_scale"),
     "project": ("name", "units", "output", "time_step_min", "memory_budget_mb"),
-    "subcatchments": ("path", "layer", "id_field", "crs", "method_field"),
+    "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation", "codes",
              "crs"),
     "cover": ("path", "codes", "crs"),
@@ -87,6 +87,7 @@ class SubcatchmentSource:
     layer: str | None = None
     crs: str | None = None
     method_field: str | None = None
+    parameter_fields: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -232,6 +233,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
             layer=reader.string(sub, "subcatchments", "layer", required=False),
             crs=reader.string(sub, "subcatchments", "crs", required=False),
             method_field=reader.string(sub, "subcatchments", "method_field", required=False),
+            parameter_fields=reader.strings(sub, "subcatchments", "parameter_fields"),
         ),
         soil=SoilSource(
             path=reader.path(reader.string(soil, "soil", "path")),
@@ -377,6 +379,15 @@ class _Reader:
                 self.where(section, key), f"is {value}, outside {span}", "give a value in range"
             )
         return float(value)
+
+    def strings(self, table: Mapping[str, Any], section: str, key: str) -> tuple[str, ...]:
+        value = table.get(key, [])
+        if not isinstance(value, list) or not all(isinstance(v, str) and v for v in value):
+            raise ProjectFileError(
+                self.where(section, key), f"must be a list of field names, got {value!r}",
+                'write e.g. ["ks_mm_per_h", "curve_number"]',
+            )
+        return tuple(value)
 
     def flag(self, table: Mapping[str, Any], section: str, key: str, *, default: bool) -> bool:
         value = table.get(key, default)
