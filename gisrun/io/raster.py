@@ -11,6 +11,7 @@ modules never import rasterio.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -23,7 +24,7 @@ from pyproj import CRS
 from rasterio.errors import RasterioIOError
 from rasterio.windows import Window, from_bounds
 
-from ..errors import RasterError
+from ..errors import GisrunWarning, RasterError
 from ..geometry import checked_crs
 
 __all__ = ["ClassRaster", "read_class_raster"]
@@ -227,9 +228,24 @@ def read_class_raster(path: str | Path, *, codes: Mapping[int, str] | None = Non
         raster = ClassRaster(path=str(path), band=band, crs=grid_crs, transform=t,
                              width=src.width, height=src.height, nodata=src.nodatavals[band - 1],
                              res=(abs(t.a), abs(t.e)), where=name, dtype=src.dtypes[band - 1])
+        _warn_if_untiled(src, band, name)
     if np.dtype(raster.dtype).kind == "f":
         _check_integer_values(raster, codes)
     return raster
+
+
+#: Rasters with more cells than this are worth tiling (common practice: 256 or 512 blocks).
+UNTILED_WARNING_CELLS = 4096 * 4096
+
+
+def _warn_if_untiled(src: Any, band: int, name: str) -> None:
+    """Warn when a large raster is stored in whole-row strips: windows then read whole rows."""
+    block_rows, block_cols = src.block_shapes[band - 1]
+    if src.width * src.height > UNTILED_WARNING_CELLS and block_cols >= src.width:
+        warnings.warn(GisrunWarning(
+            f"{name}: stored in strips of whole rows ({block_rows} x {block_cols} blocks), so "
+            "each window reads whole rows; a tiled copy reads faster (e.g. gdal_translate -co "
+            "TILED=YES -co COMPRESS=DEFLATE)"), stacklevel=3)
 
 
 def _check_integer_values(raster: ClassRaster, codes: Mapping[int, str] | None) -> None:

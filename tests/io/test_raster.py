@@ -104,3 +104,27 @@ def test_rotated_grid_rejected(geotiff):
 def test_frozen_value_checks_itself():
     with pytest.raises(RasterError, match="rotated"):
         ClassRaster("x.tif", 1, None, Affine(1, 0, 0, 0.5, -1, 0), 1, 1, None, (1, 1), "x.tif")
+
+
+def test_large_untiled_raster_warns_and_tiled_does_not(tmp_path, monkeypatch):
+    import warnings
+
+    import rasterio
+
+    from gisrun.errors import GisrunWarning
+    from gisrun.io import raster as raster_module
+
+    monkeypatch.setattr(raster_module, "UNTILED_WARNING_CELLS", 100)  # keep the files tiny
+    codes = np.ones((64, 64), dtype="uint8")
+    profile = {"driver": "GTiff", "height": 64, "width": 64, "count": 1, "dtype": "uint8",
+               "crs": "EPSG:32617", "transform": rasterio.transform.from_origin(0, 640, 10, 10)}
+    with rasterio.open(tmp_path / "strips.tif", "w", **profile) as dst:
+        dst.write(codes, 1)
+    with rasterio.open(tmp_path / "tiled.tif", "w", tiled=True, blockxsize=16, blockysize=16,
+                       **profile) as dst:
+        dst.write(codes, 1)
+    with pytest.warns(GisrunWarning, match=r"strips.tif.*tiled copy"):
+        raster_module.read_class_raster(tmp_path / "strips.tif")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", GisrunWarning)
+        raster_module.read_class_raster(tmp_path / "tiled.tif")
