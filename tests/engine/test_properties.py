@@ -9,7 +9,14 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from gisrun.engine import run_losses
+from gisrun.engine import ENGINES, run_losses
+
+
+@pytest.fixture(params=sorted(ENGINES))
+def method(request: pytest.FixtureRequest) -> str:
+    """Every registered loss method (new methods are picked up automatically)."""
+    return request.param
+
 
 SETTINGS = settings(max_examples=25, deadline=None,
                     suppress_health_check=[HealthCheck.function_scoped_fixture])
