@@ -252,7 +252,25 @@ def prepare_parameters(
     )
     if project.combine == "composite":
         params = composite_parameters(params)
-    return params.reset_index(drop=True), pd.DataFrame(sources), list(notes)
+    return params.reset_index(drop=True), compact_sources(pd.DataFrame(sources)), list(notes)
+
+
+_SOURCE_KEYS = ["parameter", "source", "soil_class", "cover_class", "surface"]
+
+
+def compact_sources(sources: pd.DataFrame) -> pd.DataFrame:
+    """One row per parameter, source and soil x cover x surface, with the count of unit parts.
+
+    A source specific to one subcatchment names it in its text (``...id=S12``),
+    so nothing is lost by not repeating every subcatchment's rows.
+    """
+    if sources.empty or not set(_SOURCE_KEYS) <= set(sources.columns):
+        return sources
+    counts = sources["unit_parts"] if "unit_parts" in sources.columns else pd.Series(
+        1, index=sources.index)
+    frame = sources[_SOURCE_KEYS].assign(unit_parts=counts.to_numpy())
+    return (frame.groupby(_SOURCE_KEYS, dropna=False, sort=True)["unit_parts"].sum()
+            .reset_index())
 
 
 def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
@@ -452,7 +470,8 @@ def _combine(project: Project, inputs: Inputs, outputs: list, started: str, note
         units=units,
         coverage=ordered([o.coverage for o in outputs]),
         parameters=params,
-        parameter_sources=pd.concat([o.parameter_sources for o in outputs], ignore_index=True),
+        parameter_sources=compact_sources(
+            pd.concat([o.parameter_sources for o in outputs], ignore_index=True)),
         storms=storms,
         warnings=list(dict.fromkeys(notes)),
         started_utc=started,

@@ -133,8 +133,10 @@ def _method(result: Any) -> str:
     sources = result.parameter_sources
     table = ""
     if {"parameter", "source"} <= set(sources.columns):
-        uses = (sources.groupby(["parameter", "source"]).size().rename("unit_parts")
-                .reset_index())
+        counts = (sources.groupby(["parameter", "source"])["unit_parts"].sum()
+                  if "unit_parts" in sources.columns
+                  else sources.groupby(["parameter", "source"]).size())
+        uses = counts.rename("unit_parts").reset_index()
         table = "<p>Where each parameter came from:</p>" + _table(uses)
     return text + _table(methods.reset_index(name="unit_parts")) + table
 
