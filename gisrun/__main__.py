@@ -1,0 +1,7 @@
+"""Allow ``python -m gisrun``."""
+
+import sys
+
+from .cli import main
+
+sys.exit(main())
