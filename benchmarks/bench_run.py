@@ -57,7 +57,7 @@ def write_geopackage_once(source: Path, target: Path) -> float:
     target.unlink(missing_ok=True)
     start = time.perf_counter()
     for name, frame in layers:
-        pyogrio.write_dataframe(frame, target, layer=name, driver="GPKG")
+        pyogrio.write_dataframe(frame, target, layer=name, driver="GPKG", use_arrow=True)
     return time.perf_counter() - start
 
 

@@ -91,34 +91,63 @@ def model_inputs(params: pd.DataFrame, sub_ids: Any, system: UnitSystem,
         and the columns of every method present (empty where a subcatchment uses
         another method), in ``system`` units.
     """
-    rows = [_one(params[params["subcatchment_id"] == sid], sid, default_method)
-            for sid in sub_ids]
-    frame = pd.DataFrame(rows)
+    sub_ids = pd.Index(np.asarray(sub_ids, dtype=object))
+    row = sub_ids.get_indexer(params["subcatchment_id"].to_numpy(dtype=object))
+    n = len(sub_ids)
+    area = params["area_m2"].to_numpy(dtype=np.float64)
+    surface = params["surface"].to_numpy()
+    impervious = surface == "impervious"
+    total = np.bincount(row, weights=area, minlength=n)
+    frame = pd.DataFrame({
+        "subcatchment_id": sub_ids.to_numpy(),
+        "loss_method": _first_method(params, row, n, default_method),
+        "area_m2": total,
+        "impervious_fraction": _ratio(np.bincount(row, weights=area * impervious, minlength=n),
+                                      total),
+    })
+    if "impervious_fraction" in params.columns and (surface == "composite").all():
+        frame["impervious_fraction"] = _first(params["impervious_fraction"].to_numpy(float),
+                                              row, n)
+    masks = {"pervious": ~impervious, "impervious": impervious,
+             "all": np.ones_like(impervious)}
+    for method, columns in METHOD_COLUMNS.items():
+        uses = frame["loss_method"].to_numpy() == method
+        if not uses.any():
+            continue
+        for out, (col, weighting) in columns.items():
+            if out in frame.columns:  # shared name (e.g. depression storage): fill its rows
+                target = frame[out].to_numpy(dtype=np.float64).copy()
+            else:
+                target = np.full(n, np.nan)
+            w = area * masks[weighting]
+            weight = np.bincount(row, weights=w, minlength=n)
+            value = _ratio(np.bincount(row, weights=w * params[col].to_numpy(float),
+                                       minlength=n), weight, empty=np.nan)
+            target[uses] = value[uses]
+            frame[out] = target
     ordered = ["subcatchment_id", "loss_method", "area_m2", "impervious_fraction"]
     for method in METHOD_COLUMNS:
         ordered += [c for c in METHOD_COLUMNS[method] if c in frame.columns and c not in ordered]
     return present_frame(frame[ordered], system)
 
 
-def _one(part: pd.DataFrame, sid: Any, default_method: str) -> dict[str, Any]:
-    area = part["area_m2"].to_numpy(dtype=np.float64)
-    surface = part["surface"].to_numpy()
-    impervious = surface == "impervious"
-    total = float(area.sum())
-    methods = part["loss_method"].unique() if "loss_method" in part else [default_method]
-    method = str(methods[0]) if len(methods) else default_method
-    row: dict[str, Any] = {
-        "subcatchment_id": sid, "loss_method": method, "area_m2": total,
-        "impervious_fraction": float(area[impervious].sum() / total) if total > 0 else 0.0,
-    }
-    if "impervious_fraction" in part.columns and (surface == "composite").all():
-        row["impervious_fraction"] = float(part["impervious_fraction"].iloc[0])
-    for out, (col, weighting) in METHOD_COLUMNS.get(method, {}).items():
-        keep = {"pervious": ~impervious, "impervious": impervious,
-                "all": np.ones_like(impervious)}[weighting]
-        w = area * keep
-        row[out] = float(np.dot(w, part[col].to_numpy(float)) / w.sum()) if w.sum() > 0 else np.nan
-    return row
+def _ratio(num: np.ndarray, den: np.ndarray, empty: float = 0.0) -> np.ndarray:
+    return np.divide(num, den, out=np.full(len(num), empty), where=den > 0)
+
+
+def _first(values: np.ndarray, row: np.ndarray, n: int, fill: Any = np.nan) -> np.ndarray:
+    """Each subcatchment's value from its first unit row; ``fill`` where it has none."""
+    out = np.full(n, fill, dtype=values.dtype if values.dtype == object else np.float64)
+    groups, first = np.unique(row, return_index=True)
+    keep = groups >= 0
+    out[groups[keep]] = values[first[keep]]
+    return out
+
+
+def _first_method(params: pd.DataFrame, row: np.ndarray, n: int, default: str) -> np.ndarray:
+    if "loss_method" not in params.columns:
+        return np.full(n, default, dtype=object)
+    return _first(params["loss_method"].to_numpy(dtype=object), row, n, fill=default)
 
 
 def excess_series_table(storms: Any, system: UnitSystem) -> pd.DataFrame:
