@@ -128,8 +128,10 @@ def assign_parameters(
     values, sources = _shipped(rows, soils, initial_saturation, impervious_depression_storage_m)
     values["loss_method"], sources["loss_method"] = method, "run default ([method] name)"
     ranks = pd.DataFrame(0, index=rows.index, columns=list(_ALL))
-    for rank, layer in _layers(overrides, subcatchment_attributes, classification):
+    for rank, layer in _layers(overrides, None, classification):
         _apply(rows, values, sources, ranks, rank, layer, warnings)
+    if subcatchment_attributes is not None and len(subcatchment_attributes):
+        _apply_attributes(rows, values, sources, ranks, subcatchment_attributes)
     _rederive(rows, values, sources, ranks, initial_saturation)
     _check_result(rows, values, sources)
     return AssignedParameters(_params(rows, values), _provenance(rows, sources), warnings)
@@ -171,18 +173,16 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
 
 def _expand(units: pd.DataFrame, soils: dict[str, SoilInfo]) -> pd.DataFrame:
     cover = T.cover_table()
-    frac = units["cover_class"].map(
-        lambda c: 0.0 if c == T.UNSPECIFIED_COVER else cover.at[c, "impervious_fraction"])
-    infiltrates = units["soil_class"].map(lambda s: soils[s].infiltrates)
+    fractions = {**cover["impervious_fraction"].to_dict(), T.UNSPECIFIED_COVER: 0.0}
+    frac = units["cover_class"].map(fractions)
+    infiltrates = units["soil_class"].map({k: v.infiltrates for k, v in soils.items()})
     frac = frac.where(infiltrates, 1.0).to_numpy(float)
     perv = units.assign(surface="pervious", area_m2=units["area_m2"] * (1.0 - frac))
     imp = units.assign(surface="impervious", area_m2=units["area_m2"] * frac)
     rows = pd.concat([perv, imp]).sort_index(kind="stable")
     rows = rows[rows["area_m2"] > 0.0].reset_index(drop=True)
-    rows["hydrologic_soil_group"] = [
-        soils[s].group if surf == "pervious" else None
-        for s, surf in zip(rows["soil_class"], rows["surface"], strict=True)
-    ]
+    group = rows["soil_class"].map({k: v.group for k, v in soils.items()}).astype(object)
+    rows["hydrologic_soil_group"] = group.where(rows["surface"] == "pervious", None)
     return rows
 
 
@@ -321,6 +321,34 @@ def _apply(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame, rank
         values.loc[target, col] = value
         sources.loc[target, col] = label
         ranks.loc[target, col] = rank
+
+
+def _apply_attributes(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
+                      ranks: pd.DataFrame, attributes: pd.DataFrame) -> None:
+    """Apply per-subcatchment values (the highest rank) by a join on the id, not row by row."""
+    if "subcatchment_id" not in attributes.columns:
+        raise ParameterError("subcatchment attributes", "have no subcatchment_id column",
+                             "pass one row per subcatchment with its id")
+    names = [f"id={v}" for v in attributes["subcatchment_id"]]
+    table = normalize_overrides(attributes, where="subcatchment attributes", row_names=names)
+    table = table.drop_duplicates("subcatchment_id", keep="last").set_index("subcatchment_id")
+    ids = rows["subcatchment_id"].to_numpy(dtype=object)
+    position = table.index.get_indexer(ids)
+    known = position >= 0
+    pervious = (rows["surface"] == "pervious").to_numpy()
+    label = table["override_source"].astype(str).to_numpy(dtype=object) + " (subcatchment attribute)"
+    for col in _ALL:
+        if col not in table.columns:
+            continue
+        column = table[col].to_numpy(dtype=object)
+        value = np.where(known, column[np.where(known, position, 0)], None)
+        given = known & pd.notna(pd.Series(value)).to_numpy()
+        target = given if col == "loss_method" else given & pervious
+        if not target.any():
+            continue
+        values.loc[target, col] = value[target]
+        sources.loc[target, col] = label[position[target]]
+        ranks.loc[target, col] = _ATTRIBUTE_RANK
 
 
 def _rederive(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
