@@ -1,6 +1,6 @@
 """Overlay speed and memory against two general-purpose zonal statistics libraries.
 
-Generates (once, into benchmarks/work/) a categorical GeoTIFF with coherent
+Generates (once, into benchmarks/scratch/) a categorical GeoTIFF with coherent
 class patches and Voronoi subcatchments, then runs in one go, each in a fresh
 process so peak memory is its own:
 
@@ -29,7 +29,7 @@ from pathlib import Path
 
 import numpy as np
 
-WORK = Path(__file__).parent / "work"
+WORK = Path(__file__).parent / "scratch"
 CRS = "EPSG:32617"
 X0, Y0, CELL = 600_000.0, 3_910_000.0, 1.0
 CODES = {1: "A", 2: "B", 3: "C", 4: "D", 5: "B/D"}

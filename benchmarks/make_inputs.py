@@ -3,7 +3,7 @@
 Everything here is invented and only meant to load the program: square categorical soil and
 cover rasters of N x N cells with coherent patches, M Voronoi-like subcatchments tiling the
 same extent, and a project file tying them together. Nothing is committed; the default
-output folder is ``benchmarks/work/`` (ignored by git).
+output folder is ``benchmarks/scratch/`` (ignored by git).
 
 The rasters are computed and written one strip of tile rows at a time, so memory stays small
 (a few hundred MB) even for 20000 x 20000 cells. The same ``rng_state`` gives the same files.
@@ -89,8 +89,8 @@ class InputPaths:
 
 
 def default_out_dir(n_cells: int, n_polygons: int) -> Path:
-    """``benchmarks/work/cells<N>_polygons<M>``, next to this script."""
-    return HERE / "work" / f"cells{n_cells}_polygons{n_polygons}"
+    """``benchmarks/scratch/cells<N>_polygons<M>``, next to this script."""
+    return HERE / "scratch" / f"cells{n_cells}_polygons{n_polygons}"
 
 
 # --- smooth random fields, evaluated strip by strip ---
@@ -362,7 +362,7 @@ def _parse(argv: list[str] | None) -> argparse.Namespace:
     parser.add_argument("--polygons", type=int, default=10_000,
                         help="number of subcatchments (default 10000)")
     parser.add_argument("--out", type=Path, default=None,
-                        help="output folder (default benchmarks/work/cells<N>_polygons<M>)")
+                        help="output folder (default benchmarks/scratch/cells<N>_polygons<M>)")
     parser.add_argument("--cell-size-m", type=float, default=CELL_M, help="cell size, m (10)")
     parser.add_argument("--vertex-spacing-m", type=float, default=None,
                         help="add polygon vertices at this spacing, m (default: none added)")
