@@ -93,9 +93,7 @@ def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataF
     out["runoff_depth_m"] = loss.excess_m.sum(axis=0)
     out["storage_depth_m"] = loss.storage_m
     out["runoff_volume_m3"] = out["runoff_depth_m"] * out["area_m2"]
-    out["runoff_coefficient"] = np.divide(
-        out["runoff_depth_m"].to_numpy(), rain, out=np.zeros(len(out)), where=rain > 0
-    )
+    out["runoff_coefficient"] = _share(out["runoff_depth_m"].to_numpy(), rain)
     out["time_to_ponding_s"] = loss.time_to_ponding_s
     out["peak_excess_intensity_m_per_s"] = loss.excess_m.max(axis=0, initial=0.0) / dt_s
     return out
@@ -150,9 +148,7 @@ def summarize_subcatchments(
     out = pd.DataFrame({"subcatchment_id": sub_ids, "modelled_area_m2": area, **depth})
     out["runoff_volume_m3"] = out["runoff_depth_m"] * area
     rain = out["rain_depth_m"].to_numpy()
-    out["runoff_coefficient"] = np.divide(
-        out["runoff_depth_m"].to_numpy(), rain, out=np.zeros(len(out)), where=rain > 0
-    )
+    out["runoff_coefficient"] = _share(out["runoff_depth_m"].to_numpy(), rain)
     pervious = (params["surface"] != "impervious").to_numpy()
     out["time_to_ponding_s"] = _group_min(loss.time_to_ponding_s, weights, pervious)
     started = np.where(loss.excess_m > 0, 1.0, 0.0)
@@ -212,6 +208,11 @@ def soil_shares(units: pd.DataFrame, sub_ids: NDArray[np.object_] | pd.Series) -
     names = [f"soil_{_safe(c)}_fraction" for c in table.columns]
     return pd.DataFrame(shares, columns=names, index=table.index).reset_index(
         names="subcatchment_id")
+
+
+def _share(part: NDArray[np.float64], whole: NDArray[np.float64]) -> NDArray[np.float64]:
+    """``part / whole``, 0 where ``whole`` is 0 (no rain: no runoff coefficient to speak of)."""
+    return np.divide(part, whole, out=np.zeros(len(part)), where=whole > 0)
 
 
 def _safe(label: object) -> str:
