@@ -28,6 +28,8 @@ Layers of the output GeoPackage:
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import geopandas as gpd
 import pandas as pd
 
@@ -35,7 +37,7 @@ from . import __version__
 from .export import model_inputs
 from .units import present_frame
 
-__all__ = ["build_layers", "run_info", "storm_layer_name", "layer_name", "series_layer"]
+__all__ = ["build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer"]
 
 
 def layer_name(text: str) -> str:
@@ -58,34 +60,60 @@ def storm_layer_name(storm_name: str) -> str:
 
 def build_layers(result: object) -> dict[str, pd.DataFrame]:
     """All output layers of a :class:`gisrun.pipeline.RunResult`, in output units."""
+    return {name: make() for name, make in layer_builders(result).items()}
+
+
+def layer_builders(result: object, *, skip: tuple[str, ...] = ()
+                   ) -> dict[str, Callable[[], pd.DataFrame]]:
+    """Layer name -> a function building it, so a writer holds one large layer at a time."""
     from .pipeline import subcatchment_table
 
     system = result.project.units
     geoms = result.subcatchments[["subcatchment_id", "geometry"]]
-    layers: dict[str, pd.DataFrame] = {}
-    per_storm, series, units = [], [], []
-    for storm in result.storms:
-        table = present_frame(subcatchment_table(result, storm), system)
-        layer = geoms.merge(table, on="subcatchment_id", how="left")
-        layers[storm_layer_name(storm.name)] = gpd.GeoDataFrame(layer, geometry="geometry",
-                                                                crs=result.subcatchments.crs)
-        per_storm.append(table.assign(storm=storm.name))
-        series.append(series_layer(storm.series, storm.name, system))
-        units.append(present_frame(storm.units, system).assign(storm=storm.name))
-    layers["subcatchment_results"] = _storm_first(pd.concat(per_storm, ignore_index=True))
-    layers["excess_series"] = _storm_first(pd.concat(series, ignore_index=True))
-    layers["unit_results"] = _storm_first(pd.concat(units, ignore_index=True))
-    layers["unit_parameters"] = present_frame(result.parameters, system)
-    layers["parameter_sources"] = result.parameter_sources
-    layers["coverage"] = present_frame(result.coverage, system)
-    subs_rank, units_rank = ponding_ranking(result)
-    layers["ponding_rank_subcatchments"] = present_frame(subs_rank, system)
-    layers["ponding_rank_units"] = present_frame(units_rank, system)
-    layers["model_inputs"] = model_inputs(
-        result.parameters, result.subcatchments["subcatchment_id"].astype(str).tolist(), system,
-        default_method=result.project.method)
-    layers["run_info"] = run_info(result)
-    return layers
+
+    def storm_layer(storm: object) -> Callable[[], pd.DataFrame]:
+        def make() -> pd.DataFrame:
+            table = present_frame(subcatchment_table(result, storm), system)
+            layer = geoms.merge(table, on="subcatchment_id", how="left")
+            return gpd.GeoDataFrame(layer, geometry="geometry", crs=result.subcatchments.crs)
+        return make
+
+    def all_storms(kind: str) -> pd.DataFrame:
+        frames = []
+        for storm in result.storms:
+            if kind == "subcatchments":
+                frames.append(present_frame(subcatchment_table(result, storm), system)
+                              .assign(storm=storm.name))
+            elif kind == "series":
+                frames.append(series_layer(storm.series, storm.name, system))
+            else:
+                frames.append(present_frame(storm.units, system).assign(storm=storm.name))
+        return _storm_first(pd.concat(frames, ignore_index=True))
+
+    rankings: list[tuple[pd.DataFrame, pd.DataFrame]] = []
+
+    def ranking(which: int) -> pd.DataFrame:
+        if not rankings:
+            rankings.append(ponding_ranking(result))
+        return present_frame(rankings[0][which], system)
+
+    builders: dict[str, Callable[[], pd.DataFrame]] = {
+        storm_layer_name(storm.name): storm_layer(storm) for storm in result.storms}
+    builders.update({
+        "subcatchment_results": lambda: all_storms("subcatchments"),
+        "excess_series": lambda: all_storms("series"),
+        "unit_results": lambda: all_storms("units"),
+        "unit_parameters": lambda: present_frame(result.parameters, system),
+        "parameter_sources": lambda: result.parameter_sources,
+        "coverage": lambda: present_frame(result.coverage, system),
+        "ponding_rank_subcatchments": lambda: ranking(0),
+        "ponding_rank_units": lambda: ranking(1),
+        "model_inputs": lambda: model_inputs(
+            result.parameters, result.subcatchments["subcatchment_id"].astype(str).tolist(),
+            system, default_method=result.project.method),
+        "run_info": lambda: run_info(result),
+    })
+    return {name: make for name, make in builders.items() if name not in skip}
 
 
 def series_layer(series: pd.DataFrame, storm_name: str, system: object) -> pd.DataFrame:

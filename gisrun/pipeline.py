@@ -584,7 +584,7 @@ def run_and_write(
         If the output (or, with ``into``, a layer name) exists and ``overwrite`` is false.
     """
     from .io.output import append_table, open_output, write_layers_into
-    from .layers import build_layers, series_layer, storm_layer_name
+    from .layers import layer_builders, series_layer, storm_layer_name
 
     if not isinstance(project, Project):
         project = load_project(project)
@@ -603,8 +603,8 @@ def run_and_write(
         result = run(project, progress=progress, workers=workers, scheduler=scheduler,
                      series_sink=sink, keep_loss=None)
         (progress or _quiet)("writing outputs")
-        layers = build_layers(result)
-        layers.pop("excess_series", None)
-        check(layers)
-        write_layers_into(tmp, layers)
+        builders = layer_builders(result, skip=("excess_series",))
+        check(list(builders))
+        for name, make in builders.items():  # one large layer in memory at a time
+            write_layers_into(tmp, {name: make()})
     return result, target
