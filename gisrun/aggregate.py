@@ -183,7 +183,7 @@ def subcatchment_series(
     weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
     n_steps = loss.rain_m.shape[0]
     frames = {
-        name: np.asarray((weights @ arr.T)).ravel()  # (subs x steps) flattened, sub-major
+        name: np.asarray(weights @ arr.T).ravel()  # (subs x steps) flattened, sub-major
         for name, arr in (("rain_m", loss.rain_m), ("infiltration_m", loss.infil_m),
                           ("excess_m", loss.excess_m))
     }

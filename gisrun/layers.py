@@ -37,7 +37,9 @@ from . import __version__
 from .export import model_inputs
 from .units import present_frame
 
-__all__ = ["build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer"]
+__all__ = [
+    "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
+]
 
 
 def layer_name(text: str) -> str:

@@ -25,7 +25,6 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from . import __version__
 from .aggregate import soil_shares, subcatchment_series, summarize_subcatchments, summarize_units
 from .engine import LossResult, run_losses
 from .errors import GisrunWarning, ParameterError, RasterError, VectorError
@@ -484,7 +483,9 @@ def _concat_losses(losses: list[LossResult]) -> LossResult | None:
         return None
     if len(losses) == 1:
         return losses[0]
-    join = (lambda name: np.concatenate([getattr(x, name) for x in losses], axis=-1))
+    def join(name: str) -> np.ndarray:
+        return np.concatenate([getattr(x, name) for x in losses], axis=-1)
+
     return LossResult(
         rain_m=join("rain_m"), infil_m=join("infil_m"), excess_m=join("excess_m"),
         capacity_m_per_s=join("capacity_m_per_s"), storage_m=join("storage_m"),

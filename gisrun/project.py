@@ -345,7 +345,8 @@ class _Reader:
                 )
             return {}
         if not isinstance(value, dict):
-            raise ProjectFileError(self.where(section), "is not a table", f"write it as [{section}]")
+            raise ProjectFileError(self.where(section), "is not a table",
+                                   f"write it as [{section}]")
         self.check_keys(section, value)
         return value
 

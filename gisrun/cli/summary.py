@@ -21,7 +21,10 @@ def _storm_rows(result: Any) -> list[dict[str, Any]]:
         subs = storm.subcatchments
         area = subs["modelled_area_m2"].to_numpy()
         total_area = float(area.sum())
-        mean = (lambda col: float((subs[col] * area).sum() / total_area) if total_area else 0.0)
+        def mean(col: str, subs: Any = subs, area: Any = area, total: float = total_area
+                 ) -> float:
+            return float((subs[col] * area).sum() / total) if total else 0.0
+
         ponded = subs["time_to_ponding_s"].to_numpy()
         rows.append({
             "storm": storm.name,

@@ -336,7 +336,8 @@ def _apply_attributes(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.Data
     position = table.index.get_indexer(ids)
     known = position >= 0
     pervious = (rows["surface"] == "pervious").to_numpy()
-    label = table["override_source"].astype(str).to_numpy(dtype=object) + " (subcatchment attribute)"
+    label = (table["override_source"].astype(str).to_numpy(dtype=object)
+             + " (subcatchment attribute)")
     for col in _ALL:
         if col not in table.columns:
             continue
