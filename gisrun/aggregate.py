@@ -104,6 +104,8 @@ def summarize_subcatchments(
     params: pd.DataFrame,
     sub_ids: NDArray[np.object_] | pd.Series,
     dt_s: float,
+    *,
+    weights: sp.csr_matrix | None = None,
 ) -> pd.DataFrame:
     """Area-weighted subcatchment results in SI, with a checked mass balance.
 
@@ -117,6 +119,8 @@ def summarize_subcatchments(
         Subcatchment ids in output order.
     dt_s : float
         Time step, seconds.
+    weights : sparse matrix, optional
+        :func:`area_weights` of ``params`` and ``sub_ids``, when already computed.
 
     Returns
     -------
@@ -134,7 +138,8 @@ def summarize_subcatchments(
         :data:`MASS_BALANCE_TOLERANCE` (relative) in any subcatchment.
     """
     sub_ids = np.asarray(sub_ids, dtype=object)
-    weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    if weights is None:
+        weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
     area = np.bincount(
         pd.Index(sub_ids).get_indexer(params["subcatchment_id"]),
         weights=params["area_m2"].to_numpy(), minlength=len(sub_ids),
@@ -170,6 +175,8 @@ def subcatchment_series(
     params: pd.DataFrame,
     sub_ids: NDArray[np.object_] | pd.Series,
     dt_s: float,
+    *,
+    weights: sp.csr_matrix | None = None,
 ) -> pd.DataFrame:
     """Long-format series per subcatchment and step: rain, infiltration and excess depths.
 
@@ -180,7 +187,8 @@ def subcatchment_series(
         ``infiltration_m``, ``excess_m`` (area-weighted depths in the step).
     """
     sub_ids = np.asarray(sub_ids, dtype=object)
-    weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    if weights is None:
+        weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
     n_steps = loss.rain_m.shape[0]
     frames = {
         name: np.asarray(weights @ arr.T).ravel()  # (subs x steps) flattened, sub-major

@@ -25,7 +25,13 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from .aggregate import soil_shares, subcatchment_series, summarize_subcatchments, summarize_units
+from .aggregate import (
+    area_weights,
+    soil_shares,
+    subcatchment_series,
+    summarize_subcatchments,
+    summarize_units,
+)
 from .engine import LossResult, run_losses
 from .errors import GisrunWarning, ParameterError, RasterError, VectorError
 from .io.raster import ClassRaster, read_class_raster
@@ -316,8 +322,9 @@ def run_storm(
     rain_units = rain if rain_scale is None else rain[:, None] * rain_scale[None, :]
     loss = run_losses(params, rain_units, dt_s)
     units = summarize_units(loss, params, dt_s)
-    subs = summarize_subcatchments(loss, params, sub_ids, dt_s)
-    series = subcatchment_series(loss, params, sub_ids, dt_s)
+    weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    subs = summarize_subcatchments(loss, params, sub_ids, dt_s, weights=weights)
+    series = subcatchment_series(loss, params, sub_ids, dt_s, weights=weights)
     for name in ("rain", "infiltration", "excess"):
         series[f"{name}_intensity_m_per_s"] = series[f"{name}_m"] / dt_s
     return StormResult(hyetograph, rain, loss, units, subs, series)
