@@ -254,6 +254,9 @@ def prepare_parameters(
         method=project.method,
         overrides=inputs.overrides,
         subcatchment_attributes=attributes,
+        initial_abstraction_ratio=project.initial_abstraction_ratio,
+        antecedent_condition=project.antecedent_condition,
+        initial_water_content=project.soil.initial_water_content,
     )
     if project.combine == "composite":
         params = composite_parameters(params)

@@ -68,11 +68,12 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
          "storms", "rain_scale"),
     "project": ("name", "units", "output", "time_step_min", "memory_budget_mb"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields"),
-    "soil": ("path", "classification", "dual_group_condition", "initial_saturation", "codes",
-             "crs"),
+    "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
+             "initial_water_content", "codes", "crs"),
     "cover": ("path", "codes", "crs"),
     "nodata": ("rule", "max_fraction"),
-    "method": ("name", "combine", "compare_composite"),
+    "method": ("name", "combine", "compare_composite", "initial_abstraction_ratio",
+               "antecedent_condition"),
     "parameters": ("overrides",),
     "rain_scale": ("field",),
 }
@@ -100,6 +101,7 @@ class SoilSource:
     dual_group_condition: str = "undrained"
     initial_saturation: float = 0.3
     crs: str | None = None
+    initial_water_content: float | None = None
 
 
 @dataclass(frozen=True)
@@ -145,6 +147,8 @@ class Project:
     rain_scale_field: str | None = None
     memory_budget_mb: float = 1500.0
     compare_composite: bool = False
+    initial_abstraction_ratio: float = 0.2
+    antecedent_condition: int = 2
     raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     @property
@@ -244,6 +248,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
             initial_saturation=reader.number(
                 soil, "soil", "initial_saturation", default=0.3, low=0.0, high=1.0),
             crs=reader.string(soil, "soil", "crs", required=False),
+            initial_water_content=_water_content(reader, soil),
         ),
         cover=_cover(reader, cover),
         storms=_storms(reader, raw),
@@ -257,6 +262,10 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         memory_budget_mb=reader.number(top, "project", "memory_budget_mb", default=1500.0,
                                        low=50.0),
         compare_composite=reader.flag(method, "method", "compare_composite", default=False),
+        initial_abstraction_ratio=reader.closest_number(
+            method, "method", "initial_abstraction_ratio", (0.2, 0.05), default=0.2),
+        antecedent_condition=int(reader.closest_number(
+            method, "method", "antecedent_condition", (1, 2, 3), default=2)),
         raw=raw,
     )
     _check_class_labels(reader, project)
@@ -273,6 +282,17 @@ def _check_class_labels(reader: _Reader, project: Project) -> None:
     if project.cover is not None:
         for code, label in project.cover.codes.items():
             check_cover_labels([label], reader.where("cover.codes", f'"{code}"'))
+
+
+def _water_content(reader: _Reader, soil: Mapping[str, Any]) -> float | None:
+    if "initial_water_content" not in soil:
+        return None
+    if "initial_saturation" in soil:
+        raise ProjectFileError(
+            reader.where("soil", "initial_water_content"),
+            "is given together with initial_saturation", "keep only one of the two",
+        )
+    return reader.number(soil, "soil", "initial_water_content", default=0.0, low=0.0, high=1.0)
 
 
 def _units(reader: _Reader, top: Mapping[str, Any]) -> UnitSystem:
@@ -389,6 +409,14 @@ class _Reader:
                 'write e.g. ["ks_mm_per_h", "curve_number"]',
             )
         return tuple(value)
+
+    def closest_number(self, table: Mapping[str, Any], section: str, key: str,
+                       allowed: tuple[float, ...], *, default: float) -> float:
+        value = self.number(table, section, key, default=default)
+        if value not in allowed:
+            raise ProjectFileError(self.where(section, key), f"is {value:g}",
+                                   f"use one of {[f'{a:g}' for a in allowed]}")
+        return value
 
     def flag(self, table: Mapping[str, Any], section: str, key: str, *, default: bool) -> bool:
         value = table.get(key, default)

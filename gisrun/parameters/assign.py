@@ -75,6 +75,9 @@ def assign_parameters(
     overrides: pd.DataFrame | None = None,
     subcatchment_attributes: pd.DataFrame | None = None,
     impervious_depression_storage_m: float = T.DEFAULT_IMPERVIOUS_DEPRESSION_STORAGE_M,
+    initial_abstraction_ratio: float = T.DEFAULT_INITIAL_ABSTRACTION_RATIO,
+    antecedent_condition: int = T.DEFAULT_ANTECEDENT_CONDITION,
+    initial_water_content: float | None = None,
 ) -> AssignedParameters:
     """Give every unit SI parameters for every loss method.
 
@@ -100,6 +103,16 @@ def assign_parameters(
         ``loss_method``, one row per subcatchment; blank cells set nothing.
     impervious_depression_storage_m : float
         Depression storage of impervious parts (m); 1.5 mm by default.
+    initial_abstraction_ratio : float
+        Curve-number Ia/S for every unit (0.2, or 0.05 with the published S
+        conversion); an override column wins.
+    antecedent_condition : int
+        Curve-number antecedent moisture condition (1, 2 or 3) for every unit.
+    initial_water_content : float, optional
+        Initial volumetric water content; when given, the Green-Ampt moisture
+        deficit is total porosity minus it (Chow et al. 1988, sec. 4.3:
+        ``(1 - Se) theta_e = eta - theta_i``) instead of coming from
+        ``initial_saturation``.
 
     Returns
     -------
@@ -126,6 +139,7 @@ def assign_parameters(
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
     rows = _expand(units, soils)
     values, sources = _shipped(rows, soils, initial_saturation, impervious_depression_storage_m)
+    _run_defaults(values, sources, initial_abstraction_ratio)
     values["loss_method"], sources["loss_method"] = method, "run default ([method] name)"
     ranks = pd.DataFrame(0, index=rows.index, columns=list(_ALL))
     for rank, layer in _layers(overrides, None, classification):
@@ -133,8 +147,54 @@ def assign_parameters(
     if subcatchment_attributes is not None and len(subcatchment_attributes):
         _apply_attributes(rows, values, sources, ranks, subcatchment_attributes)
     _rederive(rows, values, sources, ranks, initial_saturation)
+    if initial_water_content is not None:
+        _deficit_from_water_content(rows, values, sources, ranks, initial_water_content, warnings)
     _check_result(rows, values, sources)
-    return AssignedParameters(_params(rows, values), _provenance(rows, sources), warnings)
+    params = _params(rows, values)
+    params["antecedent_condition"] = _checked_condition(antecedent_condition)
+    return AssignedParameters(params, _provenance(rows, sources), warnings)
+
+
+def _run_defaults(values: pd.DataFrame, sources: pd.DataFrame, ratio: float) -> None:
+    """Apply the run's curve-number Ia/S to every unit (override rows come later and win)."""
+    if ratio not in (0.2, 0.05):
+        raise ParameterError("[method] initial_abstraction_ratio", f"value {ratio!r}",
+                             "use 0.2 (TR-55) or 0.05 (Woodward et al. 2003)")
+    if ratio != T.DEFAULT_INITIAL_ABSTRACTION_RATIO:
+        values["initial_abstraction_ratio"] = ratio
+        sources["initial_abstraction_ratio"] = (
+            f"[method] initial_abstraction_ratio {ratio:g} (S converted after Hawkins et al. "
+            "2002 / Woodward et al. 2003)")
+
+
+def _checked_condition(condition: int) -> int:
+    if condition not in (1, 2, 3):
+        raise ParameterError("[method] antecedent_condition", f"value {condition!r}",
+                             "use 1 (dry), 2 (average) or 3 (wet)")
+    return int(condition)
+
+
+def _deficit_from_water_content(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
+                                ranks: pd.DataFrame, theta: float,
+                                warnings: list[GisrunWarning]) -> None:
+    """Moisture deficit = total porosity - initial water content, where no override set it."""
+    if not (np.isfinite(theta) and 0.0 <= theta < 1.0):
+        raise ParameterError("[soil] initial_water_content", f"value {theta!r} is outside 0-1",
+                             "give the initial volumetric water content as a fraction")
+    redo = ((rows["surface"] == "pervious") & (ranks["moisture_deficit"] == 0)).to_numpy()
+    if not redo.any():
+        return
+    porosity = values.loc[redo, "total_porosity"].astype(float)
+    deficit = porosity - theta
+    if (deficit < 0).any():
+        soils = sorted(set(rows.loc[redo, "soil_class"][(deficit < 0).to_numpy()]))
+        warnings.append(GisrunWarning(
+            f"[soil] initial_water_content {theta:g} exceeds the total porosity of {soils}; "
+            "their moisture deficit is set to 0 (saturated from the start)"))
+    values.loc[redo, "moisture_deficit"] = deficit.clip(lower=0.0)
+    sources.loc[redo, "moisture_deficit"] = (
+        "total porosity from " + sources.loc[redo, "total_porosity"]
+        + f" - initial_water_content {theta:g} (Chow et al. 1988 sec. 4.3)")
 
 
 def _check_options(classification: str, dual: str, saturation: float, ds_m: float) -> None:
