@@ -66,14 +66,35 @@ def print_summary(result: Any, written: Path) -> None:
     table = Table(title=f"{result.project.name}: {len(result.subcatchments)} subcatchments, "
                         f"{len(result.parameters)} soil x cover units, "
                         f"method {result.project.method}")
+    longest = max(len(str(r["storm"])) for r in rows)
     for key in rows[0]:
-        table.add_column(key, justify="left" if key == "storm" else "right")
+        if key == "storm":
+            table.add_column("storm", no_wrap=True, min_width=longest)
+        else:
+            table.add_column(_label(key), justify="right")
     for row in rows:
         table.add_row(*[_fmt(v) for v in row.values()])
     console.print(table)
     for note in result.warnings:
         console.print(f"[yellow]warning:[/yellow] {note}", highlight=False)
     console.print(f"Output written to {written}", highlight=False)
+
+
+_LABELS = {
+    "rain_depth": "rain", "infiltration_depth": "infiltration", "runoff_depth": "runoff",
+    "runoff_volume": "runoff volume", "runoff_coefficient": "runoff coefficient",
+    "subcatchments_ponding": "subcatchments ponding", "earliest_ponding_min":
+    "earliest ponding min",
+}
+
+
+def _label(key: str) -> str:
+    """Short column heading with its unit: ``runoff_depth_mm`` -> ``runoff mm``."""
+    for stem, text in _LABELS.items():
+        if key == stem or (key.startswith(stem + "_") and stem != "earliest_ponding_min"):
+            unit = key[len(stem) + 1:]
+            return f"{text} {unit}".strip()
+    return key
 
 
 def _fmt(value: Any) -> str:
