@@ -27,6 +27,7 @@ __all__ = [
     "read_column",
     "take_params",
     "split_surface_water",
+    "set_nonnegative_arrays",
     "PARAMETER_FRAME",
 ]
 
@@ -220,6 +221,27 @@ def take_params(params: P, index: NDArray[np.intp]) -> P:
         f.name: np.asarray(getattr(params, f.name))[index] for f in fields(params) if f.init
     }
     return type(params)(**kwargs)
+
+
+def set_nonnegative_arrays(params: object, names: tuple[str, ...], label: str) -> None:
+    """Turn ``params``' fields ``names`` into float64 arrays, checked 1-D, of one length, >= 0.
+
+    For the frozen ``Params`` dataclasses of the method modules (their
+    ``__post_init__``).
+
+    Raises
+    ------
+    ValueError
+        A field is not 1-D, has another length than the first, or holds a
+        negative or non-finite value.
+    """
+    arrays = [np.asarray(getattr(params, n), dtype=np.float64) for n in names]
+    if arrays[0].ndim != 1 or any(a.shape != arrays[0].shape for a in arrays):
+        raise ValueError(f"{label} parameters must be 1-D arrays of one length")
+    for name, a in zip(names, arrays, strict=True):
+        if not np.all(np.isfinite(a) & (a >= 0)):
+            raise ValueError(f"{label} {name} must be finite and >= 0")
+        object.__setattr__(params, name, a)
 
 
 def split_surface_water(

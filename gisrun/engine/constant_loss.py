@@ -33,7 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .base import FloatArray, StepResult, read_column, split_surface_water
+from .base import FloatArray, StepResult, read_column, set_nonnegative_arrays, split_surface_water
 
 __all__ = ["NAME", "Params", "State", "initial_state", "step"]
 
@@ -59,13 +59,9 @@ class Params:
     depression_storage_m: FloatArray
 
     def __post_init__(self) -> None:
-        for name in ("initial_loss_m", "constant_loss_m_per_s", "depression_storage_m"):
-            a = np.asarray(getattr(self, name), dtype=np.float64)
-            if a.ndim != 1 or a.shape != np.shape(self.initial_loss_m):
-                raise ValueError("constant loss parameters must be 1-D arrays of one length")
-            if not np.all(np.isfinite(a) & (a >= 0)):
-                raise ValueError(f"constant loss {name} must be finite and >= 0")
-            object.__setattr__(self, name, a)
+        set_nonnegative_arrays(
+            self, ("initial_loss_m", "constant_loss_m_per_s", "depression_storage_m"),
+            "constant loss")
 
     @classmethod
     def from_frame(cls, frame: pd.DataFrame) -> Params:

@@ -71,7 +71,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .base import FloatArray, StepResult, read_column, split_surface_water
+from .base import FloatArray, StepResult, read_column, set_nonnegative_arrays, split_surface_water
 
 __all__ = ["NAME", "Params", "State", "initial_state", "step", "ponded_increment_m"]
 
@@ -112,15 +112,8 @@ class Params:
     ks_suction_m2_per_s: FloatArray = field(init=False)
 
     def __post_init__(self) -> None:
-        arrays = [np.asarray(getattr(self, n), dtype=np.float64) for n in
-                  ("ks_m_per_s", "suction_head_m", "moisture_deficit", "depression_storage_m")]
-        if len({a.shape for a in arrays}) != 1 or arrays[0].ndim != 1:
-            raise ValueError("Green-Ampt parameters must be 1-D arrays of one length")
-        for name, a in zip(("ks_m_per_s", "suction_head_m", "moisture_deficit",
-                            "depression_storage_m"), arrays, strict=True):
-            if not np.all(np.isfinite(a) & (a >= 0)):
-                raise ValueError(f"Green-Ampt {name} must be finite and >= 0")
-            object.__setattr__(self, name, a)
+        set_nonnegative_arrays(self, ("ks_m_per_s", "suction_head_m", "moisture_deficit",
+                                      "depression_storage_m"), "Green-Ampt")
         if np.any(self.moisture_deficit > 1):
             raise ValueError("Green-Ampt moisture_deficit must be <= 1")
         object.__setattr__(self, "suction_deficit_m", self.suction_head_m * self.moisture_deficit)

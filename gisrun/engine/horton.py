@@ -56,7 +56,14 @@ import numpy as np
 import pandas as pd
 
 from ..errors import ParameterError
-from .base import PARAMETER_FRAME, FloatArray, StepResult, read_column, split_surface_water
+from .base import (
+    PARAMETER_FRAME,
+    FloatArray,
+    StepResult,
+    read_column,
+    set_nonnegative_arrays,
+    split_surface_water,
+)
 
 __all__ = ["NAME", "Params", "State", "initial_state", "step", "capacity_m_per_s"]
 
@@ -89,14 +96,8 @@ class Params:
     depression_storage_m: FloatArray
 
     def __post_init__(self) -> None:
-        for name in ("f0_m_per_s", "fc_m_per_s", "decay_per_s", "recovery_per_s",
-                     "depression_storage_m"):
-            a = np.asarray(getattr(self, name), dtype=np.float64)
-            if a.ndim != 1 or a.shape != np.shape(self.f0_m_per_s):
-                raise ValueError("Horton parameters must be 1-D arrays of one length")
-            if not np.all(np.isfinite(a) & (a >= 0)):
-                raise ValueError(f"Horton {name} must be finite and >= 0")
-            object.__setattr__(self, name, a)
+        set_nonnegative_arrays(self, ("f0_m_per_s", "fc_m_per_s", "decay_per_s",
+                                      "recovery_per_s", "depression_storage_m"), "Horton")
         if np.any(self.f0_m_per_s < self.fc_m_per_s):
             raise ValueError("Horton f0 must be >= fc")
 

@@ -37,7 +37,7 @@ import pandas as pd
 from numpy.typing import ArrayLike
 
 from ..errors import ParameterError
-from .base import FloatArray, StepResult, read_column, split_surface_water
+from .base import FloatArray, StepResult, read_column, set_nonnegative_arrays, split_surface_water
 
 __all__ = [
     "NAME",
@@ -68,13 +68,7 @@ class Params:
     depression_storage_m: FloatArray
 
     def __post_init__(self) -> None:
-        for name in ("phi_index_m_per_s", "depression_storage_m"):
-            a = np.asarray(getattr(self, name), dtype=np.float64)
-            if a.ndim != 1 or a.shape != np.shape(self.phi_index_m_per_s):
-                raise ValueError("phi-index parameters must be 1-D arrays of one length")
-            if not np.all(np.isfinite(a) & (a >= 0)):
-                raise ValueError(f"phi-index {name} must be finite and >= 0")
-            object.__setattr__(self, name, a)
+        set_nonnegative_arrays(self, ("phi_index_m_per_s", "depression_storage_m"), "phi-index")
 
     @classmethod
     def from_frame(cls, frame: pd.DataFrame) -> Params:
