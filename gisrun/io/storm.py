@@ -558,21 +558,23 @@ def _build_nrcs(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, wher
 
 def _build_block(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
                  name: str | None) -> st.Hyetograph:
-    idf = _idf(spec, base_dir, units, where)
-    duration = _number(spec, "duration_min", where)
-    peak = _number(spec, "peak_position", where, 0.5, high=1.0, strict=False)
-    name = name or f"alternating_block_{duration:g}min"
-    return _located(where, lambda: st.alternating_block(
-        idf, duration * 60.0, _step_s(spec, where, 5.0), peak_position=peak, name=name))
+    return _build_from_idf(st.alternating_block, "alternating_block", spec, base_dir, units,
+                           where, name)
 
 
 def _build_chicago(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
                    name: str | None) -> st.Hyetograph:
+    return _build_from_idf(st.chicago, "chicago", spec, base_dir, units, where, name)
+
+
+def _build_from_idf(make: Any, kind: str, spec: Mapping[str, Any], base_dir: Path,
+                    units: UnitSystem, where: str, name: str | None) -> st.Hyetograph:
+    """An IDF-based design storm (alternating block or Chicago) from its [[storms]] table."""
     idf = _idf(spec, base_dir, units, where)
     duration = _number(spec, "duration_min", where)
     peak = _number(spec, "peak_position", where, 0.5, high=1.0, strict=False)
-    name = name or f"chicago_{duration:g}min"
-    return _located(where, lambda: st.chicago(
+    name = name or f"{kind}_{duration:g}min"
+    return _located(where, lambda: make(
         idf, duration * 60.0, _step_s(spec, where, 5.0), peak_position=peak, name=name))
 
 
