@@ -10,6 +10,7 @@ no de-duplication helps) through a ``--steps`` step storm and prints
 Target: Green-Ampt within 10 passes. Usage::
 
     python benchmarks/bench_engine.py [--units 100000] [--steps 288] [--repeat 2]
+                                      [--methods green_ampt ...]
 """
 
 from __future__ import annotations
@@ -72,6 +73,8 @@ def main() -> None:
     parser.add_argument("--steps", type=int, default=288)
     parser.add_argument("--repeat", type=int, default=2, help="timed runs per method (best kept)")
     parser.add_argument("--dt-s", type=float, default=300.0)
+    parser.add_argument("--methods", nargs="+", choices=sorted(ENGINES), default=list(ENGINES),
+                        help="loss methods to time (default: all)")
     args = parser.parse_args()
 
     rng = np.random.default_rng(20240601)
@@ -83,7 +86,7 @@ def main() -> None:
     print(f"{args.units} units x {args.steps} steps = {unit_steps:.3g} unit-steps "
           "(all parameter sets distinct; de-duplication off)")
     ratios = {}
-    for name in ENGINES:
+    for name in args.methods:
         # interleave the reference pass with the engine runs so that both see the same load
         stream_s, engine_s = [], []
         for _ in range(max(1, args.repeat)):
@@ -95,9 +98,10 @@ def main() -> None:
         print(f"{name:14s} {min(engine_s):7.2f} s  {unit_steps / min(engine_s):10.3g} "
               f"unit-steps/s  streaming pass {min(stream_s) * 1e3:6.1f} ms  "
               f"ratio {ratios[name]:6.1f}")
-    verdict = "meets" if ratios["green_ampt"] <= TARGET_PASSES else "misses"
-    print(f"green_ampt ratio {ratios['green_ampt']:.1f} {verdict} the target of "
-          f"{TARGET_PASSES:.0f} streaming passes")
+    if "green_ampt" in ratios:
+        verdict = "meets" if ratios["green_ampt"] <= TARGET_PASSES else "misses"
+        print(f"green_ampt ratio {ratios['green_ampt']:.1f} {verdict} the target of "
+              f"{TARGET_PASSES:.0f} streaming passes")
 
 
 if __name__ == "__main__":

@@ -27,7 +27,14 @@ from numpy.typing import ArrayLike, NDArray
 
 from ..errors import ParameterError, StormError
 from . import constant_loss, curve_number, green_ampt, horton, phi_index
-from .base import PARAMETER_FRAME, FloatArray, LossResult, StepResult, take_params
+from .base import (
+    PARAMETER_FRAME,
+    FloatArray,
+    LossResult,
+    StepResult,
+    no_ponding_offsets,
+    take_params,
+)
 from .phi_index import fit_constant_loss_rate, fit_phi_index
 
 __all__ = [
@@ -175,6 +182,7 @@ def _simulate(module: ModuleType, p: object, rain: FloatArray, dt_s: float, out:
     ponding = np.full(n, np.nan)
     shared = rain.shape[1] == 1
     rain_k = np.empty(n)
+    no_ponding = no_ponding_offsets(n)
     for k in range(rain.shape[0]):
         if shared:
             rain_k.fill(rain[k, 0])
@@ -183,9 +191,9 @@ def _simulate(module: ModuleType, p: object, rain: FloatArray, dt_s: float, out:
         state, r = module.step(p, state, rain_k, dt_s)
         out.infil[k, dest], out.excess[k, dest] = r.infil_m, r.excess_m
         out.capacity[k, dest] = r.capacity_m_per_s
-        first = np.isnan(ponding) & ~np.isnan(r.ponding_offset_s)
-        if first.any():
-            ponding[first] = k * dt_s + r.ponding_offset_s[first]
+        if r.ponding_offset_s is not no_ponding:
+            # times only grow, so the first ponding time is the smallest; fmin skips NaN
+            np.fmin(ponding, r.ponding_offset_s + k * dt_s, out=ponding)
     out.storage[dest], out.ponding[dest] = state.storage_m, ponding
 
 

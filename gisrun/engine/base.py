@@ -12,6 +12,7 @@ Mass balance, per unit and per step, for every method::
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, field, fields
 from typing import Any, TypeVar
 
@@ -120,7 +121,7 @@ class LossResult:
                                  f"expected {(shape[1],)}")
         if not (np.isfinite(self.dt_s) and self.dt_s > 0):
             raise ValueError(f"LossResult.dt_s must be positive, got {self.dt_s}")
-        methods = tuple(str(m) for m in self.methods)
+        methods = tuple(map(str, self.methods))
         if len(methods) != shape[1]:
             raise ValueError(f"LossResult.methods has {len(methods)} names for {shape[1]} units")
         object.__setattr__(self, "methods", methods)
@@ -253,3 +254,25 @@ def split_surface_water(
     """
     kept = np.minimum(water_m, depression_storage_m)
     return kept, water_m - kept
+
+
+@functools.lru_cache(maxsize=8)
+def no_ponding_offsets(n_units: int) -> FloatArray:
+    """A shared, read-only all-NaN ``ponding_offset_s`` for a step where no unit starts to pond.
+
+    A method returns this array (the same object every time) instead of a fresh NaN array;
+    the engine's time loop then skips looking for new ponding times in that step.
+    """
+    out = np.full(n_units, np.nan)
+    out.flags.writeable = False
+    return out
+
+
+def start_offsets(starts: NDArray[np.bool_], offsets_s: FloatArray | float) -> FloatArray:
+    """``ponding_offset_s`` of a step: ``offsets_s`` where ``starts``, NaN elsewhere.
+
+    Returns the shared :func:`no_ponding_offsets` array when no unit starts to pond.
+    """
+    if not starts.any():
+        return no_ponding_offsets(starts.shape[0])
+    return np.where(starts, offsets_s, np.nan)

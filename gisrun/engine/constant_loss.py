@@ -33,7 +33,14 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .base import FloatArray, StepResult, read_column, set_nonnegative_arrays, split_surface_water
+from .base import (
+    FloatArray,
+    StepResult,
+    read_column,
+    set_nonnegative_arrays,
+    split_surface_water,
+    start_offsets,
+)
 
 __all__ = ["NAME", "Params", "State", "initial_state", "step"]
 
@@ -113,6 +120,6 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     left = state.initial_loss_left_m - initial
     storage, excess = split_surface_water(supply - d_infil, params.depression_storage_m)
     ponded = wet_after & (rate > c)
-    offset = np.where(ponded & ~state.ponded, t0, np.nan)
+    offset = start_offsets(ponded & ~state.ponded, t0)
     capacity = np.where(left > 0, np.inf, c)
     return State(left, storage, ponded), StepResult(d_infil, excess, capacity, offset)

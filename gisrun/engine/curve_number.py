@@ -58,7 +58,14 @@ import numpy as np
 import pandas as pd
 
 from ..errors import ParameterError
-from .base import PARAMETER_FRAME, FloatArray, StepResult, read_column
+from .base import (
+    PARAMETER_FRAME,
+    FloatArray,
+    StepResult,
+    no_ponding_offsets,
+    read_column,
+    start_offsets,
+)
 
 __all__ = [
     "NAME",
@@ -216,8 +223,11 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     excess = np.clip(total - state.excess_total_m, 0.0, rain_m)
     infil = rain_m - excess
     starts = (before <= ia) & (after > ia)
-    frac = (ia - before) / np.where(starts, rain_m, 1.0)
-    offset = np.where(starts, np.clip(frac, 0.0, 1.0) * dt_s, np.nan)
+    if starts.any():
+        frac = (ia - before) / np.where(starts, rain_m, 1.0)
+        offset = start_offsets(starts, np.clip(frac, 0.0, 1.0) * dt_s)
+    else:
+        offset = no_ponding_offsets(starts.shape[0])
     nan = np.full(rain_m.shape, np.nan)
     result = StepResult(infil, excess, nan, offset)
     return State(after, state.excess_total_m + excess, state.storage_m), result

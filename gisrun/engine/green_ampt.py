@@ -71,7 +71,14 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .base import FloatArray, StepResult, read_column, set_nonnegative_arrays, split_surface_water
+from .base import (
+    FloatArray,
+    StepResult,
+    no_ponding_offsets,
+    read_column,
+    set_nonnegative_arrays,
+    split_surface_water,
+)
 
 __all__ = ["NAME", "Params", "State", "initial_state", "step", "ponded_increment_m"]
 
@@ -102,6 +109,10 @@ class Params:
         Surface storage filled before runoff, m.
     suction_deficit_m : ndarray
         Derived: ``suction_head_m * moisture_deficit``, m.
+    ks_suction_m2_per_s : ndarray
+        Derived: ``ks_m_per_s * suction_deficit_m``, m2/s.
+    constant_capacity : ndarray of int
+        Derived: units with ``Ks P = 0``, whose capacity is the constant ``Ks``.
     """
 
     ks_m_per_s: FloatArray
@@ -110,6 +121,7 @@ class Params:
     depression_storage_m: FloatArray
     suction_deficit_m: FloatArray = field(init=False)
     ks_suction_m2_per_s: FloatArray = field(init=False)
+    constant_capacity: np.ndarray = field(init=False)
 
     def __post_init__(self) -> None:
         set_nonnegative_arrays(self, ("ks_m_per_s", "suction_head_m", "moisture_deficit",
@@ -118,6 +130,7 @@ class Params:
             raise ValueError("Green-Ampt moisture_deficit must be <= 1")
         object.__setattr__(self, "suction_deficit_m", self.suction_head_m * self.moisture_deficit)
         object.__setattr__(self, "ks_suction_m2_per_s", self.ks_m_per_s * self.suction_deficit_m)
+        object.__setattr__(self, "constant_capacity", np.flatnonzero(self.ks_suction_m2_per_s == 0))
 
     @classmethod
     def from_frame(cls, frame: pd.DataFrame) -> Params:
@@ -169,38 +182,50 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     """
     f0 = state.infil_m
     supply = rain_m + state.storage_m
-    d_infil = supply.copy()  # case 1 unless the supply rate exceeds Ks
-    ponded = np.zeros(supply.shape, dtype=bool)
-    offset = np.full(supply.shape, np.nan)
-    idx = np.flatnonzero(supply > params.ks_m_per_s * dt_s)
-    if idx.size:
-        d_sub, ponded_sub, t_sub = _above_ks(params.ks_m_per_s[idx], params.suction_deficit_m[idx],
-                                             f0[idx], supply[idx], dt_s)
-        d_infil[idx], ponded[idx] = d_sub, ponded_sub
-        offset[idx] = np.where(ponded_sub & ~state.ponded[idx], t_sub, np.nan)
-    infil = f0 + d_infil
-    storage, excess = split_surface_water(supply - d_infil, params.depression_storage_m)
-    result = StepResult(d_infil, excess, capacity_m_per_s(params, infil), offset)
-    return State(infil, storage, ponded), result
+    # A unit ponds inside the step when Fp = Ks P / (i - Ks) < F0 + i dt with i > Ks; in
+    # product form (no division, no overflow) that is (i - Ks)(F0 + i dt) > Ks P, which
+    # is false whenever i <= Ks. Every other unit infiltrates its whole supply (case 1).
+    infil = f0 + supply
+    test = np.multiply(supply, 1.0 / dt_s)
+    np.subtract(test, params.ks_m_per_s, out=test)
+    np.multiply(test, infil, out=test)
+    ponds = np.greater(test, params.ks_suction_m2_per_s)
+    idx = np.flatnonzero(ponds)
+    d_infil = supply  # the supply array becomes the infiltration (changed where units pond)
+    storage, excess = np.zeros(supply.shape), np.zeros(supply.shape)
+    offset = no_ponding_offsets(supply.shape[0])
+    # inf and 0/0 below are expected and handled (capacity at F = 0, Fp for i a hair above Ks)
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        if idx.size:
+            f0_sub, supply_sub = f0[idx], supply[idx]
+            d_sub, t_sub = _ponding(params.ks_m_per_s[idx], params.suction_deficit_m[idx],
+                                    f0_sub, supply_sub, dt_s)
+            d_infil[idx] = d_sub
+            infil[idx] = f0_sub + d_sub
+            storage[idx], excess[idx] = split_surface_water(supply_sub - d_sub,
+                                                            params.depression_storage_m[idx])
+            fresh = ~state.ponded[idx]
+            if fresh.any():  # ponding starts in this step for these units
+                offset = np.full(supply.shape, np.nan)
+                offset[idx[fresh]] = t_sub[fresh]
+        capacity = _capacity(params, infil)
+    return State(infil, storage, ponds), StepResult(d_infil, excess, capacity, offset)
 
 
-def _above_ks(ks: FloatArray, pd_m: FloatArray, f0: FloatArray, supply: FloatArray,
-              dt_s: float) -> tuple[FloatArray, np.ndarray, FloatArray]:
-    """Cases 2 and 3 for units whose supply rate exceeds Ks: (infiltration, ponded, t_p).
+def _ponding(ks: FloatArray, pd_m: FloatArray, f0: FloatArray, supply: FloatArray,
+             dt_s: float) -> tuple[FloatArray, FloatArray]:
+    """Cases 2 and 3 for units that pond during the step: (infiltration, t_p).
 
     With ``Fp = Ks P / (i - Ks)`` and ``t_p = max((Fp - F0) / i, 0)``: ``t_p = 0`` is case 2
-    (ponded from the start, ``Fp <= F0``), ``0 < t_p < dt`` case 3, ``t_p >= dt`` case 1.
+    (ponded from the start, ``Fp <= F0``), ``0 < t_p < dt`` case 3.
     """
     rate = supply / dt_s
-    with np.errstate(over="ignore"):  # rate a hair above Ks: ponds beyond float range (inf)
-        f_pond = ks * pd_m / (rate - ks)
-        t_pond = np.maximum((f_pond - f0) / rate, 0.0)
-    ponded = t_pond < dt_s
-    start = np.where(ponded, np.maximum(f_pond, f0), f0)
-    tau = np.where(ponded, dt_s - t_pond, 0.0)
-    gain = _solve_ponded(start, pd_m, ks * tau)
-    d_infil = np.where(ponded, np.minimum((start - f0) + gain, supply), supply)
-    return d_infil, ponded, t_pond
+    f_pond = ks * pd_m / (rate - ks)  # inf for a rate a hair above Ks (caller ignores overflow)
+    # rounding may put t_p a hair past dt for a unit that ponds at the very end of the step
+    t_pond = np.minimum(np.maximum((f_pond - f0) / rate, 0.0), dt_s)
+    start = np.maximum(f_pond, f0)
+    gain = _solve_ponded(start, pd_m, ks * (dt_s - t_pond))
+    return np.minimum((start - f0) + gain, supply), t_pond
 
 
 def capacity_m_per_s(params: Params, infil_m: FloatArray) -> FloatArray:
@@ -210,10 +235,15 @@ def capacity_m_per_s(params: Params, infil_m: FloatArray) -> FloatArray:
     """
     # F of a few 1e-308 m or F = 0: capacity beyond float range (inf); 0/0 where Ks P = 0
     with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
-        cap = params.ks_m_per_s + params.ks_suction_m2_per_s / infil_m
-    undefined = np.isnan(cap)
-    if undefined.any():
-        cap[undefined] = params.ks_m_per_s[undefined]
+        return _capacity(params, np.asarray(infil_m, dtype=np.float64))
+
+
+def _capacity(params: Params, infil_m: FloatArray) -> FloatArray:
+    """:func:`capacity_m_per_s` without the floating-point error state (the caller sets it)."""
+    cap = params.ks_suction_m2_per_s / infil_m
+    cap += params.ks_m_per_s
+    if params.constant_capacity.size:  # Ks P = 0: no suction term, not 0/0 = NaN
+        cap[params.constant_capacity] = params.ks_m_per_s[params.constant_capacity]
     return cap
 
 
@@ -264,23 +294,26 @@ def _solve_ponded(fs: FloatArray, p: FloatArray, k: FloatArray) -> FloatArray:
     y = _first_guess(b, t)
     if np.all(t > 0):
         active, ya, ba, ta = slice(None), y, b, t
-    else:
+    else:  # K tau = 0 (impervious, or no ponded time): G = 0, nothing to solve
+        y[t <= 0] = 0.0
         active = np.flatnonzero(t > 0)
         ya, ba, ta = y[active], b[active], t[active]
-    for _ in range(_MAX_NEWTON):
+    tol = NEWTON_RTOL * ta + _FLOOR  # the absolute floor only matters for subnormal K tau
+    for it in range(_MAX_NEWTON):
         r = _residual(ya, ba, ta)
-        # the absolute floor only matters for subnormal K tau, where precision is lost
-        todo = np.abs(r) > NEWTON_RTOL * ta + _FLOOR
+        todo = np.abs(r) > tol
         if not todo.any():
             break
-        move = np.where(todo, r * ((1.0 + ya) / (ba + ya)), 0.0)
+        # Newton on every remaining unit: a unit already within tolerance only gets closer
+        move = r * ((1.0 + ya) / (ba + ya))
         ya = ya - move
-        todo &= np.abs(move) > 4e-16 * ya  # stop where float precision is exhausted
-        if not todo.all():
+        if it >= 2:  # stop where float precision is exhausted (subnormal or huge K tau)
+            todo &= np.abs(move) > 4e-16 * ya
+        if todo.sum() * 2 < todo.size:  # drop the converged units once they are the majority
             y[active] = ya
             keep = np.flatnonzero(todo)
             active = keep if isinstance(active, slice) else active[keep]
-            ya, ba, ta = ya[keep], ba[keep], ta[keep]
+            ya, ba, ta, tol = ya[keep], ba[keep], ta[keep], tol[keep]
     else:  # pragma: no cover - convex increasing equation from a positive guess converges
         raise RuntimeError("Green-Ampt Newton iteration did not converge")
     y[active] = ya
@@ -299,9 +332,13 @@ def _first_guess(b: FloatArray, t: FloatArray) -> FloatArray:
     a2 = 3.0 + b
     b1 = 6.0 * b - 4.0 * t
     root = np.sqrt(b1 * b1 + 24.0 * a2 * t)
-    pos = b1 >= 0  # pick the form of the quadratic root that does not cancel
-    return np.where(pos, 12.0 * t / np.where(pos, np.maximum(b1 + root, 1e-300), 1.0),
-                    0.5 * (root - b1) / a2)
+    # b1 + root cancels where b1 < 0 (replaced below) and is 0 where T = 0 (set to 0 later)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = 12.0 * t / (b1 + root)
+    neg = b1 < 0  # pick the form of the quadratic root that does not cancel
+    if neg.any():
+        y[neg] = 0.5 * (root[neg] - b1[neg]) / a2[neg]
+    return y
 
 
 def _residual(y: FloatArray, b: FloatArray, t: FloatArray) -> FloatArray:

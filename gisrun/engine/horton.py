@@ -60,6 +60,7 @@ from .base import (
     PARAMETER_FRAME,
     FloatArray,
     StepResult,
+    no_ponding_offsets,
     read_column,
     set_nonnegative_arrays,
     split_surface_water,
@@ -169,13 +170,16 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     supply = rain_m + state.storage_m
     d_infil = supply.copy()  # all infiltrates unless the unit ponds
     ponded = np.zeros(supply.shape, dtype=bool)
-    offset = np.full(supply.shape, np.nan)
+    offset = no_ponding_offsets(supply.shape[0])
     e_new = e.copy()
     hi = np.flatnonzero(supply > p.fc_m_per_s * dt_s)  # only these can pond
     if hi.size:
         d_sub, ponded_sub, tau_sub, e_sub = _above_fc(p, hi, e[hi], supply[hi], dt_s)
         d_infil[hi], ponded[hi], e_new[hi] = d_sub, ponded_sub, e_sub
-        offset[hi] = np.where(ponded_sub & ~state.ponded[hi], tau_sub, np.nan)
+        fresh = ponded_sub & ~state.ponded[hi]
+        if fresh.any():  # ponding starts in this step for these units
+            offset = np.full(supply.shape, np.nan)
+            offset[hi[fresh]] = tau_sub[fresh]
     light = np.flatnonzero((supply > 0) & ~ponded & (p.decay_per_s > 0))
     if light.size:
         e_new[light] = _after_infiltrating(p, light, e[light], supply[light])

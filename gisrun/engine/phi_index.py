@@ -37,7 +37,14 @@ import pandas as pd
 from numpy.typing import ArrayLike
 
 from ..errors import ParameterError
-from .base import FloatArray, StepResult, read_column, set_nonnegative_arrays, split_surface_water
+from .base import (
+    FloatArray,
+    StepResult,
+    read_column,
+    set_nonnegative_arrays,
+    split_surface_water,
+    start_offsets,
+)
 
 __all__ = [
     "NAME",
@@ -111,7 +118,7 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     d_infil = np.minimum(supply, phi * dt_s)
     storage, excess = split_surface_water(supply - d_infil, params.depression_storage_m)
     ponded = supply > phi * dt_s
-    offset = np.where(ponded & ~state.ponded, 0.0, np.nan)
+    offset = start_offsets(ponded & ~state.ponded, 0.0)
     return State(storage, ponded), StepResult(d_infil, excess, phi.copy(), offset)
 
 

@@ -75,6 +75,23 @@ def test_newton_solution_matches_lambert_w_over_a_wide_range():
                     rtol=1e-7)
 
 
+@pytest.mark.skipif(np.finfo(np.longdouble).eps > 1e-18,
+                    reason="needs extended-precision long double to evaluate the residual")
+def test_relative_residual_is_below_1e9_in_extended_precision():
+    # The ponded equation G - P ln(1 + G/(P+Fs)) = K tau is solved to a relative residual of
+    # 1e-9; check it with the residual evaluated in 80-bit long double (exact arithmetic
+    # check, no published source needed), over short and long ponded times.
+    rng = np.random.default_rng(11)
+    n = 20000
+    fs = 10 ** rng.uniform(-6, -0.5, n) * rng.integers(0, 2, n)
+    p = 10 ** rng.uniform(-3.5, -0.5, n)
+    k_tau = (p + fs) * 10 ** rng.uniform(-6, 3, n)
+    g = ponded_increment_m(fs, p, k_tau)
+    gl, pl, fl, kl = (np.asarray(a, dtype=np.longdouble) for a in (g, p, fs, k_tau))
+    residual = gl - pl * np.log1p(gl / (pl + fl)) - kl
+    assert np.max(np.abs(residual / kl)) < 1.01e-9
+
+
 def test_residual_is_below_tolerance_for_extreme_inputs():
     # Where Lambert W itself loses precision (tiny or huge K tau), check the equation.
     fs = np.array([0.0, 1e-9, 0.3, 0.0, 2.0, 1e-12])
