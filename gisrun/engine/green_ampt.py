@@ -185,9 +185,11 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     # A unit ponds inside the step when Fp = Ks P / (i - Ks) < F0 + i dt with i > Ks; in
     # product form (no division, no overflow) that is (i - Ks)(F0 + i dt) > Ks P, which
     # is false whenever i <= Ks. Every other unit infiltrates its whole supply (case 1).
+    # The rate is computed once and used below too: with P = 0 a rate a rounding away from Ks
+    # must not pass this test and then give Fp = 0/0.
     infil = f0 + supply
-    test = np.multiply(supply, 1.0 / dt_s)
-    np.subtract(test, params.ks_m_per_s, out=test)
+    rate = supply / dt_s
+    test = np.subtract(rate, params.ks_m_per_s)
     np.multiply(test, infil, out=test)
     ponds = np.greater(test, params.ks_suction_m2_per_s)
     idx = np.flatnonzero(ponds)
@@ -199,7 +201,7 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
         if idx.size:
             f0_sub, supply_sub = f0[idx], supply[idx]
             d_sub, t_sub = _ponding(params.ks_m_per_s[idx], params.suction_deficit_m[idx],
-                                    f0_sub, supply_sub, dt_s)
+                                    f0_sub, supply_sub, rate[idx], dt_s)
             d_infil[idx] = d_sub
             infil[idx] = f0_sub + d_sub
             storage[idx], excess[idx] = split_surface_water(supply_sub - d_sub,
@@ -213,13 +215,13 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
 
 
 def _ponding(ks: FloatArray, pd_m: FloatArray, f0: FloatArray, supply: FloatArray,
-             dt_s: float) -> tuple[FloatArray, FloatArray]:
+             rate: FloatArray, dt_s: float) -> tuple[FloatArray, FloatArray]:
     """Cases 2 and 3 for units that pond during the step: (infiltration, t_p).
 
     With ``Fp = Ks P / (i - Ks)`` and ``t_p = max((Fp - F0) / i, 0)``: ``t_p = 0`` is case 2
-    (ponded from the start, ``Fp <= F0``), ``0 < t_p < dt`` case 3.
+    (ponded from the start, ``Fp <= F0``), ``0 < t_p < dt`` case 3. The caller's test
+    guarantees ``rate > Ks`` for these units.
     """
-    rate = supply / dt_s
     f_pond = ks * pd_m / (rate - ks)  # inf for a rate a hair above Ks (caller ignores overflow)
     # rounding may put t_p a hair past dt for a unit that ponds at the very end of the step
     t_pond = np.minimum(np.maximum((f_pond - f0) / rate, 0.0), dt_s)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 from engine_helpers import CM_PER_H, SILT_LOAM, unit_frame
 from numpy.testing import assert_allclose
@@ -90,6 +91,18 @@ def test_relative_residual_is_below_1e9_in_extended_precision():
     gl, pl, fl, kl = (np.asarray(a, dtype=np.longdouble) for a in (g, p, fs, k_tau))
     residual = gl - pl * np.log1p(gl / (pl + fl)) - kl
     assert np.max(np.abs(residual / kl)) < 1.01e-9
+
+
+def test_zero_suction_with_rain_exactly_at_ks_stays_finite():
+    # P = 0 (saturated start): the capacity is the constant Ks (Green-Ampt with no suction
+    # term, Chow et al. 1988 section 4.3), so rain at exactly Ks all infiltrates and rain at
+    # 10 Ks loses Ks per step. A rate a rounding error above Ks once gave Fp = 0/0 = NaN.
+    units = pd.DataFrame({"ks_m_per_s": [0.001 / 300], "suction_head_m": [0.11],
+                          "moisture_deficit": [0.0], "depression_storage_m": [0.0]})
+    res = run_losses(units, [0.001, 0.010, 0.010], 300.0, method="green_ampt")
+    assert_allclose(res.infil_m[:, 0], [0.001, 0.001, 0.001], rtol=1e-12)
+    assert_allclose(res.excess_m[:, 0], [0.0, 0.009, 0.009], rtol=1e-12, atol=1e-18)
+    assert res.time_to_ponding_s[0] == 300.0
 
 
 def test_residual_is_below_tolerance_for_extreme_inputs():
