@@ -114,6 +114,11 @@ class ChunkOutput:
     storm_units: list[pd.DataFrame]
     storm_series: list[pd.DataFrame]
     storm_losses: list[Any] = field(default_factory=list)
+    #: Per-subcatchment parameters for a drainage model (SI), from the unit parameters.
+    model_inputs: pd.DataFrame | None = None
+    #: Units run, and units per loss method (kept when the unit rows are streamed away).
+    unit_count: int = 0
+    method_counts: dict[str, int] = field(default_factory=dict)
 
 
 def process_chunk(task: ChunkTask) -> ChunkOutput:
@@ -122,6 +127,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
 
     from . import pipeline
     from .errors import GisrunWarning
+    from .export import model_inputs_si
 
     project = task.project
     inputs = pipeline.Inputs(task.subcatchments, task.soil, task.cover, task.storms,
@@ -146,6 +152,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         storm_units=[r.units for r in results],
         storm_series=[r.series for r in results],
         storm_losses=[r.loss for r in results] if task.keep_loss else [],
+        model_inputs=model_inputs_si(params, sub_ids, default_method=project.method),
     )
 
 

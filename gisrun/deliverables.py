@@ -139,15 +139,21 @@ def _swap_in(tmp: Path, target: Path) -> None:
         shutil.rmtree(old, ignore_errors=True)
 
 
-def cell_unit_results(result: Any) -> list[pd.DataFrame]:
+def cell_unit_results(result: Any, gpkg: Path | None = None) -> list[pd.DataFrame]:
     """Per-unit results of every storm for the cell rasters (soil x cover x surface units).
 
-    With ``combine = "units"`` these are the run's own unit results. With
+    With ``combine = "units"`` these are the run's own unit results (read back
+    from the run's GeoPackage ``gpkg`` when the run streamed them there). With
     ``"composite"`` the units are assigned and run here (per-subcatchment
     parameters would hide the hot spots the rasters are for).
     """
     project = result.project
     if project.combine == "units":
+        if any(storm.units is None for storm in result.storms):
+            if gpkg is None:
+                raise ValueError("the run streamed its unit results: pass its GeoPackage")
+            return [_stored_unit_results(gpkg, storm.name, project.units)
+                    for storm in result.storms]
         return [storm.units for storm in result.storms]
     from .aggregate import summarize_units
     from .engine import run_losses
@@ -167,6 +173,36 @@ def cell_unit_results(result: Any) -> list[pd.DataFrame]:
     return out
 
 
+def _stored_unit_results(gpkg: Path, storm: str, system: Any) -> pd.DataFrame:
+    """One storm's rows of the GeoPackage's ``unit_results`` table, back in SI columns."""
+    import pyogrio
+
+    from .units import present_frame, si_frame
+
+    si = ["area_m2", "runoff_depth_m", "time_to_ponding_s"]
+    shown = present_frame(pd.DataFrame({c: [0.0] for c in si}), system).columns
+    keys = ["subcatchment_id", "soil_class", "cover_class", "surface"]
+    quoted = storm.replace("'", "''")
+    frame = pyogrio.read_dataframe(gpkg, layer="unit_results", columns=[*keys, *shown],
+                                   where=f"storm = '{quoted}'", read_geometry=False)
+    return si_frame(frame, system)
+
+
+def _stored_ranking_top(gpkg: Path, storms: list[str], top: int, system: Any) -> pd.DataFrame:
+    """The first ``top`` rows of each storm in the GeoPackage's ``ponding_rank_units`` (SI)."""
+    import pyogrio
+
+    from .units import si_frame
+
+    frames = []
+    for storm in storms:
+        quoted = storm.replace("'", "''")
+        frames.append(pyogrio.read_dataframe(gpkg, layer="ponding_rank_units",
+                                             where=f"storm = '{quoted}'", max_features=top,
+                                             read_geometry=False))
+    return si_frame(pd.concat(frames, ignore_index=True), system)
+
+
 def _rain_scale(result: Any, params: pd.DataFrame) -> np.ndarray | None:
     name = result.project.rain_scale_field
     if not name:
@@ -178,9 +214,12 @@ def _rain_scale(result: Any, params: pd.DataFrame) -> np.ndarray | None:
 
 
 def write_cell_rasters(result: Any, folder: Path, *, overwrite: bool = False,
-                       progress: Progress | None = None) -> tuple[dict[str, dict[str, Path]],
-                                                                   list[str]]:
+                       progress: Progress | None = None, gpkg: Path | None = None
+                       ) -> tuple[dict[str, dict[str, Path]], list[str]]:
     """Write cell-level runoff and time-to-ponding GeoTIFFs of every storm, on the soil grid.
+
+    ``gpkg`` is the run's GeoPackage, read for the unit results when the run
+    streamed them there.
 
     Returns
     -------
@@ -197,7 +236,7 @@ def write_cell_rasters(result: Any, folder: Path, *, overwrite: bool = False,
     cover_labels = (sorted(set(project.cover.codes.values())) if project.cover
                     else ["unspecified"])
     sub_ids = result.subcatchments["subcatchment_id"].astype(str).tolist()
-    lookup = cellgrid.unit_lookup(cell_unit_results(result), sub_ids, soil_labels=soil_labels,
+    lookup = cellgrid.unit_lookup(cell_unit_results(result, gpkg), sub_ids, soil_labels=soil_labels,
                                   cover_labels=cover_labels,
                                   fill_dominant=project.nodata_rule == "dominant")
     plan = cellgrid.plan_cells(
@@ -280,7 +319,8 @@ def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = Ex
     out = Deliverables(folder=folder)
     plots = _plot_ids(result, options.plot_subcatchments)
     if options.rasters:
-        out.rasters, notes = write_cell_rasters(result, folder / "rasters", progress=say)
+        out.rasters, notes = write_cell_rasters(result, folder / "rasters", progress=say,
+                                                gpkg=gpkg)
         out.notes += notes
     if options.model_inputs:
         say("model inputs", 0, 1)
@@ -297,16 +337,16 @@ def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = Ex
         shutil.rmtree(folder / "maps", ignore_errors=True)
         out.maps = {}
     if options.report and figures is not None:
-        out.report = _write_report(result, out, figures)
+        out.report = _write_report(result, out, figures, gpkg)
     return out
 
 
 def _model_tables(result: Any, gpkg: Path | None) -> tuple[pd.DataFrame, pd.DataFrame | None]:
-    from .export import excess_series_table, model_inputs
+    from .export import excess_series_table
+    from .layers import model_inputs_layer
 
-    sub_ids = result.subcatchments["subcatchment_id"].astype(str).tolist()
     system = result.project.units
-    inputs = model_inputs(result.parameters, sub_ids, system, default_method=result.project.method)
+    inputs = model_inputs_layer(result)
     if all(s.series is not None and len(s.series) for s in result.storms) or gpkg is None:
         return inputs, excess_series_table(result.storms, system)
     return inputs, None  # the run streamed its series into the GeoPackage
@@ -437,14 +477,18 @@ def _save(png: bytes, path: Path, out: Deliverables, key: str) -> bytes:
     return png
 
 
-def _write_report(result: Any, out: Deliverables, figures: Any) -> Path:
+def _write_report(result: Any, out: Deliverables, figures: Any, gpkg: Path | None) -> Path:
     from .layers import ponding_ranking
     from .pipeline import CAUTION
-    from .report import build_report
+    from .report import REPORT_TOP, build_report
 
     files = sorted(str(p.relative_to(out.folder)) for p in out.folder.rglob("*") if p.is_file())
-    text = build_report(result, figures, ranking=ponding_ranking(result), caution=CAUTION,
-                        files=files)
+    subs, units = ponding_ranking(result)
+    if units.empty and gpkg is not None and any(s.units is None for s in result.storms):
+        units = _stored_ranking_top(gpkg, [s.name for s in result.storms], REPORT_TOP,
+                                    result.project.units)
+    text = build_report(result, figures, ranking=(subs, units), caution=CAUTION, files=files,
+                        top=REPORT_TOP)
     path = out.folder / "report.html"
     path.write_text(text, encoding="utf-8")
     return path

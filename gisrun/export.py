@@ -32,7 +32,8 @@ import pandas as pd
 
 from .units import UnitSystem, present_frame
 
-__all__ = ["METHOD_COLUMNS", "model_inputs", "excess_series_table"]
+__all__ = ["METHOD_COLUMNS", "model_inputs", "model_inputs_si", "join_model_inputs",
+           "excess_series_table"]
 
 #: Output column (SI name) -> (unit parameter column, weighting) per loss method.
 METHOD_COLUMNS: dict[str, dict[str, tuple[str, str]]] = {
@@ -70,7 +71,15 @@ METHOD_COLUMNS: dict[str, dict[str, tuple[str, str]]] = {
 
 def model_inputs(params: pd.DataFrame, sub_ids: Any, system: UnitSystem,
                  *, default_method: str) -> pd.DataFrame:
-    """Per-subcatchment loss parameters for each subcatchment's loss method.
+    """Per-subcatchment loss parameters for each subcatchment's loss method, in ``system`` units.
+
+    :func:`model_inputs_si` followed by the conversion to ``system``.
+    """
+    return present_frame(model_inputs_si(params, sub_ids, default_method=default_method), system)
+
+
+def model_inputs_si(params: pd.DataFrame, sub_ids: Any, *, default_method: str) -> pd.DataFrame:
+    """Per-subcatchment loss parameters for each subcatchment's loss method (SI columns).
 
     Parameters
     ----------
@@ -79,8 +88,6 @@ def model_inputs(params: pd.DataFrame, sub_ids: Any, system: UnitSystem,
         ``loss_method`` and the SI parameter columns), one row per unit part.
     sub_ids : array_like
         Subcatchment ids in output order.
-    system : UnitSystem
-        Output units.
     default_method : str
         Method of subcatchments without a ``loss_method`` column.
 
@@ -89,7 +96,8 @@ def model_inputs(params: pd.DataFrame, sub_ids: Any, system: UnitSystem,
     DataFrame
         ``subcatchment_id``, ``loss_method``, ``area_m2``, ``impervious_fraction``
         and the columns of every method present (empty where a subcatchment uses
-        another method), in ``system`` units.
+        another method), SI. Tables of disjoint sets of subcatchments join with
+        :func:`join_model_inputs`.
     """
     sub_ids = pd.Index(np.asarray(sub_ids, dtype=object))
     row = sub_ids.get_indexer(params["subcatchment_id"].to_numpy(dtype=object))
@@ -125,10 +133,24 @@ def model_inputs(params: pd.DataFrame, sub_ids: Any, system: UnitSystem,
                                        minlength=n), weight, empty=np.nan)
             target[uses] = value[uses]
             frame[out] = target
+    return frame[_model_input_columns(frame.columns)]
+
+
+def join_model_inputs(tables: list[pd.DataFrame]) -> pd.DataFrame:
+    """Stack :func:`model_inputs_si` tables of disjoint subcatchment sets (e.g. chunks).
+
+    The result equals one :func:`model_inputs_si` call over all of them: a
+    method's columns appear when any table has them, empty for the other rows.
+    """
+    frame = pd.concat(tables, ignore_index=True)
+    return frame[_model_input_columns(frame.columns)]
+
+
+def _model_input_columns(present: Any) -> list[str]:
     ordered = ["subcatchment_id", "loss_method", "area_m2", "impervious_fraction"]
     for method in METHOD_COLUMNS:
-        ordered += [c for c in METHOD_COLUMNS[method] if c in frame.columns and c not in ordered]
-    return present_frame(frame[ordered], system)
+        ordered += [c for c in METHOD_COLUMNS[method] if c in present and c not in ordered]
+    return ordered
 
 
 def _ratio(num: np.ndarray, den: np.ndarray, empty: float = 0.0) -> np.ndarray:

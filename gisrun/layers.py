@@ -39,7 +39,12 @@ from .units import present_frame
 
 __all__ = [
     "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
+    "model_inputs_layer", "UNIT_LAYERS",
 ]
+
+
+#: Layers with one row per unit (and storm); a streamed run writes them chunk by chunk.
+UNIT_LAYERS = ("unit_results", "unit_parameters", "ponding_rank_units")
 
 
 def layer_name(text: str) -> str:
@@ -110,12 +115,21 @@ def layer_builders(result: object, *, skip: tuple[str, ...] = ()
         "coverage": lambda: present_frame(result.coverage, system),
         "ponding_rank_subcatchments": lambda: ranking(0),
         "ponding_rank_units": lambda: ranking(1),
-        "model_inputs": lambda: model_inputs(
-            result.parameters, result.subcatchments["subcatchment_id"].astype(str).tolist(),
-            system, default_method=result.project.method),
+        "model_inputs": lambda: model_inputs_layer(result),
         "run_info": lambda: run_info(result),
     })
+    if result.parameters is None:  # the unit rows were streamed into the output by the run
+        skip = (*skip, *UNIT_LAYERS)
     return {name: make for name, make in builders.items() if name not in skip}
+
+
+def model_inputs_layer(result: object) -> pd.DataFrame:
+    """Per-subcatchment parameters for a drainage model, in the project's units."""
+    if result.model_inputs is not None:
+        return present_frame(result.model_inputs, result.project.units)
+    return model_inputs(result.parameters,
+                        result.subcatchments["subcatchment_id"].astype(str).tolist(),
+                        result.project.units, default_method=result.project.method)
 
 
 def series_layer(series: pd.DataFrame, storm_name: str, system: object) -> pd.DataFrame:
@@ -141,11 +155,14 @@ def ponding_ranking(result: object) -> tuple[pd.DataFrame, pd.DataFrame]:
         s = storm.subcatchments[["subcatchment_id", "time_to_ponding_s", "runoff_depth_m",
                                  "runoff_coefficient", "modelled_area_m2"]]
         subs.append(_ranked(s, storm.name, ["subcatchment_id"]))
+        if storm.units is None:  # streamed run: the unit ranking is made in the output file
+            continue
         u = storm.units[storm.units["surface"] != "impervious"]
         keys = ["subcatchment_id", "soil_class", "cover_class"]
         u = u[[*keys, "time_to_ponding_s", "runoff_depth_m", "runoff_coefficient", "area_m2"]]
         units.append(_ranked(u, storm.name, keys))
-    return pd.concat(subs, ignore_index=True), pd.concat(units, ignore_index=True)
+    return (pd.concat(subs, ignore_index=True),
+            pd.concat(units, ignore_index=True) if units else pd.DataFrame())
 
 
 def _ranked(frame: pd.DataFrame, storm: str, keys: list[str]) -> pd.DataFrame:
@@ -182,7 +199,7 @@ def run_info(result: object) -> pd.DataFrame:
         ("nodata_rule", project.nodata_rule),
         ("max_nodata_fraction", f"{project.max_nodata_fraction:g}"),
         ("subcatchment_count", str(len(result.subcatchments))),
-        ("unit_count", str(len(result.parameters))),
+        ("unit_count", str(result.unit_count)),
     ]
     depth_unit = project.units.depth
     for storm in result.storms:

@@ -34,6 +34,7 @@ from .aggregate import (
 )
 from .engine import LossResult, run_losses
 from .errors import GisrunWarning, ParameterError, RasterError, VectorError
+from .export import join_model_inputs
 from .io.raster import ClassRaster, read_class_raster
 from .io.storm import storms_from_config
 from .io.tables import read_parameter_overrides
@@ -42,6 +43,7 @@ from .overlay import compute_unit_areas
 from .parameters import assign_parameters, composite_parameters
 from .project import Project, load_project
 from .storm import Hyetograph
+from .units import present_frame
 
 __all__ = [
     "CAUTION",
@@ -96,7 +98,7 @@ class StormResult:
     hyetograph: Hyetograph
     rain_per_step_m: np.ndarray
     loss: LossResult | None  # None when the run was asked not to keep step arrays
-    units: pd.DataFrame
+    units: pd.DataFrame | None  # None when the unit rows went to a unit sink
     subcatchments: pd.DataFrame
     series: pd.DataFrame
 
@@ -108,18 +110,29 @@ class StormResult:
 
 @dataclass
 class RunResult:
-    """A whole run: inputs' overlay, parameters, and one :class:`StormResult` per storm."""
+    """A whole run: inputs' overlay, parameters, and one :class:`StormResult` per storm.
+
+    ``parameters`` and each storm's ``units`` are None when the run streamed its
+    unit rows to a unit sink (see :func:`run`); ``unit_count``, ``method_counts``
+    and ``model_inputs`` are kept either way.
+    """
 
     project: Project
     subcatchments: gpd.GeoDataFrame
     units: pd.DataFrame
     coverage: pd.DataFrame
-    parameters: pd.DataFrame
+    parameters: pd.DataFrame | None
     parameter_sources: pd.DataFrame
     storms: list[StormResult]
     warnings: list[str] = field(default_factory=list)
     started_utc: str = ""
     checksums: dict[str, str] = field(default_factory=dict)
+    #: Number of units (soil x cover x surface parts) that were run.
+    unit_count: int = 0
+    #: Units per loss method, most used first.
+    method_counts: dict[str, int] = field(default_factory=dict)
+    #: Per-subcatchment parameters for a drainage model, SI (see :mod:`gisrun.export`).
+    model_inputs: pd.DataFrame | None = None
 
 
 def _quiet(_: str) -> None:
@@ -373,6 +386,8 @@ def rain_scale_for_units(project: Project, inputs: Inputs, params: pd.DataFrame
 
 
 SeriesSink = Callable[[int, str, pd.DataFrame], None]
+#: ``sink(parameters, [(storm_name, unit_results), ...])`` for one chunk's unit rows (SI).
+UnitSink = Callable[[pd.DataFrame, list[tuple[str, pd.DataFrame]]], None]
 
 
 def run(
@@ -382,6 +397,7 @@ def run(
     workers: int | None = None,
     scheduler: str | None = None,
     series_sink: SeriesSink | None = None,
+    unit_sink: UnitSink | None = None,
     keep_loss: bool | None = True,
 ) -> RunResult:
     """Read the inputs, overlay, assign parameters and run every storm; write nothing.
@@ -403,6 +419,12 @@ def run(
     series_sink : callable, optional
         Called as ``sink(storm_index, storm_name, series)`` for each chunk's
         excess-rainfall series instead of keeping them (memory stays flat).
+    unit_sink : callable, optional
+        Called as ``sink(parameters, [(storm_name, unit_results), ...])`` with
+        each chunk's unit parameters and unit results instead of keeping them;
+        the result's ``parameters`` and storms' ``units`` are then None. Used
+        only when the step arrays are not kept (``keep_loss`` false): a run
+        small enough for plots keeps its unit rows for them.
     keep_loss : bool or None
         Keep the per-unit step arrays (:class:`LossResult`) for plots; None keeps
         them below :data:`KEEP_STEP_ARRAYS_BELOW` subcatchments.
@@ -429,6 +451,8 @@ def run(
         check_inputs_codes(project, inputs)
     if keep_loss is None:
         keep_loss = len(inputs.subcatchments) < KEEP_STEP_ARRAYS_BELOW
+    if keep_loss:  # a run small enough to keep its step arrays keeps its unit rows too
+        unit_sink = None
     n_steps = max(len(h.resample(project.time_step_s)) for h in inputs.storms)
     size = chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms))
     chunks = plan_chunks(inputs.subcatchments.geometry, size)
@@ -442,6 +466,12 @@ def run(
             for k, h in enumerate(inputs.storms):
                 series_sink(k, h.name, out.storm_series[k])
             out.storm_series = []
+        out.unit_count = len(out.parameters)
+        out.method_counts = out.parameters["loss_method"].value_counts(sort=False).to_dict()
+        if unit_sink is not None:
+            unit_sink(out.parameters, [(h.name, out.storm_units[k])
+                                       for k, h in enumerate(inputs.storms)])
+            out.parameters, out.storm_units = None, []
         outputs.append(out)
     notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     notes += [n for out in outputs for n in out.notes]
@@ -460,7 +490,12 @@ def _combine(project: Project, inputs: Inputs, outputs: list, started: str, note
         return frame.iloc[np.argsort(key, kind="stable")].reset_index(drop=True)
 
     units = ordered([o.units for o in outputs])
-    params = pd.concat([o.parameters for o in outputs], ignore_index=True)
+    kept_units = all(o.parameters is not None for o in outputs)
+    params = pd.concat([o.parameters for o in outputs], ignore_index=True) if kept_units else None
+    counts: dict[str, int] = {}
+    for o in outputs:
+        for method, count in o.method_counts.items():
+            counts[method] = counts.get(method, 0) + int(count)
     storms = []
     for k, hyetograph in enumerate(inputs.storms):
         loss = _concat_losses([o.storm_losses[k] for o in outputs if o.storm_losses])
@@ -468,7 +503,8 @@ def _combine(project: Project, inputs: Inputs, outputs: list, started: str, note
             hyetograph=hyetograph,
             rain_per_step_m=hyetograph.resample(project.time_step_s),
             loss=loss,
-            units=pd.concat([o.storm_units[k] for o in outputs], ignore_index=True),
+            units=(pd.concat([o.storm_units[k] for o in outputs], ignore_index=True)
+                   if kept_units else None),
             subcatchments=ordered([o.storm_subcatchments[k] for o in outputs]),
             series=(ordered([o.storm_series[k] for o in outputs]) if keep_series
                     else pd.DataFrame()),
@@ -485,6 +521,10 @@ def _combine(project: Project, inputs: Inputs, outputs: list, started: str, note
         warnings=list(dict.fromkeys(notes)),
         started_utc=started,
         checksums=input_checksums(project),
+        unit_count=sum(o.unit_count for o in outputs),
+        method_counts=dict(sorted(counts.items(), key=lambda kv: -kv[1])),
+        model_inputs=(ordered([join_model_inputs([o.model_inputs for o in outputs])])
+                      if outputs else None),
     )
 
 
@@ -567,6 +607,21 @@ def write_outputs(
     return write_geopackage(target, build_layers(result), overwrite=overwrite)
 
 
+def _rank_units_in_file(path: Path, result: RunResult) -> None:
+    """Write ``ponding_rank_units`` from the streamed ``unit_results`` table, on disk."""
+    from .io.output import write_ranked_table
+
+    def name(si: str) -> str:
+        return present_frame(pd.DataFrame({si: [0.0]}), result.project.units).columns[0]
+
+    keys = ["subcatchment_id", "soil_class", "cover_class"]
+    value = name("time_to_ponding_s")
+    columns = [*keys, value, name("runoff_depth_m"), "runoff_coefficient", name("area_m2")]
+    write_ranked_table(path, source="unit_results", target="ponding_rank_units", group="storm",
+                       group_order=[s.name for s in result.storms], value=value, keys=keys,
+                       columns=columns, rank="ponding_rank", exclude=("surface", "impervious"))
+
+
 def run_and_write(
     project: Project | str | Path,
     *,
@@ -595,25 +650,34 @@ def run_and_write(
         If the output (or, with ``into``, a layer name) exists and ``overwrite`` is false.
     """
     from .io.output import append_table, open_output, write_layers_into
-    from .layers import layer_builders, series_layer, storm_layer_name
+    from .layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
 
     if not isinstance(project, Project):
         project = load_project(project)
     target = Path(into or output or project.output)
     with open_output(target, into_existing=into is not None, overwrite=overwrite) as (tmp, check):
         if into is not None:  # refuse a taken layer name before the work, not after it
-            check(["excess_series", "run_info",
+            check(["excess_series", "run_info", *UNIT_LAYERS,
                    *(storm_layer_name(h.name) for h in read_storms(project))])
         started: set[str] = set()
 
+        def append(layer: str, frame: pd.DataFrame) -> None:
+            append_table(tmp, layer, frame, replace=layer not in started)
+            started.add(layer)
+
         def sink(_: int, name: str, series: pd.DataFrame) -> None:
-            append_table(tmp, "excess_series", series_layer(series, name, project.units),
-                         replace=not started)
-            started.add(name)
+            append("excess_series", series_layer(series, name, project.units))
+
+        def unit_sink(params: pd.DataFrame, units: list[tuple[str, pd.DataFrame]]) -> None:
+            append("unit_parameters", present_frame(params, project.units))
+            for name, frame in units:
+                append("unit_results", series_layer(frame, name, project.units))
 
         result = run(project, progress=progress, workers=workers, scheduler=scheduler,
-                     series_sink=sink, keep_loss=None)
+                     series_sink=sink, unit_sink=unit_sink, keep_loss=None)
         (progress or _quiet)("writing outputs")
+        if result.parameters is None:  # unit rows streamed: rank them inside the file
+            _rank_units_in_file(tmp, result)
         builders = layer_builders(result, skip=("excess_series",))
         check(list(builders))
         for name, make in builders.items():  # one large layer in memory at a time

@@ -50,8 +50,12 @@ class ReportFigures:
     per_storm: dict[str, list[tuple[str, bytes]]] = field(default_factory=dict)
 
 
+#: Rows of each ranking shown per storm.
+REPORT_TOP = 10
+
+
 def build_report(result: Any, figures: ReportFigures, *, ranking: tuple[pd.DataFrame, ...],
-                 caution: str, files: Sequence[str] = (), top: int = 10) -> str:
+                 caution: str, files: Sequence[str] = (), top: int = REPORT_TOP) -> str:
     """Build the report as one HTML document.
 
     Parameters
@@ -127,7 +131,7 @@ def _inputs(result: Any) -> str:
 
 def _method(result: Any) -> str:
     p = result.project
-    methods = result.parameters["loss_method"].value_counts().rename_axis("loss_method")
+    methods = pd.Series(result.method_counts, name="count").rename_axis("loss_method")
     text = (f"<p>Default loss method <strong>{_e(p.method)}</strong>, units combined as "
             f"<strong>{_e(p.combine)}</strong>. Units per method:</p>")
     sources = result.parameter_sources

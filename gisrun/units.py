@@ -38,6 +38,7 @@ __all__ = [
     "unit_system",
     "column",
     "present_frame",
+    "si_frame",
 ]
 
 #: Multiply a value in the named unit by this factor to get SI.
@@ -187,5 +188,28 @@ def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
                 unit = getattr(system, kind)
                 out[name] = from_si(frame[name].to_numpy(dtype=np.float64), unit)
                 renames[name] = name[: -len(suffix)] + "_" + unit
+                break
+    return out.rename(columns=renames)
+
+
+def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
+    """Undo :func:`present_frame`: columns in ``system`` units back to SI names and values.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> si_frame(pd.DataFrame({"runoff_depth_in": [1.0], "time_to_ponding_min": [10.0]}),
+    ...          US).to_dict("list")
+    {'runoff_depth_m': [0.0254], 'time_to_ponding_s': [600.0]}
+    """
+    out = frame.copy()
+    renames = {}
+    shown = sorted(((f"_{getattr(system, kind)}", suffix, getattr(system, kind))
+                    for suffix, kind in _SUFFIXES if kind), key=lambda t: -len(t[0]))
+    for name in frame.columns:
+        for ending, suffix, unit in shown:
+            if isinstance(name, str) and name.endswith(ending):
+                out[name] = to_si(frame[name].to_numpy(dtype=np.float64), unit)
+                renames[name] = name[: -len(ending)] + suffix
                 break
     return out.rename(columns=renames)

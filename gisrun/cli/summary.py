@@ -50,7 +50,7 @@ def as_dict(result: Any, written: Path) -> dict[str, Any]:
     return {
         "output": str(written),
         "subcatchments": int(len(result.subcatchments)),
-        "units": int(len(result.parameters)),
+        "units": int(result.unit_count),
         "loss_method": result.project.method,
         "unit_system": result.project.units.name,
         "storms": _storm_rows(result),
@@ -64,7 +64,7 @@ def print_summary(result: Any, written: Path) -> None:
     console = Console(width=max(Console().width, 132))
     rows = _storm_rows(result)
     table = Table(title=f"{result.project.name}: {len(result.subcatchments)} subcatchments, "
-                        f"{len(result.parameters)} soil x cover units, "
+                        f"{result.unit_count} soil x cover units, "
                         f"method {result.project.method}")
     longest = max(len(str(r["storm"])) for r in rows)
     for key in rows[0]:

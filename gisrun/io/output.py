@@ -30,6 +30,7 @@ __all__ = [
     "write_csv",
     "write_layers_into",
     "append_table",
+    "write_ranked_table",
     "existing_geopackage_copy",
     "write_layers_into_existing",
     "open_output",
@@ -194,6 +195,52 @@ def append_table(path: str | Path, name: str, frame: pd.DataFrame, *,
     frame = _plain_columns(frame)
     pyogrio.write_dataframe(frame, path, driver="GPKG", layer=name, append=exists and not replace,
                             use_arrow=_ARROW)
+
+
+def write_ranked_table(path: str | Path, *, source: str, target: str, group: str,
+                       group_order: list[str], value: str, keys: list[str], columns: list[str],
+                       rank: str, exclude: tuple[str, str] | None = None) -> None:
+    """Rank the rows of a GeoPackage table inside the file, without loading it.
+
+    Writes table ``target`` with ``group``, ``rank`` and ``columns``: per
+    ``group`` (in ``group_order``), rows sorted by ``value`` (empty last), then
+    ``keys``, then their order in ``source``; ``rank`` is 1 for the smallest
+    value, equal values share a rank, empty values get no rank. SQLite sorts
+    on disk, so this works on tables larger than memory.
+
+    Parameters
+    ----------
+    exclude : (column, text), optional
+        Leave out the rows where ``column`` equals ``text``.
+    """
+    path = Path(path)
+    names = [group, rank, *[c for c in columns if c not in (group, rank)]]
+    with closing(sqlite3.connect(path)) as db:
+        types = {row[1]: row[2] for row in db.execute(f"PRAGMA table_info({_quoted(source)})")}
+    missing = [c for c in [group, value, *keys, *columns] if c not in types]
+    if missing:
+        raise ValueError(f"table {source!r} has no column(s) {missing}")
+    kinds = {"INTEGER": "Int64", "REAL": "float64"}
+    empty = pd.DataFrame({c: pd.Series([], dtype="Int64" if c == rank
+                                       else kinds.get(types[c].upper(), object))
+                          for c in names})
+    pyogrio.write_dataframe(empty, path, driver="GPKG", layer=target, use_arrow=_ARROW)
+    q = _quoted
+    where = f"WHERE {q(exclude[0])} <> ?" if exclude else ""
+    order_group = f"CASE {q(group)} " + " ".join("WHEN ? THEN ?" for _ in group_order) + " END"
+    group_args = [x for i, g in enumerate(group_order) for x in (g, i)]
+    sql = (f"INSERT INTO {q(target)} ({', '.join(q(c) for c in names)}) "
+           f"SELECT {q(group)}, CASE WHEN {q(value)} IS NULL THEN NULL ELSE "
+           f"RANK() OVER (PARTITION BY {q(group)} ORDER BY {q(value)} IS NULL, {q(value)}) END, "
+           f"{', '.join(q(c) for c in names[2:])} FROM {q(source)} {where} "
+           f"ORDER BY {order_group}, {q(value)} IS NULL, {q(value)}, "
+           f"{', '.join(q(k) for k in keys)}, fid")
+    with closing(sqlite3.connect(path)) as db, db:
+        db.execute(sql, [*([exclude[1]] if exclude else []), *group_args])
+
+
+def _quoted(name: str) -> str:
+    return '"' + name.replace('"', '""') + '"'
 
 
 _SQLITE_MAGIC = b"SQLite format 3\x00"

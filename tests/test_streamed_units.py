@@ -1,0 +1,122 @@
+"""Large runs stream their unit rows into the GeoPackage: same layers as a run kept in memory."""
+
+import dataclasses
+import sqlite3
+from contextlib import closing
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyogrio
+import pytest
+import rasterio
+
+import gisrun.pipeline as pipeline
+from gisrun.deliverables import ExtrasOptions, write_extras
+from gisrun.io.output import write_ranked_table
+from gisrun.layers import _ranked
+from gisrun.pipeline import load_project, run_and_write
+from gisrun.units import SI, US, present_frame, si_frame
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
+
+
+@pytest.fixture(scope="module")
+def two_ways(tmp_path_factory):
+    """The demo's last two storms in several chunks, kept in memory and streamed."""
+    project = load_project(DEMO)
+    project = dataclasses.replace(project, memory_budget_mb=5.0, storms=project.storms[-2:])
+    folder = tmp_path_factory.mktemp("streamed")
+    kept, kept_path = run_and_write(project, output=folder / "kept.gpkg")
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(pipeline, "KEEP_STEP_ARRAYS_BELOW", 0)  # as a run of a county would
+        streamed, streamed_path = run_and_write(project, output=folder / "streamed.gpkg")
+    return kept, kept_path, streamed, streamed_path
+
+
+def layer(path, name):
+    return pyogrio.read_dataframe(path, layer=name, read_geometry=False)
+
+
+def test_streamed_run_keeps_no_unit_rows(two_ways):
+    kept, _, streamed, _ = two_ways
+    assert streamed.parameters is None
+    assert all(s.units is None and s.loss is None for s in streamed.storms)
+    assert kept.parameters is not None
+    assert streamed.unit_count == kept.unit_count == len(kept.parameters)
+    assert streamed.method_counts == kept.parameters["loss_method"].value_counts().to_dict()
+
+
+def test_every_layer_equals_the_run_kept_in_memory(two_ways):
+    _, kept_path, _, streamed_path = two_ways
+    names = [n for n, _ in pyogrio.list_layers(kept_path)]
+    assert sorted(names) == sorted(n for n, _ in pyogrio.list_layers(streamed_path))
+    for name in names:
+        a, b = layer(kept_path, name), layer(streamed_path, name)
+        if name == "run_info":
+            a, b = (f[f["key"] != "started_utc"].reset_index(drop=True) for f in (a, b))
+        if name == "unit_results":  # streamed rows come chunk by chunk, storms within a chunk
+            key = ["storm", "subcatchment_id", "soil_class", "cover_class", "surface"]
+            a, b = (f.sort_values(key, kind="stable").reset_index(drop=True) for f in (a, b))
+        pd.testing.assert_frame_equal(a, b, check_exact=True, obj=name)
+    assert len(layer(streamed_path, "ponding_rank_units")) > 100
+
+
+def test_streamed_extras_read_the_unit_rows_back(two_ways):
+    kept, kept_path, streamed, streamed_path = two_ways
+    options = ExtrasOptions(maps=False, report=True)
+    a = write_extras(kept, kept_path, options=options)
+    b = write_extras(streamed, streamed_path, options=options)
+    assert a.rasters.keys() == b.rasters.keys()
+    for storm, paths in a.rasters.items():
+        for kind, path in paths.items():
+            with rasterio.open(path) as x, rasterio.open(b.rasters[storm][kind]) as y:
+                np.testing.assert_array_equal(x.read(1), y.read(1))
+    report = b.report.read_text(encoding="utf-8")
+    first = layer(streamed_path, "ponding_rank_units").iloc[0]
+    assert f"<td>{first['subcatchment_id']}</td>" in report  # top of the unit ranking shown
+
+
+def test_ranking_inside_the_file_matches_pandas(tmp_path):
+    # The same rule as the in-memory ranking: per storm (in the given order), by value with
+    # empty values last, then by the keys, then by row order; ties share the smallest rank.
+    rng = np.random.default_rng(5)
+    n = 400
+    storms = np.array(["late's storm", "early", "mid"])[rng.integers(0, 3, n)]
+    values = rng.choice([np.nan, 60.0, 120.0, 180.0, 240.5], n)
+    frame = pd.DataFrame({
+        "storm": storms,
+        "subcatchment_id": rng.choice(["S1", "S2", "S10", "s3"], n),
+        "soil_class": rng.choice(["A", "B", "C/D"], n),
+        "cover_class": rng.choice(["grass", "roof"], n),
+        "surface": rng.choice(["pervious", "impervious"], n, p=[0.8, 0.2]),
+        "time_to_ponding_s": values,
+        "area_m2": rng.uniform(1, 100, n),
+    })
+    path = tmp_path / "t.gpkg"
+    pyogrio.write_dataframe(frame, path, layer="rows", driver="GPKG")
+    order = ["mid", "late's storm", "early"]
+    keys = ["subcatchment_id", "soil_class", "cover_class"]
+    write_ranked_table(path, source="rows", target="ranked", group="storm", group_order=order,
+                       value="time_to_ponding_s", keys=keys,
+                       columns=[*keys, "time_to_ponding_s", "area_m2"], rank="ponding_rank",
+                       exclude=("surface", "impervious"))
+    got = layer(path, "ranked")
+    pervious = frame[frame["surface"] != "impervious"]
+    want = pd.concat([_ranked(pervious[pervious["storm"] == s][[*keys, "time_to_ponding_s",
+                                                               "area_m2"]], s, keys)
+                      for s in order], ignore_index=True)
+    pd.testing.assert_frame_equal(got, want, check_dtype=False, check_exact=True)
+    with closing(sqlite3.connect(path)) as db:  # registered as a GeoPackage table
+        kind = db.execute("SELECT data_type FROM gpkg_contents WHERE table_name = 'ranked'")
+        assert kind.fetchone() == ("attributes",)
+
+
+@pytest.mark.parametrize("system", [SI, US])
+def test_si_frame_undoes_present_frame(system):
+    frame = pd.DataFrame({"runoff_depth_m": [0.0254, 0.1], "time_to_ponding_s": [600.0, 90.0],
+                          "area_m2": [4046.8564224, 10.0], "runoff_volume_m3": [1.0, 2.0],
+                          "ks_m_per_s": [1e-6, 2e-7], "runoff_coefficient": [0.5, 0.25],
+                          "subcatchment_id": ["a", "b"]})
+    back = si_frame(present_frame(frame, system), system)
+    pd.testing.assert_frame_equal(back, frame, check_exact=False, rtol=1e-12)
