@@ -98,6 +98,8 @@ class ChunkTask:
     storms: list[Any]
     overrides: pd.DataFrame | None = None
     keep_loss: bool = True
+    #: (units, coverage, notes) of this chunk from the overlay cache; None to overlay.
+    overlay: tuple[pd.DataFrame, pd.DataFrame, list[str]] | None = None
 
 
 @dataclass
@@ -119,6 +121,8 @@ class ChunkOutput:
     #: Units run, and units per loss method (kept when the unit rows are streamed away).
     unit_count: int = 0
     method_counts: dict[str, int] = field(default_factory=dict)
+    #: The overlay's own notes (also in ``notes``), for the overlay cache.
+    overlay_notes: list[str] = field(default_factory=list)
 
 
 def process_chunk(task: ChunkTask) -> ChunkOutput:
@@ -134,8 +138,11 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
                              task.overrides)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
-        units, coverage, notes_overlay = pipeline.overlay_inputs(project, inputs,
-                                                                 check_codes=False)
+        if task.overlay is not None:
+            units, coverage, notes_overlay = task.overlay
+        else:
+            units, coverage, notes_overlay = pipeline.overlay_inputs(project, inputs,
+                                                                     check_codes=False)
         params, sources, notes_params = pipeline.prepare_parameters(project, inputs, units)
         sub_ids = task.subcatchments["subcatchment_id"].to_numpy(dtype=object)
         scale = pipeline.rain_scale_for_units(project, inputs, params)
@@ -153,6 +160,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         storm_series=[r.series for r in results],
         storm_losses=[r.loss for r in results] if task.keep_loss else [],
         model_inputs=model_inputs_si(params, sub_ids, default_method=project.method),
+        overlay_notes=[str(n) for n in notes_overlay],
     )
 
 

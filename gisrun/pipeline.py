@@ -456,9 +456,15 @@ def run(
     n_steps = max(len(h.resample(project.time_step_s)) for h in inputs.storms)
     size = chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms))
     chunks = plan_chunks(inputs.subcatchments.geometry, size)
+    checksums = input_checksums(project)
+    cache_key, cached = _cached_overlay(project, checksums)
+    overlays = (_overlay_per_chunk(cached, inputs.subcatchments, chunks) if cached is not None
+                else [None] * len(chunks))
     tasks = [ChunkTask(i, project, inputs.subcatchments.iloc[rows], inputs.soil, inputs.cover,
-                       inputs.storms, inputs.overrides, keep_loss=keep_loss)
-             for i, rows in enumerate(chunks)]
+                       inputs.storms, inputs.overrides, keep_loss=keep_loss, overlay=overlay)
+             for i, (rows, overlay) in enumerate(zip(chunks, overlays, strict=True))]
+    if cached is not None:
+        say(f"overlay read from the cache ({project.overlay_cache.name}/overlay-{cache_key})")
     say(f"overlay, parameters and {len(inputs.storms)} storm(s) in {len(tasks)} chunk(s)")
     outputs = []
     for out in execute(tasks, workers=workers, scheduler=scheduler):
@@ -475,11 +481,53 @@ def run(
         outputs.append(out)
     notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     notes += [n for out in outputs for n in out.notes]
-    return _combine(project, inputs, outputs, started, notes, keep_series=series_sink is None)
+    result = _combine(project, inputs, outputs, started, notes, keep_series=series_sink is None,
+                      checksums=checksums)
+    if cache_key is not None and cached is None:
+        from .io.overlay_cache import save_overlay
+
+        overlay_notes = list(dict.fromkeys(n for out in outputs for n in out.overlay_notes))
+        save_overlay(project.overlay_cache, cache_key, result.units, result.coverage,
+                     overlay_notes)
+    return result
+
+
+def _cached_overlay(project: Project, checksums: dict[str, str]
+                    ) -> tuple[str | None, tuple[pd.DataFrame, pd.DataFrame, list[str]] | None]:
+    """(key, stored overlay or None) when the project asks for an overlay cache."""
+    if project.overlay_cache is None:
+        return None, None
+    from .io.overlay_cache import load_overlay, overlay_key
+
+    files = [project.subcatchments.path, project.soil.path]
+    if project.cover:
+        files.append(project.cover.path)
+    digests = [checksums.get(os.path.relpath(f, project.base_dir)) or _sha256(Path(f))
+               for f in files]
+    key = overlay_key(project, digests)
+    return key, load_overlay(project.overlay_cache, key)
+
+
+def _overlay_per_chunk(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],
+                       subs: gpd.GeoDataFrame, chunks: list[np.ndarray]
+                       ) -> list[tuple[pd.DataFrame, pd.DataFrame, list[str]]]:
+    """Split a stored overlay into the chunks' rows, each in the layer's order."""
+    units, coverage, notes = cached
+    ids = subs["subcatchment_id"].to_numpy(dtype=object)
+    unit_rows = units.groupby("subcatchment_id", sort=False).indices
+    cover_rows = coverage.groupby("subcatchment_id", sort=False).indices
+    empty = np.empty(0, dtype=np.intp)
+    out = []
+    for k, rows in enumerate(chunks):
+        u = np.concatenate([unit_rows.get(i, empty) for i in ids[rows]])
+        c = np.concatenate([cover_rows.get(i, empty) for i in ids[rows]])
+        out.append((units.iloc[u].reset_index(drop=True), coverage.iloc[c].reset_index(drop=True),
+                    notes if k == 0 else []))
+    return out
 
 
 def _combine(project: Project, inputs: Inputs, outputs: list, started: str, notes: list[str],
-             *, keep_series: bool) -> RunResult:
+             *, keep_series: bool, checksums: dict[str, str]) -> RunResult:
     """Put chunk outputs together in the subcatchment layer's row order."""
     sub_ids = inputs.subcatchments["subcatchment_id"]
     position = pd.Series(np.arange(len(sub_ids)), index=sub_ids.to_numpy(dtype=object))
@@ -520,7 +568,7 @@ def _combine(project: Project, inputs: Inputs, outputs: list, started: str, note
         storms=storms,
         warnings=list(dict.fromkeys(notes)),
         started_utc=started,
-        checksums=input_checksums(project),
+        checksums=checksums,
         unit_count=sum(o.unit_count for o in outputs),
         method_counts=dict(sorted(counts.items(), key=lambda kv: -kv[1])),
         model_inputs=(ordered([join_model_inputs([o.model_inputs for o in outputs])])

@@ -66,7 +66,7 @@ COMBINE_RULES = ("units", "composite")
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
          "storms", "rain_scale"),
-    "project": ("name", "units", "output", "time_step_min", "memory_budget_mb"),
+    "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
              "initial_water_content", "codes", "crs"),
@@ -149,6 +149,7 @@ class Project:
     compare_composite: bool = False
     initial_abstraction_ratio: float = 0.2
     antecedent_condition: int = 2
+    overlay_cache: Path | None = None
     raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     @property
@@ -266,10 +267,17 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
             method, "method", "initial_abstraction_ratio", (0.2, 0.05), default=0.2),
         antecedent_condition=int(reader.closest_number(
             method, "method", "antecedent_condition", (1, 2, 3), default=2)),
+        overlay_cache=_optional_path(reader, top, "project", "overlay_cache"),
         raw=raw,
     )
     _check_class_labels(reader, project)
     return project
+
+
+def _optional_path(reader: _Reader, table: Mapping[str, Any], section: str, key: str
+                   ) -> Path | None:
+    value = reader.string(table, section, key, required=False)
+    return reader.path(value) if value else None
 
 
 def _check_class_labels(reader: _Reader, project: Project) -> None:

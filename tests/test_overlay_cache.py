@@ -1,0 +1,78 @@
+"""The on-disk overlay cache: a re-run with a new storm reads the overlay instead of redoing it."""
+
+import dataclasses
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+import gisrun.pipeline as pipeline
+from gisrun.errors import GisrunError
+from gisrun.io.overlay_cache import entry_folder, overlay_key
+from gisrun.pipeline import load_project, run
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
+
+
+@pytest.fixture(scope="module")
+def demo():
+    project = load_project(DEMO)
+    return dataclasses.replace(project, memory_budget_mb=5.0, storms=project.storms[-1:])
+
+
+def assert_same_run(a, b):
+    pd.testing.assert_frame_equal(a.units, b.units, check_exact=True)
+    pd.testing.assert_frame_equal(a.coverage, b.coverage, check_exact=True)
+    pd.testing.assert_frame_equal(a.parameters, b.parameters, check_exact=True)
+    for sa, sb in zip(a.storms, b.storms, strict=True):
+        pd.testing.assert_frame_equal(sa.subcatchments, sb.subcatchments, check_exact=True)
+        pd.testing.assert_frame_equal(sa.units, sb.units, check_exact=True)
+        pd.testing.assert_frame_equal(sa.series, sb.series, check_exact=True)
+
+
+def test_second_run_reads_the_overlay_and_gives_the_same_results(demo, tmp_path, monkeypatch):
+    project = dataclasses.replace(demo, overlay_cache=tmp_path / "cache")
+    first = run(project)
+    entries = list((tmp_path / "cache").glob("overlay-*"))
+    assert len(entries) == 1 and (entries[0] / "units.parquet").is_file()
+
+    def no_overlay(*args, **kwargs):
+        raise AssertionError("the overlay ran although it was cached")
+
+    monkeypatch.setattr(pipeline, "overlay_inputs", no_overlay)
+    said = []
+    second = run(project, progress=said.append)
+    assert any("overlay read from the cache" in s for s in said)
+    assert_same_run(first, second)
+    assert first.warnings == second.warnings
+    # and equal to a run without any cache
+    monkeypatch.undo()
+    assert_same_run(run(demo), second)
+
+
+def test_a_new_storm_reuses_the_entry_and_a_changed_setting_does_not(demo, tmp_path):
+    project = dataclasses.replace(demo, overlay_cache=tmp_path / "cache")
+    run(project)
+    other_storm = dataclasses.replace(project, storms=load_project(DEMO).storms[:1])
+    run(other_storm)
+    assert len(list((tmp_path / "cache").glob("overlay-*"))) == 1
+    other_rule = dataclasses.replace(project, nodata_rule="omit")
+    run(other_rule)
+    assert len(list((tmp_path / "cache").glob("overlay-*"))) == 2
+
+
+def test_key_follows_file_contents_and_overlay_settings(demo):
+    key = overlay_key(demo, ["a", "b", "c"])
+    assert key == overlay_key(dataclasses.replace(demo, method="horton"), ["a", "b", "c"])
+    assert key != overlay_key(demo, ["a", "b", "d"])
+    assert key != overlay_key(dataclasses.replace(demo, max_nodata_fraction=0.5), ["a", "b", "c"])
+
+
+def test_unreadable_entry_stops_with_a_clear_error(demo, tmp_path):
+    project = dataclasses.replace(demo, overlay_cache=tmp_path / "cache")
+    run(project)
+    (entry,) = (tmp_path / "cache").glob("overlay-*")
+    (entry / "units.parquet").write_bytes(b"not a parquet file")
+    with pytest.raises(GisrunError, match="overlay cache entry cannot be read"):
+        run(project)
+    assert entry == entry_folder(tmp_path / "cache", entry.name.removeprefix("overlay-"))
