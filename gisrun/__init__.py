@@ -26,8 +26,8 @@ from .pipeline import (  # noqa: E402
     read_inputs,
     run,
     run_storm,
-    write_outputs,
 )
+from .writing import run_and_write, write_outputs  # noqa: E402
 
 __all__ = [
     "CAUTION",
@@ -44,4 +44,5 @@ __all__ = [
     "run_losses",
     "run_storm",
     "write_outputs",
+    "run_and_write",
 ]

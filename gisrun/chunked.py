@@ -28,6 +28,7 @@ __all__ = [
     "plan_chunks",
     "chunk_size_for_budget",
     "process_chunk",
+    "split_overlay",
     "execute",
 ]
 
@@ -162,6 +163,27 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         model_inputs=model_inputs_si(params, sub_ids, default_method=project.method),
         overlay_notes=[str(n) for n in notes_overlay],
     )
+
+
+def split_overlay(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],
+                  subs: gpd.GeoDataFrame, chunks: list[np.ndarray]
+                  ) -> list[tuple[pd.DataFrame, pd.DataFrame, list[str]]]:
+    """Split a stored overlay (units, coverage, notes) into the chunks' rows, in layer order.
+
+    The overlay's notes go with the first chunk.
+    """
+    units, coverage, notes = cached
+    ids = subs["subcatchment_id"].to_numpy(dtype=object)
+    unit_rows = units.groupby("subcatchment_id", sort=False).indices
+    cover_rows = coverage.groupby("subcatchment_id", sort=False).indices
+    empty = np.empty(0, dtype=np.intp)
+    out = []
+    for k, rows in enumerate(chunks):
+        u = np.concatenate([unit_rows.get(i, empty) for i in ids[rows]])
+        c = np.concatenate([cover_rows.get(i, empty) for i in ids[rows]])
+        out.append((units.iloc[u].reset_index(drop=True), coverage.iloc[c].reset_index(drop=True),
+                    notes if k == 0 else []))
+    return out
 
 
 def execute(

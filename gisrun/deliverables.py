@@ -531,7 +531,7 @@ def write_all(result: Any, output: str | Path | None = None, *, overwrite: bool 
         If the GeoPackage or the folder exists and ``overwrite`` is false
         (checked before anything is written).
     """
-    from .pipeline import write_outputs
+    from .writing import write_outputs
 
     gpkg = Path(output) if output else result.project.output
     for target in (gpkg, extras_folder(gpkg)):

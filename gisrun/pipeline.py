@@ -43,7 +43,6 @@ from .overlay import compute_unit_areas
 from .parameters import assign_parameters, composite_parameters
 from .project import Project, load_project
 from .storm import Hyetograph
-from .units import present_frame
 
 __all__ = [
     "CAUTION",
@@ -64,7 +63,6 @@ __all__ = [
     "check_raster_codes",
     "input_checksums",
     "subcatchment_table",
-    "write_outputs",
 ]
 
 #: Printed by the CLI, written into the run table and the report.
@@ -438,7 +436,7 @@ def run(
     GisrunError
         On any bad input, naming the file, field or value.
     """
-    from .chunked import ChunkTask, chunk_size_for_budget, execute, plan_chunks
+    from .chunked import ChunkTask, chunk_size_for_budget, execute, plan_chunks, split_overlay
 
     say = progress or _quiet
     if not isinstance(project, Project):
@@ -458,7 +456,7 @@ def run(
     chunks = plan_chunks(inputs.subcatchments.geometry, size)
     checksums = input_checksums(project)
     cache_key, cached = _cached_overlay(project, checksums)
-    overlays = (_overlay_per_chunk(cached, inputs.subcatchments, chunks) if cached is not None
+    overlays = (split_overlay(cached, inputs.subcatchments, chunks) if cached is not None
                 else [None] * len(chunks))
     tasks = [ChunkTask(i, project, inputs.subcatchments.iloc[rows], inputs.soil, inputs.cover,
                        inputs.storms, inputs.overrides, keep_loss=keep_loss, overlay=overlay)
@@ -506,24 +504,6 @@ def _cached_overlay(project: Project, checksums: dict[str, str]
                for f in files]
     key = overlay_key(project, digests)
     return key, load_overlay(project.overlay_cache, key)
-
-
-def _overlay_per_chunk(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],
-                       subs: gpd.GeoDataFrame, chunks: list[np.ndarray]
-                       ) -> list[tuple[pd.DataFrame, pd.DataFrame, list[str]]]:
-    """Split a stored overlay into the chunks' rows, each in the layer's order."""
-    units, coverage, notes = cached
-    ids = subs["subcatchment_id"].to_numpy(dtype=object)
-    unit_rows = units.groupby("subcatchment_id", sort=False).indices
-    cover_rows = coverage.groupby("subcatchment_id", sort=False).indices
-    empty = np.empty(0, dtype=np.intp)
-    out = []
-    for k, rows in enumerate(chunks):
-        u = np.concatenate([unit_rows.get(i, empty) for i in ids[rows]])
-        c = np.concatenate([cover_rows.get(i, empty) for i in ids[rows]])
-        out.append((units.iloc[u].reset_index(drop=True), coverage.iloc[c].reset_index(drop=True),
-                    notes if k == 0 else []))
-    return out
 
 
 def _combine(project: Project, inputs: Inputs, outputs: list, started: str, notes: list[str],
@@ -625,109 +605,3 @@ def subcatchment_table(result: RunResult, storm: StormResult) -> pd.DataFrame:
     )
     shares = soil_shares(result.units, subs["subcatchment_id"])
     return subs.merge(shares, on="subcatchment_id", how="left")
-
-
-def write_outputs(
-    result: RunResult, *, output: str | Path | None = None, overwrite: bool = False
-) -> Path:
-    """Write the run's GeoPackage (atomically); returns its path.
-
-    Parameters
-    ----------
-    result : RunResult
-        From :func:`run`.
-    output : path, optional
-        Where to write; defaults to the project's ``output``.
-    overwrite : bool
-        Replace an existing file.
-
-    Raises
-    ------
-    OutputExistsError
-        If the output exists and ``overwrite`` is false.
-    OutputError
-        If it cannot be written; nothing is left half-written.
-    """
-    from .io.output import write_geopackage
-    from .layers import build_layers
-
-    target = Path(output) if output else result.project.output
-    return write_geopackage(target, build_layers(result), overwrite=overwrite)
-
-
-def _rank_units_in_file(path: Path, result: RunResult) -> None:
-    """Write ``ponding_rank_units`` from the streamed ``unit_results`` table, on disk."""
-    from .io.output import write_ranked_table
-
-    def name(si: str) -> str:
-        return present_frame(pd.DataFrame({si: [0.0]}), result.project.units).columns[0]
-
-    keys = ["subcatchment_id", "soil_class", "cover_class"]
-    value = name("time_to_ponding_s")
-    columns = [*keys, value, name("runoff_depth_m"), "runoff_coefficient", name("area_m2")]
-    write_ranked_table(path, source="unit_results", target="ponding_rank_units", group="storm",
-                       group_order=[s.name for s in result.storms], value=value, keys=keys,
-                       columns=columns, rank="ponding_rank", exclude=("surface", "impervious"))
-
-
-def run_and_write(
-    project: Project | str | Path,
-    *,
-    output: str | Path | None = None,
-    overwrite: bool = False,
-    progress: Progress | None = None,
-    workers: int | None = None,
-    scheduler: str | None = None,
-    into: str | Path | None = None,
-) -> tuple[RunResult, Path]:
-    """Run a project and write its GeoPackage, streaming the series chunk by chunk.
-
-    Memory stays within the project's budget however many subcatchments there
-    are: each chunk's excess-rainfall series is appended to the output as it
-    is computed. The GeoPackage is built in a temporary file beside the target
-    and moved into place only when complete.
-
-    With ``into`` the layers are added to that existing GeoPackage instead
-    (a copy is built beside it and replaces it when complete); its other
-    layers are kept as they are, and a layer of the same name is replaced
-    only with ``overwrite``.
-
-    Raises
-    ------
-    OutputExistsError
-        If the output (or, with ``into``, a layer name) exists and ``overwrite`` is false.
-    """
-    from .io.output import append_table, open_output, write_layers_into
-    from .layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
-
-    if not isinstance(project, Project):
-        project = load_project(project)
-    target = Path(into or output or project.output)
-    with open_output(target, into_existing=into is not None, overwrite=overwrite) as (tmp, check):
-        if into is not None:  # refuse a taken layer name before the work, not after it
-            check(["excess_series", "run_info", *UNIT_LAYERS,
-                   *(storm_layer_name(h.name) for h in read_storms(project))])
-        started: set[str] = set()
-
-        def append(layer: str, frame: pd.DataFrame) -> None:
-            append_table(tmp, layer, frame, replace=layer not in started)
-            started.add(layer)
-
-        def sink(_: int, name: str, series: pd.DataFrame) -> None:
-            append("excess_series", series_layer(series, name, project.units))
-
-        def unit_sink(params: pd.DataFrame, units: list[tuple[str, pd.DataFrame]]) -> None:
-            append("unit_parameters", present_frame(params, project.units))
-            for name, frame in units:
-                append("unit_results", series_layer(frame, name, project.units))
-
-        result = run(project, progress=progress, workers=workers, scheduler=scheduler,
-                     series_sink=sink, unit_sink=unit_sink, keep_loss=None)
-        (progress or _quiet)("writing outputs")
-        if result.parameters is None:  # unit rows streamed: rank them inside the file
-            _rank_units_in_file(tmp, result)
-        builders = layer_builders(result, skip=("excess_series",))
-        check(list(builders))
-        for name, make in builders.items():  # one large layer in memory at a time
-            write_layers_into(tmp, {name: make()})
-    return result, target

@@ -11,8 +11,9 @@ from pandas.testing import assert_frame_equal
 
 from gisrun.export import excess_series_table, model_inputs
 from gisrun.io.output import write_csv
-from gisrun.pipeline import run, write_outputs
+from gisrun.pipeline import run
 from gisrun.units import SI, US
+from gisrun.writing import write_outputs
 
 
 def parts(method: str) -> pd.DataFrame:

@@ -15,8 +15,9 @@ import gisrun.pipeline as pipeline
 from gisrun.deliverables import ExtrasOptions, write_extras
 from gisrun.io.output import write_ranked_table
 from gisrun.layers import _ranked
-from gisrun.pipeline import load_project, run_and_write
+from gisrun.pipeline import load_project
 from gisrun.units import SI, US, present_frame, si_frame
+from gisrun.writing import run_and_write
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 

@@ -1,4 +1,4 @@
-"""Results written into the user's own GeoPackage as new layers; the user's layers stay as they were.
+"""Results written into the user's own GeoPackage as new layers; the user's layers stay unchanged.
 
 The user's GeoPackage (invented, built here) holds a polygon layer with several field types
 and a plain table. After gisrun adds its layers, those two are compared with what they were:
@@ -16,13 +16,13 @@ import geopandas as gpd
 import pandas as pd
 import pyogrio
 import pytest
+from bad_inputs_helpers import X0, Y0, make_project
 from pandas.testing import assert_frame_equal
 from shapely.geometry import Polygon
 
-from bad_inputs_helpers import X0, Y0, make_project
 from gisrun.errors import OutputError, OutputExistsError
 from gisrun.io.output import write_layers_into_existing
-from gisrun.pipeline import run_and_write
+from gisrun.writing import run_and_write
 
 GISRUN_LAYERS = {"runoff_steady", "excess_series", "subcatchment_results", "unit_results",
                  "unit_parameters", "parameter_sources", "coverage", "run_info"}

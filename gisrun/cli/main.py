@@ -62,7 +62,8 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
     """
     from ..deliverables import ExtrasOptions, extras_folder, write_extras
     from ..errors import OutputExistsError
-    from ..pipeline import CAUTION, load_project, run_and_write
+    from ..pipeline import CAUTION, load_project
+    from ..writing import run_and_write
     from .progress import progress_display
 
     loaded = load_project(project)
