@@ -40,10 +40,16 @@ def write_outputs(
         If the output exists and ``overwrite`` is false.
     OutputError
         If it cannot be written; nothing is left half-written.
+    ValueError
+        If the run streamed its unit rows elsewhere (``run(unit_sink=...)``): they are
+        not in ``result`` to write; :func:`run_and_write` writes such runs.
     """
     from .io.output import write_geopackage
     from .layers import build_layers
 
+    if result.parameters is None:
+        raise ValueError("this run streamed its unit rows to a unit sink and no longer holds "
+                         "them; write large runs with run_and_write")
     target = Path(output) if output else result.project.output
     return write_geopackage(target, build_layers(result), overwrite=overwrite)
 

@@ -121,3 +121,12 @@ def test_si_frame_undoes_present_frame(system):
                           "subcatchment_id": ["a", "b"]})
     back = si_frame(present_frame(frame, system), system)
     pd.testing.assert_frame_equal(back, frame, check_exact=False, rtol=1e-12)
+
+
+def test_write_outputs_refuses_a_run_without_its_unit_rows(two_ways, tmp_path):
+    from gisrun.writing import write_outputs
+
+    _, _, streamed, _ = two_ways
+    with pytest.raises(ValueError, match="streamed its unit rows"):
+        write_outputs(streamed, output=tmp_path / "x.gpkg")
+    assert not (tmp_path / "x.gpkg").exists()
