@@ -5,7 +5,8 @@ For each raster size it generates inputs (``make_inputs.py``), then measures in 
 - the I/O floor: reading both rasters once, block by block, plus writing the run's output
   GeoPackage once (its layers read back into memory first, untimed);
 - ``gisrun run`` in a child process: wall time and peak resident memory;
-- the same run with a second storm, to show what one more storm costs.
+- the same run with a second storm, to show what one more storm costs, split into the loss
+  engine's time per storm and the time spent appending that storm's rows to the output.
 
 It prints the ratios the targets are stated in: run time / I/O floor (target <= 3), peak memory
 (target < 2 GB) and its growth from the smallest to the largest raster (target within 20 %).
@@ -34,13 +35,29 @@ from make_inputs import make_inputs  # noqa: E402
 # keeps the RSS of the parent image the child was forked from.
 MEASURE = """
 import sys, time
+import gisrun.io.output as output
+import gisrun.pipeline as pipeline
 from gisrun.cli import main
+
+spent = {"engine": 0.0, "append": 0.0}
+
+def timed(fn, key):
+    def wrapper(*args, **kwargs):
+        start = time.perf_counter()
+        try:
+            return fn(*args, **kwargs)
+        finally:
+            spent[key] += time.perf_counter() - start
+    return wrapper
+
+pipeline.run_losses = timed(pipeline.run_losses, "engine")  # the loss engine, every chunk
+output.append_table = timed(output.append_table, "append")  # rows streamed into the output
 t = time.perf_counter()
 code = main(sys.argv[1:])
 wall = time.perf_counter() - t
 with open("/proc/self/status") as status:
     peak_mb = next(int(l.split()[1]) for l in status if l.startswith("VmHWM")) / 1024
-print("MEASURED", code, wall, peak_mb)
+print("MEASURED", code, wall, peak_mb, spent["engine"], spent["append"])
 """
 
 FLOOR_WRITE = """
@@ -80,10 +97,11 @@ def measured_run(project: Path, output: Path, extra: list[str] | None = None) ->
     line = [ln for ln in proc.stdout.splitlines() if ln.startswith("MEASURED")]
     if proc.returncode != 0 or not line:
         raise SystemExit(f"gisrun run failed:\n{proc.stdout}\n{proc.stderr}")
-    _, code, wall, peak = line[-1].split()
+    _, code, wall, peak, engine, append = line[-1].split()
     if int(code) != 0:
         raise SystemExit(f"gisrun run exited {code}:\n{proc.stderr}")
-    return {"wall_s": float(wall), "peak_mb": float(peak)}
+    return {"wall_s": float(wall), "peak_mb": float(peak), "engine_s": float(engine),
+            "append_s": float(append)}
 
 
 def with_second_storm(project: Path) -> Path:
@@ -109,6 +127,9 @@ def bench(n_cells: int, n_polygons: int) -> dict:
         "peak_mb": run["peak_mb"], "read_floor_s": read_s, "write_floor_s": write_s,
         "io_floor_s": floor, "ratio_to_io_floor": run["wall_s"] / floor,
         "second_storm_s": two["wall_s"] - run["wall_s"],
+        "engine_s_per_storm": two["engine_s"] / 2,
+        "second_storm_rows_s": two["append_s"] - run["append_s"],
+        "peak_mb_two_storms": two["peak_mb"],
     }
 
 
@@ -123,14 +144,17 @@ def main(argv: list[str] | None = None) -> None:
         print(json.dumps(rows, indent=2))
         return
     print(f"{'cells':>7} {'polygons':>9} {'run s':>8} {'floor s':>8} {'run/floor':>10} "
-          f"{'peak MB':>8} {'+1 storm s':>11}")
+          f"{'peak MB':>8} {'+1 storm s':>11} {'engine s':>9} {'its rows s':>11}")
     for r in rows:
         print(f"{r['cells']:>7} {r['polygons']:>9} {r['run_s']:>8.1f} {r['io_floor_s']:>8.1f} "
-              f"{r['ratio_to_io_floor']:>10.2f} {r['peak_mb']:>8.0f} {r['second_storm_s']:>11.1f}")
+              f"{r['ratio_to_io_floor']:>10.2f} {r['peak_mb']:>8.0f} {r['second_storm_s']:>11.1f} "
+              f"{r['engine_s_per_storm']:>9.1f} {r['second_storm_rows_s']:>11.1f}")
     growth = rows[-1]["peak_mb"] / rows[0]["peak_mb"] - 1
     print(f"peak memory growth from {rows[0]['cells']} to {rows[-1]['cells']} cells: "
           f"{growth:+.0%} (target within 20 %); largest peak {rows[-1]['peak_mb']:.0f} MB "
           "(target < 2000 MB); run/floor target <= 3")
+    print("+1 storm: what a second storm adds to the run; engine: loss-engine time per storm; "
+          "its rows: time spent appending the second storm's rows (series and unit tables)")
 
 
 if __name__ == "__main__":
