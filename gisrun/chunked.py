@@ -58,10 +58,12 @@ def plan_chunks(geoms: gpd.GeoSeries, max_per_chunk: int) -> list[np.ndarray]:
 
     Examples
     --------
+    A 4 x 4 grid of squares (row by row) falls into its four 2 x 2 quarters:
+
     >>> from shapely.geometry import box
-    >>> g = gpd.GeoSeries([box(i, 0, i + 1, 1) for i in range(5)])
-    >>> [c.tolist() for c in plan_chunks(g, 2)]
-    [[0, 1], [2, 3], [4]]
+    >>> g = gpd.GeoSeries([box(x, y, x + 1, y + 1) for y in range(4) for x in range(4)])
+    >>> [c.tolist() for c in plan_chunks(g, 4)]
+    [[0, 1, 4, 5], [8, 9, 12, 13], [10, 11, 14, 15], [2, 3, 6, 7]]
     """
     n = len(geoms)
     if n == 0:
@@ -80,7 +82,7 @@ def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int) -> int:
     Examples
     --------
     >>> chunk_size_for_budget(1500, 288, 3)
-    1412
+    1130
     """
     per_sub = _UNITS_PER_SUBCATCHMENT * max(n_steps, 1) * 8 * _ARRAYS_PER_UNIT_STEP
     per_sub *= 1 + 0.1 * max(n_storms - 1, 0)  # storm results kept until the chunk is written

@@ -17,8 +17,9 @@ Examples
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -178,18 +179,10 @@ def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
     ...               US).to_dict("list")
     {'runoff_depth_in': [1.0], 'time_to_ponding_min': [10.0]}
     """
-    out = frame.copy()
-    renames = {}
-    for name in frame.columns:
-        for suffix, kind in _SUFFIXES:
-            if isinstance(name, str) and name.endswith(suffix):
-                if kind is None:
-                    break
-                unit = getattr(system, kind)
-                out[name] = from_si(frame[name].to_numpy(dtype=np.float64), unit)
-                renames[name] = name[: -len(suffix)] + "_" + unit
-                break
-    return out.rename(columns=renames)
+    # (SI ending, ending in system, unit); an ending of kind None (1/s) stays as it is
+    endings = [(suffix, f"_{getattr(system, kind)}" if kind else None,
+                getattr(system, kind) if kind else None) for suffix, kind in _SUFFIXES]
+    return _convert_columns(frame, endings, from_si)
 
 
 def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
@@ -202,14 +195,25 @@ def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
     ...          US).to_dict("list")
     {'runoff_depth_m': [0.0254], 'time_to_ponding_s': [600.0]}
     """
+    endings = sorted(((f"_{getattr(system, kind)}", suffix, getattr(system, kind))
+                      for suffix, kind in _SUFFIXES if kind), key=lambda t: -len(t[0]))
+    return _convert_columns(frame, endings, to_si)
+
+
+def _convert_columns(frame: pd.DataFrame, endings: list[tuple[str, str | None, str | None]],
+                     convert: Callable[..., Any]) -> pd.DataFrame:
+    """Convert and rename the columns whose name ends in one of ``endings`` (first match wins).
+
+    ``endings`` holds (ending, new ending, unit); a new ending of None leaves the column as is.
+    """
     out = frame.copy()
     renames = {}
-    shown = sorted(((f"_{getattr(system, kind)}", suffix, getattr(system, kind))
-                    for suffix, kind in _SUFFIXES if kind), key=lambda t: -len(t[0]))
     for name in frame.columns:
-        for ending, suffix, unit in shown:
+        for ending, new_ending, unit in endings:
             if isinstance(name, str) and name.endswith(ending):
-                out[name] = to_si(frame[name].to_numpy(dtype=np.float64), unit)
-                renames[name] = name[: -len(ending)] + suffix
+                if new_ending is None:
+                    break
+                out[name] = convert(frame[name].to_numpy(dtype=np.float64), unit)
+                renames[name] = name[: -len(ending)] + new_ending
                 break
     return out.rename(columns=renames)
