@@ -83,8 +83,11 @@ def run_and_write(
 
     Memory stays within the project's budget however many subcatchments there
     are: each chunk's excess-rainfall series is appended to the output as it
-    is computed. The GeoPackage is built in a temporary file beside the target
-    and moved into place only when complete.
+    is computed, and so are its unit parameters and unit results when the run
+    is too large to keep step arrays (then ``ponding_rank_units`` is ranked
+    inside the file and the returned result holds no unit rows). The
+    GeoPackage is built in a temporary file beside the target and moved into
+    place only when complete.
 
     With ``into`` the layers are added to that existing GeoPackage instead
     (a copy is built beside it and replaces it when complete); its other
