@@ -26,7 +26,9 @@ __all__ = [
     "ChunkTask",
     "ChunkOutput",
     "plan_chunks",
+    "ChunkLoad",
     "chunk_size_for_budget",
+    "sample_rows",
     "process_chunk",
     "split_overlay",
     "execute",
@@ -35,10 +37,33 @@ __all__ = [
 #: Default memory budget of a run, MB (``[project] memory_budget_mb``).
 DEFAULT_MEMORY_BUDGET_MB = 1500.0
 
-#: Assumed units (soil x cover x surface parts) per subcatchment when sizing chunks.
-_UNITS_PER_SUBCATCHMENT = 24
-#: Arrays of (steps x units) alive at once per storm in the engine and aggregation.
-_ARRAYS_PER_UNIT_STEP = 10
+#: Share of the memory budget one chunk's working set may take; the rest is for the inputs,
+#: the results kept for the whole run and the copies made while writing a chunk's rows.
+_CHUNK_SHARE = 1.0 / 3.0
+#: Working-set bytes per unit and step of one storm in the engine and aggregation (measured
+#: about 60 on the benchmark inputs: the step arrays of the engine and their sums).
+_BYTES_PER_UNIT_STEP = 64
+#: Bytes per subcatchment, step and storm of the excess series kept until the chunk is written.
+_BYTES_PER_SERIES_ROW = 160
+#: Bytes per unit and storm of the unit tables kept until the chunk is written.
+_BYTES_PER_UNIT_ROW = 400
+#: Bytes per raster cell in a chunk's overlay window (measured about 15).
+_BYTES_PER_CELL = 16
+#: Bytes per subcatchment besides (polygon geometry and per-polygon tables; measured ~27 kB).
+_BYTES_PER_SUBCATCHMENT = 32_000
+
+
+@dataclass(frozen=True)
+class ChunkLoad:
+    """What one subcatchment weighs when sizing chunks, estimated before the run.
+
+    ``units_per_subcatchment`` (soil x cover x surface parts) and ``cells_per_subcatchment``
+    (cells of the finer raster inside the polygon) come from an overlay of a few compact
+    samples (:func:`sample_rows`); the defaults are a cautious guess for when none was made.
+    """
+
+    units_per_subcatchment: float = 24.0
+    cells_per_subcatchment: float = 0.0
 
 
 def plan_chunks(geoms: gpd.GeoSeries, max_per_chunk: int) -> list[np.ndarray]:
@@ -70,23 +95,54 @@ def plan_chunks(geoms: gpd.GeoSeries, max_per_chunk: int) -> list[np.ndarray]:
         return []
     if n <= max_per_chunk:
         return [np.arange(n)]
-    centroids = gpd.GeoSeries(geoms.centroid.values, crs=None)
-    order = np.argsort(np.asarray(centroids.hilbert_distance(total_bounds=geoms.total_bounds)),
-                       kind="stable")
+    order = _hilbert_order(geoms)
     return [np.sort(order[i:i + max_per_chunk]) for i in range(0, n, max_per_chunk)]
 
 
-def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int) -> int:
-    """Subcatchments per chunk that keep one chunk's arrays within half the budget.
+def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int,
+                          load: ChunkLoad = ChunkLoad()) -> int:
+    """Subcatchments per chunk whose working set stays within a third of the budget.
+
+    A chunk's working set is its overlay window, one storm's engine arrays at a time and
+    every storm's results until the chunk is written; with the load measured on the inputs
+    the peak memory is set by the budget rather than by the raster or catchment size.
 
     Examples
     --------
     >>> chunk_size_for_budget(1500, 288, 3)
-    1130
+    779
+    >>> chunk_size_for_budget(1500, 288, 3, ChunkLoad(units_per_subcatchment=4.0,
+    ...                                               cells_per_subcatchment=640))
+    1930
     """
-    per_sub = _UNITS_PER_SUBCATCHMENT * max(n_steps, 1) * 8 * _ARRAYS_PER_UNIT_STEP
-    per_sub *= 1 + 0.1 * max(n_storms - 1, 0)  # storm results kept until the chunk is written
-    return int(np.clip(budget_mb * 1e6 * 0.5 // per_sub, 16, 50_000))
+    steps, storms = max(n_steps, 1), max(n_storms, 1)
+    units = load.units_per_subcatchment
+    per_sub = (units * steps * _BYTES_PER_UNIT_STEP
+               + storms * (steps * _BYTES_PER_SERIES_ROW + units * _BYTES_PER_UNIT_ROW)
+               + load.cells_per_subcatchment * _BYTES_PER_CELL + _BYTES_PER_SUBCATCHMENT)
+    return int(np.clip(budget_mb * 1e6 * _CHUNK_SHARE // per_sub, 16, 50_000))
+
+
+def sample_rows(geoms: gpd.GeoSeries, n_per_sample: int = 100, n_samples: int = 3
+                ) -> list[np.ndarray]:
+    """Compact samples of polygons for estimating a :class:`ChunkLoad`.
+
+    Runs of ``n_per_sample`` neighbours along the Hilbert curve, spread evenly over it, so
+    each sample's overlay reads one small raster window. All rows in one sample when there
+    are not many more polygons than the samples hold.
+    """
+    n = len(geoms)
+    if n <= n_per_sample * n_samples:
+        return [np.arange(n)] if n else []
+    order = _hilbert_order(geoms)
+    starts = [int((k + 0.5) * n / n_samples) - n_per_sample // 2 for k in range(n_samples)]
+    return [np.sort(order[s:s + n_per_sample]) for s in starts]
+
+
+def _hilbert_order(geoms: gpd.GeoSeries) -> np.ndarray:
+    centroids = gpd.GeoSeries(geoms.centroid.values, crs=None)
+    return np.argsort(np.asarray(centroids.hilbert_distance(total_bounds=geoms.total_bounds)),
+                      kind="stable")
 
 
 @dataclass

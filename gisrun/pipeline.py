@@ -436,7 +436,7 @@ def run(
     GisrunError
         On any bad input, naming the file, field or value.
     """
-    from .chunked import ChunkTask, chunk_size_for_budget, execute, plan_chunks, split_overlay
+    from .chunked import ChunkTask, execute, plan_chunks, split_overlay
 
     say = progress or _quiet
     if not isinstance(project, Project):
@@ -451,11 +451,10 @@ def run(
         keep_loss = len(inputs.subcatchments) < KEEP_STEP_ARRAYS_BELOW
     if keep_loss:  # a run small enough to keep its step arrays keeps its unit rows too
         unit_sink = None
-    n_steps = max(len(h.resample(project.time_step_s)) for h in inputs.storms)
-    size = chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms))
-    chunks = plan_chunks(inputs.subcatchments.geometry, size)
     checksums = input_checksums(project)
     cache_key, cached = _cached_overlay(project, checksums)
+    size = _chunk_size(project, inputs, cached)
+    chunks = plan_chunks(inputs.subcatchments.geometry, size)
     overlays = (split_overlay(cached, inputs.subcatchments, chunks) if cached is not None
                 else [None] * len(chunks))
     tasks = [ChunkTask(i, project, inputs.subcatchments.iloc[rows], inputs.soil, inputs.cover,
@@ -488,6 +487,54 @@ def run(
         save_overlay(project.overlay_cache, cache_key, result.units, result.coverage,
                      overlay_notes)
     return result
+
+
+def _chunk_size(project: Project, inputs: Inputs,
+                cached: tuple[pd.DataFrame, pd.DataFrame, list[str]] | None) -> int:
+    """Subcatchments per chunk for the memory budget, from the load measured on samples.
+
+    Without a cached overlay, a few compact samples of polygons are overlaid first (and
+    thrown away) to learn how many units and raster cells a subcatchment brings here; a
+    project that fits in one chunk even at a cautious guess is not sampled.
+    """
+    from .chunked import ChunkLoad, chunk_size_for_budget, sample_rows
+
+    n_steps = max(len(h.resample(project.time_step_s)) for h in inputs.storms)
+    subs = inputs.subcatchments
+
+    def size(load: ChunkLoad) -> int:
+        return chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms), load)
+
+    cells = _cells_per_subcatchment(inputs)
+    if cached is not None:
+        return size(ChunkLoad(len(cached[0]) / max(len(subs), 1), cells))
+    if len(subs) <= size(ChunkLoad(cells_per_subcatchment=cells)):
+        return len(subs)
+    counts = []
+    for rows in sample_rows(subs.geometry):
+        sample = Inputs(subs.iloc[rows], inputs.soil, inputs.cover, [], None)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", GisrunWarning)
+            units, _, _ = overlay_inputs(project, sample, check_codes=False)
+        counts.append(len(units) / len(rows))
+    return size(ChunkLoad(max(counts), cells))
+
+
+def _cells_per_subcatchment(inputs: Inputs) -> float:
+    """Mean polygon area in cells of the finer raster (in each raster's own CRS)."""
+    best = 0.0
+    for raster in (inputs.soil, inputs.cover):
+        if raster is None:
+            continue
+        geoms = inputs.subcatchments.geometry
+        if geoms.crs is not None and raster.crs is not None and geoms.crs != raster.crs:
+            geoms = geoms.to_crs(raster.crs)
+        t = raster.transform
+        with warnings.catch_warnings():  # planar area in degrees for a geographic CRS, as
+            warnings.simplefilter("ignore", UserWarning)  # is the cell: the ratio holds
+            area = float(geoms.area.mean())
+        best = max(best, area / abs(t.a * t.e))
+    return best
 
 
 def _cached_overlay(project: Project, checksums: dict[str, str]
