@@ -220,6 +220,8 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         storm_losses=[r.loss for r in results] if task.keep_loss else [],
         model_inputs=model_inputs_si(params, sub_ids, default_method=project.method),
         overlay_notes=[str(n) for n in notes_overlay],
+        unit_count=len(params),
+        method_counts=params["loss_method"].value_counts(sort=False).to_dict(),
     )
 
 

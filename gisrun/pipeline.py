@@ -469,8 +469,6 @@ def run(
             for k, h in enumerate(inputs.storms):
                 series_sink(k, h.name, out.storm_series[k])
             out.storm_series = []
-        out.unit_count = len(out.parameters)
-        out.method_counts = out.parameters["loss_method"].value_counts(sort=False).to_dict()
         if unit_sink is not None:
             unit_sink(out.parameters, [(h.name, out.storm_units[k])
                                        for k, h in enumerate(inputs.storms)])
