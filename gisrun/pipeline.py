@@ -268,6 +268,7 @@ def prepare_parameters(
         initial_abstraction_ratio=project.initial_abstraction_ratio,
         antecedent_condition=project.antecedent_condition,
         initial_water_content=project.soil.initial_water_content,
+        compact_provenance=True,
     )
     if project.combine == "composite":
         params = composite_parameters(params)

@@ -78,6 +78,7 @@ def assign_parameters(
     initial_abstraction_ratio: float = T.DEFAULT_INITIAL_ABSTRACTION_RATIO,
     antecedent_condition: int = T.DEFAULT_ANTECEDENT_CONDITION,
     initial_water_content: float | None = None,
+    compact_provenance: bool = False,
 ) -> AssignedParameters:
     """Give every unit SI parameters for every loss method.
 
@@ -113,6 +114,10 @@ def assign_parameters(
         deficit is total porosity minus it (Chow et al. 1988, sec. 4.3:
         ``(1 - Se) theta_e = eta - theta_i``) instead of coming from
         ``initial_saturation``.
+    compact_provenance : bool
+        Return the provenance as one row per parameter, source and
+        soil x cover x surface with a ``unit_parts`` count (what the output
+        stores; cheap for millions of units) instead of one row per unit part.
 
     Returns
     -------
@@ -120,7 +125,7 @@ def assign_parameters(
         ``params``: the unit parameter frame of DEVELOPERS.md plus
         ``hydrologic_soil_group`` and ``antecedent_condition``;
         ``provenance``: one row per unit part and parameter with the
-        ``source`` that won; ``warnings``: :class:`GisrunWarning` list.
+        ``source`` that won (or compact, see ``compact_provenance``); ``warnings``: :class:`GisrunWarning` list.
 
     Raises
     ------
@@ -137,22 +142,63 @@ def assign_parameters(
     soils = resolve_soils(units["soil_class"].unique(), classification, dual_group_condition,
                           warnings)
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
-    rows = _expand(units, soils)
+    all_rows = _expand(units, soils)
+    layers = _layers(overrides, None, classification)
+    attributes = (subcatchment_attributes if subcatchment_attributes is not None
+                  and len(subcatchment_attributes) else None)
+    # Parameters depend on soil, cover and surface, and on the subcatchment only where a layer
+    # names it: work on one row per distinct combination and spread the result back.
+    rows, inverse = _distinct_parts(all_rows, _named_subcatchments(layers, attributes))
     values, sources = _shipped(rows, soils, initial_saturation, impervious_depression_storage_m)
     _run_defaults(values, sources, initial_abstraction_ratio)
     values["loss_method"], sources["loss_method"] = method, "run default ([method] name)"
     ranks = pd.DataFrame(0, index=rows.index, columns=list(_ALL))
-    for rank, layer in _layers(overrides, None, classification):
+    for rank, layer in layers:
         _apply(rows, values, sources, ranks, rank, layer, warnings)
-    if subcatchment_attributes is not None and len(subcatchment_attributes):
-        _apply_attributes(rows, values, sources, ranks, subcatchment_attributes)
+    if attributes is not None:
+        _apply_attributes(rows, values, sources, ranks, attributes)
     _rederive(rows, values, sources, ranks, initial_saturation)
     if initial_water_content is not None:
         _deficit_from_water_content(rows, values, sources, ranks, initial_water_content, warnings)
     _check_result(rows, values, sources)
-    params = _params(rows, values)
+    params = _params(all_rows, values, inverse)
     params["antecedent_condition"] = _checked_condition(antecedent_condition)
-    return AssignedParameters(params, _provenance(rows, sources), warnings)
+    if compact_provenance:
+        provenance = _compact_provenance(rows, sources, np.bincount(inverse, minlength=len(rows)))
+    else:
+        provenance = _provenance(all_rows, sources, inverse)
+    return AssignedParameters(params, provenance, warnings)
+
+
+def _named_subcatchments(layers: list[tuple[int, dict[str, Any]]],
+                         attributes: pd.DataFrame | None) -> set[str]:
+    """Subcatchment ids that an override row or a subcatchment attribute names."""
+    named = {str(layer["subcatchment_id"]) for _, layer in layers
+             if layer.get("subcatchment_id") is not None}
+    if attributes is not None and "subcatchment_id" in attributes.columns:
+        named.update(attributes["subcatchment_id"].astype(str))
+    return named
+
+
+def _distinct_parts(rows: pd.DataFrame, named: set[str]) -> tuple[pd.DataFrame, np.ndarray]:
+    """One row per distinct soil x cover x surface (x subcatchment, where ``named``).
+
+    Returns the distinct rows in order of first appearance (so the first bad
+    distinct row is the first bad row) and, for every row, its distinct row.
+    """
+    ids = rows["subcatchment_id"].to_numpy(dtype=object)
+    own = np.isin(ids, list(named)) if named else np.zeros(len(rows), dtype=bool)
+    codes = [pd.factorize(rows[col])[0] for col in ("soil_class", "cover_class", "surface")]
+    codes.append(np.where(own, pd.factorize(ids)[0], -1))
+    key = np.zeros(len(rows), dtype=np.int64)
+    for code in codes:  # mixed-radix number of the four codes
+        key = key * (int(code.max(initial=0)) + 2) + (code + 1)
+    _, first, inverse = np.unique(key, return_index=True, return_inverse=True)
+    order = np.argsort(first, kind="stable")
+    position = np.empty_like(order)
+    position[order] = np.arange(len(order))
+    distinct = rows.iloc[first[order]].reset_index(drop=True)
+    return distinct, position[inverse.ravel()]
 
 
 def _run_defaults(values: pd.DataFrame, sources: pd.DataFrame, ratio: float) -> None:
@@ -459,20 +505,36 @@ def _check_result(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFram
             raise ParameterError(where, problem.format(v=float(values.at[i, col])), fix)
 
 
-def _params(rows: pd.DataFrame, values: pd.DataFrame) -> pd.DataFrame:
+def _params(rows: pd.DataFrame, values: pd.DataFrame, inverse: np.ndarray) -> pd.DataFrame:
+    """Unit parameter frame: ``rows`` with the values of their distinct rows."""
     out = rows.loc[:, ["subcatchment_id", "soil_class", "cover_class", "surface", "area_m2",
                        "hydrologic_soil_group"]].copy()
     for col in PARAMETER_COLUMNS:
-        out[col] = values[col].astype(float)
-    out["loss_method"] = values["loss_method"].astype(str)
+        out[col] = values[col].to_numpy(dtype=np.float64)[inverse]
+    out["loss_method"] = values["loss_method"].astype(str).to_numpy(dtype=object)[inverse]
     out["antecedent_condition"] = T.DEFAULT_ANTECEDENT_CONDITION
     return out
 
 
-def _provenance(rows: pd.DataFrame, sources: pd.DataFrame) -> pd.DataFrame:
+_SOURCE_COLUMNS = [*PARAMETER_COLUMNS, "loss_method"]
+
+
+def _provenance(rows: pd.DataFrame, sources: pd.DataFrame, inverse: np.ndarray) -> pd.DataFrame:
+    """One row per unit part and parameter with its source."""
     keys = rows.loc[:, ["subcatchment_id", "soil_class", "cover_class", "surface"]]
-    cols = [*PARAMETER_COLUMNS, "loss_method"]
-    long = keys.join(sources[cols]).melt(
-        id_vars=list(keys.columns), value_vars=cols, var_name="parameter", value_name="source")
+    spread = sources[_SOURCE_COLUMNS].iloc[inverse].set_axis(keys.index)
+    long = keys.join(spread).melt(id_vars=list(keys.columns), value_vars=_SOURCE_COLUMNS,
+                                  var_name="parameter", value_name="source")
     return long.reset_index(drop=True)
+
+
+def _compact_provenance(rows: pd.DataFrame, sources: pd.DataFrame,
+                        counts: np.ndarray) -> pd.DataFrame:
+    """One row per parameter, source and soil x cover x surface, with the count of unit parts."""
+    keys = rows.loc[:, ["soil_class", "cover_class", "surface"]].assign(unit_parts=counts)
+    long = keys.join(sources[_SOURCE_COLUMNS]).melt(
+        id_vars=list(keys.columns), value_vars=_SOURCE_COLUMNS, var_name="parameter",
+        value_name="source")
+    by = ["parameter", "source", "soil_class", "cover_class", "surface"]
+    return long.groupby(by, dropna=False, sort=True)["unit_parts"].sum().reset_index()
 

@@ -1,5 +1,6 @@
 """Assignment of unit parameters: splitting, groups, precedence, validation."""
 
+import numpy as np
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
@@ -283,3 +284,33 @@ def test_override_names_unknown_labels_and_columns():
     with pytest.raises(ParameterError, match=r"ks_mm_per_hour.*did you mean 'ks_mm_per_h'"):
         assign(units(("S1", "A", "meadow", 1.0)),
                overrides=pd.DataFrame({"soil_class": ["A"], "ks_mm_per_hour": [3.0]}))
+
+
+def test_shared_work_equals_unit_by_unit_assignment():
+    # Parameters are worked out once per distinct soil x cover x surface (and per subcatchment
+    # only where an override or attribute names it). Reference: the same units assigned one
+    # subcatchment at a time, where no sharing across subcatchments can happen.
+    rng = np.random.default_rng(7)
+    soils, covers = ["A", "B", "C", "D", "B/D"], ["meadow", "commercial", "woods_good",
+                                                  "residential_quarter_acre", "unspecified"]
+    table = units(*[(f"S{rng.integers(12)}", soils[rng.integers(5)], covers[rng.integers(5)],
+                     float(rng.uniform(1, 100))) for _ in range(200)])
+    overrides = pd.DataFrame({"subcatchment_id": ["S3", None], "soil_class": [None, "C"],
+                              "cover_class": [None, "meadow"], "ks_mm_per_h": [4.0, 0.7]})
+    attrs = pd.DataFrame({"subcatchment_id": ["S5", "S9"], "curve_number": [77.0, None],
+                          "loss_method": [None, "horton"]})
+    kw = dict(overrides=overrides, subcatchment_attributes=attrs, initial_water_content=0.2)
+    whole, prov, _ = assign(table, **kw)
+    parts = [assign(group, **kw) for _, group in table.groupby("subcatchment_id", sort=False)]
+    by_sub = pd.concat([p for p, _, _ in parts])
+    key = ["subcatchment_id", "soil_class", "cover_class", "surface", "area_m2"]
+    a = whole.sort_values(key, kind="stable").reset_index(drop=True)
+    b = by_sub.sort_values(key, kind="stable").reset_index(drop=True)
+    pd.testing.assert_frame_equal(a, b)
+    assert set(whole.loc[whole["subcatchment_id"] == "S9", "loss_method"]) == {"horton"}
+    # the compact provenance counts the same unit parts as the per-part one
+    compact = assign(table, compact_provenance=True, **kw).provenance
+    counted = (prov.groupby(["parameter", "source", "soil_class", "cover_class", "surface"])
+               .size().rename("unit_parts").reset_index())
+    pd.testing.assert_frame_equal(compact, counted, check_dtype=False)
+    assert compact["unit_parts"].sum() == len(whole) * prov["parameter"].nunique()
