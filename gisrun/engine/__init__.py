@@ -157,8 +157,9 @@ def _run_module(module: ModuleType, p: object, rain: FloatArray, dt_s: float, ou
             sub_rain = rain if rain.shape[1] == 1 else rain[:, first]
             _run_module(module, take_params(p, first), sub_rain, dt_s, tmp,
                         slice(0, first.size), deduplicate=False)
-            out.infil[:, cols], out.excess[:, cols] = tmp.infil[:, inverse], tmp.excess[:, inverse]
-            out.capacity[:, cols] = tmp.capacity[:, inverse]
+            for dst, src in ((out.infil, tmp.infil), (out.excess, tmp.excess),
+                             (out.capacity, tmp.capacity)):
+                _spread(src, inverse, dst, cols)
             out.storage[cols], out.ponding[cols] = tmp.storage[inverse], tmp.ponding[inverse]
             return
     positions = np.arange(n_units)
@@ -168,6 +169,24 @@ def _run_module(module: ModuleType, p: object, rain: FloatArray, dt_s: float, ou
                 if isinstance(cols, slice) else cols[chunk])
         sub_rain = rain if rain.shape[1] == 1 else rain[:, chunk]
         _simulate(module, take_params(p, positions[chunk]), sub_rain, dt_s, out, dest)
+
+
+def _spread(src: FloatArray, inverse: NDArray[np.intp], dst: FloatArray,
+            cols: slice | NDArray[np.intp]) -> None:
+    """``dst[:, cols] = src[:, inverse]`` without a (steps x units) temporary.
+
+    A 2-D fancy index builds the whole gathered array first; taking straight
+    into ``dst`` (or one row at a time) is 2.5-10x faster at 100,000s of units.
+    ``inverse`` indexes ``src``'s columns, so ``mode="clip"`` changes nothing
+    and spares numpy the buffered copy it makes under ``mode="raise"``.
+    """
+    if isinstance(cols, slice) and cols == slice(0, dst.shape[1]):
+        np.take(src, inverse, axis=1, out=dst, mode="clip")
+        return
+    row = np.empty(inverse.size)
+    for k in range(src.shape[0]):
+        np.take(src[k], inverse, out=row, mode="clip")
+        dst[k, cols] = row
 
 
 def _first_field(p: object) -> str:

@@ -70,6 +70,20 @@ def test_deduplicated_run_equals_the_full_run():
         assert_array_equal(getattr(a, field), getattr(b, field))
 
 
+def test_deduplicated_mixed_methods_land_in_their_own_columns():
+    # each method's units are a subset of the columns; repeated parameter sets inside a
+    # method are simulated once and spread back to those columns only
+    rng = np.random.default_rng(11)
+    names = rng.choice(["green_ampt", "horton", "curve_number"], 60)
+    units = unit_frame(60, loss_method=list(names), ks_m_per_s=rng.choice([1e-6, 4e-6], 60),
+                       curve_number=rng.choice([61.0, 80.0], 60))
+    a = run_losses(units, RAIN, 600.0, deduplicate=True)
+    b = run_losses(units, RAIN, 600.0, deduplicate=False)
+    for field in ("infil_m", "excess_m", "capacity_m_per_s", "storage_m", "time_to_ponding_s"):
+        assert_array_equal(getattr(a, field), getattr(b, field))
+    assert len(np.unique(a.excess_m, axis=1).T) < 60  # duplicates were there to share
+
+
 def test_rain_per_unit_and_shared_rain_agree():
     units = unit_frame(3)
     shared = run_losses(units, RAIN, 600.0, method="horton")
