@@ -106,6 +106,7 @@ def summarize_subcatchments(
     dt_s: float,
     *,
     weights: sp.csr_matrix | None = None,
+    excess_by_subcatchment: NDArray[np.float64] | None = None,
 ) -> pd.DataFrame:
     """Area-weighted subcatchment results in SI, with a checked mass balance.
 
@@ -121,6 +122,9 @@ def summarize_subcatchments(
         Time step, seconds.
     weights : sparse matrix, optional
         :func:`area_weights` of ``params`` and ``sub_ids``, when already computed.
+    excess_by_subcatchment : ndarray, optional
+        ``weights @ loss.excess_m.T`` (subcatchments x steps), when already
+        computed (the excess column of :func:`subcatchment_series`).
 
     Returns
     -------
@@ -156,10 +160,11 @@ def summarize_subcatchments(
     out["runoff_coefficient"] = _share(out["runoff_depth_m"].to_numpy(), rain)
     pervious = (params["surface"] != "impervious").to_numpy()
     out["time_to_ponding_s"] = _group_min(loss.time_to_ponding_s, weights, pervious)
-    started = np.where(loss.excess_m > 0, 1.0, 0.0)
+    started = loss.excess_m > 0
     first_step = np.where(started.any(axis=0), started.argmax(axis=0) * dt_s, np.nan)
     out["runoff_start_s"] = _group_min(first_step, weights, np.ones_like(pervious))
-    excess_by_sub = np.asarray(weights @ loss.excess_m.T)  # (subcatchments x steps)
+    excess_by_sub = (np.asarray(weights @ loss.excess_m.T) if excess_by_subcatchment is None
+                     else excess_by_subcatchment)  # (subcatchments x steps)
     out["peak_excess_intensity_m_per_s"] = excess_by_sub.max(axis=1, initial=0.0) / dt_s
     impervious_area = np.asarray(weights @ (~pervious).astype(float)).ravel()
     out["impervious_fraction"] = impervious_area

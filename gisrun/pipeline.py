@@ -338,8 +338,10 @@ def run_storm(
     loss = run_losses(params, rain_units, dt_s)
     units = summarize_units(loss, params, dt_s)
     weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
-    subs = summarize_subcatchments(loss, params, sub_ids, dt_s, weights=weights)
     series = subcatchment_series(loss, params, sub_ids, dt_s, weights=weights)
+    excess = series["excess_m"].to_numpy().reshape(len(sub_ids), rain.shape[0])  # sub-major
+    subs = summarize_subcatchments(loss, params, sub_ids, dt_s, weights=weights,
+                                   excess_by_subcatchment=excess)
     for name in ("rain", "infiltration", "excess"):
         series[f"{name}_intensity_m_per_s"] = series[f"{name}_m"] / dt_s
     return StormResult(hyetograph, rain, loss, units, subs, series)

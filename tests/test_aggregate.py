@@ -85,3 +85,23 @@ def test_weights_and_soil_shares():
     shares = soil_shares(units, np.array(["x", "y"], dtype=object)).set_index("subcatchment_id")
     assert shares.loc["x", "soil_B_D_fraction"] == 0.75
     assert shares.loc["y", "soil_A_fraction"] == 1.0
+
+
+def test_run_storm_summary_equals_a_fresh_summary_of_its_losses():
+    # run_storm hands the series' excess (subcatchments x steps) to the summary instead of
+    # recomputing it; the summary must equal one computed from the losses alone
+    from gisrun.pipeline import run_storm
+    from gisrun.storm import Hyetograph
+
+    rng = np.random.default_rng(3)
+    params = pd.DataFrame({"subcatchment_id": ["a", "b", "a", "c", "b", "c", "a"],
+                           "surface": ["pervious"] * 6 + ["impervious"],
+                           "area_m2": rng.uniform(10, 500, 7), "loss_method": "phi_index",
+                           "phi_index_m_per_s": rng.uniform(1e-7, 2e-5, 7),
+                           "depression_storage_m": rng.uniform(0, 0.003, 7)})
+    storm = Hyetograph("h", [0, 600, 1200, 1800, 2400], [0.002, 0.015, 0.006, 0.001])
+    ids = np.array(["c", "a", "b"], dtype=object)
+    result = run_storm(params, storm, 300.0, sub_ids=ids)
+    fresh = summarize_subcatchments(result.loss, params, ids, 300.0)
+    pd.testing.assert_frame_equal(result.subcatchments, fresh)
+    assert result.subcatchments["peak_excess_intensity_m_per_s"].nunique() == 3
