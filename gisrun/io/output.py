@@ -158,14 +158,20 @@ def _write_layer(path: Path, name: str, frame: pd.DataFrame) -> None:
 
 
 def _plain_columns(frame: pd.DataFrame) -> pd.DataFrame:
-    """Make column types GDAL can store (strings as object, no categoricals)."""
+    """Make column types GDAL can store: no categoricals, and strings as object without Arrow.
+
+    Returns ``frame`` itself when nothing needs converting (a series chunk of
+    millions of rows is not copied for nothing).
+    """
+    geometry = getattr(frame, "_geometry_column_name", None)
+    convert = [col for col in frame.columns if col != geometry and (
+        isinstance(frame[col].dtype, pd.CategoricalDtype)
+        or (not _ARROW and pd.api.types.is_string_dtype(frame[col].dtype)))]
+    if not convert:
+        return frame
     frame = frame.copy()
-    for col in frame.columns:
-        if col == getattr(frame, "_geometry_column_name", None):
-            continue
-        dtype = frame[col].dtype
-        if isinstance(dtype, pd.CategoricalDtype) or pd.api.types.is_string_dtype(dtype):
-            frame[col] = frame[col].astype(object).where(frame[col].notna(), None)
+    for col in convert:
+        frame[col] = frame[col].astype(object).where(frame[col].notna(), None)
     return frame
 
 
