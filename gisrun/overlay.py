@@ -146,6 +146,8 @@ class _Grid:
         self.crs = CRS.from_user_input(fine.crs)
         self.t = fine.transform
         self.n_classes = 2 + len(labels)
+        self._combined = None if coarse_lut is None else _combined_table(
+            fine_lut, coarse_lut, fine_is_soil)
 
     @classmethod
     def build(cls, soil: ClassGrid, cover: ClassGrid | None, soil_codes: Mapping[int, str],
@@ -174,21 +176,23 @@ class _Grid:
         fine = self.fine_lut.index(_read_padded(self.fine, r0, r1, c0, c1))
         if self.coarse is None:
             return fine
-        coarse = self.coarse_lut.index(self._coarse_on_fine(r0, r1, c0, c1))
-        soil, cover = (fine, coarse) if self.fine_is_soil else (coarse, fine)
-        n_cover = len(self.coarse_lut.labels if self.fine_is_soil else self.fine_lut.labels)
-        out = (soil - 2) * n_cover + (cover - 2) + 2
-        out = np.where((soil == _NODATA) | (cover == _NODATA), _NODATA, out)
-        return np.where((soil == _OUTSIDE) | (cover == _OUTSIDE), _OUTSIDE, out)
+        coarse = self._coarse_on_fine(r0, r1, c0, c1)
+        # one look-up in the (fine class x coarse class) table instead of arithmetic and masks
+        flat = fine * np.int32(len(self.coarse_lut.labels) + 2)
+        flat += coarse
+        return self._combined[flat]
 
-    def _coarse_on_fine(self, r0: int, r1: int, c0: int, c1: int) -> NDArray[Any]:
+    def _coarse_on_fine(self, r0: int, r1: int, c0: int, c1: int) -> NDArray[np.int32]:
+        """Class index of the coarse raster at the centres of fine cells r0:r1, c0:c1."""
         t, ct = self.t, self.coarse.transform
         xs = t.c + t.a * (np.arange(c0, c1) + 0.5)
         ys = t.f + t.e * (np.arange(r0, r1) + 0.5)
         cols = np.floor((xs - ct.c) / ct.a).astype(np.int64)
         rows = np.floor((ys - ct.f) / ct.e).astype(np.int64)
         cr0, cr1, cc0, cc1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
-        block = _read_padded(self.coarse, cr0, cr1, cc0, cc1)
+        block = self.coarse_lut.index(_read_padded(self.coarse, cr0, cr1, cc0, cc1))
+        if block.shape == (r1 - r0, c1 - c0) and rows[0] == cr0 and cols[0] == cc0:
+            return block  # rows and cols are cr0, cr0 + 1, ...: the same grid, nothing to gather
         return block[np.ix_(rows - cr0, cols - cc0)]
 
     def row_weights(self, r0: int, r1: int) -> NDArray[np.float64] | None:
@@ -205,6 +209,22 @@ class _Grid:
         if self.crs.is_geographic:
             return 1.0  # row weights carry the area
         return abs(self.t.a * self.t.e) * linear_unit_m(self.crs) ** 2
+
+
+def _combined_table(fine: _Lookup, coarse: _Lookup, fine_is_soil: bool) -> NDArray[np.int32]:
+    """Class of every (fine index, coarse index) pair, flattened fine-major.
+
+    Real classes are soil-major: (soil - 2) * n_cover + (cover - 2) + 2. A pair
+    with an outside cell is outside; otherwise one with a nodata cell is nodata.
+    """
+    f = np.arange(len(fine.labels) + 2)[:, None]
+    c = np.arange(len(coarse.labels) + 2)[None, :]
+    soil, cover = (f, c) if fine_is_soil else (c, f)
+    n_cover = len(coarse.labels if fine_is_soil else fine.labels)
+    out = (soil - 2) * n_cover + (cover - 2) + 2
+    out = np.where((soil == _NODATA) | (cover == _NODATA), _NODATA, out)
+    out = np.where((soil == _OUTSIDE) | (cover == _OUTSIDE), _OUTSIDE, out)
+    return out.astype(np.int32).ravel()
 
 
 def _note_alignment(fine: ClassGrid, coarse: ClassGrid, notes: list[str]) -> None:

@@ -312,7 +312,7 @@ def unit_dict(units, sid):
     return dict(zip(zip(sub.soil_class, sub.cover_class, strict=True), sub.area_m2, strict=True))
 
 
-@pytest.mark.parametrize("cover_cell", [5.0, 20.0])
+@pytest.mark.parametrize("cover_cell", [5.0, 10.0, 20.0])
 def test_soil_and_cover_on_nested_grids_are_exact(geotiff, cover_cell):
     soil_codes = patchy_codes((20, 20))  # 10 m cells
     n = int(200 / cover_cell)
@@ -330,6 +330,24 @@ def test_soil_and_cover_on_nested_grids_are_exact(geotiff, cover_cell):
     ref = combined_reference(poly, soil_fine, cover_fine, X0, Y0, fine)
     assert unit_dict(units, "S0") == pytest.approx(ref, rel=1e-9)
     assert not any("not aligned" in n for n in notes)
+
+
+def test_same_cell_size_shifted_grid_samples_the_cover_at_cell_centres(geotiff):
+    # cover cells as large as the soil's but shifted 6 m west and north: the centre of soil
+    # cell (r, c) lies in cover cell (r + 1, c + 1), so the areas are those of the soil grid
+    # with the cover codes moved by one cell (reference: shapely cell intersections)
+    soil_codes = patchy_codes((20, 20))
+    cover_codes = patchy_codes((22, 22), n_codes=3)
+    soil = read_class_raster(geotiff(soil_codes, "soil.tif", origin=(X0, Y0), cell=10.0))
+    cover = read_class_raster(geotiff(cover_codes, "cover.tif", origin=(X0 - 6.0, Y0 + 6.0),
+                                      cell=10.0))
+    poly = Polygon([(X0 + 3.3, Y0 - 7.1), (X0 + 197.6, Y0 - 23.3), (X0 + 150.2, Y0 - 196.9),
+                    (X0 + 9.9, Y0 - 120.5)])
+    units, _, notes = compute_unit_areas(frame([poly]), soil, cover, soil_codes=SOIL,
+                                         cover_codes=COVER)
+    ref = combined_reference(poly, soil_codes, cover_codes[1:21, 1:21], X0, Y0, 10.0)
+    assert unit_dict(units, "S0") == pytest.approx(ref, rel=1e-9)
+    assert any("not aligned" in n for n in notes)
 
 
 def test_unaligned_grids_stay_within_the_stated_bound(geotiff):
