@@ -125,7 +125,8 @@ def assign_parameters(
         ``params``: the unit parameter frame of DEVELOPERS.md plus
         ``hydrologic_soil_group`` and ``antecedent_condition``;
         ``provenance``: one row per unit part and parameter with the
-        ``source`` that won (or compact, see ``compact_provenance``); ``warnings``: :class:`GisrunWarning` list.
+        ``source`` that won (or compact, see ``compact_provenance``);
+        ``warnings``: :class:`GisrunWarning` list.
 
     Raises
     ------
