@@ -163,8 +163,13 @@ def summarize_subcatchments(
     started = loss.excess_m > 0
     first_step = np.where(started.any(axis=0), started.argmax(axis=0) * dt_s, np.nan)
     out["runoff_start_s"] = _group_min(first_step, weights, np.ones_like(pervious))
-    excess_by_sub = (np.asarray(weights @ loss.excess_m.T) if excess_by_subcatchment is None
-                     else excess_by_subcatchment)  # (subcatchments x steps)
+    if excess_by_subcatchment is None:
+        excess_by_sub = np.asarray(weights @ loss.excess_m.T)  # (subcatchments x steps)
+    elif excess_by_subcatchment.shape == (len(sub_ids), loss.excess_m.shape[0]):
+        excess_by_sub = excess_by_subcatchment
+    else:
+        raise ValueError(f"excess_by_subcatchment has shape {excess_by_subcatchment.shape}, "
+                         f"not (subcatchments, steps) = {(len(sub_ids), loss.excess_m.shape[0])}")
     out["peak_excess_intensity_m_per_s"] = excess_by_sub.max(axis=1, initial=0.0) / dt_s
     impervious_area = np.asarray(weights @ (~pervious).astype(float)).ravel()
     out["impervious_fraction"] = impervious_area

@@ -191,8 +191,10 @@ class _Grid:
         rows = np.floor((ys - ct.f) / ct.e).astype(np.int64)
         cr0, cr1, cc0, cc1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
         block = self.coarse_lut.index(_read_padded(self.coarse, cr0, cr1, cc0, cc1))
-        if block.shape == (r1 - r0, c1 - c0) and rows[0] == cr0 and cols[0] == cc0:
-            return block  # rows and cols are cr0, cr0 + 1, ...: the same grid, nothing to gather
+        # Same grid, nothing to gather, only when the indices are exactly cr0, cr0 + 1, ...: a
+        # grid offset by half a cell puts centres on edges, where rounding may skip or repeat one.
+        if np.array_equal(rows, np.arange(cr0, cr1)) and np.array_equal(cols, np.arange(cc0, cc1)):
+            return block
         return block[np.ix_(rows - cr0, cols - cc0)]
 
     def row_weights(self, r0: int, r1: int) -> NDArray[np.float64] | None:

@@ -36,7 +36,7 @@ from .engine import LossResult, run_losses
 from .errors import GisrunWarning, ParameterError, RasterError, VectorError
 from .export import join_model_inputs
 from .io.raster import ClassRaster, read_class_raster
-from .io.storm import storms_from_config
+from .io.storm_config import storms_from_config
 from .io.tables import read_parameter_overrides
 from .io.vector import read_subcatchments
 from .overlay import compute_unit_areas

@@ -127,7 +127,7 @@ class Project:
         The run's time step, seconds.
     storms : tuple of dict
         The ``[[storms]]`` tables as written; turned into hyetographs by
-        :func:`gisrun.io.storm.storm_from_config`.
+        :func:`gisrun.io.storm_config.storm_from_config`.
     """
 
     path: Path

@@ -350,6 +350,29 @@ def test_same_cell_size_shifted_grid_samples_the_cover_at_cell_centres(geotiff):
     assert any("not aligned" in n for n in notes)
 
 
+def test_half_cell_shifted_grid_gives_the_same_areas_whatever_is_read_with_it(geotiff):
+    # 0.3 m cells with the cover offset by half a cell: every soil-cell centre lies on a cover
+    # cell edge, where floating-point rounding decides the cover cell. Whatever it decides,
+    # it must decide it the same way whether a polygon is overlaid alone or in a chunk with
+    # its neighbours (a window-dependent shortcut once made the answer depend on the chunk).
+    x0, y0, a = 133_058.0, 4_100_000.0, 0.3
+    soil = read_class_raster(geotiff(np.ones((4, 400), np.uint8), "soil.tif", origin=(x0, y0),
+                                     cell=a))
+    cover_codes = np.random.default_rng(5).integers(1, 4, (5, 402)).astype(np.uint8)
+    cover = read_class_raster(geotiff(cover_codes, "cover.tif", origin=(x0 - a / 2, y0 + a / 2),
+                                      cell=a))
+    polys = [box(x0 + a * (19 * k + 1) + 0.01, y0 - a * 3 + 0.01, x0 + a * (19 * k + 14) - 0.01,
+                 y0 - 0.01) for k in range(20)]
+    together, _, _ = compute_unit_areas(frame(polys), soil, cover, soil_codes=SOIL,
+                                        cover_codes=COVER)
+    for k, poly in enumerate(polys):
+        alone, _, _ = compute_unit_areas(frame([poly], ids=[f"S{k}"]), soil, cover,
+                                         soil_codes=SOIL, cover_codes=COVER)
+        assert unit_dict(alone, f"S{k}") == pytest.approx(unit_dict(together, f"S{k}"),
+                                                          rel=1e-12)
+        assert sum(unit_dict(alone, f"S{k}").values()) == pytest.approx(poly.area, rel=1e-9)
+
+
 def test_unaligned_grids_stay_within_the_stated_bound(geotiff):
     soil_codes = patchy_codes((20, 20))
     cover_codes = patchy_codes((12, 12), n_codes=3)

@@ -1,4 +1,4 @@
-"""Read and write hyetograph CSV files and build storms from the project file's ``[[storms]]``.
+"""Read and write hyetograph CSV files and IDF tables.
 
 CSV format (gisrun's own): one time column that marks the END of each interval -- elapsed
 minutes ``time_min``, elapsed hours ``time_h`` or clock times ``time`` (ISO date-time or
@@ -9,6 +9,8 @@ minutes ``time_min``, elapsed hours ``time_h`` or clock times ``time`` (ISO date
 at time 0 (or the start clock time) with zero or blank rain marks the storm start. Lines starting
 with ``#`` are comments; ``# name: <storm name>`` names the storm. Steps may be fixed or
 irregular.
+
+The project file's ``[[storms]]`` blocks are built in :mod:`gisrun.io.storm_config`.
 
 Storm depths feed planning-level estimates; defer to local codes, agency methods and a licensed
 engineer.
@@ -22,10 +24,9 @@ import io
 import math
 import os
 import warnings
-from collections.abc import Mapping, Sequence
+from collections.abc import Sequence
 from datetime import datetime
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 
@@ -37,9 +38,6 @@ __all__ = [
     "read_hyetograph_csv",
     "write_hyetograph_csv",
     "read_idf_table_csv",
-    "storm_from_config",
-    "storms_from_config",
-    "STORM_KINDS",
     "IMPLAUSIBLE_DEPTH_M",
     "warn_if_implausible",
 ]
@@ -132,7 +130,7 @@ def _read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]], str 
     return header, rows, comment_name
 
 
-def _nearest(name: str, valid: Sequence[str]) -> str:
+def nearest_hint(name: str, valid: Sequence[str]) -> str:
     near = difflib.get_close_matches(name, list(valid), n=1, cutoff=0.5)
     return f"did you mean {near[0]!r}?" if near else f"use one of {sorted(valid)}"
 
@@ -141,7 +139,7 @@ def _columns(header: list[str], src: str) -> tuple[str, str]:
     if len(header) != 2:
         unknown = [h for h in header if h not in _TIME_COLUMNS and h not in _VALUE_COLUMNS]
         bad = unknown[0] if unknown else ",".join(header)
-        hint = _nearest(bad, [*_TIME_COLUMNS, *_VALUE_COLUMNS]) if unknown else ""
+        hint = nearest_hint(bad, [*_TIME_COLUMNS, *_VALUE_COLUMNS]) if unknown else ""
         raise StormError(f"{src}:header", f"has {len(header)} columns ({bad!r} is not used)",
                          f"keep one time column and one value column; {hint}".rstrip("; "))
     time_cols = [h for h in header if h in _TIME_COLUMNS]
@@ -149,11 +147,11 @@ def _columns(header: list[str], src: str) -> tuple[str, str]:
     if len(time_cols) != 1:
         other = next((h for h in header if h not in _VALUE_COLUMNS), header[0])
         raise StormError(f"{src}:header", f"no time column ({other!r} is not one)",
-                         _nearest(other, list(_TIME_COLUMNS)))
+                         nearest_hint(other, list(_TIME_COLUMNS)))
     if len(value_cols) != 1:
         other = next(h for h in header if h != time_cols[0])
         raise StormError(f"{src}:header", f"unknown value column {other!r}",
-                         _nearest(other, list(_VALUE_COLUMNS)))
+                         nearest_hint(other, list(_VALUE_COLUMNS)))
     if header[0] != time_cols[0]:
         raise StormError(f"{src}:header", "the time column must come first",
                          f"write '{time_cols[0]},{value_cols[0]}'")
@@ -378,7 +376,7 @@ def read_idf_table_csv(path: str | os.PathLike[str]) -> st.IdfTable:
     if len(header) != 2 or header[0] != "duration_min" or header[1] not in valid:
         bad = next((h for h in header if h not in ("duration_min", *valid)), ",".join(header))
         raise StormError(f"{src}:header", f"columns {','.join(header)!r} are not an IDF table",
-                         f"use 'duration_min,intensity_mm_per_h' ({_nearest(bad, valid)})")
+                         f"use 'duration_min,intensity_mm_per_h' ({nearest_hint(bad, valid)})")
     numbers = []
     for row, cells in rows:
         try:
@@ -399,208 +397,3 @@ def read_idf_table_csv(path: str | os.PathLike[str]) -> st.IdfTable:
         return st.IdfTable(arr[:, 0], to_si(arr[:, 1], unit))
     except StormError as err:
         raise StormError(src, err.problem, err.fix) from None
-
-
-# --- [[storms]] in the project file ----------------------------------------------------------
-
-_COMMON = ("name", "kind")
-#: Keys per storm kind: (required, optional).
-STORM_KINDS: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
-    "nrcs_24h": (("distribution", "depth"), ("step_min",)),
-    "alternating_block": (("duration_min",), ("idf", "idf_table", "step_min", "peak_position")),
-    "chicago": (("idf", "duration_min"), ("step_min", "peak_position")),
-    "uniform": (("depth", "duration_min"), ("step_min",)),
-    "file": (("path",), ()),
-}
-_ALL_KEYS = sorted({k for req, opt in STORM_KINDS.values() for k in (*req, *opt)} | set(_COMMON))
-
-
-def storm_from_config(
-    spec: Mapping[str, Any], *, base_dir: Path, units: UnitSystem, where: str
-) -> st.Hyetograph:
-    """Build one storm from a ``[[storms]]`` table of the project file.
-
-    Parameters
-    ----------
-    spec : mapping
-        The table: ``kind`` (``nrcs_24h``, ``alternating_block``, ``chicago``, ``uniform``,
-        ``file``) and its keys (``name``, ``distribution``, ``depth`` in ``units.depth``,
-        ``duration_min``, ``step_min`` (default 6 for ``nrcs_24h``, else 5),
-        ``idf = {a, b, c}`` with ``a`` in ``units.rate`` and ``t`` in minutes, ``idf_table``
-        (CSV path), ``peak_position`` (default 0.5), ``path``).
-    base_dir : Path
-        Folder that relative paths are resolved against (the project file's folder).
-    units : UnitSystem
-        The project's unit system.
-    where : str
-        Location for messages, e.g. ``"project.toml:[[storms]] 1"``.
-
-    Raises
-    ------
-    StormError
-        For an unknown kind or key (suggesting the nearest), a missing key, or a bad value.
-    """
-    kind = _kind(spec, where)
-    required, optional = STORM_KINDS[kind]
-    _check_keys(spec, kind, (*_COMMON, *required, *optional), required, where)
-    name = spec.get("name")
-    if name is not None and (not isinstance(name, str) or not name.strip()):
-        raise StormError(f"{where}.name", f"{name!r} is not a name", "give a non-empty text name")
-    h = _BUILDERS[kind](spec, base_dir, units, where, name)
-    warn_if_implausible(h, where)
-    return h
-
-
-def storms_from_config(
-    specs: Sequence[Mapping[str, Any]], *, base_dir: Path, units: UnitSystem, where: str
-) -> list[st.Hyetograph]:
-    """Build every ``[[storms]]`` table; names must be unique.
-
-    Raises
-    ------
-    StormError
-        If there is no storm, any storm is bad, or two storms share a name.
-    """
-    if not specs:
-        raise StormError(where, "has no [[storms]]", "add at least one [[storms]] table")
-    storms, seen = [], {}
-    for i, spec in enumerate(specs, start=1):
-        h = storm_from_config(spec, base_dir=base_dir, units=units, where=f"{where} {i}")
-        if h.name in seen:
-            raise StormError(f"{where} {i}",
-                             f"name {h.name!r} is also used by storm {seen[h.name]}",
-                             "give every storm its own name")
-        seen[h.name] = i
-        storms.append(h)
-    return storms
-
-
-def _kind(spec: Mapping[str, Any], where: str) -> str:
-    if not isinstance(spec, Mapping):
-        raise StormError(where, "is not a table", "write it as a [[storms]] table of keys")
-    kind = spec.get("kind")
-    if kind is None:
-        raise StormError(where, "has no kind", f"add kind = one of {list(STORM_KINDS)}")
-    if not isinstance(kind, str) or kind.strip().lower() not in STORM_KINDS:
-        raise StormError(f"{where}.kind", f"unknown storm kind {kind!r}",
-                         _nearest(str(kind).lower(), list(STORM_KINDS)))
-    return kind.strip().lower()
-
-
-def _check_keys(spec: Mapping[str, Any], kind: str, allowed: Sequence[str],
-                required: Sequence[str], where: str) -> None:
-    for key in spec:
-        if key not in allowed:
-            if key in _ALL_KEYS:
-                raise StormError(f"{where}.{key}", f"does not apply to kind {kind!r}",
-                                 f"remove it; keys for {kind!r} are {sorted(allowed)}")
-            raise StormError(f"{where}.{key}", "is not a storm key", _nearest(key, _ALL_KEYS))
-    for key in required:
-        if key not in spec:
-            raise StormError(where, f"kind {kind!r} needs key {key!r}", f"add {key} = ...")
-
-
-def _number(spec: Mapping[str, Any], key: str, where: str, default: float | None = None, *,
-            low: float = 0.0, high: float = math.inf, strict: bool = True) -> float:
-    value = spec.get(key, default)
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
-    inside = ok and (value > low if strict else value >= low) and value <= high
-    if not inside:
-        rng = f"{'>' if strict else '>='} {low:g}"
-        rng += f" and <= {high:g}" if high < math.inf else ""
-        raise StormError(f"{where}.{key}", f"{value!r} is not a number {rng}", f"set {key} {rng}")
-    return float(value)
-
-
-def _step_s(spec: Mapping[str, Any], where: str, default_min: float) -> float:
-    return _number(spec, "step_min", where, default_min) * 60.0
-
-
-def _idf(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str
-         ) -> st.IdfFormula | st.IdfTable:
-    if ("idf" in spec) == ("idf_table" in spec):
-        raise StormError(where, "needs exactly one of idf = {a, b, c} and idf_table",
-                         "give the IDF formula or the path of an IDF table CSV")
-    if "idf_table" in spec:
-        return read_idf_table_csv(_path(spec, "idf_table", base_dir, where))
-    idf = spec["idf"]
-    if not isinstance(idf, Mapping):
-        raise StormError(f"{where}.idf", f"{idf!r} is not a table",
-                         "write idf = {a=..., b=..., c=...}")
-    for key in idf:
-        if key not in ("a", "b", "c"):
-            raise StormError(f"{where}.idf.{key}", "is not an IDF coefficient",
-                             _nearest(key, "abc"))
-    w = f"{where}.idf"
-    a = _number(idf, "a", w)
-    return st.IdfFormula(float(to_si(a, units.rate)), _number(idf, "b", w, strict=False),
-                         _number(idf, "c", w))
-
-
-def _path(spec: Mapping[str, Any], key: str, base_dir: Path, where: str) -> Path:
-    value = spec[key]
-    if not isinstance(value, str) or not value.strip():
-        raise StormError(f"{where}.{key}", f"{value!r} is not a path", "give a file path as text")
-    path = Path(value)
-    return path if path.is_absolute() else Path(base_dir) / path
-
-
-def _build_nrcs(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                name: str | None) -> st.Hyetograph:
-    dist = str(spec["distribution"]).strip().upper()
-    if dist not in st.NRCS_DISTRIBUTIONS:
-        raise StormError(f"{where}.distribution", f"{spec['distribution']!r} is not an NRCS type",
-                         _nearest(dist, list(st.NRCS_DISTRIBUTIONS)))
-    depth = _number(spec, "depth", where)
-    name = name or f"nrcs_24h_{dist}_{depth:g}{units.depth}"
-    return st.nrcs_24h(dist, float(to_si(depth, units.depth)), _step_s(spec, where, 6.0), name=name)
-
-
-def _build_block(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                 name: str | None) -> st.Hyetograph:
-    return _build_from_idf(st.alternating_block, "alternating_block", spec, base_dir, units,
-                           where, name)
-
-
-def _build_chicago(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                   name: str | None) -> st.Hyetograph:
-    return _build_from_idf(st.chicago, "chicago", spec, base_dir, units, where, name)
-
-
-def _build_from_idf(make: Any, kind: str, spec: Mapping[str, Any], base_dir: Path,
-                    units: UnitSystem, where: str, name: str | None) -> st.Hyetograph:
-    """An IDF-based design storm (alternating block or Chicago) from its [[storms]] table."""
-    idf = _idf(spec, base_dir, units, where)
-    duration = _number(spec, "duration_min", where)
-    peak = _number(spec, "peak_position", where, 0.5, high=1.0, strict=False)
-    name = name or f"{kind}_{duration:g}min"
-    return _located(where, lambda: make(
-        idf, duration * 60.0, _step_s(spec, where, 5.0), peak_position=peak, name=name))
-
-
-def _build_uniform(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                   name: str | None) -> st.Hyetograph:
-    depth = _number(spec, "depth", where)
-    duration = _number(spec, "duration_min", where)
-    name = name or f"uniform_{depth:g}{units.depth}_{duration:g}min"
-    return st.uniform(float(to_si(depth, units.depth)), duration * 60.0,
-                      _step_s(spec, where, 5.0), name=name)
-
-
-def _build_file(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                name: str | None) -> st.Hyetograph:
-    return read_hyetograph_csv(_path(spec, "path", base_dir, where), units=units, name=name)
-
-
-def _located(where: str, build: Any) -> st.Hyetograph:
-    """Run a builder and prefix its errors with the project-file location."""
-    try:
-        return build()
-    except StormError as err:
-        if err.where.startswith(where):
-            raise
-        raise StormError(f"{where}", f"{err.where}: {err.problem}", err.fix) from None
-
-
-_BUILDERS = {"nrcs_24h": _build_nrcs, "alternating_block": _build_block,
-             "chicago": _build_chicago, "uniform": _build_uniform, "file": _build_file}

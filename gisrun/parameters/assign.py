@@ -125,7 +125,8 @@ def assign_parameters(
         ``params``: the unit parameter frame of DEVELOPERS.md plus
         ``hydrologic_soil_group`` and ``antecedent_condition``;
         ``provenance``: one row per unit part and parameter with the
-        ``source`` that won (or compact, see ``compact_provenance``); ``warnings``: :class:`GisrunWarning` list.
+        ``source`` that won (or compact, see ``compact_provenance``);
+        ``warnings``: :class:`GisrunWarning` list.
 
     Raises
     ------
@@ -176,7 +177,10 @@ def _named_subcatchments(layers: list[tuple[int, dict[str, Any]]],
     named = {str(layer["subcatchment_id"]) for _, layer in layers
              if layer.get("subcatchment_id") is not None}
     if attributes is not None and "subcatchment_id" in attributes.columns:
-        named.update(attributes["subcatchment_id"].astype(str))
+        # the ids as _apply_attributes matches them (normalized: stripped of spaces)
+        table = normalize_overrides(attributes, where="subcatchment attributes",
+                                    row_names=[f"id={v}" for v in attributes["subcatchment_id"]])
+        named.update(str(v) for v in table["subcatchment_id"] if v is not None)
     return named
 
 
@@ -511,7 +515,9 @@ def _params(rows: pd.DataFrame, values: pd.DataFrame, inverse: np.ndarray) -> pd
                        "hydrologic_soil_group"]].copy()
     for col in PARAMETER_COLUMNS:
         out[col] = values[col].to_numpy(dtype=np.float64)[inverse]
-    out["loss_method"] = values["loss_method"].astype(str).to_numpy(dtype=object)[inverse]
+    out["loss_method"] = pd.Series(
+        values["loss_method"].astype(str).to_numpy(dtype=object)[inverse], index=out.index,
+        dtype=str)
     out["antecedent_condition"] = T.DEFAULT_ANTECEDENT_CONDITION
     return out
 

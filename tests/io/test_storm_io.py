@@ -10,13 +10,8 @@ import pytest
 from numpy.testing import assert_allclose
 
 from gisrun.errors import GisrunWarning, OutputExistsError, StormError
-from gisrun.io.storm import (
-    read_hyetograph_csv,
-    read_idf_table_csv,
-    storm_from_config,
-    storms_from_config,
-    write_hyetograph_csv,
-)
+from gisrun.io.storm import read_hyetograph_csv, read_idf_table_csv, write_hyetograph_csv
+from gisrun.io.storm_config import storm_from_config, storms_from_config
 from gisrun.storm import Hyetograph, nrcs_24h
 from gisrun.units import SI, US
 

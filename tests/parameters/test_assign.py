@@ -314,3 +314,16 @@ def test_shared_work_equals_unit_by_unit_assignment():
                .size().rename("unit_parts").reset_index())
     pd.testing.assert_frame_equal(compact, counted, check_dtype=False)
     assert compact["unit_parts"].sum() == len(whole) * prov["parameter"].nunique()
+
+
+def test_attribute_id_with_spaces_still_names_only_its_subcatchment():
+    # attribute ids are matched after stripping spaces; the shared work must see them the
+    # same way, or " S2" would be spread over S1..S3 (same soil and cover) or lost.
+    # TR-55 (1986) Table 2-2c: meadow, group B -> CN 58
+    table = units(("S1", "B", "meadow", 1.0), ("S2", "B", "meadow", 2.0),
+                  ("S3", "B", "meadow", 3.0))
+    for given in ("S2 ", " S2"):
+        attrs = pd.DataFrame({"subcatchment_id": [given], "curve_number": [77.0]})
+        p, _, _ = assign(table, subcatchment_attributes=attrs, method="curve_number")
+        assert p.set_index("subcatchment_id")["curve_number"].to_dict() == {
+            "S1": 58.0, "S2": 77.0, "S3": 58.0}
