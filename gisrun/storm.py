@@ -1,9 +1,9 @@
 """Storms: the :class:`Hyetograph` type, design storms and resampling to the run step.
 
 A hyetograph is rain depth per interval between time edges that start at 0. Inside gisrun
-everything is SI (s, m, m/s); conversion happens in :mod:`gisrun.io.storm`. Design storms are
-built from their published definitions; every builder conserves depth exactly by working on the
-cumulative depth curve and differencing it.
+everything is SI (s, m, m/s); conversion happens in :mod:`gisrun.io.storm` and
+:mod:`gisrun.io.storm_config`. Design storms are built from their published definitions; every
+builder conserves depth exactly by working on the cumulative depth curve and differencing it.
 
 Rainfall from these storms feeds planning-level runoff estimates only; defer to local codes,
 agency methods and a licensed engineer for design.
