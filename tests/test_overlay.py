@@ -307,6 +307,16 @@ def combined_reference(poly, soil_codes, fine_cover, x0, y_top, fine_cell):
     return {(SOIL[s], COVER[c]): a for (s, c), a in sums.items() if a > 1e-9}
 
 
+def patchy_pair(geotiff, cover_shape, cover_origin, cover_cell):
+    """Patchy soil codes on 20 x 20 cells of 10 m from (X0, Y0), and a patchy 3-class cover."""
+    soil_codes = patchy_codes((20, 20))
+    cover_codes = patchy_codes(cover_shape, n_codes=3)
+    soil = read_class_raster(geotiff(soil_codes, "soil.tif", origin=(X0, Y0), cell=10.0))
+    cover = read_class_raster(geotiff(cover_codes, "cover.tif", origin=cover_origin,
+                                      cell=cover_cell))
+    return soil_codes, cover_codes, soil, cover
+
+
 def unit_dict(units, sid):
     sub = units[units.subcatchment_id == sid]
     return dict(zip(zip(sub.soil_class, sub.cover_class, strict=True), sub.area_m2, strict=True))
@@ -314,11 +324,8 @@ def unit_dict(units, sid):
 
 @pytest.mark.parametrize("cover_cell", [5.0, 10.0, 20.0])
 def test_soil_and_cover_on_nested_grids_are_exact(geotiff, cover_cell):
-    soil_codes = patchy_codes((20, 20))  # 10 m cells
     n = int(200 / cover_cell)
-    cover_codes = patchy_codes((n, n), n_codes=3)
-    soil = read_class_raster(geotiff(soil_codes, "soil.tif", origin=(X0, Y0), cell=10.0))
-    cover = read_class_raster(geotiff(cover_codes, "cover.tif", origin=(X0, Y0), cell=cover_cell))
+    soil_codes, cover_codes, soil, cover = patchy_pair(geotiff, (n, n), (X0, Y0), cover_cell)
     poly = Polygon([(X0 + 13.3, Y0 - 7.1), (X0 + 187.6, Y0 - 33.3), (X0 + 120.2, Y0 - 191.9),
                     (X0 + 9.9, Y0 - 150.5)])
     units, _, notes = compute_unit_areas(frame([poly]), soil, cover, soil_codes=SOIL,
@@ -336,11 +343,8 @@ def test_same_cell_size_shifted_grid_samples_the_cover_at_cell_centres(geotiff):
     # cover cells as large as the soil's but shifted 6 m west and north: the centre of soil
     # cell (r, c) lies in cover cell (r + 1, c + 1), so the areas are those of the soil grid
     # with the cover codes moved by one cell (reference: shapely cell intersections)
-    soil_codes = patchy_codes((20, 20))
-    cover_codes = patchy_codes((22, 22), n_codes=3)
-    soil = read_class_raster(geotiff(soil_codes, "soil.tif", origin=(X0, Y0), cell=10.0))
-    cover = read_class_raster(geotiff(cover_codes, "cover.tif", origin=(X0 - 6.0, Y0 + 6.0),
-                                      cell=10.0))
+    soil_codes, cover_codes, soil, cover = patchy_pair(geotiff, (22, 22), (X0 - 6.0, Y0 + 6.0),
+                                                       10.0)
     poly = Polygon([(X0 + 3.3, Y0 - 7.1), (X0 + 197.6, Y0 - 23.3), (X0 + 150.2, Y0 - 196.9),
                     (X0 + 9.9, Y0 - 120.5)])
     units, _, notes = compute_unit_areas(frame([poly]), soil, cover, soil_codes=SOIL,
@@ -374,11 +378,8 @@ def test_half_cell_shifted_grid_gives_the_same_areas_whatever_is_read_with_it(ge
 
 
 def test_unaligned_grids_stay_within_the_stated_bound(geotiff):
-    soil_codes = patchy_codes((20, 20))
-    cover_codes = patchy_codes((12, 12), n_codes=3)
-    soil = read_class_raster(geotiff(soil_codes, "soil.tif", origin=(X0, Y0), cell=10.0))
-    cover = read_class_raster(geotiff(cover_codes, "cover.tif", origin=(X0 - 7.0, Y0 + 3.0),
-                                      cell=17.0))
+    soil_codes, cover_codes, soil, cover = patchy_pair(geotiff, (12, 12), (X0 - 7.0, Y0 + 3.0),
+                                                       17.0)
     poly = box(X0 + 12.5, Y0 - 180.5, X0 + 170.5, Y0 - 15.5)
     units, cov, notes = compute_unit_areas(frame([poly]), soil, cover, soil_codes=SOIL,
                                            cover_codes=COVER)
