@@ -144,9 +144,8 @@ def assign_parameters(
                           warnings)
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
     all_rows = _expand(units, soils)
-    layers = _layers(overrides, None, classification)
-    attributes = (subcatchment_attributes if subcatchment_attributes is not None
-                  and len(subcatchment_attributes) else None)
+    layers = _layers(overrides, classification)
+    attributes = _attribute_table(subcatchment_attributes)
     # Parameters depend on soil, cover and surface, and on the subcatchment only where a layer
     # names it: work on one row per distinct combination and spread the result back.
     rows, inverse = _distinct_parts(all_rows, _named_subcatchments(layers, attributes))
@@ -171,16 +170,24 @@ def assign_parameters(
     return AssignedParameters(params, provenance, warnings)
 
 
+def _attribute_table(attributes: pd.DataFrame | None) -> pd.DataFrame | None:
+    """Per-subcatchment values normalized like an override table (ids stripped); None if none."""
+    if attributes is None or not len(attributes):
+        return None
+    if "subcatchment_id" not in attributes.columns:
+        raise ParameterError("subcatchment attributes", "have no subcatchment_id column",
+                             "pass one row per subcatchment with its id")
+    names = [f"id={v}" for v in attributes["subcatchment_id"]]
+    return normalize_overrides(attributes, where="subcatchment attributes", row_names=names)
+
+
 def _named_subcatchments(layers: list[tuple[int, dict[str, Any]]],
                          attributes: pd.DataFrame | None) -> set[str]:
-    """Subcatchment ids that an override row or a subcatchment attribute names."""
+    """Subcatchment ids that an override row or a (normalized) attribute table names."""
     named = {str(layer["subcatchment_id"]) for _, layer in layers
              if layer.get("subcatchment_id") is not None}
-    if attributes is not None and "subcatchment_id" in attributes.columns:
-        # the ids as _apply_attributes matches them (normalized: stripped of spaces)
-        table = normalize_overrides(attributes, where="subcatchment attributes",
-                                    row_names=[f"id={v}" for v in attributes["subcatchment_id"]])
-        named.update(str(v) for v in table["subcatchment_id"] if v is not None)
+    if attributes is not None:
+        named.update(str(v) for v in attributes["subcatchment_id"] if v is not None)
     return named
 
 
@@ -370,21 +377,15 @@ def _impervious(ds_m: float) -> dict[str, tuple[object, object]]:
     return out
 
 
-def _layers(overrides: pd.DataFrame | None, attributes: pd.DataFrame | None,
+def _layers(overrides: pd.DataFrame | None,
             classification: str) -> list[tuple[int, dict[str, Any]]]:
-    layers: list[tuple[int, dict[str, Any]]] = []
-    if overrides is not None and len(overrides):
-        table = normalize_overrides(overrides)
-        check_override_labels(table, classification)
-        layers.extend((_rank(row), row) for row in table.to_dict("records"))
-    if attributes is not None and len(attributes):
-        if "subcatchment_id" not in attributes.columns:
-            raise ParameterError("subcatchment attributes", "have no subcatchment_id column",
-                                 "pass one row per subcatchment with its id")
-        names = [f"id={v}" for v in attributes["subcatchment_id"]]
-        table = normalize_overrides(attributes, where="subcatchment attributes", row_names=names)
-        layers.extend((_ATTRIBUTE_RANK, row) for row in table.to_dict("records"))
-    return sorted(layers, key=lambda item: item[0])
+    """Override rows with their precedence rank, lowest first (applied in that order)."""
+    if overrides is None or not len(overrides):
+        return []
+    table = normalize_overrides(overrides)
+    check_override_labels(table, classification)
+    return sorted(((_rank(row), row) for row in table.to_dict("records")),
+                  key=lambda item: item[0])
 
 
 def _rank(row: dict[str, Any]) -> int:
@@ -435,13 +436,12 @@ def _apply(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame, rank
 
 def _apply_attributes(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
                       ranks: pd.DataFrame, attributes: pd.DataFrame) -> None:
-    """Apply per-subcatchment values (the highest rank) by a join on the id, not row by row."""
-    if "subcatchment_id" not in attributes.columns:
-        raise ParameterError("subcatchment attributes", "have no subcatchment_id column",
-                             "pass one row per subcatchment with its id")
-    names = [f"id={v}" for v in attributes["subcatchment_id"]]
-    table = normalize_overrides(attributes, where="subcatchment attributes", row_names=names)
-    table = table.drop_duplicates("subcatchment_id", keep="last").set_index("subcatchment_id")
+    """Apply per-subcatchment values (the highest rank) by a join on the id, not row by row.
+
+    ``attributes`` is the normalized table of :func:`_attribute_table`.
+    """
+    table = attributes.drop_duplicates("subcatchment_id", keep="last").set_index(
+        "subcatchment_id")
     ids = rows["subcatchment_id"].to_numpy(dtype=object)
     position = table.index.get_indexer(ids)
     known = position >= 0

@@ -327,3 +327,9 @@ def test_attribute_id_with_spaces_still_names_only_its_subcatchment():
         p, _, _ = assign(table, subcatchment_attributes=attrs, method="curve_number")
         assert p.set_index("subcatchment_id")["curve_number"].to_dict() == {
             "S1": 58.0, "S2": 77.0, "S3": 58.0}
+
+
+def test_attributes_without_an_id_column_are_a_one_line_error():
+    attrs = pd.DataFrame({"curve_number": [77.0]})
+    with pytest.raises(ParameterError, match="subcatchment attributes.*subcatchment_id column"):
+        assign(units(("S1", "B", "meadow", 1.0)), subcatchment_attributes=attrs)
