@@ -71,9 +71,9 @@ def make_polygons(path: Path, n_cells: int, n_poly: int) -> None:
 
 
 def run_gisrun(tif: str, gpkg: str) -> tuple[float, str]:
+    from gisrun.grid.overlay import compute_unit_areas
     from gisrun.io.raster import read_class_raster
     from gisrun.io.vector import read_subcatchments
-    from gisrun.overlay import compute_unit_areas
 
     gdf = read_subcatchments(gpkg, id_field="subcatchment_id")
     t0 = time.perf_counter()

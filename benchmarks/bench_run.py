@@ -35,8 +35,8 @@ from make_inputs import make_inputs  # noqa: E402
 # keeps the RSS of the parent image the child was forked from.
 MEASURE = """
 import sys, time
-import gisrun.io.output as output
-import gisrun.pipeline as pipeline
+import gisrun.io.geopackage as output
+import gisrun.workflow.pipeline as pipeline
 from gisrun.cli import main
 
 spent = {"engine": 0.0, "append": 0.0}

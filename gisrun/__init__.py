@@ -1,6 +1,6 @@
 """gisrun: infiltration and runoff for every subcatchment, from soil and cover rasters.
 
-The notebook API, step by step (see :mod:`gisrun.pipeline`)::
+The notebook API, step by step (see :mod:`gisrun.workflow.pipeline`)::
 
     import gisrun
     project = gisrun.load_project("demo_catchment")
@@ -16,9 +16,9 @@ from .errors import GisrunError, GisrunWarning
 __version__ = "0.1.0"
 
 from .engine import run_losses  # noqa: E402
+from .grid.overlay import compute_unit_areas
 from .io.vector import read_subcatchments  # noqa: E402
-from .overlay import compute_unit_areas  # noqa: E402
-from .pipeline import (  # noqa: E402
+from .workflow.pipeline import (  # noqa: E402
     CAUTION,
     load_project,
     overlay_inputs,
@@ -27,7 +27,7 @@ from .pipeline import (  # noqa: E402
     run,
     run_storm,
 )
-from .writing import run_and_write, write_outputs  # noqa: E402
+from .workflow.stream import run_and_write, write_outputs
 
 __all__ = [
     "CAUTION",

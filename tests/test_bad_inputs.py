@@ -21,8 +21,6 @@ import numpy as np
 import pyogrio
 import pytest
 from affine import Affine
-from shapely.geometry import LineString, Polygon
-
 from bad_inputs_helpers import (
     X0,
     Y0,
@@ -36,6 +34,7 @@ from bad_inputs_helpers import (
     write_raster,
     write_subcatchments,
 )
+from shapely.geometry import LineString, Polygon
 
 BOTH = ("check", "run")
 
@@ -376,7 +375,7 @@ def test_geographic_polygons_run_with_geodesic_areas(tmp_path, capsys):
 # --- outputs: a full disk, and the checksum rows ----------------------------------------------
 
 def test_full_disk_leaves_no_file_and_keeps_the_earlier_output(tmp_path, capsys, monkeypatch):
-    import gisrun.io.output as output
+    import gisrun.io.geopackage as output
 
     folder = tmp_path / "project"
     make_project(folder)

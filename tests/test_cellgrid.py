@@ -19,9 +19,9 @@ import shapely
 from numpy.testing import assert_allclose
 from shapely.geometry import box
 
-from gisrun import cellgrid
-from gisrun.deliverables import write_cell_rasters
-from gisrun.pipeline import run
+from gisrun.grid import cells as cellgrid
+from gisrun.workflow.pipeline import run
+from gisrun.write.extras import write_cell_rasters
 
 TOML = """
 [project]

@@ -9,8 +9,8 @@ import pandas as pd
 import pytest
 from shapely.geometry import box
 
-from gisrun.chunked import chunk_size_for_budget, plan_chunks
-from gisrun.pipeline import load_project, run
+from gisrun.workflow.chunks import chunk_size_for_budget, plan_chunks
+from gisrun.workflow.pipeline import load_project, run
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 

@@ -11,11 +11,11 @@ import rasterio
 import shapely
 from click.testing import CliRunner
 
-from gisrun import deliverables
 from gisrun.cli.main import cli
-from gisrun.deliverables import ExtrasOptions, extras_folder, write_all, write_cell_rasters
 from gisrun.errors import OutputExistsError
-from gisrun.pipeline import run
+from gisrun.workflow.pipeline import run
+from gisrun.write import extras as deliverables
+from gisrun.write.extras import ExtrasOptions, extras_folder, write_all, write_cell_rasters
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 FAST = ExtrasOptions(maps=False, report=False)

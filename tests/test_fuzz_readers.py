@@ -17,14 +17,14 @@ from typing import Any
 import geopandas as gpd
 import pytest
 import shapely
+from bad_inputs_helpers import PROJECT_TOML, make_project
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from bad_inputs_helpers import PROJECT_TOML, make_project
+from gisrun.config.project import _SCHEMA, load_project
 from gisrun.errors import GisrunError
-from gisrun.io.storm import read_hyetograph_csv
+from gisrun.io.storm_csv import read_hyetograph_csv
 from gisrun.io.vector import read_subcatchments
-from gisrun.project import _SCHEMA, load_project
 from gisrun.units import unit_system
 
 FUZZ = settings(max_examples=30, deadline=None, derandomize=True,

@@ -12,8 +12,8 @@ import pytest
 from numpy.testing import assert_allclose
 from shapely.geometry import box
 
-from gisrun import maps
 from gisrun.engine import run_losses
+from gisrun.present import maps
 
 
 def decoded(png: bytes) -> np.ndarray:

@@ -6,18 +6,17 @@ import textwrap
 
 import numpy as np
 import rasterio
+from conftest import write_polygons
 from rasterio.transform import from_origin
 from rasterio.windows import Window
 from shapely.geometry import box
-
-from conftest import write_polygons
 
 CELL = 10.0
 SCRIPT = textwrap.dedent("""
     import sys, tracemalloc
     from gisrun.io.raster import read_class_raster
     from gisrun.io.vector import read_subcatchments
-    from gisrun.overlay import compute_unit_areas
+    from gisrun.grid.overlay import compute_unit_areas
     soil_path, sub_path = sys.argv[1:3]
     subs = read_subcatchments(sub_path, id_field="code")
     codes = {1: "A", 2: "B", 3: "C", 4: "D"}

@@ -7,8 +7,8 @@ import pytest
 from shapely.geometry import box
 
 from gisrun.errors import OutputError, OutputExistsError
-from gisrun.io.output import atomic_target, write_geopackage
-from gisrun.layers import layer_name
+from gisrun.io.geopackage import atomic_target, write_geopackage
+from gisrun.present.layers import layer_name
 
 
 def layers():

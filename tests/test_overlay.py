@@ -11,10 +11,11 @@ from numpy.testing import assert_allclose
 from pyproj import Geod
 from shapely.geometry import Polygon, box
 
+from gisrun.crs import checked_crs, polygon_area_m2
 from gisrun.errors import CRSError, InputError, RasterError
-from gisrun.geometry import cell_coverage, checked_crs, polygon_area_m2
+from gisrun.grid.coverage import cell_coverage
+from gisrun.grid.overlay import compute_unit_areas
 from gisrun.io.raster import read_class_raster
-from gisrun.overlay import compute_unit_areas
 
 UTM = "EPSG:32617"
 X0, Y0 = 600_000.0, 3_900_000.0  # a site in UTM zone 17N, about 35.2 N 79.9 W

@@ -6,10 +6,10 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-import gisrun.pipeline as pipeline
+import gisrun.workflow.pipeline as pipeline
 from gisrun.errors import GisrunError
 from gisrun.io.overlay_cache import entry_folder, overlay_key
-from gisrun.pipeline import load_project, run
+from gisrun.workflow.pipeline import load_project, run
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 

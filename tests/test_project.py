@@ -2,8 +2,8 @@ from pathlib import Path
 
 import pytest
 
+from gisrun.config.project import load_project
 from gisrun.errors import ProjectFileError
-from gisrun.project import load_project
 
 GOOD = """
 [project]

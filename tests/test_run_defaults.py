@@ -1,10 +1,10 @@
 """Project-wide curve-number and Green-Ampt choices reach every unit, checked against formulas."""
 
 import pytest
-
 from bad_inputs_helpers import edit_toml, make_project
+
 from gisrun.errors import ProjectFileError
-from gisrun.pipeline import load_project, run
+from gisrun.workflow.pipeline import load_project, run
 
 
 def tr55_runoff_in(p_in, s_in, ratio):

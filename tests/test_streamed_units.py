@@ -11,13 +11,13 @@ import pyogrio
 import pytest
 import rasterio
 
-import gisrun.pipeline as pipeline
-from gisrun.deliverables import ExtrasOptions, write_extras
-from gisrun.io.output import write_ranked_table
-from gisrun.layers import _ranked
-from gisrun.pipeline import load_project
+import gisrun.workflow.pipeline as pipeline
+from gisrun.io.geopackage import write_ranked_table
+from gisrun.present.layers import _ranked
 from gisrun.units import SI, US, present_frame, si_frame
-from gisrun.writing import run_and_write
+from gisrun.workflow.pipeline import load_project
+from gisrun.workflow.stream import run_and_write
+from gisrun.write.extras import ExtrasOptions, write_extras
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
@@ -124,7 +124,7 @@ def test_si_frame_undoes_present_frame(system):
 
 
 def test_write_outputs_refuses_a_run_without_its_unit_rows(two_ways, tmp_path):
-    from gisrun.writing import write_outputs
+    from gisrun.workflow.stream import write_outputs
 
     _, _, streamed, _ = two_ways
     with pytest.raises(ValueError, match="streamed its unit rows"):

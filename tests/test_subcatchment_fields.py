@@ -1,10 +1,10 @@
 """Parameter values given as fields of the subcatchment layer override the shipped tables."""
 
 import pytest
-
 from bad_inputs_helpers import edit_toml, make_project, write_subcatchments
+
 from gisrun.errors import ProjectFileError
-from gisrun.pipeline import load_project, run
+from gisrun.workflow.pipeline import load_project, run
 
 
 def curve_number_runoff_in(p_in, cn):

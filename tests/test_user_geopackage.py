@@ -21,8 +21,8 @@ from pandas.testing import assert_frame_equal
 from shapely.geometry import Polygon
 
 from gisrun.errors import OutputError, OutputExistsError
-from gisrun.io.output import write_layers_into_existing
-from gisrun.writing import run_and_write
+from gisrun.io.geopackage import write_layers_into_existing
+from gisrun.workflow.stream import run_and_write
 
 GISRUN_LAYERS = {"runoff_steady", "excess_series", "subcatchment_results", "unit_results",
                  "unit_parameters", "parameter_sources", "coverage", "run_info"}
@@ -122,7 +122,7 @@ def test_running_twice_with_overwrite_does_not_double_the_series(tmp_path, proje
 
 
 def test_a_failed_write_leaves_the_user_file_as_it_was(tmp_path, project, monkeypatch):
-    import gisrun.io.output as output
+    import gisrun.io.geopackage as output
 
     user = _user_geopackage(tmp_path / "town.gpkg")
     digest = _sha256(user)

@@ -60,10 +60,10 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
     Beside the GeoPackage, a folder <output stem>_files/ gets cell-level rasters, maps,
     an HTML report and model-input tables.
     """
-    from ..deliverables import ExtrasOptions, extras_folder, write_extras
     from ..errors import OutputExistsError
-    from ..pipeline import CAUTION, load_project
-    from ..writing import run_and_write
+    from ..workflow.pipeline import CAUTION, load_project
+    from ..workflow.stream import run_and_write
+    from ..write.extras import ExtrasOptions, extras_folder, write_extras
     from .progress import progress_display
 
     loaded = load_project(project)
@@ -77,8 +77,8 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
             raise OutputExistsError(str(path), "already exists",
                                     "pass --overwrite or choose another output path")
     if plot_ids and not no_extras:  # a wrong id fails before the work, not after it
-        from ..deliverables import check_plot_ids
-        from ..pipeline import read_subcatchment_layer
+        from ..workflow.pipeline import read_subcatchment_layer
+        from ..write.extras import check_plot_ids
 
         check_plot_ids(read_subcatchment_layer(loaded), plot_ids)
     options = ExtrasOptions(rasters=not no_rasters, maps=not no_maps, report=not no_report,
@@ -109,7 +109,7 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
 @project_argument
 def check(project: Path) -> None:
     """Check every input of PROJECT without running it; report each problem on one line."""
-    from ..checks import check_project
+    from ..workflow.check import check_project
 
     problems, notes = check_project(project)
     for note in notes:

@@ -1,6 +1,6 @@
 """``gisrun storm``: make a design storm CSV, or summarise and plot a storm CSV.
 
-Thin over :mod:`gisrun.io.storm` and :mod:`gisrun.io.storm_config`; the options build the
+Thin over :mod:`gisrun.io.storm_csv` and :mod:`gisrun.config.storms`; the options build the
 same table a project file's ``[[storms]]`` holds. Errors are
 :class:`~gisrun.errors.GisrunError` and propagate to the main command, which prints them on one
 line and exits 2.
@@ -15,8 +15,8 @@ from typing import Any
 import click
 import numpy as np
 
-from ..io.storm import read_hyetograph_csv, write_hyetograph_csv
-from ..io.storm_config import storm_from_config
+from ..config.storms import storm_from_config
+from ..io.storm_csv import read_hyetograph_csv, write_hyetograph_csv
 from ..storm import Hyetograph
 from ..units import UnitSystem, from_si, unit_system
 

@@ -25,8 +25,8 @@ from pyproj import CRS
 from rasterio.errors import RasterioIOError
 from rasterio.windows import Window, from_bounds
 
+from ..crs import checked_crs
 from ..errors import GisrunWarning, RasterError
-from ..geometry import checked_crs
 
 __all__ = ["ClassRaster", "read_class_raster"]
 

@@ -18,8 +18,8 @@ import pyogrio
 import shapely
 from pyogrio.errors import DataLayerError, DataSourceError
 
+from ..crs import checked_crs
 from ..errors import GisrunWarning, VectorError
-from ..geometry import checked_crs
 
 __all__ = ["read_subcatchments"]
 

@@ -7,7 +7,7 @@ from click.testing import CliRunner
 
 from gisrun.cli.storm import storm
 from gisrun.errors import StormError
-from gisrun.io.storm import read_hyetograph_csv
+from gisrun.io.storm_csv import read_hyetograph_csv
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
 

@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
+from gisrun.config.storms import storm_from_config, storms_from_config
 from gisrun.errors import GisrunWarning, OutputExistsError, StormError
-from gisrun.io.storm import read_hyetograph_csv, read_idf_table_csv, write_hyetograph_csv
-from gisrun.io.storm_config import storm_from_config, storms_from_config
+from gisrun.io.storm_csv import read_hyetograph_csv, read_idf_table_csv, write_hyetograph_csv
 from gisrun.storm import Hyetograph, nrcs_24h
 from gisrun.units import SI, US
 

@@ -12,7 +12,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TypeVar
 
-from .errors import GisrunError, GisrunWarning
+from ..errors import GisrunError, GisrunWarning
 
 __all__ = ["check_project"]
 

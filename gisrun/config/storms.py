@@ -17,8 +17,13 @@ from typing import Any
 
 from .. import storm as st
 from ..errors import StormError
+from ..io.storm_csv import (
+    nearest_hint,
+    read_hyetograph_csv,
+    read_idf_table_csv,
+    warn_if_implausible,
+)
 from ..units import UnitSystem, to_si
-from .storm import nearest_hint, read_hyetograph_csv, read_idf_table_csv, warn_if_implausible
 
 __all__ = ["storm_from_config", "storms_from_config", "STORM_KINDS"]
 

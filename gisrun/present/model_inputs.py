@@ -1,6 +1,6 @@
 """Model inputs to hand on: per-subcatchment loss parameters and excess-rainfall series.
 
-Compute only (frames in, frames out); :mod:`gisrun.deliverables` writes them
+Compute only (frames in, frames out); :mod:`gisrun.write.extras` writes them
 as CSV and as GeoPackage tables. Columns are our own plain names with units,
 converted to the project's unit system at the end (``_mm``, ``_mm_per_h``,
 ``_m2`` for ``units = "si"``).
@@ -30,7 +30,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .units import UnitSystem, present_frame
+from ..units import UnitSystem, present_frame
 
 __all__ = ["METHOD_COLUMNS", "model_inputs", "model_inputs_si", "join_model_inputs",
            "excess_series_table"]

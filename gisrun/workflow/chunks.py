@@ -188,9 +188,9 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
     """Overlay, parameters and every storm for one chunk of subcatchments."""
     import warnings
 
+    from ..errors import GisrunWarning
+    from ..present.model_inputs import model_inputs_si
     from . import pipeline
-    from .errors import GisrunWarning
-    from .export import model_inputs_si
 
     project = task.project
     inputs = pipeline.Inputs(task.subcatchments, task.soil, task.cover, task.storms,

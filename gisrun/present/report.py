@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .units import present_frame
+from ..units import present_frame
 
 __all__ = ["SECTIONS", "ReportFigures", "build_report"]
 
@@ -61,13 +61,13 @@ def build_report(result: Any, figures: ReportFigures, *, ranking: tuple[pd.DataF
     Parameters
     ----------
     result : RunResult
-        From :func:`gisrun.pipeline.run`.
+        From :func:`gisrun.workflow.pipeline.run`.
     figures : ReportFigures
         Images to embed.
     ranking : (subcatchments, units)
-        From :func:`gisrun.layers.ponding_ranking` (SI columns).
+        From :func:`gisrun.present.layers.ponding_ranking` (SI columns).
     caution : str
-        The caution text (:data:`gisrun.pipeline.CAUTION`).
+        The caution text (:data:`gisrun.workflow.pipeline.CAUTION`).
     files : sequence of str
         Names of the other files written beside the report, listed under provenance.
     top : int

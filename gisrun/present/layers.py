@@ -1,7 +1,7 @@
 """Shape a run's results into the output layers and tables, in the project's units.
 
 Pure data shaping: SI frames in, frames with unit-suffixed columns out
-(:func:`gisrun.units.present_frame`). Writing them is :mod:`gisrun.io.output`'s job.
+(:func:`gisrun.units.present_frame`). Writing them is :mod:`gisrun.io.geopackage`'s job.
 
 Layers of the output GeoPackage:
 
@@ -20,7 +20,7 @@ Layers of the output GeoPackage:
     (earliest first; those that never pond last, rank empty).
 ``model_inputs``
     Per-subcatchment loss parameters of its method, area and impervious share
-    (:func:`gisrun.export.model_inputs`).
+    (:func:`gisrun.present.model_inputs.model_inputs`).
 ``run_info``
     What was run: version, time, method, storms, units, input checksums,
     warnings and the caution.
@@ -33,9 +33,9 @@ from collections.abc import Callable
 import geopandas as gpd
 import pandas as pd
 
-from . import __version__
-from .export import model_inputs
-from .units import present_frame
+from .. import __version__
+from ..units import present_frame
+from .model_inputs import model_inputs
 
 __all__ = [
     "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
@@ -66,14 +66,14 @@ def storm_layer_name(storm_name: str) -> str:
 
 
 def build_layers(result: object) -> dict[str, pd.DataFrame]:
-    """All output layers of a :class:`gisrun.pipeline.RunResult`, in output units."""
+    """All output layers of a :class:`gisrun.workflow.pipeline.RunResult`, in output units."""
     return {name: make() for name, make in layer_builders(result).items()}
 
 
 def layer_builders(result: object, *, skip: tuple[str, ...] = ()
                    ) -> dict[str, Callable[[], pd.DataFrame]]:
     """Layer name -> a function building it, so a writer holds one large layer at a time."""
-    from .pipeline import subcatchment_table
+    from ..workflow.pipeline import subcatchment_table
 
     system = result.project.units
     geoms = result.subcatchments[["subcatchment_id", "geometry"]]
@@ -179,7 +179,7 @@ def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:
 
 def run_info(result: object) -> pd.DataFrame:
     """Key-value table describing the run (provenance), one row per fact."""
-    from .pipeline import CAUTION
+    from ..workflow.pipeline import CAUTION
 
     project = result.project
     rows: list[tuple[str, str]] = [

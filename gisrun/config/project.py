@@ -42,8 +42,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .errors import ProjectFileError
-from .units import UnitSystem, unit_system
+from ..errors import ProjectFileError
+from ..units import UnitSystem, unit_system
 
 __all__ = [
     "PROJECT_FILE_NAMES",
@@ -127,7 +127,7 @@ class Project:
         The run's time step, seconds.
     storms : tuple of dict
         The ``[[storms]]`` tables as written; turned into hyetographs by
-        :func:`gisrun.io.storm_config.storm_from_config`.
+        :func:`gisrun.config.storms.storm_from_config`.
     """
 
     path: Path
@@ -282,7 +282,7 @@ def _optional_path(reader: _Reader, table: Mapping[str, Any], section: str, key:
 
 def _check_class_labels(reader: _Reader, project: Project) -> None:
     """Stop on a code table entry naming a class the parameter tables do not know."""
-    from .parameters._soils import check_cover_labels, check_soil_labels
+    from ..parameters._soils import check_cover_labels, check_soil_labels
 
     for code, label in project.soil.codes.items():
         check_soil_labels([label], project.soil.classification,
@@ -338,7 +338,7 @@ def _storms(reader: _Reader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ..
 
 
 def _method_name(reader: _Reader, method: Mapping[str, Any]) -> str:
-    from .engine import ENGINES  # the registry is the list of valid names
+    from ..engine import ENGINES  # the registry is the list of valid names
 
     name = reader.string(method, "method", "name", default="green_ampt")
     return reader.closest(name.strip().lower(), sorted(ENGINES), "method", "name")

@@ -1,8 +1,8 @@
 """PNG maps and plots from result frames (matplotlib, Agg; reads and writes no files).
 
 Every function returns a :class:`matplotlib.figure.Figure`; :func:`figure_png`
-turns it into PNG bytes, which :mod:`gisrun.deliverables` writes and
-:mod:`gisrun.report` embeds. Colour maps are perceptually uniform and
+turns it into PNG bytes, which :mod:`gisrun.write.extras` writes and
+:mod:`gisrun.present.report` embeds. Colour maps are perceptually uniform and
 colour-blind safe (``cividis``, ``viridis``); legends are classed and carry
 units; maps in a projected CRS get a scale bar and a north arrow (the grid's
 north; correct for north-up grids), and every map names its CRS.

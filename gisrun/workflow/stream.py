@@ -4,7 +4,7 @@
 chunk and appends each chunk's rows to a temporary GeoPackage (the excess
 series always; the unit tables too for large runs), then writes the other
 layers one at a time and moves the file into place. :func:`write_outputs`
-writes the GeoPackage of a :class:`~gisrun.pipeline.RunResult` kept in memory.
+writes the GeoPackage of a :class:`~gisrun.workflow.pipeline.RunResult` kept in memory.
 """
 
 from __future__ import annotations
@@ -13,9 +13,9 @@ from pathlib import Path
 
 import pandas as pd
 
+from ..config.project import Project
+from ..units import present_frame
 from .pipeline import Progress, RunResult, _quiet, load_project, read_storms, run
-from .project import Project
-from .units import present_frame
 
 __all__ = ["write_outputs", "run_and_write"]
 
@@ -44,8 +44,8 @@ def write_outputs(
         If the run streamed its unit rows elsewhere (``run(unit_sink=...)``): they are
         not in ``result`` to write; :func:`run_and_write` writes such runs.
     """
-    from .io.output import write_geopackage
-    from .layers import build_layers
+    from ..io.geopackage import write_geopackage
+    from ..present.layers import build_layers
 
     if result.parameters is None:
         raise ValueError("this run streamed its unit rows to a unit sink and no longer holds "
@@ -56,7 +56,7 @@ def write_outputs(
 
 def _rank_units_in_file(path: Path, result: RunResult) -> None:
     """Write ``ponding_rank_units`` from the streamed ``unit_results`` table, on disk."""
-    from .io.output import write_ranked_table
+    from ..io.geopackage import write_ranked_table
 
     def name(si: str) -> str:
         return present_frame(pd.DataFrame({si: [0.0]}), result.project.units).columns[0]
@@ -99,8 +99,8 @@ def run_and_write(
     OutputExistsError
         If the output (or, with ``into``, a layer name) exists and ``overwrite`` is false.
     """
-    from .io.output import append_table, open_output, write_layers_into
-    from .layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
+    from ..io.geopackage import append_table, open_output, write_layers_into
+    from ..present.layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
 
     if not isinstance(project, Project):
         project = load_project(project)

@@ -25,24 +25,24 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from .aggregate import (
+from ..aggregate import (
     area_weights,
     soil_shares,
     subcatchment_series,
     summarize_subcatchments,
     summarize_units,
 )
-from .engine import LossResult, run_losses
-from .errors import GisrunWarning, ParameterError, RasterError, VectorError
-from .export import join_model_inputs
-from .io.raster import ClassRaster, read_class_raster
-from .io.storm_config import storms_from_config
-from .io.tables import read_parameter_overrides
-from .io.vector import read_subcatchments
-from .overlay import compute_unit_areas
-from .parameters import assign_parameters, composite_parameters
-from .project import Project, load_project
-from .storm import Hyetograph
+from ..config.project import Project, load_project
+from ..config.storms import storms_from_config
+from ..engine import LossResult, run_losses
+from ..errors import GisrunWarning, ParameterError, RasterError, VectorError
+from ..grid.overlay import compute_unit_areas
+from ..io.raster import ClassRaster, read_class_raster
+from ..io.tables import read_parameter_overrides
+from ..io.vector import read_subcatchments
+from ..parameters import assign_parameters, composite_parameters
+from ..present.model_inputs import join_model_inputs
+from ..storm import Hyetograph
 
 __all__ = [
     "CAUTION",
@@ -129,7 +129,8 @@ class RunResult:
     unit_count: int = 0
     #: Units per loss method, most used first.
     method_counts: dict[str, int] = field(default_factory=dict)
-    #: Per-subcatchment parameters for a drainage model, SI (see :mod:`gisrun.export`).
+    #: Per-subcatchment parameters for a drainage model, SI
+    #: (see :mod:`gisrun.present.model_inputs`).
     model_inputs: pd.DataFrame | None = None
 
 
@@ -312,7 +313,7 @@ def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.Dat
 def _check_methods(attrs: pd.DataFrame, project: Project) -> None:
     import difflib
 
-    from .engine import ENGINES
+    from ..engine import ENGINES
 
     for sub_id, name in zip(attrs["subcatchment_id"], attrs["loss_method"], strict=True):
         if name not in ENGINES:
@@ -404,7 +405,7 @@ def run(
     """Read the inputs, overlay, assign parameters and run every storm; write nothing.
 
     The subcatchments are processed in spatially compact chunks sized to the
-    project's memory budget (:mod:`gisrun.chunked`); results are in the
+    project's memory budget (:mod:`gisrun.workflow.chunks`); results are in the
     layer's row order whatever the chunking or the workers.
 
     Parameters
@@ -439,7 +440,7 @@ def run(
     GisrunError
         On any bad input, naming the file, field or value.
     """
-    from .chunked import ChunkTask, execute, plan_chunks, split_overlay
+    from .chunks import ChunkTask, execute, plan_chunks, split_overlay
 
     say = progress or _quiet
     if not isinstance(project, Project):
@@ -482,7 +483,7 @@ def run(
     result = _combine(project, inputs, outputs, started, notes, keep_series=series_sink is None,
                       checksums=checksums)
     if cache_key is not None and cached is None:
-        from .io.overlay_cache import save_overlay
+        from ..io.overlay_cache import save_overlay
 
         overlay_notes = list(dict.fromkeys(n for out in outputs for n in out.overlay_notes))
         save_overlay(project.overlay_cache, cache_key, result.units, result.coverage,
@@ -498,7 +499,7 @@ def _chunk_size(project: Project, inputs: Inputs,
     thrown away) to learn how many units and raster cells a subcatchment brings here; a
     project that fits in one chunk even at a cautious guess is not sampled.
     """
-    from .chunked import ChunkLoad, chunk_size_for_budget, sample_rows
+    from .chunks import ChunkLoad, chunk_size_for_budget, sample_rows
 
     n_steps = max(len(h.resample(project.time_step_s)) for h in inputs.storms)
     subs = inputs.subcatchments
@@ -543,7 +544,7 @@ def _cached_overlay(project: Project, checksums: dict[str, str]
     """(key, stored overlay or None) when the project asks for an overlay cache."""
     if project.overlay_cache is None:
         return None, None
-    from .io.overlay_cache import load_overlay, overlay_key
+    from ..io.overlay_cache import load_overlay, overlay_key
 
     files = [project.subcatchments.path, project.soil.path]
     if project.cover:

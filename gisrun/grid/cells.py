@@ -18,7 +18,7 @@ A cell's value is built in two weightings:
    their areas, as in the subcatchment table.
 2. Across subcatchments: a cell cut by a boundary mixes the subcatchments'
    values by the exact share of the cell each polygon covers
-   (:func:`gisrun.geometry.cell_coverage`).
+   (:func:`gisrun.grid.coverage.cell_coverage`).
 
 Time to ponding is the earliest ponding instant of the cell's pervious parts
 (NaN where none ponds). Soil or cover nodata follows the run's nodata rule:
@@ -38,7 +38,7 @@ import pandas as pd
 import shapely
 from numpy.typing import NDArray
 
-from .geometry import cell_coverage
+from .coverage import cell_coverage
 
 __all__ = ["UnitLookup", "CellPlan", "unit_lookup", "plan_cells", "band_values", "rows_per_band"]
 

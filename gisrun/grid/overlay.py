@@ -34,7 +34,7 @@ subcatchment's total area stays exact).
 CRS: polygons in another CRS than the rasters are transformed to the raster
 CRS (rasters are never resampled); each subcatchment's areas are then scaled
 so that its total equals its own area in its own CRS
-(:func:`gisrun.geometry.polygon_area_m2`), and the scaling is reported.
+(:func:`gisrun.crs.polygon_area_m2`), and the scaling is reported.
 """
 
 from __future__ import annotations
@@ -49,8 +49,9 @@ import shapely
 from numpy.typing import NDArray
 from pyproj import CRS
 
-from .errors import CRSError, InputError, RasterError
-from .geometry import cell_coverage, geodesic_cell_area_m2, linear_unit_m, polygon_area_m2
+from ..crs import geodesic_cell_area_m2, linear_unit_m, polygon_area_m2
+from ..errors import CRSError, InputError, RasterError
+from .coverage import cell_coverage
 
 __all__ = ["compute_unit_areas", "NODATA_RULES", "UNSPECIFIED_COVER"]
 

@@ -10,7 +10,7 @@ at time 0 (or the start clock time) with zero or blank rain marks the storm star
 with ``#`` are comments; ``# name: <storm name>`` names the storm. Steps may be fixed or
 irregular.
 
-The project file's ``[[storms]]`` blocks are built in :mod:`gisrun.io.storm_config`.
+The project file's ``[[storms]]`` blocks are built in :mod:`gisrun.config.storms`.
 
 Storm depths feed planning-level estimates; defer to local codes, agency methods and a licensed
 engineer.

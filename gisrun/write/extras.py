@@ -15,8 +15,8 @@
 Everything is built in a temporary folder beside the target and moved into
 place at the end, so a failed run leaves either the old folder or none, never
 half a folder. This is the only module of these outputs that opens files;
-:mod:`gisrun.cellgrid`, :mod:`gisrun.maps`, :mod:`gisrun.report` and
-:mod:`gisrun.export` compute.
+:mod:`gisrun.grid.cells`, :mod:`gisrun.present.maps`, :mod:`gisrun.present.report` and
+:mod:`gisrun.present.model_inputs` compute.
 """
 
 from __future__ import annotations
@@ -37,11 +37,11 @@ import pandas as pd
 import shapely
 from pyproj import CRS
 
-from . import cellgrid
-from .errors import OutputError, OutputExistsError
-from .io.geotiff import grid_of, read_padded, write_float_rasters
-from .layers import layer_name
-from .units import from_si
+from ..errors import OutputError, OutputExistsError
+from ..grid import cells as cellgrid
+from ..io.geotiff import grid_of, read_padded, write_float_rasters
+from ..present.layers import layer_name
+from ..units import from_si
 
 __all__ = ["Deliverables", "ExtrasOptions", "extras_folder", "staged_folder",
            "check_plot_ids", "cell_unit_results", "write_cell_rasters", "write_deliverables",
@@ -155,9 +155,9 @@ def cell_unit_results(result: Any, gpkg: Path | None = None) -> list[pd.DataFram
             return [_stored_unit_results(gpkg, storm.name, project.units)
                     for storm in result.storms]
         return [storm.units for storm in result.storms]
-    from .aggregate import summarize_units
-    from .engine import run_losses
-    from .pipeline import Inputs, prepare_parameters, read_overrides
+    from ..aggregate import summarize_units
+    from ..engine import run_losses
+    from ..workflow.pipeline import Inputs, prepare_parameters, read_overrides
 
     units_project = dataclasses.replace(project, combine="units")
     inputs = Inputs(subcatchments=result.subcatchments, soil=None, cover=None, storms=[],
@@ -177,7 +177,7 @@ def _stored_unit_results(gpkg: Path, storm: str, system: Any) -> pd.DataFrame:
     """One storm's rows of the GeoPackage's ``unit_results`` table, back in SI columns."""
     import pyogrio
 
-    from .units import present_frame, si_frame
+    from ..units import present_frame, si_frame
 
     si = ["area_m2", "runoff_depth_m", "time_to_ponding_s"]
     shown = present_frame(pd.DataFrame({c: [0.0] for c in si}), system).columns
@@ -192,7 +192,7 @@ def _stored_ranking_top(gpkg: Path, storms: list[str], top: int, system: Any) ->
     """The first ``top`` rows of each storm in the GeoPackage's ``ponding_rank_units`` (SI)."""
     import pyogrio
 
-    from .units import si_frame
+    from ..units import si_frame
 
     frames = []
     for storm in storms:
@@ -228,7 +228,7 @@ def write_cell_rasters(result: Any, folder: Path, *, overwrite: bool = False,
     notes : list of str
         What a user should know (cover sampled at nearest cell).
     """
-    from .pipeline import read_cover, read_soil
+    from ..workflow.pipeline import read_cover, read_soil
 
     project = result.project
     soil, cover = read_soil(project), read_cover(project)
@@ -313,7 +313,7 @@ def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = Ex
     VectorError
         A subcatchment named for plotting does not exist.
     """
-    from .io.output import write_csv
+    from ..io.geopackage import write_csv
 
     say = progress or (lambda *_: None)
     out = Deliverables(folder=folder)
@@ -342,8 +342,8 @@ def write_deliverables(result: Any, folder: Path, *, options: ExtrasOptions = Ex
 
 
 def _model_tables(result: Any, gpkg: Path | None) -> tuple[pd.DataFrame, pd.DataFrame | None]:
-    from .export import excess_series_table
-    from .layers import model_inputs_layer
+    from ..present.layers import model_inputs_layer
+    from ..present.model_inputs import excess_series_table
 
     system = result.project.units
     inputs = model_inputs_layer(result)
@@ -357,7 +357,7 @@ def _copy_table_to_csv(gpkg: Path, table: str, target: Path, batch_rows: int = 5
     import csv
     import sqlite3
 
-    from .io.output import atomic_target
+    from ..io.geopackage import atomic_target
 
     with atomic_target(target, overwrite=True) as tmp, \
             sqlite3.connect(f"file:{gpkg}?mode=ro", uri=True) as con, \
@@ -384,7 +384,7 @@ def check_plot_ids(subcatchments: gpd.GeoDataFrame, named: Sequence[str]) -> lis
     VectorError
         Naming the first id that is not in the layer.
     """
-    from .errors import VectorError
+    from ..errors import VectorError
 
     known = set(subcatchments["subcatchment_id"].astype(str))
     for sid in named:
@@ -396,9 +396,9 @@ def check_plot_ids(subcatchments: gpd.GeoDataFrame, named: Sequence[str]) -> lis
 
 
 def _write_maps(result: Any, out: Deliverables, named: list[str], say: Progress) -> Any:
-    from . import maps
-    from .io.geotiff import read_preview
-    from .report import ReportFigures
+    from ..io.geotiff import read_preview
+    from ..present import maps
+    from ..present.report import ReportFigures
 
     project = result.project
     system = project.units
@@ -466,7 +466,7 @@ def _earliest(storm: Any, n: int) -> list[str]:
 
 
 def _raster_crs(project: Any) -> Any:
-    from .pipeline import read_soil
+    from ..workflow.pipeline import read_soil
 
     return read_soil(project).crs
 
@@ -478,9 +478,9 @@ def _save(png: bytes, path: Path, out: Deliverables, key: str) -> bytes:
 
 
 def _write_report(result: Any, out: Deliverables, figures: Any, gpkg: Path | None) -> Path:
-    from .layers import ponding_ranking
-    from .pipeline import CAUTION
-    from .report import REPORT_TOP, build_report
+    from ..present.layers import ponding_ranking
+    from ..present.report import REPORT_TOP, build_report
+    from ..workflow.pipeline import CAUTION
 
     files = sorted(str(p.relative_to(out.folder)) for p in out.folder.rglob("*") if p.is_file())
     subs, units = ponding_ranking(result)
@@ -531,7 +531,7 @@ def write_all(result: Any, output: str | Path | None = None, *, overwrite: bool 
         If the GeoPackage or the folder exists and ``overwrite`` is false
         (checked before anything is written).
     """
-    from .writing import write_outputs
+    from ..workflow.stream import write_outputs
 
     gpkg = Path(output) if output else result.project.output
     for target in (gpkg, extras_folder(gpkg)):

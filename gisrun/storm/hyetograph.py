@@ -1,8 +1,8 @@
 """Storms: the :class:`Hyetograph` type, design storms and resampling to the run step.
 
 A hyetograph is rain depth per interval between time edges that start at 0. Inside gisrun
-everything is SI (s, m, m/s); conversion happens in :mod:`gisrun.io.storm` and
-:mod:`gisrun.io.storm_config`. Design storms are built from their published definitions; every
+everything is SI (s, m, m/s); conversion happens in :mod:`gisrun.io.storm_csv` and
+:mod:`gisrun.config.storms`. Design storms are built from their published definitions; every
 builder conserves depth exactly by working on the cumulative depth curve and differencing it.
 
 Rainfall from these storms feeds planning-level runoff estimates only; defer to local codes,
@@ -30,7 +30,7 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .errors import StormError
+from ..errors import StormError
 
 __all__ = [
     "Hyetograph",
@@ -224,7 +224,7 @@ def nrcs_24h_table() -> dict[str, FloatArray]:
     .. [2] Chow, V. T., Maidment, D. R. and Mays, L. W. (1988), Applied Hydrology, sec. 14.4
        (tabulated SCS 24-hour rainfall distributions).
     """
-    text = resources.files("gisrun").joinpath("storm_data/nrcs_24h_distributions.csv").read_text()
+    text = resources.files("gisrun.storm").joinpath("data/nrcs_24h_distributions.csv").read_text()
     rows = [r for r in csv.reader(io.StringIO(text)) if r and not r[0].startswith("#")]
     header, values = rows[0], np.array(rows[1:], dtype=np.float64)
     return {name: values[:, j] for j, name in enumerate(header)}

@@ -1,0 +1,1 @@
+"""Reading the project file into a checked, frozen project (SI values, absolute paths)."""

@@ -1,0 +1,1 @@
+"""Grids: exact cell coverage by polygons, class look-up, the overlay and per-cell values."""

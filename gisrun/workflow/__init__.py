@@ -1,0 +1,1 @@
+"""Running a project: the notebook steps, chunks, the whole run and the streamed CLI run."""

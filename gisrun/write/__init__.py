@@ -1,0 +1,1 @@
+"""Writing a finished run: the GeoPackage and the files beside it, drawn from the result."""
