@@ -7,7 +7,8 @@ import pytest
 from shapely.geometry import box
 
 from gisrun.errors import OutputError, OutputExistsError
-from gisrun.io.geopackage import atomic_target, write_geopackage
+from gisrun.io.files import atomic_target
+from gisrun.io.geopackage import write_geopackage
 from gisrun.present.layers import layer_name
 
 

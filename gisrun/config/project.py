@@ -38,11 +38,11 @@ from __future__ import annotations
 import difflib
 import tomllib
 from collections.abc import Mapping
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from ..errors import ProjectFileError
+from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import UnitSystem, unit_system
 
 __all__ = [
@@ -77,89 +77,6 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "parameters": ("overrides",),
     "rain_scale": ("field",),
 }
-
-
-@dataclass(frozen=True)
-class SubcatchmentSource:
-    """Where the subcatchment polygons come from."""
-
-    path: Path
-    id_field: str
-    layer: str | None = None
-    crs: str | None = None
-    method_field: str | None = None
-    parameter_fields: tuple[str, ...] = ()
-
-
-@dataclass(frozen=True)
-class SoilSource:
-    """The soil raster, its code table and the soil choices of the run."""
-
-    path: Path
-    codes: dict[int, str]
-    classification: str = "hydrologic_soil_group"
-    dual_group_condition: str = "undrained"
-    initial_saturation: float = 0.3
-    crs: str | None = None
-    initial_water_content: float | None = None
-
-
-@dataclass(frozen=True)
-class CoverSource:
-    """The land-cover raster and its code table."""
-
-    path: Path
-    codes: dict[int, str]
-    crs: str | None = None
-
-
-@dataclass(frozen=True)
-class Project:
-    """A checked project: every input path absolute, every value in SI.
-
-    Attributes
-    ----------
-    path : Path
-        The project file.
-    units : UnitSystem
-        The unit system of values in the project file and of the outputs.
-    time_step_s : float
-        The run's time step, seconds.
-    storms : tuple of dict
-        The ``[[storms]]`` tables as written; turned into hyetographs by
-        :func:`gisrun.config.storms.storm_from_config`.
-    """
-
-    path: Path
-    name: str
-    units: UnitSystem
-    output: Path
-    time_step_s: float
-    subcatchments: SubcatchmentSource
-    soil: SoilSource
-    cover: CoverSource | None
-    storms: tuple[dict[str, Any], ...]
-    nodata_rule: str = "dominant"
-    max_nodata_fraction: float = 0.25
-    method: str = "green_ampt"
-    combine: str = "units"
-    overrides: Path | None = None
-    rain_scale_field: str | None = None
-    memory_budget_mb: float = 1500.0
-    compare_composite: bool = False
-    initial_abstraction_ratio: float = 0.2
-    antecedent_condition: int = 2
-    overlay_cache: Path | None = None
-    raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
-
-    @property
-    def base_dir(self) -> Path:
-        """The folder relative paths in the project file are taken from."""
-        return self.path.parent
-
-    def where(self, section: str, key: str | None = None) -> str:
-        """Name a place in the project file for an error message."""
-        return f"{self.path.name}:[{section}]" + (f".{key}" if key else "")
 
 
 def find_project_file(path: str | Path) -> Path:
@@ -268,7 +185,6 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         antecedent_condition=int(reader.closest_number(
             method, "method", "antecedent_condition", (1, 2, 3), default=2)),
         overlay_cache=_optional_path(reader, top, "project", "overlay_cache"),
-        raw=raw,
     )
     _check_class_labels(reader, project)
     return project

@@ -40,7 +40,7 @@ so that its total equals its own area in its own CRS
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any, Literal, Protocol
+from typing import Any, Literal
 
 import geopandas as gpd
 import numpy as np
@@ -51,6 +51,7 @@ from pyproj import CRS
 
 from ..crs import geodesic_cell_area_m2, linear_unit_m, polygon_area_m2
 from ..errors import CRSError, InputError, RasterError
+from .classes import ClassGrid
 from .coverage import cell_coverage
 
 __all__ = ["compute_unit_areas", "NODATA_RULES", "UNSPECIFIED_COVER"]
@@ -58,20 +59,6 @@ __all__ = ["compute_unit_areas", "NODATA_RULES", "UNSPECIFIED_COVER"]
 NODATA_RULES = ("error", "dominant", "omit")
 UNSPECIFIED_COVER = "unspecified"
 _OUTSIDE, _NODATA = 0, 1  # class indices before the real (soil x cover) classes
-
-
-class ClassGrid(Protocol):
-    """What the overlay needs from a class raster (see ``gisrun.io.raster.ClassRaster``)."""
-
-    crs: CRS
-    transform: Any
-    width: int
-    height: int
-    nodata: float | None
-    where: str
-
-    def read_window(self, window: Any) -> tuple[NDArray[Any], Any]:
-        """Read ((row_start, row_stop), (col_start, col_stop)), clipped to the raster."""
 
 
 def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid,

@@ -3,7 +3,7 @@
 Rasters are tiled (256 x 256), DEFLATE-compressed float32 with the grid of a
 reference raster (CRS, transform, size, nodata). Each is written to a
 temporary file beside its target and moved into place only when complete
-(:func:`gisrun.io.geopackage.atomic_target`).
+(:func:`gisrun.io.files.atomic_target`).
 """
 
 from __future__ import annotations
@@ -20,7 +20,7 @@ from numpy.typing import NDArray
 from rasterio.enums import Resampling
 from rasterio.windows import Window
 
-from .geopackage import atomic_target
+from .files import atomic_target
 
 __all__ = ["GridSpec", "write_float_rasters", "read_padded", "read_preview", "DEFAULT_NODATA"]
 

@@ -22,11 +22,8 @@ half a folder. This is the only module of these outputs that opens files;
 from __future__ import annotations
 
 import dataclasses
-import os
 import shutil
-import tempfile
 from collections.abc import Callable, Iterator, Sequence
-from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -37,13 +34,14 @@ import pandas as pd
 import shapely
 from pyproj import CRS
 
-from ..errors import OutputError, OutputExistsError
+from ..errors import OutputExistsError
 from ..grid import cells as cellgrid
+from ..io.files import staged_folder
 from ..io.geotiff import grid_of, read_padded, write_float_rasters
 from ..present.layers import layer_name
 from ..units import from_si
 
-__all__ = ["Deliverables", "ExtrasOptions", "extras_folder", "staged_folder",
+__all__ = ["Deliverables", "ExtrasOptions", "extras_folder",
            "check_plot_ids", "cell_unit_results", "write_cell_rasters", "write_deliverables",
            "write_extras",
            "write_all"]
@@ -90,53 +88,6 @@ def extras_folder(gpkg: str | Path) -> Path:
     """``<output stem>_files`` beside the GeoPackage."""
     gpkg = Path(gpkg)
     return gpkg.with_name(f"{gpkg.stem}_files")
-
-
-@contextmanager
-def staged_folder(target: Path, *, overwrite: bool) -> Iterator[Path]:
-    """Yield an empty temporary folder beside ``target``; move it onto ``target`` on success.
-
-    Raises
-    ------
-    OutputExistsError
-        If ``target`` exists and ``overwrite`` is false.
-    OutputError
-        If the folder cannot be created or moved.
-    """
-    if target.exists() and not overwrite:
-        raise OutputExistsError(str(target), "already exists",
-                                "pass --overwrite or choose another output path")
-    try:
-        target.parent.mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".partial",
-                                    dir=target.parent))
-    except OSError as err:
-        raise OutputError(str(target.parent), f"cannot be written ({err.strerror or err})",
-                          "choose a folder you can write to") from None
-    try:
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o777 & ~umask)  # mkdtemp makes it private; give it a normal folder's mode
-        yield tmp
-        _swap_in(tmp, target)
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
-
-
-def _swap_in(tmp: Path, target: Path) -> None:
-    old = None
-    try:
-        if target.exists():
-            old = target.with_name(f".{target.name}.{os.getpid()}.old")
-            os.replace(target, old)
-        os.replace(tmp, target)
-    except OSError as err:
-        if old is not None and not target.exists():
-            os.replace(old, target)
-        raise OutputError(str(target), f"could not be moved into place ({err.strerror or err})",
-                          "check permissions of the output folder, then run again") from None
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
 
 
 def cell_unit_results(result: Any, gpkg: Path | None = None) -> list[pd.DataFrame]:
@@ -357,7 +308,7 @@ def _copy_table_to_csv(gpkg: Path, table: str, target: Path, batch_rows: int = 5
     import csv
     import sqlite3
 
-    from ..io.geopackage import atomic_target
+    from ..io.files import atomic_target
 
     with atomic_target(target, overwrite=True) as tmp, \
             sqlite3.connect(f"file:{gpkg}?mode=ro", uri=True) as con, \

@@ -1,0 +1,98 @@
+"""What a project is: the checked, frozen settings of a run (every path absolute, SI values).
+
+Built from a project file by :func:`gisrun.config.project.load_project`; this
+module holds only the types, so compute and result modules can name a
+:class:`Project` without reaching the file reader.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from .units import UnitSystem
+
+__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "Project"]
+
+
+@dataclass(frozen=True)
+class SubcatchmentSource:
+    """Where the subcatchment polygons come from."""
+
+    path: Path
+    id_field: str
+    layer: str | None = None
+    crs: str | None = None
+    method_field: str | None = None
+    parameter_fields: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class SoilSource:
+    """The soil raster, its code table and the soil choices of the run."""
+
+    path: Path
+    codes: dict[int, str]
+    classification: str = "hydrologic_soil_group"
+    dual_group_condition: str = "undrained"
+    initial_saturation: float = 0.3
+    crs: str | None = None
+    initial_water_content: float | None = None
+
+
+@dataclass(frozen=True)
+class CoverSource:
+    """The land-cover raster and its code table."""
+
+    path: Path
+    codes: dict[int, str]
+    crs: str | None = None
+
+
+@dataclass(frozen=True)
+class Project:
+    """A checked project: every input path absolute, every value in SI.
+
+    Attributes
+    ----------
+    path : Path
+        The project file.
+    units : UnitSystem
+        The unit system of values in the project file and of the outputs.
+    time_step_s : float
+        The run's time step, seconds.
+    storms : tuple of dict
+        The ``[[storms]]`` tables as written; turned into hyetographs by
+        :func:`gisrun.config.storms.storm_from_config`.
+    """
+
+    path: Path
+    name: str
+    units: UnitSystem
+    output: Path
+    time_step_s: float
+    subcatchments: SubcatchmentSource
+    soil: SoilSource
+    cover: CoverSource | None
+    storms: tuple[dict[str, Any], ...]
+    nodata_rule: str = "dominant"
+    max_nodata_fraction: float = 0.25
+    method: str = "green_ampt"
+    combine: str = "units"
+    overrides: Path | None = None
+    rain_scale_field: str | None = None
+    memory_budget_mb: float = 1500.0
+    compare_composite: bool = False
+    initial_abstraction_ratio: float = 0.2
+    antecedent_condition: int = 2
+    overlay_cache: Path | None = None
+
+    @property
+    def base_dir(self) -> Path:
+        """The folder relative paths in the project file are taken from."""
+        return self.path.parent
+
+    def where(self, section: str, key: str | None = None) -> str:
+        """Name a place in the project file for an error message."""
+        return f"{self.path.name}:[{section}]" + (f".{key}" if key else "")
