@@ -36,7 +36,7 @@ from make_inputs import make_inputs  # noqa: E402
 MEASURE = """
 import sys, time
 import gisrun.io.geopackage as output
-import gisrun.workflow.pipeline as pipeline
+import gisrun.workflow.steps as steps
 from gisrun.cli import main
 
 spent = {"engine": 0.0, "append": 0.0}
@@ -50,7 +50,7 @@ def timed(fn, key):
             spent[key] += time.perf_counter() - start
     return wrapper
 
-pipeline.run_losses = timed(pipeline.run_losses, "engine")  # the loss engine, every chunk
+steps.run_losses = timed(steps.run_losses, "engine")  # the loss engine, every chunk
 output.append_table = timed(output.append_table, "append")  # rows streamed into the output
 t = time.perf_counter()
 code = main(sys.argv[1:])

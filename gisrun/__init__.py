@@ -1,6 +1,6 @@
 """gisrun: infiltration and runoff for every subcatchment, from soil and cover rasters.
 
-The notebook API, step by step (see :mod:`gisrun.workflow.pipeline`)::
+The notebook API, step by step (see :mod:`gisrun.workflow.steps`)::
 
     import gisrun
     project = gisrun.load_project("demo_catchment")
@@ -11,28 +11,28 @@ Results are planning-level estimates: check them against local codes and agency
 methods and have them reviewed by a licensed engineer.
 """
 
+from ._version import __version__
+from .config.project import load_project
+from .engine import run_losses
 from .errors import GisrunError, GisrunWarning
-
-__version__ = "0.1.0"
-
-from .engine import run_losses  # noqa: E402
 from .grid.overlay import compute_unit_areas
-from .io.vector import read_subcatchments  # noqa: E402
-from .workflow.pipeline import (  # noqa: E402
-    CAUTION,
-    load_project,
-    overlay_inputs,
-    prepare_parameters,
-    read_inputs,
-    run,
-    run_storm,
-)
-from .workflow.stream import run_and_write, write_outputs
+from .io.vector import read_subcatchments
+from .model import CAUTION, Inputs, RunResult, StormResult
+from .workflow.inputs import read_inputs
+from .workflow.pipeline import run
+from .workflow.steps import overlay_inputs, prepare_parameters, run_storm
+from .workflow.stream import run_and_write
+from .write.extras import ExtrasOptions, write_extras
+from .write.geopackage import write_outputs
 
 __all__ = [
     "CAUTION",
+    "ExtrasOptions",
     "GisrunError",
     "GisrunWarning",
+    "Inputs",
+    "RunResult",
+    "StormResult",
     "__version__",
     "compute_unit_areas",
     "load_project",
@@ -41,8 +41,9 @@ __all__ = [
     "read_inputs",
     "read_subcatchments",
     "run",
+    "run_and_write",
     "run_losses",
     "run_storm",
+    "write_extras",
     "write_outputs",
-    "run_and_write",
 ]

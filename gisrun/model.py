@@ -50,13 +50,13 @@ class GridSpec:
 class CellRasters:
     """Cell-level values of every storm on the soil raster's grid.
 
-    One ``(height, width)`` float32 array per storm, in the run's storm order; NaN
+    One ``(height, width)`` array per storm, in the run's storm order; NaN
     where a cell has no value (outside every subcatchment, or nodata).
     """
 
     grid: GridSpec
-    runoff_depth_m: tuple[NDArray[np.float32], ...]
-    time_to_ponding_s: tuple[NDArray[np.float32], ...]
+    runoff_depth_m: tuple[NDArray[np.float64], ...]
+    time_to_ponding_s: tuple[NDArray[np.float64], ...]
     #: What a reader should know about how the cells were filled.
     notes: tuple[str, ...] = ()
 
@@ -70,6 +70,8 @@ class Inputs:
     cover: ClassGrid | None
     storms: tuple[Hyetograph, ...]
     overrides: pd.DataFrame | None = None
+    #: Warnings raised while reading (repaired polygons, implausible storms), as text.
+    notes: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)

@@ -91,7 +91,7 @@ def test_run_storm_summary_equals_a_fresh_summary_of_its_losses():
     # run_storm hands the series' excess (subcatchments x steps) to the summary instead of
     # recomputing it; the summary must equal one computed from the losses alone
     from gisrun.storm import Hyetograph
-    from gisrun.workflow.pipeline import run_storm
+    from gisrun.workflow.steps import run_storm
 
     rng = np.random.default_rng(3)
     params = pd.DataFrame({"subcatchment_id": ["a", "b", "a", "c", "b", "c", "a"],

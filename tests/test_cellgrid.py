@@ -19,9 +19,9 @@ import shapely
 from numpy.testing import assert_allclose
 from shapely.geometry import box
 
+from gisrun import run
 from gisrun.grid import cells as cellgrid
-from gisrun.workflow.pipeline import run
-from gisrun.write.extras import write_cell_rasters
+from gisrun.write.rasters import write_cell_rasters
 
 TOML = """
 [project]
@@ -107,7 +107,8 @@ def tiny_project(folder: Path, *, combine: str = "units", rain_scale: tuple[floa
 def tiny(tmp_path_factory):
     folder = tmp_path_factory.mktemp("tiny")
     result = run(tiny_project(folder / "p", rain_scale=(1.0, 1.5)))
-    paths, notes = write_cell_rasters(result, folder / "rasters")
+    paths = write_cell_rasters(result, folder / "rasters")
+    notes = list(result.cells.notes)
     return result, paths["uniform_60mm"], notes
 
 
@@ -196,7 +197,7 @@ def patchy_project(folder: Path) -> Path:
 
 def test_area_weighted_cells_match_each_subcatchment_within_one_percent(tmp_path):
     result = run(patchy_project(tmp_path / "p"))
-    paths, _ = write_cell_rasters(result, tmp_path / "rasters")
+    paths = write_cell_rasters(result, tmp_path / "rasters")
     runoff, prof = read(paths["uniform_60mm"]["runoff"])
     subs = result.storms[0].subcatchments.set_index("subcatchment_id")
     for sid, geom in zip(result.subcatchments.subcatchment_id, result.subcatchments.geometry,
@@ -221,7 +222,7 @@ def test_composite_runs_still_map_soil_and_cover_units(tmp_path):
     """With combine = "composite" the rasters still show the units (run here per unit)."""
     result = run(tiny_project(tmp_path / "p", combine="composite"))
     units_result = run(tiny_project(tmp_path / "q"))
-    paths, _ = write_cell_rasters(result, tmp_path / "rasters")
+    paths = write_cell_rasters(result, tmp_path / "rasters")
     runoff, _ = read(paths["uniform_60mm"]["runoff"])
     assert_allclose(runoff[2, 0] / 1000, unit(units_result, "P1", "A", "open_space_good"),
                     rtol=1e-6)
@@ -230,7 +231,8 @@ def test_composite_runs_still_map_soil_and_cover_units(tmp_path):
 
 def test_unaligned_cover_is_sampled_at_the_cell_centre_and_says_so(tmp_path):
     result = run(tiny_project(tmp_path / "p", cover_origin=(2.5, 40.0)))
-    paths, notes = write_cell_rasters(result, tmp_path / "rasters")
+    paths = write_cell_rasters(result, tmp_path / "rasters")
+    notes = list(result.cells.notes)
     assert any("centre" in n for n in notes)
     runoff, _ = read(paths["uniform_60mm"]["runoff"])
     # soil cell (2, 0) centre x = 5 m lies in cover column 0 (x 2.5-7.5): open space

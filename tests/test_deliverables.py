@@ -11,11 +11,12 @@ import rasterio
 import shapely
 from click.testing import CliRunner
 
+from gisrun import run, write_outputs
 from gisrun.cli.main import cli
 from gisrun.errors import OutputExistsError
-from gisrun.workflow.pipeline import run
 from gisrun.write import extras as deliverables
-from gisrun.write.extras import ExtrasOptions, extras_folder, write_all, write_cell_rasters
+from gisrun.write.extras import ExtrasOptions, extras_folder, write_extras
+from gisrun.write.rasters import write_cell_rasters
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 FAST = ExtrasOptions(maps=False, report=False)
@@ -26,6 +27,12 @@ def tiny_result(tmp_path_factory):
     from test_cellgrid import tiny_project
 
     return run(tiny_project(tmp_path_factory.mktemp("deliv") / "p"))
+
+
+def write_all(result, gpkg, *, options, overwrite=False):
+    """The GeoPackage, then the folder beside it, as a notebook user writes them."""
+    write_outputs(result, output=gpkg, overwrite=overwrite)
+    return gpkg, write_extras(result, gpkg, overwrite=overwrite, options=options)
 
 
 def test_layout_beside_the_geopackage(tiny_result, tmp_path):
@@ -45,9 +52,10 @@ def test_existing_folder_is_kept_without_overwrite_and_replaced_with_it(tiny_res
     folder = extras_folder(tmp_path / "out.gpkg")
     folder.mkdir()
     (folder / "old.txt").write_text("old")
+    write_outputs(tiny_result, output=tmp_path / "out.gpkg")
     with pytest.raises(OutputExistsError, match="out_files"):
-        write_all(tiny_result, tmp_path / "out.gpkg", options=FAST)
-    assert (folder / "old.txt").exists() and not (tmp_path / "out.gpkg").exists()
+        write_extras(tiny_result, tmp_path / "out.gpkg", options=FAST)
+    assert (folder / "old.txt").exists()
     write_all(tiny_result, tmp_path / "out.gpkg", options=FAST, overwrite=True)
     assert not (folder / "old.txt").exists() and (folder / "model_inputs.csv").exists()
 
@@ -60,7 +68,7 @@ def test_failure_midway_leaves_the_old_folder_and_no_partial_one(tiny_result, tm
     def broken(*args, **kwargs):
         raise RuntimeError("disk full")
 
-    monkeypatch.setattr(deliverables, "_model_tables", broken)
+    monkeypatch.setattr(deliverables, "_write_series_csv", broken)
     with pytest.raises(RuntimeError):
         deliverables.write_extras(tiny_result, tmp_path / "out.gpkg", overwrite=True,
                                   options=FAST)
@@ -94,7 +102,7 @@ def test_demo_cells_area_weighted_match_the_subcatchment_table(tmp_path):
     cover of each cell (shapely), within 1% of its own runoff depth (or, for the few with
     little runoff, within 0.05% of the rain: a cut cell carries one value for its parts)."""
     result = run(DEMO)
-    paths, _ = write_cell_rasters(result, tmp_path)
+    paths = write_cell_rasters(result, tmp_path)
     coverage = result.coverage.set_index("subcatchment_id")
     with rasterio.open(paths[result.storms[0].name]["runoff"]) as src:
         t, shape = src.transform, src.shape

@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
+from gisrun import load_project, run
 from gisrun.engine import ENGINES
-from gisrun.workflow.pipeline import load_project, run
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 

@@ -9,11 +9,10 @@ import pytest
 from numpy.testing import assert_allclose
 from pandas.testing import assert_frame_equal
 
+from gisrun import run, write_outputs
 from gisrun.io.geopackage import write_csv
 from gisrun.present.model_inputs import excess_series_table, model_inputs
 from gisrun.units import SI, US
-from gisrun.workflow.pipeline import run
-from gisrun.workflow.stream import write_outputs
 
 
 def parts(method: str) -> pd.DataFrame:

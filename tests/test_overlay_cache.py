@@ -6,10 +6,10 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-import gisrun.workflow.pipeline as pipeline
+import gisrun.workflow.chunks as chunks
+from gisrun import load_project, run
 from gisrun.errors import GisrunError
 from gisrun.io.overlay_cache import entry_folder, overlay_key
-from gisrun.workflow.pipeline import load_project, run
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
@@ -39,7 +39,7 @@ def test_second_run_reads_the_overlay_and_gives_the_same_results(demo, tmp_path,
     def no_overlay(*args, **kwargs):
         raise AssertionError("the overlay ran although it was cached")
 
-    monkeypatch.setattr(pipeline, "overlay_inputs", no_overlay)
+    monkeypatch.setattr(chunks, "overlay_inputs", no_overlay)
     said = []
     second = run(project, progress=said.append)
     assert any("overlay read from the cache" in s for s in said)

@@ -12,10 +12,10 @@ import matplotlib.image as mpimg
 import numpy as np
 import pytest
 
+from gisrun import CAUTION, run
 from gisrun.present import maps
 from gisrun.present.layers import ponding_ranking
 from gisrun.present.report import SECTIONS, ReportFigures, build_report
-from gisrun.workflow.pipeline import CAUTION, run
 
 
 class Collect(HTMLParser):

@@ -3,8 +3,8 @@
 import pytest
 from bad_inputs_helpers import edit_toml, make_project
 
+from gisrun import load_project, run
 from gisrun.errors import ProjectFileError
-from gisrun.workflow.pipeline import load_project, run
 
 
 def tr55_runoff_in(p_in, s_in, ratio):

@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 from pathlib import Path
 
 import click
 
-from .. import __version__
+from .._version import __version__
 from ..errors import GisrunError
 from . import summary
 
@@ -60,8 +61,9 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
     Beside the GeoPackage, a folder <output stem>_files/ gets cell-level rasters, maps,
     an HTML report and model-input tables.
     """
+    from ..config.project import load_project
     from ..errors import OutputExistsError
-    from ..workflow.pipeline import CAUTION, load_project
+    from ..model import CAUTION
     from ..workflow.stream import run_and_write
     from ..write.extras import ExtrasOptions, extras_folder, write_extras
     from .progress import progress_display
@@ -77,7 +79,7 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
             raise OutputExistsError(str(path), "already exists",
                                     "pass --overwrite or choose another output path")
     if plot_ids and not no_extras:  # a wrong id fails before the work, not after it
-        from ..workflow.pipeline import read_subcatchment_layer
+        from ..workflow.inputs import read_subcatchment_layer
         from ..write.extras import check_plot_ids
 
         check_plot_ids(read_subcatchment_layer(loaded), plot_ids)
@@ -91,7 +93,8 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
         extras = None if no_extras else write_extras(result, written, overwrite=overwrite,
                                                      options=options, progress=show.advance)
     if extras is not None:
-        result.warnings.extend(n for n in extras.notes if n not in result.warnings)
+        result = dataclasses.replace(result, warnings=tuple(dict.fromkeys(
+            [*result.warnings, *extras.notes])))
     if as_json:
         doc = summary.as_dict(result, written)
         doc["extras"] = extras.as_dict() if extras is not None else None

@@ -45,7 +45,7 @@ def _storm_rows(result: Any) -> list[dict[str, Any]]:
 
 def as_dict(result: Any, written: Path) -> dict[str, Any]:
     """A JSON-ready summary of a run."""
-    from ..workflow.pipeline import CAUTION
+    from ..model import CAUTION
 
     return {
         "output": str(written),

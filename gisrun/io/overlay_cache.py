@@ -27,7 +27,7 @@ from typing import Any
 
 import pandas as pd
 
-from .. import __version__
+from .._version import __version__
 from ..errors import OutputError
 
 __all__ = ["overlay_key", "load_overlay", "save_overlay", "entry_folder"]

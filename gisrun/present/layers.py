@@ -33,7 +33,9 @@ from collections.abc import Callable
 import geopandas as gpd
 import pandas as pd
 
-from .. import __version__
+from .._version import __version__
+from ..aggregate import soil_shares
+from ..model import CAUTION, RunResult, StormResult
 from ..units import present_frame
 from .model_inputs import model_inputs
 
@@ -65,6 +67,15 @@ def storm_layer_name(storm_name: str) -> str:
     return layer_name(f"runoff_{storm_name}")
 
 
+def subcatchment_table(result: RunResult, storm: StormResult) -> pd.DataFrame:
+    """Subcatchment results of one storm with polygon area and soil shares (SI columns)."""
+    subs = storm.subcatchments.merge(
+        result.coverage, on="subcatchment_id", how="left", suffixes=("", "_coverage")
+    )
+    shares = soil_shares(result.units, subs["subcatchment_id"])
+    return subs.merge(shares, on="subcatchment_id", how="left")
+
+
 def build_layers(result: object) -> dict[str, pd.DataFrame]:
     """All output layers of a :class:`gisrun.workflow.pipeline.RunResult`, in output units."""
     return {name: make() for name, make in layer_builders(result).items()}
@@ -73,8 +84,6 @@ def build_layers(result: object) -> dict[str, pd.DataFrame]:
 def layer_builders(result: object, *, skip: tuple[str, ...] = ()
                    ) -> dict[str, Callable[[], pd.DataFrame]]:
     """Layer name -> a function building it, so a writer holds one large layer at a time."""
-    from ..workflow.pipeline import subcatchment_table
-
     system = result.project.units
     geoms = result.subcatchments[["subcatchment_id", "geometry"]]
 
@@ -179,8 +188,6 @@ def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:
 
 def run_info(result: object) -> pd.DataFrame:
     """Key-value table describing the run (provenance), one row per fact."""
-    from ..workflow.pipeline import CAUTION
-
     project = result.project
     rows: list[tuple[str, str]] = [
         ("gisrun_version", __version__),

@@ -12,7 +12,22 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TypeVar
 
+import geopandas as gpd
+
+from ..config.project import load_project
 from ..errors import GisrunError, GisrunWarning
+from ..io.raster import ClassRaster
+from ..model import Inputs
+from ..project import Project
+from .inputs import (
+    check_raster_codes,
+    read_cover,
+    read_overrides,
+    read_soil,
+    read_storms,
+    read_subcatchment_layer,
+)
+from .steps import overlay_inputs, prepare_parameters
 
 __all__ = ["check_project"]
 
@@ -34,26 +49,22 @@ def check_project(path: str | Path) -> tuple[list[str], list[str]]:
     notes : list of str
         Warnings raised while checking.
     """
-    from . import pipeline
-
     problems: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
-        project = _attempt(problems, pipeline.load_project, path)
+        project = _attempt(problems, load_project, path)
         later = _check_inputs(project, problems) if project is not None else []
     notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     return problems, list(dict.fromkeys([*notes, *later]))
 
 
-def _check_inputs(project: Any, problems: list[str]) -> list[str]:
+def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     """Run every reader and the overlay and parameter steps; return their notes."""
-    from . import pipeline
-
-    subs = _attempt(problems, pipeline.read_subcatchment_layer, project)
-    soil = _attempt(problems, pipeline.read_soil, project)
-    cover = _attempt(problems, pipeline.read_cover, project)
-    storms = _attempt(problems, pipeline.read_storms, project)
-    overrides = _attempt(problems, pipeline.read_overrides, project)
+    subs = _attempt(problems, read_subcatchment_layer, project)
+    soil = _attempt(problems, read_soil, project)
+    cover = _attempt(problems, read_cover, project)
+    storms = _attempt(problems, read_storms, project)
+    overrides = _attempt(problems, read_overrides, project)
     codes_ok = soil is not None and _check_codes(problems, soil, subs, project.soil.codes,
                                                  project.where("soil"))
     if project.cover is not None and cover is not None:
@@ -62,19 +73,17 @@ def _check_inputs(project: Any, problems: list[str]) -> list[str]:
     missing_cover = project.cover is not None and cover is None
     if subs is None or missing_cover or storms is None or not codes_ok:
         return []
-    inputs = pipeline.Inputs(subs, soil, cover, storms, overrides)
-    overlaid = _attempt(problems, pipeline.overlay_inputs, project, inputs)
+    inputs = Inputs(subs, soil, cover, storms, overrides)
+    overlaid = _attempt(problems, overlay_inputs, project, inputs)
     if overlaid is None:
         return []
-    prepared = _attempt(problems, pipeline.prepare_parameters, project, inputs, overlaid[0])
+    prepared = _attempt(problems, prepare_parameters, project, inputs, overlaid[0])
     notes = [*overlaid[2], *(prepared[2] if prepared is not None else [])]
     return [str(note) for note in notes]
 
 
-def _check_codes(problems: list[str], raster: Any, subs: Any, codes: dict[int, str],
-                 where: str) -> bool:
-    from .pipeline import check_raster_codes
-
+def _check_codes(problems: list[str], raster: ClassRaster, subs: gpd.GeoDataFrame | None,
+                 codes: dict[int, str], where: str) -> bool:
     return _attempt(problems, check_raster_codes, raster, subs, codes, where) is not None
 
 

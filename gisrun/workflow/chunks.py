@@ -13,13 +13,31 @@ and are put back in the layer's row order.
 
 from __future__ import annotations
 
+import dataclasses
+import warnings
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
-from typing import Any
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+from numpy.typing import NDArray
+
+from ..engine import LossResult
+from ..errors import GisrunWarning
+from ..grid.classes import ClassGrid
+from ..model import Inputs, StormResult
+from ..present.model_inputs import model_inputs_si
+from ..project import Project
+from ..storm import Hyetograph
+from .cells import slim_unit_results
+from .steps import (
+    add_composite_comparison,
+    overlay_inputs,
+    prepare_parameters,
+    rain_scale_for_units,
+    run_storm,
+)
 
 __all__ = [
     "DEFAULT_MEMORY_BUDGET_MB",
@@ -145,70 +163,71 @@ def _hilbert_order(geoms: gpd.GeoSeries) -> np.ndarray:
                       kind="stable")
 
 
-@dataclass
+@dataclass(frozen=True)
 class ChunkTask:
     """Everything one chunk needs; picklable so a dask worker can run it."""
 
     index: int
-    project: Any
+    project: Project
     subcatchments: gpd.GeoDataFrame
-    soil: Any
-    cover: Any
-    storms: list[Any]
+    soil: ClassGrid
+    cover: ClassGrid | None
+    storms: tuple[Hyetograph, ...]
+    #: Each storm's rain per run step (resampled once for the whole run), m.
+    rains: tuple[NDArray[np.float64], ...]
     overrides: pd.DataFrame | None = None
     keep_loss: bool = True
+    #: Also give the unit-level results the cell rasters are made from.
+    cells: bool = False
     #: (units, coverage, notes) of this chunk from the overlay cache; None to overlay.
     overlay: tuple[pd.DataFrame, pd.DataFrame, list[str]] | None = None
 
 
 @dataclass
 class ChunkOutput:
-    """The results of one chunk, all SI."""
+    """The results of one chunk, all SI.
+
+    A run that streams rows into its output clears ``storm_series``,
+    ``parameters`` and ``storm_units`` once they are written.
+    """
 
     index: int
     units: pd.DataFrame
     coverage: pd.DataFrame
-    parameters: pd.DataFrame
+    parameters: pd.DataFrame | None
     parameter_sources: pd.DataFrame
     notes: list[str]
     storm_subcatchments: list[pd.DataFrame]
     storm_units: list[pd.DataFrame]
     storm_series: list[pd.DataFrame]
-    storm_losses: list[Any] = field(default_factory=list)
     #: Per-subcatchment parameters for a drainage model (SI), from the unit parameters.
-    model_inputs: pd.DataFrame | None = None
+    model_inputs: pd.DataFrame
     #: Units run, and units per loss method (kept when the unit rows are streamed away).
-    unit_count: int = 0
-    method_counts: dict[str, int] = field(default_factory=dict)
+    unit_count: int
+    method_counts: dict[str, int]
+    storm_losses: list[LossResult] = field(default_factory=list)
+    #: Per storm, the unit-level results the cell rasters are made from (when asked for).
+    cell_units: list[pd.DataFrame] = field(default_factory=list)
     #: The overlay's own notes (also in ``notes``), for the overlay cache.
     overlay_notes: list[str] = field(default_factory=list)
 
 
 def process_chunk(task: ChunkTask) -> ChunkOutput:
     """Overlay, parameters and every storm for one chunk of subcatchments."""
-    import warnings
-
-    from ..errors import GisrunWarning
-    from ..present.model_inputs import model_inputs_si
-    from . import pipeline
-
     project = task.project
-    inputs = pipeline.Inputs(task.subcatchments, task.soil, task.cover, task.storms,
-                             task.overrides)
+    inputs = Inputs(task.subcatchments, task.soil, task.cover, task.storms, task.overrides)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
         if task.overlay is not None:
             units, coverage, notes_overlay = task.overlay
         else:
-            units, coverage, notes_overlay = pipeline.overlay_inputs(project, inputs,
-                                                                     check_codes=False)
-        params, sources, notes_params = pipeline.prepare_parameters(project, inputs, units)
+            units, coverage, notes_overlay = overlay_inputs(project, inputs, check_codes=False)
+        params, sources, notes_params = prepare_parameters(project, inputs, units)
         sub_ids = task.subcatchments["subcatchment_id"].to_numpy(dtype=object)
-        scale = pipeline.rain_scale_for_units(project, inputs, params)
-        results = [pipeline.run_storm(params, h, project.time_step_s, sub_ids=sub_ids,
-                                      rain_scale=scale) for h in task.storms]
+        results = _run_storms(project, inputs, params, task.rains, sub_ids)
         if project.compare_composite and project.combine == "units":
-            pipeline.add_composite_comparison(project, inputs, params, results, sub_ids)
+            results = add_composite_comparison(project, inputs, params, results, sub_ids)
+        cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
     notes = [str(n) for n in (*notes_overlay, *notes_params)]
     notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     return ChunkOutput(
@@ -218,11 +237,36 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         storm_units=[r.units for r in results],
         storm_series=[r.series for r in results],
         storm_losses=[r.loss for r in results] if task.keep_loss else [],
+        cell_units=cell_units,
         model_inputs=model_inputs_si(params, sub_ids, default_method=project.method),
         overlay_notes=[str(n) for n in notes_overlay],
         unit_count=len(params),
         method_counts=params["loss_method"].value_counts(sort=False).to_dict(),
     )
+
+
+def _run_storms(project: Project, inputs: Inputs, params: pd.DataFrame,
+                rains: Sequence[NDArray[np.float64]], sub_ids: NDArray[np.object_]
+                ) -> list[StormResult]:
+    scale = rain_scale_for_units(project, inputs, params)
+    return [run_storm(params, h, project.time_step_s, sub_ids=sub_ids, rain_scale=scale,
+                      rain_per_step_m=rain)
+            for h, rain in zip(inputs.storms, rains, strict=True)]
+
+
+def _cell_units(task: ChunkTask, inputs: Inputs, units: pd.DataFrame,
+                results: list[StormResult], sub_ids: NDArray[np.object_]) -> list[pd.DataFrame]:
+    """Unit-level results for the cell rasters.
+
+    The run's own, or, when the run combines parameters per subcatchment, the units
+    run here (composite parameters would hide the hot spots the rasters are for).
+    """
+    if task.project.combine == "units":
+        return [slim_unit_results(r.units) for r in results]
+    by_unit = dataclasses.replace(task.project, combine="units")
+    params, _, _ = prepare_parameters(by_unit, inputs, units)
+    return [slim_unit_results(r.units)
+            for r in _run_storms(by_unit, inputs, params, task.rains, sub_ids)]
 
 
 def split_overlay(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],

@@ -1,72 +1,33 @@
-"""Writing a run: the GeoPackage of a finished run, or a run streamed into one.
+"""The command line's run: run a project and build its GeoPackage as the chunks finish.
 
-:func:`run_and_write` is what ``gisrun run`` calls: it runs a project chunk by
-chunk and appends each chunk's rows to a temporary GeoPackage (the excess
-series always; the unit tables too for large runs), then writes the other
-layers one at a time and moves the file into place. :func:`write_outputs`
-writes the GeoPackage of a :class:`~gisrun.workflow.pipeline.RunResult` kept in memory.
+:func:`run_and_write` is what ``gisrun run`` calls. A large run (one that does
+not keep per-unit step arrays, see
+:data:`gisrun.workflow.pipeline.KEEP_STEP_ARRAYS_BELOW`) appends each chunk's
+excess series and unit rows to a temporary GeoPackage as it goes, so memory
+stays within the budget, and ranks its units inside the file; then the other
+layers are written one at a time and the file is moved into place. A small run
+keeps everything and writes it the same way at the end.
 """
 
 from __future__ import annotations
 
+import dataclasses
 from pathlib import Path
 
 import pandas as pd
+import pyogrio
 
-from ..config.project import Project
-from ..units import present_frame
-from .pipeline import Progress, RunResult, _quiet, load_project, read_storms, run
+from ..config.project import load_project
+from ..io import geopackage
+from ..model import RunResult
+from ..present.layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
+from ..present.report import REPORT_TOP
+from ..project import Project
+from ..units import present_frame, si_frame
+from .inputs import read_inputs
+from .pipeline import KEEP_STEP_ARRAYS_BELOW, Progress, run
 
-__all__ = ["write_outputs", "run_and_write"]
-
-
-def write_outputs(
-    result: RunResult, *, output: str | Path | None = None, overwrite: bool = False
-) -> Path:
-    """Write the run's GeoPackage (atomically); returns its path.
-
-    Parameters
-    ----------
-    result : RunResult
-        From :func:`run`.
-    output : path, optional
-        Where to write; defaults to the project's ``output``.
-    overwrite : bool
-        Replace an existing file.
-
-    Raises
-    ------
-    OutputExistsError
-        If the output exists and ``overwrite`` is false.
-    OutputError
-        If it cannot be written; nothing is left half-written.
-    ValueError
-        If the run streamed its unit rows elsewhere (``run(unit_sink=...)``): they are
-        not in ``result`` to write; :func:`run_and_write` writes such runs.
-    """
-    from ..io.geopackage import write_geopackage
-    from ..present.layers import build_layers
-
-    if result.parameters is None:
-        raise ValueError("this run streamed its unit rows to a unit sink and no longer holds "
-                         "them; write large runs with run_and_write")
-    target = Path(output) if output else result.project.output
-    return write_geopackage(target, build_layers(result), overwrite=overwrite)
-
-
-def _rank_units_in_file(path: Path, result: RunResult) -> None:
-    """Write ``ponding_rank_units`` from the streamed ``unit_results`` table, on disk."""
-    from ..io.geopackage import write_ranked_table
-
-    def name(si: str) -> str:
-        return present_frame(pd.DataFrame({si: [0.0]}), result.project.units).columns[0]
-
-    keys = ["subcatchment_id", "soil_class", "cover_class"]
-    value = name("time_to_ponding_s")
-    columns = [*keys, value, name("runoff_depth_m"), "runoff_coefficient", name("area_m2")]
-    write_ranked_table(path, source="unit_results", target="ponding_rank_units", group="storm",
-                       group_order=[s.name for s in result.storms], value=value, keys=keys,
-                       columns=columns, rank="ponding_rank", exclude=("surface", "impervious"))
+__all__ = ["run_and_write"]
 
 
 def run_and_write(
@@ -78,58 +39,99 @@ def run_and_write(
     workers: int | None = None,
     scheduler: str | None = None,
     into: str | Path | None = None,
+    cells: bool = True,
 ) -> tuple[RunResult, Path]:
-    """Run a project and write its GeoPackage, streaming the series chunk by chunk.
+    """Run a project and write its GeoPackage, streaming the rows of a large run.
 
     Memory stays within the project's budget however many subcatchments there
-    are: each chunk's excess-rainfall series is appended to the output as it
-    is computed, and so are its unit parameters and unit results when the run
-    is too large to keep step arrays (then ``ponding_rank_units`` is ranked
-    inside the file and the returned result holds no unit rows). The
-    GeoPackage is built in a temporary file beside the target and moved into
-    place only when complete.
+    are: a large run appends each chunk's excess-rainfall series, unit parameters
+    and unit results to the output as they are computed, ranks
+    ``ponding_rank_units`` inside the file and returns a result holding no unit
+    rows or series (its ``unit_ranking_top`` holds the first rows of that
+    ranking). The GeoPackage is built in a temporary file beside the target and
+    moved into place only when complete.
 
     With ``into`` the layers are added to that existing GeoPackage instead
     (a copy is built beside it and replaces it when complete); its other
     layers are kept as they are, and a layer of the same name is replaced
-    only with ``overwrite``.
+    only with ``overwrite``. ``cells`` false skips the cell-level values (no
+    rasters will be written from this result).
 
     Raises
     ------
     OutputExistsError
         If the output (or, with ``into``, a layer name) exists and ``overwrite`` is false.
     """
-    from ..io.geopackage import append_table, open_output, write_layers_into
-    from ..present.layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
-
     if not isinstance(project, Project):
         project = load_project(project)
+    say = progress or (lambda _: None)
+    say("reading inputs")
+    inputs = read_inputs(project)
+    large = len(inputs.subcatchments) >= KEEP_STEP_ARRAYS_BELOW
     target = Path(into or output or project.output)
-    with open_output(target, into_existing=into is not None, overwrite=overwrite) as (tmp, check):
+    opened = geopackage.open_output(target, into_existing=into is not None, overwrite=overwrite)
+    with opened as (tmp, check):
         if into is not None:  # refuse a taken layer name before the work, not after it
             check(["excess_series", "run_info", *UNIT_LAYERS,
-                   *(storm_layer_name(h.name) for h in read_storms(project))])
-        started: set[str] = set()
-
-        def append(layer: str, frame: pd.DataFrame) -> None:
-            append_table(tmp, layer, frame, replace=layer not in started)
-            started.add(layer)
-
-        def sink(_: int, name: str, series: pd.DataFrame) -> None:
-            append("excess_series", series_layer(series, name, project.units))
-
-        def unit_sink(params: pd.DataFrame, units: list[tuple[str, pd.DataFrame]]) -> None:
-            append("unit_parameters", present_frame(params, project.units))
-            for name, frame in units:
-                append("unit_results", series_layer(frame, name, project.units))
-
-        result = run(project, progress=progress, workers=workers, scheduler=scheduler,
-                     series_sink=sink, unit_sink=unit_sink, keep_loss=None)
-        (progress or _quiet)("writing outputs")
+                   *(storm_layer_name(h.name) for h in inputs.storms)])
+        sinks = _Sinks(tmp, project) if large else None
+        result = run(project, inputs=inputs, progress=progress, workers=workers,
+                     scheduler=scheduler, series_sink=sinks and sinks.series,
+                     unit_sink=sinks and sinks.units, keep_loss=not large, cells=cells)
+        say("writing outputs")
         if result.parameters is None:  # unit rows streamed: rank them inside the file
-            _rank_units_in_file(tmp, result)
-        builders = layer_builders(result, skip=("excess_series",))
+            result = dataclasses.replace(result, unit_ranking_top=_rank_units_in_file(tmp,
+                                                                                      result))
+        skip = ("excess_series",) if large else ()
+        builders = layer_builders(result, skip=skip)
         check(list(builders))
         for name, make in builders.items():  # one large layer in memory at a time
-            write_layers_into(tmp, {name: make()})
+            geopackage.write_layers_into(tmp, {name: make()})
     return result, target
+
+
+class _Sinks:
+    """Append a large run's rows to the GeoPackage being built, chunk by chunk."""
+
+    def __init__(self, path: Path, project: Project) -> None:
+        self.path, self.system = path, project.units
+        self.started: set[str] = set()
+
+    def _append(self, layer: str, frame: pd.DataFrame) -> None:
+        geopackage.append_table(self.path, layer, frame, replace=layer not in self.started)
+        self.started.add(layer)
+
+    def series(self, _: int, name: str, series: pd.DataFrame) -> None:
+        self._append("excess_series", series_layer(series, name, self.system))
+
+    def units(self, params: pd.DataFrame, units: list[tuple[str, pd.DataFrame]]) -> None:
+        self._append("unit_parameters", present_frame(params, self.system))
+        for name, frame in units:
+            self._append("unit_results", series_layer(frame, name, self.system))
+
+
+def _rank_units_in_file(path: Path, result: RunResult) -> pd.DataFrame:
+    """Write ``ponding_rank_units`` from the streamed ``unit_results``; return its top rows (SI).
+
+    The top :data:`~gisrun.present.report.REPORT_TOP` rows of each storm are what the report
+    shows; the result carries them so the writers need not read the file.
+    """
+    system = result.project.units
+
+    def name(si: str) -> str:
+        return present_frame(pd.DataFrame({si: [0.0]}), system).columns[0]
+
+    keys = ["subcatchment_id", "soil_class", "cover_class"]
+    value = name("time_to_ponding_s")
+    columns = [*keys, value, name("runoff_depth_m"), "runoff_coefficient", name("area_m2")]
+    geopackage.write_ranked_table(
+        path, source="unit_results", target="ponding_rank_units", group="storm",
+        group_order=[s.name for s in result.storms], value=value, keys=keys, columns=columns,
+        rank="ponding_rank", exclude=("surface", "impervious"))
+    frames = []
+    for storm in result.storms:
+        quoted = storm.name.replace("'", "''")
+        frames.append(pyogrio.read_dataframe(path, layer="ponding_rank_units",
+                                             where=f"storm = '{quoted}'", max_features=REPORT_TOP,
+                                             read_geometry=False))
+    return si_frame(pd.concat(frames, ignore_index=True), system)

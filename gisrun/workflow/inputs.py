@@ -1,0 +1,198 @@
+"""Read a project's inputs: the glue between the project file and the readers in :mod:`gisrun.io`.
+
+Every reader checks its own file; this module adds the checks that need two
+inputs at once (raster codes under the subcatchments, storm names that would
+share a layer) and the checksums that trace a result to its inputs.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import os
+import warnings
+from pathlib import Path
+
+import geopandas as gpd
+import pandas as pd
+from pyproj import CRS, Transformer
+
+from ..config.storms import storms_from_config
+from ..errors import GisrunWarning, RasterError, StormError
+from ..io.raster import ClassRaster, read_class_raster
+from ..io.tables import read_parameter_overrides
+from ..io.vector import read_subcatchments
+from ..model import Inputs
+from ..present.layers import layer_name, storm_layer_name
+from ..project import Project
+from ..storm import Hyetograph
+
+__all__ = [
+    "read_inputs",
+    "read_subcatchment_layer",
+    "read_soil",
+    "read_cover",
+    "read_storms",
+    "read_overrides",
+    "check_raster_codes",
+    "check_inputs_codes",
+    "check_storm_names",
+    "input_checksums",
+    "file_sha256",
+]
+
+
+def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
+    """Read the subcatchment polygons with the fields the run needs."""
+    src = project.subcatchments
+    keep = tuple(dict.fromkeys(
+        f for f in (src.method_field, project.rain_scale_field, *src.parameter_fields) if f))
+    return read_subcatchments(src.path, id_field=src.id_field, layer=src.layer, crs=src.crs,
+                              keep_fields=keep)
+
+
+def read_soil(project: Project) -> ClassRaster:
+    """Open the soil raster and check it against the project's code table."""
+    return read_class_raster(project.soil.path, codes=project.soil.codes,
+                             where=f"{project.soil.path} ({project.where('soil', 'path')})",
+                             crs=project.soil.crs)
+
+
+def read_cover(project: Project) -> ClassRaster | None:
+    """Open the land-cover raster, if the project names one."""
+    if project.cover is None:
+        return None
+    return read_class_raster(project.cover.path, codes=project.cover.codes,
+                             where=f"{project.cover.path} ({project.where('cover', 'path')})",
+                             crs=project.cover.crs)
+
+
+def read_storms(project: Project) -> tuple[Hyetograph, ...]:
+    """Build every storm of the project (design storms and hyetograph files).
+
+    Raises
+    ------
+    StormError
+        A storm cannot be built, or two storms would write the same layer.
+    """
+    where = f"{project.path.name}:[[storms]]"
+    storms = tuple(storms_from_config(list(project.storms), base_dir=project.base_dir,
+                                      units=project.units, where=where))
+    check_storm_names([h.name for h in storms], where)
+    return storms
+
+
+def check_storm_names(names: list[str], where: str) -> None:
+    """Stop when two storm names give the same output layer or file name.
+
+    Raises
+    ------
+    StormError
+        Naming both storms.
+    """
+    for naming in (storm_layer_name, layer_name):
+        seen: dict[str, str] = {}
+        for name in names:
+            key = naming(name)
+            if key in seen:
+                raise StormError(where, f"storms {seen[key]!r} and {name!r} would both be "
+                                 f"written as {key!r}", "give the storms names that differ "
+                                 "in letters or digits")
+            seen[key] = name
+
+
+def read_overrides(project: Project) -> pd.DataFrame | None:
+    """Read the user's parameter override table, if any."""
+    return read_parameter_overrides(project.overrides) if project.overrides else None
+
+
+def read_inputs(project: Project) -> Inputs:
+    """Read and check every input file named by the project.
+
+    Warnings raised while reading are passed on and their text kept in ``Inputs.notes``.
+
+    Raises
+    ------
+    GisrunError
+        The first problem found, naming the file, field or value.
+    """
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", GisrunWarning)
+        inputs = Inputs(
+            subcatchments=read_subcatchment_layer(project),
+            soil=read_soil(project),
+            cover=read_cover(project),
+            storms=read_storms(project),
+            overrides=read_overrides(project),
+        )
+    for w in caught:  # pass them on, and keep their text with the inputs for the run table
+        warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    notes = tuple(str(w.message) for w in caught if issubclass(w.category, GisrunWarning))
+    return dataclasses.replace(inputs, notes=notes)
+
+
+def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
+                       codes: dict[int, str], where: str) -> bool:
+    """Raise if the raster holds, under the subcatchments, codes missing from ``codes``.
+
+    With ``subs`` None the whole raster is scanned.
+
+    Raises
+    ------
+    RasterError
+        Listing the unknown codes and the project file table to add them to.
+    """
+    bounds = None if subs is None else _bounds_in(subs, raster.crs)
+    unknown = raster.unknown_codes(codes, bounds)
+    if len(unknown):
+        listed = ", ".join(str(int(c)) for c in sorted(unknown)[:10])
+        raise RasterError(
+            Path(raster.path).name, f"holds codes {listed} that {where}.codes does not list",
+            "add each code and its class to that table in the project file",
+        )
+    return True
+
+
+def _bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, float]:
+    """The polygons' bounds in another CRS (densified edges, so the box still covers them)."""
+    bounds = tuple(float(v) for v in subs.total_bounds)
+    if CRS.from_user_input(subs.crs) == CRS.from_user_input(crs):
+        return bounds
+    transformer = Transformer.from_crs(subs.crs, crs, always_xy=True)
+    return tuple(transformer.transform_bounds(*bounds, densify_pts=21))
+
+
+def check_inputs_codes(project: Project, inputs: Inputs) -> None:
+    """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`)."""
+    check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
+                       project.where("soil"))
+    if inputs.cover is not None and project.cover is not None:
+        check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
+                           project.where("cover"))
+
+
+def input_checksums(project: Project) -> dict[str, str]:
+    """SHA-256 of every input file, so a result can be traced to its inputs."""
+    paths = [project.path, project.subcatchments.path, project.soil.path]
+    if project.cover:
+        paths.append(project.cover.path)
+    if project.overrides:
+        paths.append(project.overrides)
+    for spec in project.storms:
+        for key in ("path", "idf_table"):
+            if isinstance(spec.get(key), str):
+                paths.append((project.base_dir / spec[key]).resolve())
+    out = {}
+    for path in paths:
+        if Path(path).is_file():
+            out[os.path.relpath(path, project.base_dir)] = file_sha256(path)
+    return out
+
+
+def file_sha256(path: str | Path) -> str:
+    """SHA-256 of a file's bytes, read in 1 MB blocks."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()

@@ -1,0 +1,213 @@
+"""The run, step by step, for a notebook user: overlay, parameters, one storm.
+
+::
+
+    project = load_project("demo_catchment")
+    inputs = read_inputs(project)
+    units, coverage, notes = overlay_inputs(project, inputs)
+    params, sources, notes = prepare_parameters(project, inputs, units)
+    storm = run_storm(params, inputs.storms[0], project.time_step_s, sub_ids=...)
+
+Each step takes and returns frames and arrays (SI); :func:`gisrun.run` does all
+of them chunk by chunk.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+from numpy.typing import NDArray
+
+from ..aggregate import area_weights, subcatchment_series, summarize_subcatchments, summarize_units
+from ..engine import ENGINES, run_losses
+from ..errors import ParameterError, VectorError
+from ..grid.overlay import compute_unit_areas
+from ..model import Inputs, StormResult
+from ..options import did_you_mean
+from ..parameters import assign_parameters, composite_parameters
+from ..present.layers import layer_name, storm_layer_name
+from ..project import Project
+from ..storm import Hyetograph
+from .inputs import check_inputs_codes
+
+__all__ = [
+    "overlay_inputs",
+    "prepare_parameters",
+    "compact_sources",
+    "run_storm",
+    "add_composite_comparison",
+    "rain_scale_for_units",
+]
+
+
+def overlay_inputs(project: Project, inputs: Inputs, *, check_codes: bool = True
+                   ) -> tuple[pd.DataFrame, pd.DataFrame, list]:
+    """Areas of every (subcatchment, soil class, cover class) unit, and nodata per subcatchment.
+
+    ``check_codes=False`` skips the check of the rasters' codes under the
+    subcatchments (``gisrun.run`` checks them once before its chunks).
+
+    Raises
+    ------
+    RasterError
+        If a raster holds codes its code table does not list, or nodata exceeds the limit.
+    """
+    if check_codes:
+        check_inputs_codes(project, inputs)
+    return compute_unit_areas(
+        inputs.subcatchments, inputs.soil, inputs.cover,
+        soil_codes=project.soil.codes,
+        cover_codes=project.cover.codes if project.cover else None,
+        nodata_rule=project.nodata_rule,
+        max_nodata_fraction=project.max_nodata_fraction,
+    )
+
+
+def prepare_parameters(
+    project: Project, inputs: Inputs, units: pd.DataFrame
+) -> tuple[pd.DataFrame, pd.DataFrame, list]:
+    """Unit parameters (SI) from the published tables and the user's overrides."""
+    attributes = _subcatchment_attributes(project, inputs.subcatchments)
+    params, sources, notes = assign_parameters(
+        units,
+        classification=project.soil.classification,
+        dual_group_condition=project.soil.dual_group_condition,
+        initial_saturation=project.soil.initial_saturation,
+        method=project.method,
+        overrides=inputs.overrides,
+        subcatchment_attributes=attributes,
+        initial_abstraction_ratio=project.initial_abstraction_ratio,
+        antecedent_condition=project.antecedent_condition,
+        initial_water_content=project.soil.initial_water_content,
+        compact_provenance=True,
+    )
+    if project.combine == "composite":
+        params = composite_parameters(params)
+    return params.reset_index(drop=True), compact_sources(pd.DataFrame(sources)), list(notes)
+
+
+_SOURCE_KEYS = ["parameter", "source", "soil_class", "cover_class", "surface"]
+
+
+def compact_sources(sources: pd.DataFrame) -> pd.DataFrame:
+    """One row per parameter, source and soil x cover x surface, with the count of unit parts.
+
+    A source specific to one subcatchment names it in its text (``...id=S12``),
+    so nothing is lost by not repeating every subcatchment's rows.
+    """
+    if sources.empty or not set(_SOURCE_KEYS) <= set(sources.columns):
+        return sources
+    counts = sources["unit_parts"] if "unit_parts" in sources.columns else pd.Series(
+        1, index=sources.index)
+    frame = sources[_SOURCE_KEYS].assign(unit_parts=counts.to_numpy())
+    return (frame.groupby(_SOURCE_KEYS, dropna=False, sort=True)["unit_parts"].sum()
+            .reset_index())
+
+
+def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
+    """Per-subcatchment method choice and parameter values from the layer's fields."""
+    attrs = pd.DataFrame({"subcatchment_id": subs["subcatchment_id"]})
+    field_name = project.subcatchments.method_field
+    if field_name:
+        methods = subs[field_name].astype(object).where(subs[field_name].notna(), None)
+        attrs["loss_method"] = methods.map(
+            lambda v: v.strip().lower() if isinstance(v, str) and v.strip() else None)
+        _check_methods(attrs.dropna(subset=["loss_method"]), project)
+    for name in project.subcatchments.parameter_fields:
+        attrs[name] = subs[name].to_numpy()
+    values = attrs.drop(columns="subcatchment_id")
+    attrs = attrs[values.notna().any(axis=1).to_numpy()] if values.shape[1] else attrs.iloc[:0]
+    return attrs if len(attrs) else None
+
+
+def _check_methods(attrs: pd.DataFrame, project: Project) -> None:
+    for sub_id, name in zip(attrs["subcatchment_id"], attrs["loss_method"], strict=True):
+        if name not in ENGINES:
+            raise VectorError(
+                f"{project.subcatchments.path.name}:{project.subcatchments.method_field}"
+                f":id={sub_id}", f"names an unknown method {name!r}",
+                did_you_mean(name, ENGINES),
+            )
+
+
+def run_storm(
+    params: pd.DataFrame,
+    hyetograph: Hyetograph,
+    dt_s: float,
+    *,
+    sub_ids: NDArray[np.object_],
+    rain_scale: NDArray[np.float64] | None = None,
+    rain_per_step_m: NDArray[np.float64] | None = None,
+) -> StormResult:
+    """Run every unit through one storm and aggregate to subcatchments (all SI).
+
+    ``rain_per_step_m`` is the storm already resampled onto ``dt_s`` (resampled
+    here when not given).
+    """
+    rain = hyetograph.resample(dt_s) if rain_per_step_m is None else rain_per_step_m
+    rain_units = rain if rain_scale is None else rain[:, None] * rain_scale[None, :]
+    loss = run_losses(params, rain_units, dt_s)
+    units = summarize_units(loss, params, dt_s)
+    weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    series = subcatchment_series(loss, params, sub_ids, dt_s, weights=weights)
+    excess = series["excess_m"].to_numpy().reshape(len(sub_ids), rain.shape[0])  # sub-major
+    subs = summarize_subcatchments(loss, params, sub_ids, dt_s, weights=weights,
+                                   excess_by_subcatchment=excess)
+    for name in ("rain", "infiltration", "excess"):
+        series[f"{name}_intensity_m_per_s"] = series[f"{name}_m"] / dt_s
+    return StormResult(hyetograph=hyetograph, rain_per_step_m=rain,
+                       layer_name=storm_layer_name(hyetograph.name),
+                       file_stem=layer_name(hyetograph.name), subcatchments=subs,
+                       series=series, units=units, loss=loss)
+
+
+def add_composite_comparison(project: Project, inputs: Inputs, params: pd.DataFrame,
+                             results: list[StormResult], sub_ids: NDArray[np.object_]
+                             ) -> list[StormResult]:
+    """Run area-weighted composite parameters too, and add their figures beside each result.
+
+    Returns each result with ``composite_runoff_depth_m``,
+    ``composite_time_to_ponding_s`` and ``aggregation_difference_m`` (composite
+    minus per-unit runoff depth) added to its subcatchment table, so the bias of
+    lumping a subcatchment's soils into one parameter set is visible.
+    """
+    composite = composite_parameters(params).reset_index(drop=True)
+    scale = rain_scale_for_units(project, inputs, composite)
+    out = []
+    for result in results:
+        lumped = run_storm(composite, result.hyetograph, project.time_step_s, sub_ids=sub_ids,
+                           rain_scale=scale, rain_per_step_m=result.rain_per_step_m).subcatchments
+        subs = result.subcatchments.assign(
+            composite_runoff_depth_m=lumped["runoff_depth_m"].to_numpy(),
+            composite_time_to_ponding_s=lumped["time_to_ponding_s"].to_numpy())
+        subs["aggregation_difference_m"] = (subs["composite_runoff_depth_m"]
+                                            - subs["runoff_depth_m"])
+        out.append(dataclasses.replace(result, subcatchments=subs))
+    return out
+
+
+def rain_scale_for_units(project: Project, inputs: Inputs, params: pd.DataFrame
+                         ) -> NDArray[np.float64] | None:
+    """Per-unit factor on storm depth from the subcatchment attribute, if the project names one.
+
+    Raises
+    ------
+    ParameterError
+        Naming the first subcatchment whose factor is not a non-negative number.
+    """
+    field_name = project.rain_scale_field
+    if not field_name:
+        return None
+    subs = inputs.subcatchments
+    factor = pd.to_numeric(subs[field_name], errors="coerce")
+    bad = subs.loc[~np.isfinite(factor) | (factor < 0), "subcatchment_id"]
+    if len(bad):
+        raise ParameterError(
+            f"{project.subcatchments.path.name}:{field_name}:id={bad.iloc[0]}",
+            "is not a non-negative number", "give every subcatchment a rain depth factor",
+        )
+    by_id = pd.Series(factor.to_numpy(), index=subs["subcatchment_id"])
+    return by_id.reindex(params["subcatchment_id"]).to_numpy(dtype=np.float64)

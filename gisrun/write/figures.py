@@ -1,0 +1,134 @@
+"""The PNG maps and plots of a run and its HTML report, drawn from the result alone.
+
+Figures are built by :mod:`gisrun.present.maps` and the report by
+:mod:`gisrun.present.report`; this module names the files and writes the bytes.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ..model import CAUTION, RunResult, StormResult
+from ..present import maps
+from ..present.layers import layer_name, ponding_ranking
+from ..present.report import REPORT_TOP, ReportFigures, build_report
+from ..units import from_si
+from .rasters import cell_preview
+
+__all__ = ["Figures", "write_figures", "write_report"]
+
+Progress = Callable[[str, int, int], None]
+
+
+@dataclass
+class Figures:
+    """The PNG files written (key -> path) and the images the report embeds."""
+
+    maps: dict[str, Path] = field(default_factory=dict)
+    report: ReportFigures = field(default_factory=ReportFigures)
+
+    def save(self, png: bytes, path: Path, key: str) -> bytes:
+        """Write one PNG and remember it under ``key``."""
+        path.write_bytes(png)
+        self.maps[key] = path
+        return png
+
+
+def write_figures(result: RunResult, folder: Path, *, plot_ids: list[str], cell_maps: bool,
+                  progress: Progress) -> Figures:
+    """Write every map and plot of the run into ``folder`` (created)."""
+    system = result.project.units
+    folder.mkdir(parents=True, exist_ok=True)
+    out = Figures()
+    hyeto = maps.hyetograph_plot(
+        [(s.name, s.hyetograph.time_s / 60.0, from_si(s.hyetograph.intensity_m_per_s,
+                                                      system.rate)) for s in result.storms],
+        rate_unit=system.rate.replace("_per_", "/"))
+    out.report.hyetograph = out.save(maps.figure_png(hyeto), folder / "hyetographs.png",
+                                     "hyetographs")
+    total = len(result.storms)
+    for k, storm in enumerate(result.storms):
+        progress("maps and plots", k, total)
+        images = _subcatchment_maps(result, storm, folder, out)
+        if cell_maps and result.cells is not None:
+            images.append(_cell_map(result, k, folder, out))
+        images += _infiltration_plots(result, storm, plot_ids, folder, out)
+        out.report.per_storm[storm.name] = images
+    progress("maps and plots", total, total)
+    return out
+
+
+def _subcatchment_maps(result: RunResult, storm: StormResult, folder: Path, out: Figures
+                       ) -> list[tuple[str, bytes]]:
+    system, crs, stem = result.project.units, result.subcatchments.crs, storm.file_stem
+    gdf = result.subcatchments[["subcatchment_id", "geometry"]].merge(
+        storm.subcatchments, on="subcatchment_id", how="left")
+    gdf["runoff"] = from_si(gdf["runoff_depth_m"].to_numpy(float), system.depth)
+    gdf["ponding"] = gdf["time_to_ponding_s"] / 60.0
+    fig = maps.subcatchment_map(gdf, "runoff", title=f"Runoff depth per subcatchment, "
+                                f"{storm.name}", label=f"runoff depth ({system.depth})", crs=crs)
+    runoff = (f"Runoff depth per subcatchment ({system.depth}), {storm.name}",
+              out.save(maps.figure_png(fig), folder / f"runoff_depth_{stem}.png",
+                       f"runoff_depth_{stem}"))
+    fig = maps.subcatchment_map(gdf, "ponding", title=f"Time to ponding, {storm.name}",
+                                label="time to ponding (min)", crs=crs, cmap="viridis",
+                                missing_label="does not pond")
+    ponding = (f"Time to ponding (min, earliest pervious part), {storm.name}",
+               out.save(maps.figure_png(fig), folder / f"time_to_ponding_{stem}.png",
+                        f"time_to_ponding_{stem}"))
+    return [runoff, ponding]
+
+
+def _cell_map(result: RunResult, k: int, folder: Path, out: Figures) -> tuple[str, bytes]:
+    storm, cells, system = result.storms[k], result.cells, result.project.units
+    values, extent = cell_preview(cells, from_si(cells.runoff_depth_m[k], system.depth))
+    fig = maps.raster_map(values, extent, title=f"Cell-level runoff depth, {storm.name}",
+                          label=f"runoff depth ({system.depth})", crs=result.raster_crs,
+                          outlines=result.subcatchments.to_crs(result.raster_crs))
+    key = f"cell_runoff_depth_{storm.file_stem}"
+    return (f"Cell-level runoff depth ({system.depth}) on the soil grid, {storm.name}",
+            out.save(maps.figure_png(fig), folder / f"{key}.png", key))
+
+
+def _infiltration_plots(result: RunResult, storm: StormResult, named: list[str], folder: Path,
+                        out: Figures) -> list[tuple[str, bytes]]:
+    if storm.loss is None or result.parameters is None:
+        return []
+    system, dt_s = result.project.units, result.project.time_step_s
+    plotted = _earliest(storm, 1)
+    plotted += [s for s in named if s not in plotted]
+    images = []
+    for sid in plotted:
+        series = maps.pervious_series(storm.loss, result.parameters, sid, dt_s)
+        fig = maps.infiltration_plot(
+            series, title=f"{sid}, {storm.name}: pervious area",
+            rate_unit=system.rate.replace("_per_", "/"),
+            to_rate=lambda v: from_si(np.asarray(v, float), system.rate))
+        key = f"infiltration_{storm.file_stem}_{layer_name(sid)}"
+        images.append((f"Rain, infiltration capacity and infiltration over the pervious "
+                       f"area of {sid}, {storm.name}",
+                       out.save(maps.figure_png(fig), folder / f"{key}.png", key)))
+    return images
+
+
+def _earliest(storm: StormResult, n: int) -> list[str]:
+    s = storm.subcatchments.dropna(subset=["time_to_ponding_s"])
+    s = s.sort_values(["time_to_ponding_s", "subcatchment_id"], kind="stable")
+    return s["subcatchment_id"].astype(str).head(n).tolist()
+
+
+def write_report(result: RunResult, folder: Path, figures: ReportFigures) -> Path:
+    """Write ``report.html`` into ``folder``, listing the files already there."""
+    files = sorted(str(p.relative_to(folder)) for p in folder.rglob("*") if p.is_file())
+    subs, units = ponding_ranking(result)
+    if units.empty and result.unit_ranking_top is not None:
+        units = result.unit_ranking_top
+    text = build_report(result, figures, ranking=(subs, units), caution=CAUTION, files=files,
+                        top=REPORT_TOP)
+    path = folder / "report.html"
+    path.write_text(text, encoding="utf-8")
+    return path
