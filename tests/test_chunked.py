@@ -12,6 +12,9 @@ from shapely.geometry import box
 from gisrun import load_project, run
 from gisrun.workflow.chunks import chunk_size_for_budget, plan_chunks
 
+#: End-to-end, dask, memory, interrupt and fuzz tests: `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
+
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
 

@@ -14,6 +14,9 @@ from numpy.testing import assert_allclose
 
 from gisrun.cli import main
 
+#: End-to-end, dask, memory, interrupt and fuzz tests: `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
+
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
 

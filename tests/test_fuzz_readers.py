@@ -26,6 +26,9 @@ from gisrun.io.storm_csv import read_hyetograph_csv
 from gisrun.io.vector import read_subcatchments
 from gisrun.units import unit_system
 
+#: End-to-end, dask, memory, interrupt and fuzz tests: `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
+
 FUZZ = settings(max_examples=30, deadline=None, derandomize=True,
                 suppress_health_check=[HealthCheck.function_scoped_fixture,
                                        HealthCheck.too_slow])

@@ -23,7 +23,9 @@ from gisrun.cli import main
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 WAIT_FOR_WRITING_S = 180.0
 
-pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="POSIX signals")
+#: An interrupt test (slow); POSIX signals only.
+pytestmark = [pytest.mark.slow,
+              pytest.mark.skipif(sys.platform == "win32", reason="POSIX signals")]
 
 
 @pytest.fixture(scope="module")

@@ -5,11 +5,15 @@ import sys
 import textwrap
 
 import numpy as np
+import pytest
 import rasterio
 from conftest import write_polygons
 from rasterio.transform import from_origin
 from rasterio.windows import Window
 from shapely.geometry import box
+
+#: End-to-end, dask, memory, interrupt and fuzz tests: `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
 
 CELL = 10.0
 SCRIPT = textwrap.dedent("""

@@ -19,6 +19,9 @@ from gisrun.units import SI, US, present_frame, si_frame
 from gisrun.workflow.stream import run_and_write
 from gisrun.write.extras import ExtrasOptions, write_extras
 
+#: End-to-end, dask, memory, interrupt and fuzz tests: `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
+
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
 
