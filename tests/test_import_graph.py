@@ -2,10 +2,12 @@
 
 The graph is built from the source with :mod:`ast`, counting imports inside
 functions too, so a cycle or an I/O library hidden in a function body is seen.
-Importing ``gisrun.a.b`` also runs the package ``gisrun.a`` (its ``__init__``),
-so subpackage ``__init__`` modules are part of every chain through them. The top
-package ``gisrun/__init__.py`` is left out of the chains: it only re-exports the
-notebook API and is imported by every ``import gisrun...`` whatever the module.
+Cycles are looked for among the imports as written. For what compute may reach,
+importing ``gisrun.a.b`` also counts as running the package ``gisrun.a`` (its
+``__init__``), so subpackage ``__init__`` modules are part of every chain
+through them. The top package ``gisrun/__init__.py`` is left out of those
+chains: it only re-exports the notebook API and is run by every
+``import gisrun...`` whatever the module.
 """
 
 from __future__ import annotations
@@ -88,22 +90,25 @@ def _with_parents(target: str) -> list[str]:
 
 
 @cache
-def graph() -> dict[str, set[str]]:
+def graph(with_packages: bool = False) -> dict[str, set[str]]:
+    """gisrun module -> the gisrun modules it imports (and, optionally, their packages)."""
     edges: dict[str, set[str]] = {m: set() for m in modules()}
     for name, found in imports().items():
         for target, _ in found:
-            if target.startswith("gisrun."):
+            if target in modules() and target != name:
+                edges[name].add(target)
+            if with_packages and target.startswith("gisrun."):
                 edges[name].update(t for t in _with_parents(target) if t != name)
     return edges
 
 
 def _reach(start: str) -> dict[str, str]:
-    """Every gisrun module reachable from ``start`` -> the module it was reached from."""
+    """Every gisrun module run by importing ``start`` -> the module it was reached from."""
     seen = {start: ""}
     todo = [start]
     while todo:
         here = todo.pop()
-        for nxt in graph()[here]:
+        for nxt in graph(with_packages=True)[here]:
             if nxt not in seen:
                 seen[nxt] = here
                 todo.append(nxt)
@@ -187,5 +192,6 @@ def test_compute_module_opens_no_file(name):
 def test_the_checks_see_what_they_look_for():
     """The graph finds a real chain and a nested import (guards against an empty graph)."""
     assert "gisrun.engine.base" in graph()["gisrun.engine.green_ampt"]
+    assert "gisrun.engine" in graph(with_packages=True)["gisrun.engine.green_ampt"]
     assert "gisrun.errors" in _reach("gisrun.engine")
     assert any(inside for found in imports().values() for _, inside in found)
