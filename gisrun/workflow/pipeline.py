@@ -27,7 +27,6 @@ import pandas as pd
 
 from ..aggregate import (
     area_weights,
-    soil_shares,
     subcatchment_series,
     summarize_subcatchments,
     summarize_units,
@@ -41,6 +40,7 @@ from ..io.raster import ClassRaster, read_class_raster
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
 from ..parameters import assign_parameters, composite_parameters
+from ..present.layers import layer_name, storm_layer_name
 from ..present.model_inputs import join_model_inputs
 from ..storm import Hyetograph
 
@@ -62,7 +62,6 @@ __all__ = [
     "read_overrides",
     "check_raster_codes",
     "input_checksums",
-    "subcatchment_table",
 ]
 
 #: Printed by the CLI, written into the run table and the report.
@@ -104,6 +103,16 @@ class StormResult:
     def name(self) -> str:
         """The storm's name."""
         return self.hyetograph.name
+
+    @property
+    def layer_name(self) -> str:
+        """The storm's polygon layer in the GeoPackage (as :class:`gisrun.model.StormResult`)."""
+        return storm_layer_name(self.name)
+
+    @property
+    def file_stem(self) -> str:
+        """The storm's part of raster, map and plot file names."""
+        return layer_name(self.name)
 
 
 @dataclass
@@ -645,12 +654,3 @@ def _sha256(path: Path) -> str:
         for block in iter(lambda: handle.read(1 << 20), b""):
             digest.update(block)
     return digest.hexdigest()
-
-
-def subcatchment_table(result: RunResult, storm: StormResult) -> pd.DataFrame:
-    """Subcatchment results of one storm with polygon area and soil shares (SI columns)."""
-    subs = storm.subcatchments.merge(
-        result.coverage, on="subcatchment_id", how="left", suffixes=("", "_coverage")
-    )
-    shares = soil_shares(result.units, subs["subcatchment_id"])
-    return subs.merge(shares, on="subcatchment_id", how="left")
