@@ -12,7 +12,7 @@ import pyogrio
 import pytest
 from numpy.testing import assert_allclose
 
-from gisrun.cli import main
+from gisrun.cli.main import main
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
