@@ -37,7 +37,6 @@ from .._version import __version__
 from ..aggregate import soil_shares
 from ..model import CAUTION, RunResult, StormResult
 from ..units import UnitSystem, present_frame
-from .model_inputs import model_inputs
 
 __all__ = [
     "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
@@ -141,12 +140,12 @@ def _all_storms(result: RunResult, kind: str) -> pd.DataFrame:
 
 
 def model_inputs_layer(result: RunResult) -> pd.DataFrame:
-    """Per-subcatchment parameters for a drainage model, in the project's units."""
-    if result.model_inputs is not None:
-        return present_frame(result.model_inputs, result.project.units)
-    return model_inputs(result.parameters,
-                        result.subcatchments["subcatchment_id"].astype(str).tolist(),
-                        result.project.units, default_method=result.project.method)
+    """Per-subcatchment parameters for a drainage model, in the project's units.
+
+    The run keeps them per subcatchment (:attr:`gisrun.model.RunResult.model_inputs`,
+    built by :func:`gisrun.present.model_inputs.model_inputs_si`); this converts them.
+    """
+    return present_frame(result.model_inputs, result.project.units)
 
 
 def series_layer(series: pd.DataFrame, storm_name: str, system: UnitSystem) -> pd.DataFrame:
