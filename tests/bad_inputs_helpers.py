@@ -17,7 +17,7 @@ import rasterio
 from rasterio.transform import from_origin
 from shapely.geometry import box
 
-from gisrun.cli import main
+from gisrun.cli.main import main
 
 CRS = "EPSG:32617"
 #: South-west corner of the tiny grid (UTM 17N, on the central meridian; invented location).

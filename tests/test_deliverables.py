@@ -79,7 +79,7 @@ def test_failure_midway_leaves_the_old_folder_and_no_partial_one(tiny_result, tm
 def test_cli_json_lists_the_extras_and_no_progress_on_stdout(tmp_path, capsys):
     from test_cellgrid import tiny_project
 
-    from gisrun.cli import main
+    from gisrun.cli.main import main
 
     project = tiny_project(tmp_path / "p")
     out = tmp_path / "cli.gpkg"

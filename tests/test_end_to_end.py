@@ -12,7 +12,7 @@ import pyogrio
 import pytest
 from numpy.testing import assert_allclose
 
-from gisrun.cli import main
+from gisrun.cli.main import main
 
 #: End-to-end, dask, memory, interrupt and fuzz tests: `pytest -m "not slow"` skips them.
 pytestmark = pytest.mark.slow

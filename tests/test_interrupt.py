@@ -18,7 +18,7 @@ from pathlib import Path
 
 import pytest
 
-from gisrun.cli import main
+from gisrun.cli.main import main
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 WAIT_FOR_WRITING_S = 180.0
@@ -46,7 +46,7 @@ def _start_run(project: Path, target: Path) -> subprocess.Popen[str]:
     # this test process was started with SIGINT ignored (as background jobs are)
     code = (
         "import signal; signal.signal(signal.SIGINT, signal.default_int_handler)\n"
-        "from gisrun.cli import main\n"
+        "from gisrun.cli.main import main\n"
         f"raise SystemExit(main(['run', {str(project)!r}, '--output', {str(target)!r}, "
         "'--overwrite', '--no-extras', '--quiet']))\n"
     )

@@ -3,6 +3,9 @@
 from __future__ import annotations
 
 import io
+import os
+import subprocess
+import sys
 
 import geopandas as gpd
 import matplotlib.image as mpimg
@@ -73,3 +76,24 @@ def test_geographic_maps_still_name_the_crs(crs):
     assert any("WGS 84" in t for t in texts)
     assert not any(t.endswith(" m") or t.endswith(" km") for t in texts)  # no scale bar in degrees
     maps.figure_png(fig)
+
+
+def test_drawing_leaves_pyplot_figures_alone():
+    """Figures live on their own Agg canvas: pyplot's figure list never sees them."""
+    import matplotlib.pyplot as plt
+
+    before = plt.get_fignums()
+    fig = maps.hyetograph_plot([("a", np.array([0.0, 10, 20]), np.array([5.0, 10.0]))],
+                               rate_unit="mm/h")
+    assert plt.get_fignums() == before
+    assert type(fig.canvas).__name__ == "FigureCanvasAgg"
+    decoded(maps.figure_png(fig))
+
+
+def test_importing_maps_does_not_switch_the_backend():
+    code = ("import matplotlib, gisrun.present.maps, gisrun.present.report; "
+            "print(matplotlib.rcParams['backend'])")
+    env = {**os.environ, "MPLBACKEND": "svg"}
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True,
+                         check=True).stdout
+    assert out.strip() == "svg"

@@ -5,102 +5,14 @@ PROJECT`` checks every input and reports each problem on one line;
 ``gisrun tables`` lists the shipped parameter tables and their sources;
 ``gisrun storm`` makes and inspects design storms.
 
+One module per command (:mod:`~gisrun.cli.run`, :mod:`~gisrun.cli.check`,
+:mod:`~gisrun.cli.tables`, :mod:`~gisrun.cli.storm`), options shared between
+them in :mod:`~gisrun.cli.options`, and the ``gisrun`` group, exit codes and the
+console script (:func:`gisrun.cli.main.main`) in :mod:`~gisrun.cli.main`. This
+``__init__`` imports none of them, so importing one command does not import
+the others through the package.
+
 Exit codes: 0 success, 2 a problem with the input or output the user can fix
 (one line on standard error), 1 an internal error (please report it; ``--debug``
 shows the traceback).
 """
-
-from __future__ import annotations
-
-import signal
-import sys
-import threading
-import traceback
-from collections.abc import Iterator
-from contextlib import contextmanager
-
-import click
-
-from ..errors import GisrunError
-from .main import cli
-
-__all__ = ["cli", "main"]
-
-
-#: Said when a run is stopped by Ctrl-C or SIGTERM: each output is written to a temporary file
-#: and moved into place only when complete, so none is ever half-written.
-INTERRUPTED = ("gisrun: interrupted; the output being written was discarded and any earlier "
-               "version of it is unchanged")
-
-
-class Terminated(BaseException):
-    """Raised in the main thread on SIGTERM so that cleanup code (``finally``) runs.
-
-    A ``BaseException``, like ``KeyboardInterrupt``, so ``except Exception`` does not catch it.
-    """
-
-
-def _raise_terminated(signum: int, _frame: object) -> None:
-    raise Terminated(signum)
-
-
-@contextmanager
-def _sigterm_raises() -> Iterator[None]:
-    """Turn SIGTERM into :class:`Terminated` while the command runs (main thread only)."""
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
-    previous = signal.signal(signal.SIGTERM, _raise_terminated)
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGTERM, previous)
-
-
-def main(argv: list[str] | None = None) -> int:
-    """Run the command line; return the exit code (also used as the console script).
-
-    Exit codes: 0 success, 2 a problem the user can fix, 1 an internal error,
-    130 interrupted by Ctrl-C (SIGINT), 143 stopped by SIGTERM (128 + signal
-    number, common practice).
-    """
-    try:
-        with _sigterm_raises():
-            return _main(argv)
-    except Terminated:
-        click.echo(INTERRUPTED, err=True)
-        return 128 + signal.SIGTERM
-
-
-def _main(argv: list[str] | None) -> int:
-    args = list(sys.argv[1:] if argv is None else argv)
-    debug = "--debug" in args
-    try:
-        code = cli.main(args=args, prog_name="gisrun", standalone_mode=False)
-    except GisrunError as err:
-        click.echo(f"gisrun: error: {err}", err=True)
-        if debug:
-            traceback.print_exc()
-        return 2
-    except click.exceptions.Abort:
-        click.echo(INTERRUPTED, err=True)
-        return 130
-    except click.ClickException as err:
-        err.show()
-        return err.exit_code
-    except KeyboardInterrupt:
-        click.echo(INTERRUPTED, err=True)
-        return 130
-    except Exception as err:  # noqa: BLE001 - the last line of defence
-        if debug:
-            traceback.print_exc()
-        click.echo(
-            f"gisrun: internal error ({type(err).__name__}: {err}); please report it with the "
-            "command and project file (run again with --debug for the traceback)", err=True,
-        )
-        return 1
-    return code if isinstance(code, int) else 0
-
-
-def _entry() -> None:  # pragma: no cover - console script wrapper
-    sys.exit(main())

@@ -1,22 +1,35 @@
-"""The ``gisrun`` command group and its ``run``, ``check`` and ``tables`` commands."""
+"""The ``gisrun`` command group, its exit codes and the console script.
+
+:func:`main` runs the group and turns what happened into an exit code: 0
+success, 2 a :class:`~gisrun.errors.GisrunError` (printed on one line), 1 an
+internal error (a one-line hint to report it; ``--debug`` shows the
+traceback), 130 / 143 when stopped by Ctrl-C / SIGTERM.
+"""
 
 from __future__ import annotations
 
-import dataclasses
-import json
-from pathlib import Path
+import signal
+import sys
+import threading
+import traceback
+from collections.abc import Iterator
+from contextlib import contextmanager
 
 import click
 
 from .._version import __version__
 from ..errors import GisrunError
-from . import summary
+from .check import check
+from .run import run
+from .storm import storm
+from .tables import tables
 
-__all__ = ["cli"]
+__all__ = ["cli", "main", "INTERRUPTED"]
 
-project_argument = click.argument(
-    "project", type=click.Path(path_type=Path), metavar="PROJECT",
-)
+#: Said when a run is stopped by Ctrl-C or SIGTERM: each output is written to a temporary file
+#: and moved into place only when complete, so none is ever half-written.
+INTERRUPTED = ("gisrun: interrupted; the output being written was discarded and any earlier "
+               "version of it is unchanged")
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -30,131 +43,78 @@ def cli(debug: bool) -> None:
     """
 
 
-@cli.command()
-@project_argument
-@click.option("--output", "-o", type=click.Path(path_type=Path),
-              help="GeoPackage to write (default: the project's [project] output).")
-@click.option("--into", type=click.Path(path_type=Path),
-              help="Add the results as layers to this existing GeoPackage; its other layers "
-                   "are kept as they are.")
-@click.option("--overwrite", is_flag=True, help="Replace an existing output.")
-@click.option("--quiet", "-q", is_flag=True, help="Print only errors.")
-@click.option("--json", "as_json", is_flag=True, help="Print a machine-readable summary.")
-@click.option("--workers", type=click.IntRange(1, 512),
-              help="Run chunks of subcatchments on a local dask cluster of N processes.")
-@click.option("--scheduler", metavar="ADDRESS",
-              help="Run on an existing dask scheduler (tcp://host:8786), or 'synchronous'.")
-@click.option("--no-rasters", is_flag=True, help="Skip the cell-level GeoTIFFs.")
-@click.option("--no-maps", is_flag=True,
-              help="Skip the PNG map files (the report still embeds them).")
-@click.option("--no-report", is_flag=True, help="Skip the HTML report.")
-@click.option("--no-extras", is_flag=True,
-              help="Write only the GeoPackage (no <output>_files folder).")
-@click.option("--plot", "plot_ids", multiple=True, metavar="ID",
-              help="Also plot infiltration through each storm for subcatchment ID (repeatable).")
-def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, quiet: bool,
-        as_json: bool,
-        workers: int | None, scheduler: str | None, no_rasters: bool, no_maps: bool,
-        no_report: bool, no_extras: bool, plot_ids: tuple[str, ...]) -> None:
-    """Run PROJECT (a project file, or a folder holding gisrun.toml) and write its results.
+for _command in (run, check, tables, storm):
+    cli.add_command(_command)
 
-    Beside the GeoPackage, a folder <output stem>_files/ gets cell-level rasters, maps,
-    an HTML report and model-input tables.
+
+class Terminated(BaseException):
+    """Raised in the main thread on SIGTERM so that cleanup code (``finally``) runs.
+
+    A ``BaseException``, like ``KeyboardInterrupt``, so ``except Exception`` does not catch it.
     """
-    from ..config.project import load_project
-    from ..errors import OutputExistsError
-    from ..model import CAUTION
-    from ..workflow.stream import run_and_write
-    from ..write.extras import ExtrasOptions, extras_folder, write_extras
-    from .progress import progress_display
-
-    loaded = load_project(project)
-    if into is not None and output is not None:
-        raise click.UsageError("give either --output or --into, not both")
-    target = Path(into or output or loaded.output)
-    folder = extras_folder(target)
-    checked = (() if into is not None else (target,)) + (() if no_extras else (folder,))
-    for path in checked:
-        if path.exists() and not overwrite:  # fail before the work, not after it
-            raise OutputExistsError(str(path), "already exists",
-                                    "pass --overwrite or choose another output path")
-    if plot_ids and not no_extras:  # a wrong id fails before the work, not after it
-        from ..workflow.inputs import read_subcatchment_layer
-        from ..write.extras import check_plot_ids
-
-        check_plot_ids(read_subcatchment_layer(loaded), plot_ids)
-    options = ExtrasOptions(rasters=not no_rasters, maps=not no_maps, report=not no_report,
-                            plot_subcatchments=plot_ids)
-    with progress_display(enabled=not (quiet or as_json)) as show:
-        result, written = run_and_write(loaded, output=None if into else target,
-                                        into=into, overwrite=overwrite,
-                                        progress=show.step, workers=workers,
-                                        scheduler=scheduler)
-        extras = None if no_extras else write_extras(result, written, overwrite=overwrite,
-                                                     options=options, progress=show.advance)
-    if extras is not None:
-        result = dataclasses.replace(result, warnings=tuple(dict.fromkeys(
-            [*result.warnings, *extras.notes])))
-    if as_json:
-        doc = summary.as_dict(result, written)
-        doc["extras"] = extras.as_dict() if extras is not None else None
-        click.echo(json.dumps(doc, indent=2))
-    elif not quiet:
-        summary.print_summary(result, written)
-        if extras is not None:
-            click.echo(f"Maps, rasters, report and model inputs in {extras.folder}")
-            if extras.report:
-                click.echo(f"Report: {extras.report}")
-        click.echo(f"\nCaution: {CAUTION}")
 
 
-@cli.command()
-@project_argument
-def check(project: Path) -> None:
-    """Check every input of PROJECT without running it; report each problem on one line."""
-    from ..workflow.check import check_project
-
-    problems, notes = check_project(project)
-    for note in notes:
-        click.echo(f"gisrun: warning: {note}", err=True)
-    for problem in problems:
-        click.echo(f"gisrun: error: {problem}", err=True)
-    if problems:
-        click.echo(f"{len(problems)} problem(s) found.", err=True)
-        raise click.exceptions.Exit(2)
-    click.echo("No problems found.")
+def _raise_terminated(signum: int, _frame: object) -> None:
+    raise Terminated(signum)
 
 
-@cli.command()
-@click.argument("name", required=False)
-def tables(name: str | None) -> None:
-    """List the shipped parameter tables and their sources (or print table NAME)."""
-    from ..parameters import list_tables
-
-    found = list_tables()
-    if name is None:
-        for table in found:
-            click.echo(f"{table[0]}: {table[1]}")
-            for line in table[2]:
-                click.echo(f"    {line}")
+@contextmanager
+def _sigterm_raises() -> Iterator[None]:
+    """Turn SIGTERM into :class:`Terminated` while the command runs (main thread only)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
         return
-    for table in found:
-        if table[0] == name:
-            click.echo(f"{table[0]}: {table[1]}")
-            for line in table[2]:
-                click.echo(f"# {line}")
-            click.echo(table[3].to_string(index=False))
-            return
-    names = [t[0] for t in found]
-    raise GisrunError(f"table {name!r}", "is not a shipped table", f"use one of {names}")
-
-
-def _register_storm() -> None:
+    previous = signal.signal(signal.SIGTERM, _raise_terminated)
     try:
-        from .storm import storm
-    except ImportError:  # pragma: no cover - storm commands are optional at import time
-        return
-    cli.add_command(storm)
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
-_register_storm()
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; return the exit code (also used as the console script).
+
+    Exit codes: 0 success, 2 a problem the user can fix, 1 an internal error,
+    130 interrupted by Ctrl-C (SIGINT), 143 stopped by SIGTERM (128 + signal
+    number, common practice).
+    """
+    try:
+        with _sigterm_raises():
+            return _main(argv)
+    except Terminated:
+        click.echo(INTERRUPTED, err=True)
+        return 128 + signal.SIGTERM
+
+
+def _main(argv: list[str] | None) -> int:
+    args = list(sys.argv[1:] if argv is None else argv)
+    debug = "--debug" in args
+    try:
+        code = cli.main(args=args, prog_name="gisrun", standalone_mode=False)
+    except GisrunError as err:
+        click.echo(f"gisrun: error: {err}", err=True)
+        if debug:
+            traceback.print_exc()
+        return 2
+    except click.exceptions.Abort:
+        click.echo(INTERRUPTED, err=True)
+        return 130
+    except click.ClickException as err:
+        err.show()
+        return err.exit_code
+    except KeyboardInterrupt:
+        click.echo(INTERRUPTED, err=True)
+        return 130
+    except Exception as err:  # noqa: BLE001 - the last line of defence
+        if debug:
+            traceback.print_exc()
+        click.echo(
+            f"gisrun: internal error ({type(err).__name__}: {err}); please report it with the "
+            "command and project file (run again with --debug for the traceback)", err=True,
+        )
+        return 1
+    return code if isinstance(code, int) else 0
+
+
+def _entry() -> None:  # pragma: no cover - console script wrapper
+    sys.exit(main())

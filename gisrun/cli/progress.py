@@ -4,10 +4,16 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from contextlib import contextmanager
-from typing import Any
 
 from rich.console import Console
-from rich.progress import BarColumn, MofNCompleteColumn, Progress, SpinnerColumn, TextColumn
+from rich.progress import (
+    BarColumn,
+    MofNCompleteColumn,
+    Progress,
+    SpinnerColumn,
+    TaskID,
+    TextColumn,
+)
 
 __all__ = ["progress_display", "Display"]
 
@@ -17,8 +23,8 @@ class Display:
 
     def __init__(self, progress: Progress | None) -> None:
         self._progress = progress
-        self._step: Any = None
-        self._tasks: dict[str, Any] = {}
+        self._step: TaskID | None = None
+        self._tasks: dict[str, TaskID] = {}
 
     def step(self, text: str) -> None:
         """Show that a pipeline step started (a spinner line)."""

@@ -1,6 +1,7 @@
 """``gisrun storm``: make a design storm CSV, or summarise and plot a storm CSV.
 
-Thin over :mod:`gisrun.io.storm_csv` and :mod:`gisrun.config.storms`; the options build the
+Thin over :mod:`gisrun.io.storm_csv`, :mod:`gisrun.config.storms` and
+:func:`gisrun.io.files.atomic_target`; the options build the
 same table a project file's ``[[storms]]`` holds. Errors are
 :class:`~gisrun.errors.GisrunError` and propagate to the main command, which prints them on one
 line and exits 2.
@@ -8,32 +9,26 @@ line and exits 2.
 
 from __future__ import annotations
 
-import os
 from pathlib import Path
 from typing import Any
 
 import click
 import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 
 from ..config.storms import storm_from_config
+from ..io.files import atomic_target
 from ..io.storm_csv import read_hyetograph_csv, write_hyetograph_csv
 from ..storm import Hyetograph
 from ..units import UnitSystem, from_si, unit_system
+from .options import overwrite_option, plot_option, units_option
 
 __all__ = ["storm", "STORM_CAUTION"]
 
 STORM_CAUTION = (
     "Planning-level design rainfall: before sizing drains or judging flood risk, use the storm "
     "your local codes and agency methods require and have the work reviewed by a licensed engineer."
-)
-
-units_option = click.option(
-    "--units", "units_name", type=click.Choice(["si", "us"]), default="si", show_default=True,
-    help="si: depths mm, intensities mm/h; us: depths in, intensities in/h.",
-)
-plot_option = click.option(
-    "--plot", "plot_path", type=click.Path(dir_okay=False, path_type=Path),
-    help="Also draw the storm as a bar chart into this PNG file.",
 )
 
 
@@ -58,7 +53,7 @@ def storm() -> None:
 @click.option("--name", help="Storm name written into the file.")
 @click.option("--output", "-o", type=click.Path(dir_okay=False, path_type=Path), required=True,
               help="CSV file to write.")
-@click.option("--overwrite", is_flag=True, help="Replace an existing CSV.")
+@overwrite_option("CSV")
 @units_option
 @plot_option
 def make(units_name: str, output: Path, overwrite: bool, plot_path: Path | None,
@@ -118,12 +113,14 @@ def _echo_summary(h: Hyetograph, units: UnitSystem) -> None:
 
 
 def _plot(h: Hyetograph, path: Path, units: UnitSystem) -> None:
-    """Bar chart of interval-mean intensity against time (Agg canvas, no display needed)."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
+    """Write a bar chart of interval-mean intensity against time (Agg canvas, no display)."""
+    fig = _storm_figure(h, units)
+    with atomic_target(path, overwrite=True) as tmp:
+        fig.savefig(tmp, format="png", dpi=110)
 
-    from ..errors import OutputError
 
+def _storm_figure(h: Hyetograph, units: UnitSystem) -> Figure:
+    """Bar chart of interval-mean intensity against time, on its own Agg canvas."""
     fig = Figure(figsize=(8, 3.5), layout="constrained")
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
@@ -135,12 +132,4 @@ def _plot(h: Hyetograph, path: Path, units: UnitSystem) -> None:
            title=f"{h.name}: {from_si(h.total_depth_m, units.depth):.4g} {units.depth} total")
     ax.text(0.99, 0.97, "planning-level estimate", transform=ax.transAxes, ha="right",
             va="top", fontsize=7, color="0.4")
-    tmp = path.with_name(f".{path.stem}.{os.getpid()}.partial{path.suffix}")
-    try:
-        fig.savefig(tmp, format="png", dpi=110)
-        os.replace(tmp, path)
-    except OSError as err:
-        raise OutputError(str(path), f"cannot be written ({err})",
-                          "check the folder exists and is writable") from None
-    finally:
-        tmp.unlink(missing_ok=True)
+    return fig

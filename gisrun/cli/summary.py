@@ -9,44 +9,44 @@ import numpy as np
 from rich.console import Console
 from rich.table import Table
 
-from ..units import from_si
+from ..model import CAUTION, RunResult, StormResult
+from ..units import UnitSystem, from_si
 
 __all__ = ["as_dict", "print_summary"]
 
 
-def _storm_rows(result: Any) -> list[dict[str, Any]]:
-    system = result.project.units
-    rows = []
-    for storm in result.storms:
-        subs = storm.subcatchments
-        area = subs["modelled_area_m2"].to_numpy()
-        total_area = float(area.sum())
-        def mean(col: str, subs: Any = subs, area: Any = area, total: float = total_area
-                 ) -> float:
-            return float((subs[col] * area).sum() / total) if total else 0.0
-
-        ponded = subs["time_to_ponding_s"].to_numpy()
-        rows.append({
-            "storm": storm.name,
-            f"rain_depth_{system.depth}": from_si(mean("rain_depth_m"), system.depth),
-            f"infiltration_depth_{system.depth}": from_si(mean("infiltration_depth_m"),
-                                                          system.depth),
-            f"runoff_depth_{system.depth}": from_si(mean("runoff_depth_m"), system.depth),
-            f"runoff_volume_{system.volume}": from_si(float(subs["runoff_volume_m3"].sum()),
-                                                      system.volume),
-            "runoff_coefficient": (mean("runoff_depth_m") / mean("rain_depth_m")
-                                   if mean("rain_depth_m") > 0 else 0.0),
-            "subcatchments_ponding": int(np.isfinite(ponded).sum()),
-            "earliest_ponding_min": (float(np.nanmin(ponded)) / 60.0
-                                     if np.isfinite(ponded).any() else None),
-        })
-    return rows
+def _storm_rows(result: RunResult) -> list[dict[str, Any]]:
+    """Catchment-wide figures of each storm, area-weighted, in the project's units."""
+    return [_storm_row(storm, result.project.units) for storm in result.storms]
 
 
-def as_dict(result: Any, written: Path) -> dict[str, Any]:
+def _storm_row(storm: StormResult, system: UnitSystem) -> dict[str, Any]:
+    subs = storm.subcatchments
+    area = subs["modelled_area_m2"].to_numpy()
+    total_area = float(area.sum())
+
+    def mean(col: str) -> float:
+        return float((subs[col] * area).sum() / total_area) if total_area else 0.0
+
+    ponded = subs["time_to_ponding_s"].to_numpy()
+    return {
+        "storm": storm.name,
+        f"rain_depth_{system.depth}": from_si(mean("rain_depth_m"), system.depth),
+        f"infiltration_depth_{system.depth}": from_si(mean("infiltration_depth_m"),
+                                                      system.depth),
+        f"runoff_depth_{system.depth}": from_si(mean("runoff_depth_m"), system.depth),
+        f"runoff_volume_{system.volume}": from_si(float(subs["runoff_volume_m3"].sum()),
+                                                  system.volume),
+        "runoff_coefficient": (mean("runoff_depth_m") / mean("rain_depth_m")
+                               if mean("rain_depth_m") > 0 else 0.0),
+        "subcatchments_ponding": int(np.isfinite(ponded).sum()),
+        "earliest_ponding_min": (float(np.nanmin(ponded)) / 60.0
+                                 if np.isfinite(ponded).any() else None),
+    }
+
+
+def as_dict(result: RunResult, written: Path) -> dict[str, Any]:
     """A JSON-ready summary of a run."""
-    from ..model import CAUTION
-
     return {
         "output": str(written),
         "subcatchments": int(len(result.subcatchments)),
@@ -59,7 +59,7 @@ def as_dict(result: Any, written: Path) -> dict[str, Any]:
     }
 
 
-def print_summary(result: Any, written: Path) -> None:
+def print_summary(result: RunResult, written: Path) -> None:
     """Print a table of catchment-wide figures per storm and where the output went."""
     console = Console(width=max(Console().width, 132))
     rows = _storm_rows(result)

@@ -36,12 +36,11 @@ import pandas as pd
 from .._version import __version__
 from ..aggregate import soil_shares
 from ..model import CAUTION, RunResult, StormResult
-from ..units import present_frame
-from .model_inputs import model_inputs
+from ..units import UnitSystem, present_frame
 
 __all__ = [
     "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
-    "model_inputs_layer", "UNIT_LAYERS",
+    "model_inputs_layer", "ponding_ranking", "subcatchment_table", "UNIT_LAYERS",
 ]
 
 
@@ -76,36 +75,19 @@ def subcatchment_table(result: RunResult, storm: StormResult) -> pd.DataFrame:
     return subs.merge(shares, on="subcatchment_id", how="left")
 
 
-def build_layers(result: object) -> dict[str, pd.DataFrame]:
-    """All output layers of a :class:`gisrun.workflow.pipeline.RunResult`, in output units."""
+def build_layers(result: RunResult) -> dict[str, pd.DataFrame]:
+    """All output layers of a :class:`gisrun.model.RunResult`, in output units."""
     return {name: make() for name, make in layer_builders(result).items()}
 
 
-def layer_builders(result: object, *, skip: tuple[str, ...] = ()
+def layer_builders(result: RunResult, *, skip: tuple[str, ...] = ()
                    ) -> dict[str, Callable[[], pd.DataFrame]]:
-    """Layer name -> a function building it, so a writer holds one large layer at a time."""
+    """Layer name -> a function building it, so a writer holds one large layer at a time.
+
+    The storms' polygon layers are named by their ``layer_name``; the unit
+    layers are left out when the run streamed its unit rows into the output.
+    """
     system = result.project.units
-    geoms = result.subcatchments[["subcatchment_id", "geometry"]]
-
-    def storm_layer(storm: object) -> Callable[[], pd.DataFrame]:
-        def make() -> pd.DataFrame:
-            table = present_frame(subcatchment_table(result, storm), system)
-            layer = geoms.merge(table, on="subcatchment_id", how="left")
-            return gpd.GeoDataFrame(layer, geometry="geometry", crs=result.subcatchments.crs)
-        return make
-
-    def all_storms(kind: str) -> pd.DataFrame:
-        frames = []
-        for storm in result.storms:
-            if kind == "subcatchments":
-                frames.append(present_frame(subcatchment_table(result, storm), system)
-                              .assign(storm=storm.name))
-            elif kind == "series":
-                frames.append(series_layer(storm.series, storm.name, system))
-            else:
-                frames.append(present_frame(storm.units, system).assign(storm=storm.name))
-        return _storm_first(pd.concat(frames, ignore_index=True))
-
     rankings: list[tuple[pd.DataFrame, pd.DataFrame]] = []
 
     def ranking(which: int) -> pd.DataFrame:
@@ -114,11 +96,11 @@ def layer_builders(result: object, *, skip: tuple[str, ...] = ()
         return present_frame(rankings[0][which], system)
 
     builders: dict[str, Callable[[], pd.DataFrame]] = {
-        storm_layer_name(storm.name): storm_layer(storm) for storm in result.storms}
+        storm.layer_name: _storm_layer(result, storm) for storm in result.storms}
     builders.update({
-        "subcatchment_results": lambda: all_storms("subcatchments"),
-        "excess_series": lambda: all_storms("series"),
-        "unit_results": lambda: all_storms("units"),
+        "subcatchment_results": lambda: _all_storms(result, "subcatchments"),
+        "excess_series": lambda: _all_storms(result, "series"),
+        "unit_results": lambda: _all_storms(result, "units"),
         "unit_parameters": lambda: present_frame(result.parameters, system),
         "parameter_sources": lambda: result.parameter_sources,
         "coverage": lambda: present_frame(result.coverage, system),
@@ -132,21 +114,46 @@ def layer_builders(result: object, *, skip: tuple[str, ...] = ()
     return {name: make for name, make in builders.items() if name not in skip}
 
 
-def model_inputs_layer(result: object) -> pd.DataFrame:
-    """Per-subcatchment parameters for a drainage model, in the project's units."""
-    if result.model_inputs is not None:
-        return present_frame(result.model_inputs, result.project.units)
-    return model_inputs(result.parameters,
-                        result.subcatchments["subcatchment_id"].astype(str).tolist(),
-                        result.project.units, default_method=result.project.method)
+def _storm_layer(result: RunResult, storm: StormResult) -> Callable[[], pd.DataFrame]:
+    """A function building one storm's polygon layer (one feature per subcatchment)."""
+    def make() -> pd.DataFrame:
+        geoms = result.subcatchments[["subcatchment_id", "geometry"]]
+        table = present_frame(subcatchment_table(result, storm), result.project.units)
+        layer = geoms.merge(table, on="subcatchment_id", how="left")
+        return gpd.GeoDataFrame(layer, geometry="geometry", crs=result.subcatchments.crs)
+    return make
 
 
-def series_layer(series: pd.DataFrame, storm_name: str, system: object) -> pd.DataFrame:
+def _all_storms(result: RunResult, kind: str) -> pd.DataFrame:
+    """Every storm's subcatchment results, series or unit results in one table, storm first."""
+    system = result.project.units
+    frames = []
+    for storm in result.storms:
+        if kind == "subcatchments":
+            frames.append(present_frame(subcatchment_table(result, storm), system)
+                          .assign(storm=storm.name))
+        elif kind == "series":
+            frames.append(series_layer(storm.series, storm.name, system))
+        else:
+            frames.append(present_frame(storm.units, system).assign(storm=storm.name))
+    return _storm_first(pd.concat(frames, ignore_index=True))
+
+
+def model_inputs_layer(result: RunResult) -> pd.DataFrame:
+    """Per-subcatchment parameters for a drainage model, in the project's units.
+
+    The run keeps them per subcatchment (:attr:`gisrun.model.RunResult.model_inputs`,
+    built by :func:`gisrun.present.model_inputs.model_inputs_si`); this converts them.
+    """
+    return present_frame(result.model_inputs, result.project.units)
+
+
+def series_layer(series: pd.DataFrame, storm_name: str, system: UnitSystem) -> pd.DataFrame:
     """One storm's excess-rainfall series as written: storm first, output units."""
     return _storm_first(present_frame(series, system).assign(storm=storm_name))
 
 
-def ponding_ranking(result: object) -> tuple[pd.DataFrame, pd.DataFrame]:
+def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Subcatchments and units ordered by time to ponding under each storm (SI columns).
 
     Returns
@@ -186,7 +193,7 @@ def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:
     return frame[cols]
 
 
-def run_info(result: object) -> pd.DataFrame:
+def run_info(result: RunResult) -> pd.DataFrame:
     """Key-value table describing the run (provenance), one row per fact."""
     project = result.project
     rows: list[tuple[str, str]] = [

@@ -1,7 +1,8 @@
 """PNG maps and plots from result frames (matplotlib, Agg; reads and writes no files).
 
-Every function returns a :class:`matplotlib.figure.Figure`; :func:`figure_png`
-turns it into PNG bytes, which :mod:`gisrun.write.extras` writes and
+Every function returns a :class:`matplotlib.figure.Figure` drawn on its own Agg
+canvas (no pyplot state, no global backend switch); :func:`figure_png` turns it
+into PNG bytes, which :mod:`gisrun.write.extras` writes and
 :mod:`gisrun.present.report` embeds. Colour maps are perceptually uniform and
 colour-blind safe (``cividis``, ``viridis``); legends are classed and carry
 units; maps in a projected CRS get a scale bar and a north arrow (the grid's
@@ -11,27 +12,38 @@ north; correct for north-up grids), and every map names its CRS.
 from __future__ import annotations
 
 import io
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import Any
 
-import matplotlib
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+from matplotlib import colormaps
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.colors import BoundaryNorm, Colormap
+from matplotlib.figure import Figure
+from matplotlib.patches import Patch, Rectangle
+from matplotlib.ticker import MaxNLocator
+from numpy.typing import NDArray
+from pyproj import CRS
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import pandas as pd  # noqa: E402
-from matplotlib.colors import BoundaryNorm  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-from matplotlib.patches import Patch, Rectangle  # noqa: E402
-from matplotlib.ticker import MaxNLocator  # noqa: E402
-from numpy.typing import NDArray  # noqa: E402
-from pyproj import CRS  # noqa: E402
+from ..engine import LossResult
 
 __all__ = ["class_breaks", "subcatchment_map", "raster_map", "infiltration_plot",
            "hyetograph_plot", "pervious_series", "PerviousSeries", "figure_png"]
 
 MISSING_COLOUR = "#d9d9d9"
+
+#: Anything :meth:`pyproj.CRS.from_user_input` accepts (a CRS, "EPSG:32617", an EPSG code...).
+CRSLike = CRS | str | int
+
+
+def _figure(figsize: tuple[float, float]) -> Figure:
+    """A new figure on its own Agg canvas (pyplot's list of figures is not touched)."""
+    fig = Figure(figsize=figsize, dpi=100)
+    FigureCanvasAgg(fig)
+    return fig
 
 
 def class_breaks(values: ArrayLikeFloat, n_classes: int = 5) -> NDArray[np.float64]:
@@ -65,9 +77,9 @@ ArrayLikeFloat = Sequence[float] | NDArray[np.float64] | pd.Series
 
 
 def _classed(values: ArrayLikeFloat, cmap_name: str, n_classes: int
-             ) -> tuple[NDArray[np.float64], Any, BoundaryNorm]:
+             ) -> tuple[NDArray[np.float64], Colormap, BoundaryNorm]:
     edges = class_breaks(values, n_classes)
-    cmap = plt.get_cmap(cmap_name, len(edges) - 1)
+    cmap = colormaps[cmap_name].resampled(len(edges) - 1)
     return edges, cmap, BoundaryNorm(edges, cmap.N)
 
 
@@ -75,7 +87,8 @@ def _fmt(v: float) -> str:
     return f"{v:,.3g}" if abs(v) < 1000 else f"{v:,.0f}"
 
 
-def subcatchment_map(gdf: Any, column: str, *, title: str, label: str, crs: Any,
+def subcatchment_map(gdf: gpd.GeoDataFrame, column: str, *, title: str, label: str,
+                     crs: CRSLike,
                      cmap: str = "cividis", n_classes: int = 5,
                      missing_label: str = "no value") -> Figure:
     """Choropleth of one column per subcatchment with a classed legend.
@@ -93,7 +106,8 @@ def subcatchment_map(gdf: Any, column: str, *, title: str, label: str, crs: Any,
     """
     values = pd.to_numeric(gdf[column], errors="coerce").to_numpy(dtype=np.float64)
     edges, cm, norm = _classed(values, cmap, n_classes)
-    fig, ax = plt.subplots(figsize=(8, 5.6), dpi=100)
+    fig = _figure((8, 5.6))
+    ax = fig.subplots()
     finite = np.isfinite(values)
     if finite.any():
         gdf[finite].plot(ax=ax, color=cm(norm(values[finite])), edgecolor="white", linewidth=0.4)
@@ -111,11 +125,13 @@ def subcatchment_map(gdf: Any, column: str, *, title: str, label: str, crs: Any,
 
 
 def raster_map(values: NDArray[np.float64], extent: tuple[float, float, float, float], *,
-               title: str, label: str, crs: Any, outlines: Any = None, cmap: str = "viridis",
+               title: str, label: str, crs: CRSLike, outlines: gpd.GeoDataFrame | None = None,
+               cmap: str = "viridis",
                n_classes: int = 6) -> Figure:
     """Draw a float raster (NaN = nodata) with a classed colour bar and optional outlines."""
     edges, cm, norm = _classed(values, cmap, n_classes)
-    fig, ax = plt.subplots(figsize=(8, 5.6), dpi=100)
+    fig = _figure((8, 5.6))
+    ax = fig.subplots()
     image = ax.imshow(np.ma.masked_invalid(values), extent=extent, cmap=cm, norm=norm,
                       interpolation="nearest")
     if outlines is not None:
@@ -126,7 +142,7 @@ def raster_map(values: NDArray[np.float64], extent: tuple[float, float, float, f
     return fig
 
 
-def _decorate(ax: Any, title: str, crs: Any) -> None:
+def _decorate(ax: Axes, title: str, crs: CRSLike) -> None:
     crs = CRS.from_user_input(crs)
     ax.set_title(title, fontsize=11)
     ax.set_xticks([])
@@ -141,7 +157,7 @@ def _decorate(ax: Any, title: str, crs: Any) -> None:
         _north_arrow(ax)
 
 
-def _scale_bar(ax: Any, metres_per_unit: float) -> None:
+def _scale_bar(ax: Axes, metres_per_unit: float) -> None:
     x0, x1 = ax.get_xlim()
     y0, y1 = ax.get_ylim()
     target_m = (x1 - x0) * metres_per_unit / 5
@@ -157,7 +173,7 @@ def _scale_bar(ax: Any, metres_per_unit: float) -> None:
     ax.text(bx + length / 2, by + 1.8 * bh, text, ha="center", va="bottom", fontsize=7)
 
 
-def _north_arrow(ax: Any) -> None:
+def _north_arrow(ax: Axes) -> None:
     ax.annotate("N", xy=(0.95, 0.95), xytext=(0.95, 0.83), xycoords="axes fraction",
                 ha="center", va="center", fontsize=9, fontweight="bold",
                 arrowprops={"arrowstyle": "-|>", "color": "black", "linewidth": 1.2})
@@ -174,7 +190,8 @@ class PerviousSeries:
     ponding_s: float
 
 
-def pervious_series(loss: Any, params: pd.DataFrame, sub_id: str, dt_s: float) -> PerviousSeries:
+def pervious_series(loss: LossResult, params: pd.DataFrame, sub_id: str, dt_s: float
+                    ) -> PerviousSeries:
     """Area-weighted rain, infiltration capacity and infiltration over pervious units.
 
     The capacity is NaN where the method has no rate form (curve number).
@@ -210,7 +227,7 @@ def pervious_series(loss: Any, params: pd.DataFrame, sub_id: str, dt_s: float) -
 
 
 def infiltration_plot(series: PerviousSeries, *, title: str, rate_unit: str,
-                      to_rate: Any) -> Figure:
+                      to_rate: Callable[[NDArray[np.float64]], NDArray[np.float64]]) -> Figure:
     """Rain, infiltration capacity and actual infiltration through a storm, excess shaded.
 
     Parameters
@@ -227,7 +244,8 @@ def infiltration_plot(series: PerviousSeries, *, title: str, rate_unit: str,
     rain = to_rate(series.rain_m_per_s)
     infil = to_rate(series.infiltration_m_per_s)
     cap = to_rate(series.capacity_m_per_s)
-    fig, ax = plt.subplots(figsize=(8, 4), dpi=100)
+    fig = _figure((8, 4))
+    ax = fig.subplots()
     ax.stairs(rain, edges, color="#1f4e79", linewidth=1.2, label="rain intensity")
     ax.stairs(infil, edges, color="#e69f00", linewidth=1.2, label="actual infiltration")
     ax.fill_between(edges, np.r_[infil, infil[-1]], np.r_[rain, rain[-1]], step="post",
@@ -256,8 +274,9 @@ def hyetograph_plot(storms: Sequence[tuple[str, NDArray[np.float64], NDArray[np.
                     rate_unit: str) -> Figure:
     """Each storm's intensity through time: (name, interval edges in min, intensity) tuples."""
     n = max(1, len(storms))
-    fig, axes = plt.subplots(n, 1, figsize=(8, 1.9 * n + 0.6), dpi=100, squeeze=False)
-    colours = plt.get_cmap("viridis", n + 1)
+    fig = _figure((8, 1.9 * n + 0.6))
+    axes = fig.subplots(n, 1, squeeze=False)
+    colours = colormaps["viridis"].resampled(n + 1)
     for ax, (k, (name, edges, intensity)) in zip(axes[:, 0], enumerate(storms), strict=False):
         ax.stairs(intensity, edges, fill=True, color=colours(k), alpha=0.85)
         ax.set_title(name, fontsize=9, loc="left")
@@ -269,10 +288,9 @@ def hyetograph_plot(storms: Sequence[tuple[str, NDArray[np.float64], NDArray[np.
 
 
 def figure_png(fig: Figure, *, dpi: int = 100) -> bytes:
-    """PNG bytes of a figure (the figure is closed)."""
+    """PNG bytes of a figure, rendered on an Agg canvas."""
+    if not isinstance(fig.canvas, FigureCanvasAgg):
+        FigureCanvasAgg(fig)
     buffer = io.BytesIO()
-    try:
-        fig.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight")
-    finally:
-        plt.close(fig)
+    fig.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight")
     return buffer.getvalue()

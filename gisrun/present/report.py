@@ -15,12 +15,13 @@ import base64
 import html
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from ..model import RunResult
 from ..units import present_frame
+from .layers import run_info
 
 __all__ = ["SECTIONS", "ReportFigures", "build_report"]
 
@@ -54,20 +55,20 @@ class ReportFigures:
 REPORT_TOP = 10
 
 
-def build_report(result: Any, figures: ReportFigures, *, ranking: tuple[pd.DataFrame, ...],
+def build_report(result: RunResult, figures: ReportFigures, *, ranking: tuple[pd.DataFrame, ...],
                  caution: str, files: Sequence[str] = (), top: int = REPORT_TOP) -> str:
     """Build the report as one HTML document.
 
     Parameters
     ----------
     result : RunResult
-        From :func:`gisrun.workflow.pipeline.run`.
+        A finished run (:class:`gisrun.model.RunResult`).
     figures : ReportFigures
         Images to embed.
     ranking : (subcatchments, units)
         From :func:`gisrun.present.layers.ponding_ranking` (SI columns).
     caution : str
-        The caution text (:data:`gisrun.workflow.pipeline.CAUTION`).
+        The caution text (:data:`gisrun.model.CAUTION`).
     files : sequence of str
         Names of the other files written beside the report, listed under provenance.
     top : int
@@ -113,7 +114,7 @@ def _img(png: bytes, caption: str) -> str:
             f"<figcaption>{_e(caption)}</figcaption></figure>")
 
 
-def _inputs(result: Any) -> str:
+def _inputs(result: RunResult) -> str:
     p = result.project
     rows = [("project file", p.path.name), ("subcatchments", f"{p.subcatchments.path.name} "
              f"({len(result.subcatchments)} polygons, id field {p.subcatchments.id_field})"),
@@ -129,7 +130,7 @@ def _inputs(result: Any) -> str:
         + _table(cov[cov["nodata_fraction"] > 0]))
 
 
-def _method(result: Any) -> str:
+def _method(result: RunResult) -> str:
     p = result.project
     methods = pd.Series(result.method_counts, name="count").rename_axis("loss_method")
     text = (f"<p>Default loss method <strong>{_e(p.method)}</strong>, units combined as "
@@ -145,7 +146,7 @@ def _method(result: Any) -> str:
     return text + _table(methods.reset_index(name="unit_parts")) + table
 
 
-def _storms(result: Any, hyetograph: bytes | None) -> str:
+def _storms(result: RunResult, hyetograph: bytes | None) -> str:
     system = result.project.units
     rows = []
     for storm in result.storms:
@@ -158,7 +159,7 @@ def _storms(result: Any, hyetograph: bytes | None) -> str:
     return body
 
 
-def _summary(result: Any) -> str:
+def _summary(result: RunResult) -> str:
     system = result.project.units
     rows = []
     for storm in result.storms:
@@ -189,7 +190,7 @@ def _maps(figures: ReportFigures) -> str:
     return "\n".join(parts)
 
 
-def _ranking(result: Any, ranking: tuple[pd.DataFrame, ...], top: int) -> str:
+def _ranking(result: RunResult, ranking: tuple[pd.DataFrame, ...], top: int) -> str:
     system = result.project.units
     subs, units = (present_frame(r, system) for r in ranking)
     parts = [f"<p>Earliest to pond first (top {top} per storm; ties share a rank). The full "
@@ -203,7 +204,7 @@ def _ranking(result: Any, ranking: tuple[pd.DataFrame, ...], top: int) -> str:
     return "\n".join(parts)
 
 
-def _mass_balance(result: Any) -> str:
+def _mass_balance(result: RunResult) -> str:
     rows = []
     for storm in result.storms:
         s = storm.subcatchments
@@ -215,15 +216,13 @@ def _mass_balance(result: Any) -> str:
             + _table(present_frame(pd.DataFrame(rows), result.project.units)))
 
 
-def _warnings(result: Any) -> str:
+def _warnings(result: RunResult) -> str:
     if not result.warnings:
         return "<p>None.</p>"
     return "<ul>" + "".join(f"<li>{_e(w)}</li>" for w in result.warnings) + "</ul>"
 
 
-def _provenance(result: Any, files: Sequence[str]) -> str:
-    from .layers import run_info
-
+def _provenance(result: RunResult, files: Sequence[str]) -> str:
     info = run_info(result)
     listed = "".join(f"<li class=\"mono\">{_e(f)}</li>" for f in files)
     return _table(info) + (f"<p>Files written beside this report:</p><ul>{listed}</ul>"

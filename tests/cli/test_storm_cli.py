@@ -5,6 +5,7 @@ from __future__ import annotations
 import pytest
 from click.testing import CliRunner
 
+from gisrun.cli.main import main
 from gisrun.cli.storm import storm
 from gisrun.errors import StormError
 from gisrun.io.storm_csv import read_hyetograph_csv
@@ -88,3 +89,24 @@ def test_make_does_not_replace_without_overwrite(tmp_path):
     assert result.exception is not None and "already exists" in str(result.exception)
     assert out.read_text() == "keep me"
     assert CliRunner().invoke(storm, [*args, "--overwrite"]).exit_code == 0
+
+
+def test_plot_is_replaced_whole_and_leaves_no_partial_file(tmp_path):
+    src, png = tmp_path / "s.csv", tmp_path / "s.png"
+    png.write_bytes(b"an older plot")
+    args = ["make", "--kind", "uniform", "--depth", "10", "--duration-min", "30", "-o", str(src),
+            "--plot", str(png)]
+    assert CliRunner().invoke(storm, args).exit_code == 0
+    assert png.read_bytes()[:8] == PNG_SIGNATURE
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["s.csv", "s.png"]
+
+
+def test_plot_under_a_file_is_one_line_error_naming_it(tmp_path, capsys):
+    src, blocker = tmp_path / "s.csv", tmp_path / "notes.txt"
+    blocker.write_text("a file where a folder is expected")
+    code = main(["storm", "make", "--kind", "uniform", "--depth", "10", "--duration-min", "30",
+                 "-o", str(src), "--plot", str(blocker / "s.png")])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert str(blocker) in err and "is a file, not a folder" in err and "Traceback" not in err
+    assert err.count("\n") == 1

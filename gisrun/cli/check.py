@@ -1,0 +1,27 @@
+"""``gisrun check PROJECT``: check every input without running; one line per problem."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from ..workflow.check import check_project
+from .options import project_argument
+
+__all__ = ["check"]
+
+
+@click.command()
+@project_argument
+def check(project: Path) -> None:
+    """Check every input of PROJECT without running it; report each problem on one line."""
+    problems, notes = check_project(project)
+    for note in notes:
+        click.echo(f"gisrun: warning: {note}", err=True)
+    for problem in problems:
+        click.echo(f"gisrun: error: {problem}", err=True)
+    if problems:
+        click.echo(f"{len(problems)} problem(s) found.", err=True)
+        raise click.exceptions.Exit(2)
+    click.echo("No problems found.")

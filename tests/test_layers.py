@@ -1,0 +1,32 @@
+"""Output layers: a storm's subcatchment table joined with coverage and soil shares."""
+
+from __future__ import annotations
+
+from types import SimpleNamespace
+
+import pandas as pd
+from numpy.testing import assert_allclose
+
+from gisrun.present.layers import layer_name, storm_layer_name, subcatchment_table
+
+
+def test_subcatchment_table_adds_coverage_and_area_weighted_soil_shares():
+    units = pd.DataFrame({"subcatchment_id": ["a", "a", "b"], "soil_class": ["A", "B/D", "A"],
+                          "cover_class": ["grass", "grass", "grass"],
+                          "area_m2": [30.0, 10.0, 5.0]})
+    coverage = pd.DataFrame({"subcatchment_id": ["a", "b"], "area_m2": [40.0, 6.0],
+                             "nodata_fraction": [0.0, 1 / 6]})
+    storm = SimpleNamespace(subcatchments=pd.DataFrame(
+        {"subcatchment_id": ["b", "a"], "area_m2": [5.0, 40.0], "runoff_depth_m": [0.01, 0.02]}))
+    result = SimpleNamespace(units=units, coverage=coverage)
+    table = subcatchment_table(result, storm).set_index("subcatchment_id")
+    # hand-computed: a is 30 of 40 m2 soil A and 10 of 40 m2 B/D; b is all A
+    assert_allclose(table.loc["a", ["soil_A_fraction", "soil_B_D_fraction"]], [0.75, 0.25])
+    assert_allclose(table.loc["b", ["soil_A_fraction", "soil_B_D_fraction"]], [1.0, 0.0])
+    assert_allclose(table.loc["b", "area_m2_coverage"], 6.0)  # the polygon's, kept apart
+    assert list(table.index) == ["b", "a"]  # the storm's row order is kept
+
+
+def test_layer_names_are_geopackage_safe():
+    assert storm_layer_name("10-yr / 24 h") == "runoff_10_yr_24_h"
+    assert layer_name("2yr") == "l_2yr"  # an SQL name needs no quoting (common practice)
