@@ -36,8 +36,9 @@ from pyproj import CRS
 
 from ..errors import OutputExistsError
 from ..grid import cells as cellgrid
+from ..grid.classes import read_padded
 from ..io.files import staged_folder
-from ..io.geotiff import grid_of, read_padded, write_float_rasters
+from ..io.geotiff import grid_of, write_float_rasters
 from ..present.layers import layer_name
 from ..units import from_si
 
