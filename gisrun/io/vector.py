@@ -103,7 +103,7 @@ def _check_layer(path: str | Path, layer: str | None) -> str:
     if layer is None:
         return layers[0]
     if layer not in layers:
-        raise VectorError(f"{name}:{layer}", "no such layer", f"use one of {layers}")
+        raise VectorError(f"{name}:{layer}", "no such layer", did_you_mean(layer, layers))
     return layer
 
 
