@@ -56,6 +56,12 @@ FACTORS_TO_SI: dict[str, float] = {
     "s": 1.0,
     "min": 60.0,
     "h": 3600.0,
+    "d": 86400.0,
+    # frequency (decay and recovery constants) -> 1/s
+    "per_s": 1.0,
+    "per_min": 1 / 60.0,
+    "per_h": 1 / 3600.0,
+    "per_day": 1 / 86400.0,
     # rate -> m/s
     "m_per_s": 1.0,
     "mm_per_h": 1e-3 / 3600.0,

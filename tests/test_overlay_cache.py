@@ -8,8 +8,8 @@ import pytest
 
 import gisrun.workflow.chunks as chunks
 from gisrun import load_project, run
-from gisrun.errors import GisrunError
-from gisrun.io.overlay_cache import entry_folder, overlay_key
+from gisrun.errors import GisrunError, OutputError
+from gisrun.io.overlay_cache import entry_folder, load_overlay, overlay_key, save_overlay
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
@@ -76,3 +76,46 @@ def test_unreadable_entry_stops_with_a_clear_error(demo, tmp_path):
     with pytest.raises(GisrunError, match="overlay cache entry cannot be read"):
         run(project)
     assert entry == entry_folder(tmp_path / "cache", entry.name.removeprefix("overlay-"))
+
+
+def _tables():
+    units = pd.DataFrame({"subcatchment_id": ["S1"], "soil_class": ["A"],
+                          "cover_class": ["woods_good"], "area_m2": [12.5]})
+    coverage = pd.DataFrame({"subcatchment_id": ["S1"], "area_m2": [12.5]})
+    return units, coverage
+
+
+def test_an_entry_is_stored_whole_and_an_existing_one_is_kept(tmp_path):
+    units, coverage = _tables()
+    entry = save_overlay(tmp_path / "cache", "k1", units, coverage, ["a note"])
+    assert entry == entry_folder(tmp_path / "cache", "k1")
+    got_units, got_coverage, got_notes = load_overlay(tmp_path / "cache", "k1")
+    pd.testing.assert_frame_equal(got_units, units)
+    pd.testing.assert_frame_equal(got_coverage, coverage)
+    assert got_notes == ["a note"]
+    # a second store of the same key (another run got there first) keeps the first entry
+    assert save_overlay(tmp_path / "cache", "k1", units.iloc[:0], coverage, []) == entry
+    assert len(load_overlay(tmp_path / "cache", "k1")[0]) == 1
+    assert sorted(p.name for p in (tmp_path / "cache").iterdir()) == ["overlay-k1"]
+
+
+def test_a_failed_store_leaves_no_entry_and_no_temporary_folder(tmp_path, monkeypatch):
+    units, coverage = _tables()
+
+    def disk_full(*_args, **_kwargs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(pd.DataFrame, "to_parquet", disk_full)
+    with pytest.raises(OutputError, match=r"overlay-k2: overlay cache entry cannot be written "
+                                          r".*No space left.*\[project\] overlay_cache"):
+        save_overlay(tmp_path / "cache", "k2", units, coverage, [])
+    assert list((tmp_path / "cache").iterdir()) == []
+    assert load_overlay(tmp_path / "cache", "k2") is None
+
+
+def test_a_cache_path_under_a_file_gives_one_clear_line(tmp_path):
+    units, coverage = _tables()
+    (tmp_path / "cache").write_text("not a folder")
+    with pytest.raises(OutputError,
+                       match=r"cache: overlay cache cannot be written .*\[project\] overlay_cache"):
+        save_overlay(tmp_path / "cache", "k3", units, coverage, [])

@@ -21,6 +21,14 @@ def test_rate_round_trip():
     assert from_si(to_si(1.0, "in_per_h"), "mm_per_h") == pytest.approx(25.4, rel=1e-12)
 
 
+def test_time_and_per_time_factors_are_inverse():
+    # a day is 86,400 s; a decay constant of 2 per hour is 2 / 3600 per second (definitions)
+    assert to_si(1.0, "d") == 86400.0
+    assert to_si(2.0, "per_h") == pytest.approx(2.0 / 3600.0, rel=1e-15)
+    for time, per in (("s", "per_s"), ("min", "per_min"), ("h", "per_h"), ("d", "per_day")):
+        assert to_si(1.0, time) * to_si(1.0, per) == pytest.approx(1.0, rel=1e-15)
+
+
 def test_unknown_unit_and_system_are_input_errors():
     with pytest.raises(InputError, match="furlong"):
         to_si(1.0, "furlong")

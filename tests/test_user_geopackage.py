@@ -21,7 +21,7 @@ from pandas.testing import assert_frame_equal
 from shapely.geometry import Polygon
 
 from gisrun.errors import OutputError, OutputExistsError
-from gisrun.io.geopackage import write_layers_into_existing
+from gisrun.io import geopackage
 from gisrun.workflow.stream import run_and_write
 
 GISRUN_LAYERS = {"runoff_steady", "excess_series", "subcatchment_results", "unit_results",
@@ -122,19 +122,25 @@ def test_running_twice_with_overwrite_does_not_double_the_series(tmp_path, proje
 
 
 def test_a_failed_write_leaves_the_user_file_as_it_was(tmp_path, project, monkeypatch):
-    import gisrun.io.geopackage as output
-
     user = _user_geopackage(tmp_path / "town.gpkg")
     digest = _sha256(user)
 
     def fails(*_args: object, **_kw: object) -> None:
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(output, "write_layers_into", fails)
+    # the disk fills up under the first layer gisrun writes into the copy
+    monkeypatch.setattr(geopackage.pyogrio, "write_dataframe", fails)
     with pytest.raises(OutputError, match=r"town\.gpkg.*No space left on device"):
         run_and_write(project, into=user)
     assert _sha256(user) == digest
     assert sorted(p.name for p in tmp_path.iterdir()) == ["project", "town.gpkg"]
+
+
+def _add_layers(user: Path, layers: dict[str, pd.DataFrame], *, overwrite: bool = False) -> None:
+    """What ``run_and_write(into=...)`` does with its layers, through the same io functions."""
+    with geopackage.open_output(user, into_existing=True, overwrite=overwrite) as (tmp, check):
+        check(list(layers))
+        geopackage.write_layers_into(tmp, layers)
 
 
 def test_writing_layers_directly_keeps_the_rest(tmp_path):
@@ -142,16 +148,19 @@ def test_writing_layers_directly_keeps_the_rest(tmp_path):
     before = _state(user, ["parcels", "inspections"])
     before_tables = _state(user, ["inspections"])
     extra = pd.DataFrame({"k": ["a", "b"], "v": [1.5, 2.5]})
-    write_layers_into_existing(user, {"notes_from_run": extra})
+    _add_layers(user, {"notes_from_run": extra})
     assert_frame_equal(pyogrio.read_dataframe(user, layer="notes_from_run"), extra)
     assert _state(user, ["parcels", "inspections"]) == before
+    digest = _sha256(user)
     with pytest.raises(OutputExistsError, match="parcels"):
-        write_layers_into_existing(user, {"parcels": extra})
+        _add_layers(user, {"parcels": extra})
     with pytest.raises(OutputExistsError, match="only in case"):  # SQLite names ignore case
-        write_layers_into_existing(user, {"PARCELS": extra}, overwrite=True)
-    write_layers_into_existing(user, {"parcels": extra}, overwrite=True)
+        _add_layers(user, {"PARCELS": extra}, overwrite=True)
+    assert _sha256(user) == digest  # refused before anything was written
+    _add_layers(user, {"parcels": extra}, overwrite=True)
     assert_frame_equal(pyogrio.read_dataframe(user, layer="parcels"), extra)
     assert _state(user, ["inspections"]) == before_tables
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["town.gpkg"]  # no temporary left
 
 
 @pytest.mark.parametrize("kind", ["missing", "csv", "sqlite without GeoPackage tables"])

@@ -15,7 +15,7 @@ import click
 from ..config.project import load_project
 from ..errors import OutputExistsError
 from ..model import CAUTION, RunResult
-from ..workflow.pipeline import read_subcatchment_layer
+from ..workflow.inputs import read_subcatchment_layer
 from ..workflow.stream import run_and_write
 from ..write.extras import Deliverables, ExtrasOptions, check_plot_ids, extras_folder, write_extras
 from . import summary

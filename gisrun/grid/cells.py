@@ -38,6 +38,7 @@ import pandas as pd
 import shapely
 from numpy.typing import NDArray
 
+from .classes import CentreSampling, CodeLookup, nesting
 from .coverage import cell_coverage
 
 __all__ = ["UnitLookup", "CellPlan", "unit_lookup", "plan_cells", "band_values", "rows_per_band"]
@@ -133,17 +134,18 @@ class CellPlan:
         Subcatchment polygons in soil-grid coordinates (column, row).
     bounds : ndarray, shape (n, 4)
         Their bounds in grid coordinates.
-    soil_codes, cover_codes : ndarray
-        Raster code -> class index tables (sorted codes, indices).
+    soil_classes, cover_classes : CodeLookup
+        Raster code -> class index in the :class:`UnitLookup`'s label order;
+        unknown codes, nodata and cells beyond the raster -> the nodata slot
+        (``cover_classes`` None without a cover raster).
     cover_mode : {"none", "aligned", "nearest"}
         How cover classes are found for a soil cell.
     factor : tuple of int
         Cover cells per soil cell (rows, columns) when aligned.
     offset : tuple of int
         Cover (row, column) of soil cell (0, 0)'s first cover cell when aligned.
-    cover_transform : affine.Affine or None
-        For nearest sampling.
-    soil_transform : affine.Affine
+    sampling : CentreSampling or None
+        The cover cell under each soil cell's centre, when ``cover_mode`` is "nearest".
     note : str
         A sentence for the run's warnings, or "".
     """
@@ -152,15 +154,12 @@ class CellPlan:
     height: int
     px: NDArray[Any]
     bounds: NDArray[np.float64]
-    soil_codes: tuple[NDArray[np.int64], NDArray[np.intp]]
-    cover_codes: tuple[NDArray[np.int64], NDArray[np.intp]] | None
+    soil_classes: CodeLookup
+    cover_classes: CodeLookup | None
     cover_mode: str
     factor: tuple[int, int]
     offset: tuple[int, int]
-    cover_transform: Any
-    soil_transform: Any
-    n_soil: int
-    n_cover: int
+    sampling: CentreSampling | None
     note: str = ""
 
     def cover_window(self, r0: int, r1: int) -> tuple[tuple[int, int], tuple[int, int]]:
@@ -168,16 +167,9 @@ class CellPlan:
         if self.cover_mode == "aligned":
             (fy, fx), (oy, ox) = self.factor, self.offset
             return (oy + r0 * fy, oy + r1 * fy), (ox, ox + self.width * fx)
-        rows, cols = self._nearest(r0, r1)
-        return (int(rows.min()), int(rows.max()) + 1), (int(cols.min()), int(cols.max()) + 1)
-
-    def _nearest(self, r0: int, r1: int) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-        t, ct = self.soil_transform, self.cover_transform
-        xs = t.c + t.a * (np.arange(self.width) + 0.5)
-        ys = t.f + t.e * (np.arange(r0, r1) + 0.5)
-        cols = np.floor((xs - ct.c) / ct.a).astype(np.int64)
-        rows = np.floor((ys - ct.f) / ct.e).astype(np.int64)
-        return rows, cols
+        if self.sampling is None:
+            raise ValueError("this plan has no cover grid; read no cover block")
+        return self.sampling.window((r0, r1), (0, self.width))
 
 
 def plan_cells(px: NDArray[Any], *, soil_grid: Any, cover_grid: Any | None,
@@ -196,52 +188,30 @@ def plan_cells(px: NDArray[Any], *, soil_grid: Any, cover_grid: Any | None,
     soil_labels, cover_labels : sequence of str
         Label order of the :class:`UnitLookup`.
     """
-    bounds = shapely.bounds(px)
-    soil_tab = _code_table(soil_codes, soil_labels)
-    common = dict(width=soil_grid.width, height=soil_grid.height, px=px, bounds=bounds,
-                  soil_codes=soil_tab, soil_transform=soil_grid.transform,
-                  n_soil=len(soil_labels), n_cover=len(cover_labels))
+    common = dict(width=soil_grid.width, height=soil_grid.height, px=px,
+                  bounds=shapely.bounds(px),
+                  soil_classes=_lookup(soil_codes, soil_labels, soil_grid.nodata))
     if cover_grid is None:
-        return CellPlan(cover_codes=None, cover_mode="none", factor=(1, 1), offset=(0, 0),
-                        cover_transform=None, **common)
-    cover_tab = _code_table(cover_codes or {}, cover_labels)
+        return CellPlan(cover_classes=None, cover_mode="none", factor=(1, 1), offset=(0, 0),
+                        sampling=None, **common)
+    cover = _lookup(cover_codes or {}, cover_labels, cover_grid.nodata)
     st, ct = soil_grid.transform, cover_grid.transform
-    ratios = np.array([st.e / ct.e, st.a / ct.a, (st.f - ct.f) / ct.e, (st.c - ct.c) / ct.a])
-    if np.all(ratios[:2] >= 1 - 1e-9) and np.allclose(ratios, np.round(ratios), rtol=0, atol=1e-6):
-        r = np.round(ratios).astype(int)
-        return CellPlan(cover_codes=cover_tab, cover_mode="aligned", factor=(r[0], r[1]),
-                        offset=(r[2], r[3]), cover_transform=ct, **common)
-    inverse = np.array([ct.e / st.e, ct.a / st.a, (ct.f - st.f) / st.e, (ct.c - st.c) / st.a])
-    nested = np.allclose(inverse, np.round(inverse), rtol=0, atol=1e-6)
-    note = "" if nested else (
+    inside = nesting(ct, st)  # soil cells as whole blocks of cover cells
+    if inside is not None and inside[0] >= 1 and inside[1] >= 1:
+        fy, fx, oy, ox = inside
+        return CellPlan(cover_classes=cover, cover_mode="aligned", factor=(fy, fx),
+                        offset=(oy, ox), sampling=None, **common)
+    note = "" if nesting(st, ct) is not None else (
         "cell-level rasters: the cover grid is not an integer subdivision of the soil grid, so "
         "each soil cell takes the cover class at its centre (nearest cover cell)")
-    return CellPlan(cover_codes=cover_tab, cover_mode="nearest", factor=(1, 1), offset=(0, 0),
-                    cover_transform=ct, note=note, **common)
+    return CellPlan(cover_classes=cover, cover_mode="nearest", factor=(1, 1), offset=(0, 0),
+                    sampling=CentreSampling(st, ct), note=note, **common)
 
 
-def _code_table(codes: dict[int, str], labels: Sequence[str]
-                ) -> tuple[NDArray[np.int64], NDArray[np.intp]]:
-    pos = {label: i for i, label in enumerate(labels)}
-    items = sorted((int(k), pos[v]) for k, v in codes.items() if v in pos)
-    return (np.array([k for k, _ in items], dtype=np.int64),
-            np.array([v for _, v in items], dtype=np.intp))
-
-
-def _classes(block: NDArray[Any], table: tuple[NDArray[np.int64], NDArray[np.intp]],
-             nodata_index: int) -> NDArray[np.intp]:
-    """Class index of every code; unknown codes, nodata and masked cells -> ``nodata_index``."""
-    keys, idx = table
-    out = np.full(block.shape, nodata_index, dtype=np.intp)
-    vals = np.ma.getdata(block)
-    if keys.size:
-        finite = np.isfinite(vals) if vals.dtype.kind == "f" else np.ones(vals.shape, bool)
-        safe = np.where(finite, vals, 0).astype(np.int64)
-        pos = np.clip(np.searchsorted(keys, safe), 0, keys.size - 1)
-        hit = (keys[pos] == safe) & finite & (vals == safe)
-        out[hit] = idx[pos[hit]]
-    out[np.ma.getmaskarray(block)] = nodata_index
-    return out
+def _lookup(codes: dict[int, str], labels: Sequence[str], nodata: float | None) -> CodeLookup:
+    """Codes -> label index; unknown codes, nodata and cells beyond the raster -> len(labels)."""
+    return CodeLookup(codes, labels, nodata, first=0, nodata_index=len(labels),
+                      outside_index=len(labels))
 
 
 def rows_per_band(plan: CellPlan) -> int:
@@ -280,7 +250,7 @@ def band_values(plan: CellPlan, lookup: UnitLookup, r0: int, soil_block: NDArray
     """
     h, w = soil_block.shape
     fy, fx = plan.factor
-    soil = _classes(soil_block, plan.soil_codes, plan.n_soil)
+    soil = plan.soil_classes.index(soil_block)
     cover = _cover_classes(plan, r0, h, cover_block)  # (h * fy, w * fx)
     poly, frow, fcol, share = _band_coverage(plan, r0, r0 + h)
     n_storms = lookup.runoff_m.shape[0]
@@ -305,17 +275,15 @@ def band_values(plan: CellPlan, lookup: UnitLookup, r0: int, soil_block: NDArray
 
 
 def _cover_classes(plan: CellPlan, r0: int, h: int, cover_block: NDArray[Any] | None
-                   ) -> NDArray[np.intp]:
-    """Cover class index of every fine cell of the band (nodata: ``n_cover``)."""
+                   ) -> NDArray[np.int32]:
+    """Cover class index of every fine cell of the band (nodata: the number of cover labels)."""
     fy, fx = plan.factor
-    if plan.cover_mode == "none" or cover_block is None:
-        return np.zeros((h * fy, plan.width * fx), dtype=np.intp)
-    idx = _classes(cover_block, plan.cover_codes, plan.n_cover)
-    if plan.cover_mode == "aligned":
+    if plan.cover_classes is None or cover_block is None:
+        return np.zeros((h * fy, plan.width * fx), dtype=np.int32)
+    idx = plan.cover_classes.index(cover_block)
+    if plan.sampling is None:  # aligned: the block is the band's cover cells
         return idx
-    rows, cols = plan._nearest(r0, r0 + h)
-    (cr0, _), (cc0, _) = plan.cover_window(r0, r0 + h)
-    return idx[np.ix_(rows - cr0, cols - cc0)]
+    return plan.sampling.gather(idx, (r0, r0 + h), (0, plan.width))
 
 
 def _band_coverage(plan: CellPlan, r0: int, r1: int

@@ -51,7 +51,7 @@ from pyproj import CRS
 
 from ..crs import geodesic_cell_area_m2, linear_unit_m, polygon_area_m2
 from ..errors import CRSError, InputError, RasterError
-from .classes import ClassGrid
+from .classes import CentreSampling, ClassGrid, CodeLookup, nesting, read_padded
 from .coverage import cell_coverage
 
 __all__ = ["compute_unit_areas", "NODATA_RULES", "UNSPECIFIED_COVER"]
@@ -127,20 +127,22 @@ def _check_options(rule: str, fraction: float) -> None:
 class _Grid:
     """The computation grid (the finer raster) and how to read classes on it."""
 
-    def __init__(self, fine: ClassGrid, coarse: ClassGrid | None, fine_lut: _Lookup,
-                 coarse_lut: _Lookup | None, fine_is_soil: bool, labels: list[tuple[str, str]]):
+    def __init__(self, fine: ClassGrid, coarse: ClassGrid | None, fine_lut: CodeLookup,
+                 coarse_lut: CodeLookup | None, fine_is_soil: bool, labels: list[tuple[str, str]]):
         self.fine, self.coarse, self.fine_lut, self.coarse_lut = fine, coarse, fine_lut, coarse_lut
         self.fine_is_soil, self.labels = fine_is_soil, labels
         self.crs = CRS.from_user_input(fine.crs)
         self.t = fine.transform
         self.n_classes = 2 + len(labels)
+        self._sampling = None if coarse is None else CentreSampling(fine.transform,
+                                                                    coarse.transform)
         self._combined = None if coarse_lut is None else _combined_table(
             fine_lut, coarse_lut, fine_is_soil)
 
     @classmethod
     def build(cls, soil: ClassGrid, cover: ClassGrid | None, soil_codes: Mapping[int, str],
               cover_codes: Mapping[int, str] | None, notes: list[str]) -> _Grid:
-        soil_lut = _Lookup(soil_codes, soil.nodata)
+        soil_lut = _lookup(soil_codes, soil.nodata)
         if cover is None:
             labels = [(s, UNSPECIFIED_COVER) for s in soil_lut.labels]
             return cls(soil, None, soil_lut, None, True, labels)
@@ -150,7 +152,7 @@ class _Grid:
         if not CRS.from_user_input(soil.crs).equals(CRS.from_user_input(cover.crs)):
             raise CRSError(f"{cover.where}", f"CRS differs from the soil raster {soil.where}",
                            "warp one raster to the other's CRS with nearest neighbour first")
-        cover_lut = _Lookup(cover_codes, cover.nodata)
+        cover_lut = _lookup(cover_codes, cover.nodata)
         labels = [(s, c) for s in soil_lut.labels for c in cover_lut.labels]
         soil_cell = abs(soil.transform.a * soil.transform.e)
         fine_is_soil = soil_cell <= abs(cover.transform.a * cover.transform.e)
@@ -159,31 +161,16 @@ class _Grid:
         luts = (soil_lut, cover_lut) if fine_is_soil else (cover_lut, soil_lut)
         return cls(fine, coarse, luts[0], luts[1], fine_is_soil, labels)
 
-    def classes(self, r0: int, r1: int, c0: int, c1: int) -> NDArray[np.intp]:
+    def classes(self, r0: int, r1: int, c0: int, c1: int) -> NDArray[np.int32]:
         """Class index of fine cells rows r0:r1, cols c0:c1 (0 outside, 1 nodata)."""
-        fine = self.fine_lut.index(_read_padded(self.fine, r0, r1, c0, c1))
+        fine = self.fine_lut.index(read_padded(self.fine, (r0, r1), (c0, c1)))
         if self.coarse is None:
             return fine
-        coarse = self._coarse_on_fine(r0, r1, c0, c1)
+        coarse = self._sampling.sample(self.coarse, self.coarse_lut, (r0, r1), (c0, c1))
         # one look-up in the (fine class x coarse class) table instead of arithmetic and masks
         flat = fine * np.int32(len(self.coarse_lut.labels) + 2)
         flat += coarse
         return self._combined[flat]
-
-    def _coarse_on_fine(self, r0: int, r1: int, c0: int, c1: int) -> NDArray[np.int32]:
-        """Class index of the coarse raster at the centres of fine cells r0:r1, c0:c1."""
-        t, ct = self.t, self.coarse.transform
-        xs = t.c + t.a * (np.arange(c0, c1) + 0.5)
-        ys = t.f + t.e * (np.arange(r0, r1) + 0.5)
-        cols = np.floor((xs - ct.c) / ct.a).astype(np.int64)
-        rows = np.floor((ys - ct.f) / ct.e).astype(np.int64)
-        cr0, cr1, cc0, cc1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
-        block = self.coarse_lut.index(_read_padded(self.coarse, cr0, cr1, cc0, cc1))
-        # Same grid, nothing to gather, only when the indices are exactly cr0, cr0 + 1, ...: a
-        # grid offset by half a cell puts centres on edges, where rounding may skip or repeat one.
-        if np.array_equal(rows, np.arange(cr0, cr1)) and np.array_equal(cols, np.arange(cc0, cc1)):
-            return block
-        return block[np.ix_(rows - cr0, cols - cc0)]
 
     def row_weights(self, r0: int, r1: int) -> NDArray[np.float64] | None:
         """Cell area per row in m2 for a geographic grid; None for a projected one."""
@@ -201,7 +188,14 @@ class _Grid:
         return abs(self.t.a * self.t.e) * linear_unit_m(self.crs) ** 2
 
 
-def _combined_table(fine: _Lookup, coarse: _Lookup, fine_is_soil: bool) -> NDArray[np.int32]:
+def _lookup(codes: Mapping[int, str], nodata: float | None) -> CodeLookup:
+    """Codes -> 0 outside, 1 nodata, 2.. labels (sorted)."""
+    return CodeLookup(codes, sorted(set(codes.values())), nodata, first=2,
+                      nodata_index=_NODATA, outside_index=_OUTSIDE)
+
+
+def _combined_table(fine: CodeLookup, coarse: CodeLookup, fine_is_soil: bool
+                    ) -> NDArray[np.int32]:
     """Class of every (fine index, coarse index) pair, flattened fine-major.
 
     Real classes are soil-major: (soil - 2) * n_cover + (cover - 2) + 2. A pair
@@ -219,68 +213,11 @@ def _combined_table(fine: _Lookup, coarse: _Lookup, fine_is_soil: bool) -> NDArr
 
 def _note_alignment(fine: ClassGrid, coarse: ClassGrid, notes: list[str]) -> None:
     ft, ct = fine.transform, coarse.transform
-    ratios = np.array([ct.a / ft.a, ct.e / ft.e, (ct.c - ft.c) / ft.a, (ct.f - ft.f) / ft.e])
-    if np.allclose(ratios, np.round(ratios), rtol=0, atol=1e-6):
+    if nesting(ft, ct) is not None:
         return
     bound = abs(ft.a / ct.a) + abs(ft.e / ct.e)
     notes.append(f"{coarse.where} is not aligned with {fine.where}: sampled at the finer grid's "
                  f"cell centres; class shares may be off by up to about {bound:.1%} of each area")
-
-
-class _Lookup:
-    """Map raster codes to class indices: 0 outside, 1 nodata, 2.. labels (sorted)."""
-
-    def __init__(self, codes: Mapping[int, str], nodata: float | None) -> None:
-        self.labels = sorted(set(codes.values()))
-        pos = {label: i + 2 for i, label in enumerate(self.labels)}
-        items = sorted((int(k), pos[v]) for k, v in codes.items())
-        self.codes = np.array([k for k, _ in items], dtype=np.int64)
-        self.idx = np.array([v for _, v in items], dtype=np.int32)
-        self.nodata = nodata
-
-    def index(self, block: NDArray[Any]) -> NDArray[np.intp]:
-        outside = block.mask if np.ma.isMaskedArray(block) else np.zeros(block.shape, bool)
-        vals = np.asarray(block)
-        if vals.dtype.kind in "iub" and vals.dtype.itemsize <= 2 and self.codes.size:
-            out = self._small_int(vals)
-        else:
-            out = self._search(vals)
-        if self.nodata is not None and not np.isnan(self.nodata):
-            out[vals == self.nodata] = _NODATA
-        out[outside] = _OUTSIDE
-        return out
-
-    def _small_int(self, vals: NDArray[Any]) -> NDArray[np.intp]:
-        info = np.iinfo(vals.dtype)
-        lut = np.full(int(info.max) - int(info.min) + 1, _NODATA, dtype=np.int32)
-        keep = (self.codes >= info.min) & (self.codes <= info.max)
-        lut[self.codes[keep] - int(info.min)] = self.idx[keep]
-        return lut[vals.astype(np.int64) - int(info.min)] if info.min else lut[vals]
-
-    def _search(self, vals: NDArray[Any]) -> NDArray[np.intp]:
-        out = np.full(vals.shape, _NODATA, dtype=np.int32)
-        if not self.codes.size:
-            return out
-        keys = self.codes.astype(vals.dtype) if vals.dtype.kind == "f" else self.codes
-        pos = np.clip(np.searchsorted(keys, vals), 0, keys.size - 1)
-        hit = keys[pos] == vals
-        out[hit] = self.idx[pos[hit]]
-        return out
-
-
-def _read_padded(raster: ClassGrid, r0: int, r1: int, c0: int, c1: int) -> np.ma.MaskedArray:
-    """Rows r0:r1, cols c0:c1 of a raster; cells beyond its edge are masked."""
-    shape = (r1 - r0, c1 - c0)
-    rr0, rr1 = max(r0, 0), min(r1, raster.height)
-    cc0, cc1 = max(c0, 0), min(c1, raster.width)
-    if rr0 >= rr1 or cc0 >= cc1:
-        return np.ma.masked_all(shape, dtype=np.int64)
-    data, _ = raster.read_window(((rr0, rr1), (cc0, cc1)))
-    if shape == data.shape:
-        return np.ma.MaskedArray(data, mask=np.zeros(shape, bool))
-    out = np.ma.masked_all(shape, dtype=data.dtype)
-    out[rr0 - r0:rr1 - r0, cc0 - c0:cc1 - c0] = data
-    return out
 
 
 def _to_grid_crs(geoms: gpd.GeoSeries, crs: CRS, notes: list[str]) -> NDArray[Any]:

@@ -1,4 +1,4 @@
-"""Write float GeoTIFFs band by band (memory bounded), read class windows and previews.
+"""Write float GeoTIFFs band by band (memory bounded) and read previews of them.
 
 Rasters are tiled (256 x 256), DEFLATE-compressed float32 with the grid of a
 reference raster (CRS, transform, size, nodata). Each is written to a
@@ -10,7 +10,6 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Mapping
 from contextlib import ExitStack
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -20,28 +19,21 @@ from numpy.typing import NDArray
 from rasterio.enums import Resampling
 from rasterio.windows import Window
 
+from ..model import GridSpec
 from .files import atomic_target
 
-__all__ = ["GridSpec", "write_float_rasters", "read_padded", "read_preview", "DEFAULT_NODATA"]
+__all__ = ["grid_of", "write_float_rasters", "read_preview", "DEFAULT_NODATA"]
 
 #: Nodata of the written rasters when the reference raster has none.
 DEFAULT_NODATA = -9999.0
 TILE = 256
 
 
-@dataclass(frozen=True)
-class GridSpec:
-    """The grid written rasters share with a reference raster."""
-
-    crs: Any
-    transform: Any
-    width: int
-    height: int
-    nodata: float
-
-
 def grid_of(raster: Any) -> GridSpec:
-    """Return the grid of a :class:`gisrun.io.raster.ClassRaster` (nodata -9999 if none)."""
+    """The grid of a :class:`gisrun.io.raster.ClassRaster`, for rasters written on it.
+
+    Its nodata is the raster's, or :data:`DEFAULT_NODATA` when it has none (or NaN).
+    """
     nodata = raster.nodata
     if nodata is None or (isinstance(nodata, float) and np.isnan(nodata)):
         nodata = DEFAULT_NODATA
@@ -57,7 +49,7 @@ def write_float_rasters(targets: Mapping[str, Path], grid: GridSpec,
     ----------
     targets : mapping of key to path
         One GeoTIFF per key.
-    grid : GridSpec
+    grid : gisrun.model.GridSpec
         CRS, transform, size and nodata of every raster.
     bands : iterable of (row_offset, {key: array (rows, width)})
         Row bands in any order; NaN cells are written as ``grid.nodata``. A value
@@ -87,19 +79,6 @@ def write_float_rasters(targets: Mapping[str, Path], grid: GridSpec,
                 out[np.isnan(out)] = nodata32
                 dsts[key].write(out, 1, window=Window(0, row0, out.shape[1], out.shape[0]))
     return {k: Path(p) for k, p in targets.items()}
-
-
-def read_padded(raster: Any, rows: tuple[int, int], cols: tuple[int, int]) -> np.ma.MaskedArray:
-    """Rows and columns of a class raster; cells beyond its edge come back masked."""
-    (r0, r1), (c0, c1) = rows, cols
-    shape = (r1 - r0, c1 - c0)
-    rr0, rr1, cc0, cc1 = max(r0, 0), min(r1, raster.height), max(c0, 0), min(c1, raster.width)
-    if rr0 >= rr1 or cc0 >= cc1:
-        return np.ma.masked_all(shape, dtype=np.int64)
-    data, _ = raster.read_window(((rr0, rr1), (cc0, cc1)))
-    out = np.ma.masked_all(shape, dtype=data.dtype)
-    out[rr0 - r0:rr1 - r0, cc0 - c0:cc1 - c0] = data
-    return out
 
 
 def read_preview(path: str | Path, *, max_cells: int = 1_000_000

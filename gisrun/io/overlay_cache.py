@@ -10,17 +10,14 @@ run with the same key (a new storm, another method) reads it instead.
 
 Each entry is a folder ``overlay-<key>/`` with ``units.parquet``,
 ``coverage.parquet`` and ``notes.json``, written to a temporary folder and
-renamed into place, so a cache entry is either complete or absent. Delete the
-folder to clear the cache.
+renamed into place (:func:`gisrun.io.files.staged_folder`), so a cache entry is
+either complete or absent. Delete the folder to clear the cache.
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
-import os
-import shutil
-import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -29,6 +26,7 @@ import pandas as pd
 
 from .._version import __version__
 from ..errors import OutputError
+from .files import staged_folder
 
 __all__ = ["overlay_key", "load_overlay", "save_overlay", "entry_folder"]
 
@@ -77,26 +75,24 @@ def load_overlay(folder: Path, key: str) -> tuple[pd.DataFrame, pd.DataFrame, li
 
 def save_overlay(folder: Path, key: str, units: pd.DataFrame, coverage: pd.DataFrame,
                  notes: Sequence[str]) -> Path:
-    """Store an overlay under ``key`` (complete or not at all); returns the entry folder."""
+    """Store an overlay under ``key`` (complete or not at all); returns the entry folder.
+
+    An entry that is already there (stored by an earlier or a concurrent run with
+    the same key) is kept as it is.
+    """
     entry = entry_folder(folder, key)
     if entry.exists():
         return entry
     try:
-        Path(folder).mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(prefix=f".{entry.name}.", dir=folder))
-    except OSError as err:
-        raise OutputError(str(folder), f"overlay cache folder cannot be written ({err})",
-                          "check the path of [project] overlay_cache") from None
-    try:
-        units.to_parquet(tmp / "units.parquet", index=False)
-        coverage.to_parquet(tmp / "coverage.parquet", index=False)
-        (tmp / "notes.json").write_text(json.dumps(list(notes)), encoding="utf-8")
-        os.replace(tmp, entry)
-    except OSError as err:
+        with staged_folder(entry, overwrite=False) as tmp:
+            units.to_parquet(tmp / "units.parquet", index=False)
+            coverage.to_parquet(tmp / "coverage.parquet", index=False)
+            (tmp / "notes.json").write_text(json.dumps(list(notes)), encoding="utf-8")
+    except OSError as err:  # OutputError is one too
         if entry.exists():  # another run stored the same entry first
             return entry
-        raise OutputError(str(entry), f"overlay cache entry cannot be written ({err})",
-                          "check the path of [project] overlay_cache") from None
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
+        where, problem = ((err.where, f"overlay cache {err.problem}")
+                          if isinstance(err, OutputError) else
+                          (str(entry), f"overlay cache entry cannot be written ({err})"))
+        raise OutputError(where, problem, "check the path of [project] overlay_cache") from None
     return entry

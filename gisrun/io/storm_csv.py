@@ -19,20 +19,20 @@ engineer.
 from __future__ import annotations
 
 import csv
-import difflib
 import io
 import math
 import os
 import warnings
-from collections.abc import Sequence
 from datetime import datetime
 from pathlib import Path
 
 import numpy as np
 
 from .. import storm as st
-from ..errors import GisrunWarning, OutputError, StormError
-from ..units import UnitSystem, to_si
+from ..errors import GisrunWarning, StormError
+from ..options import did_you_mean
+from ..units import FACTORS_TO_SI, SI, US, UnitSystem, from_si, to_si
+from .files import atomic_target
 
 __all__ = [
     "read_hyetograph_csv",
@@ -42,10 +42,13 @@ __all__ = [
     "warn_if_implausible",
 ]
 
-_TIME_COLUMNS: dict[str, float | None] = {"time_min": 60.0, "time_h": 3600.0, "time": None}
+#: Time column -> seconds per unit (None: clock times).
+_TIME_COLUMNS: dict[str, float | None] = {"time_min": FACTORS_TO_SI["min"],
+                                          "time_h": FACTORS_TO_SI["h"], "time": None}
 _QUANTITIES = ("intensity", "depth", "cumulative_depth")
-_UNITS = {"intensity": ("mm_per_h", "in_per_h"), "depth": ("mm", "in"),
-          "cumulative_depth": ("mm", "in")}
+#: Units a value column may name: those of the two unit systems.
+_UNITS = {"intensity": (SI.rate, US.rate), "depth": (SI.depth, US.depth),
+          "cumulative_depth": (SI.depth, US.depth)}
 _VALUE_COLUMNS: dict[str, tuple[str, str | None]] = {
     **{f"{q}_{u}": (q, u) for q, units in _UNITS.items() for u in units},
     **{q: (q, None) for q in _QUANTITIES},
@@ -130,16 +133,16 @@ def _read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]], str 
     return header, rows, comment_name
 
 
-def nearest_hint(name: str, valid: Sequence[str]) -> str:
-    near = difflib.get_close_matches(name, list(valid), n=1, cutoff=0.5)
-    return f"did you mean {near[0]!r}?" if near else f"use one of {sorted(valid)}"
+#: Kept for :mod:`gisrun.config.storms`, which imports it; new code calls
+#: :func:`gisrun.options.did_you_mean`.
+nearest_hint = did_you_mean
 
 
 def _columns(header: list[str], src: str) -> tuple[str, str]:
     if len(header) != 2:
         unknown = [h for h in header if h not in _TIME_COLUMNS and h not in _VALUE_COLUMNS]
         bad = unknown[0] if unknown else ",".join(header)
-        hint = nearest_hint(bad, [*_TIME_COLUMNS, *_VALUE_COLUMNS]) if unknown else ""
+        hint = did_you_mean(bad, [*_TIME_COLUMNS, *_VALUE_COLUMNS]) if unknown else ""
         raise StormError(f"{src}:header", f"has {len(header)} columns ({bad!r} is not used)",
                          f"keep one time column and one value column; {hint}".rstrip("; "))
     time_cols = [h for h in header if h in _TIME_COLUMNS]
@@ -147,11 +150,11 @@ def _columns(header: list[str], src: str) -> tuple[str, str]:
     if len(time_cols) != 1:
         other = next((h for h in header if h not in _VALUE_COLUMNS), header[0])
         raise StormError(f"{src}:header", f"no time column ({other!r} is not one)",
-                         nearest_hint(other, list(_TIME_COLUMNS)))
+                         did_you_mean(other, list(_TIME_COLUMNS)))
     if len(value_cols) != 1:
         other = next(h for h in header if h != time_cols[0])
         raise StormError(f"{src}:header", f"unknown value column {other!r}",
-                         nearest_hint(other, list(_VALUE_COLUMNS)))
+                         did_you_mean(other, list(_VALUE_COLUMNS)))
     if header[0] != time_cols[0]:
         raise StormError(f"{src}:header", "the time column must come first",
                          f"write '{time_cols[0]},{value_cols[0]}'")
@@ -187,7 +190,7 @@ def _parse_times(rows: list[tuple[int, list[str]]], time_col: str, src: str) -> 
     if factor is None and all(len(c[0]) <= 8 for _, c in rows):
         # HH:MM clock times: a drop of more than 12 h means the storm ran past midnight
         crossed = np.concatenate([[False], np.diff(times) < -43200.0])
-        times = times + 86400.0 * np.cumsum(crossed)
+        times = times + FACTORS_TO_SI["d"] * np.cumsum(crossed)
     return times
 
 
@@ -196,7 +199,8 @@ def _clock_s(text: str) -> float:
         parts = [float(p) for p in text.split(":")]
         if len(parts) not in (2, 3) or not (0 <= parts[0] < 24 and 0 <= parts[1] < 60):
             raise ValueError(text)
-        return parts[0] * 3600 + parts[1] * 60 + (parts[2] if len(parts) == 3 else 0.0)
+        hours, minutes, seconds = parts[0], parts[1], parts[2] if len(parts) == 3 else 0.0
+        return hours * FACTORS_TO_SI["h"] + minutes * FACTORS_TO_SI["min"] + seconds
     return datetime.fromisoformat(text).timestamp()
 
 
@@ -317,8 +321,9 @@ def write_hyetograph_csv(
 ) -> Path:
     """Write a hyetograph as ``time_min`` and ``depth_<unit>`` columns that read back the same.
 
-    The file is written beside the target and moved into place, so a failed write leaves no
-    partial file. Values are written with full float precision.
+    The file is written beside the target and moved into place
+    (:func:`gisrun.io.files.atomic_target`), so a failed write leaves no partial file. Values
+    are written with full float precision.
 
     Parameters
     ----------
@@ -337,27 +342,15 @@ def write_hyetograph_csv(
         If the file cannot be written (``OutputExistsError`` if it exists and ``overwrite`` is
         false).
     """
-    from ..errors import OutputExistsError
-
     target = Path(path)
-    if target.exists() and not overwrite:
-        raise OutputExistsError(str(target), "already exists",
-                                "pass --overwrite or pick another path")
     depth = np.asarray(h.depth_m) / to_si(1.0, units.depth)
     lines = [f"# name: {' '.join(h.name.split())}",
              "# gisrun hyetograph: times mark the end of each interval; planning-level estimate",
              f"time_min,depth_{units.depth}", "0,0"]
-    ends_min = (h.time_s[1:] / 60.0).tolist()
+    ends_min = from_si(h.time_s[1:], "min").tolist()
     lines += [f"{t!r},{d!r}" for t, d in zip(ends_min, depth.tolist(), strict=True)]
-    tmp = target.with_name(f".{target.name}.{os.getpid()}.partial")
-    try:
+    with atomic_target(target, overwrite=overwrite) as tmp:
         tmp.write_text("\n".join(lines) + "\n", encoding="utf-8")
-        os.replace(tmp, target)
-    except OSError as err:
-        raise OutputError(str(target), f"cannot be written ({err})",
-                          "check the folder exists and is writable") from None
-    finally:
-        tmp.unlink(missing_ok=True)
     return target
 
 
@@ -376,7 +369,7 @@ def read_idf_table_csv(path: str | os.PathLike[str]) -> st.IdfTable:
     if len(header) != 2 or header[0] != "duration_min" or header[1] not in valid:
         bad = next((h for h in header if h not in ("duration_min", *valid)), ",".join(header))
         raise StormError(f"{src}:header", f"columns {','.join(header)!r} are not an IDF table",
-                         f"use 'duration_min,intensity_mm_per_h' ({nearest_hint(bad, valid)})")
+                         f"use 'duration_min,intensity_mm_per_h' ({did_you_mean(bad, valid)})")
     numbers = []
     for row, cells in rows:
         try:

@@ -7,7 +7,6 @@ of strings, the geometry, and the attribute fields asked for.
 
 from __future__ import annotations
 
-import difflib
 import warnings
 from collections.abc import Sequence
 from pathlib import Path
@@ -20,6 +19,7 @@ from pyogrio.errors import DataLayerError, DataSourceError
 
 from ..crs import checked_crs
 from ..errors import GisrunWarning, VectorError
+from ..options import did_you_mean
 
 __all__ = ["read_subcatchments"]
 
@@ -103,16 +103,14 @@ def _check_layer(path: str | Path, layer: str | None) -> str:
     if layer is None:
         return layers[0]
     if layer not in layers:
-        raise VectorError(f"{name}:{layer}", "no such layer", f"use one of {layers}")
+        raise VectorError(f"{name}:{layer}", "no such layer", did_you_mean(layer, layers))
     return layer
 
 
 def _check_field(here: str, field: str, fields: list[str]) -> None:
     if field in fields:
         return
-    near = difflib.get_close_matches(field, fields, n=1, cutoff=0.5)
-    hint = f"did you mean {near[0]!r}?" if near else f"use one of {fields}"
-    raise VectorError(f"{here}:{field}", "no such field", hint)
+    raise VectorError(f"{here}:{field}", "no such field", did_you_mean(field, fields))
 
 
 def _checked_ids(values: object, here: str) -> np.ndarray:

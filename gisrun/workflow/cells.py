@@ -24,8 +24,8 @@ from numpy.typing import NDArray
 from pyproj import CRS
 
 from ..grid import cells as cellgrid
-from ..grid.classes import ClassGrid
-from ..io.geotiff import grid_of, read_padded
+from ..grid.classes import ClassGrid, read_padded
+from ..io.geotiff import grid_of
 from ..model import CellRasters, Inputs
 from ..project import Project
 

@@ -10,7 +10,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from gisrun.config.storms import storm_from_config, storms_from_config
-from gisrun.errors import GisrunWarning, OutputExistsError, StormError
+from gisrun.errors import GisrunWarning, OutputError, OutputExistsError, StormError
 from gisrun.io.storm_csv import read_hyetograph_csv, read_idf_table_csv, write_hyetograph_csv
 from gisrun.storm import Hyetograph, nrcs_24h
 from gisrun.units import SI, US
@@ -155,6 +155,22 @@ def test_write_refuses_to_replace_when_asked(tmp_path):
     path = write_hyetograph_csv(h, tmp_path / "s.csv", units=SI)
     with pytest.raises(OutputExistsError, match="s.csv"):
         write_hyetograph_csv(h, path, units=SI, overwrite=False)
+
+
+def test_a_failed_write_keeps_the_old_file_and_leaves_no_partial_one(tmp_path, monkeypatch):
+    h = nrcs_24h("II", 0.05, 3600)
+    path = write_hyetograph_csv(h, tmp_path / "s.csv", units=SI)
+    before = path.read_bytes()
+
+    def disk_full(self, *_args, **_kwargs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(Path, "write_text", disk_full)
+    with pytest.raises(OutputError, match=r"s\.csv: could not be written .*No space left"):
+        write_hyetograph_csv(h, path, units=US, overwrite=True)
+    monkeypatch.undo()
+    assert path.read_bytes() == before
+    assert [p.name for p in tmp_path.iterdir()] == ["s.csv"]
 
 
 def test_read_idf_table(tmp_path):

@@ -59,6 +59,8 @@ def test_unknown_layer_lists_layers(polygon_file):
     with pytest.raises(VectorError,
                        match=r"sub\.gpkg:catchments: no such layer; use one of \['basins'\]"):
         read_subcatchments(path, id_field="sid", layer="catchments")
+    with pytest.raises(VectorError, match=r"sub\.gpkg:basin: no such layer; did you mean 'basins'"):
+        read_subcatchments(path, id_field="sid", layer="basin")
 
 
 def test_missing_field_suggests_nearest(polygon_file):
