@@ -35,13 +35,22 @@ Examples
 
 from __future__ import annotations
 
-import difflib
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
+from ..engine import PARAMETERS, method_name
 from ..errors import ProjectFileError
+from ..options import (
+    COMBINE_RULES,
+    DUAL_GROUP_CONDITIONS,
+    NODATA_RULES,
+    UNIT_SYSTEMS,
+    Choices,
+    did_you_mean,
+)
+from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_labels
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import UnitSystem, unit_system
 
@@ -58,10 +67,9 @@ __all__ = [
 #: File names looked for when a folder is given instead of a project file.
 PROJECT_FILE_NAMES = ("gisrun.toml", "project.toml")
 
-SOIL_CLASSIFICATIONS = ("hydrologic_soil_group", "texture")
-DUAL_GROUP_CONDITIONS = ("drained", "undrained")
-NODATA_RULES = ("error", "dominant", "omit")
-COMBINE_RULES = ("units", "composite")
+#: ``[soil] classification``: the names of the soil classification registry.
+SOIL_CLASSIFICATIONS = Choices(CLASSIFICATIONS, what="soil classification",
+                               default="hydrologic_soil_group")
 
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
@@ -162,7 +170,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
             codes=reader.codes(soil, "soil"),
             classification=reader.choice(soil, "soil", "classification", SOIL_CLASSIFICATIONS),
             dual_group_condition=reader.choice(
-                soil, "soil", "dual_group_condition", DUAL_GROUP_CONDITIONS, default="undrained"),
+                soil, "soil", "dual_group_condition", DUAL_GROUP_CONDITIONS),
             initial_saturation=reader.number(
                 soil, "soil", "initial_saturation", default=0.3, low=0.0, high=1.0),
             crs=reader.string(soil, "soil", "crs", required=False),
@@ -170,20 +178,18 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         ),
         cover=_cover(reader, cover),
         storms=_storms(reader, raw),
-        nodata_rule=reader.choice(nodata, "nodata", "rule", NODATA_RULES, default="dominant"),
+        nodata_rule=reader.choice(nodata, "nodata", "rule", NODATA_RULES),
         max_nodata_fraction=reader.number(
             nodata, "nodata", "max_fraction", default=0.25, low=0.0, high=1.0),
         method=_method_name(reader, method),
-        combine=reader.choice(method, "method", "combine", COMBINE_RULES, default="units"),
+        combine=reader.choice(method, "method", "combine", COMBINE_RULES),
         overrides=reader.path(overrides) if overrides else None,
         rain_scale_field=reader.string(rain_scale, "rain_scale", "field", required=False),
         memory_budget_mb=reader.number(top, "project", "memory_budget_mb", default=1500.0,
                                        low=50.0),
         compare_composite=reader.flag(method, "method", "compare_composite", default=False),
-        initial_abstraction_ratio=reader.closest_number(
-            method, "method", "initial_abstraction_ratio", (0.2, 0.05), default=0.2),
-        antecedent_condition=int(reader.closest_number(
-            method, "method", "antecedent_condition", (1, 2, 3), default=2)),
+        initial_abstraction_ratio=reader.declared(method, "method", "initial_abstraction_ratio"),
+        antecedent_condition=int(reader.declared(method, "method", "antecedent_condition")),
         overlay_cache=_optional_path(reader, top, "project", "overlay_cache"),
     )
     _check_class_labels(reader, project)
@@ -198,8 +204,6 @@ def _optional_path(reader: _Reader, table: Mapping[str, Any], section: str, key:
 
 def _check_class_labels(reader: _Reader, project: Project) -> None:
     """Stop on a code table entry naming a class the parameter tables do not know."""
-    from ..parameters._soils import check_cover_labels, check_soil_labels
-
     for code, label in project.soil.codes.items():
         check_soil_labels([label], project.soil.classification,
                           reader.where("soil.codes", f'"{code}"'))
@@ -220,7 +224,7 @@ def _water_content(reader: _Reader, soil: Mapping[str, Any]) -> float | None:
 
 
 def _units(reader: _Reader, top: Mapping[str, Any]) -> UnitSystem:
-    name = reader.choice(top, "project", "units", ("si", "us"), default="si")
+    name = reader.choice(top, "project", "units", UNIT_SYSTEMS)
     return unit_system(name)
 
 
@@ -254,10 +258,8 @@ def _storms(reader: _Reader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ..
 
 
 def _method_name(reader: _Reader, method: Mapping[str, Any]) -> str:
-    from ..engine import ENGINES  # the registry is the list of valid names
-
     name = reader.string(method, "method", "name", default="green_ampt")
-    return reader.closest(name.strip().lower(), sorted(ENGINES), "method", "name")
+    return method_name(name, where=reader.where("method", "name"), error=ProjectFileError)
 
 
 class _Reader:
@@ -275,9 +277,8 @@ class _Reader:
         valid = _SCHEMA[section]
         for key in table:
             if key not in valid:
-                near = difflib.get_close_matches(key, valid, n=1)
-                hint = f"did you mean {near[0]!r}?" if near else f"valid keys are {list(valid)}"
-                raise ProjectFileError(self.where(section, key), "is not a known key", hint)
+                raise ProjectFileError(self.where(section, key), "is not a known key",
+                                       did_you_mean(key, valid))
 
     def table(self, raw: Mapping[str, Any], section: str, *, required: bool = True
               ) -> Mapping[str, Any]:
@@ -334,9 +335,11 @@ class _Reader:
             )
         return tuple(value)
 
-    def closest_number(self, table: Mapping[str, Any], section: str, key: str,
-                       allowed: tuple[float, ...], *, default: float) -> float:
-        value = self.number(table, section, key, default=default)
+    def declared(self, table: Mapping[str, Any], section: str, key: str) -> float:
+        """A run option declared as a loss-method parameter (its allowed values and default)."""
+        parameter = PARAMETERS[key]
+        allowed = parameter.allowed
+        value = self.number(table, section, key, default=parameter.missing)
         if value not in allowed:
             raise ProjectFileError(self.where(section, key), f"is {value:g}",
                                    f"use one of {[f'{a:g}' for a in allowed]}")
@@ -351,18 +354,11 @@ class _Reader:
             )
         return value
 
-    def choice(self, table: Mapping[str, Any], section: str, key: str,
-               valid: tuple[str, ...], *, default: str | None = None) -> str:
-        value = self.string(table, section, key, default=default if default else valid[0])
-        return self.closest(value.lower(), valid, section, key)
-
-    def closest(self, value: str, valid: tuple[str, ...] | list[str], section: str,
-                key: str) -> str:
-        if value in valid:
-            return value
-        near = difflib.get_close_matches(value, valid, n=1)
-        hint = f"did you mean {near[0]!r}?" if near else f"use one of {list(valid)}"
-        raise ProjectFileError(self.where(section, key), f"{value!r} is not allowed", hint)
+    def choice(self, table: Mapping[str, Any], section: str, key: str, valid: Choices
+               ) -> str:
+        """One of ``valid``, spelled any way :func:`~gisrun.options.normalize_name` allows."""
+        value = self.string(table, section, key, default=valid.default)
+        return valid.pick(value, where=self.where(section, key), error=ProjectFileError)
 
     def codes(self, table: Mapping[str, Any], section: str) -> dict[int, str]:
         raw = table.get("codes")

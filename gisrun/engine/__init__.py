@@ -29,15 +29,13 @@ from numpy.typing import ArrayLike, NDArray
 from ..errors import GisrunError, ParameterError, StormError
 from ..options import choose
 from .base import (
-    PARAMETER_FRAME,
     FloatArray,
     LossResult,
     StepResult,
     no_ponding_offsets,
     take_params,
 )
-from .declare import Parameter
-from .phi_index import fit_constant_loss_rate, fit_phi_index
+from .declare import PARAMETER_FRAME, Parameter
 
 __all__ = [
     "ENGINES",
@@ -70,6 +68,16 @@ ENGINES: dict[str, ModuleType] = _discover()
 PARAMETERS: dict[str, Parameter] = {
     p.column: p for m in ENGINES.values() for p in m.PARAMETERS
 }
+
+
+def __getattr__(name: str) -> object:
+    """``fit_phi_index`` and ``fit_constant_loss_rate`` from the phi-index module (PEP 562).
+
+    Read from the registry, so this package imports no method module by name.
+    """
+    if name in ("fit_phi_index", "fit_constant_loss_rate"):
+        return getattr(ENGINES["phi_index"], name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def method_name(text: object, *, where: str = "loss method",

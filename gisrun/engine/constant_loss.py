@@ -60,7 +60,7 @@ ORDER = 40
 #: Parameters (declarations; see :mod:`gisrun.engine.declare`).
 PARAMETERS: tuple[Parameter, ...] = (
     Parameter("initial_loss_m", "m", default="initial_loss",
-              impervious="impervious_depression_storage"),
+              impervious="impervious_storage_as_initial_loss"),
     Parameter("constant_loss_m_per_s", "m/s", default="group_min_infiltration"),
     DEPRESSION_STORAGE,
 )

@@ -59,13 +59,12 @@ import pandas as pd
 
 from ..errors import ParameterError
 from .base import (
-    PARAMETER_FRAME,
     FloatArray,
     StepResult,
     no_ponding_offsets,
     start_offsets,
 )
-from .declare import Parameter
+from .declare import PARAMETER_FRAME, Parameter
 
 __all__ = [
     "NAME",

@@ -16,11 +16,18 @@ import math
 from dataclasses import dataclass
 from typing import Literal
 
+import numpy as np
 import pandas as pd
+from numpy.typing import NDArray
 
-from .base import FloatArray, read_column
+from ..errors import ParameterError
 
-__all__ = ["Parameter", "DEPRESSION_STORAGE", "Weighting"]
+__all__ = ["Parameter", "DEPRESSION_STORAGE", "Weighting", "read_column", "PARAMETER_FRAME"]
+
+#: The name used for the unit parameter frame in error messages.
+PARAMETER_FRAME = "unit parameters"
+
+FloatArray = NDArray[np.float64]
 
 #: How a parameter is averaged over a subcatchment's parts in a composite:
 #: ``"area"``: area-weighted arithmetic mean over the whole subcatchment (impervious parts at
@@ -107,3 +114,68 @@ class Parameter:
 DEPRESSION_STORAGE = Parameter(
     "depression_storage_m", "m", default="cover_depression_storage",
     impervious="impervious_depression_storage")
+
+
+def read_column(
+    frame: pd.DataFrame,
+    name: str,
+    *,
+    default: float | None = None,
+    low: float | None = None,
+    high: float | None = None,
+    low_open: bool = False,
+) -> FloatArray:
+    """Read one SI parameter column as float64 and check its range.
+
+    Parameters
+    ----------
+    frame : DataFrame
+        The unit parameter frame.
+    name : str
+        Column name (``"ks_m_per_s"``).
+    default : float, optional
+        Value used when the column is absent or a cell is empty; without it a
+        missing column or empty cell is an error.
+    low, high : float, optional
+        Allowed range (inclusive; ``low`` exclusive when ``low_open``).
+
+    Returns
+    -------
+    ndarray of float64, shape (len(frame),)
+
+    Raises
+    ------
+    ParameterError
+        Missing column, non-numeric, empty or out-of-range value (names the
+        column, row and value).
+    """
+    if name not in frame.columns:
+        if default is None:
+            raise ParameterError(f"{PARAMETER_FRAME}:{name}", "column is missing",
+                                 "add the column (SI units) or choose another loss method")
+        return np.full(len(frame), float(default))
+    try:
+        values = pd.to_numeric(frame[name], errors="raise").to_numpy(dtype=np.float64, copy=True)
+    except (ValueError, TypeError):
+        raise ParameterError(f"{PARAMETER_FRAME}:{name}", "holds values that are not numbers",
+                             "give numbers in SI units") from None
+    if default is not None:
+        values[np.isnan(values)] = default
+    bad = ~np.isfinite(values)
+    if low is not None:
+        bad |= (values <= low) if low_open else (values < low)
+    if high is not None:
+        bad |= values > high
+    if bad.any():
+        pos = int(np.flatnonzero(bad)[0])
+        limits = _describe_range(low, high, low_open)
+        raise ParameterError(f"{PARAMETER_FRAME}:{name}:row {frame.index[pos]!r}",
+                             f"value {float(values[pos])!r} is empty or outside {limits}",
+                             "correct the value or its parameter table entry")
+    return values
+
+
+def _describe_range(low: float | None, high: float | None, low_open: bool) -> str:
+    lo = "(-inf" if low is None else ("(" if low_open else "[") + repr(low)
+    hi = "inf)" if high is None else repr(high) + "]"
+    return f"{lo}, {hi}"

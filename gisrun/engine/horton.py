@@ -57,14 +57,13 @@ import pandas as pd
 
 from ..errors import ParameterError
 from .base import (
-    PARAMETER_FRAME,
     FloatArray,
     StepResult,
     no_ponding_offsets,
     set_nonnegative_arrays,
     split_surface_water,
 )
-from .declare import DEPRESSION_STORAGE, Parameter
+from .declare import DEPRESSION_STORAGE, PARAMETER_FRAME, Parameter
 
 __all__ = [
     "NAME",
