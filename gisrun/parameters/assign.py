@@ -39,7 +39,7 @@ higher source than the value itself.
 
 from __future__ import annotations
 
-from typing import Literal, NamedTuple
+from typing import NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -81,8 +81,8 @@ class AssignedParameters(NamedTuple):
 def assign_parameters(
     units: pd.DataFrame,
     *,
-    classification: Literal["hydrologic_soil_group", "texture"],
-    dual_group_condition: Literal["drained", "undrained"] = "undrained",
+    classification: str,
+    dual_group_condition: str = DUAL_GROUP_CONDITIONS.default,
     initial_saturation: float,
     method: str,
     overrides: pd.DataFrame | None = None,
@@ -100,15 +100,16 @@ def assign_parameters(
     units : DataFrame
         Unit table: ``subcatchment_id``, ``soil_class``, ``cover_class``,
         ``area_m2`` (m2).
-    classification : {"hydrologic_soil_group", "texture"}
-        What the soil labels are.
-    dual_group_condition : {"drained", "undrained"}
-        How A/D, B/D, C/D are read (NEH 630 Ch. 7, 2009).
+    classification : str
+        What the soil labels are: a name of :data:`gisrun.parameters.soils.CLASSIFICATIONS`.
+    dual_group_condition : str
+        How A/D, B/D, C/D are read (NEH 630 Ch. 7, 2009): one of
+        :data:`gisrun.options.DUAL_GROUP_CONDITIONS`.
     initial_saturation : float
         Initial effective saturation, 0-1 (-).
     method : str
-        Default loss method (``green_ampt``, ``horton``, ``curve_number``,
-        ``constant_loss``, ``phi_index``).
+        Default loss method: a name of :data:`gisrun.engine.ENGINES`, spelled any
+        way :func:`gisrun.engine.method_name` reads.
     overrides : DataFrame, optional
         Override table (see :mod:`gisrun.parameters.overrides`), raw or as
         returned by :func:`gisrun.io.tables.read_parameter_overrides`.

@@ -34,7 +34,7 @@ from ..aggregate import (
 )
 from ..config.project import Project, load_project
 from ..config.storms import storms_from_config
-from ..engine import LossResult, run_losses
+from ..engine import LossResult, method_name, run_losses
 from ..errors import GisrunWarning, ParameterError, RasterError, VectorError
 from ..grid.overlay import compute_unit_areas
 from ..io.raster import ClassRaster, read_class_raster
@@ -300,29 +300,16 @@ def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.Dat
     field_name = project.subcatchments.method_field
     if field_name:
         methods = subs[field_name].astype(object).where(subs[field_name].notna(), None)
-        attrs["loss_method"] = methods.map(
-            lambda v: v.strip().lower() if isinstance(v, str) and v.strip() else None)
-        _check_methods(attrs.dropna(subset=["loss_method"]), project)
+        where = f"{project.subcatchments.path.name}:{field_name}"
+        attrs["loss_method"] = [
+            method_name(v, where=f"{where}:id={sid}", error=VectorError)
+            if isinstance(v, str) and v.strip() else None
+            for sid, v in zip(attrs["subcatchment_id"], methods, strict=True)]
     for name in project.subcatchments.parameter_fields:
         attrs[name] = subs[name].to_numpy()
     values = attrs.drop(columns="subcatchment_id")
     attrs = attrs[values.notna().any(axis=1).to_numpy()] if values.shape[1] else attrs.iloc[:0]
     return attrs if len(attrs) else None
-
-
-def _check_methods(attrs: pd.DataFrame, project: Project) -> None:
-    import difflib
-
-    from ..engine import ENGINES
-
-    for sub_id, name in zip(attrs["subcatchment_id"], attrs["loss_method"], strict=True):
-        if name not in ENGINES:
-            near = difflib.get_close_matches(name, sorted(ENGINES), n=1)
-            hint = f"did you mean {near[0]!r}?" if near else f"use one of {sorted(ENGINES)}"
-            raise VectorError(
-                f"{project.subcatchments.path.name}:{project.subcatchments.method_field}"
-                f":id={sub_id}", f"names an unknown method {name!r}", hint,
-            )
 
 
 def run_storm(
