@@ -91,7 +91,7 @@ def test_every_method_module_declares_what_the_registry_needs():
         for _, (column, part) in module.MODEL_INPUTS.items():
             assert column in columns and part in ("pervious", "impervious", "all")
         for p in module.PARAMETERS:  # every default names a rule that exists
-            assert p.default in RULES or p.default.startswith("run_antecedent")
+            assert p.default in RULES or p.default.startswith(("run_antecedent", "table:"))
             assert not isinstance(p.impervious, str) or p.impervious in IMPERVIOUS_RULES
 
 

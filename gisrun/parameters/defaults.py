@@ -15,6 +15,10 @@ Pervious rules
     loss (common practice); ``group_min_infiltration``: midpoint of the group's
     minimum infiltration range (TR-55 1986, App. A); ``run_abstraction_ratio``:
     the run's Ia/S.
+``table:<name>``
+    The shipped table ``data/<name>.csv`` (see :mod:`gisrun.parameters.tables`):
+    its first column is the key (group, texture or cover class), and the value is
+    the column named for the parameter in a published unit, converted to SI.
 Impervious rules
     ``impervious_depression_storage`` (the run's, 1.5 mm by default, common
     practice), ``impervious_curve_number`` (98, TR-55 1986 Table 2-2a),
@@ -34,10 +38,10 @@ import pandas as pd
 from ..engine import PARAMETERS
 from ..errors import ParameterError
 from . import tables as T
-from .overrides import PARAMETER_COLUMNS, SOIL_PROPERTIES
+from .overrides import ALIASES, PARAMETER_COLUMNS, SOIL_PROPERTIES
 from .soils import SoilInfo
 
-__all__ = ["RULES", "ASSIGNED_COLUMNS", "RunSettings", "shipped_values"]
+__all__ = ["RULES", "IMPERVIOUS_RULES", "rule", "ASSIGNED_COLUMNS", "RunSettings", "shipped_values"]
 
 #: Every column a part gets a value and a source for: parameters, soil properties, method.
 ASSIGNED_COLUMNS: tuple[str, ...] = (*PARAMETER_COLUMNS, *SOIL_PROPERTIES, "loss_method")
@@ -140,6 +144,29 @@ def _run_abstraction_ratio(run: RunSettings) -> Value:
                    "et al. 2002 / Woodward et al. 2003)")
 
 
+def _from_table(parts: _Parts, column: str, name: str) -> Value:
+    """The parameter's column of a shipped table keyed by group, texture or cover class."""
+    table = T.read_shipped_table(name)
+    key = str(table.frame.columns[0])
+    keys = {"hydrologic_soil_group": list(parts.group), "cover_class": list(parts.cover_key),
+            "texture": [s.texture for s in parts.info]}
+    given = [c for c in table.frame.columns if ALIASES.get(str(c), ("",))[0] == column]
+    if key not in keys or len(given) != 1:
+        raise ParameterError(f"parameter table {name}", f"has no single {column} column keyed "
+                             f"by one of {sorted(keys)}", "fix the shipped table")
+    factor = ALIASES[str(given[0])][1]
+    values = table.frame.set_index(key).loc[keys[key], given[0]].to_numpy(float) * factor
+    return values, [f"{table.title} ({name}), {key} {k}" for k in keys[key]]
+
+
+def rule(default: str) -> Callable[[_Parts, str], Value]:
+    """The pervious rule a declared ``default`` names (a key of :data:`RULES` or ``table:``)."""
+    if default.startswith("table:"):
+        name = default.removeprefix("table:")
+        return lambda parts, column: _from_table(parts, column, name)
+    return RULES[default]
+
+
 #: Rule name -> the values and sources it gives pervious parts.
 RULES: dict[str, Callable[[_Parts, str], Value]] = {
     "texture_green_ampt": _texture_green_ampt,
@@ -174,7 +201,7 @@ def shipped_values(rows: pd.DataFrame, soils: dict[str, SoilInfo], run: RunSetti
     parts = _Parts(rows[perv], soils, run)
     for column in (*PARAMETER_COLUMNS, *SOIL_PROPERTIES):
         p = PARAMETERS[column]
-        values.loc[perv, column], sources.loc[perv, column] = RULES[p.default](parts, column)
+        values.loc[perv, column], sources.loc[perv, column] = rule(p.default)(parts, column)
         if isinstance(p.impervious, str):
             value, source = IMPERVIOUS_RULES[p.impervious](run)
         elif math.isnan(p.impervious):

@@ -35,6 +35,7 @@ __all__ = [
     "LOSS_METHODS",
     "PARAMETER_COLUMNS",
     "SOIL_PROPERTIES",
+    "ALIASES",
     "accepted_columns",
     "normalize_overrides",
     "check_loss_method",
@@ -52,7 +53,7 @@ PARAMETER_COLUMNS: tuple[str, ...] = tuple(
 SOIL_PROPERTIES: tuple[str, ...] = tuple(
     c for c, p in PARAMETERS.items() if not p.in_frame and p.overridable)
 #: The published units an override column may use, per SI unit, with their factor to SI.
-_UNIT_ALIASES: dict[str, tuple[str, dict[str, float]]] = {
+_UNITALIASES: dict[str, tuple[str, dict[str, float]]] = {
     "m/s": ("_m_per_s", {u: FACTORS_TO_SI[u]
                          for u in ("m_per_s", "mm_per_h", "cm_per_h", "in_per_h", "um_per_s")}),
     "1/s": ("_per_s", {"per_s": 1.0, "per_min": 1 / 60.0, "per_h": 1 / 3600.0,
@@ -65,21 +66,22 @@ _IGNORED = ("note",)
 def _aliases(parameter: Parameter) -> dict[str, tuple[str, float]]:
     """Override column names of one declared parameter -> (SI column, factor to SI)."""
     si = parameter.column
-    if parameter.unit not in _UNIT_ALIASES:
+    if parameter.unit not in _UNITALIASES:
         return {si: (si, 1.0)}
-    suffix, units = _UNIT_ALIASES[parameter.unit]
+    suffix, units = _UNITALIASES[parameter.unit]
     stem = si[: -len(suffix)]
     return {f"{stem}_{u.removeprefix('_')}": (si, f) for u, f in units.items()}
 
 
-_ALIASES: dict[str, tuple[str, float]] = {
+#: Every accepted parameter column name (SI or a published unit) -> (SI column, factor to SI).
+ALIASES: dict[str, tuple[str, float]] = {
     name: target for c in (*PARAMETER_COLUMNS, *SOIL_PROPERTIES)
     for name, target in _aliases(PARAMETERS[c]).items()}
 
 
 def accepted_columns() -> list[str]:
     """Every column name an override table may have (keys, parameters, ``note``)."""
-    return [*KEY_COLUMNS, *sorted(_ALIASES), "loss_method", *_IGNORED]
+    return [*KEY_COLUMNS, *sorted(ALIASES), "loss_method", *_IGNORED]
 
 
 def check_loss_method(name: object, where: str) -> str:
@@ -129,7 +131,7 @@ def normalize_overrides(
     for key in KEY_COLUMNS:
         out[key] = _key_column(frame, key)
     for col in _parameter_columns(frame, where):
-        si, factor = _ALIASES[col]
+        si, factor = ALIASES[col]
         given = _numbers(frame[col], where, col, names)
         out[si] = given * factor
         _check_range(out[si], si, where, col, names, out["surface"], given)
@@ -165,14 +167,14 @@ def _parameter_columns(frame: pd.DataFrame, where: str) -> list[str]:
     for col in frame.columns:
         if col in KEY_COLUMNS or col in _IGNORED or col == "loss_method":
             continue
-        if col not in _ALIASES:
+        if col not in ALIASES:
             near = did_you_mean(col, accepted)
             hint = f"{near}; " if near.startswith("did") else ""
             raise ParameterError(
                 f"{where}:{col}", "is not a parameter column",
                 f"{hint}name a parameter with its unit, e.g. ks_mm_per_h, suction_head_mm",
             )
-        si = _ALIASES[col][0]
+        si = ALIASES[col][0]
         if si in seen:
             raise ParameterError(
                 f"{where}:{col}", f"gives the same parameter as column {seen[si]!r}",
