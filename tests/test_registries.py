@@ -10,6 +10,7 @@ system). The checks here are of gisrun's own wiring, not of hydrology: no extern
 from __future__ import annotations
 
 import ast
+import sys
 from pathlib import Path
 
 import click
@@ -18,18 +19,19 @@ import pandas as pd
 import pytest
 from bad_inputs_helpers import edit_toml, make_project, write_subcatchments
 
-from gisrun import options
+from gisrun import engine, options
 from gisrun.cli.main import cli
 from gisrun.config import project as project_file
 from gisrun.config.project import load_project
-from gisrun.config.storms import FILE_KIND, STORM_KINDS
+from gisrun.config.storms import FILE_KIND, STORM_KINDS, storm_from_config
 from gisrun.engine import ENGINES, PARAMETERS, method_name, run_losses
-from gisrun.errors import ParameterError, ProjectFileError, VectorError
+from gisrun.errors import ParameterError, ProjectFileError, StormError, VectorError
 from gisrun.parameters import composite, overrides
 from gisrun.parameters.defaults import IMPERVIOUS_RULES, RULES
 from gisrun.parameters.soils import CLASSIFICATIONS, valid_soil_labels
 from gisrun.present import model_inputs
-from gisrun.storm import KINDS
+from gisrun.storm import KINDS, StormKey, StormKind, uniform
+from gisrun.units import SI
 from gisrun.workflow.pipeline import run
 
 PACKAGE = Path(__file__).resolve().parents[1] / "gisrun"
@@ -200,3 +202,37 @@ def test_a_misspelling_is_refused_the_same_way_everywhere(tmp_path):
     with pytest.raises(VectorError, match=r"sub\.gpkg:how:id=S1: unknown loss method") as err:
         run(path)
     assert hint in str(err.value)
+
+
+# --- adding a kind or a method touches only its own files --------------------------------------
+
+
+def test_a_storm_kind_is_one_registry_entry(monkeypatch):
+    """A kind added to KINDS is read by the project file with no other change."""
+    steady = StormKind(uniform, (StormKey("rain", "depth_m", "depth"),
+                                 StormKey("hours", "duration_s", "minutes")),
+                       (StormKey("step_min", "step_s", "minutes", default=10.0),),
+                       default_name="steady_{rain}")
+    monkeypatch.setitem(KINDS, "steady", steady)
+    h = storm_from_config({"kind": "steady", "rain": 12, "hours": 60}, base_dir=Path("."),
+                          units=SI, where="x")
+    # 12 mm over 60 min in 10-min steps: 2 mm per step, by hand
+    assert h.name == "steady_12mm" and len(h.depth_m) == 6
+    np.testing.assert_allclose(h.depth_m, 0.002, rtol=1e-12)
+    with pytest.raises(StormError, match=r"x\.depth: does not apply to kind 'steady'"):
+        storm_from_config({"kind": "steady", "rain": 1, "hours": 60, "depth": 3},
+                          base_dir=Path("."), units=SI, where="x")
+
+
+def test_a_loss_method_is_found_by_its_module(tmp_path, monkeypatch):
+    """A module with a NAME in the engine package joins ENGINES; nothing else lists it."""
+    (tmp_path / "steady_loss.py").write_text(
+        "from gisrun.engine.phi_index import (MODEL_INPUTS, PARAMETERS, Params, State,\n"
+        "                                      initial_state, step)\n"
+        'NAME = "steady_loss"\nORDER = 99\n')
+    monkeypatch.setattr(engine, "__path__", [*engine.__path__, str(tmp_path)])
+    try:
+        found = engine._discover()
+    finally:
+        sys.modules.pop("gisrun.engine.steady_loss", None)
+    assert list(found) == [*ENGINES, "steady_loss"]

@@ -28,11 +28,13 @@ __all__ = ["storm_from_config", "storms_from_config", "STORM_KINDS", "FILE_KIND"
 
 #: The kind that reads a hyetograph CSV (the other kinds are :data:`gisrun.storm.KINDS`).
 FILE_KIND = "file"
-#: Every ``kind`` a ``[[storms]]`` table may name.
+#: Every ``kind`` a ``[[storms]]`` table may name (the registry is read again at each call).
 STORM_KINDS: tuple[str, ...] = (*KINDS, FILE_KIND)
 _COMMON = ("name", "kind")
-_ALL_KEYS = sorted({k.name for kind in KINDS.values() for k in kind.keys}
-                   | {"path", *_COMMON})
+
+
+def _all_keys() -> list[str]:
+    return sorted({k.name for kind in KINDS.values() for k in kind.keys} | {"path", *_COMMON})
 
 
 def storm_from_config(
@@ -65,7 +67,7 @@ def storm_from_config(
     table = TableReader(spec, where, base_dir, error=StormTableError)
     kind = _kind(table)
     keys = ("path",) if kind == FILE_KIND else tuple(k.name for k in KINDS[kind].keys)
-    table.check_keys((*_COMMON, *keys), elsewhere=_ALL_KEYS,
+    table.check_keys((*_COMMON, *keys), elsewhere=_all_keys(),
                      elsewhere_problem=f"does not apply to kind {kind!r}",
                      elsewhere_fix=f"remove it; keys for {kind!r} are {sorted((*_COMMON, *keys))}")
     for key in keys if kind == FILE_KIND else (k.name for k in KINDS[kind].required):
@@ -108,11 +110,11 @@ def storms_from_config(
 
 def _kind(table: TableReader) -> str:
     kind = table.data.get("kind")
+    kinds = [*KINDS, FILE_KIND]
     if kind is None:
-        table.fail(None, "has no kind", f"add kind = one of {list(STORM_KINDS)}")
-    if not isinstance(kind, str) or kind.strip().lower() not in STORM_KINDS:
-        table.fail("kind", f"unknown storm kind {kind!r}",
-                   did_you_mean(str(kind).lower(), STORM_KINDS))
+        table.fail(None, "has no kind", f"add kind = one of {kinds}")
+    if not isinstance(kind, str) or kind.strip().lower() not in kinds:
+        table.fail("kind", f"unknown storm kind {kind!r}", did_you_mean(str(kind).lower(), kinds))
     return kind.strip().lower()
 
 
