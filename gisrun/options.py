@@ -2,7 +2,14 @@
 
 A choice typed by a user (``"Green-Ampt"``, ``"green ampt"``, ``"GREEN_AMPT"``) goes
 through :func:`normalize_name` wherever it is read, so it means the same everywhere;
-an unknown one gets the hint from :func:`did_you_mean`.
+an unknown one gets the hint from :func:`did_you_mean`, and :func:`choose` does both.
+
+The registries of the project file's fixed choices live here as :class:`Choices`
+(:data:`NODATA_RULES`, :data:`COMBINE_RULES`, :data:`DUAL_GROUP_CONDITIONS`,
+:data:`UNIT_SYSTEMS`). Choices that belong to a computing package have their registry
+there and are read from it: loss methods ``gisrun.engine.ENGINES``, soil
+classifications ``gisrun.parameters.soils.CLASSIFICATIONS``, storm kinds
+``gisrun.storm.KINDS``.
 
 Examples
 --------
@@ -12,6 +19,8 @@ Examples
 "did you mean 'horton'?"
 >>> did_you_mean("zzz", ["b", "a"])
 "use one of ['a', 'b']"
+>>> NODATA_RULES.pick("Dominant", where="x")
+'dominant'
 """
 
 from __future__ import annotations
@@ -19,7 +28,10 @@ from __future__ import annotations
 import difflib
 from collections.abc import Iterable
 
-__all__ = ["normalize_name", "did_you_mean"]
+from .errors import GisrunError, InputError
+
+__all__ = ["normalize_name", "did_you_mean", "choose", "Choices", "NODATA_RULES",
+           "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -32,3 +44,64 @@ def did_you_mean(value: object, valid: Iterable[str], *, cutoff: float = 0.5) ->
     choices = sorted(dict.fromkeys(str(v) for v in valid))
     near = difflib.get_close_matches(str(value), choices, n=1, cutoff=cutoff)
     return f"did you mean {near[0]!r}?" if near else f"use one of {choices}"
+
+
+def choose(text: object, valid: Iterable[str], *, where: str, what: str = "choice",
+           error: type[GisrunError] = InputError) -> str:
+    """The valid name ``text`` means after :func:`normalize_name`, or ``error`` naming it.
+
+    Raises
+    ------
+    GisrunError
+        Of the class ``error``: ``<where>: unknown <what> '<text>'; did you mean ...``.
+
+    Examples
+    --------
+    >>> choose("Curve Number", ["curve_number", "horton"], where="x")
+    'curve_number'
+    """
+    valid = list(valid)
+    key = normalize_name(text)
+    if isinstance(text, str) and key in valid:
+        return key
+    raise error(where, f"unknown {what} {text!r}", did_you_mean(key, valid))
+
+
+class Choices(tuple[str, ...]):
+    """The accepted names of one option (normalized spelling), with its default.
+
+    A tuple of the names, so ``name in NODATA_RULES`` and ``click.Choice(NODATA_RULES)``
+    work; :meth:`pick` reads a user's spelling of one.
+    """
+
+    what: str
+    default: str
+
+    def __new__(cls, names: Iterable[str], *, what: str, default: str) -> Choices:  # noqa: D102
+        self = super().__new__(cls, tuple(names))
+        if default not in self:
+            raise ValueError(f"default {default!r} is not one of {tuple(self)}")
+        self.what, self.default = what, default
+        return self
+
+    def pick(self, text: object, *, where: str,
+             error: type[GisrunError] = InputError) -> str:
+        """The choice ``text`` names (see :func:`choose`)."""
+        return choose(text, self, where=where, what=self.what, error=error)
+
+
+#: What happens to subcatchment area without soil data (``[nodata] rule``).
+NODATA_RULES = Choices(("error", "dominant", "omit"), what="nodata rule", default="dominant")
+#: How a subcatchment's units are run (``[method] combine``).
+COMBINE_RULES = Choices(("units", "composite"), what="combine rule", default="units")
+#: How dual hydrologic soil groups A/D, B/D, C/D are read (``[soil] dual_group_condition``).
+DUAL_GROUP_CONDITIONS = Choices(("drained", "undrained"), what="dual-group condition",
+                                default="undrained")
+#: Unit systems of inputs and outputs (``[project] units``).
+UNIT_SYSTEMS = Choices(("si", "us"), what="unit system", default="si")
+
+#: Every fixed choice above by the name it is known under.
+CHOICES: dict[str, Choices] = {
+    "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
+    "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
+}

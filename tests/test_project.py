@@ -62,7 +62,7 @@ def test_folder_finds_project_file(tmp_path):
         (("id_field", "idfield"), r"\[subcatchments\]\.idfield.*did you mean 'id_field'"),
         (('name = "horton"', 'name = "hortn"'), r"\[method\]\.name.*did you mean 'horton'"),
         (("time_step_min = 10", "time_step_min = -1"), r"time_step_min.*outside"),
-        (("time_step_min = 10", 'time_step_min = "ten"'), r"time_step_min.*must be a number"),
+        (("time_step_min = 10", 'time_step_min = "ten"'), r"time_step_min.*not a number"),
         (("initial_saturation = 0.4", "initial_saturation = 1.4"), r"initial_saturation"),
         (('"1" = "silt loam"', '"one" = "silt loam"'), r"soil\.codes\]\.one.*whole-number"),
         (('units = "us"', 'units = "metric"'), r"units.*did you mean 'si'|units"),

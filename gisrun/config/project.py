@@ -35,15 +35,24 @@ Examples
 
 from __future__ import annotations
 
-import difflib
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
+from ..engine import PARAMETERS, method_name
 from ..errors import ProjectFileError
+from ..options import (
+    COMBINE_RULES,
+    DUAL_GROUP_CONDITIONS,
+    NODATA_RULES,
+    UNIT_SYSTEMS,
+    Choices,
+)
+from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_labels
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
-from ..units import UnitSystem, unit_system
+from ..units import unit_system
+from .reader import TableReader
 
 __all__ = [
     "PROJECT_FILE_NAMES",
@@ -58,11 +67,13 @@ __all__ = [
 #: File names looked for when a folder is given instead of a project file.
 PROJECT_FILE_NAMES = ("gisrun.toml", "project.toml")
 
-SOIL_CLASSIFICATIONS = ("hydrologic_soil_group", "texture")
-DUAL_GROUP_CONDITIONS = ("drained", "undrained")
-NODATA_RULES = ("error", "dominant", "omit")
-COMBINE_RULES = ("units", "composite")
+#: ``[soil] classification``: the names of the soil classification registry.
+SOIL_CLASSIFICATIONS = Choices(CLASSIFICATIONS, what="soil classification",
+                               default="hydrologic_soil_group")
 
+#: Tables that must be present.
+_REQUIRED = ("subcatchments", "soil")
+#: Keys of each table ("" = the top level); [[storms]] keys come from the storm kinds.
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
          "storms", "rain_scale"),
@@ -130,264 +141,115 @@ def load_project(path: str | Path) -> Project:
 
 
 def _build(file: Path, raw: dict[str, Any]) -> Project:
-    reader = _Reader(file)
-    reader.check_keys("", raw)
-    top = reader.table(raw, "project", required=False)
-    units = _units(reader, top)
-    step_min = reader.number(top, "project", "time_step_min", default=5.0, low=0.0, low_open=True)
-    sub = reader.table(raw, "subcatchments")
-    soil = reader.table(raw, "soil")
-    cover = reader.table(raw, "cover", required=False)
-    nodata = reader.table(raw, "nodata", required=False)
-    method = reader.table(raw, "method", required=False)
-    params = reader.table(raw, "parameters", required=False)
-    rain_scale = reader.table(raw, "rain_scale", required=False)
-    overrides = reader.string(params, "parameters", "overrides", required=False)
+    top_level = TableReader(raw, file.name, file.parent, top_level=True)
+    top_level.check_keys(_SCHEMA[""])
+    read = {name: _section(top_level, file, name, required=name in _REQUIRED)
+            for name in _SCHEMA if name}
+    top, method = read["project"], read["method"]
+    step_min = top.number("time_step_min", default=5.0, low=0.0, low_open=True)
     project = Project(
         path=file,
-        name=reader.string(top, "project", "name", default=file.parent.name) or file.parent.name,
-        units=units,
-        output=reader.path(reader.string(top, "project", "output", default="output/runoff.gpkg")),
+        name=top.string("name", default=file.parent.name) or file.parent.name,
+        units=unit_system(top.choice("units", UNIT_SYSTEMS)),
+        output=top.path("output", default="output/runoff.gpkg"),
         time_step_s=step_min * 60.0,
-        subcatchments=SubcatchmentSource(
-            path=reader.path(reader.string(sub, "subcatchments", "path")),
-            id_field=reader.string(sub, "subcatchments", "id_field"),
-            layer=reader.string(sub, "subcatchments", "layer", required=False),
-            crs=reader.string(sub, "subcatchments", "crs", required=False),
-            method_field=reader.string(sub, "subcatchments", "method_field", required=False),
-            parameter_fields=reader.strings(sub, "subcatchments", "parameter_fields"),
-        ),
-        soil=SoilSource(
-            path=reader.path(reader.string(soil, "soil", "path")),
-            codes=reader.codes(soil, "soil"),
-            classification=reader.choice(soil, "soil", "classification", SOIL_CLASSIFICATIONS),
-            dual_group_condition=reader.choice(
-                soil, "soil", "dual_group_condition", DUAL_GROUP_CONDITIONS, default="undrained"),
-            initial_saturation=reader.number(
-                soil, "soil", "initial_saturation", default=0.3, low=0.0, high=1.0),
-            crs=reader.string(soil, "soil", "crs", required=False),
-            initial_water_content=_water_content(reader, soil),
-        ),
-        cover=_cover(reader, cover),
-        storms=_storms(reader, raw),
-        nodata_rule=reader.choice(nodata, "nodata", "rule", NODATA_RULES, default="dominant"),
-        max_nodata_fraction=reader.number(
-            nodata, "nodata", "max_fraction", default=0.25, low=0.0, high=1.0),
-        method=_method_name(reader, method),
-        combine=reader.choice(method, "method", "combine", COMBINE_RULES, default="units"),
-        overrides=reader.path(overrides) if overrides else None,
-        rain_scale_field=reader.string(rain_scale, "rain_scale", "field", required=False),
-        memory_budget_mb=reader.number(top, "project", "memory_budget_mb", default=1500.0,
-                                       low=50.0),
-        compare_composite=reader.flag(method, "method", "compare_composite", default=False),
-        initial_abstraction_ratio=reader.closest_number(
-            method, "method", "initial_abstraction_ratio", (0.2, 0.05), default=0.2),
-        antecedent_condition=int(reader.closest_number(
-            method, "method", "antecedent_condition", (1, 2, 3), default=2)),
-        overlay_cache=_optional_path(reader, top, "project", "overlay_cache"),
+        subcatchments=_subcatchments(read["subcatchments"]),
+        soil=_soil(read["soil"]),
+        cover=_cover(read["cover"], present="cover" in raw),
+        storms=_storms(top_level, raw),
+        nodata_rule=read["nodata"].choice("rule", NODATA_RULES),
+        max_nodata_fraction=read["nodata"].number("max_fraction", default=0.25, low=0.0,
+                                                  high=1.0),
+        method=method_name(method.string("name", default="green_ampt"),
+                           where=method.where("name"), error=ProjectFileError),
+        combine=method.choice("combine", COMBINE_RULES),
+        overrides=read["parameters"].path("overrides", required=False),
+        rain_scale_field=read["rain_scale"].string("field", required=False),
+        memory_budget_mb=top.number("memory_budget_mb", default=1500.0, low=50.0),
+        compare_composite=method.flag("compare_composite", default=False),
+        initial_abstraction_ratio=_declared(method, "initial_abstraction_ratio"),
+        antecedent_condition=int(_declared(method, "antecedent_condition")),
+        overlay_cache=top.path("overlay_cache", required=False),
     )
-    _check_class_labels(reader, project)
+    _check_class_labels(file, project)
     return project
 
 
-def _optional_path(reader: _Reader, table: Mapping[str, Any], section: str, key: str
-                   ) -> Path | None:
-    value = reader.string(table, section, key, required=False)
-    return reader.path(value) if value else None
+def _section(top_level: TableReader, file: Path, name: str, *, required: bool) -> TableReader:
+    """The reader of one ``[name]`` table, its keys checked (``{}`` when absent)."""
+    if required and top_level.data.get(name) is None:
+        top_level.fail(name, "is missing", f"add a [{name}] table")
+    value = top_level.data.get(name)
+    if value is not None and not isinstance(value, dict):
+        raise ProjectFileError(f"{file.name}:[{name}]", "is not a table", f"write it as [{name}]")
+    reader = TableReader(value or {}, f"{file.name}:[{name}]", file.parent)
+    reader.check_keys(_SCHEMA[name])
+    return reader
 
 
-def _check_class_labels(reader: _Reader, project: Project) -> None:
-    """Stop on a code table entry naming a class the parameter tables do not know."""
-    from ..parameters._soils import check_cover_labels, check_soil_labels
-
-    for code, label in project.soil.codes.items():
-        check_soil_labels([label], project.soil.classification,
-                          reader.where("soil.codes", f'"{code}"'))
-    if project.cover is not None:
-        for code, label in project.cover.codes.items():
-            check_cover_labels([label], reader.where("cover.codes", f'"{code}"'))
-
-
-def _water_content(reader: _Reader, soil: Mapping[str, Any]) -> float | None:
-    if "initial_water_content" not in soil:
-        return None
-    if "initial_saturation" in soil:
-        raise ProjectFileError(
-            reader.where("soil", "initial_water_content"),
-            "is given together with initial_saturation", "keep only one of the two",
-        )
-    return reader.number(soil, "soil", "initial_water_content", default=0.0, low=0.0, high=1.0)
-
-
-def _units(reader: _Reader, top: Mapping[str, Any]) -> UnitSystem:
-    name = reader.choice(top, "project", "units", ("si", "us"), default="si")
-    return unit_system(name)
-
-
-def _cover(reader: _Reader, cover: Mapping[str, Any]) -> CoverSource | None:
-    if not cover:
-        return None
-    return CoverSource(
-        path=reader.path(reader.string(cover, "cover", "path")),
-        codes=reader.codes(cover, "cover"),
-        crs=reader.string(cover, "cover", "crs", required=False),
+def _subcatchments(sub: TableReader) -> SubcatchmentSource:
+    return SubcatchmentSource(
+        path=sub.path("path"),
+        id_field=sub.string("id_field"),
+        layer=sub.string("layer", required=False),
+        crs=sub.string("crs", required=False),
+        method_field=sub.string("method_field", required=False),
+        parameter_fields=sub.strings("parameter_fields", '["ks_mm_per_h", "curve_number"]'),
     )
 
 
-def _storms(reader: _Reader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ...]:
+def _soil(soil: TableReader) -> SoilSource:
+    return SoilSource(
+        path=soil.path("path"),
+        codes=soil.codes("soil"),
+        classification=soil.choice("classification", SOIL_CLASSIFICATIONS),
+        dual_group_condition=soil.choice("dual_group_condition", DUAL_GROUP_CONDITIONS),
+        initial_saturation=soil.number("initial_saturation", default=0.3, low=0.0, high=1.0),
+        crs=soil.string("crs", required=False),
+        initial_water_content=_water_content(soil),
+    )
+
+
+def _declared(method: TableReader, key: str) -> float:
+    """A curve-number run option, checked against its declaration (allowed values, default)."""
+    parameter = PARAMETERS[key]
+    return method.allowed(key, parameter.allowed, default=parameter.missing)
+
+
+def _check_class_labels(file: Path, project: Project) -> None:
+    """Stop on a code table entry naming a class the parameter tables do not know."""
+    for code, label in project.soil.codes.items():
+        check_soil_labels([label], project.soil.classification,
+                          f'{file.name}:[soil.codes]."{code}"')
+    if project.cover is not None:
+        for code, label in project.cover.codes.items():
+            check_cover_labels([label], f'{file.name}:[cover.codes]."{code}"')
+
+
+def _water_content(soil: TableReader) -> float | None:
+    if "initial_water_content" not in soil.data:
+        return None
+    if "initial_saturation" in soil.data:
+        soil.fail("initial_water_content", "is given together with initial_saturation",
+                  "keep only one of the two")
+    return soil.number("initial_water_content", low=0.0, high=1.0)
+
+
+def _cover(cover: TableReader, *, present: bool) -> CoverSource | None:
+    if not present or not cover.data:
+        return None
+    return CoverSource(path=cover.path("path"), codes=cover.codes("cover"),
+                       crs=cover.string("crs", required=False))
+
+
+def _storms(top_level: TableReader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ...]:
     storms = raw.get("storms")
-    if storms is None:
-        raise ProjectFileError(
-            reader.file.name, "names no storm", "add at least one [[storms]] table"
-        )
     if isinstance(storms, dict):
         storms = [storms]
-    if not isinstance(storms, list) or not all(isinstance(s, dict) for s in storms):
-        raise ProjectFileError(
-            f"{reader.file.name}:storms", "is not a list of tables", "write each as [[storms]]"
-        )
+    if storms is not None and (not isinstance(storms, list)
+                               or not all(isinstance(s, dict) for s in storms)):
+        top_level.fail("storms", "is not a list of tables", "write each as [[storms]]")
     if not storms:
-        raise ProjectFileError(
-            reader.file.name, "names no storm", "add at least one [[storms]] table"
-        )
+        raise ProjectFileError(top_level.where(), "names no storm",
+                               "add at least one [[storms]] table")
     return tuple(dict(s) for s in storms)
-
-
-def _method_name(reader: _Reader, method: Mapping[str, Any]) -> str:
-    from ..engine import ENGINES  # the registry is the list of valid names
-
-    name = reader.string(method, "method", "name", default="green_ampt")
-    return reader.closest(name.strip().lower(), sorted(ENGINES), "method", "name")
-
-
-class _Reader:
-    """Typed look-ups in the parsed TOML with one-line errors naming the key."""
-
-    def __init__(self, file: Path) -> None:
-        self.file = file
-
-    def where(self, section: str, key: str | None = None) -> str:
-        if not section:  # a top-level key or table
-            return f"{self.file.name}:[{key}]" if key else self.file.name
-        return f"{self.file.name}:[{section}]" + (f".{key}" if key else "")
-
-    def check_keys(self, section: str, table: Mapping[str, Any]) -> None:
-        valid = _SCHEMA[section]
-        for key in table:
-            if key not in valid:
-                near = difflib.get_close_matches(key, valid, n=1)
-                hint = f"did you mean {near[0]!r}?" if near else f"valid keys are {list(valid)}"
-                raise ProjectFileError(self.where(section, key), "is not a known key", hint)
-
-    def table(self, raw: Mapping[str, Any], section: str, *, required: bool = True
-              ) -> Mapping[str, Any]:
-        value = raw.get(section)
-        if value is None:
-            if required:
-                raise ProjectFileError(
-                    self.where(section), "is missing", f"add a [{section}] table"
-                )
-            return {}
-        if not isinstance(value, dict):
-            raise ProjectFileError(self.where(section), "is not a table",
-                                   f"write it as [{section}]")
-        self.check_keys(section, value)
-        return value
-
-    def string(self, table: Mapping[str, Any], section: str, key: str, *,
-               default: str | None = None, required: bool = True) -> str:
-        value = table.get(key, default)
-        if value is None:
-            if required:
-                raise ProjectFileError(self.where(section, key), "is missing", "add it")
-            return None  # type: ignore[return-value]
-        if not isinstance(value, str) or not value.strip():
-            raise ProjectFileError(
-                self.where(section, key), f"must be a non-empty text, got {value!r}",
-                "write it in quotes",
-            )
-        return value.strip()
-
-    def number(self, table: Mapping[str, Any], section: str, key: str, *, default: float,
-               low: float | None = None, high: float | None = None,
-               low_open: bool = False) -> float:
-        value = table.get(key, default)
-        if isinstance(value, bool) or not isinstance(value, int | float):
-            raise ProjectFileError(
-                self.where(section, key), f"must be a number, got {value!r}", "write a number"
-            )
-        too_low = low is not None and (value <= low if low_open else value < low)
-        too_high = high is not None and value > high
-        if too_low or too_high or value != value:
-            span = f"{'(' if low_open else '['}{low}, {high if high is not None else 'inf'}]"
-            raise ProjectFileError(
-                self.where(section, key), f"is {value}, outside {span}", "give a value in range"
-            )
-        return float(value)
-
-    def strings(self, table: Mapping[str, Any], section: str, key: str) -> tuple[str, ...]:
-        value = table.get(key, [])
-        if not isinstance(value, list) or not all(isinstance(v, str) and v for v in value):
-            raise ProjectFileError(
-                self.where(section, key), f"must be a list of field names, got {value!r}",
-                'write e.g. ["ks_mm_per_h", "curve_number"]',
-            )
-        return tuple(value)
-
-    def closest_number(self, table: Mapping[str, Any], section: str, key: str,
-                       allowed: tuple[float, ...], *, default: float) -> float:
-        value = self.number(table, section, key, default=default)
-        if value not in allowed:
-            raise ProjectFileError(self.where(section, key), f"is {value:g}",
-                                   f"use one of {[f'{a:g}' for a in allowed]}")
-        return value
-
-    def flag(self, table: Mapping[str, Any], section: str, key: str, *, default: bool) -> bool:
-        value = table.get(key, default)
-        if not isinstance(value, bool):
-            raise ProjectFileError(
-                self.where(section, key), f"must be true or false, got {value!r}",
-                "write true or false without quotes",
-            )
-        return value
-
-    def choice(self, table: Mapping[str, Any], section: str, key: str,
-               valid: tuple[str, ...], *, default: str | None = None) -> str:
-        value = self.string(table, section, key, default=default if default else valid[0])
-        return self.closest(value.lower(), valid, section, key)
-
-    def closest(self, value: str, valid: tuple[str, ...] | list[str], section: str,
-                key: str) -> str:
-        if value in valid:
-            return value
-        near = difflib.get_close_matches(value, valid, n=1)
-        hint = f"did you mean {near[0]!r}?" if near else f"use one of {list(valid)}"
-        raise ProjectFileError(self.where(section, key), f"{value!r} is not allowed", hint)
-
-    def codes(self, table: Mapping[str, Any], section: str) -> dict[int, str]:
-        raw = table.get("codes")
-        if not isinstance(raw, dict) or not raw:
-            raise ProjectFileError(
-                self.where(section, "codes"), "is missing or empty",
-                f"add a [{section}.codes] table mapping raster codes to classes",
-            )
-        codes: dict[int, str] = {}
-        for key, label in raw.items():
-            try:
-                code = int(str(key).strip())
-            except ValueError:
-                raise ProjectFileError(
-                    self.where(f"{section}.codes", str(key)), "is not a whole-number raster code",
-                    "use integer codes as keys, e.g. \"1\" = \"A\"",
-                ) from None
-            if not isinstance(label, str) or not label.strip():
-                raise ProjectFileError(
-                    self.where(f"{section}.codes", str(key)), f"maps to {label!r}",
-                    "map each code to a class name in quotes",
-                )
-            codes[code] = label.strip()
-        return codes
-
-    def path(self, value: str) -> Path:
-        path = Path(value).expanduser()
-        return path if path.is_absolute() else (self.file.parent / path).resolve()

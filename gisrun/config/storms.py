@@ -1,8 +1,11 @@
-"""Build storms from the project file's ``[[storms]]`` blocks.
+"""Build storms from the project file's ``[[storms]]`` tables.
 
-Each block names a ``kind`` (see :data:`STORM_KINDS`) and its keys; depths and intensities are
-in the project's unit system and converted to SI here. Errors name the block
-(``project.toml:[[storms]] 2``) and the key.
+Each table names a ``kind``: a design storm of :data:`gisrun.storm.KINDS` (its
+builder and keys are declared there) or ``file`` (a hyetograph CSV). Depths and
+intensities are in the project's unit system and converted to SI here. The
+tables are read by the project file's :class:`~gisrun.config.reader.TableReader`;
+errors name the table (``project.toml:[[storms]] 2``) and the key, and are
+:class:`~gisrun.config.reader.StormTableError` (a project-file error and a storm error).
 
 Storm depths feed planning-level estimates; defer to local codes, agency methods and a licensed
 engineer.
@@ -10,48 +13,43 @@ engineer.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from .. import storm as st
 from ..errors import StormError
-from ..io.storm_csv import (
-    nearest_hint,
-    read_hyetograph_csv,
-    read_idf_table_csv,
-    warn_if_implausible,
-)
+from ..io.storm_csv import read_hyetograph_csv, read_idf_table_csv, warn_if_implausible
+from ..options import did_you_mean
+from ..storm import KINDS, Hyetograph, IdfFormula, IdfTable, StormKey, StormKind
 from ..units import UnitSystem, to_si
+from .reader import StormTableError, TableReader
 
-__all__ = ["storm_from_config", "storms_from_config", "STORM_KINDS"]
+__all__ = ["storm_from_config", "storms_from_config", "STORM_KINDS", "FILE_KIND"]
 
+#: The kind that reads a hyetograph CSV (the other kinds are :data:`gisrun.storm.KINDS`).
+FILE_KIND = "file"
+#: Every ``kind`` a ``[[storms]]`` table may name (the registry is read again at each call).
+STORM_KINDS: tuple[str, ...] = (*KINDS, FILE_KIND)
 _COMMON = ("name", "kind")
-#: Keys per storm kind: (required, optional).
-STORM_KINDS: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
-    "nrcs_24h": (("distribution", "depth"), ("step_min",)),
-    "alternating_block": (("duration_min",), ("idf", "idf_table", "step_min", "peak_position")),
-    "chicago": (("idf", "duration_min"), ("step_min", "peak_position")),
-    "uniform": (("depth", "duration_min"), ("step_min",)),
-    "file": (("path",), ()),
-}
-_ALL_KEYS = sorted({k for req, opt in STORM_KINDS.values() for k in (*req, *opt)} | set(_COMMON))
+
+
+def _all_keys() -> list[str]:
+    return sorted({k.name for kind in KINDS.values() for k in kind.keys} | {"path", *_COMMON})
 
 
 def storm_from_config(
     spec: Mapping[str, Any], *, base_dir: Path, units: UnitSystem, where: str
-) -> st.Hyetograph:
+) -> Hyetograph:
     """Build one storm from a ``[[storms]]`` table of the project file.
 
     Parameters
     ----------
     spec : mapping
-        The table: ``kind`` (``nrcs_24h``, ``alternating_block``, ``chicago``, ``uniform``,
-        ``file``) and its keys (``name``, ``distribution``, ``depth`` in ``units.depth``,
-        ``duration_min``, ``step_min`` (default 6 for ``nrcs_24h``, else 5),
-        ``idf = {a, b, c}`` with ``a`` in ``units.rate`` and ``t`` in minutes, ``idf_table``
-        (CSV path), ``peak_position`` (default 0.5), ``path``).
+        The table: ``kind`` (one of :data:`STORM_KINDS`) and its keys (``name``,
+        ``distribution``, ``depth`` in ``units.depth``, ``duration_min``, ``step_min``
+        (default 6 for ``nrcs_24h``, else 5), ``idf = {a, b, c}`` with ``a`` in
+        ``units.rate`` and ``t`` in minutes, ``idf_table`` (CSV path),
+        ``peak_position`` (default 0.5), ``path``).
     base_dir : Path
         Folder that relative paths are resolved against (the project file's folder).
     units : UnitSystem
@@ -61,170 +59,126 @@ def storm_from_config(
 
     Raises
     ------
-    StormError
+    StormTableError
         For an unknown kind or key (suggesting the nearest), a missing key, or a bad value.
     """
-    kind = _kind(spec, where)
-    required, optional = STORM_KINDS[kind]
-    _check_keys(spec, kind, (*_COMMON, *required, *optional), required, where)
+    if not isinstance(spec, Mapping):
+        raise StormTableError(where, "is not a table", "write it as a [[storms]] table of keys")
+    table = TableReader(spec, where, base_dir, error=StormTableError)
+    kind = _kind(table)
+    keys = ("path",) if kind == FILE_KIND else tuple(k.name for k in KINDS[kind].keys)
+    table.check_keys((*_COMMON, *keys), elsewhere=_all_keys(),
+                     elsewhere_problem=f"does not apply to kind {kind!r}",
+                     elsewhere_fix=f"remove it; keys for {kind!r} are {sorted((*_COMMON, *keys))}")
+    for key in keys if kind == FILE_KIND else (k.name for k in KINDS[kind].required):
+        if key not in spec:
+            table.fail(None, f"kind {kind!r} needs key {key!r}", f"add {key} = ...")
     name = spec.get("name")
     if name is not None and (not isinstance(name, str) or not name.strip()):
-        raise StormError(f"{where}.name", f"{name!r} is not a name", "give a non-empty text name")
-    h = _BUILDERS[kind](spec, base_dir, units, where, name)
+        table.fail("name", f"{name!r} is not a name", "give a non-empty text name")
+    if kind == FILE_KIND:
+        h = read_hyetograph_csv(_file_path(table, "path"), units=units, name=name)
+    else:
+        h = _design_storm(KINDS[kind], table, units, name)
     warn_if_implausible(h, where)
     return h
 
 
 def storms_from_config(
     specs: Sequence[Mapping[str, Any]], *, base_dir: Path, units: UnitSystem, where: str
-) -> list[st.Hyetograph]:
+) -> list[Hyetograph]:
     """Build every ``[[storms]]`` table; names must be unique.
 
     Raises
     ------
-    StormError
+    StormTableError
         If there is no storm, any storm is bad, or two storms share a name.
     """
     if not specs:
-        raise StormError(where, "has no [[storms]]", "add at least one [[storms]] table")
+        raise StormTableError(where, "has no [[storms]]", "add at least one [[storms]] table")
     storms, seen = [], {}
     for i, spec in enumerate(specs, start=1):
         h = storm_from_config(spec, base_dir=base_dir, units=units, where=f"{where} {i}")
         if h.name in seen:
-            raise StormError(f"{where} {i}",
-                             f"name {h.name!r} is also used by storm {seen[h.name]}",
-                             "give every storm its own name")
+            raise StormTableError(f"{where} {i}",
+                                  f"name {h.name!r} is also used by storm {seen[h.name]}",
+                                  "give every storm its own name")
         seen[h.name] = i
         storms.append(h)
     return storms
 
 
-def _kind(spec: Mapping[str, Any], where: str) -> str:
-    if not isinstance(spec, Mapping):
-        raise StormError(where, "is not a table", "write it as a [[storms]] table of keys")
-    kind = spec.get("kind")
+def _kind(table: TableReader) -> str:
+    kind = table.data.get("kind")
+    kinds = [*KINDS, FILE_KIND]
     if kind is None:
-        raise StormError(where, "has no kind", f"add kind = one of {list(STORM_KINDS)}")
-    if not isinstance(kind, str) or kind.strip().lower() not in STORM_KINDS:
-        raise StormError(f"{where}.kind", f"unknown storm kind {kind!r}",
-                         nearest_hint(str(kind).lower(), list(STORM_KINDS)))
+        table.fail(None, "has no kind", f"add kind = one of {kinds}")
+    if not isinstance(kind, str) or kind.strip().lower() not in kinds:
+        table.fail("kind", f"unknown storm kind {kind!r}", did_you_mean(str(kind).lower(), kinds))
     return kind.strip().lower()
 
 
-def _check_keys(spec: Mapping[str, Any], kind: str, allowed: Sequence[str],
-                required: Sequence[str], where: str) -> None:
-    for key in spec:
-        if key not in allowed:
-            if key in _ALL_KEYS:
-                raise StormError(f"{where}.{key}", f"does not apply to kind {kind!r}",
-                                 f"remove it; keys for {kind!r} are {sorted(allowed)}")
-            raise StormError(f"{where}.{key}", "is not a storm key", nearest_hint(key, _ALL_KEYS))
-    for key in required:
-        if key not in spec:
-            raise StormError(where, f"kind {kind!r} needs key {key!r}", f"add {key} = ...")
-
-
-def _number(spec: Mapping[str, Any], key: str, where: str, default: float | None = None, *,
-            low: float = 0.0, high: float = math.inf, strict: bool = True) -> float:
-    value = spec.get(key, default)
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
-    inside = ok and (value > low if strict else value >= low) and value <= high
-    if not inside:
-        rng = f"{'>' if strict else '>='} {low:g}"
-        rng += f" and <= {high:g}" if high < math.inf else ""
-        raise StormError(f"{where}.{key}", f"{value!r} is not a number {rng}", f"set {key} {rng}")
-    return float(value)
-
-
-def _step_s(spec: Mapping[str, Any], where: str, default_min: float) -> float:
-    return _number(spec, "step_min", where, default_min) * 60.0
-
-
-def _idf(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str
-         ) -> st.IdfFormula | st.IdfTable:
-    if ("idf" in spec) == ("idf_table" in spec):
-        raise StormError(where, "needs exactly one of idf = {a, b, c} and idf_table",
-                         "give the IDF formula or the path of an IDF table CSV")
-    if "idf_table" in spec:
-        return read_idf_table_csv(_path(spec, "idf_table", base_dir, where))
-    idf = spec["idf"]
-    if not isinstance(idf, Mapping):
-        raise StormError(f"{where}.idf", f"{idf!r} is not a table",
-                         "write idf = {a=..., b=..., c=...}")
-    for key in idf:
-        if key not in ("a", "b", "c"):
-            raise StormError(f"{where}.idf.{key}", "is not an IDF coefficient",
-                             nearest_hint(key, "abc"))
-    w = f"{where}.idf"
-    a = _number(idf, "a", w)
-    return st.IdfFormula(float(to_si(a, units.rate)), _number(idf, "b", w, strict=False),
-                         _number(idf, "c", w))
-
-
-def _path(spec: Mapping[str, Any], key: str, base_dir: Path, where: str) -> Path:
-    value = spec[key]
-    if not isinstance(value, str) or not value.strip():
-        raise StormError(f"{where}.{key}", f"{value!r} is not a path", "give a file path as text")
-    path = Path(value)
-    return path if path.is_absolute() else Path(base_dir) / path
-
-
-def _build_nrcs(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                name: str | None) -> st.Hyetograph:
-    dist = str(spec["distribution"]).strip().upper()
-    if dist not in st.NRCS_DISTRIBUTIONS:
-        raise StormError(f"{where}.distribution", f"{spec['distribution']!r} is not an NRCS type",
-                         nearest_hint(dist, list(st.NRCS_DISTRIBUTIONS)))
-    depth = _number(spec, "depth", where)
-    name = name or f"nrcs_24h_{dist}_{depth:g}{units.depth}"
-    return st.nrcs_24h(dist, float(to_si(depth, units.depth)), _step_s(spec, where, 6.0), name=name)
-
-
-def _build_block(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                 name: str | None) -> st.Hyetograph:
-    return _build_from_idf(st.alternating_block, "alternating_block", spec, base_dir, units,
-                           where, name)
-
-
-def _build_chicago(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                   name: str | None) -> st.Hyetograph:
-    return _build_from_idf(st.chicago, "chicago", spec, base_dir, units, where, name)
-
-
-def _build_from_idf(make: Any, kind: str, spec: Mapping[str, Any], base_dir: Path,
-                    units: UnitSystem, where: str, name: str | None) -> st.Hyetograph:
-    """An IDF-based design storm (alternating block or Chicago) from its [[storms]] table."""
-    idf = _idf(spec, base_dir, units, where)
-    duration = _number(spec, "duration_min", where)
-    peak = _number(spec, "peak_position", where, 0.5, high=1.0, strict=False)
-    name = name or f"{kind}_{duration:g}min"
-    return _located(where, lambda: make(
-        idf, duration * 60.0, _step_s(spec, where, 5.0), peak_position=peak, name=name))
-
-
-def _build_uniform(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                   name: str | None) -> st.Hyetograph:
-    depth = _number(spec, "depth", where)
-    duration = _number(spec, "duration_min", where)
-    name = name or f"uniform_{depth:g}{units.depth}_{duration:g}min"
-    return st.uniform(float(to_si(depth, units.depth)), duration * 60.0,
-                      _step_s(spec, where, 5.0), name=name)
-
-
-def _build_file(spec: Mapping[str, Any], base_dir: Path, units: UnitSystem, where: str,
-                name: str | None) -> st.Hyetograph:
-    return read_hyetograph_csv(_path(spec, "path", base_dir, where), units=units, name=name)
-
-
-def _located(where: str, build: Any) -> st.Hyetograph:
-    """Run a builder and prefix its errors with the project-file location."""
+def _design_storm(kind: StormKind, table: TableReader, units: UnitSystem,
+                  name: str | None) -> Hyetograph:
+    """Read the kind's keys, convert them to SI and call its builder."""
+    for group in (kind.one_of,) if kind.one_of else ():
+        if sum(key in table.data for key in group) != 1:
+            table.fail(None, f"needs exactly one of {' and '.join(group)}",
+                       f"give one of {', '.join(group)}")
+    args: dict[str, Any] = {}
+    shown: dict[str, str] = {}
+    for key in kind.keys:
+        if key.name not in table.data and key.default is None:
+            continue
+        args[key.arg], shown[key.name] = _value(key, table, units)
+    name = name or kind.default_name.format(**shown)
     try:
-        return build()
+        return kind.build(**args, name=name)
     except StormError as err:
-        if err.where.startswith(where):
+        if err.where.startswith(table.at):
             raise
-        raise StormError(f"{where}", f"{err.where}: {err.problem}", err.fix) from None
+        raise StormTableError(table.at, f"{err.where}: {err.problem}", err.fix) from None
 
 
-_BUILDERS = {"nrcs_24h": _build_nrcs, "alternating_block": _build_block,
-             "chicago": _build_chicago, "uniform": _build_uniform, "file": _build_file}
+def _value(key: StormKey, table: TableReader, units: UnitSystem) -> tuple[object, str]:
+    """A key's value for the builder (SI) and as written (for the default name)."""
+    if key.quantity == "choice":
+        text = str(table.data[key.name]).strip().upper()
+        if text not in key.choices:
+            table.fail(key.name, f"{table.data[key.name]!r} is not one of {list(key.choices)}",
+                       did_you_mean(text, key.choices))
+        return text, text
+    if key.quantity == "idf":
+        return _idf_formula(table.sub(key.name), units), ""
+    if key.quantity == "idf_table":
+        return _idf_table(table), ""
+    if key.quantity == "fraction":
+        value = table.number(key.name, default=key.default, low=0.0, high=1.0)
+        return value, f"{value:g}"
+    value = table.number(key.name, default=key.default, low=0.0, low_open=True)
+    if key.quantity == "depth":
+        return float(to_si(value, units.depth)), f"{value:g}{units.depth}"
+    return value * 60.0, f"{value:g}"  # minutes
+
+
+def _idf_formula(idf: TableReader, units: UnitSystem) -> IdfFormula:
+    for key in idf.data:
+        if key not in ("a", "b", "c"):
+            idf.fail(key, "is not an IDF coefficient", did_you_mean(key, "abc"))
+    a = idf.number("a", low=0.0, low_open=True)
+    return IdfFormula(float(to_si(a, units.rate)), idf.number("b", low=0.0),
+                      idf.number("c", low=0.0, low_open=True))
+
+
+def _idf_table(table: TableReader) -> IdfTable:
+    return read_idf_table_csv(_file_path(table, "idf_table"))
+
+
+def _file_path(table: TableReader, key: str) -> Path:
+    """A file named in the table, relative to the project file's folder."""
+    value = table.data[key]
+    if not isinstance(value, str) or not value.strip():
+        table.fail(key, f"{value!r} is not a path", "give a file path as text")
+    path = Path(value)
+    return path if path.is_absolute() else table.base_dir / path
+

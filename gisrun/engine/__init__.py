@@ -17,7 +17,8 @@ a licensed engineer for design.
 
 from __future__ import annotations
 
-import difflib
+import importlib
+import pkgutil
 from dataclasses import fields
 from types import ModuleType
 
@@ -25,56 +26,79 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike, NDArray
 
-from ..errors import ParameterError, StormError
-from . import constant_loss, curve_number, green_ampt, horton, phi_index
+from ..errors import GisrunError, ParameterError, StormError
+from ..options import choose
 from .base import (
-    PARAMETER_FRAME,
     FloatArray,
     LossResult,
     StepResult,
     no_ponding_offsets,
     take_params,
 )
-from .phi_index import fit_constant_loss_rate, fit_phi_index
+from .declare import PARAMETER_FRAME, Parameter
 
 __all__ = [
     "ENGINES",
+    "PARAMETERS",
     "LossResult",
+    "Parameter",
     "StepResult",
     "run_losses",
-    "run_method",
     "method_name",
     "unique_parameter_sets",
     "fit_phi_index",
     "fit_constant_loss_rate",
 ]
 
-#: Loss method name -> module with ``NAME``, ``Params``, ``State``,
-#: ``initial_state`` and ``step``.
-ENGINES: dict[str, ModuleType] = {
-    m.NAME: m for m in (green_ampt, horton, curve_number, constant_loss, phi_index)
+
+def _discover() -> dict[str, ModuleType]:
+    """Every module of this package that declares a loss method ``NAME``, in ``ORDER``."""
+    found = [importlib.import_module(f"{__name__}.{info.name}")
+             for info in pkgutil.iter_modules(__path__)]
+    methods = sorted((m for m in found if hasattr(m, "NAME")), key=lambda m: m.ORDER)
+    return {m.NAME: m for m in methods}
+
+
+#: Loss method name -> module with ``NAME``, ``ORDER``, ``PARAMETERS``, ``MODEL_INPUTS``,
+#: ``Params``, ``State``, ``initial_state`` and ``step`` (found by :func:`_discover`:
+#: a new method is a new module, nothing else to register).
+ENGINES: dict[str, ModuleType] = _discover()
+
+#: Every declared parameter by SI column, in the order of :data:`ENGINES` (shared ones once).
+PARAMETERS: dict[str, Parameter] = {
+    p.column: p for m in ENGINES.values() for p in m.PARAMETERS
 }
 
 
-def method_name(name: object, where: str = "method") -> str:
-    """Normalise a loss method name (case, spaces, dashes) and check it is known.
+def __getattr__(name: str) -> object:
+    """``fit_phi_index`` and ``fit_constant_loss_rate`` from the phi-index module (PEP 562).
+
+    Read from the registry, so this package imports no method module by name.
+    """
+    if name in ("fit_phi_index", "fit_constant_loss_rate"):
+        return getattr(ENGINES["phi_index"], name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def method_name(text: object, *, where: str = "loss method",
+                error: type[GisrunError] = ParameterError) -> str:
+    """The one reading of a loss method name: ``Green-Ampt``, ``green ampt``, ``green_ampt``.
+
+    Used for the project file's ``[method] name``, the subcatchment layer's method
+    field, the override table's ``loss_method`` column and ``run_losses(method=...)``.
 
     Raises
     ------
-    ParameterError
-        Unknown name; the message suggests the nearest valid one.
+    GisrunError
+        Of class ``error`` (the caller's: where the name was read): unknown name,
+        with the nearest valid one.
 
     Examples
     --------
     >>> method_name("Green-Ampt")
     'green_ampt'
     """
-    key = "_".join(str(name).strip().lower().replace("-", " ").split())
-    if key in ENGINES:
-        return key
-    near = difflib.get_close_matches(key, list(ENGINES), n=1, cutoff=0.5)
-    hint = f"did you mean {near[0]!r}?" if near else f"use one of {sorted(ENGINES)}"
-    raise ParameterError(where, f"unknown loss method {name!r}", hint)
+    return choose(text, ENGINES, where=where, what="loss method", error=error)
 
 
 def run_losses(params: pd.DataFrame, rain_m: ArrayLike, dt_s: float, *,
@@ -216,18 +240,6 @@ def _simulate(module: ModuleType, p: object, rain: FloatArray, dt_s: float, out:
     out.storage[dest], out.ponding[dest] = state.storage_m, ponding
 
 
-def run_method(name: str, params: pd.DataFrame, rain_m: ArrayLike, dt_s: float, *,
-               deduplicate: bool = True) -> LossResult:
-    """Run every row of ``params`` with the method ``name`` (ignores ``loss_method``).
-
-    Raises
-    ------
-    ParameterError
-        Unknown method or bad parameter values.
-    """
-    return run_losses(params, rain_m, dt_s, method=name, deduplicate=deduplicate)
-
-
 def unique_parameter_sets(params: object, rain_m: FloatArray
                           ) -> tuple[NDArray[np.intp], NDArray[np.intp]]:
     """Group units that would give identical results.
@@ -287,7 +299,7 @@ def _checked_rain(rain_m: ArrayLike, n_units: int, dt_s: float) -> FloatArray:
 
 def _methods_per_unit(params: pd.DataFrame, method: str | None) -> NDArray[np.object_]:
     if method is not None:
-        return np.full(len(params), method_name(method), dtype=object)
+        return np.full(len(params), method_name(method, where="method"), dtype=object)
     if "loss_method" not in params.columns:
         raise ParameterError(f"{PARAMETER_FRAME}:loss_method", "column is missing",
                              "add a loss_method column or pass method=...")
@@ -296,5 +308,5 @@ def _methods_per_unit(params: pd.DataFrame, method: str | None) -> NDArray[np.ob
     for j, raw in enumerate(uniques):
         rows = codes == j
         where = f"{PARAMETER_FRAME}:loss_method:row {params.index[np.argmax(rows)]!r}"
-        out[rows] = method_name(raw, where)
+        out[rows] = method_name(raw, where=where)
     return out

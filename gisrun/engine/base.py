@@ -2,8 +2,7 @@
 
 Every method module returns a :class:`StepResult` per time step; the engine
 collects them into a :class:`LossResult` (arrays of shape ``(n_steps, n_units)``,
-all SI). The helpers here read and check parameter columns of the unit
-parameter frame, so each method module states only what it needs.
+all SI). Parameter columns are declared and read through :mod:`gisrun.engine.declare`.
 
 Mass balance, per unit and per step, for every method::
 
@@ -17,23 +16,15 @@ from dataclasses import dataclass, field, fields
 from typing import Any, TypeVar
 
 import numpy as np
-import pandas as pd
 from numpy.typing import NDArray
-
-from ..errors import ParameterError
 
 __all__ = [
     "StepResult",
     "LossResult",
-    "read_column",
     "take_params",
     "split_surface_water",
     "set_nonnegative_arrays",
-    "PARAMETER_FRAME",
 ]
-
-#: The name used for the unit parameter frame in error messages.
-PARAMETER_FRAME = "unit parameters"
 
 FloatArray = NDArray[np.float64]
 P = TypeVar("P")
@@ -149,71 +140,6 @@ class LossResult:
     def mass_balance_error_m(self) -> FloatArray:
         """Rain minus (infiltration + excess + storage left) per unit, m."""
         return self.rain_m.sum(0) - (self.infil_m.sum(0) + self.excess_m.sum(0) + self.storage_m)
-
-
-def read_column(
-    frame: pd.DataFrame,
-    name: str,
-    *,
-    default: float | None = None,
-    low: float | None = None,
-    high: float | None = None,
-    low_open: bool = False,
-) -> FloatArray:
-    """Read one SI parameter column as float64 and check its range.
-
-    Parameters
-    ----------
-    frame : DataFrame
-        The unit parameter frame.
-    name : str
-        Column name (``"ks_m_per_s"``).
-    default : float, optional
-        Value used when the column is absent or a cell is empty; without it a
-        missing column or empty cell is an error.
-    low, high : float, optional
-        Allowed range (inclusive; ``low`` exclusive when ``low_open``).
-
-    Returns
-    -------
-    ndarray of float64, shape (len(frame),)
-
-    Raises
-    ------
-    ParameterError
-        Missing column, non-numeric, empty or out-of-range value (names the
-        column, row and value).
-    """
-    if name not in frame.columns:
-        if default is None:
-            raise ParameterError(f"{PARAMETER_FRAME}:{name}", "column is missing",
-                                 "add the column (SI units) or choose another loss method")
-        return np.full(len(frame), float(default))
-    try:
-        values = pd.to_numeric(frame[name], errors="raise").to_numpy(dtype=np.float64, copy=True)
-    except (ValueError, TypeError):
-        raise ParameterError(f"{PARAMETER_FRAME}:{name}", "holds values that are not numbers",
-                             "give numbers in SI units") from None
-    if default is not None:
-        values[np.isnan(values)] = default
-    bad = ~np.isfinite(values)
-    if low is not None:
-        bad |= (values <= low) if low_open else (values < low)
-    if high is not None:
-        bad |= values > high
-    if bad.any():
-        pos = int(np.flatnonzero(bad)[0])
-        limits = _describe_range(low, high, low_open)
-        raise ParameterError(f"{PARAMETER_FRAME}:{name}:row {frame.index[pos]!r}",
-                             f"value {float(values[pos])!r} is empty or outside {limits}",
-                             "correct the value or its parameter table entry")
-    return values
-
-
-def _describe_range(low: float | None, high: float | None, low_open: bool) -> str:
-    lo = "(-inf" if low is None else ("(" if low_open else "[") + repr(low)
-    hi = "inf)" if high is None else repr(high) + "]"
-    return f"{lo}, {hi}"
 
 
 def take_params(params: P, index: NDArray[np.intp]) -> P:

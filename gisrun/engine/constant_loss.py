@@ -36,15 +36,40 @@ import pandas as pd
 from .base import (
     FloatArray,
     StepResult,
-    read_column,
     set_nonnegative_arrays,
     split_surface_water,
     start_offsets,
 )
+from .declare import DEPRESSION_STORAGE, Parameter
 
-__all__ = ["NAME", "Params", "State", "initial_state", "step"]
+__all__ = [
+    "NAME",
+    "ORDER",
+    "PARAMETERS",
+    "MODEL_INPUTS",
+    "Params",
+    "State",
+    "initial_state",
+    "step",
+]
 
 NAME = "constant_loss"
+#: Position in listings and in the order of output columns.
+ORDER = 40
+
+#: Parameters (declarations; see :mod:`gisrun.engine.declare`).
+PARAMETERS: tuple[Parameter, ...] = (
+    Parameter("initial_loss_m", "m", default="initial_loss",
+              impervious="impervious_storage_as_initial_loss"),
+    Parameter("constant_loss_m_per_s", "m/s", default="group_min_infiltration"),
+    DEPRESSION_STORAGE,
+)
+#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
+MODEL_INPUTS: dict[str, tuple[str, str]] = {
+    "pervious_initial_loss_m": ("initial_loss_m", "pervious"),
+    "pervious_constant_loss_rate_m_per_s": ("constant_loss_m_per_s", "pervious"),
+    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
+}
 
 
 @dataclass(frozen=True)
@@ -80,9 +105,9 @@ class Params:
             A column is missing or a value is empty or negative.
         """
         return cls(
-            initial_loss_m=read_column(frame, "initial_loss_m", low=0.0),
-            constant_loss_m_per_s=read_column(frame, "constant_loss_m_per_s", low=0.0),
-            depression_storage_m=read_column(frame, "depression_storage_m", low=0.0),
+            initial_loss_m=PARAMETERS[0].read(frame),
+            constant_loss_m_per_s=PARAMETERS[1].read(frame),
+            depression_storage_m=DEPRESSION_STORAGE.read(frame),
         )
 
 

@@ -59,16 +59,18 @@ import pandas as pd
 
 from ..errors import ParameterError
 from .base import (
-    PARAMETER_FRAME,
     FloatArray,
     StepResult,
     no_ponding_offsets,
-    read_column,
     start_offsets,
 )
+from .declare import PARAMETER_FRAME, Parameter
 
 __all__ = [
     "NAME",
+    "ORDER",
+    "PARAMETERS",
+    "MODEL_INPUTS",
     "Params",
     "State",
     "initial_state",
@@ -79,9 +81,26 @@ __all__ = [
 ]
 
 NAME = "curve_number"
+#: Position in listings and in the order of output columns.
+ORDER = 30
+
+#: Parameters (declarations; see :mod:`gisrun.engine.declare`). The ratio and the condition
+#: are run options ([method] in the project file); the ratio may also be overridden per unit.
+PARAMETERS: tuple[Parameter, ...] = (
+    Parameter("curve_number", "-", default="cover_curve_number", low_open=True, high=100.0,
+              impervious="impervious_curve_number"),
+    Parameter("initial_abstraction_ratio", "-", default="run_abstraction_ratio",
+              allowed=(0.2, 0.05), missing=0.2, impervious="run_abstraction_ratio"),
+    Parameter("antecedent_condition", "-", default="run_antecedent_condition",
+              allowed=(1.0, 2.0, 3.0), missing=2.0, overridable=False),
+)
+#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
+MODEL_INPUTS: dict[str, tuple[str, str]] = {
+    "composite_curve_number": ("curve_number", "all"),
+    "initial_abstraction_ratio": ("initial_abstraction_ratio", "all"),
+}
 
 INCH_M = 0.0254
-_RATIOS = (0.2, 0.05)
 
 
 def adjust_for_antecedent_condition(cn_ii: FloatArray, condition: FloatArray) -> FloatArray:
@@ -173,20 +192,18 @@ class Params:
         ParameterError
             Missing curve number, or a value out of range.
         """
-        cn = read_column(frame, "curve_number", low=0.0, low_open=True, high=100.0)
-        ratio = read_column(frame, "initial_abstraction_ratio", default=0.2)
-        cond = read_column(frame, "antecedent_condition", default=2.0)
-        _check_allowed(frame, "initial_abstraction_ratio", ratio, _RATIOS,
+        cn, ratio, cond = (p.read(frame) for p in PARAMETERS)
+        _check_allowed(frame, PARAMETERS[1], ratio,
                        "use 0.2 (TR-55) or 0.05 (with the published retention conversion)")
-        _check_allowed(frame, "antecedent_condition", cond, (1.0, 2.0, 3.0),
-                       "use 1 (dry), 2 (average) or 3 (wet)")
+        _check_allowed(frame, PARAMETERS[2], cond, "use 1 (dry), 2 (average) or 3 (wet)")
         return cls(curve_number=cn, initial_abstraction_ratio=ratio, antecedent_condition=cond)
 
 
-def _check_allowed(frame: pd.DataFrame, name: str, values: FloatArray,
-                   allowed: tuple[float, ...], fix: str) -> None:
+def _check_allowed(frame: pd.DataFrame, parameter: Parameter, values: FloatArray,
+                   fix: str) -> None:
+    name = parameter.column
     ok = np.zeros(values.shape, dtype=bool)
-    for a in allowed:
+    for a in parameter.allowed:
         ok |= np.isclose(values, a)
     if not ok.all():
         pos = int(np.flatnonzero(~ok)[0])

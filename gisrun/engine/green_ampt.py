@@ -66,6 +66,7 @@ parameters from soils data. J. Hydraul. Eng. 109(1), 62-70.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -75,14 +76,49 @@ from .base import (
     FloatArray,
     StepResult,
     no_ponding_offsets,
-    read_column,
     set_nonnegative_arrays,
     split_surface_water,
 )
+from .declare import DEPRESSION_STORAGE, Parameter
 
-__all__ = ["NAME", "Params", "State", "initial_state", "step", "ponded_increment_m"]
+__all__ = [
+    "NAME",
+    "ORDER",
+    "PARAMETERS",
+    "MODEL_INPUTS",
+    "Params",
+    "State",
+    "initial_state",
+    "step",
+    "ponded_increment_m",
+]
 
 NAME = "green_ampt"
+#: Position in listings and in the order of output columns.
+ORDER = 10
+
+#: Parameters (declarations; see :mod:`gisrun.engine.declare`).
+PARAMETERS: tuple[Parameter, ...] = (
+    Parameter("ks_m_per_s", "m/s", default="texture_green_ampt", positive_when_pervious=True),
+    Parameter("suction_head_m", "m", default="texture_green_ampt", composite="pervious_area"),
+    Parameter("moisture_deficit", "-", default="moisture_deficit", high=1.0,
+              composite="pervious_area"),
+    DEPRESSION_STORAGE,
+    # soil properties the moisture deficit is derived from (override columns only)
+    Parameter("effective_porosity", "-", default="texture_green_ampt", low_open=True, high=1.0,
+              impervious=math.nan, in_frame=False),
+    Parameter("total_porosity", "-", default="texture_green_ampt", low_open=True, high=1.0,
+              impervious=math.nan, in_frame=False),
+)
+#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
+MODEL_INPUTS: dict[str, tuple[str, str]] = {
+    "pervious_ks_m_per_s": ("ks_m_per_s", "pervious"),
+    "pervious_suction_head_m": ("suction_head_m", "pervious"),
+    "pervious_moisture_deficit": ("moisture_deficit", "pervious"),
+    "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
+    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
+}
+_P = {p.column: p for p in PARAMETERS}
 
 #: Relative residual to which the ponded equation is solved.
 NEWTON_RTOL = 1e-9
@@ -142,10 +178,10 @@ class Params:
             A column is missing or a value is empty, negative or out of range.
         """
         return cls(
-            ks_m_per_s=read_column(frame, "ks_m_per_s", low=0.0),
-            suction_head_m=read_column(frame, "suction_head_m", low=0.0),
-            moisture_deficit=read_column(frame, "moisture_deficit", low=0.0, high=1.0),
-            depression_storage_m=read_column(frame, "depression_storage_m", low=0.0),
+            ks_m_per_s=_P["ks_m_per_s"].read(frame),
+            suction_head_m=_P["suction_head_m"].read(frame),
+            moisture_deficit=_P["moisture_deficit"].read(frame),
+            depression_storage_m=DEPRESSION_STORAGE.read(frame),
         )
 
 

@@ -57,18 +57,49 @@ import pandas as pd
 
 from ..errors import ParameterError
 from .base import (
-    PARAMETER_FRAME,
     FloatArray,
     StepResult,
     no_ponding_offsets,
-    read_column,
     set_nonnegative_arrays,
     split_surface_water,
 )
+from .declare import DEPRESSION_STORAGE, PARAMETER_FRAME, Parameter
 
-__all__ = ["NAME", "Params", "State", "initial_state", "step", "capacity_m_per_s"]
+__all__ = [
+    "NAME",
+    "ORDER",
+    "PARAMETERS",
+    "MODEL_INPUTS",
+    "Params",
+    "State",
+    "initial_state",
+    "step",
+    "capacity_m_per_s",
+]
 
 NAME = "horton"
+#: Position in listings and in the order of output columns.
+ORDER = 20
+
+#: Parameters (declarations; see :mod:`gisrun.engine.declare`).
+PARAMETERS: tuple[Parameter, ...] = (
+    DEPRESSION_STORAGE,
+    Parameter("horton_f0_m_per_s", "m/s", default="group_horton"),
+    Parameter("horton_fc_m_per_s", "m/s", default="group_horton"),
+    Parameter("horton_decay_per_s", "1/s", default="group_horton", composite="pervious_area"),
+    Parameter("horton_recovery_per_s", "1/s", default="group_horton_recovery", missing=0.0,
+              composite="pervious_area"),
+)
+#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
+MODEL_INPUTS: dict[str, tuple[str, str]] = {
+    "pervious_horton_initial_capacity_m_per_s": ("horton_f0_m_per_s", "pervious"),
+    "pervious_horton_final_capacity_m_per_s": ("horton_fc_m_per_s", "pervious"),
+    "pervious_horton_decay_per_s": ("horton_decay_per_s", "pervious"),
+    "pervious_horton_recovery_per_s": ("horton_recovery_per_s", "pervious"),
+    "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
+    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
+}
+_P = {p.column: p for p in PARAMETERS}
 
 _RTOL = 1e-10
 _MAX_NEWTON = 100
@@ -113,15 +144,15 @@ class Params:
         ParameterError
             A column is missing, a value is out of range, or ``f0 < fc``.
         """
-        f0 = read_column(frame, "horton_f0_m_per_s", low=0.0)
-        fc = read_column(frame, "horton_fc_m_per_s", low=0.0)
+        f0 = _P["horton_f0_m_per_s"].read(frame)
+        fc = _P["horton_fc_m_per_s"].read(frame)
         _check_f0_above_fc(frame, f0, fc)
         return cls(
             f0_m_per_s=f0,
             fc_m_per_s=fc,
-            decay_per_s=read_column(frame, "horton_decay_per_s", low=0.0),
-            recovery_per_s=read_column(frame, "horton_recovery_per_s", default=0.0, low=0.0),
-            depression_storage_m=read_column(frame, "depression_storage_m", low=0.0),
+            decay_per_s=_P["horton_decay_per_s"].read(frame),
+            recovery_per_s=_P["horton_recovery_per_s"].read(frame),
+            depression_storage_m=DEPRESSION_STORAGE.read(frame),
         )
 
 

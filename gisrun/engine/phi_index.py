@@ -40,14 +40,17 @@ from ..errors import ParameterError
 from .base import (
     FloatArray,
     StepResult,
-    read_column,
     set_nonnegative_arrays,
     split_surface_water,
     start_offsets,
 )
+from .declare import DEPRESSION_STORAGE, Parameter
 
 __all__ = [
     "NAME",
+    "ORDER",
+    "PARAMETERS",
+    "MODEL_INPUTS",
     "Params",
     "State",
     "initial_state",
@@ -57,6 +60,20 @@ __all__ = [
 ]
 
 NAME = "phi_index"
+#: Position in listings and in the order of output columns.
+ORDER = 50
+
+#: Parameters (declarations; see :mod:`gisrun.engine.declare`).
+PARAMETERS: tuple[Parameter, ...] = (
+    Parameter("phi_index_m_per_s", "m/s", default="group_min_infiltration"),
+    DEPRESSION_STORAGE,
+)
+#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
+MODEL_INPUTS: dict[str, tuple[str, str]] = {
+    "pervious_phi_index_m_per_s": ("phi_index_m_per_s", "pervious"),
+    "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
+    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
+}
 
 
 @dataclass(frozen=True)
@@ -87,8 +104,8 @@ class Params:
             A column is missing or a value is empty or negative.
         """
         return cls(
-            phi_index_m_per_s=read_column(frame, "phi_index_m_per_s", low=0.0),
-            depression_storage_m=read_column(frame, "depression_storage_m", low=0.0),
+            phi_index_m_per_s=PARAMETERS[0].read(frame),
+            depression_storage_m=DEPRESSION_STORAGE.read(frame),
         )
 
 

@@ -28,9 +28,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import storm as st
 from ..errors import GisrunWarning, StormError
 from ..options import did_you_mean
+from ..storm import Hyetograph, IdfTable, max_depth_in_window_m
 from ..units import FACTORS_TO_SI, SI, US, UnitSystem, from_si, to_si
 from .files import atomic_target
 
@@ -62,7 +62,7 @@ IMPLAUSIBLE_DEPTH_M: tuple[tuple[float, float], ...] = ((3600.0, 0.4), (86400.0,
 
 def read_hyetograph_csv(
     path: str | os.PathLike[str], *, units: UnitSystem | None = None, name: str | None = None
-) -> st.Hyetograph:
+) -> Hyetograph:
     """Read a hyetograph CSV into a checked SI :class:`~gisrun.storm.Hyetograph`.
 
     Parameters
@@ -100,7 +100,7 @@ def read_hyetograph_csv(
     time_s, value, rows_used = _to_intervals(times, values, quantity, time_col == "time", src)
     _check_gaps(time_s, rows_used, src)
     depth_m = value * to_si(1.0, unit) * (np.diff(time_s) if quantity == "intensity" else 1.0)
-    h = st.Hyetograph(name or comment_name or path.stem, time_s, depth_m)
+    h = Hyetograph(name or comment_name or path.stem, time_s, depth_m)
     warn_if_implausible(h, src)
     return h
 
@@ -303,10 +303,10 @@ def _check_gaps(time_s: np.ndarray, rows: np.ndarray, src: str) -> None:
         )
 
 
-def warn_if_implausible(h: st.Hyetograph, where: str) -> None:
+def warn_if_implausible(h: Hyetograph, where: str) -> None:
     """Warn (``GisrunWarning``) if the storm holds more rain than is plausible anywhere on Earth."""
     for window_s, limit_m in IMPLAUSIBLE_DEPTH_M:
-        depth = st.max_depth_in_window_m(h, window_s)
+        depth = max_depth_in_window_m(h, window_s)
         if depth > limit_m:
             warnings.warn(
                 f"{where}: {depth * 1000:.0f} mm of rain within {window_s / 3600:g} h exceeds the "
@@ -317,7 +317,7 @@ def warn_if_implausible(h: st.Hyetograph, where: str) -> None:
 
 
 def write_hyetograph_csv(
-    h: st.Hyetograph, path: str | os.PathLike[str], *, units: UnitSystem, overwrite: bool = True
+    h: Hyetograph, path: str | os.PathLike[str], *, units: UnitSystem, overwrite: bool = True
 ) -> Path:
     """Write a hyetograph as ``time_min`` and ``depth_<unit>`` columns that read back the same.
 
@@ -354,7 +354,7 @@ def write_hyetograph_csv(
     return target
 
 
-def read_idf_table_csv(path: str | os.PathLike[str]) -> st.IdfTable:
+def read_idf_table_csv(path: str | os.PathLike[str]) -> IdfTable:
     """Read an IDF table: ``duration_min`` and ``intensity_mm_per_h`` or ``intensity_in_per_h``.
 
     Raises
@@ -387,6 +387,6 @@ def read_idf_table_csv(path: str | os.PathLike[str]) -> st.IdfTable:
         raise StormError(f"{src}:row {row}", "duration does not increase", "sort by duration")
     unit = header[1].removeprefix("intensity_")
     try:
-        return st.IdfTable(arr[:, 0], to_si(arr[:, 1], unit))
+        return IdfTable(arr[:, 0], to_si(arr[:, 1], unit))
     except StormError as err:
         raise StormError(src, err.problem, err.fix) from None

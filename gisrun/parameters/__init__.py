@@ -10,12 +10,14 @@ codes, agency methods and a licensed engineer for design.
 from .assign import AssignedParameters, assign_parameters
 from .composite import composite_parameters
 from .overrides import LOSS_METHODS, PARAMETER_COLUMNS, accepted_columns, normalize_overrides
+from .soils import CLASSIFICATIONS
 from .tables import ShippedTable, list_tables
 
 __all__ = [
-    "AssignedParameters",
+    "CLASSIFICATIONS",
     "LOSS_METHODS",
     "PARAMETER_COLUMNS",
+    "AssignedParameters",
     "ShippedTable",
     "accepted_columns",
     "assign_parameters",

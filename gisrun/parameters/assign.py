@@ -39,22 +39,42 @@ higher source than the value itself.
 
 from __future__ import annotations
 
-from typing import Any, Literal, NamedTuple
+from typing import NamedTuple
 
 import numpy as np
 import pandas as pd
 
+from ..engine import PARAMETERS, method_name
 from ..errors import GisrunWarning, ParameterError
-from . import tables as T
-from ._soils import SoilInfo, check_cover_labels, resolve_soils
-from .overrides import PARAMETER_COLUMNS, check_loss_method, normalize_overrides
+from ..options import DUAL_GROUP_CONDITIONS, choose
+from .defaults import ASSIGNED_COLUMNS, RunSettings, shipped_values
+from .overrides import PARAMETER_COLUMNS
+from .precedence import (
+    apply_attributes,
+    apply_layer,
+    attribute_table,
+    named_subcatchments,
+    override_layers,
+)
+from .soils import (
+    CLASSIFICATIONS,
+    SoilInfo,
+    check_cover_labels,
+    resolve_soils,
+)
+from .tables import (
+    DEFAULT_ANTECEDENT_CONDITION,
+    DEFAULT_IMPERVIOUS_DEPRESSION_STORAGE_M,
+    DEFAULT_INITIAL_ABSTRACTION_RATIO,
+    UNSPECIFIED_COVER,
+    cover_table,
+    group_defaults,
+)
 
 __all__ = ["AssignedParameters", "assign_parameters"]
 
 _UNIT_COLUMNS = ("subcatchment_id", "soil_class", "cover_class", "area_m2")
-_HELPERS = ("effective_porosity", "total_porosity")
-_ALL = (*PARAMETER_COLUMNS, *_HELPERS, "loss_method")
-_ATTRIBUTE_RANK = 40
+_ALL = ASSIGNED_COLUMNS
 
 
 class AssignedParameters(NamedTuple):
@@ -68,15 +88,15 @@ class AssignedParameters(NamedTuple):
 def assign_parameters(
     units: pd.DataFrame,
     *,
-    classification: Literal["hydrologic_soil_group", "texture"],
-    dual_group_condition: Literal["drained", "undrained"] = "undrained",
+    classification: str,
+    dual_group_condition: str = DUAL_GROUP_CONDITIONS.default,
     initial_saturation: float,
     method: str,
     overrides: pd.DataFrame | None = None,
     subcatchment_attributes: pd.DataFrame | None = None,
-    impervious_depression_storage_m: float = T.DEFAULT_IMPERVIOUS_DEPRESSION_STORAGE_M,
-    initial_abstraction_ratio: float = T.DEFAULT_INITIAL_ABSTRACTION_RATIO,
-    antecedent_condition: int = T.DEFAULT_ANTECEDENT_CONDITION,
+    impervious_depression_storage_m: float = DEFAULT_IMPERVIOUS_DEPRESSION_STORAGE_M,
+    initial_abstraction_ratio: float = DEFAULT_INITIAL_ABSTRACTION_RATIO,
+    antecedent_condition: int = DEFAULT_ANTECEDENT_CONDITION,
     initial_water_content: float | None = None,
     compact_provenance: bool = False,
 ) -> AssignedParameters:
@@ -87,15 +107,16 @@ def assign_parameters(
     units : DataFrame
         Unit table: ``subcatchment_id``, ``soil_class``, ``cover_class``,
         ``area_m2`` (m2).
-    classification : {"hydrologic_soil_group", "texture"}
-        What the soil labels are.
-    dual_group_condition : {"drained", "undrained"}
-        How A/D, B/D, C/D are read (NEH 630 Ch. 7, 2009).
+    classification : str
+        What the soil labels are: a name of :data:`gisrun.parameters.soils.CLASSIFICATIONS`.
+    dual_group_condition : str
+        How A/D, B/D, C/D are read (NEH 630 Ch. 7, 2009): one of
+        :data:`gisrun.options.DUAL_GROUP_CONDITIONS`.
     initial_saturation : float
         Initial effective saturation, 0-1 (-).
     method : str
-        Default loss method (``green_ampt``, ``horton``, ``curve_number``,
-        ``constant_loss``, ``phi_index``).
+        Default loss method: a name of :data:`gisrun.engine.ENGINES`, spelled any
+        way :func:`gisrun.engine.method_name` reads.
     overrides : DataFrame, optional
         Override table (see :mod:`gisrun.parameters.overrides`), raw or as
         returned by :func:`gisrun.io.tables.read_parameter_overrides`.
@@ -135,28 +156,28 @@ def assign_parameters(
         outside 0-1; an override out of range or naming an unknown class; a
         moisture deficit outside 0..porosity.
     """
-    _check_options(classification, dual_group_condition, initial_saturation,
-                   impervious_depression_storage_m)
-    method = check_loss_method(method, "[method] name")
+    classification, dual_group_condition = _check_options(
+        classification, dual_group_condition, initial_saturation, impervious_depression_storage_m)
+    method = method_name(method, where="[method] name")
     units = _checked_units(units)
     warnings: list[GisrunWarning] = []
     soils = resolve_soils(units["soil_class"].unique(), classification, dual_group_condition,
                           warnings)
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
     all_rows = _expand(units, soils)
-    layers = _layers(overrides, classification)
-    attributes = _attribute_table(subcatchment_attributes)
+    layers = override_layers(overrides, classification)
+    attributes = attribute_table(subcatchment_attributes)
     # Parameters depend on soil, cover and surface, and on the subcatchment only where a layer
     # names it: work on one row per distinct combination and spread the result back.
-    rows, inverse = _distinct_parts(all_rows, _named_subcatchments(layers, attributes))
-    values, sources = _shipped(rows, soils, initial_saturation, impervious_depression_storage_m)
-    _run_defaults(values, sources, initial_abstraction_ratio)
+    rows, inverse = _distinct_parts(all_rows, named_subcatchments(layers, attributes))
+    values, sources = shipped_values(rows, soils, RunSettings(
+        initial_saturation, impervious_depression_storage_m, initial_abstraction_ratio))
     values["loss_method"], sources["loss_method"] = method, "run default ([method] name)"
     ranks = pd.DataFrame(0, index=rows.index, columns=list(_ALL))
     for rank, layer in layers:
-        _apply(rows, values, sources, ranks, rank, layer, warnings)
+        apply_layer(rows, values, sources, ranks, rank, layer, warnings)
     if attributes is not None:
-        _apply_attributes(rows, values, sources, ranks, attributes)
+        apply_attributes(rows, values, sources, ranks, attributes)
     _rederive(rows, values, sources, ranks, initial_saturation)
     if initial_water_content is not None:
         _deficit_from_water_content(rows, values, sources, ranks, initial_water_content, warnings)
@@ -168,27 +189,6 @@ def assign_parameters(
     else:
         provenance = _provenance(all_rows, sources, inverse)
     return AssignedParameters(params, provenance, warnings)
-
-
-def _attribute_table(attributes: pd.DataFrame | None) -> pd.DataFrame | None:
-    """Per-subcatchment values normalized like an override table (ids stripped); None if none."""
-    if attributes is None or not len(attributes):
-        return None
-    if "subcatchment_id" not in attributes.columns:
-        raise ParameterError("subcatchment attributes", "have no subcatchment_id column",
-                             "pass one row per subcatchment with its id")
-    names = [f"id={v}" for v in attributes["subcatchment_id"]]
-    return normalize_overrides(attributes, where="subcatchment attributes", row_names=names)
-
-
-def _named_subcatchments(layers: list[tuple[int, dict[str, Any]]],
-                         attributes: pd.DataFrame | None) -> set[str]:
-    """Subcatchment ids that an override row or a (normalized) attribute table names."""
-    named = {str(layer["subcatchment_id"]) for _, layer in layers
-             if layer.get("subcatchment_id") is not None}
-    if attributes is not None:
-        named.update(str(v) for v in attributes["subcatchment_id"] if v is not None)
-    return named
 
 
 def _distinct_parts(rows: pd.DataFrame, named: set[str]) -> tuple[pd.DataFrame, np.ndarray]:
@@ -212,20 +212,8 @@ def _distinct_parts(rows: pd.DataFrame, named: set[str]) -> tuple[pd.DataFrame, 
     return distinct, position[inverse.ravel()]
 
 
-def _run_defaults(values: pd.DataFrame, sources: pd.DataFrame, ratio: float) -> None:
-    """Apply the run's curve-number Ia/S to every unit (override rows come later and win)."""
-    if ratio not in (0.2, 0.05):
-        raise ParameterError("[method] initial_abstraction_ratio", f"value {ratio!r}",
-                             "use 0.2 (TR-55) or 0.05 (Woodward et al. 2003)")
-    if ratio != T.DEFAULT_INITIAL_ABSTRACTION_RATIO:
-        values["initial_abstraction_ratio"] = ratio
-        sources["initial_abstraction_ratio"] = (
-            f"[method] initial_abstraction_ratio {ratio:g} (S converted after Hawkins et al. "
-            "2002 / Woodward et al. 2003)")
-
-
 def _checked_condition(condition: int) -> int:
-    if condition not in (1, 2, 3):
+    if condition not in PARAMETERS["antecedent_condition"].allowed:
         raise ParameterError("[method] antecedent_condition", f"value {condition!r}",
                              "use 1 (dry), 2 (average) or 3 (wet)")
     return int(condition)
@@ -254,19 +242,20 @@ def _deficit_from_water_content(rows: pd.DataFrame, values: pd.DataFrame, source
         + f" - initial_water_content {theta:g} (Chow et al. 1988 sec. 4.3)")
 
 
-def _check_options(classification: str, dual: str, saturation: float, ds_m: float) -> None:
-    if classification not in ("hydrologic_soil_group", "texture"):
-        raise ParameterError("[soil] classification", f"unknown value {classification!r}",
-                             "use 'hydrologic_soil_group' or 'texture'")
-    if dual not in ("drained", "undrained"):
-        raise ParameterError("[soil] dual_group_condition", f"unknown value {dual!r}",
-                             "use 'drained' or 'undrained'")
+def _check_options(classification: str, dual: str, saturation: float, ds_m: float
+                   ) -> tuple[str, str]:
+    """The classification and dual-group condition as named in their registries; checks."""
+    classification = choose(classification, CLASSIFICATIONS, where="[soil] classification",
+                            what="soil classification", error=ParameterError)
+    dual = DUAL_GROUP_CONDITIONS.pick(dual, where="[soil] dual_group_condition",
+                                      error=ParameterError)
     if not (np.isfinite(saturation) and 0.0 <= saturation <= 1.0):
         raise ParameterError("[soil] initial_saturation", f"value {saturation!r} is outside 0-1",
                              "give the initial effective saturation as a fraction from 0 to 1")
     if not (np.isfinite(ds_m) and ds_m >= 0.0):
         raise ParameterError("impervious depression storage", f"value {ds_m!r} m is negative",
                              "give a depth of 0 or more")
+    return classification, dual
 
 
 def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
@@ -289,8 +278,8 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
 
 
 def _expand(units: pd.DataFrame, soils: dict[str, SoilInfo]) -> pd.DataFrame:
-    cover = T.cover_table()
-    fractions = {**cover["impervious_fraction"].to_dict(), T.UNSPECIFIED_COVER: 0.0}
+    cover = cover_table()
+    fractions = {**cover["impervious_fraction"].to_dict(), UNSPECIFIED_COVER: 0.0}
     frac = units["cover_class"].map(fractions)
     infiltrates = units["soil_class"].map({k: v.infiltrates for k, v in soils.items()})
     frac = frac.where(infiltrates, 1.0).to_numpy(float)
@@ -301,165 +290,6 @@ def _expand(units: pd.DataFrame, soils: dict[str, SoilInfo]) -> pd.DataFrame:
     group = rows["soil_class"].map({k: v.group for k, v in soils.items()}).astype(object)
     rows["hydrologic_soil_group"] = group.where(rows["surface"] == "pervious", None)
     return rows
-
-
-def _shipped(
-    rows: pd.DataFrame, soils: dict[str, SoilInfo], saturation: float, imp_ds_m: float
-) -> tuple[pd.DataFrame, pd.DataFrame]:
-    values = pd.DataFrame(np.nan, index=rows.index, columns=list(_ALL), dtype=object)
-    sources = pd.DataFrame("", index=rows.index, columns=list(_ALL), dtype=object)
-    perv = rows["surface"] == "pervious"
-    for col, (vals, srcs) in _pervious(rows[perv], soils, saturation).items():
-        values.loc[perv, col] = vals
-        sources.loc[perv, col] = srcs
-    for col, (val, src) in _impervious(imp_ds_m).items():
-        values.loc[~perv, col] = val
-        sources.loc[~perv, col] = src
-    return values, sources
-
-
-def _pervious(rows: pd.DataFrame, soils: dict[str, SoilInfo], saturation: float
-              ) -> dict[str, tuple[object, object]]:
-    """Shipped values and sources of pervious parts, vectorized over rows."""
-    info = [soils[s] for s in rows["soil_class"]]
-    group = pd.Index([s.group for s in info])
-    ga = T.green_ampt_by_texture().loc[[s.texture for s in info]]
-    horton = T.horton_by_group().loc[group]
-    rate = T.hsg_conductivity().loc[group, "min_infiltration_mid_m_per_s"].to_numpy()
-    soil_loss = T.group_defaults().loc[group, "initial_soil_loss_m"].to_numpy()
-    unspecified = (rows["cover_class"] == T.UNSPECIFIED_COVER).to_numpy()
-    cover_key = np.where(unspecified, T.UNSPECIFIED_COVER_STANDS_FOR, rows["cover_class"])
-    cover = T.cover_table().loc[cover_key]
-    by_group = cover[[f"pervious_cn_{g}" for g in T.HYDROLOGIC_SOIL_GROUPS]].to_numpy(float)
-    cn = by_group[np.arange(len(group)), [T.HYDROLOGIC_SOIL_GROUPS.index(g) for g in group]]
-    ds = cover["pervious_depression_storage_m"].to_numpy()
-    ga_src = [s.green_ampt_source for s in info]
-    horton_src = [f"horton_hsg table, group {s.group} ({s.group_source}; f0 and decay Akan 1993,"
-                  " fc TR-55 1986 App. A)" for s in info]
-    cn_src = [f"TR-55 (1986) Table {t}, pervious part of {k}{' (cover unspecified)' if u else ''},"
-              f" group {s.group} ({s.group_source})"
-              for t, k, u, s in zip(cover["tr55_table"], cover_key, unspecified, info, strict=True)]
-    rate_src = [f"midpoint of group {g} minimum infiltration range (TR-55 1986 App. A)"
-                for g in group]
-    out: dict[str, tuple[object, object]] = {
-        col: (ga[col].to_numpy(), ga_src)
-        for col in ("ks_m_per_s", "suction_head_m", "effective_porosity", "total_porosity")}
-    out["moisture_deficit"] = (ga["effective_porosity"].to_numpy() * (1.0 - saturation),
-                               f"effective porosity x (1 - initial_saturation {saturation:g})")
-    out["depression_storage_m"] = (ds, [f"cover table, {k} (common practice)" for k in cover_key])
-    for col in ("horton_f0_m_per_s", "horton_fc_m_per_s", "horton_decay_per_s"):
-        out[col] = (horton[col].to_numpy(), horton_src)
-    out["horton_recovery_per_s"] = (
-        horton["horton_recovery_per_s"].to_numpy(),
-        [f"horton_hsg table, group {g} (common practice)" for g in group])
-    out["curve_number"] = (cn, cn_src)
-    out["initial_abstraction_ratio"] = (T.DEFAULT_INITIAL_ABSTRACTION_RATIO,
-                                        "TR-55 (1986): Ia = 0.2 S")
-    out["initial_loss_m"] = (ds + soil_loss, [
-        f"depression storage + initial soil loss of group {g} (common practice)" for g in group])
-    out["constant_loss_m_per_s"] = (rate, rate_src)
-    out["phi_index_m_per_s"] = (rate, rate_src)
-    return out
-
-
-def _impervious(ds_m: float) -> dict[str, tuple[object, object]]:
-    none = (0.0, "impervious: no infiltration")
-    out: dict[str, tuple[object, object]] = {
-        col: none for col in ("ks_m_per_s", "suction_head_m", "moisture_deficit",
-                              "horton_f0_m_per_s", "horton_fc_m_per_s", "horton_decay_per_s",
-                              "horton_recovery_per_s", "constant_loss_m_per_s",
-                              "phi_index_m_per_s")}
-    out["depression_storage_m"] = (ds_m, "impervious depression storage (common practice)")
-    out["initial_loss_m"] = (ds_m, "impervious: depression storage only")
-    out["curve_number"] = (T.IMPERVIOUS_CURVE_NUMBER, "TR-55 (1986) Table 2-2a: impervious CN 98")
-    out["initial_abstraction_ratio"] = (T.DEFAULT_INITIAL_ABSTRACTION_RATIO,
-                                        "TR-55 (1986): Ia = 0.2 S")
-    return out
-
-
-def _layers(overrides: pd.DataFrame | None,
-            classification: str) -> list[tuple[int, dict[str, Any]]]:
-    """Override rows with their precedence rank, lowest first (applied in that order)."""
-    if overrides is None or not len(overrides):
-        return []
-    table = normalize_overrides(overrides)
-    check_override_labels(table, classification)
-    return sorted(((_rank(row), row) for row in table.to_dict("records")),
-                  key=lambda item: item[0])
-
-
-def _rank(row: dict[str, Any]) -> int:
-    soil, cover = row["soil_class"] is not None, row["cover_class"] is not None
-    if row["subcatchment_id"] is not None:
-        return 30 + 2 * soil + cover
-    return 20 if (soil and cover) else (12 if soil else 11)
-
-
-def check_override_labels(table: pd.DataFrame, classification: str) -> None:
-    """Raise :class:`ParameterError` for an override soil or cover label that does not exist."""
-    from ._soils import check_soil_labels
-
-    for row in table.to_dict("records"):
-        where = row["override_source"]
-        if row["soil_class"] is not None:
-            check_soil_labels([row["soil_class"]], classification, f"{where}:soil_class")
-        if row["cover_class"] is not None:
-            check_cover_labels([row["cover_class"]], f"{where}:cover_class")
-
-
-def _apply(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame, ranks: pd.DataFrame,
-           rank: int, layer: dict[str, Any], warnings: list[GisrunWarning]) -> None:
-    match = np.ones(len(rows), dtype=bool)
-    for key in ("subcatchment_id", "soil_class", "cover_class"):
-        if layer.get(key) is not None:
-            match &= (rows[key] == layer[key]).to_numpy()
-    if not match.any():
-        keys = ", ".join(f"{k}={layer[k]}" for k in ("subcatchment_id", "soil_class", "cover_class")
-                         if layer.get(k) is not None)
-        warnings.append(GisrunWarning(
-            f"{layer['override_source']} ({keys}): matches no unit; it was not used"))
-        return
-    surface = layer.get("surface") or "pervious"
-    on_surface = match & (rows["surface"] == surface).to_numpy()
-    label = layer["override_source"]
-    if rank >= _ATTRIBUTE_RANK:
-        label += " (subcatchment attribute)"
-    for col in _ALL:
-        value = layer.get(col)
-        if value is None or (isinstance(value, float) and np.isnan(value)):
-            continue
-        target = match if col == "loss_method" else on_surface
-        values.loc[target, col] = value
-        sources.loc[target, col] = label
-        ranks.loc[target, col] = rank
-
-
-def _apply_attributes(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
-                      ranks: pd.DataFrame, attributes: pd.DataFrame) -> None:
-    """Apply per-subcatchment values (the highest rank) by a join on the id, not row by row.
-
-    ``attributes`` is the normalized table of :func:`_attribute_table`.
-    """
-    table = attributes.drop_duplicates("subcatchment_id", keep="last").set_index(
-        "subcatchment_id")
-    ids = rows["subcatchment_id"].to_numpy(dtype=object)
-    position = table.index.get_indexer(ids)
-    known = position >= 0
-    pervious = (rows["surface"] == "pervious").to_numpy()
-    label = (table["override_source"].astype(str).to_numpy(dtype=object)
-             + " (subcatchment attribute)")
-    for col in _ALL:
-        if col not in table.columns:
-            continue
-        column = table[col].to_numpy(dtype=object)
-        value = np.where(known, column[np.where(known, position, 0)], None)
-        given = known & pd.notna(pd.Series(value)).to_numpy()
-        target = given if col == "loss_method" else given & pervious
-        if not target.any():
-            continue
-        values.loc[target, col] = value[target]
-        sources.loc[target, col] = label[position[target]]
-        ranks.loc[target, col] = _ATTRIBUTE_RANK
 
 
 def _rederive(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
@@ -475,7 +305,7 @@ def _rederive(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
             & (rows["surface"] == "pervious")).to_numpy()
     if redo.any():
         soil_loss = rows.loc[redo, "hydrologic_soil_group"].map(
-            T.group_defaults()["initial_soil_loss_m"])
+            group_defaults()["initial_soil_loss_m"])
         values.loc[redo, "initial_loss_m"] = (
             values.loc[redo, "depression_storage_m"].astype(float) + soil_loss)
         sources.loc[redo, "initial_loss_m"] = (
@@ -518,7 +348,7 @@ def _params(rows: pd.DataFrame, values: pd.DataFrame, inverse: np.ndarray) -> pd
     out["loss_method"] = pd.Series(
         values["loss_method"].astype(str).to_numpy(dtype=object)[inverse], index=out.index,
         dtype=str)
-    out["antecedent_condition"] = T.DEFAULT_ANTECEDENT_CONDITION
+    out["antecedent_condition"] = DEFAULT_ANTECEDENT_CONDITION
     return out
 
 

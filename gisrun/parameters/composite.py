@@ -5,6 +5,9 @@ unit with parameters averaged over its soil x cover parts.
 
 Weighting rules
 ---------------
+Each method module declares how each of its parameters is weighted
+(``Parameter.composite``, :mod:`gisrun.engine.declare`); today:
+
 Curve number
     Area-weighted arithmetic mean over the whole subcatchment, impervious parts
     at 98 (TR-55 1986, ch. 2, composite curve number; note that TR-55 averages
@@ -30,13 +33,15 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ..engine import PARAMETERS
 from ..errors import ParameterError
 from .overrides import PARAMETER_COLUMNS
 
-__all__ = ["composite_parameters"]
+__all__ = ["composite_parameters", "PERVIOUS_AREA_WEIGHTED"]
 
-_SOIL_ONLY = ("suction_head_m", "moisture_deficit", "horton_decay_per_s",
-              "horton_recovery_per_s")
+#: Columns weighted by pervious area only (declared ``composite="pervious_area"``).
+PERVIOUS_AREA_WEIGHTED: tuple[str, ...] = tuple(
+    c for c in PARAMETER_COLUMNS if PARAMETERS[c].composite == "pervious_area")
 
 
 def composite_parameters(unit_params: pd.DataFrame) -> pd.DataFrame:
@@ -84,7 +89,7 @@ def _one(sid: object, part: pd.DataFrame) -> dict[str, object]:
     for col in PARAMETER_COLUMNS:
         if col not in part.columns:
             continue
-        weights = perv_area if col in _SOIL_ONLY else area
+        weights = perv_area if col in PERVIOUS_AREA_WEIGHTED else area
         values = part[col].to_numpy(float)
         row[col] = float(np.dot(weights, values) / weights.sum()) if weights.sum() > 0 else 0.0
     for col in ("loss_method", "antecedent_condition"):

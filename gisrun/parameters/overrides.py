@@ -22,18 +22,20 @@ parameter alone. A ``note`` column is allowed and ignored.
 
 from __future__ import annotations
 
-import difflib
-
 import numpy as np
 import pandas as pd
 
+from ..engine import ENGINES, PARAMETERS, Parameter, method_name
 from ..errors import ParameterError
+from ..options import did_you_mean
 from ..units import FACTORS_TO_SI
 
 __all__ = [
     "KEY_COLUMNS",
     "LOSS_METHODS",
     "PARAMETER_COLUMNS",
+    "SOIL_PROPERTIES",
+    "ALIASES",
     "accepted_columns",
     "normalize_overrides",
     "check_loss_method",
@@ -41,66 +43,56 @@ __all__ = [
 
 #: Columns that say which units an override row applies to.
 KEY_COLUMNS: tuple[str, ...] = ("subcatchment_id", "soil_class", "cover_class", "surface")
-#: Loss methods a unit may use.
-LOSS_METHODS: tuple[str, ...] = (
-    "green_ampt", "horton", "curve_number", "constant_loss", "phi_index",
-)
-#: SI parameter columns of the unit parameter contract (DEVELOPERS.md), in order.
-PARAMETER_COLUMNS: tuple[str, ...] = (
-    "ks_m_per_s", "suction_head_m", "moisture_deficit", "depression_storage_m",
-    "horton_f0_m_per_s", "horton_fc_m_per_s", "horton_decay_per_s", "horton_recovery_per_s",
-    "curve_number", "initial_abstraction_ratio", "initial_loss_m", "constant_loss_m_per_s",
-    "phi_index_m_per_s",
-)
-_FRACTIONS = ("moisture_deficit", "effective_porosity", "total_porosity")
-_RATE_UNITS = ("m_per_s", "mm_per_h", "cm_per_h", "in_per_h", "um_per_s")
-_DEPTH_UNITS = ("m", "mm", "cm", "in")
-_PER_TIME = {"per_s": 1.0, "per_min": 1 / 60.0, "per_h": 1 / 3600.0, "per_day": 1 / 86400.0}
+#: Loss methods a unit may use (the engine's registry).
+LOSS_METHODS: tuple[str, ...] = tuple(ENGINES)
+#: SI parameter columns of the unit parameter contract (DEVELOPERS.md), in order: the
+#: declared parameters of every method that a table gives per unit.
+PARAMETER_COLUMNS: tuple[str, ...] = tuple(
+    c for c, p in PARAMETERS.items() if p.in_frame and p.overridable)
+#: Declared soil properties that only feed another parameter (the porosities).
+SOIL_PROPERTIES: tuple[str, ...] = tuple(
+    c for c, p in PARAMETERS.items() if not p.in_frame and p.overridable)
+#: The published units an override column may use, per SI unit, with their factor to SI.
+_UNITALIASES: dict[str, tuple[str, dict[str, float]]] = {
+    "m/s": ("_m_per_s", {u: FACTORS_TO_SI[u]
+                         for u in ("m_per_s", "mm_per_h", "cm_per_h", "in_per_h", "um_per_s")}),
+    "1/s": ("_per_s", {"per_s": 1.0, "per_min": 1 / 60.0, "per_h": 1 / 3600.0,
+                       "per_day": 1 / 86400.0}),
+    "m": ("_m", {u: FACTORS_TO_SI[u] for u in ("m", "mm", "cm", "in")}),
+}
 _IGNORED = ("note",)
 
 
-def _build_aliases() -> dict[str, tuple[str, float]]:
-    aliases: dict[str, tuple[str, float]] = {}
-    for si in PARAMETER_COLUMNS:
-        if si.endswith("_m_per_s"):
-            stem = si[: -len("_m_per_s")]
-            aliases.update({f"{stem}_{u}": (si, FACTORS_TO_SI[u]) for u in _RATE_UNITS})
-        elif si.endswith("_per_s"):
-            stem = si[: -len("_per_s")]
-            aliases.update({f"{stem}_{u}": (si, f) for u, f in _PER_TIME.items()})
-        elif si.endswith("_m"):
-            stem = si[: -len("_m")]
-            aliases.update({f"{stem}_{u}": (si, FACTORS_TO_SI[u]) for u in _DEPTH_UNITS})
-        else:
-            aliases[si] = (si, 1.0)
-    for name in ("effective_porosity", "total_porosity"):
-        aliases[name] = (name, 1.0)
-    return aliases
+def _aliases(parameter: Parameter) -> dict[str, tuple[str, float]]:
+    """Override column names of one declared parameter -> (SI column, factor to SI)."""
+    si = parameter.column
+    if parameter.unit not in _UNITALIASES:
+        return {si: (si, 1.0)}
+    suffix, units = _UNITALIASES[parameter.unit]
+    stem = si[: -len(suffix)]
+    return {f"{stem}_{u.removeprefix('_')}": (si, f) for u, f in units.items()}
 
 
-_ALIASES = _build_aliases()
+#: Every accepted parameter column name (SI or a published unit) -> (SI column, factor to SI).
+ALIASES: dict[str, tuple[str, float]] = {
+    name: target for c in (*PARAMETER_COLUMNS, *SOIL_PROPERTIES)
+    for name, target in _aliases(PARAMETERS[c]).items()}
 
 
 def accepted_columns() -> list[str]:
     """Every column name an override table may have (keys, parameters, ``note``)."""
-    return [*KEY_COLUMNS, *sorted(_ALIASES), "loss_method", *_IGNORED]
+    return [*KEY_COLUMNS, *sorted(ALIASES), "loss_method", *_IGNORED]
 
 
 def check_loss_method(name: object, where: str) -> str:
-    """Return a valid loss method name or raise :class:`ParameterError`.
+    """Return a valid loss method name or raise :class:`ParameterError` (see ``method_name``).
 
     Examples
     --------
     >>> check_loss_method(" Horton ", "x")
     'horton'
     """
-    text = str(name).strip().lower()
-    if text in LOSS_METHODS:
-        return text
-    near = difflib.get_close_matches(text, LOSS_METHODS, n=1)
-    hint = f"did you mean {near[0]!r}? " if near else ""
-    raise ParameterError(where, f"unknown loss method {name!r}",
-                         f"{hint}use one of {list(LOSS_METHODS)}")
+    return method_name(name, where=where)
 
 
 def normalize_overrides(
@@ -139,7 +131,7 @@ def normalize_overrides(
     for key in KEY_COLUMNS:
         out[key] = _key_column(frame, key)
     for col in _parameter_columns(frame, where):
-        si, factor = _ALIASES[col]
+        si, factor = ALIASES[col]
         given = _numbers(frame[col], where, col, names)
         out[si] = given * factor
         _check_range(out[si], si, where, col, names, out["surface"], given)
@@ -175,14 +167,14 @@ def _parameter_columns(frame: pd.DataFrame, where: str) -> list[str]:
     for col in frame.columns:
         if col in KEY_COLUMNS or col in _IGNORED or col == "loss_method":
             continue
-        if col not in _ALIASES:
-            near = difflib.get_close_matches(col, accepted, n=1)
-            hint = f"did you mean {near[0]!r}? " if near else ""
+        if col not in ALIASES:
+            near = did_you_mean(col, accepted)
+            hint = f"{near}; " if near.startswith("did") else ""
             raise ParameterError(
                 f"{where}:{col}", "is not a parameter column",
                 f"{hint}name a parameter with its unit, e.g. ks_mm_per_h, suction_head_mm",
             )
-        si = _ALIASES[col][0]
+        si = ALIASES[col][0]
         if si in seen:
             raise ParameterError(
                 f"{where}:{col}", f"gives the same parameter as column {seen[si]!r}",
@@ -210,39 +202,23 @@ def _check_range(
     values: pd.Series, si: str, where: str, col: str, names: list[str], surface: pd.Series,
     given: pd.Series,
 ) -> None:
-    low, high, low_open = 0.0, np.inf, False
-    if si in _FRACTIONS:
-        high = 1.0
-    elif si == "curve_number":
-        low_open, high = True, 100.0
-    elif si == "initial_abstraction_ratio":
-        high = 1.0
+    """Check values against the parameter's declared range."""
+    p = PARAMETERS[si]
     v = values.to_numpy()
-    bad = (v < low) | (v > high) | ((v == low) & low_open)
-    if si == "ks_m_per_s":
+    if p.allowed:
+        bad = ~np.isin(np.round(v, 12), p.allowed)
+    else:
+        bad = (v < p.low) | (v > p.high) | ((v == p.low) & p.low_open)
+    if p.positive_when_pervious:
         bad |= (v <= 0) & (surface.to_numpy() != "impervious")
-    if si in ("effective_porosity", "total_porosity"):
-        bad |= v == 0
     bad &= ~np.isnan(v)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
-        allowed = _allowed_text(si)
         raise ParameterError(
-            f"{where}:{names[i]}:{col}", f"value {given.iloc[i]:g} is out of range ({allowed})",
+            f"{where}:{names[i]}:{col}",
+            f"value {given.iloc[i]:g} is out of range ({si} must be {p.allowed_text()})",
             "correct the value or leave the cell blank",
         )
-
-
-def _allowed_text(si: str) -> str:
-    if si == "ks_m_per_s":
-        return "conductivity must be greater than 0 on a pervious surface"
-    if si in ("effective_porosity", "total_porosity"):
-        return "a porosity is a fraction greater than 0 and at most 1"
-    if si in _FRACTIONS or si == "initial_abstraction_ratio":
-        return "a fraction between 0 and 1"
-    if si == "curve_number":
-        return "a curve number is greater than 0 and at most 100"
-    return "must not be negative"
 
 
 def _check_rows(out: pd.DataFrame, where: str, names: list[str]) -> None:

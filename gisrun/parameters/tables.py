@@ -6,6 +6,12 @@ the published units, ``# note: ...`` anything a reader must know. Values are
 entered as published and converted to SI here, on load. Files are read only
 through :mod:`importlib.resources`; this module opens no user path.
 
+A table added for a new loss method needs no code here: its first column is
+the key (``hydrologic_soil_group``, ``texture`` or ``cover_class``), its value
+columns are named like override columns (``<parameter>_<published unit>``), a
+``# title:`` line names it, and the method's parameter declares
+``default="table:<file stem>"`` (see :mod:`gisrun.parameters.defaults`).
+
 Tables
 ------
 ``green_ampt_texture``
@@ -132,7 +138,9 @@ def read_shipped_table(name: str) -> ShippedTable:
     n_comment = next(i for i, line in enumerate(lines) if not line.startswith("#"))
     comments = [line.lstrip("#").strip() for line in lines[:n_comment]]
     frame = pd.read_csv(io.StringIO("\n".join(lines[n_comment:])), keep_default_na=True)
-    return ShippedTable(name, _TITLES[name], comments, frame)
+    titles = [c.removeprefix("title:").strip() for c in comments if c.startswith("title:")]
+    return ShippedTable(name, _TITLES.get(name) or (titles[0] if titles else name), comments,
+                        frame)
 
 
 def list_tables() -> list[ShippedTable]:
@@ -148,7 +156,10 @@ def list_tables() -> list[ShippedTable]:
     >>> [t.name for t in list_tables()][:2]
     ['green_ampt_texture', 'hsg_conductivity']
     """
-    return [read_shipped_table(name) for name in _TITLES]
+    data = resources.files("gisrun.parameters").joinpath("data")
+    others = sorted(f.name.removesuffix(".csv") for f in data.iterdir()
+                    if f.name.endswith(".csv") and f.name.removesuffix(".csv") not in _TITLES)
+    return [read_shipped_table(name) for name in (*_TITLES, *others)]
 
 
 @cache

@@ -30,42 +30,16 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..engine import ENGINES
 from ..units import UnitSystem, present_frame
 
 __all__ = ["METHOD_COLUMNS", "model_inputs", "model_inputs_si", "join_model_inputs",
            "excess_series_table"]
 
-#: Output column (SI name) -> (unit parameter column, weighting) per loss method.
+#: Output column (SI name) -> (unit parameter column, weighting) per loss method: each
+#: method module's ``MODEL_INPUTS`` declaration.
 METHOD_COLUMNS: dict[str, dict[str, tuple[str, str]]] = {
-    "green_ampt": {
-        "pervious_ks_m_per_s": ("ks_m_per_s", "pervious"),
-        "pervious_suction_head_m": ("suction_head_m", "pervious"),
-        "pervious_moisture_deficit": ("moisture_deficit", "pervious"),
-        "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
-        "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-    },
-    "horton": {
-        "pervious_horton_initial_capacity_m_per_s": ("horton_f0_m_per_s", "pervious"),
-        "pervious_horton_final_capacity_m_per_s": ("horton_fc_m_per_s", "pervious"),
-        "pervious_horton_decay_per_s": ("horton_decay_per_s", "pervious"),
-        "pervious_horton_recovery_per_s": ("horton_recovery_per_s", "pervious"),
-        "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
-        "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-    },
-    "curve_number": {
-        "composite_curve_number": ("curve_number", "all"),
-        "initial_abstraction_ratio": ("initial_abstraction_ratio", "all"),
-    },
-    "constant_loss": {
-        "pervious_initial_loss_m": ("initial_loss_m", "pervious"),
-        "pervious_constant_loss_rate_m_per_s": ("constant_loss_m_per_s", "pervious"),
-        "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-    },
-    "phi_index": {
-        "pervious_phi_index_m_per_s": ("phi_index_m_per_s", "pervious"),
-        "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
-        "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-    },
+    name: dict(module.MODEL_INPUTS) for name, module in ENGINES.items()
 }
 
 
@@ -179,7 +153,6 @@ def excess_series_table(storms: Any, system: UnitSystem) -> pd.DataFrame:
     ``subcatchment_id``, ``time_end_min``, ``rain_<depth>``, ``infiltration_<depth>``,
     ``excess_<depth>`` (depth in the step) and the same as ``_intensity_<rate>``.
     """
-    from .layers import series_layer
-
-    frames = [series_layer(storm.series, storm.name, system) for storm in storms]
-    return pd.concat(frames, ignore_index=True)
+    frames = [present_frame(storm.series, system).assign(storm=storm.name) for storm in storms]
+    frame = pd.concat(frames, ignore_index=True)
+    return frame[["storm", *[c for c in frame.columns if c != "storm"]]]

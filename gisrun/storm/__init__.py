@@ -1,31 +1,36 @@
 """Storms: the hyetograph type, published design storms and their resampling (all SI).
 
 Reads only its own packaged table of the NRCS 24-hour distributions
-(through :mod:`importlib.resources`).
+(through :mod:`importlib.resources`). :data:`KINDS` is the registry of design
+storm kinds.
 """
 
-from .hyetograph import (
+from .design import (
+    KINDS,
     NRCS_DISTRIBUTIONS,
-    Hyetograph,
-    IdfFormula,
-    IdfTable,
+    StormKey,
+    StormKind,
     alternating_block,
     chicago,
-    max_depth_in_window_m,
     nrcs_24h,
     nrcs_24h_table,
     uniform,
 )
+from .hyetograph import Hyetograph, max_depth_in_window_m
+from .idf import IdfFormula, IdfTable
 
 __all__ = [
+    "KINDS",
+    "NRCS_DISTRIBUTIONS",
     "Hyetograph",
     "IdfFormula",
     "IdfTable",
-    "NRCS_DISTRIBUTIONS",
-    "nrcs_24h_table",
-    "nrcs_24h",
+    "StormKey",
+    "StormKind",
     "alternating_block",
     "chicago",
-    "uniform",
     "max_depth_in_window_m",
+    "nrcs_24h",
+    "nrcs_24h_table",
+    "uniform",
 ]

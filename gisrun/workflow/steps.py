@@ -22,11 +22,10 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from ..aggregate import area_weights, subcatchment_series, summarize_subcatchments, summarize_units
-from ..engine import ENGINES, run_losses
+from ..engine import method_name, run_losses
 from ..errors import ParameterError, VectorError
 from ..grid.overlay import compute_unit_areas
 from ..model import Inputs, StormResult
-from ..options import did_you_mean
 from ..parameters import assign_parameters, composite_parameters
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
@@ -113,24 +112,16 @@ def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.Dat
     field_name = project.subcatchments.method_field
     if field_name:
         methods = subs[field_name].astype(object).where(subs[field_name].notna(), None)
-        attrs["loss_method"] = methods.map(
-            lambda v: v.strip().lower() if isinstance(v, str) and v.strip() else None)
-        _check_methods(attrs.dropna(subset=["loss_method"]), project)
+        where = f"{project.subcatchments.path.name}:{field_name}"
+        attrs["loss_method"] = [
+            method_name(v, where=f"{where}:id={sid}", error=VectorError)
+            if isinstance(v, str) and v.strip() else None
+            for sid, v in zip(attrs["subcatchment_id"], methods, strict=True)]
     for name in project.subcatchments.parameter_fields:
         attrs[name] = subs[name].to_numpy()
     values = attrs.drop(columns="subcatchment_id")
     attrs = attrs[values.notna().any(axis=1).to_numpy()] if values.shape[1] else attrs.iloc[:0]
     return attrs if len(attrs) else None
-
-
-def _check_methods(attrs: pd.DataFrame, project: Project) -> None:
-    for sub_id, name in zip(attrs["subcatchment_id"], attrs["loss_method"], strict=True):
-        if name not in ENGINES:
-            raise VectorError(
-                f"{project.subcatchments.path.name}:{project.subcatchments.method_field}"
-                f":id={sub_id}", f"names an unknown method {name!r}",
-                did_you_mean(name, ENGINES),
-            )
 
 
 def run_storm(

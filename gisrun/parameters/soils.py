@@ -9,15 +9,24 @@ References
 
 from __future__ import annotations
 
-import difflib
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 
 from ..errors import GisrunWarning, ParameterError
-from . import tables as T
+from ..options import did_you_mean
+from .tables import (
+    DUAL_GROUPS,
+    HYDROLOGIC_SOIL_GROUPS,
+    NON_INFILTRATING_SOILS,
+    TEXTURE_CLASSES,
+    UNSPECIFIED_COVER,
+    cover_table,
+    green_ampt_by_texture,
+    group_defaults,
+)
 
-__all__ = ["SoilInfo", "valid_soil_labels", "check_soil_labels", "check_cover_labels",
-           "resolve_soils"]
+__all__ = ["CLASSIFICATIONS", "SoilClassification", "SoilInfo", "valid_soil_labels",
+           "check_soil_labels", "check_cover_labels", "resolve_soils"]
 
 _SILT_SURROGATE = "silt loam"
 
@@ -33,11 +42,26 @@ class SoilInfo:
     green_ampt_source: str
 
 
+@dataclass(frozen=True)
+class SoilClassification:
+    """What the soil labels of one ``[soil] classification`` are and how each resolves.
+
+    Attributes
+    ----------
+    labels : tuple of str
+        The labels that infiltrate, in table order (``water`` and ``rock`` are
+        valid in every classification and take no water).
+    resolve : callable
+        ``resolve(label, dual_group_condition, warnings) -> SoilInfo``.
+    """
+
+    labels: tuple[str, ...]
+    resolve: Callable[[str, str, list[GisrunWarning]], SoilInfo]
+
+
 def valid_soil_labels(classification: str) -> list[str]:
     """Soil labels allowed for a classification, in table order."""
-    if classification == "texture":
-        return [*T.TEXTURE_CLASSES, *T.NON_INFILTRATING_SOILS]
-    return [*T.HYDROLOGIC_SOIL_GROUPS, *T.DUAL_GROUPS, *T.NON_INFILTRATING_SOILS]
+    return [*CLASSIFICATIONS[classification].labels, *NON_INFILTRATING_SOILS]
 
 
 def check_soil_labels(labels: Iterable[str], classification: str, where: str) -> None:
@@ -51,7 +75,7 @@ def check_soil_labels(labels: Iterable[str], classification: str, where: str) ->
 
 def check_cover_labels(labels: Iterable[str], where: str) -> None:
     """Raise :class:`ParameterError` naming the first unknown cover class."""
-    valid = [*T.cover_table().index, T.UNSPECIFIED_COVER]
+    valid = [*cover_table().index, UNSPECIFIED_COVER]
     for label in labels:
         if label not in valid:
             _unknown(where, label, valid, "cover class",
@@ -59,8 +83,8 @@ def check_cover_labels(labels: Iterable[str], where: str) -> None:
 
 
 def _unknown(where: str, label: str, valid: list[str], kind: str, todo: str) -> None:
-    near = difflib.get_close_matches(str(label), valid, n=1, cutoff=0.5)
-    hint = f"did you mean {near[0]!r}? " if near else ""
+    near = did_you_mean(label, valid)
+    hint = f"{near} " if near.startswith("did") else ""
     raise ParameterError(where, f"unknown {kind} {label!r}",
                          f"{hint}{todo}; valid: {', '.join(valid)}")
 
@@ -78,35 +102,44 @@ def resolve_soils(labels: Iterable[str], classification: str, dual_condition: st
     check_soil_labels(labels, classification, "unit table: soil_class")
     out: dict[str, SoilInfo] = {}
     for label in labels:
-        if label in T.NON_INFILTRATING_SOILS:
+        if label in NON_INFILTRATING_SOILS:
             out[label] = SoilInfo(False, None, f"{label}: takes no water", None, "")
-        elif classification == "texture":
-            out[label] = _texture_soil(label, warnings)
         else:
-            out[label] = _group_soil(label, dual_condition)
+            out[label] = CLASSIFICATIONS[classification].resolve(label, dual_condition, warnings)
     return out
 
 
-def _texture_soil(label: str, warnings: list[GisrunWarning]) -> SoilInfo:
+def _texture_soil(label: str, dual_condition: str, warnings: list[GisrunWarning]
+                  ) -> SoilInfo:
     texture = label
     if label == "silt":
         texture = _SILT_SURROGATE
         warnings.append(GisrunWarning(
             "soil class 'silt': Rawls et al. (1983) give no Green-Ampt values for silt; "
             "silt loam values are used (override them in the parameter CSV if you have better)"))
-    group = T.green_ampt_by_texture().at[texture, "hydrologic_soil_group"]
+    group = green_ampt_by_texture().at[texture, "hydrologic_soil_group"]
     return SoilInfo(
         True, group, f"texture {texture} -> group {group}, TR-55 (1986) App. A", texture,
         f"Rawls et al. (1983) / Chow et al. (1988) Table 4.3.1, {texture}")
 
 
-def _group_soil(label: str, dual_condition: str) -> SoilInfo:
+def _group_soil(label: str, dual_condition: str, warnings: list[GisrunWarning]
+                ) -> SoilInfo:
     group, source = label, f"soil class {label}"
-    if label in T.DUAL_GROUPS:
+    if label in DUAL_GROUPS:
         group = label[0] if dual_condition == "drained" else "D"
         source = f"dual group {label}, {dual_condition} -> {group} (NRCS NEH 630 Ch. 7, 2009)"
-    texture = T.group_defaults().at[group, "representative_texture"]
+    texture = group_defaults().at[group, "representative_texture"]
     return SoilInfo(
         True, group, source, texture,
         f"Rawls et al. (1983) / Chow et al. (1988) Table 4.3.1, {texture}, representative"
         f" texture of group {group} (gisrun default, common practice)")
+
+
+#: Soil classification (``[soil] classification``) -> its labels and how they resolve.
+#: A new classification is a new entry here (and its table in ``data/``).
+CLASSIFICATIONS: dict[str, SoilClassification] = {
+    "hydrologic_soil_group": SoilClassification(
+        (*HYDROLOGIC_SOIL_GROUPS, *DUAL_GROUPS), _group_soil),
+    "texture": SoilClassification(TEXTURE_CLASSES, _texture_soil),
+}
