@@ -29,6 +29,7 @@ import difflib
 from collections.abc import Iterable
 
 from .errors import GisrunError, InputError
+from .units import SYSTEMS
 
 __all__ = ["normalize_name", "did_you_mean", "choose", "Choices", "NODATA_RULES",
            "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS", "CHOICES"]
@@ -98,7 +99,7 @@ COMBINE_RULES = Choices(("units", "composite"), what="combine rule", default="un
 DUAL_GROUP_CONDITIONS = Choices(("drained", "undrained"), what="dual-group condition",
                                 default="undrained")
 #: Unit systems of inputs and outputs (``[project] units``).
-UNIT_SYSTEMS = Choices(("si", "us"), what="unit system", default="si")
+UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {

@@ -136,6 +136,8 @@ class UnitSystem:
 
 SI = UnitSystem("si", depth="mm", rate="mm_per_h", area="m2", volume="m3")
 US = UnitSystem("us", depth="in", rate="in_per_h", area="acre", volume="ft3")
+#: The unit systems, by name: the one list of them.
+SYSTEMS: dict[str, UnitSystem] = {system.name: system for system in (SI, US)}
 
 
 def unit_system(name: str) -> UnitSystem:
@@ -146,12 +148,11 @@ def unit_system(name: str) -> UnitSystem:
     InputError
         If the name is neither.
     """
-    systems = {"si": SI, "us": US}
     try:
-        return systems[name.strip().lower()]
+        return SYSTEMS[name.strip().lower()]
     except (KeyError, AttributeError):
         raise InputError(
-            f"units {name!r}", "is not a unit system", "use 'si' or 'us'"
+            f"units {name!r}", "is not a unit system", f"use one of {sorted(SYSTEMS)}"
         ) from None
 
 

@@ -8,6 +8,8 @@ from pathlib import Path
 import click
 from click.decorators import FC
 
+from ..options import UNIT_SYSTEMS
+
 __all__ = ["project_argument", "overwrite_option", "units_option", "plot_option"]
 
 #: The project file, or a folder holding ``gisrun.toml`` (``run``, ``check``).
@@ -17,7 +19,7 @@ project_argument = click.argument(
 
 #: Unit system of a storm command's input and output (``storm make``, ``storm show``).
 units_option = click.option(
-    "--units", "units_name", type=click.Choice(["si", "us"]), default="si", show_default=True,
+    "--units", "units_name", type=click.Choice(list(UNIT_SYSTEMS)), default="si", show_default=True,
     help="si: depths mm, intensities mm/h; us: depths in, intensities in/h.",
 )
 

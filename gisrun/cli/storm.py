@@ -20,7 +20,7 @@ from matplotlib.figure import Figure
 from ..config.storms import storm_from_config
 from ..io.files import atomic_target
 from ..io.storm_csv import read_hyetograph_csv, write_hyetograph_csv
-from ..storm import Hyetograph
+from ..storm import KINDS, Hyetograph
 from ..units import UnitSystem, from_si, unit_system
 from .options import overwrite_option, plot_option, units_option
 
@@ -38,7 +38,7 @@ def storm() -> None:
 
 
 @storm.command("make")
-@click.option("--kind", type=click.Choice(["nrcs_24h", "alternating_block", "chicago", "uniform"]),
+@click.option("--kind", type=click.Choice(list(KINDS)),
               required=True, help="Design storm method.")
 @click.option("--distribution", help="nrcs_24h: rainfall distribution type I, IA, II or III.")
 @click.option("--depth", type=float, help="Total depth (nrcs_24h, uniform), in mm or in.")

@@ -51,12 +51,12 @@ from pyproj import CRS
 
 from ..crs import geodesic_cell_area_m2, linear_unit_m, polygon_area_m2
 from ..errors import CRSError, InputError, RasterError
+from ..options import NODATA_RULES
 from .classes import CentreSampling, ClassGrid, CodeLookup, nesting, read_padded
 from .coverage import cell_coverage
 
-__all__ = ["compute_unit_areas", "NODATA_RULES", "UNSPECIFIED_COVER"]
+__all__ = ["compute_unit_areas", "UNSPECIFIED_COVER"]
 
-NODATA_RULES = ("error", "dominant", "omit")
 UNSPECIFIED_COVER = "unspecified"
 _OUTSIDE, _NODATA = 0, 1  # class indices before the real (soil x cover) classes
 

@@ -133,11 +133,6 @@ def _read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]], str 
     return header, rows, comment_name
 
 
-#: Kept for :mod:`gisrun.config.storms`, which imports it; new code calls
-#: :func:`gisrun.options.did_you_mean`.
-nearest_hint = did_you_mean
-
-
 def _columns(header: list[str], src: str) -> tuple[str, str]:
     if len(header) != 2:
         unknown = [h for h in header if h not in _TIME_COLUMNS and h not in _VALUE_COLUMNS]
