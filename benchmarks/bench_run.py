@@ -37,7 +37,7 @@ MEASURE = """
 import sys, time
 import gisrun.io.geopackage as output
 import gisrun.workflow.steps as steps
-from gisrun.cli import main
+from gisrun.cli.main import main
 
 spent = {"engine": 0.0, "append": 0.0}
 
