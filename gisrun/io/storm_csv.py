@@ -34,6 +34,7 @@ from ..errors import GisrunWarning, StormError
 from ..options import did_you_mean
 from ..storm import Hyetograph, IdfTable, max_depth_in_window_m
 from ..units import FACTORS_TO_SI, SI, US, UnitSystem, from_si, to_si
+from .csv_rows import row_cells
 from .files import atomic_target
 
 __all__ = [
@@ -129,30 +130,11 @@ def _read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]], str 
     if not records:
         raise StormError(str(path), "is empty", "add a header (time column, value column) and rows")
     header = [h.strip().lower() for h in records[0]]
-    rows = [(i, _row_cells(r, len(header), i, str(path)))
+    rows = [(i, row_cells(r, len(header), f"{path}:row {i}"))
             for i, r in enumerate(records[1:], start=1)]
     if not rows:
         raise StormError(str(path), "has a header but no data rows", "add at least one row of rain")
     return header, rows, comment_name
-
-
-def _row_cells(record: list[str], n_header: int, row: int, src: str) -> list[str]:
-    """A row's stripped cells; more non-blank cells than the header has is an error.
-
-    Extra cells would otherwise be dropped without a word: with a decimal comma, ``5,1,5``
-    would read as 1 mm instead of 1.5 mm. Trailing blank cells (a spreadsheet's empty
-    columns) are allowed.
-    """
-    cells = [c.strip() for c in record]
-    while len(cells) > n_header and cells[-1] == "":
-        cells.pop()
-    if len(cells) > n_header:
-        raise StormError(f"{src}:row {row}",
-                         f"has {len(cells)} cells ({','.join(cells)!r}) but the header has "
-                         f"{n_header}; a decimal comma or another delimiter is the likely cause",
-                         "separate the columns with commas and write decimals with a point "
-                         "(1.5, not 1,5)")
-    return cells
 
 
 def _columns(header: list[str], src: str) -> tuple[str, str]:
