@@ -40,6 +40,8 @@ __all__ = [
     "column",
     "present_frame",
     "si_frame",
+    "round_significant",
+    "SIGNIFICANT_DIGITS",
 ]
 
 #: Multiply a value in the named unit by this factor to get SI.
@@ -161,10 +163,16 @@ def column(quantity: str, unit: str) -> str:
     return f"{quantity}_{unit}"
 
 
-#: SI column suffixes and the unit-system attribute they convert to, longest first.
-_SUFFIXES: tuple[tuple[str, str | None], ...] = (
+#: Significant digits of every presented number (output layers, CSVs, report tables).
+#: Inside, values stay unrounded SI; only :func:`present_frame` rounds.
+SIGNIFICANT_DIGITS = 6
+
+#: SI column suffixes and the unit-system attribute they convert to, longest first; a
+#: ``(per_...)`` name is a fixed unit: decay and recovery constants are entered and shown per
+#: hour in both systems.
+_SUFFIXES: tuple[tuple[str, str], ...] = (
     ("_m_per_s", "rate"),
-    ("_per_s", None),  # other rates (1/s decay constants) are left in SI
+    ("_per_s", "(per_h)"),
     ("_m2", "area"),
     ("_m3", "volume"),
     ("_m", "depth"),
@@ -172,24 +180,59 @@ _SUFFIXES: tuple[tuple[str, str | None], ...] = (
 )
 
 
+def _unit_of(system: UnitSystem, kind: str) -> str:
+    return kind.strip("()") if kind.startswith("(") else getattr(system, kind)
+
+
+def round_significant(values: ArrayLike, digits: int = SIGNIFICANT_DIGITS
+                      ) -> NDArray[np.float64]:
+    """Round to ``digits`` significant digits; NaN, inf and 0 stay as they are.
+
+    Float noise from unit conversion and summing goes (``0.19999999999999998`` -> ``0.2``).
+
+    Examples
+    --------
+    >>> round_significant([0.19999999999999998, 11.99891012472315, 48557.86650003627]).tolist()
+    [0.2, 11.9989, 48557.9]
+    """
+    x = np.array(values, dtype=np.float64)
+    keep = np.isfinite(x) & (x != 0.0)
+    if not keep.any():
+        return x
+    v = x[keep]
+    shift = digits - 1 - np.floor(np.log10(np.abs(v))).astype(np.int64)
+    up = shift >= 0  # multiply by an exact power of ten, round, divide: the nearest double
+    out = np.empty_like(v)
+    out[up] = np.round(v[up] * 10.0 ** shift[up]) / 10.0 ** shift[up]
+    out[~up] = np.round(v[~up] / 10.0 ** -shift[~up]) * 10.0 ** -shift[~up]
+    x[keep] = out
+    return x
+
+
 def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
     """Convert SI columns of a result frame to ``system``, renaming their suffixes.
 
-    Columns ending in ``_m_per_s``, ``_m2``, ``_m3``, ``_m`` or ``_s`` are
-    taken as SI rates, areas, volumes, depths and times; other columns are
-    left as they are.
+    Columns ending in ``_m_per_s``, ``_per_s``, ``_m2``, ``_m3``, ``_m`` or ``_s`` are
+    taken as SI rates, frequencies (decay and recovery constants, shown per hour), areas,
+    volumes, depths and times; other columns keep their names. Every float column is then
+    rounded to :data:`SIGNIFICANT_DIGITS` significant digits (:func:`round_significant`).
 
     Examples
     --------
     >>> import pandas as pd
-    >>> present_frame(pd.DataFrame({"runoff_depth_m": [0.0254], "time_to_ponding_s": [600.0]}),
+    >>> present_frame(pd.DataFrame({"runoff_depth_m": [0.0254], "time_to_ponding_s": [600.0],
+    ...                             "decay_per_s": [0.00115], "share": [0.19999999999999998]}),
     ...               US).to_dict("list")
-    {'runoff_depth_in': [1.0], 'time_to_ponding_min': [10.0]}
+    {'runoff_depth_in': [1.0], 'time_to_ponding_min': [10.0], 'decay_per_h': [4.14], \
+'share': [0.2]}
     """
-    # (SI ending, ending in system, unit); an ending of kind None (1/s) stays as it is
-    endings = [(suffix, f"_{getattr(system, kind)}" if kind else None,
-                getattr(system, kind) if kind else None) for suffix, kind in _SUFFIXES]
-    return _convert_columns(frame, endings, from_si)
+    endings = [(suffix, f"_{_unit_of(system, kind)}", _unit_of(system, kind))
+               for suffix, kind in _SUFFIXES]
+    out = _convert_columns(frame, endings, from_si)
+    for name in out.columns:
+        if out[name].dtype == np.float64:
+            out[name] = round_significant(out[name].to_numpy())
+    return out
 
 
 def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
@@ -202,24 +245,22 @@ def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
     ...          US).to_dict("list")
     {'runoff_depth_m': [0.0254], 'time_to_ponding_s': [600.0]}
     """
-    endings = sorted(((f"_{getattr(system, kind)}", suffix, getattr(system, kind))
-                      for suffix, kind in _SUFFIXES if kind), key=lambda t: -len(t[0]))
+    endings = sorted(((f"_{_unit_of(system, kind)}", suffix, _unit_of(system, kind))
+                      for suffix, kind in _SUFFIXES), key=lambda t: -len(t[0]))
     return _convert_columns(frame, endings, to_si)
 
 
-def _convert_columns(frame: pd.DataFrame, endings: list[tuple[str, str | None, str | None]],
+def _convert_columns(frame: pd.DataFrame, endings: list[tuple[str, str, str]],
                      convert: Callable[..., Any]) -> pd.DataFrame:
     """Convert and rename the columns whose name ends in one of ``endings`` (first match wins).
 
-    ``endings`` holds (ending, new ending, unit); a new ending of None leaves the column as is.
+    ``endings`` holds (ending, new ending, unit).
     """
     out = frame.copy()
     renames = {}
     for name in frame.columns:
         for ending, new_ending, unit in endings:
             if isinstance(name, str) and name.endswith(ending):
-                if new_ending is None:
-                    break
                 out[name] = convert(frame[name].to_numpy(dtype=np.float64), unit)
                 renames[name] = name[: -len(ending)] + new_ending
                 break

@@ -50,11 +50,12 @@ def test_present_frame_converts_by_suffix_and_keeps_other_rates():
     out = present_frame(frame, US)
     assert list(out.columns) == [
         "subcatchment_id", "runoff_depth_in", "peak_excess_intensity_in_per_h", "area_acre",
-        "runoff_volume_ft3", "time_to_ponding_min", "horton_decay_per_s", "runoff_coefficient",
+        "runoff_volume_ft3", "time_to_ponding_min", "horton_decay_per_h", "runoff_coefficient",
     ]
     assert_allclose(out.iloc[0, 1:5].to_numpy(dtype=float), 1.0, rtol=1e-12)
     assert out["time_to_ponding_min"].iloc[0] == pytest.approx(1.5)
-    assert out["horton_decay_per_s"].iloc[0] == 0.001
+    # decay constants are entered per hour and shown per hour (issue 15 item 13): 0.001/s x 3600
+    assert out["horton_decay_per_h"].iloc[0] == pytest.approx(3.6)
     si = present_frame(frame, SI)
     assert si["runoff_depth_mm"].iloc[0] == pytest.approx(25.4)
     assert si["peak_excess_intensity_mm_per_h"].iloc[0] == pytest.approx(25.4)

@@ -148,6 +148,7 @@ class TableReader:
                       f"add a [{section}.codes] table mapping raster codes to classes")
         table = self.sub("codes", at=f"{self.at[:-1]}.codes]")
         codes: dict[int, str] = {}
+        keys: dict[int, str] = {}
         for key, label in raw.items():
             try:
                 code = int(str(key).strip())
@@ -157,7 +158,11 @@ class TableReader:
             if not isinstance(label, str) or not label.strip():
                 table.fail(str(key), f"maps to {label!r}",
                            "map each code to a class name in quotes")
-            codes[code] = label.strip()
+            if code in keys:  # "1" and "01" are the same raster code: never let one win
+                raise self.error(f'{table.at}."{key}"', f"is raster code {code} again "
+                                 f"(already given as \"{keys[code]}\" = {codes[code]!r})",
+                                 "keep one entry per raster code")
+            codes[code], keys[code] = label.strip(), str(key)
         return codes
 
 

@@ -2,13 +2,15 @@
 
 CSV format (gisrun's own): one time column that marks the END of each interval -- elapsed
 minutes ``time_min``, elapsed hours ``time_h`` or clock times ``time`` (ISO date-time or
-``HH:MM``) -- and one value column whose header names quantity and unit:
-``intensity_mm_per_h``, ``intensity_in_per_h``, ``depth_mm``, ``depth_in``,
+``HH:MM``; an ISO time without a UTC offset is read as written, whatever the computer's time
+zone, so a daylight-saving change never shifts it) -- and one value column whose header names
+quantity and unit: ``intensity_mm_per_h``, ``intensity_in_per_h``, ``depth_mm``, ``depth_in``,
 ``cumulative_depth_mm``, ``cumulative_depth_in`` (or ``intensity``, ``depth``,
 ``cumulative_depth`` with the unit taken from the project's unit system). An optional first row
 at time 0 (or the start clock time) with zero or blank rain marks the storm start. Lines starting
 with ``#`` are comments; ``# name: <storm name>`` names the storm. Steps may be fixed or
-irregular.
+irregular. A row with more (non-blank) cells than the header is an error: decimal commas or
+another delimiter would otherwise change the rain without a word.
 
 The project file's ``[[storms]]`` blocks are built in :mod:`gisrun.config.storms`.
 
@@ -23,7 +25,7 @@ import io
 import math
 import os
 import warnings
-from datetime import datetime
+from datetime import UTC, datetime
 from pathlib import Path
 
 import numpy as np
@@ -32,6 +34,7 @@ from ..errors import GisrunWarning, StormError
 from ..options import did_you_mean
 from ..storm import Hyetograph, IdfTable, max_depth_in_window_m
 from ..units import FACTORS_TO_SI, SI, US, UnitSystem, from_si, to_si
+from .csv_rows import row_cells
 from .files import atomic_target
 
 __all__ = [
@@ -127,7 +130,8 @@ def _read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]], str 
     if not records:
         raise StormError(str(path), "is empty", "add a header (time column, value column) and rows")
     header = [h.strip().lower() for h in records[0]]
-    rows = [(i, [c.strip() for c in r]) for i, r in enumerate(records[1:], start=1)]
+    rows = [(i, row_cells(r, len(header), f"{path}:row {i}"))
+            for i, r in enumerate(records[1:], start=1)]
     if not rows:
         raise StormError(str(path), "has a header but no data rows", "add at least one row of rain")
     return header, rows, comment_name
@@ -196,7 +200,10 @@ def _clock_s(text: str) -> float:
             raise ValueError(text)
         hours, minutes, seconds = parts[0], parts[1], parts[2] if len(parts) == 3 else 0.0
         return hours * FACTORS_TO_SI["h"] + minutes * FACTORS_TO_SI["min"] + seconds
-    return datetime.fromisoformat(text).timestamp()
+    stamp = datetime.fromisoformat(text)
+    if stamp.tzinfo is None:  # a naive time is read as given, never through the local zone
+        stamp = stamp.replace(tzinfo=UTC)
+    return stamp.timestamp()
 
 
 def _parse_values(rows: list[tuple[int, list[str]]], src: str) -> list[float | None]:

@@ -18,6 +18,7 @@ from .design import (
 )
 from .hyetograph import Hyetograph, max_depth_in_window_m
 from .idf import IdfFormula, IdfTable
+from .resampling import peak_window_s, resampling_note
 
 __all__ = [
     "KINDS",
@@ -32,5 +33,7 @@ __all__ = [
     "max_depth_in_window_m",
     "nrcs_24h",
     "nrcs_24h_table",
+    "peak_window_s",
+    "resampling_note",
     "uniform",
 ]

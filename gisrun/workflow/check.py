@@ -19,6 +19,7 @@ from ..errors import GisrunError, GisrunWarning
 from ..io.raster import ClassRaster
 from ..model import Inputs
 from ..project import Project
+from ..storm import Hyetograph, resampling_note
 from .inputs import (
     check_raster_codes,
     read_cover,
@@ -70,16 +71,23 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     if project.cover is not None and cover is not None:
         codes_ok &= _check_codes(problems, cover, subs, project.cover.codes,
                                  project.where("cover"))
+    storm_notes = _resampling_notes(project, storms or ())
     missing_cover = project.cover is not None and cover is None
     if subs is None or missing_cover or storms is None or not codes_ok:
-        return []
+        return storm_notes
     inputs = Inputs(subs, soil, cover, storms, overrides)
     overlaid = _attempt(problems, overlay_inputs, project, inputs)
     if overlaid is None:
-        return []
+        return storm_notes
     prepared = _attempt(problems, prepare_parameters, project, inputs, overlaid[0])
     notes = [*overlaid[2], *(prepared[2] if prepared is not None else [])]
-    return [str(note) for note in notes]
+    return [*storm_notes, *(str(note) for note in notes)]
+
+
+def _resampling_notes(project: Project, storms: tuple[Hyetograph, ...]) -> list[str]:
+    """What the run's step will do to each storm (as the run reports it)."""
+    return [note for h in storms
+            if (note := resampling_note(h, project.time_step_s, units=project.units))]
 
 
 def _check_codes(problems: list[str], raster: ClassRaster, subs: gpd.GeoDataFrame | None,

@@ -23,6 +23,7 @@ from ..io.raster import ClassRaster, read_class_raster
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
 from ..model import Inputs
+from ..parameters.tables import UNSPECIFIED_COVER_STANDS_FOR, cover_table
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph
@@ -32,6 +33,7 @@ __all__ = [
     "read_subcatchment_layer",
     "read_soil",
     "read_cover",
+    "no_cover_note",
     "read_storms",
     "read_overrides",
     "check_raster_codes",
@@ -59,12 +61,32 @@ def read_soil(project: Project) -> ClassRaster:
 
 
 def read_cover(project: Project) -> ClassRaster | None:
-    """Open the land-cover raster, if the project names one."""
+    """Open the land-cover raster, if the project names one.
+
+    Warns
+    -----
+    GisrunWarning
+        When there is none: every unit is then priced as the shipped cover
+        ``open_space_good`` (fully pervious), which the user should know.
+    """
     if project.cover is None:
+        warnings.warn(no_cover_note(project), GisrunWarning, stacklevel=2)
         return None
     return read_class_raster(project.cover.path, codes=project.cover.codes,
                              where=f"{project.cover.path} ({project.where('cover', 'path')})",
                              crs=project.cover.crs)
+
+
+def no_cover_note(project: Project) -> str:
+    """What a run without a land-cover raster assumes for every unit."""
+    stands_for = cover_table().loc[UNSPECIFIED_COVER_STANDS_FOR]
+    storage_mm = stands_for["pervious_depression_storage_m"] * 1000.0
+    return (f"{project.where('cover')}: no land-cover raster, so every unit is priced as fully "
+            f"pervious open space in good condition ({UNSPECIFIED_COVER_STANDS_FOR}: no "
+            f"impervious share, TR-55 curve numbers {stands_for['cn_A']:.0f}/"
+            f"{stands_for['cn_B']:.0f}/{stands_for['cn_C']:.0f}/{stands_for['cn_D']:.0f} for "
+            f"groups A-D) with {storage_mm:g} mm depression storage; add a [cover] table "
+            f"with a land-cover raster so roofs, roads and other covers are priced as such")
 
 
 def read_storms(project: Project) -> tuple[Hyetograph, ...]:

@@ -27,7 +27,7 @@ from ..model import CellRasters, Inputs, RunResult, StormResult
 from ..present.layers import layer_name, storm_layer_name
 from ..present.model_inputs import join_model_inputs
 from ..project import Project
-from ..storm import Hyetograph
+from ..storm import Hyetograph, resampling_note
 from .cells import compute_cells
 from .chunks import (
     ChunkLoad,
@@ -127,6 +127,8 @@ def run(
     if keep_loss:  # a run small enough to keep its step arrays keeps its unit rows too
         unit_sink = None
     rains = tuple(h.resample(project.time_step_s) for h in inputs.storms)
+    resampled = [note for h, rain in zip(inputs.storms, rains, strict=True)
+                 if (note := resampling_note(h, project.time_step_s, rain, project.units))]
     checksums = input_checksums(project)
     cache_key, cached = _cached_overlay(project, checksums)
     tasks = _tasks(project, inputs, rains, cached, keep_loss=keep_loss, cells=cells)
@@ -136,7 +138,7 @@ def run(
     outputs = list(_stream(execute(tasks, workers=workers, scheduler=scheduler), inputs,
                            series_sink, unit_sink))
     notes = [*inputs.notes, *(str(w.message) for w in caught
-                              if issubclass(w.category, GisrunWarning))]
+                              if issubclass(w.category, GisrunWarning)), *resampled]
     notes += [n for out in outputs for n in out.notes]
     cell_rasters = None
     if cells:
