@@ -18,6 +18,7 @@ import pandas as pd
 from pyproj import CRS, Transformer
 
 from ..config.storms import storms_from_config
+from ..crs import is_web_mercator
 from ..errors import GisrunWarning, RasterError, StormError
 from ..io.raster import ClassRaster, read_class_raster
 from ..io.tables import read_parameter_overrides
@@ -47,8 +48,15 @@ def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
     src = project.subcatchments
     keep = tuple(dict.fromkeys(
         f for f in (src.method_field, project.rain_scale_field, *src.parameter_fields) if f))
-    return read_subcatchments(src.path, id_field=src.id_field, layer=src.layer, crs=src.crs,
+    subs = read_subcatchments(src.path, id_field=src.id_field, layer=src.layer, crs=src.crs,
                               keep_fields=keep)
+    if subs.crs is not None and is_web_mercator(subs.crs):
+        warnings.warn(f"{src.path.name}: the subcatchments are in Web Mercator, whose planar "
+                      "areas are 1/cos^2(latitude) times the ground (1.7 at 40 degrees); gisrun "
+                      "measures them on the ellipsoid, but reproject the layer to a local "
+                      "projected CRS (such as UTM) for maps and edits", GisrunWarning,
+                      stacklevel=2)
+    return subs
 
 
 def read_soil(project: Project) -> ClassRaster:
