@@ -425,3 +425,18 @@ def test_rasters_in_different_crss_are_refused(geotiff):
     with pytest.raises(CRSError, match=r"cover\.tif: CRS differs from the soil raster"):
         compute_unit_areas(frame([box(X0, Y0 - 5, X0 + 5, Y0)]), soil, cover, soil_codes=SOIL,
                            cover_codes=COVER)
+
+
+def test_dominant_rule_stops_on_a_subcatchment_with_nothing_to_fill_from(half_and_half_soil):
+    # issue 15 item 5: S1 lies wholly outside the raster; with max_fraction = 1 the rule
+    # "dominant" had no unit to give its area to, and it reported 0 mm of rain
+    soil = read_class_raster(half_and_half_soil)
+    gdf = frame([box(0, 0, 50, 100), box(200, 0, 210, 10)], crs=LOCAL)
+    with pytest.raises(RasterError, match=r"half_and_half\.tif: subcatchment\(s\) S1 lie wholly "
+                                          r"outside .*'dominant'.*; extend the rasters"):
+        compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"}, nodata_rule="dominant",
+                           max_nodata_fraction=1.0)
+    # "omit" leaves it out as it says (its coverage shows it all outside)
+    _, cov, _ = compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"}, nodata_rule="omit",
+                                   max_nodata_fraction=1.0)
+    assert cov["nodata_fraction"].tolist() == pytest.approx([0.0, 1.0])
