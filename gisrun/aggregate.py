@@ -5,10 +5,13 @@ volume is the sum of its units' volumes. The mass balance
 ``rain = infiltration + runoff + surface storage`` is checked per
 subcatchment, to a relative tolerance of 1e-9.
 
-Subcatchment time to ponding is the earliest ponding instant among its
-pervious units (an impervious surface has no infiltration capacity to exceed,
-so it is left out); it is missing (NaN) where no pervious unit ponds. The time
-runoff first leaves any part of the subcatchment is reported separately.
+Time to ponding describes pervious ground: an impervious surface has no
+infiltration capacity to exceed, so its parts have none (NaN, whatever the loss
+method: the engines give them 0 under Green-Ampt and Horton, and the time
+runoff starts under the curve number). A subcatchment's time to ponding is the
+earliest ponding instant among its pervious units; it is missing (NaN) where no
+pervious unit ponds. The time runoff first leaves any part of the subcatchment
+is reported separately (``runoff_start_s``).
 """
 
 from __future__ import annotations
@@ -82,7 +85,8 @@ def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataF
     DataFrame
         ``params``' identifying columns plus ``rain_depth_m``, ``infiltration_depth_m``,
         ``runoff_depth_m``, ``storage_depth_m``, ``runoff_volume_m3``,
-        ``runoff_coefficient``, ``time_to_ponding_s``, ``peak_excess_intensity_m_per_s``.
+        ``runoff_coefficient``, ``time_to_ponding_s`` (NaN for impervious parts),
+        ``peak_excess_intensity_m_per_s``.
     """
     keep = [c for c in ("subcatchment_id", "soil_class", "cover_class", "surface", "area_m2",
                         "loss_method") if c in params.columns]
@@ -94,7 +98,10 @@ def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataF
     out["storage_depth_m"] = loss.storage_m
     out["runoff_volume_m3"] = out["runoff_depth_m"] * out["area_m2"]
     out["runoff_coefficient"] = _share(out["runoff_depth_m"].to_numpy(), rain)
-    out["time_to_ponding_s"] = loss.time_to_ponding_s
+    ponding = np.array(loss.time_to_ponding_s, dtype=np.float64)
+    if "surface" in params.columns:  # pervious ground only (see the module docstring)
+        ponding[(params["surface"] == "impervious").to_numpy()] = np.nan
+    out["time_to_ponding_s"] = ponding
     out["peak_excess_intensity_m_per_s"] = loss.excess_m.max(axis=0, initial=0.0) / dt_s
     return out
 

@@ -26,6 +26,9 @@ class SubcatchmentSource:
     crs: str | None = None
     method_field: str | None = None
     parameter_fields: tuple[str, ...] = ()
+    #: Largest share of the smaller of two subcatchments that may overlap the other (their
+    #: rain is counted twice); above it the run stops. Every overlap is reported.
+    max_overlap_fraction: float = 0.01
 
 
 @dataclass(frozen=True)

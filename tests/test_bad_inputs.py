@@ -117,6 +117,9 @@ CASES: dict[str, Case] = {
     # --- missing and unreadable files --------------------------------------------------------
     "project file missing": Case(lambda d: None, "nothing.toml", target="nothing.toml"),
     "folder without project file": Case(_remove("gisrun.toml"), re.compile(r"holds no project")),
+    "overlap share outside 0-1": Case(
+        _toml('id_field = "code"', 'id_field = "code"\nmax_overlap_fraction = 2'),
+        re.compile(r"\[subcatchments\]\.max_overlap_fraction")),
     "project file not TOML": Case(_write("gisrun.toml", "[project\nname = 1\n"), "gisrun.toml"),
     "project file not UTF-8": Case(_write("gisrun.toml", b"[project]\nname = '\xff\xfe'\n"),
                                    "gisrun.toml"),
@@ -147,10 +150,20 @@ CASES: dict[str, Case] = {
     "empty geometry": Case(_polygons([_TWO[0], Polygon()]), "id=S2"),
     "zero-area polygon": Case(
         _polygons([_TWO[0], Polygon([(X0, Y0), (X0 + 10, Y0), (X0 + 20, Y0)])]), "id=S2"),
+    # issue 15 item 12: overlapping subcatchments were accepted and their rain counted twice
+    "subcatchments overlap above the share": Case(
+        _polygons([square(0, 0, 50, 100), square(40, 0, 100, 100)]),
+        re.compile(r"sub\.gpkg:id=S1,S2: these subcatchments overlap by 1000 m2 \(20\.00% "
+                   r"of the smaller\).*max_overlap_fraction = 0\.01")),
     "unknown per-subcatchment method": Case(
         _both(_polygons(_TWO, how=["green_ampt", "hortn"]),
               _toml('id_field = "code"', 'id_field = "code"\nmethod_field = "how"')),
         re.compile(r"how.*id=S2.*did you mean 'horton'")),
+    # issue 15 item 6: a number in the method field was silently the run's default method
+    "per-subcatchment method is a number": Case(
+        _both(_polygons(_TWO, how=[3, None]),
+              _toml('id_field = "code"', 'id_field = "code"\nmethod_field = "how"')),
+        re.compile(r"sub\.gpkg:how:id=S1: method 3(\.0)? is not a loss method name")),
     # --- rasters ------------------------------------------------------------------------------
     "soil raster without CRS": Case(_soil(soil_codes(), crs=None),
                                     re.compile(r"soil\.tif.*CRS")),
@@ -172,6 +185,10 @@ CASES: dict[str, Case] = {
     "texture label under hydrologic soil groups": Case(
         _toml('"1" = "A"', '"1" = "silt loam"'), re.compile(r"\[soil\.codes\]\.\"1\"")),
     "all nodata over one subcatchment": Case(_soil(_NODATA_WEST, nodata=255), "S1"),
+    # issue 15 item 5: with nothing to fill from, S1 reported 0 mm of rain and of runoff
+    "all nodata over one subcatchment, rule dominant, no maximum": Case(
+        _both(_soil(_NODATA_WEST, nodata=255), _toml("max_fraction = 0.25", "max_fraction = 1.0")),
+        re.compile(r"soil\.tif.*subcatchment\(s\) S1 lie wholly outside.*'dominant'")),
     "raster does not overlap the polygons": Case(_soil(soil_codes(), transform=_FAR_AWAY),
                                                  re.compile(r"S1|soil\.tif")),
     # --- storms -------------------------------------------------------------------------------
@@ -310,6 +327,17 @@ WARNING_CASES = {
     "invalid ring with a spike is repaired": (_ring_with_spike_s1,
                                               re.compile(r"sub\.gpkg.*repaired.*S1")),
     "absurd storm depth": (_absurd_storm, re.compile(r"storm\.csv.*world record")),
+    # issue 15 item 12: an overlap below the share is reported (a warning and a run_info row)
+    "subcatchments overlap a little": (
+        _polygons([square(0, 0, 50, 100), square(49.9, 0, 100, 100)]),
+        re.compile(r"sub\.gpkg: subcatchments S1 and S2 overlap by 10 m2 \(0\.20% of the "
+                   r"smaller\)")),
+    # issue 15 item 6: a rain scale of 1e6 gave 10,000,000 mm of rain without a word
+    "rain scale makes the storm implausible": (
+        _both(_polygons(_TWO, factor=[1e6, 1.0]),
+              lambda d: (d / "gisrun.toml").write_text((d / "gisrun.toml").read_text()
+                                                       + '\n[rain_scale]\nfield = "factor"\n')),
+        re.compile(r"sub\.gpkg:factor:id=S1 \(rain scale 1e\+06 x storm 'steady'\).*world record")),
     "override for a class not in the project": (_override_for_absent_class,
                                                 re.compile(r"over\.csv:line 2.*matches no unit")),
 }

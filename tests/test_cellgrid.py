@@ -134,7 +134,8 @@ def test_grid_crs_transform_nodata_and_layout_match_the_soil_raster(tiny):
         assert rasterio.crs.CRS.from_user_input(prof["crs"]) == ref["crs"]
         assert prof["transform"] == ref["transform"]
         assert (prof["width"], prof["height"]) == (ref["width"], ref["height"])
-        assert prof["nodata"] == ref["nodata"] == 255
+        # issue 15 item 2: float outputs' nodata is NaN, not the soil raster's 255
+        assert ref["nodata"] == 255 and np.isnan(prof["nodata"])
         assert prof["dtype"] == "float32"
     with rasterio.open(paths["runoff"]) as src:
         assert src.compression.name.lower() == "deflate"

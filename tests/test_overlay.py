@@ -18,6 +18,11 @@ from gisrun.grid.overlay import compute_unit_areas
 from gisrun.io.raster import read_class_raster
 
 UTM = "EPSG:32617"
+#: A transverse Mercator with scale 1 on its central meridian, so that near its origin (where
+#: the by-hand fixtures lie) planar areas are ground areas to 1e-9 (TM scale k0 (1 + x^2 / 2R^2),
+#: Snyder 1987, Map Projections: A Working Manual, eq. 8-11, from memory). The same fixtures at
+#: x = 0 in UTM lie 500 km off its central meridian, where areas are 0.5 % too large.
+LOCAL = "+proj=tmerc +lat_0=0 +lon_0=-81 +k=1 +x_0=0 +y_0=0 +datum=WGS84 +units=m +no_defs"
 X0, Y0 = 600_000.0, 3_900_000.0  # a site in UTM zone 17N, about 35.2 N 79.9 W
 RNG = np.random.default_rng(20240611)
 SOIL = {1: "A", 2: "B", 3: "C", 4: "D"}
@@ -33,6 +38,14 @@ def reference_areas(poly, codes, x0, y_top, cell):
     for code, a in zip(codes.ravel(), areas, strict=True):
         out[int(code)] = out.get(int(code), 0.0) + a
     return out
+
+
+@pytest.fixture
+def half_and_half_soil(geotiff):
+    """The shared fixture's raster (conftest), in :data:`LOCAL`: planar areas are ground areas."""
+    codes = np.ones((10, 10), dtype=np.uint8)
+    codes[:, 5:] = 2
+    return geotiff(codes, "half_and_half.tif", crs=LOCAL)
 
 
 def frame(geoms, crs=UTM, ids=None):
@@ -105,7 +118,7 @@ def test_cell_coverage_matches_shapely_cell_intersections():
 def test_half_and_half_by_hand(half_and_half_soil):
     # 10 m cells, code 1 in columns 0-4: x 0-25 over the full height -> 25 m x 100 m of class A
     soil = read_class_raster(half_and_half_soil)
-    units, cov, _ = compute_unit_areas(frame([box(0, 0, 25, 100)]), soil,
+    units, cov, _ = compute_unit_areas(frame([box(0, 0, 25, 100)], crs=LOCAL), soil,
                                        soil_codes={1: "A", 2: "B"})
     assert by_class(units, "S0") == pytest.approx({"A": 2500.0})
     assert units.cover_class.tolist() == ["unspecified"]
@@ -140,8 +153,8 @@ def test_polygon_smaller_than_a_cell_gets_true_area_and_class(geotiff):
 
 def test_overlapping_subcatchments_each_get_their_full_area(half_and_half_soil):
     soil = read_class_raster(half_and_half_soil)
-    units, _, _ = compute_unit_areas(frame([box(0, 0, 60, 50), box(30, 0, 90, 50)]), soil,
-                                     soil_codes={1: "A", 2: "B"})
+    gdf = frame([box(0, 0, 60, 50), box(30, 0, 90, 50)], crs=LOCAL)
+    units, _, _ = compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"})
     assert by_class(units, "S0") == pytest.approx({"A": 2500.0, "B": 500.0})
     assert by_class(units, "S1") == pytest.approx({"A": 1000.0, "B": 2000.0})
 
@@ -167,7 +180,7 @@ def test_chunking_and_row_bands_do_not_change_results(geotiff):
 
 def test_partly_and_wholly_outside(half_and_half_soil):
     soil = read_class_raster(half_and_half_soil)  # covers x 0-100, y 0-100
-    gdf = frame([box(90, 90, 120, 110), box(200, 0, 210, 10)])
+    gdf = frame([box(90, 90, 120, 110), box(200, 0, 210, 10)], crs=LOCAL)
     units, cov, _ = compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"},
                                        nodata_rule="omit", max_nodata_fraction=1.0)
     # 30 x 20 = 600 m2, of which 10 x 10 = 100 m2 on the raster (class B): by hand
@@ -185,11 +198,11 @@ def soil_with_gaps(geotiff):
     codes[:, 5:] = 2
     codes[:, 9] = 255
     codes[:2, 8] = 9
-    return read_class_raster(geotiff(codes, nodata=255))
+    return read_class_raster(geotiff(codes, nodata=255, crs=LOCAL))
 
 
 def test_nodata_omit_shrinks_the_units(soil_with_gaps):
-    gdf = frame([box(0, 0, 100, 100)])
+    gdf = frame([box(0, 0, 100, 100)], crs=LOCAL)
     units, cov, notes = compute_unit_areas(gdf, soil_with_gaps, soil_codes={1: "A", 2: "B"},
                                            nodata_rule="omit", max_nodata_fraction=0.2)
     # nodata: column 9 (1000 m2) + code 9 cells (200 m2), counted by hand
@@ -200,7 +213,7 @@ def test_nodata_omit_shrinks_the_units(soil_with_gaps):
 
 
 def test_nodata_dominant_fills_the_largest_unit(soil_with_gaps):
-    units, _, notes = compute_unit_areas(frame([box(0, 0, 100, 100)]), soil_with_gaps,
+    units, _, notes = compute_unit_areas(frame([box(0, 0, 100, 100)], crs=LOCAL), soil_with_gaps,
                                          soil_codes={1: "A", 2: "B"}, nodata_rule="dominant",
                                          max_nodata_fraction=0.2)
     assert by_class(units, "S0") == pytest.approx({"A": 6200.0, "B": 3800.0})
@@ -209,7 +222,7 @@ def test_nodata_dominant_fills_the_largest_unit(soil_with_gaps):
 
 @pytest.mark.parametrize("rule", ["error", "dominant", "omit"])
 def test_any_rule_stops_above_the_maximum(soil_with_gaps, rule):
-    gdf = frame([box(0, 0, 50, 100), box(50, 0, 100, 100)], ids=["west", "east"])
+    gdf = frame([box(0, 0, 50, 100), box(50, 0, 100, 100)], ids=["west", "east"], crs=LOCAL)
     with pytest.raises(RasterError,
                        match=r"soil\.tif: .*above 10\.0% in subcatchments east \(24\.0%\)"):
         compute_unit_areas(gdf, soil_with_gaps, soil_codes={1: "A", 2: "B"}, nodata_rule=rule,
@@ -217,7 +230,7 @@ def test_any_rule_stops_above_the_maximum(soil_with_gaps, rule):
 
 
 def test_error_rule_passes_within_the_maximum(soil_with_gaps):
-    gdf = frame([box(0, 0, 50, 100)], ids=["west"])
+    gdf = frame([box(0, 0, 50, 100)], ids=["west"], crs=LOCAL)
     units, cov, _ = compute_unit_areas(gdf, soil_with_gaps, soil_codes={1: "A", 2: "B"},
                                        nodata_rule="error", max_nodata_fraction=0.0)
     assert by_class(units, "west") == pytest.approx({"A": 5000.0})
@@ -226,9 +239,10 @@ def test_error_rule_passes_within_the_maximum(soil_with_gaps):
 def test_bad_options(half_and_half_soil):
     soil = read_class_raster(half_and_half_soil)
     with pytest.raises(InputError, match="nodata rule 'fill'"):
-        compute_unit_areas(frame([box(0, 0, 1, 1)]), soil, soil_codes={1: "A"}, nodata_rule="fill")
+        compute_unit_areas(frame([box(0, 0, 1, 1)], crs=LOCAL), soil, soil_codes={1: "A"},
+                           nodata_rule="fill")
     with pytest.raises(InputError, match="outside 0-1"):
-        compute_unit_areas(frame([box(0, 0, 1, 1)]), soil, soil_codes={1: "A"},
+        compute_unit_areas(frame([box(0, 0, 1, 1)], crs=LOCAL), soil, soil_codes={1: "A"},
                            max_nodata_fraction=1.5)
 
 
@@ -375,7 +389,8 @@ def test_half_cell_shifted_grid_gives_the_same_areas_whatever_is_read_with_it(ge
                                          soil_codes=SOIL, cover_codes=COVER)
         assert unit_dict(alone, f"S{k}") == pytest.approx(unit_dict(together, f"S{k}"),
                                                           rel=1e-12)
-        assert sum(unit_dict(alone, f"S{k}").values()) == pytest.approx(poly.area, rel=1e-9)
+        ground = polygon_area_m2(frame([poly]).geometry)[0]  # 367 km off the meridian: geodesic
+        assert sum(unit_dict(alone, f"S{k}").values()) == pytest.approx(ground, rel=1e-9)
 
 
 def test_unaligned_grids_stay_within_the_stated_bound(geotiff):
@@ -410,3 +425,18 @@ def test_rasters_in_different_crss_are_refused(geotiff):
     with pytest.raises(CRSError, match=r"cover\.tif: CRS differs from the soil raster"):
         compute_unit_areas(frame([box(X0, Y0 - 5, X0 + 5, Y0)]), soil, cover, soil_codes=SOIL,
                            cover_codes=COVER)
+
+
+def test_dominant_rule_stops_on_a_subcatchment_with_nothing_to_fill_from(half_and_half_soil):
+    # issue 15 item 5: S1 lies wholly outside the raster; with max_fraction = 1 the rule
+    # "dominant" had no unit to give its area to, and it reported 0 mm of rain
+    soil = read_class_raster(half_and_half_soil)
+    gdf = frame([box(0, 0, 50, 100), box(200, 0, 210, 10)], crs=LOCAL)
+    with pytest.raises(RasterError, match=r"half_and_half\.tif: subcatchment\(s\) S1 lie wholly "
+                                          r"outside .*'dominant'.*; extend the rasters"):
+        compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"}, nodata_rule="dominant",
+                           max_nodata_fraction=1.0)
+    # "omit" leaves it out as it says (its coverage shows it all outside)
+    _, cov, _ = compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"}, nodata_rule="omit",
+                                   max_nodata_fraction=1.0)
+    assert cov["nodata_fraction"].tolist() == pytest.approx([0.0, 1.0])

@@ -78,7 +78,8 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
          "storms", "rain_scale"),
     "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache"),
-    "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields"),
+    "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
+                      "max_overlap_fraction"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
              "initial_water_content", "codes", "crs"),
     "cover": ("path", "codes", "crs"),
@@ -195,6 +196,8 @@ def _subcatchments(sub: TableReader) -> SubcatchmentSource:
         crs=sub.string("crs", required=False),
         method_field=sub.string("method_field", required=False),
         parameter_fields=sub.strings("parameter_fields", '["ks_mm_per_h", "curve_number"]'),
+        max_overlap_fraction=sub.number("max_overlap_fraction", default=0.01, low=0.0,
+                                        high=1.0),
     )
 
 

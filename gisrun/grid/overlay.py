@@ -31,10 +31,9 @@ area of the fine cells cut by coarse cell edges, a share of about
 ``res_fine_x / res_coarse_x + res_fine_y / res_coarse_y`` of the area (each
 subcatchment's total area stays exact).
 
-CRS: polygons in another CRS than the rasters are transformed to the raster
-CRS (rasters are never resampled); each subcatchment's areas are then scaled
-so that its total equals its own area in its own CRS
-(:func:`gisrun.crs.polygon_area_m2`), and the scaling is reported.
+Areas: polygons are transformed to the raster CRS (rasters are never resampled);
+each subcatchment's unit areas measured on the grid are scaled to add up to its
+ground area (:func:`gisrun.crs.ground_areas`; ``coverage.area_method``).
 """
 
 from __future__ import annotations
@@ -49,7 +48,7 @@ import shapely
 from numpy.typing import NDArray
 from pyproj import CRS
 
-from ..crs import geodesic_cell_area_m2, linear_unit_m, polygon_area_m2
+from ..crs import geodesic_cell_area_m2, ground_areas, linear_unit_m
 from ..errors import CRSError, InputError, RasterError
 from ..options import NODATA_RULES
 from .classes import CentreSampling, ClassGrid, CodeLookup, nesting, read_padded
@@ -92,15 +91,17 @@ def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid,
     units : pandas.DataFrame
         ``subcatchment_id``, ``soil_class``, ``cover_class``, ``area_m2``.
     coverage : pandas.DataFrame
-        ``subcatchment_id``, ``area_m2``, ``covered_area_m2``, ``nodata_area_m2``,
-        ``outside_area_m2``, ``nodata_fraction``.
+        ``subcatchment_id``, ``area_m2`` (ground area), ``covered_area_m2``,
+        ``nodata_area_m2``, ``outside_area_m2``, ``nodata_fraction``,
+        ``area_method`` (``"planar"`` or ``"ellipsoidal"``).
     notes : list of str
         What was done that a user should know (CRS transform, filled nodata).
 
     Raises
     ------
     RasterError
-        A subcatchment above ``max_nodata_fraction``.
+        A subcatchment above ``max_nodata_fraction``, or (rule ``"dominant"``) one
+        wholly outside the rasters or on nodata: nothing to fill it from.
     CRSError
         Soil and cover rasters in different CRSs, or polygons without a CRS.
     InputError
@@ -110,10 +111,12 @@ def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid,
     notes: list[str] = []
     grid = _Grid.build(soil, cover, soil_codes, cover_codes, notes)
     ids = subcatchments["subcatchment_id"].astype(str).to_numpy()
-    own_m2 = polygon_area_m2(subcatchments.geometry)
+    ground = ground_areas(subcatchments.geometry)
     geoms = _to_grid_crs(subcatchments.geometry, grid.crs, notes)
     sums = _class_sums(geoms, grid, chunk_cells)  # (poly, class, cell units) triples
-    return _finish(ids, own_m2, sums, grid, nodata_rule, max_nodata_fraction, notes)
+    units, coverage = _finish(ids, ground.area_m2, sums, grid, nodata_rule,
+                              max_nodata_fraction, notes)
+    return units, coverage.assign(area_method=ground.method), notes
 
 
 def _check_options(rule: str, fraction: float) -> None:
@@ -226,7 +229,7 @@ def _to_grid_crs(geoms: gpd.GeoSeries, crs: CRS, notes: list[str]) -> NDArray[An
     if not CRS.from_user_input(geoms.crs).equals(crs):
         notes.append(f"subcatchments transformed from {CRS.from_user_input(geoms.crs).name} "
                      f"to the raster CRS {crs.name} for the overlay; unit areas scaled so each "
-                     "subcatchment keeps its area in its own CRS")
+                     "subcatchment keeps its ground area")
         geoms = geoms.to_crs(crs)
     return shapely.orient_polygons(geoms.to_numpy())
 
@@ -334,12 +337,12 @@ def _painted_counts(flat0: NDArray[np.int64], n: NDArray[np.int64], poly: NDArra
 
 def _finish(ids: NDArray[Any], own_m2: NDArray[np.float64], sums: tuple[NDArray[Any], ...],
             grid: _Grid, rule: str, max_fraction: float, notes: list[str]
-            ) -> tuple[pd.DataFrame, pd.DataFrame, list[str]]:
+            ) -> tuple[pd.DataFrame, pd.DataFrame]:
     poly, cls, area = sums
     area = area * grid.cell_area_m2
     total = np.bincount(poly, area, minlength=ids.size)
     scale = np.divide(own_m2, total, out=np.zeros_like(own_m2), where=total > 0)
-    area = area * scale[poly]
+    area = area * scale[poly]  # the grid's planar measure -> the ground area
     outside = np.bincount(poly, np.where(cls == _OUTSIDE, area, 0.0), minlength=ids.size)
     nodata = np.bincount(poly, np.where(cls == _NODATA, area, 0.0), minlength=ids.size)
     missing = outside + nodata
@@ -350,17 +353,17 @@ def _finish(ids: NDArray[Any], own_m2: NDArray[np.float64], sums: tuple[NDArray[
     _check_fraction(ids, fraction, max_fraction, grid)
     keep = (cls >= 2) & (area > 1e-9 * own_m2[poly])
     poly, cls, area = poly[keep], cls[keep] - 2, area[keep]
+    missing = np.where(missing > 1e-9 * own_m2, missing, 0.0)
     if rule == "dominant":
-        area = _fill_dominant(poly, area, np.where(missing > 1e-9 * own_m2, missing, 0.0), ids,
-                              notes)
-    elif np.any(missing > 1e-9 * own_m2):
-        notes.append(f"{int(np.sum(missing > 1e-9 * own_m2))} subcatchment(s) have nodata or "
+        area = _fill_dominant(poly, area, missing, ids, notes, grid.fine.where)
+    elif missing.any():
+        notes.append(f"{int(np.count_nonzero(missing))} subcatchment(s) have nodata or "
                      "outside-raster area left out of their units (see coverage)")
     labels = np.array(grid.labels, dtype=object).reshape(-1, 2)
     units = pd.DataFrame({"subcatchment_id": ids[poly], "soil_class": labels[cls, 0],
                           "cover_class": labels[cls, 1], "area_m2": area})
     units = units.sort_values(["subcatchment_id", "soil_class", "cover_class"], ignore_index=True)
-    return units, coverage, notes
+    return units, coverage
 
 
 def _check_fraction(ids: NDArray[Any], fraction: NDArray[np.float64], max_fraction: float,
@@ -375,7 +378,14 @@ def _check_fraction(ids: NDArray[Any], fraction: NDArray[np.float64], max_fracti
 
 
 def _fill_dominant(poly: NDArray[Any], area: NDArray[np.float64], missing: NDArray[np.float64],
-                   ids: NDArray[Any], notes: list[str]) -> NDArray[np.float64]:
+                   ids: NDArray[Any], notes: list[str], where: str) -> NDArray[np.float64]:
+    """Give each subcatchment's missing area to its largest unit; stop if it has none."""
+    empty = np.setdiff1d(np.flatnonzero(missing > 0), poly)
+    if empty.size:  # wholly outside or on nodata: no class to fill from (it would get no rain)
+        raise RasterError(where, f"subcatchment(s) {', '.join(map(str, ids[empty][:10]))} lie "
+                          "wholly outside the rasters or on nodata, so nodata rule 'dominant' "
+                          "has no class to fill them from", "extend the rasters over them or "
+                          "remove them from the subcatchment layer")
     if poly.size == 0:
         return area
     order = np.lexsort((-area, poly))  # largest unit of each subcatchment first

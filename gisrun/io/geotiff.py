@@ -1,7 +1,10 @@
 """Write float GeoTIFFs band by band (memory bounded) and read previews of them.
 
 Rasters are tiled (256 x 256), DEFLATE-compressed float32 with the grid of a
-reference raster (CRS, transform, size, nodata). Each is written to a
+reference raster (CRS, transform, size); their nodata is NaN, never the
+reference raster's (an integer class raster's 255 is also a real ponding time
+in minutes, and GDAL readers mask every cell that equals the nodata value).
+Each is written to a
 temporary file beside its target and moved into place only when complete
 (:func:`gisrun.io.files.atomic_target`).
 """
@@ -22,22 +25,19 @@ from rasterio.windows import Window
 from ..model import GridSpec
 from .files import atomic_target
 
-__all__ = ["grid_of", "write_float_rasters", "read_preview", "DEFAULT_NODATA"]
+__all__ = ["grid_of", "write_float_rasters", "read_preview", "FLOAT_NODATA"]
 
-#: Nodata of the written rasters when the reference raster has none.
-DEFAULT_NODATA = -9999.0
+#: Nodata of every float raster written: NaN, which no result can equal.
+FLOAT_NODATA = float("nan")
 TILE = 256
 
 
 def grid_of(raster: Any) -> GridSpec:
-    """The grid of a :class:`gisrun.io.raster.ClassRaster`, for rasters written on it.
+    """The grid of a :class:`gisrun.io.raster.ClassRaster`, for float rasters written on it.
 
-    Its nodata is the raster's, or :data:`DEFAULT_NODATA` when it has none (or NaN).
+    Its nodata is :data:`FLOAT_NODATA` (NaN), whatever the class raster's nodata.
     """
-    nodata = raster.nodata
-    if nodata is None or (isinstance(nodata, float) and np.isnan(nodata)):
-        nodata = DEFAULT_NODATA
-    return GridSpec(raster.crs, raster.transform, raster.width, raster.height, float(nodata))
+    return GridSpec(raster.crs, raster.transform, raster.width, raster.height, FLOAT_NODATA)
 
 
 def write_float_rasters(targets: Mapping[str, Path], grid: GridSpec,
@@ -52,9 +52,10 @@ def write_float_rasters(targets: Mapping[str, Path], grid: GridSpec,
     grid : gisrun.model.GridSpec
         CRS, transform, size and nodata of every raster.
     bands : iterable of (row_offset, {key: array (rows, width)})
-        Row bands in any order; NaN cells are written as ``grid.nodata``. A value
-        that equals the nodata value in float32 is moved one float32 step away,
-        so it stays valid.
+        Row bands in any order; NaN cells are nodata. With a numeric
+        ``grid.nodata`` NaN cells are written as it, and a value that equals it in
+        float32 is moved one float32 step away (GDAL readers still mask such a
+        value as nodata, hence :data:`FLOAT_NODATA`).
     overwrite : bool
         Replace existing files.
 
@@ -75,8 +76,9 @@ def write_float_rasters(targets: Mapping[str, Path], grid: GridSpec,
         for row0, arrays in bands:
             for key, arr in arrays.items():
                 out = arr.astype(np.float32)
-                out[out == nodata32] = np.nextafter(nodata32, np.float32(np.inf))
-                out[np.isnan(out)] = nodata32
+                if not np.isnan(nodata32):
+                    out[out == nodata32] = np.nextafter(nodata32, np.float32(np.inf))
+                    out[np.isnan(out)] = nodata32
                 dsts[key].write(out, 1, window=Window(0, row0, out.shape[1], out.shape[0]))
     return {k: Path(p) for k, p in targets.items()}
 

@@ -31,7 +31,7 @@ from .files import staged_folder
 __all__ = ["overlay_key", "load_overlay", "save_overlay", "entry_folder"]
 
 #: Bump when the stored layout or the overlay's results change.
-_FORMAT = 1
+_FORMAT = 2
 
 
 def overlay_key(project: Any, file_digests: Sequence[str]) -> str:

@@ -193,6 +193,19 @@ def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:
     return frame[cols]
 
 
+def _area_rows(result: RunResult) -> list[tuple[str, str]]:
+    """How the subcatchments' ground areas were measured (``coverage.area_method``)."""
+    if "area_method" not in result.coverage.columns:
+        return []
+    counts = result.coverage["area_method"].value_counts()
+    name = result.subcatchments.crs.name if result.subcatchments.crs is not None else "?"
+    why = {"planar": f"planar in {name} (areal scale error within 0.1 %)",
+           "ellipsoidal": "ellipsoidal (pyproj Geod; geographic CRS or areal scale error above "
+                          "0.1 %)"}
+    return [("area_method", f"{why.get(str(m), m)}: {n} subcatchment(s)")
+            for m, n in counts.items()]
+
+
 def run_info(result: RunResult) -> pd.DataFrame:
     """Key-value table describing the run (provenance), one row per fact."""
     project = result.project
@@ -214,6 +227,7 @@ def run_info(result: RunResult) -> pd.DataFrame:
         ("max_nodata_fraction", f"{project.max_nodata_fraction:g}"),
         ("subcatchment_count", str(len(result.subcatchments))),
         ("unit_count", str(result.unit_count)),
+        *_area_rows(result),
     ]
     depth_unit = project.units.depth
     for storm in result.storms:

@@ -21,12 +21,14 @@ from ..model import Inputs
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
 from .inputs import (
+    check_overlaps,
     check_raster_codes,
     read_cover,
     read_overrides,
     read_soil,
     read_storms,
     read_subcatchment_layer,
+    warn_if_rain_scale_implausible,
 )
 from .steps import overlay_inputs, prepare_parameters
 
@@ -66,6 +68,10 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     cover = _attempt(problems, read_cover, project)
     storms = _attempt(problems, read_storms, project)
     overrides = _attempt(problems, read_overrides, project)
+    if subs is not None:
+        _attempt(problems, check_overlaps, project, subs)
+        if storms is not None:
+            _attempt(problems, warn_if_rain_scale_implausible, project, subs, storms)
     codes_ok = soil is not None and _check_codes(problems, soil, subs, project.soil.codes,
                                                  project.where("soil"))
     if project.cover is not None and cover is not None:

@@ -14,12 +14,16 @@ import warnings
 from pathlib import Path
 
 import geopandas as gpd
+import numpy as np
 import pandas as pd
+import shapely
 from pyproj import CRS, Transformer
 
 from ..config.storms import storms_from_config
-from ..errors import GisrunWarning, RasterError, StormError
+from ..crs import ground_areas, is_web_mercator
+from ..errors import GisrunWarning, RasterError, StormError, VectorError
 from ..io.raster import ClassRaster, read_class_raster
+from ..io.storm_csv import warn_if_implausible
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
 from ..model import Inputs
@@ -39,6 +43,9 @@ __all__ = [
     "check_raster_codes",
     "check_inputs_codes",
     "check_storm_names",
+    "warn_if_rain_scale_implausible",
+    "subcatchment_overlaps",
+    "check_overlaps",
     "input_checksums",
     "file_sha256",
 ]
@@ -49,8 +56,15 @@ def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
     src = project.subcatchments
     keep = tuple(dict.fromkeys(
         f for f in (src.method_field, project.rain_scale_field, *src.parameter_fields) if f))
-    return read_subcatchments(src.path, id_field=src.id_field, layer=src.layer, crs=src.crs,
+    subs = read_subcatchments(src.path, id_field=src.id_field, layer=src.layer, crs=src.crs,
                               keep_fields=keep)
+    if subs.crs is not None and is_web_mercator(subs.crs):
+        warnings.warn(f"{src.path.name}: the subcatchments are in Web Mercator, whose planar "
+                      "areas are 1/cos^2(latitude) times the ground (1.7 at 40 degrees); gisrun "
+                      "measures them on the ellipsoid, but reproject the layer to a local "
+                      "projected CRS (such as UTM) for maps and edits", GisrunWarning,
+                      stacklevel=2)
+    return subs
 
 
 def read_soil(project: Project) -> ClassRaster:
@@ -147,10 +161,109 @@ def read_inputs(project: Project) -> Inputs:
             storms=read_storms(project),
             overrides=read_overrides(project),
         )
+        warn_if_rain_scale_implausible(project, inputs.subcatchments, inputs.storms)
+        check_overlaps(project, inputs.subcatchments)
     for w in caught:  # pass them on, and keep their text with the inputs for the run table
         warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     notes = tuple(str(w.message) for w in caught if issubclass(w.category, GisrunWarning))
     return dataclasses.replace(inputs, notes=notes)
+
+
+def warn_if_rain_scale_implausible(project: Project, subs: gpd.GeoDataFrame,
+                                   storms: tuple[Hyetograph, ...]) -> None:
+    """Warn (``GisrunWarning``) if the largest rain scale factor makes a storm implausible.
+
+    Uses the storm plausibility limits of the storm reader
+    (:func:`gisrun.io.storm_csv.warn_if_implausible`). Factors that are not
+    non-negative numbers are left to :func:`gisrun.workflow.steps.rain_scale_for_units`,
+    which stops on them.
+    """
+    field_name = project.rain_scale_field
+    if not field_name or field_name not in subs.columns or len(subs) == 0:
+        return
+    factor = pd.to_numeric(subs[field_name], errors="coerce").to_numpy(dtype=np.float64)
+    factor = np.where(np.isfinite(factor) & (factor >= 0), factor, -1.0)
+    largest = int(np.argmax(factor))
+    if factor[largest] <= 1.0:
+        return
+    sid = subs["subcatchment_id"].iloc[largest]
+    for storm in storms:
+        warn_if_implausible(storm.scaled(float(factor[largest])),
+                            f"{project.subcatchments.path.name}:{field_name}:id={sid} "
+                            f"(rain scale {factor[largest]:g} x storm {storm.name!r})")
+
+
+#: Overlaps smaller than this share of the smaller polygon are rounding, not overlaps.
+_OVERLAP_NOISE = 1e-9
+#: Overlapping pairs named one by one; the rest are counted in one more warning.
+_OVERLAPS_LISTED = 20
+
+
+def subcatchment_overlaps(subs: gpd.GeoDataFrame) -> pd.DataFrame:
+    """Every pair of subcatchments whose interiors overlap, with the ground area they share.
+
+    Returns
+    -------
+    DataFrame
+        ``subcatchment_id``, ``other_id``, ``overlap_area_m2`` (ground area,
+        :func:`gisrun.crs.ground_areas`) and ``overlap_fraction`` (of the smaller
+        of the two), largest share first.
+    """
+    geoms = subs.geometry.to_numpy()
+    tree = shapely.STRtree(geoms)
+    pairs = np.concatenate([tree.query(geoms, predicate=p) for p in ("overlaps", "contains")],
+                           axis=1)
+    pairs = np.unique(np.sort(pairs, axis=0), axis=1)
+    i, j = pairs[:, pairs[0] != pairs[1]]
+    area = np.zeros(0)
+    share = np.zeros(0)
+    if len(i):
+        shared = gpd.GeoSeries(shapely.intersection(geoms[i], geoms[j]), crs=subs.crs)
+        area = ground_areas(shared).area_m2
+        own = ground_areas(subs.geometry).area_m2
+        smaller = np.minimum(own[i], own[j])
+        share = np.divide(area, smaller, out=np.zeros_like(area), where=smaller > 0)
+    ids = subs["subcatchment_id"].to_numpy(dtype=object)
+    out = pd.DataFrame({"subcatchment_id": ids[i], "other_id": ids[j],
+                        "overlap_area_m2": area, "overlap_fraction": share})
+    out = out[out["overlap_fraction"] > _OVERLAP_NOISE]
+    return out.sort_values("overlap_fraction", ascending=False, ignore_index=True)
+
+
+def check_overlaps(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame:
+    """Warn about every overlapping pair; stop above ``[subcatchments] max_overlap_fraction``.
+
+    Returns
+    -------
+    DataFrame
+        :func:`subcatchment_overlaps`.
+
+    Raises
+    ------
+    VectorError
+        Naming the pair that shares the largest part of the smaller polygon.
+    """
+    found = subcatchment_overlaps(subs)
+    name = project.subcatchments.path.name
+    limit = project.subcatchments.max_overlap_fraction
+    for row in found.head(_OVERLAPS_LISTED).itertuples():
+        warnings.warn(f"{name}: subcatchments {row.subcatchment_id} and {row.other_id} overlap "
+                      f"by {row.overlap_area_m2:.4g} m2 ({row.overlap_fraction:.2%} of the "
+                      "smaller); the rain on that area is counted in both", GisrunWarning,
+                      stacklevel=2)
+    if len(found) > _OVERLAPS_LISTED:
+        warnings.warn(f"{name}: {len(found) - _OVERLAPS_LISTED} more pairs of subcatchments "
+                      f"overlap, {found['overlap_area_m2'].iloc[_OVERLAPS_LISTED:].sum():.4g} m2 "
+                      "in all", GisrunWarning, stacklevel=2)
+    if len(found) and found["overlap_fraction"].iloc[0] > limit:
+        top = found.iloc[0]
+        raise VectorError(f"{name}:id={top['subcatchment_id']},{top['other_id']}",
+                          f"these subcatchments overlap by {top['overlap_area_m2']:.4g} m2 "
+                          f"({top['overlap_fraction']:.2%} of the smaller), above "
+                          f"{project.where('subcatchments', 'max_overlap_fraction')} = {limit:g}",
+                          "fix the polygons so that they do not overlap, or raise "
+                          "max_overlap_fraction")
+    return found
 
 
 def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,

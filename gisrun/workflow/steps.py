@@ -22,7 +22,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from ..aggregate import area_weights, subcatchment_series, summarize_subcatchments, summarize_units
-from ..engine import method_name, run_losses
+from ..engine import ENGINES, method_name, run_losses
 from ..errors import ParameterError, VectorError
 from ..grid.overlay import compute_unit_areas
 from ..model import Inputs, StormResult
@@ -113,15 +113,30 @@ def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.Dat
     if field_name:
         methods = subs[field_name].astype(object).where(subs[field_name].notna(), None)
         where = f"{project.subcatchments.path.name}:{field_name}"
-        attrs["loss_method"] = [
-            method_name(v, where=f"{where}:id={sid}", error=VectorError)
-            if isinstance(v, str) and v.strip() else None
-            for sid, v in zip(attrs["subcatchment_id"], methods, strict=True)]
+        attrs["loss_method"] = [_layer_method(v, f"{where}:id={sid}")
+                                for sid, v in zip(attrs["subcatchment_id"], methods, strict=True)]
     for name in project.subcatchments.parameter_fields:
         attrs[name] = subs[name].to_numpy()
     values = attrs.drop(columns="subcatchment_id")
     attrs = attrs[values.notna().any(axis=1).to_numpy()] if values.shape[1] else attrs.iloc[:0]
     return attrs if len(attrs) else None
+
+
+def _layer_method(value: object, where: str) -> str | None:
+    """A subcatchment's loss method from the method field: a name, or None (empty) for the default.
+
+    Raises
+    ------
+    VectorError
+        A value that is not text (a number, a date): it is not silently the default.
+    """
+    if value is None or (isinstance(value, str) and not value.strip()):
+        return None
+    if not isinstance(value, str):
+        raise VectorError(where, f"method {value!r} is not a loss method name",
+                          f"write one of {', '.join(ENGINES)} as text, or leave it empty for "
+                          "the run's method")
+    return method_name(value, where=where, error=VectorError)
 
 
 def run_storm(
