@@ -98,6 +98,22 @@ def _both(*steps: Callable[[Path], object]) -> Callable[[Path], None]:
     return run_all
 
 
+def _add_storm(name: str) -> Callable[[Path], None]:
+    def add(d: Path) -> None:
+        with open(d / "gisrun.toml", "a") as handle:
+            handle.write(f'\n[[storms]]\nname = "{name}"\nkind = "uniform"\ndepth = 5\n'
+                         'duration_min = 60\n')
+    return add
+
+
+def _output_linked_to(name: str) -> Callable[[Path], None]:
+    """The output path is a second name (hard link) of an input file."""
+    def link(d: Path) -> None:
+        (d / "out").mkdir()
+        os.link(d / name, d / "out" / "result.gpkg")
+    return link
+
+
 def _soil_becomes_folder(d: Path) -> None:
     (d / "soil.tif").unlink()
     (d / "soil.tif").mkdir()
@@ -196,6 +212,12 @@ CASES: dict[str, Case] = {
         lambda d: (d / "gisrun.toml").write_text((d / "gisrun.toml").read_text() + (
             '\n[[storms]]\nname = "steady"\nkind = "uniform"\ndepth = 5\nduration_min = 60\n')),
         re.compile(r"\[\[storms\]\] 2.*'steady'")),
+    "storm names that differ only in case": Case(
+        _add_storm("Steady"),
+        re.compile(r"\[\[storms\]\].*'steady' and 'Steady'.*'runoff_steady'")),
+    "storm names that differ only in punctuation": Case(
+        _add_storm("steady!"),
+        re.compile(r"\[\[storms\]\].*'steady' and 'steady!'.*'runoff_steady'")),
     # --- parameter overrides ------------------------------------------------------------------
     "zero conductivity": Case(_with_overrides("soil_class,ks_mm_per_h\nA,0\n"),
                               re.compile(r"over\.csv:line 2:ks_mm_per_h")),
@@ -249,6 +271,22 @@ CASES: dict[str, Case] = {
     "output exists without --overwrite": Case(
         _both(lambda d: (d / "out").mkdir(), _write("out/result.gpkg", "earlier result")),
         re.compile(r"result\.gpkg.*already exists.*--overwrite"), commands=("run",)),
+    "output is the soil raster": Case(
+        _toml('output = "out/result.gpkg"', 'output = "soil.tif"'),
+        re.compile(r"soil\.tif: would replace an input of this run \(soil raster"),
+        commands=("run",), extra=("--overwrite",)),
+    "output is the subcatchment file": Case(
+        _toml('output = "out/result.gpkg"', 'output = "sub.gpkg"'),
+        re.compile(r"sub\.gpkg: would replace an input of this run \(subcatchment file"),
+        commands=("run",), extra=("--overwrite",)),
+    "output is the project file": Case(
+        _toml('output = "out/result.gpkg"', 'output = "gisrun.toml"'),
+        re.compile(r"gisrun\.toml: would replace an input of this run \(project file"),
+        commands=("run",), extra=("--overwrite",)),
+    "output is a hard link to the cover raster": Case(
+        _output_linked_to("cover.tif"),
+        re.compile(r"result\.gpkg: would replace an input of this run \(cover raster"),
+        commands=("run",), extra=("--overwrite",)),
 }
 
 PARAMS = [pytest.param(name, command, id=f"{command}: {name}")

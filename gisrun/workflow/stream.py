@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import dataclasses
 import os
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from pathlib import Path
 
 import pandas as pd
@@ -95,12 +95,12 @@ def run_and_write(
     large = len(inputs.subcatchments) >= KEEP_STEP_ARRAYS_BELOW
     names = ["excess_series", "run_info", *UNIT_LAYERS,
              *(storm_layer_name(h.name) for h in inputs.storms)]
-    if into is not None:
-        _refuse_replacing_the_subcatchments(project, Path(into), names)
     with output_set() as outputs:  # the GeoPackage and the extras are moved in together
         opened = geopackage.open_output(target, into_existing=into is not None,
                                         overwrite=overwrite, outputs=outputs)
         with opened as (tmp, check):
+            if into is not None:
+                check = _keeping_the_subcatchments(project, Path(into), check)
             check(names)  # refuse a taken layer name before the work, not after it
             result = _run_into(project, inputs, tmp, check, large=large, progress=progress,
                                workers=workers, scheduler=scheduler, cells=cells)
@@ -129,16 +129,23 @@ def _run_into(project: Project, inputs: Inputs, tmp: Path, check: LayerCheck, *,
     return result
 
 
-def _refuse_replacing_the_subcatchments(project: Project, into: Path, names: list[str]) -> None:
+def _keeping_the_subcatchments(project: Project, into: Path, check: LayerCheck) -> LayerCheck:
     """Writing into the subcatchment GeoPackage is fine unless a layer would replace theirs."""
     source = project.subcatchments
     try:
         same = os.path.samefile(into, source.path)
     except OSError:
-        return
-    if same and (source.layer or "").lower() in {n.lower() for n in names}:
-        raise OutputError(f"{into}:{source.layer}", "is the subcatchment layer of this run and "
-                          "gisrun writes a layer of that name", "choose another GeoPackage")
+        same = False
+    theirs = (source.layer or "").lower() if same else None
+
+    def guarded(names: Iterable[str]) -> None:
+        names = list(names)
+        if theirs is not None and theirs in {n.lower() for n in names}:
+            raise OutputError(f"{into}:{source.layer}", "is the subcatchment layer of this run "
+                              "and gisrun writes a layer of that name", "choose another "
+                              "GeoPackage, or rename the subcatchment layer")
+        check(names)
+    return guarded
 
 
 class _Sinks:
