@@ -102,17 +102,17 @@ class OutputSet:
 
     def file(self, target: Path, *, overwrite: bool) -> Path:
         """A temporary path (no file yet) that :meth:`commit` moves onto ``target``."""
+        _refuse_file_in_the_way(Path(target))
+        self.lock(target)  # first: a killed run's old version is put back before the check
         target = _checked(target, overwrite)
-        _refuse_file_in_the_way(target)
-        self.lock(target)
         tmp = _new_temp(target, folder=False)
         self._staged.append(_Staged(tmp, target, overwrite, folder=False))
         return tmp
 
     def folder(self, target: Path, *, overwrite: bool) -> Path:
         """An empty temporary folder that :meth:`commit` moves onto ``target``."""
-        target = _checked(target, overwrite, folder=True)
         self.lock(target)
+        target = _checked(target, overwrite, folder=True)
         tmp = _new_temp(target, folder=True)
         self._staged.append(_Staged(tmp, target, overwrite, folder=True))
         return tmp
