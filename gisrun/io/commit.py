@@ -11,7 +11,9 @@ transaction) run after the moves; if one fails, the moves are undone too.
 
 A signal that arrives during the commit is not lost: once everything is in
 place, :class:`InterruptedAfterCommit` is raised, so the caller can say
-truthfully that the outputs were completed.
+truthfully that the outputs were completed. A set committed while another is
+open (a raster moved into a staged folder) passes the signal on as usual
+instead, since the outer outputs are not in place yet.
 """
 
 from __future__ import annotations
@@ -43,6 +45,11 @@ class InterruptedAfterCommit(BaseException):
     def __init__(self, signum: int, paths: list[Path]) -> None:
         super().__init__(signum, paths)
         self.signum, self.paths = signum, paths
+
+
+#: How many output sets are open; a set committed inside another (a file written into a staged
+#: folder) passes a signal on as usual, since the outer outputs are not in place yet.
+_OPEN_SETS = [0]
 
 
 @contextmanager
@@ -157,7 +164,9 @@ class OutputSet:
             for item in self._staged:
                 _drop(item.aside)
                 item.aside = None
-        if arrived:
+        if arrived and _OPEN_SETS[0] > 1:  # inside an outer set, which is not in place yet
+            signal.raise_signal(arrived[0])
+        elif arrived:
             raise InterruptedAfterCommit(arrived[0], [*self._step_targets,
                                                       *(s.target for s in self._staged)])
 
@@ -175,10 +184,12 @@ class OutputSet:
 def output_set() -> Iterator[OutputSet]:
     """An :class:`OutputSet` committed when the block ends normally, cleaned up always."""
     outputs = OutputSet()
+    _OPEN_SETS[0] += 1
     try:
         yield outputs
         outputs.commit()
     finally:
+        _OPEN_SETS[0] -= 1
         outputs.close()
 
 
