@@ -2,8 +2,10 @@
 
 Every file is built through :func:`gisrun.io.files.atomic_target`: in full
 beside its target, then moved into place, an existing one replaced only with
-``overwrite``. Layers added to a user's existing GeoPackage go into a copy of
-it that replaces it when complete (:func:`open_output`). Tables are written
+``overwrite``. Layers added to a user's existing GeoPackage are built in a
+copy beside it and then added to the file itself in one SQLite transaction
+(:func:`open_output`, :mod:`gisrun.io.gpkg_merge`); the file is never
+replaced. Tables are written
 through Arrow (pyarrow is a dependency): about 2.5x faster for long tables
 (measured on a 1.4-million-row series table: 4 s against 9-10 s).
 """
