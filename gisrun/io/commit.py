@@ -62,7 +62,8 @@ def signals_deferred() -> Iterator[list[int]]:
     if threading.current_thread() is not threading.main_thread():
         yield arrived
         return
-    kinds = (signal.SIGINT, signal.SIGTERM)
+    kinds = [k for k in (signal.SIGINT, signal.SIGTERM)  # an ignored signal stays ignored
+             if signal.getsignal(k) not in (signal.SIG_IGN, None)]
     previous = {k: signal.signal(k, lambda signum, _frame: arrived.append(signum)) for k in kinds}
     try:
         yield arrived
