@@ -47,7 +47,7 @@ class Case:
     culprit: str | re.Pattern[str]  # must appear in the error line
     commands: tuple[str, ...] = BOTH
     target: str = "."  # what to pass as PROJECT, relative to the folder
-    extra: tuple[str, ...] = ()  # more command-line options
+    extra: tuple[str, ...] = ()  # more command-line options (for run)
 
 
 def _toml(old: str, new: str) -> Callable[[Path], None]:
@@ -274,19 +274,19 @@ CASES: dict[str, Case] = {
     "output is the soil raster": Case(
         _toml('output = "out/result.gpkg"', 'output = "soil.tif"'),
         re.compile(r"soil\.tif: would replace an input of this run \(soil raster"),
-        commands=("run",), extra=("--overwrite",)),
+        extra=("--overwrite",)),
     "output is the subcatchment file": Case(
         _toml('output = "out/result.gpkg"', 'output = "sub.gpkg"'),
         re.compile(r"sub\.gpkg: would replace an input of this run \(subcatchment file"),
-        commands=("run",), extra=("--overwrite",)),
+        extra=("--overwrite",)),
     "output is the project file": Case(
         _toml('output = "out/result.gpkg"', 'output = "gisrun.toml"'),
         re.compile(r"gisrun\.toml: would replace an input of this run \(project file"),
-        commands=("run",), extra=("--overwrite",)),
+        extra=("--overwrite",)),
     "output is a hard link to the cover raster": Case(
         _output_linked_to("cover.tif"),
         re.compile(r"result\.gpkg: would replace an input of this run \(cover raster"),
-        commands=("run",), extra=("--overwrite",)),
+        extra=("--overwrite",)),
 }
 
 PARAMS = [pytest.param(name, command, id=f"{command}: {name}")
@@ -304,7 +304,7 @@ def test_bad_input_gets_one_clear_line(tmp_path, capsys, name, command):
     make_project(folder)
     case.breaks(folder)
     before = _files(folder)
-    args = [command, str(folder / case.target), *case.extra]
+    args = [command, str(folder / case.target), *(case.extra if command == "run" else ())]
     if command == "run":
         args += ["--no-extras", "--quiet"]
     code, out, err = run_cli(capsys, args)
