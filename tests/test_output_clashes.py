@@ -11,6 +11,7 @@ from bad_inputs_helpers import X0, Y0, assert_one_clear_error, make_project, run
 from shapely.geometry import box
 
 from gisrun.errors import OutputExistsError, VectorError
+from gisrun.io.commit import output_set
 from gisrun.io.files import atomic_target
 from gisrun.write.extras import check_plot_ids
 
@@ -97,3 +98,17 @@ def test_a_target_created_by_another_program_meanwhile_is_not_replaced(tmp_path)
             target.write_text("theirs\n")  # another program, after our existence check
     assert target.read_text() == "theirs\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["result.csv"]
+
+
+def test_a_failed_second_move_puts_the_first_output_back(tmp_path):
+    gpkg, folder = tmp_path / "result.gpkg", tmp_path / "result_files"
+    gpkg.write_text("earlier GeoPackage")
+    with pytest.raises(OutputExistsError, match=r"result_files: was created by another program"):
+        with output_set() as outputs:
+            outputs.file(gpkg, overwrite=True).write_text("new GeoPackage")
+            (outputs.folder(folder, overwrite=False) / "report.html").write_text("new report")
+            folder.mkdir()  # another program makes the folder before the moves
+            (folder / "theirs.txt").write_text("theirs")
+    assert gpkg.read_text() == "earlier GeoPackage"  # the pair changed not at all
+    assert (folder / "theirs.txt").read_text() == "theirs"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["result.gpkg", "result_files"]

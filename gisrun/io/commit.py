@@ -80,6 +80,7 @@ class _Staged:
     folder: bool
     aside: Path | None = None
     moved: bool = False
+    created: bool = False  # there was no target before the move
 
 
 class OutputSet:
@@ -259,11 +260,11 @@ def _move_in(item: _Staged) -> None:
                 os.rename(target, item.aside)
             os.rename(item.tmp, target)  # onto an existing non-empty folder this fails
         elif exists:
-            item.aside = _aside_name(target)
-            os.link(target, item.aside)  # a second name for the old file, for an undo
+            item.aside = _second_name(target)
             os.replace(item.tmp, target)
         else:
             _exclusive_move(item.tmp, target)
+            item.created = True
     except FileExistsError:
         raise OutputExistsError(str(target), "was created by another program while this run "
                                 "went on", "pass --overwrite or choose another output path"
@@ -276,6 +277,16 @@ def _move_in(item: _Staged) -> None:
         raise OutputError(str(target), f"could not be moved into place ({err.strerror or err})",
                           "check free disk space and permissions, then run again") from None
     item.moved = True
+
+
+def _second_name(target: Path) -> Path | None:
+    """A second name (hard link) for the old file, to put it back on an undo; None if none."""
+    aside = _aside_name(target)
+    try:
+        os.link(target, aside)
+    except OSError:  # no hard links here (or not for this file): no undo for this one
+        return None
+    return aside
 
 
 def _exclusive_move(tmp: Path, target: Path) -> None:
@@ -299,7 +310,7 @@ def _undo(item: _Staged) -> None:
             if item.folder:
                 os.rename(item.target, item.tmp)
                 item.moved = False
-            elif item.aside is None:
+            elif item.created:
                 os.unlink(item.target)
         if item.aside is not None:
             os.replace(item.aside, item.target)
