@@ -5,14 +5,20 @@ Invented test data: the tiny project of :mod:`bad_inputs_helpers` and storms mad
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
+
 import geopandas as gpd
 import pytest
 from bad_inputs_helpers import X0, Y0, assert_one_clear_error, make_project, run_cli
 from shapely.geometry import box
 
-from gisrun.errors import OutputExistsError, VectorError
-from gisrun.io.commit import output_set
+import gisrun.io.commit as commit
+from gisrun.errors import OutputError, OutputExistsError, VectorError
+from gisrun.io.commit import OutputSet, output_set
 from gisrun.io.files import atomic_target
+from gisrun.io.locks import write_intent
 from gisrun.write.extras import check_plot_ids
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
@@ -100,15 +106,57 @@ def test_a_target_created_by_another_program_meanwhile_is_not_replaced(tmp_path)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["result.csv"]
 
 
-def test_a_failed_second_move_puts_the_first_output_back(tmp_path):
+def test_a_failed_second_move_puts_the_first_output_back(tmp_path, monkeypatch):
+    import gisrun.io.commit as commit
+
     gpkg, folder = tmp_path / "result.gpkg", tmp_path / "result_files"
     gpkg.write_text("earlier GeoPackage")
-    with pytest.raises(OutputExistsError, match=r"result_files: was created by another program"):
+    folder.mkdir()
+    (folder / "report.html").write_text("earlier report")
+    original = commit._move_in
+
+    def move_in(item: commit._Staged) -> None:
+        if item.folder:  # the first move (the GeoPackage) is made; this one fails
+            raise OutputError(str(item.target), "could not be moved into place (I/O error)",
+                              "check free disk space and permissions, then run again")
+        original(item)
+
+    monkeypatch.setattr(commit, "_move_in", move_in)
+    with pytest.raises(OutputError, match=r"result_files: could not be moved into place"):
         with output_set() as outputs:
             outputs.file(gpkg, overwrite=True).write_text("new GeoPackage")
-            (outputs.folder(folder, overwrite=False) / "report.html").write_text("new report")
-            folder.mkdir()  # another program makes the folder before the moves
-            (folder / "theirs.txt").write_text("theirs")
+            (outputs.folder(folder, overwrite=True) / "report.html").write_text("new report")
     assert gpkg.read_text() == "earlier GeoPackage"  # the pair changed not at all
-    assert (folder / "theirs.txt").read_text() == "theirs"
+    assert (folder / "report.html").read_text() == "earlier report"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["result.gpkg", "result_files"]
+
+
+def test_a_run_killed_during_the_moves_is_finished_by_the_next(tmp_path):
+    gpkg, folder = tmp_path / "result.gpkg", tmp_path / "result_files"
+    gpkg.write_text("earlier GeoPackage")
+    folder.mkdir()
+    (folder / "report.html").write_text("earlier report")
+    outputs = OutputSet()
+    outputs.file(gpkg, overwrite=True).write_text("new GeoPackage")
+    (outputs.folder(folder, overwrite=True) / "report.html").write_text("new report")
+    staged = outputs._staged
+    intent = write_intent(staged)
+    commit._move_in(staged[0])  # the GeoPackage is in; then SIGKILL, which drops its locks
+    for held in outputs._locks.values():
+        held.release()
+    mine, dead = f".{os.getpid()}-", f".{_dead_pid()}-"
+    intent.write_text(intent.read_text().replace(mine, dead))
+    for path in tmp_path.iterdir():  # the temporaries of a process that is gone
+        if mine in path.name:
+            path.rename(path.with_name(path.name.replace(mine, dead)))
+    with output_set() as later:  # the next run on the same output
+        later.lock(gpkg)
+    assert gpkg.read_text() == "new GeoPackage"
+    assert (folder / "report.html").read_text() == "new report"  # the pair is whole again
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["result.gpkg", "result_files"]
+
+
+def _dead_pid() -> int:
+    proc = subprocess.Popen([sys.executable, "-c", "pass"])
+    proc.wait()
+    return proc.pid

@@ -30,7 +30,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..errors import OutputError, OutputExistsError
-from .locks import OutputLock, remove_leftovers, temp_prefix
+from .locks import OutputLock, remove_leftovers, temp_prefix, write_intent
 
 __all__ = ["InterruptedAfterCommit", "OutputSet", "output_set", "signals_deferred"]
 
@@ -134,9 +134,9 @@ class OutputSet:
         return tmp
 
     def add_step(self, step: Callable[[], None], target: Path) -> None:
-        """Run ``step`` (which writes ``target``) in :meth:`commit` after the moves.
+        """Run ``step`` (which writes ``target`` in one transaction) in :meth:`commit`.
 
-        If it fails, the moves are undone.
+        Steps run before the moves: if one fails, nothing has been moved.
         """
         self._steps.append(step)
         self._step_targets.append(Path(target))
@@ -154,18 +154,29 @@ class OutputSet:
             A signal arrived during the commit, after which all was done.
         """
         with signals_deferred() as arrived:
+            for item in self._staged:  # refuse before a step changes anything
+                if os.path.lexists(item.target) and not item.overwrite:
+                    raise _appeared(item.target)
+            for step in self._steps:  # its own transaction: a failure there changes nothing
+                step()
+            several = len(self._staged) > 1 or (self._steps and self._staged)
+            intent = write_intent(self._staged) if several else None
             try:
                 for item in self._staged:
                     _move_in(item)
-                for step in self._steps:
-                    step()
-            except BaseException:
+            except BaseException as err:
                 for item in reversed(self._staged):
                     _undo(item)
+                _drop(intent)
+                if self._steps and isinstance(err, OutputError):
+                    raise type(err)(err.where, f"{err.problem} (the layers were already added "
+                                    f"to {', '.join(map(str, self._step_targets))})",
+                                    err.fix) from None
                 raise
             for item in self._staged:
                 _drop(item.aside)
                 item.aside = None
+            _drop(intent)
         if arrived and _OPEN_SETS[0] > 1:  # inside an outer set, which is not in place yet
             signal.raise_signal(arrived[0])
         elif arrived:
@@ -266,14 +277,10 @@ def _move_in(item: _Staged) -> None:
             _exclusive_move(item.tmp, target)
             item.created = True
     except FileExistsError:
-        raise OutputExistsError(str(target), "was created by another program while this run "
-                                "went on", "pass --overwrite or choose another output path"
-                                ) from None
+        raise _appeared(target) from None
     except OSError as err:
         if item.folder and err.errno in (errno.ENOTEMPTY, errno.EEXIST):
-            raise OutputExistsError(str(target), "was created by another program while this "
-                                    "run went on", "pass --overwrite or choose another output "
-                                    "path") from None
+            raise _appeared(target) from None
         raise OutputError(str(target), f"could not be moved into place ({err.strerror or err})",
                           "check free disk space and permissions, then run again") from None
     item.moved = True
@@ -287,6 +294,11 @@ def _second_name(target: Path) -> Path | None:
     except OSError:  # no hard links here (or not for this file): no undo for this one
         return None
     return aside
+
+
+def _appeared(target: Path) -> OutputExistsError:
+    return OutputExistsError(str(target), "was created by another program while this run went "
+                             "on", "pass --overwrite or choose another output path")
 
 
 def _exclusive_move(tmp: Path, target: Path) -> None:

@@ -16,11 +16,15 @@ process is never touched.
 
 from __future__ import annotations
 
+import json
 import os
 import re
 import shutil
+import tempfile
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from ..errors import OutputError
 
@@ -30,7 +34,7 @@ except ImportError:  # pragma: no cover - not POSIX
     fcntl = None  # type: ignore[assignment]
 
 __all__ = ["OutputBusyError", "OutputLock", "leftover_pattern", "remove_leftovers",
-           "temp_prefix", "pid_alive"]
+           "temp_prefix", "pid_alive", "write_intent"]
 
 
 class OutputBusyError(OutputError):
@@ -45,7 +49,7 @@ def temp_prefix(key: str) -> str:
 def leftover_pattern(key: str, suffix: str) -> re.Pattern[str]:
     """Names of the temporaries (and SQLite side files) of target ``key``, with their pid."""
     return re.compile(rf"^\.{re.escape(key)}\.(?P<pid>\d+)-[a-z0-9_]+\."
-                      rf"(?P<kind>partial|old){re.escape(suffix)}(-journal|-wal|-shm)?$")
+                      rf"(?P<kind>partial|old|commit){re.escape(suffix)}(-journal|-wal|-shm)?$")
 
 
 def pid_alive(pid: int) -> bool:
@@ -66,9 +70,12 @@ def pid_alive(pid: int) -> bool:
 def remove_leftovers(target: Path, key: str, suffix: str) -> list[Path]:
     """Remove the temporaries of ``target`` whose writing process is dead; return them.
 
-    An old version moved aside while a folder was swapped (``.old``) is put back
-    when ``target`` is missing (the run died between the two renames); otherwise
-    it is removed. Call this only while holding the target's :class:`OutputLock`.
+    A killed run's record of the moves it had begun (``.commit``, see
+    :func:`write_intent`) is honoured first: every output it lists that is still
+    a temporary is moved in, since all were complete. An old version moved aside
+    while a folder was swapped (``.old``) is put back when ``target`` is missing
+    (the run died between the two renames); otherwise it is removed. Call this
+    only while holding the target's :class:`OutputLock`.
     """
     pattern = leftover_pattern(key, suffix)
     removed: list[Path] = []
@@ -76,11 +83,15 @@ def remove_leftovers(target: Path, key: str, suffix: str) -> list[Path]:
         names = sorted(os.listdir(target.parent))
     except OSError:
         return removed
-    for name in names:
-        match = pattern.match(name)
-        if match is None or pid_alive(int(match["pid"])):
-            continue
+    dead = [(name, match) for name in names if (match := pattern.match(name)) is not None
+            and not pid_alive(int(match["pid"]))]
+    for name, match in dead:  # first finish the moves a killed run had begun
+        if match["kind"] == "commit":
+            _finish_moves(target.parent / name)
+    for name, match in dead:
         path = target.parent / name
+        if not os.path.lexists(path):
+            continue
         if match["kind"] == "old" and not os.path.lexists(target) and not match[3]:
             os.replace(path, target)
             continue
@@ -92,6 +103,41 @@ def remove_leftovers(target: Path, key: str, suffix: str) -> list[Path]:
     return removed
 
 
+def write_intent(staged: Sequence[Any]) -> Path:
+    """Record the moves about to be made (``tmp``, ``target``, ``folder`` of each); return the file.
+
+    Named after the first target (``.<stem>.<pid>-<random>.commit<suffix>``), so
+    the next run on that output finds it.
+    """
+    first = Path(staged[0].target)
+    fd, name = tempfile.mkstemp(prefix=temp_prefix(first.stem), suffix=f".commit{first.suffix}",
+                                dir=first.parent)
+    moves = [[os.path.abspath(s.tmp), os.path.abspath(s.target), bool(s.folder)] for s in staged]
+    with os.fdopen(fd, "w", encoding="utf-8") as handle:
+        json.dump(moves, handle)
+        handle.flush()
+        os.fsync(handle.fileno())
+    return Path(name)
+
+
+def _finish_moves(intent: Path) -> None:
+    """Move in every output a killed run had finished but not yet moved (all were complete)."""
+    try:
+        moves = json.loads(intent.read_text(encoding="utf-8"))
+    except (OSError, ValueError):  # killed while writing the intent: no move had begun
+        return
+    for tmp, target, folder in moves:
+        tmp, target = Path(tmp), Path(target)
+        if not tmp.exists():
+            continue  # moved in before the kill
+        if folder and os.path.lexists(target):
+            old = Path(tempfile.mktemp(prefix=temp_prefix(target.name),  # noqa: S306
+                                       suffix=".old", dir=target.parent))
+            os.replace(target, old)
+            os.replace(tmp, target)
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            os.replace(tmp, target)
 @dataclass
 class OutputLock:
     """An exclusive lock on one output path, held by this process until :meth:`release`."""
