@@ -99,3 +99,17 @@ class Project:
     def where(self, section: str, key: str | None = None) -> str:
         """Name a place in the project file for an error message."""
         return f"{self.path.name}:[{section}]" + (f".{key}" if key else "")
+
+    def input_files(self) -> dict[str, Path]:
+        """Every file the run reads, by what it is (``"soil raster"``); no file is opened."""
+        files = {"project file": self.path, "subcatchment file": self.subcatchments.path,
+                 "soil raster": self.soil.path}
+        if self.cover is not None:
+            files["cover raster"] = self.cover.path
+        if self.overrides is not None:
+            files["parameter override file"] = self.overrides
+        for i, spec in enumerate(self.storms, start=1):
+            for key in ("path", "idf_table"):
+                if isinstance(spec.get(key), str):
+                    files[f"[[storms]] {i}.{key}"] = self.base_dir / spec[key]
+        return files

@@ -47,7 +47,7 @@ class Case:
     culprit: str | re.Pattern[str]  # must appear in the error line
     commands: tuple[str, ...] = BOTH
     target: str = "."  # what to pass as PROJECT, relative to the folder
-    extra: tuple[str, ...] = ()  # more command-line options
+    extra: tuple[str, ...] = ()  # more command-line options (for run)
 
 
 def _toml(old: str, new: str) -> Callable[[Path], None]:
@@ -96,6 +96,22 @@ def _both(*steps: Callable[[Path], object]) -> Callable[[Path], None]:
         for step in steps:
             step(d)
     return run_all
+
+
+def _add_storm(name: str) -> Callable[[Path], None]:
+    def add(d: Path) -> None:
+        with open(d / "gisrun.toml", "a") as handle:
+            handle.write(f'\n[[storms]]\nname = "{name}"\nkind = "uniform"\ndepth = 5\n'
+                         'duration_min = 60\n')
+    return add
+
+
+def _output_linked_to(name: str) -> Callable[[Path], None]:
+    """The output path is a second name (hard link) of an input file."""
+    def link(d: Path) -> None:
+        (d / "out").mkdir()
+        os.link(d / name, d / "out" / "result.gpkg")
+    return link
 
 
 def _soil_becomes_folder(d: Path) -> None:
@@ -213,6 +229,12 @@ CASES: dict[str, Case] = {
         lambda d: (d / "gisrun.toml").write_text((d / "gisrun.toml").read_text() + (
             '\n[[storms]]\nname = "steady"\nkind = "uniform"\ndepth = 5\nduration_min = 60\n')),
         re.compile(r"\[\[storms\]\] 2.*'steady'")),
+    "storm names that differ only in case": Case(
+        _add_storm("Steady"),
+        re.compile(r"\[\[storms\]\].*'steady' and 'Steady'.*'runoff_steady'")),
+    "storm names that differ only in punctuation": Case(
+        _add_storm("steady!"),
+        re.compile(r"\[\[storms\]\].*'steady' and 'steady!'.*'runoff_steady'")),
     # --- parameter overrides ------------------------------------------------------------------
     "zero conductivity": Case(_with_overrides("soil_class,ks_mm_per_h\nA,0\n"),
                               re.compile(r"over\.csv:line 2:ks_mm_per_h")),
@@ -266,6 +288,22 @@ CASES: dict[str, Case] = {
     "output exists without --overwrite": Case(
         _both(lambda d: (d / "out").mkdir(), _write("out/result.gpkg", "earlier result")),
         re.compile(r"result\.gpkg.*already exists.*--overwrite"), commands=("run",)),
+    "output is the soil raster": Case(
+        _toml('output = "out/result.gpkg"', 'output = "soil.tif"'),
+        re.compile(r"soil\.tif: would replace an input of this run \(soil raster"),
+        extra=("--overwrite",)),
+    "output is the subcatchment file": Case(
+        _toml('output = "out/result.gpkg"', 'output = "sub.gpkg"'),
+        re.compile(r"sub\.gpkg: would replace an input of this run \(subcatchment file"),
+        extra=("--overwrite",)),
+    "output is the project file": Case(
+        _toml('output = "out/result.gpkg"', 'output = "gisrun.toml"'),
+        re.compile(r"gisrun\.toml: would replace an input of this run \(project file"),
+        extra=("--overwrite",)),
+    "output is a hard link to the cover raster": Case(
+        _output_linked_to("cover.tif"),
+        re.compile(r"result\.gpkg: would replace an input of this run \(cover raster"),
+        extra=("--overwrite",)),
 }
 
 PARAMS = [pytest.param(name, command, id=f"{command}: {name}")
@@ -283,7 +321,7 @@ def test_bad_input_gets_one_clear_line(tmp_path, capsys, name, command):
     make_project(folder)
     case.breaks(folder)
     before = _files(folder)
-    args = [command, str(folder / case.target), *case.extra]
+    args = [command, str(folder / case.target), *(case.extra if command == "run" else ())]
     if command == "run":
         args += ["--no-extras", "--quiet"]
     code, out, err = run_cli(capsys, args)

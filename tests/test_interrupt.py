@@ -9,6 +9,7 @@ byte-for-byte unchanged and no temporary file may remain. Exit codes 130 (SIGINT
 
 from __future__ import annotations
 
+import os
 import shutil
 import signal
 import subprocess
@@ -94,3 +95,96 @@ def test_interrupted_overwrite_keeps_the_earlier_output(tmp_path, earlier_output
     assert "Traceback" not in err
     assert "interrupted" in err and "unchanged" in err
     assert _snapshot(folder) == before  # same names (no temporary left) and same bytes
+
+
+# --- the GeoPackage and its extras folder change together --------------------------------------
+
+@pytest.fixture(scope="module")
+def earlier_with_extras(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The demo's GeoPackage and its ``_files`` folder from a finished run."""
+    folder = tmp_path_factory.mktemp("earlier_extras")
+    assert main(["run", str(DEMO), "--output", str(folder / "runoff.gpkg"), "--quiet"]) == 0
+    return folder
+
+
+def _wait_for_extras(proc: subprocess.Popen[str], folder: Path) -> None:
+    """Wait for the file flag that says the extras are being written: their staged folder."""
+    deadline = time.monotonic() + WAIT_FOR_WRITING_S
+    while time.monotonic() < deadline:
+        if any(p.name.startswith(".runoff_files.") and p.name.endswith(".partial")
+               for p in folder.iterdir()):
+            return
+        if proc.poll() is not None:
+            _, err = proc.communicate()
+            pytest.fail(f"the run ended (exit {proc.returncode}) before the extras began:\n{err}")
+        time.sleep(0.01)  # polling interval of the file flag
+    proc.kill()
+    proc.communicate()
+    pytest.fail("no staged extras folder appeared in time")
+
+
+@pytest.mark.parametrize(("signum", "exit_code"), [(signal.SIGTERM, 143), (signal.SIGINT, 130)],
+                         ids=["SIGTERM", "SIGINT"])
+def test_interrupted_extras_keep_the_earlier_geopackage_and_extras(tmp_path, earlier_with_extras,
+                                                                   signum, exit_code):
+    project = tmp_path / "demo"
+    shutil.copytree(DEMO, project, ignore=shutil.ignore_patterns("output"))
+    folder = tmp_path / "results"
+    shutil.copytree(earlier_with_extras, folder)
+    before = _snapshot(folder)
+    code = (
+        "import signal; signal.signal(signal.SIGINT, signal.default_int_handler)\n"
+        "from gisrun.cli.main import main\n"
+        f"raise SystemExit(main(['run', {str(project)!r}, '--output', "
+        f"{str(folder / 'runoff.gpkg')!r}, '--overwrite', '--quiet']))\n"
+    )
+    proc = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+    _wait_for_extras(proc, folder)
+    proc.send_signal(signum)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == exit_code, err
+    assert "interrupted" in err and "unchanged" in err
+    assert _snapshot(folder) == before  # the old GeoPackage and the old extras, nothing else
+
+
+def _signal_when_moving(monkeypatch: pytest.MonkeyPatch, name: str) -> None:
+    """Send this process SIGTERM just before the move of the output called ``name``."""
+    import gisrun.io.commit as commit
+
+    original = commit._move_in
+
+    def move_in(item: commit._Staged) -> None:
+        if item.target.name == name:
+            os.kill(os.getpid(), signal.SIGTERM)
+        original(item)
+
+    monkeypatch.setattr(commit, "_move_in", move_in)
+
+
+def test_a_signal_during_the_final_moves_is_held_until_all_are_in(tmp_path, capsys, monkeypatch):
+    from bad_inputs_helpers import make_project
+
+    project = make_project(tmp_path / "project")
+    _signal_when_moving(monkeypatch, "result_files")  # after the GeoPackage was moved in
+    code = main(["run", str(project), "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 143, err
+    out = project.parent / "out"
+    assert "interrupted while the finished outputs were moved into place; they are complete" \
+        in err and str(out / "result.gpkg") in err
+    assert sorted(p.name for p in out.iterdir()) == ["result.gpkg", "result_files"]
+    assert (out / "result_files" / "report.html").is_file()
+
+
+def test_a_signal_while_a_raster_is_moved_into_the_staged_folder_discards_all(tmp_path, capsys,
+                                                                              monkeypatch):
+    from bad_inputs_helpers import make_project
+
+    project = make_project(tmp_path / "project")
+    _signal_when_moving(monkeypatch, "runoff_depth_mm_steady.tif")
+    code = main(["run", str(project), "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 143, err
+    assert "discarded" in err and "unchanged" in err
+    assert sorted(p.name for p in (project.parent / "out").iterdir()) == []

@@ -9,7 +9,9 @@ features read back, field schema, their raw SQLite rows, and their ``gpkg_conten
 from __future__ import annotations
 
 import hashlib
+import os
 import sqlite3
+from contextlib import closing
 from pathlib import Path
 
 import geopandas as gpd
@@ -21,7 +23,7 @@ from pandas.testing import assert_frame_equal
 from shapely.geometry import Polygon
 
 from gisrun.errors import OutputError, OutputExistsError
-from gisrun.io import geopackage
+from gisrun.io import geopackage, gpkg_merge
 from gisrun.workflow.stream import run_and_write
 
 GISRUN_LAYERS = {"runoff_steady", "excess_series", "subcatchment_results", "unit_results",
@@ -175,3 +177,97 @@ def test_only_an_existing_geopackage_is_accepted(tmp_path, project, kind):
     with pytest.raises(OutputError, match=r"target\.gpkg.*(does not exist|not a GeoPackage)"):
         run_and_write(project, into=target)
     assert (target.read_bytes() if target.exists() else None) == before
+
+
+# --- writing in place: links, other connections, names taken meanwhile ------------------------
+
+def _at_writing(action):
+    """A progress callback that runs ``action`` once the run starts writing its layers."""
+    def progress(message: str) -> None:
+        if message == "writing outputs":
+            action()
+    return progress
+
+
+def test_a_hard_link_to_the_user_file_sees_the_new_layers(tmp_path, project):
+    user = _user_geopackage(tmp_path / "town.gpkg")
+    other_name = tmp_path / "shared" / "town_link.gpkg"
+    other_name.parent.mkdir()
+    os.link(user, other_name)
+    run_and_write(project, into=user)
+    assert os.path.samefile(user, other_name)  # written in place, not replaced by a new file
+    names = {str(row[0]) for row in pyogrio.list_layers(other_name)}
+    assert GISRUN_LAYERS <= names and "parcels" in names
+
+
+def test_rows_another_connection_commits_during_the_run_are_kept(tmp_path, project):
+    user = _user_geopackage(tmp_path / "town.gpkg")
+
+    def edit() -> None:  # the copy was taken at the start; this edit comes after it
+        with closing(sqlite3.connect(user)) as db, db:
+            db.execute("INSERT INTO inspections (inlet, blocked, checked_on) "
+                       "VALUES ('IN-20', 1, '2023-06-01')")
+
+    run_and_write(project, into=user, progress=_at_writing(edit))
+    with closing(sqlite3.connect(user)) as db:
+        inlets = [r[0] for r in db.execute("SELECT inlet FROM inspections ORDER BY fid")]
+        assert db.execute("PRAGMA integrity_check").fetchone() == ("ok",)
+    assert inlets == ["IN-7", "IN-9", "IN-12", "IN-20"]
+    assert GISRUN_LAYERS <= {str(row[0]) for row in pyogrio.list_layers(user)}
+
+
+def test_a_writer_that_holds_its_transaction_is_waited_for_then_refused(tmp_path, project,
+                                                                        monkeypatch):
+    user = _user_geopackage(tmp_path / "town.gpkg")
+    monkeypatch.setattr(gpkg_merge, "LOCK_WAIT_S", 0.2)  # how long to wait, not a sync point
+    writer = sqlite3.connect(user, isolation_level=None)
+    try:
+        def hold() -> None:
+            writer.execute("BEGIN IMMEDIATE")
+            writer.execute("INSERT INTO inspections (inlet, blocked, checked_on) "
+                           "VALUES ('IN-21', 0, '2023-06-02')")
+
+        with pytest.raises(OutputError, match=r"town\.gpkg: is being written by another "
+                                              r"program.*; finish or close the edit"):
+            run_and_write(project, into=user, progress=_at_writing(hold))
+        writer.execute("COMMIT")
+    finally:
+        writer.close()
+    with closing(sqlite3.connect(user)) as db:
+        assert [r[0] for r in db.execute("SELECT inlet FROM inspections ORDER BY fid")][-1] \
+            == "IN-21"
+    assert not GISRUN_LAYERS & {str(row[0]) for row in pyogrio.list_layers(user)}
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["project", "town.gpkg"]
+
+
+def test_a_layer_name_taken_during_the_run_is_refused(tmp_path, project):
+    user = _user_geopackage(tmp_path / "town.gpkg")
+    theirs = pd.DataFrame({"note": ["made while gisrun ran"]})
+
+    def take_name() -> None:
+        pyogrio.write_dataframe(theirs, user, layer="coverage", driver="GPKG")
+
+    with pytest.raises(OutputExistsError, match=r"town\.gpkg:coverage.*already a layer"):
+        run_and_write(project, into=user, progress=_at_writing(take_name))
+    assert_frame_equal(pyogrio.read_dataframe(user, layer="coverage"), theirs)
+    assert "runoff_steady" not in {str(row[0]) for row in pyogrio.list_layers(user)}
+
+
+def test_into_the_subcatchment_geopackage_keeps_the_subcatchments(tmp_path, project):
+    sub = project.parent / "sub.gpkg"
+    before = pyogrio.read_dataframe(sub, layer="subcatchments")
+    run_and_write(project, into=sub)
+    assert_frame_equal(pyogrio.read_dataframe(sub, layer="subcatchments"), before)
+    assert "runoff_steady" in {str(row[0]) for row in pyogrio.list_layers(sub)}
+
+
+def test_into_refuses_to_replace_the_subcatchment_layer(tmp_path, project):
+    sub = project.parent / "sub.gpkg"
+    edit = project.read_text().replace('layer = "subcatchments"', 'layer = "coverage"')
+    project.write_text(edit)
+    pyogrio.write_dataframe(pyogrio.read_dataframe(sub, layer="subcatchments"), sub,
+                            layer="coverage", driver="GPKG")
+    digest = _sha256(sub)
+    with pytest.raises(OutputError, match=r"sub\.gpkg:coverage: is the subcatchment layer"):
+        run_and_write(project, into=sub, overwrite=True)
+    assert _sha256(sub) == digest

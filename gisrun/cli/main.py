@@ -19,6 +19,7 @@ import click
 
 from .._version import __version__
 from ..errors import GisrunError
+from ..io.commit import InterruptedAfterCommit
 from .check import check
 from .run import run
 from .storm import storm
@@ -84,6 +85,11 @@ def main(argv: list[str] | None = None) -> int:
     except Terminated:
         click.echo(INTERRUPTED, err=True)
         return 128 + signal.SIGTERM
+    except InterruptedAfterCommit as late:
+        paths = ", ".join(str(p) for p in late.paths) or "the outputs"
+        click.echo(f"gisrun: interrupted while the finished outputs were moved into place; "
+                   f"they are complete ({paths})", err=True)
+        return 128 + late.signum
 
 
 def _main(argv: list[str] | None) -> int:

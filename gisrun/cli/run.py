@@ -14,6 +14,8 @@ import click
 
 from ..config.project import load_project
 from ..errors import OutputExistsError
+from ..io.commit import OutputSet
+from ..io.files import refuse_inputs_among
 from ..model import CAUTION, RunResult
 from ..workflow.inputs import read_subcatchment_layer
 from ..workflow.stream import run_and_write
@@ -60,18 +62,27 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
         raise click.UsageError("give either --output or --into, not both")
     target = Path(into or output or loaded.output)
     _refuse_existing(target, into=into, extras=not no_extras, overwrite=overwrite)
+    refuse_inputs_among(([] if into else [target]) + ([] if no_extras else
+                                                      [extras_folder(target)]),
+                        loaded.input_files())
     if plot_ids and not no_extras:  # a wrong id fails before the work, not after it
         check_plot_ids(read_subcatchment_layer(loaded), plot_ids)
     options = ExtrasOptions(rasters=not no_rasters, maps=not no_maps, report=not no_report,
                             plot_subcatchments=plot_ids)
+    made: list[Deliverables] = []
     with progress_display(enabled=not (quiet or as_json)) as show:
+        def stage_extras(result: RunResult, gpkg: Path, outputs: OutputSet) -> None:
+            made.append(write_extras(result, gpkg, overwrite=overwrite, options=options,
+                                     progress=show.advance, outputs=outputs,
+                                     final_gpkg=target))
+
         result, written = run_and_write(loaded, output=None if into else target,
                                         into=into, overwrite=overwrite,
                                         progress=show.step, workers=workers,
                                         scheduler=scheduler,
-                                        cells=not (no_rasters or no_extras))
-        extras = None if no_extras else write_extras(result, written, overwrite=overwrite,
-                                                     options=options, progress=show.advance)
+                                        cells=not (no_rasters or no_extras),
+                                        extras=None if no_extras else stage_extras)
+    extras = made[0] if made else None
     result = _with_notes(result, extras)
     if as_json:
         _echo_json(result, written, extras)

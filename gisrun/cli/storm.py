@@ -18,7 +18,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from ..config.storms import storm_from_config
-from ..io.files import atomic_target
+from ..errors import OutputError
+from ..io.files import atomic_target, refuse_inputs_among, same_path
 from ..io.storm_csv import read_hyetograph_csv, write_hyetograph_csv
 from ..storm import KINDS, Hyetograph
 from ..units import UnitSystem, from_si, unit_system
@@ -60,6 +61,12 @@ def make(units_name: str, output: Path, overwrite: bool, plot_path: Path | None,
          **options: Any) -> None:
     """Make a design storm and write it as a storm CSV (time_min, depth)."""
     units = unit_system(units_name)
+    if plot_path is not None and same_path(plot_path, output):
+        raise OutputError(str(plot_path), "is also the --output CSV, so the plot would replace "
+                          "the storm file", "give the plot its own file name (.png)")
+    if options.get("idf_table") is not None:
+        refuse_inputs_among([output, *([plot_path] if plot_path else [])],
+                            {"--idf-table": options["idf_table"]})
     spec = _spec_from_options(options)
     h = storm_from_config(spec, base_dir=Path.cwd(), units=units, where="gisrun storm make")
     write_hyetograph_csv(h, output, units=units, overwrite=overwrite)
@@ -88,6 +95,8 @@ def _spec_from_options(options: dict[str, Any]) -> dict[str, Any]:
 def show(path: Path, units_name: str, plot_path: Path | None) -> None:
     """Print a storm file's total depth, duration, peak intensity and step."""
     units = unit_system(units_name)
+    if plot_path is not None:
+        refuse_inputs_among([plot_path], {"STORM_CSV": path})
     h = read_hyetograph_csv(path, units=units)
     _echo_summary(h, units)
     if plot_path is not None:

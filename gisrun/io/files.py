@@ -2,27 +2,32 @@
 
 Every output is first written to a temporary file (or folder) beside its target
 (same folder, so the final move is a rename on one file system) and moved into
-place with :func:`os.replace` only once it is complete. A run that fails or is
-interrupted leaves the previous output untouched and no temporary file behind.
-An existing output is replaced only when ``overwrite`` is true.
+place only once it is complete. A run that fails or is interrupted leaves the
+previous output untouched and no temporary file behind. An existing output is
+replaced only when ``overwrite`` is true; without it, a target that appears
+while the output is being built is not replaced either (exclusive create).
+While an output is built its target is locked against other gisrun runs, and
+temporaries that killed runs left beside it are removed
+(:mod:`gisrun.io.locks`). Several outputs that must change together are built
+in one :class:`gisrun.io.commit.OutputSet`; these two functions are sets of one.
 """
 
 from __future__ import annotations
 
 import os
-import shutil
-import tempfile
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator, Mapping
 from contextlib import contextmanager
 from pathlib import Path
 
-from ..errors import OutputError, OutputExistsError
+from ..errors import OutputError
+from .commit import OutputSet, output_set
 
-__all__ = ["atomic_target", "staged_folder"]
+__all__ = ["atomic_target", "refuse_inputs_among", "same_path", "staged_folder"]
 
 
 @contextmanager
-def atomic_target(target: str | Path, *, overwrite: bool) -> Iterator[Path]:
+def atomic_target(target: str | Path, *, overwrite: bool,
+                  outputs: OutputSet | None = None) -> Iterator[Path]:
     """Yield a temporary path beside ``target``; move it onto ``target`` on success.
 
     Parameters
@@ -31,73 +36,36 @@ def atomic_target(target: str | Path, *, overwrite: bool) -> Iterator[Path]:
         The final output path.
     overwrite : bool
         Whether an existing ``target`` may be replaced.
+    outputs : OutputSet, optional
+        Stage the file in this set instead: it is moved in by the set's commit.
 
     Raises
     ------
     OutputExistsError
-        If ``target`` exists and ``overwrite`` is false.
+        If ``target`` exists (or appears meanwhile) and ``overwrite`` is false.
+    OutputBusyError
+        If another gisrun run is writing ``target``.
     OutputError
         If the folder cannot be created or written.
     """
     target = Path(target)
-    if target.exists() and not overwrite:
-        raise OutputExistsError(
-            str(target), "already exists", "pass --overwrite or choose another output path"
-        )
-    if target.is_dir():
-        raise OutputError(str(target), "is a folder", "give a file path for the output")
-    blocker = _file_in_the_way(target.parent)
-    if blocker is not None:
-        raise OutputError(str(blocker), "is a file, not a folder, so the output cannot go under it",
-                          "choose another output path")
-    try:
-        target.parent.mkdir(parents=True, exist_ok=True)
-        fd, name = tempfile.mkstemp(
-            prefix=f".{target.stem}.", suffix=f".partial{target.suffix}", dir=target.parent
-        )
-    except OSError as err:
-        raise OutputError(
-            str(target.parent), f"cannot be written ({err.strerror or err})",
-            "choose a folder you can write to",
-        ) from None
-    os.close(fd)
-    tmp = Path(name)
-    tmp.unlink()  # writers create the file themselves (GDAL will not open an empty file)
-    try:
-        yield tmp
-        os.replace(tmp, target)
-    except OSError as err:
-        if isinstance(err, OutputError):
-            raise
-        raise OutputError(
-            str(target), f"could not be written ({err.strerror or err})",
-            "check free disk space and permissions, then run again",
-        ) from None
-    finally:
-        _remove(tmp)
-
-
-def _file_in_the_way(folder: Path) -> Path | None:
-    """The nearest existing ancestor of ``folder`` (itself included) if it is not a folder."""
-    for path in (folder, *folder.parents):
-        if path.exists():
-            return None if path.is_dir() else path
-    return None
-
-
-def _remove(path: Path) -> None:
-    for extra in (path, Path(f"{path}-journal"), Path(f"{path}-wal"), Path(f"{path}-shm")):
+    with _one_output(outputs) as staged:
+        tmp = staged.file(target, overwrite=overwrite)
         try:
-            extra.unlink()
-        except FileNotFoundError:
-            pass
-        except IsADirectoryError:
-            shutil.rmtree(extra, ignore_errors=True)
+            yield tmp
+        except OSError as err:
+            if isinstance(err, OutputError):
+                raise
+            raise OutputError(str(target), f"could not be written ({err.strerror or err})",
+                              "check free disk space and permissions, then run again") from None
 
 
 @contextmanager
-def staged_folder(target: Path, *, overwrite: bool) -> Iterator[Path]:
+def staged_folder(target: Path, *, overwrite: bool,
+                  outputs: OutputSet | None = None) -> Iterator[Path]:
     """Yield an empty temporary folder beside ``target``; move it onto ``target`` on success.
+
+    With ``outputs`` the folder is staged in that set and moved in by its commit.
 
     Raises
     ------
@@ -106,37 +74,49 @@ def staged_folder(target: Path, *, overwrite: bool) -> Iterator[Path]:
     OutputError
         If the folder cannot be created or moved.
     """
-    if target.exists() and not overwrite:
-        raise OutputExistsError(str(target), "already exists",
-                                "pass --overwrite or choose another output path")
-    try:
-        target.parent.mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".partial",
-                                    dir=target.parent))
-    except OSError as err:
-        raise OutputError(str(target.parent), f"cannot be written ({err.strerror or err})",
-                          "choose a folder you can write to") from None
-    try:
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o777 & ~umask)  # mkdtemp makes it private; give it a normal folder's mode
-        yield tmp
-        _swap_in(tmp, target)
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
+    with _one_output(outputs) as staged:
+        yield staged.folder(Path(target), overwrite=overwrite)
 
 
-def _swap_in(tmp: Path, target: Path) -> None:
-    old = None
+@contextmanager
+def _one_output(outputs: OutputSet | None) -> Iterator[OutputSet]:
+    if outputs is not None:
+        yield outputs
+        return
+    with output_set() as own:
+        yield own
+
+
+def refuse_inputs_among(outputs: Iterable[Path], inputs: Mapping[str, Path]) -> None:
+    """Stop when an output is an input, or is a folder that holds one (before any work).
+
+    A file output must not be the same file as an input (hard links and symbolic
+    links included); a folder output must not contain an input, since replacing
+    the folder would delete it.
+
+    Raises
+    ------
+    OutputError
+        Naming the output and the input.
+    """
+    for output in outputs:
+        output = Path(output)
+        for what, path in inputs.items():
+            if _same_or_inside(Path(path), output):
+                raise OutputError(str(output), f"would replace an input of this run ({what} "
+                                  f"{path})", "choose another output path")
+
+
+def same_path(a: Path, b: Path) -> bool:
+    """Whether two paths name one file (links followed; either may not exist yet)."""
     try:
-        if target.exists():
-            old = target.with_name(f".{target.name}.{os.getpid()}.old")
-            os.replace(target, old)
-        os.replace(tmp, target)
-    except OSError as err:
-        if old is not None and not target.exists():
-            os.replace(old, target)
-        raise OutputError(str(target), f"could not be moved into place ({err.strerror or err})",
-                          "check permissions of the output folder, then run again") from None
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
+        if os.path.samefile(a, b):
+            return True
+    except OSError:
+        pass
+    return Path(os.path.realpath(a)) == Path(os.path.realpath(b))
+
+
+def _same_or_inside(path: Path, output: Path) -> bool:
+    return same_path(path, output) or Path(os.path.realpath(output)) in Path(
+        os.path.realpath(path)).parents

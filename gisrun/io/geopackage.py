@@ -2,15 +2,16 @@
 
 Every file is built through :func:`gisrun.io.files.atomic_target`: in full
 beside its target, then moved into place, an existing one replaced only with
-``overwrite``. Layers added to a user's existing GeoPackage go into a copy of
-it that replaces it when complete (:func:`open_output`). Tables are written
+``overwrite``. Layers added to a user's existing GeoPackage are built in a
+copy beside it and then added to the file itself in one SQLite transaction
+(:func:`open_output`, :mod:`gisrun.io.gpkg_merge`); the file is never
+replaced. Tables are written
 through Arrow (pyarrow is a dependency): about 2.5x faster for long tables
 (measured on a 1.4-million-row series table: 4 s against 9-10 s).
 """
 
 from __future__ import annotations
 
-import shutil
 import sqlite3
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from contextlib import closing, contextmanager
@@ -21,7 +22,9 @@ import pandas as pd
 import pyogrio
 
 from ..errors import OutputError, OutputExistsError
+from .commit import OutputSet, output_set
 from .files import atomic_target
+from .gpkg_merge import merge_layers
 
 __all__ = [
     "write_geopackage",
@@ -188,14 +191,37 @@ def _existing_layers(target: Path) -> list[str]:
     return [str(row[0]) for row in pyogrio.list_layers(target)]
 
 
-@contextmanager
-def existing_geopackage_copy(target: str | Path, *, overwrite: bool
-                             ) -> Iterator[tuple[Path, LayerCheck]]:
-    """Yield a temporary copy of a user's GeoPackage beside it; move it back on success.
+def _layer_check(target: Path, names: Iterable[str], overwrite: bool) -> LayerCheck:
+    """A check of gisrun's layer names against ``names``, the layers ``target`` holds."""
+    existing = {name.lower(): name for name in names}
 
-    The caller adds layers to the copy; the user's other layers are never
-    touched, and the file is replaced in one rename only when all is written,
-    so a failed or interrupted run leaves it as it was.
+    def check(wanted: Iterable[str]) -> None:
+        for name in wanted:
+            taken = existing.get(name.lower())
+            if taken is not None and taken != name:  # SQLite table names ignore case
+                raise OutputExistsError(
+                    f"{target}:{taken}", f"differs from gisrun's layer {name!r} only in case",
+                    "rename that layer or choose another GeoPackage")
+            if taken is not None and not overwrite:
+                raise OutputExistsError(
+                    f"{target}:{taken}", "is already a layer of this GeoPackage",
+                    "pass --overwrite to replace it (other layers are kept), or choose another "
+                    "GeoPackage")
+    return check
+
+
+@contextmanager
+def existing_geopackage_copy(target: str | Path, *, overwrite: bool,
+                             outputs: OutputSet | None = None
+                             ) -> Iterator[tuple[Path, LayerCheck]]:
+    """Yield a temporary copy of a user's GeoPackage beside it; add its new layers on success.
+
+    The caller adds layers to the copy. When all is written (at the commit of
+    ``outputs``, or when the block ends) the layers it checked are added to the
+    user's file in place, in one SQLite transaction
+    (:func:`gisrun.io.gpkg_merge.merge_layers`): the user's other layers, and
+    rows other programs commit meanwhile, are never touched; a failed or
+    interrupted run leaves the file as it was.
 
     Parameters
     ----------
@@ -203,6 +229,8 @@ def existing_geopackage_copy(target: str | Path, *, overwrite: bool
         An existing GeoPackage.
     overwrite : bool
         Whether layers already in it may be replaced by layers of the same name.
+    outputs : OutputSet, optional
+        Add the layers when this set is committed, together with its other outputs.
 
     Yields
     ------
@@ -211,33 +239,50 @@ def existing_geopackage_copy(target: str | Path, *, overwrite: bool
     check : callable
         ``check(names)`` raises :class:`OutputExistsError` for a name that is
         already a layer of ``target`` (unless ``overwrite``); call it before
-        writing those layers.
+        writing those layers. The layers named are the ones added.
 
     Raises
     ------
     OutputError
-        If ``target`` is not an existing GeoPackage or cannot be copied or replaced.
+        If ``target`` is not an existing GeoPackage, cannot be copied or written,
+        or another program holds a write transaction on it for too long.
     """
-    target = Path(target).resolve()  # replace the file a link points to, not the link
-    existing = {name.lower(): name for name in _existing_layers(target)}
+    target = Path(target).resolve()  # write the file a link points to
+    initial = _existing_layers(target)
+    first = _layer_check(target, initial, overwrite)
+    known = {name.lower() for name in initial}
+    wanted: list[str] = []
 
     def check(names: Iterable[str]) -> None:
-        for name in names:
-            taken = existing.get(name.lower())
-            if taken is not None and taken != name:  # SQLite table names ignore case
-                raise OutputExistsError(
-                    f"{target}:{taken}", f"differs from gisrun's layer {name!r} only in case",
-                    "rename that layer or choose another GeoPackage")
-            if taken is not None and not overwrite:
-                raise OutputExistsError(
-                    f"{target}:{existing[name.lower()]}", "is already a layer of this GeoPackage",
-                    "pass --overwrite to replace it (other layers are kept), or choose another "
-                    "GeoPackage")
+        names = list(names)
+        first(names)
+        wanted.extend(n for n in names if n not in wanted)
 
-    with atomic_target(target, overwrite=True) as tmp:
+    def merge() -> None:  # refuse a name another program took while the run went on
+        appeared = [n for n in wanted if n.lower() not in known]
+        merge_layers(tmp, target, wanted,
+                     lambda now: _layer_check(target, now, overwrite)(appeared))
+
+    with _one_set(outputs) as staged:
+        tmp = staged.scratch(target)
         _copy_geopackage(target, tmp)
-        yield tmp, check
-        shutil.copymode(target, tmp)
+        try:
+            yield tmp, check
+        except OSError as err:
+            if isinstance(err, OutputError):
+                raise
+            raise OutputError(str(target), f"could not be written ({err.strerror or err})",
+                              "check free disk space and permissions, then run again") from None
+        staged.add_step(merge, target)
+
+
+@contextmanager
+def _one_set(outputs: OutputSet | None) -> Iterator[OutputSet]:
+    if outputs is not None:
+        yield outputs
+        return
+    with output_set() as own:
+        yield own
 
 
 def _copy_geopackage(src: Path, dst: Path) -> None:
@@ -252,17 +297,19 @@ def _copy_geopackage(src: Path, dst: Path) -> None:
 
 
 @contextmanager
-def open_output(target: str | Path, *, into_existing: bool, overwrite: bool
-                ) -> Iterator[tuple[Path, LayerCheck]]:
+def open_output(target: str | Path, *, into_existing: bool, overwrite: bool,
+                outputs: OutputSet | None = None) -> Iterator[tuple[Path, LayerCheck]]:
     """A new GeoPackage (:func:`atomic_target`) or a copy of an existing one to add layers to.
 
     Yields the temporary path and a layer-name check (a no-op for a new file).
+    With ``outputs`` the GeoPackage is moved in (or its layers added) by that
+    set's commit, together with the set's other outputs.
     """
     if into_existing:
-        with existing_geopackage_copy(target, overwrite=overwrite) as opened:
+        with existing_geopackage_copy(target, overwrite=overwrite, outputs=outputs) as opened:
             yield opened
         return
-    with atomic_target(target, overwrite=overwrite) as tmp:
+    with atomic_target(target, overwrite=overwrite, outputs=outputs) as tmp:
         yield tmp, _no_check
 
 

@@ -27,6 +27,7 @@ import pandas as pd
 from .._version import __version__
 from ..errors import OutputError
 from .files import staged_folder
+from .locks import OutputBusyError
 
 __all__ = ["overlay_key", "load_overlay", "save_overlay", "entry_folder"]
 
@@ -89,7 +90,7 @@ def save_overlay(folder: Path, key: str, units: pd.DataFrame, coverage: pd.DataF
             coverage.to_parquet(tmp / "coverage.parquet", index=False)
             (tmp / "notes.json").write_text(json.dumps(list(notes)), encoding="utf-8")
     except OSError as err:  # OutputError is one too
-        if entry.exists():  # another run stored the same entry first
+        if entry.exists() or isinstance(err, OutputBusyError):  # another run stores it
             return entry
         where, problem = ((err.where, f"overlay cache {err.problem}")
                           if isinstance(err, OutputError) else

@@ -16,6 +16,7 @@ import geopandas as gpd
 
 from ..config.project import load_project
 from ..errors import GisrunError, GisrunWarning
+from ..io.files import refuse_inputs_among
 from ..io.raster import ClassRaster
 from ..model import Inputs
 from ..project import Project
@@ -56,6 +57,8 @@ def check_project(path: str | Path) -> tuple[list[str], list[str]]:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
         project = _attempt(problems, load_project, path)
+        if project is not None:  # the output a run would write must not be an input
+            _attempt(problems, refuse_inputs_among, [project.output], project.input_files())
         later = _check_inputs(project, problems) if project is not None else []
     notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     return problems, list(dict.fromkeys([*notes, *later]))

@@ -5,21 +5,28 @@ not keep per-unit step arrays, see
 :data:`gisrun.workflow.pipeline.KEEP_STEP_ARRAYS_BELOW`) appends each chunk's
 excess series and unit rows to a temporary GeoPackage as it goes, so memory
 stays within the budget, and ranks its units inside the file; then the other
-layers are written one at a time and the file is moved into place. A small run
-keeps everything and writes it the same way at the end.
+layers are written one at a time and the file is moved into place (with the
+extras folder, when the caller stages one). A small run keeps everything and
+writes it the same way at the end.
 """
 
 from __future__ import annotations
 
 import dataclasses
+import os
+from collections.abc import Callable, Iterable
 from pathlib import Path
 
 import pandas as pd
 import pyogrio
 
 from ..config.project import load_project
+from ..errors import OutputError
 from ..io import geopackage
-from ..model import RunResult
+from ..io.commit import OutputSet, output_set
+from ..io.files import refuse_inputs_among
+from ..io.geopackage import LayerCheck
+from ..model import Inputs, RunResult
 from ..present.layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
 from ..present.report import REPORT_TOP
 from ..project import Project
@@ -27,7 +34,10 @@ from ..units import present_frame, si_frame
 from .inputs import read_inputs
 from .pipeline import KEEP_STEP_ARRAYS_BELOW, Progress, run
 
-__all__ = ["run_and_write"]
+__all__ = ["run_and_write", "Extras"]
+
+#: ``extras(result, gpkg_being_built, outputs)``: stage more outputs to move in with the GeoPackage.
+Extras = Callable[[RunResult, Path, OutputSet], object]
 
 
 def run_and_write(
@@ -40,6 +50,7 @@ def run_and_write(
     scheduler: str | None = None,
     into: str | Path | None = None,
     cells: bool = True,
+    extras: Extras | None = None,
 ) -> tuple[RunResult, Path]:
     """Run a project and write its GeoPackage, streaming the rows of a large run.
 
@@ -52,42 +63,89 @@ def run_and_write(
     moved into place only when complete.
 
     With ``into`` the layers are added to that existing GeoPackage instead
-    (a copy is built beside it and replaces it when complete); its other
-    layers are kept as they are, and a layer of the same name is replaced
-    only with ``overwrite``. ``cells`` false skips the cell-level values (no
+    (built in a copy beside it, then added to the file in place in one SQLite
+    transaction, see :mod:`gisrun.io.gpkg_merge`); its other layers, and rows
+    other programs commit meanwhile, are kept as they are, and a layer of the
+    same name is replaced only with ``overwrite``. ``cells`` false skips the cell-level values (no
     rasters will be written from this result).
+
+    ``extras(result, gpkg_being_built, outputs)`` is called once the layers are
+    written and before anything is moved into place; what it stages in
+    ``outputs`` (the ``<output>_files/`` folder) is moved in together with the
+    GeoPackage, so the two change together or not at all. An output that is an
+    input of the run is refused before any work.
 
     Raises
     ------
     OutputExistsError
         If the output (or, with ``into``, a layer name) exists and ``overwrite`` is false.
+    OutputBusyError
+        If another gisrun run is writing the same output.
+    OutputError
+        If the output is an input of the run, or cannot be written.
     """
     if not isinstance(project, Project):
         project = load_project(project)
+    target = Path(into or output or project.output)
+    if into is None:
+        refuse_inputs_among([target], project.input_files())
     say = progress or (lambda _: None)
     say("reading inputs")
     inputs = read_inputs(project)
     large = len(inputs.subcatchments) >= KEEP_STEP_ARRAYS_BELOW
-    target = Path(into or output or project.output)
-    opened = geopackage.open_output(target, into_existing=into is not None, overwrite=overwrite)
-    with opened as (tmp, check):
-        if into is not None:  # refuse a taken layer name before the work, not after it
-            check(["excess_series", "run_info", *UNIT_LAYERS,
-                   *(storm_layer_name(h.name) for h in inputs.storms)])
-        sinks = _Sinks(tmp, project) if large else None
-        result = run(project, inputs=inputs, progress=progress, workers=workers,
-                     scheduler=scheduler, series_sink=sinks and sinks.series,
-                     unit_sink=sinks and sinks.units, keep_loss=not large, cells=cells)
-        say("writing outputs")
-        if result.parameters is None:  # unit rows streamed: rank them inside the file
-            result = dataclasses.replace(result, unit_ranking_top=_rank_units_in_file(tmp,
-                                                                                      result))
-        skip = ("excess_series",) if large else ()
-        builders = layer_builders(result, skip=skip)
-        check(list(builders))
-        for name, make in builders.items():  # one large layer in memory at a time
-            geopackage.write_layers_into(tmp, {name: make()})
+    names = ["excess_series", "run_info", *UNIT_LAYERS,
+             *(storm_layer_name(h.name) for h in inputs.storms)]
+    with output_set() as outputs:  # the GeoPackage and the extras are moved in together
+        opened = geopackage.open_output(target, into_existing=into is not None,
+                                        overwrite=overwrite, outputs=outputs)
+        with opened as (tmp, check):
+            if into is not None:
+                check = _keeping_the_subcatchments(project, Path(into), check)
+            check(names)  # refuse a taken layer name before the work, not after it
+            result = _run_into(project, inputs, tmp, check, large=large, progress=progress,
+                               workers=workers, scheduler=scheduler, cells=cells)
+        if extras is not None:
+            extras(result, tmp, outputs)
+        say("moving outputs into place")
     return result, target
+
+
+def _run_into(project: Project, inputs: Inputs, tmp: Path, check: LayerCheck, *, large: bool,
+              progress: Progress | None, workers: int | None, scheduler: str | None,
+              cells: bool) -> RunResult:
+    """Run and write every layer into the GeoPackage being built at ``tmp``."""
+    sinks = _Sinks(tmp, project) if large else None
+    result = run(project, inputs=inputs, progress=progress, workers=workers,
+                 scheduler=scheduler, series_sink=sinks and sinks.series,
+                 unit_sink=sinks and sinks.units, keep_loss=not large, cells=cells)
+    if progress is not None:
+        progress("writing outputs")
+    if result.parameters is None:  # unit rows streamed: rank them inside the file
+        result = dataclasses.replace(result, unit_ranking_top=_rank_units_in_file(tmp, result))
+    builders = layer_builders(result, skip=("excess_series",) if large else ())
+    check(list(builders))
+    for name, make in builders.items():  # one large layer in memory at a time
+        geopackage.write_layers_into(tmp, {name: make()})
+    return result
+
+
+def _keeping_the_subcatchments(project: Project, into: Path, check: LayerCheck) -> LayerCheck:
+    """Writing into the subcatchment GeoPackage is fine unless a layer would replace theirs."""
+    source = project.subcatchments
+    try:
+        same = os.path.samefile(into, source.path)
+    except OSError:
+        same = False
+    theirs = (source.layer or "").lower() if same else None
+
+    def guarded(names: Iterable[str]) -> None:
+        names = list(names)
+        if theirs is not None and theirs in {n.lower() for n in names}:
+            raise OutputError(f"{into}:{source.layer}", "is the subcatchment layer of this run "
+                              "and gisrun writes a layer of that name", "choose another "
+                              "GeoPackage, or rename the subcatchment layer")
+        check(names)
+    return guarded
 
 
 class _Sinks:

@@ -33,10 +33,11 @@ import geopandas as gpd
 import pandas as pd
 
 from ..errors import VectorError
-from ..io.files import atomic_target, staged_folder
+from ..io.commit import OutputSet
+from ..io.files import atomic_target, refuse_inputs_among, staged_folder
 from ..io.geopackage import write_csv
 from ..model import RunResult
-from ..present.layers import model_inputs_layer, series_layer
+from ..present.layers import layer_name, model_inputs_layer, series_layer
 from .figures import write_figures, write_report
 from .rasters import write_cell_rasters
 
@@ -104,15 +105,23 @@ def check_plot_ids(subcatchments: gpd.GeoDataFrame, named: Sequence[str]) -> lis
     Raises
     ------
     VectorError
-        Naming the first id that is not in the layer.
+        Naming the first id that is not in the layer, or two ids whose plots
+        would get the same file name (``S-1`` and ``s_1``).
     """
     known = set(subcatchments["subcatchment_id"].astype(str))
+    files: dict[str, str] = {}
     for sid in named:
         if str(sid) not in known:
             near = sorted(known)[:3]
             raise VectorError(f"subcatchment {sid!r}", "is not in the subcatchment layer",
                               f"name an existing id (e.g. {', '.join(near)})")
-    return [str(s) for s in named]
+        stem = layer_name(str(sid))
+        if files.get(stem, str(sid)) != str(sid):
+            raise VectorError(f"--plot {sid}", f"would be written to the same file as --plot "
+                              f"{files[stem]} (infiltration_..._{stem}.png)",
+                              "plot one of the two in another run")
+        files[stem] = str(sid)
+    return list(dict.fromkeys(str(s) for s in named))
 
 
 def write_deliverables(result: RunResult, folder: Path, *,
@@ -182,20 +191,28 @@ def _copy_table_to_csv(gpkg: Path, table: str, target: Path, batch_rows: int = 5
 
 def write_extras(result: RunResult, gpkg: str | Path, *, overwrite: bool = False,
                  options: ExtrasOptions = ExtrasOptions(),
-                 progress: Progress | None = None) -> Deliverables:
-    """Write ``<gpkg stem>_files/`` beside an already written GeoPackage, atomically.
+                 progress: Progress | None = None, outputs: OutputSet | None = None,
+                 final_gpkg: str | Path | None = None) -> Deliverables:
+    """Write ``<gpkg stem>_files/`` beside the GeoPackage, atomically.
 
     The folder is built in a temporary folder beside it and moved into place
-    only when complete; an old folder is replaced only with ``overwrite``.
+    only when complete; an old folder is replaced only with ``overwrite``. With
+    ``outputs`` (see :func:`gisrun.run_and_write`'s ``extras``) the folder is
+    staged in that set and moved in together with the GeoPackage; ``gpkg`` is
+    then the GeoPackage being built and ``final_gpkg`` where it goes. A folder
+    that holds an input of the run is refused before anything is written.
 
     Raises
     ------
     OutputExistsError
         If the folder exists and ``overwrite`` is false.
+    OutputError
+        If the folder holds an input of the run.
     """
     gpkg = Path(gpkg)
-    folder = extras_folder(gpkg)
-    with staged_folder(folder, overwrite=overwrite) as tmp:
+    folder = extras_folder(final_gpkg if final_gpkg is not None else gpkg)
+    refuse_inputs_among([folder], result.project.input_files())
+    with staged_folder(folder, overwrite=overwrite, outputs=outputs) as tmp:
         made = write_deliverables(result, tmp, options=options, gpkg=gpkg, progress=progress)
     if any(s.loss is None for s in result.storms):
         made.notes.append("infiltration plots skipped: the run did not keep per-unit step arrays")

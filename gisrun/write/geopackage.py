@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..io.files import refuse_inputs_among
 from ..io.geopackage import write_geopackage
 from ..model import RunResult
 from ..present.layers import build_layers
@@ -30,7 +31,7 @@ def write_outputs(
     OutputExistsError
         If the output exists and ``overwrite`` is false.
     OutputError
-        If it cannot be written; nothing is left half-written.
+        If it cannot be written (nothing is left half-written), or it is an input of the run.
     ValueError
         If the run streamed its rows elsewhere (``run(unit_sink=..., series_sink=...)``):
         they are not in ``result`` to write; :func:`gisrun.run_and_write` writes such runs.
@@ -39,4 +40,5 @@ def write_outputs(
         raise ValueError("this run streamed its rows into an output and no longer holds "
                          "them; write large runs with run_and_write")
     target = Path(output) if output else result.project.output
+    refuse_inputs_among([target], result.project.input_files())
     return write_geopackage(target, build_layers(result), overwrite=overwrite)
