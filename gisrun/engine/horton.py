@@ -33,8 +33,9 @@ The state is kept as the decay factor :math:`e = e^{-k t_e}`, so the capacity is
 Recovery (optional, ``horton_recovery_per_s`` :math:`k_r > 0`): in a step with
 no supply the capacity relaxes back toward :math:`f_0`,
 :math:`f \leftarrow f_0 - (f_0 - f)\,e^{-k_r \Delta t}` (i.e.
-:math:`1 - e \leftarrow (1 - e)\,e^{-k_r \Delta t}`); a first-order drying
-recovery is common practice in continuous simulation. Without recovery the
+:math:`1 - e \leftarrow (1 - e)\,e^{-k_r \Delta t}`), a first-order recovery at the rate
+:math:`k_r` (the shipped rates per hour by soil group are gisrun's choice, see the
+``horton_hsg`` table). Without recovery the
 capacity does not change during dry spells.
 
 Water that does not infiltrate fills depression storage; the rest is excess.
@@ -116,7 +117,7 @@ class Params:
     decay_per_s : ndarray
         Decay constant ``k``, 1/s.
     recovery_per_s : ndarray
-        Recovery constant during dry steps, 1/s (0 = none).
+        Recovery rate of the capacity in steps without supply, 1/s (0 = none).
     depression_storage_m : ndarray
         Surface storage filled before runoff, m.
     """
