@@ -70,7 +70,6 @@ __all__ = [
     "NAME",
     "ORDER",
     "PARAMETERS",
-    "MODEL_INPUTS",
     "Params",
     "State",
     "initial_state",
@@ -86,20 +85,12 @@ ORDER = 20
 PARAMETERS: tuple[Parameter, ...] = (
     DEPRESSION_STORAGE,
     Parameter("horton_f0_m_per_s", "m/s", default="group_horton"),
-    Parameter("horton_fc_m_per_s", "m/s", default="group_horton"),
+    Parameter("horton_fc_m_per_s", "m/s", default="group_horton", equivalent=True,
+              at_most="horton_f0_m_per_s"),
     Parameter("horton_decay_per_s", "1/s", default="group_horton", composite="pervious_area"),
     Parameter("horton_recovery_per_s", "1/s", default="group_horton_recovery", missing=0.0,
               composite="pervious_area"),
 )
-#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
-MODEL_INPUTS: dict[str, tuple[str, str]] = {
-    "pervious_horton_initial_capacity_m_per_s": ("horton_f0_m_per_s", "pervious"),
-    "pervious_horton_final_capacity_m_per_s": ("horton_fc_m_per_s", "pervious"),
-    "pervious_horton_decay_per_s": ("horton_decay_per_s", "pervious"),
-    "pervious_horton_recovery_per_s": ("horton_recovery_per_s", "pervious"),
-    "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
-    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-}
 _P = {p.column: p for p in PARAMETERS}
 
 _RTOL = 1e-10
