@@ -39,7 +39,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from ..engine import ENGINES, Parameter
+from ..engine import ENGINES, PARAMETERS, Parameter
 from .inverse import (
     ABOVE_REACH,
     BELOW_REACH,
@@ -65,6 +65,8 @@ ALL_STORMS = "all storms"
 #: The parameter row giving the impervious share of the modelled area.
 IMPERVIOUS_FRACTION = "impervious_fraction"
 NO_PERVIOUS_AREA = "no pervious area: nothing to solve for"
+#: Note of an equivalent set whose bounding parameter was lowered too (see :func:`_equivalent`).
+LOWERED = "lowest value gives too little runoff: its upper bound lowered too"
 #: Columns of the lumped parameter table (SI), in order.
 LUMPED_COLUMNS = ("subcatchment_id", "loss_method", "basis", "storm", "surface", "parameter",
                   "value", "runoff_depth_m", "lumped_runoff_depth_m", "lumped_difference_m",
@@ -150,17 +152,17 @@ def _method_sets(runner: LumpedRunner, targets: FloatArray, names: list[str], *,
     solved = next((p for p in ENGINES[method].PARAMETERS if p.equivalent), None)
     n_storms, n = targets.shape
     base_notes = np.where(u.mixed, f"parts use several loss methods; lumped as {method}", "")
-    aw = np.broadcast_to(u.pervious[solved.column].to_numpy(float) if solved else np.zeros(n),
-                         (n_storms, n))
-    sets = [("area_weighted", aw, np.full((n_storms, n), REPRODUCED, dtype=object))]
+    none = np.full((n_storms, n), REPRODUCED, dtype=object)
+    # each set: (basis, pervious values that differ from the area-weighted ones, notes)
+    sets: list[tuple[str, dict[str, FloatArray], NDArray[np.object_]]] = [
+        ("area_weighted", {}, none)]
     if solve and solved is not None:
         eq, notes = _equivalent(runner, solved, targets)
-        fit = _fitted(runner, solved, targets, eq)
+        fit = _fitted(runner, solved, targets, eq[solved.column])
         sets += [("equivalent", eq, notes),
-                 ("fitted", np.broadcast_to(fit, (n_storms, n)),
-                  np.full((n_storms, n), REPRODUCED, dtype=object))]
-    lumped = _lumped_depth(runner, solved, np.stack([values for _, values, _ in sets]))
-    return [_long(runner, solved, basis, names, values, depth, targets,
+                 ("fitted", {solved.column: np.broadcast_to(fit, (n_storms, n))}, none)]
+    lumped = _lumped_depth(runner, [values for _, values, _ in sets], n_storms)
+    return [_long(runner, basis, names, values, depth, targets,
                   _joined(notes, base_notes, u.pervious_area_m2 > 0))
             for (basis, values, notes), depth in zip(sets, lumped, strict=True)]
 
@@ -172,20 +174,27 @@ def _joined(notes: NDArray[np.object_], base: NDArray[np.object_],
     return np.where(both, out + "; " + base[None, :], np.where(out == "", base[None, :], out))
 
 
-def _lumped_depth(runner: LumpedRunner, solved: Parameter | None, values: FloatArray
+def _lumped_depth(runner: LumpedRunner, sets: list[dict[str, FloatArray]], n_storms: int
                   ) -> FloatArray:
     """Subcatchment runoff (sets, storms, subs) of the lumped units, in one engine run.
 
-    ``values`` (sets, storms, subs) are the solved parameter's values of each set.
+    Each set maps pervious columns to their values (storms, subs); NaN keeps the
+    area-weighted value.
     """
-    n_sets, n_storms, n = values.shape
-    subs = np.tile(np.arange(n), n_sets * n_storms)
-    storms = np.tile(np.repeat(np.arange(n_storms), n), n_sets)
+    n = len(runner.units.sub_ids)
+    subs = np.tile(np.arange(n), len(sets) * n_storms)
+    storms = np.tile(np.repeat(np.arange(n_storms), n), len(sets))
     frame = runner.units.pervious.iloc[subs].reset_index(drop=True)
-    if solved is not None:
-        frame[solved.column] = values.reshape(-1)
+    for column in dict.fromkeys(c for values in sets for c in values):
+        merged = frame[column].to_numpy(dtype=np.float64).copy()
+        for i, values in enumerate(sets):
+            if column in values:
+                block = slice(i * n_storms * n, (i + 1) * n_storms * n)
+                given = np.asarray(values[column], dtype=np.float64).reshape(-1)
+                merged[block] = np.where(np.isnan(given), merged[block], given)
+        frame[column] = merged
     depth = runner.run(frame, subs, storms)
-    return runner.whole_depth(depth, subs, storms).reshape(n_sets, n_storms, n)
+    return runner.whole_depth(depth, subs, storms).reshape(len(sets), n_storms, n)
 
 
 def _search(runner: LumpedRunner, solved: Parameter, subs: IntArray) -> Search:
@@ -211,12 +220,17 @@ def _pervious_targets(runner: LumpedRunner, targets: FloatArray) -> FloatArray:
 
 
 def _equivalent(runner: LumpedRunner, solved: Parameter, targets: FloatArray
-                ) -> tuple[FloatArray, NDArray[np.object_]]:
-    """Per storm and subcatchment, the equivalent value and its note."""
+                ) -> tuple[dict[str, FloatArray], NDArray[np.object_]]:
+    """Per storm and subcatchment, the equivalent value(s) and a note.
+
+    Where even the solved parameter's lowest value gives too little runoff and it
+    is bounded by another parameter (``at_most``: Horton ``fc <= f0``), that one is
+    lowered too, with the solved one at its lowest (:data:`LOWERED`).
+    """
     u = runner.units
     n_storms, n = targets.shape
     goal = _pervious_targets(runner, targets)
-    values = np.full((n_storms, n), np.nan)
+    values = {solved.column: np.full((n_storms, n), np.nan)}
     notes = np.full((n_storms, n), REPRODUCED, dtype=object)
     notes[runner.rain_total <= 0] = NO_RAIN
     storms, subs = np.nonzero((runner.rain_total > 0) & (u.pervious_area_m2 > 0)[None, :])
@@ -227,8 +241,17 @@ def _equivalent(runner: LumpedRunner, solved: Parameter, targets: FloatArray
         found, said = _closed_form(inverse, runner, goal[storms, subs], subs, storms)
     else:
         found, said = _searched(runner, solved, goal[storms, subs], subs, storms)
-    values[storms, subs] = found
+    values[solved.column][storms, subs] = found
     notes[storms, subs] = said
+    above = np.flatnonzero(np.asarray(said, dtype=object) == ABOVE_REACH)
+    if solved.at_most is not None and above.size:
+        bound = PARAMETERS[solved.at_most]
+        s, k = subs[above], storms[above]
+        lowered, said = _searched(runner, bound, goal[k, s], s, k,
+                                  fixed=(solved.column, found[above]))
+        values[bound.column] = np.full((n_storms, n), np.nan)
+        values[bound.column][k, s] = lowered
+        notes[k, s] = [LOWERED if note == REPRODUCED else note for note in said]
     return values, notes
 
 
@@ -242,11 +265,22 @@ def _closed_form(inverse: Any, runner: LumpedRunner, goal: FloatArray, subs: Int
 
 
 def _searched(runner: LumpedRunner, solved: Parameter, goal: FloatArray, subs: IntArray,
-              storms: IntArray) -> tuple[FloatArray, list[str]]:
+              storms: IntArray, fixed: tuple[str, FloatArray] | None = None
+              ) -> tuple[FloatArray, list[str]]:
+    """Root search of ``solved`` for each (subcatchment, storm) problem.
+
+    ``fixed`` (column, values per problem) holds another column at given values
+    while ``solved`` is searched below its area-weighted value.
+    """
     search = _search(runner, solved, subs)
+    if fixed is not None:  # lowering a bound: search below its area-weighted value only
+        aw = runner.units.pervious[solved.column].to_numpy(float)[subs]
+        search = Search(search.low, np.maximum(aw, search.low), log=search.log)
 
     def depth(values: FloatArray, which: IntArray) -> FloatArray:
-        return runner.pervious_depth(solved.column, values, subs[which], storms[which])
+        extra = None if fixed is None else (fixed[0], fixed[1][which])
+        return runner.pervious_depth(solved.column, values, subs[which], storms[which],
+                                     extra=extra)
 
     values, notes = solve_for_depth(depth, goal, search)
     return values, notes
@@ -275,20 +309,18 @@ def _fitted(runner: LumpedRunner, solved: Parameter, targets: FloatArray, eq: Fl
     return out
 
 
-def _long(runner: LumpedRunner, solved: Parameter | None, basis: str, names: list[str],
-          values: FloatArray, lumped: FloatArray, targets: FloatArray,
-          notes: NDArray[np.object_]) -> pd.DataFrame:
+def _long(runner: LumpedRunner, basis: str, names: list[str], values: dict[str, FloatArray],
+          lumped: FloatArray, targets: FloatArray, notes: NDArray[np.object_]) -> pd.DataFrame:
     """One set in long form: a row per subcatchment, storm and parameter."""
     u = runner.units
     n_storms, n = targets.shape
     labels = list(names)
     diff = lumped - targets
-    blocks = {"value": values, "runoff": targets, "lumped": lumped, "diff": diff,
-              "note": notes}
+    blocks = {"runoff": targets, "lumped": lumped, "diff": diff, "note": notes}
     if basis != "equivalent":  # one set for every storm: its values once, the RMS difference
         labels.append(ALL_STORMS)
-        blocks = {"value": np.vstack([values, values[:1]]),
-                  "runoff": np.vstack([targets, np.full((1, n), np.nan)]),
+        values = {c: np.vstack([v, v[:1]]) for c, v in values.items()}
+        blocks = {"runoff": np.vstack([targets, np.full((1, n), np.nan)]),
                   "lumped": np.vstack([lumped, np.full((1, n), np.nan)]),
                   "diff": np.vstack([diff, np.sqrt(np.mean(diff * diff, axis=0))[None, :]]),
                   "note": np.vstack([notes, _worst_note(notes)[None, :]])}
@@ -298,7 +330,7 @@ def _long(runner: LumpedRunner, solved: Parameter | None, basis: str, names: lis
         frames.append(pd.DataFrame({
             "subcatchment_id": np.tile(u.sub_ids, k), "storm": np.repeat(labels, n),
             "surface": surface, "parameter": IMPERVIOUS_FRACTION if p is None else p.column,
-            "value": _parameter_values(u, surface, p, solved, blocks["value"]).reshape(-1),
+            "value": _parameter_values(u, surface, p, values, (k, n)).reshape(-1),
             "runoff_depth_m": blocks["runoff"].reshape(-1),
             "lumped_runoff_depth_m": blocks["lumped"].reshape(-1),
             "lumped_difference_m": blocks["diff"].reshape(-1),
@@ -314,16 +346,16 @@ def _worst_note(notes: NDArray[np.object_]) -> NDArray[np.object_]:
 
 
 def _parameter_values(u: LumpedUnits, surface: str, p: Parameter | None,
-                      solved: Parameter | None, values: FloatArray) -> FloatArray:
+                      values: dict[str, FloatArray], shape: tuple[int, int]) -> FloatArray:
     """Values (storm rows, subs) of one parameter row of a set; NaN for a surface of no area."""
-    shape = values.shape
     if p is None:
         return np.broadcast_to(u.impervious_fraction, shape)
     area = u.pervious_area_m2 if surface == "pervious" else u.impervious_area_m2
-    if surface == "pervious" and solved is not None and p.column == solved.column:
-        return np.where(area[None, :] > 0, values, np.nan)
     frame = u.pervious if surface == "pervious" else u.impervious
-    return np.broadcast_to(np.where(area > 0, frame[p.column].to_numpy(float), np.nan), shape)
+    out = np.broadcast_to(frame[p.column].to_numpy(float), shape)
+    if surface == "pervious" and p.column in values:
+        out = np.where(np.isnan(values[p.column]), out, values[p.column])
+    return np.where(area[None, :] > 0, out, np.nan)
 
 
 def _ordered(table: pd.DataFrame, units: LumpedUnits, names: list[str]) -> pd.DataFrame:

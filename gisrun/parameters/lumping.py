@@ -213,9 +213,15 @@ class LumpedRunner:
         return out
 
     def pervious_depth(self, column: str, values: FloatArray, subs: IntArray,
-                       storms: IntArray) -> FloatArray:
-        """Runoff depth (m) of the pervious units ``subs`` with ``column`` set to ``values``."""
+                       storms: IntArray, *, extra: tuple[str, FloatArray] | None = None
+                       ) -> FloatArray:
+        """Runoff depth (m) of the pervious units ``subs`` with ``column`` set to ``values``.
+
+        ``extra`` (column, values) sets one more column.
+        """
         frame = self.units.pervious.iloc[subs].reset_index(drop=True)
+        if extra is not None:
+            frame[extra[0]] = extra[1]
         frame[column] = values
         return self.run(frame, subs, storms)
 
