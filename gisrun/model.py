@@ -105,7 +105,7 @@ class RunResult:
 
     ``parameters`` and each storm's ``units`` are None when the run streamed its
     unit rows into the output as it went (large runs); ``unit_count``,
-    ``method_counts``, ``model_inputs`` and ``unit_ranking_top`` are kept either way.
+    ``method_counts``, ``lumped_parameters`` and ``unit_ranking_top`` are kept either way.
     """
 
     project: Project
@@ -115,8 +115,9 @@ class RunResult:
     parameters: pd.DataFrame | None
     parameter_sources: pd.DataFrame
     storms: tuple[StormResult, ...]
-    #: Per-subcatchment parameters for a drainage model (see :mod:`gisrun.present.model_inputs`).
-    model_inputs: pd.DataFrame
+    #: Lumped parameters per subcatchment, storm, method and basis with the runoff they give
+    #: (SI, long form; :mod:`gisrun.parameters.equivalent`); empty when not made.
+    lumped_parameters: pd.DataFrame
     #: Units (soil x cover x surface parts) that were run, and how many per loss method.
     unit_count: int
     method_counts: Mapping[str, int]

@@ -6,8 +6,8 @@ an unknown one gets the hint from :func:`did_you_mean`, and :func:`choose` does 
 
 The registries of the project file's fixed choices live here as :class:`Choices`
 (:data:`NODATA_RULES`, :data:`COMBINE_RULES`, :data:`DUAL_GROUP_CONDITIONS`,
-:data:`UNIT_SYSTEMS`). Choices that belong to a computing package have their registry
-there and are read from it: loss methods ``gisrun.engine.ENGINES``, soil
+:data:`UNIT_SYSTEMS`, :data:`LUMPED_PARAMETER_SETS`). Choices that belong to a computing
+package have their registry there and are read from it: loss methods ``gisrun.engine.ENGINES``, soil
 classifications ``gisrun.parameters.soils.CLASSIFICATIONS``, storm kinds
 ``gisrun.storm.KINDS``.
 
@@ -32,7 +32,8 @@ from .errors import GisrunError, InputError
 from .units import SYSTEMS
 
 __all__ = ["normalize_name", "did_you_mean", "choose", "Choices", "NODATA_RULES",
-           "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS", "CHOICES"]
+           "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS", "LUMPED_PARAMETER_SETS",
+           "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -100,9 +101,14 @@ DUAL_GROUP_CONDITIONS = Choices(("drained", "undrained"), what="dual-group condi
                                 default="undrained")
 #: Unit systems of inputs and outputs (``[project] units``).
 UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
+#: Which lumped parameter sets a run makes (``[method] lumped_parameters``): all three
+#: (root searches), the area-weighted set only, or none.
+LUMPED_PARAMETER_SETS = Choices(("solve", "area_weighted", "off"),
+                                what="lumped parameters choice", default="solve")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
+    "lumped_parameters": LUMPED_PARAMETER_SETS,
 }

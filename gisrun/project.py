@@ -87,6 +87,8 @@ class Project:
     rain_scale_field: str | None = None
     memory_budget_mb: float = 1500.0
     compare_composite: bool = False
+    #: Lumped parameter sets to make: ``"solve"``, ``"area_weighted"`` or ``"off"``.
+    lumped_parameters: str = "solve"
     initial_abstraction_ratio: float = 0.2
     antecedent_condition: int = 2
     overlay_cache: Path | None = None

@@ -276,6 +276,9 @@ CASES: dict[str, Case] = {
         re.compile(r"\[soil\]\.initial_saturation")),
     "negative time step": Case(_toml("time_step_min = 5", "time_step_min = -5"),
                                re.compile(r"time_step_min")),
+    "unknown lumped parameter choice": Case(
+        _toml("[method]", '[method]\nlumped_parameters = "area_weightd"'),
+        re.compile(r"\[method\]\.lumped_parameters.*did you mean 'area_weighted'")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),

@@ -39,7 +39,7 @@ def test_layout_beside_the_geopackage(tiny_result, tmp_path):
     gpkg, made = write_all(tiny_result, tmp_path / "out.gpkg", options=ExtrasOptions())
     folder = tmp_path / "out_files"
     assert made.folder == folder and gpkg.exists()
-    assert (folder / "report.html").exists() and (folder / "model_inputs.csv").exists()
+    assert (folder / "report.html").exists() and (folder / "lumped_green_ampt.csv").exists()
     assert (folder / "excess_series.csv").exists()
     assert sorted(p.name for p in (folder / "rasters").iterdir()) == [
         "runoff_depth_mm_uniform_60mm.tif", "time_to_ponding_min_uniform_60mm.tif"]
@@ -57,7 +57,7 @@ def test_existing_folder_is_kept_without_overwrite_and_replaced_with_it(tiny_res
         write_extras(tiny_result, tmp_path / "out.gpkg", options=FAST)
     assert (folder / "old.txt").exists()
     write_all(tiny_result, tmp_path / "out.gpkg", options=FAST, overwrite=True)
-    assert not (folder / "old.txt").exists() and (folder / "model_inputs.csv").exists()
+    assert not (folder / "old.txt").exists() and (folder / "lumped_green_ampt.csv").exists()
 
 
 def test_failure_midway_leaves_the_old_folder_and_no_partial_one(tiny_result, tmp_path,
@@ -87,7 +87,7 @@ def test_cli_json_lists_the_extras_and_no_progress_on_stdout(tmp_path, capsys):
                                       "--no-maps", "--no-report"])
     assert result.exit_code == 0, result.output
     doc = json.loads(result.stdout)
-    assert Path(doc["extras"]["model_inputs"]).exists()
+    assert Path(doc["extras"]["lumped_parameters"]["green_ampt"]).exists()
     assert Path(doc["extras"]["rasters"]["uniform_60mm"]["runoff"]).exists()
     assert doc["extras"]["report"] is None
     capsys.readouterr()

@@ -1,4 +1,4 @@
-"""Model-input tables: weighting per method, units, and the CSV / GeoPackage round trip."""
+"""Model-input tables: the lumped parameter layer, its wide CSVs, units and round trips."""
 
 from __future__ import annotations
 
@@ -10,44 +10,17 @@ from numpy.testing import assert_allclose
 from pandas.testing import assert_frame_equal
 
 from gisrun import run, write_outputs
+from gisrun.engine import ENGINES
 from gisrun.io.geopackage import write_csv
-from gisrun.present.model_inputs import excess_series_table, model_inputs
+from gisrun.parameters.equivalent import table_parameters
+from gisrun.present.model_inputs import (
+    excess_series_table,
+    lumped_layer,
+    lumped_wide,
+    parameter_name,
+    wide_column,
+)
 from gisrun.units import SI, US
-
-
-def parts(method: str) -> pd.DataFrame:
-    """One subcatchment: 60 m2 pervious in two soils, 40 m2 impervious (hand-checkable)."""
-    return pd.DataFrame({
-        "subcatchment_id": ["S"] * 3, "surface": ["pervious", "pervious", "impervious"],
-        "area_m2": [20.0, 40.0, 40.0], "loss_method": [method] * 3,
-        "ks_m_per_s": [3e-6, 6e-6, 0.0], "suction_head_m": [0.1, 0.2, 0.0],
-        "moisture_deficit": [0.3, 0.2, 0.0], "depression_storage_m": [0.005, 0.005, 0.002],
-        "curve_number": [61.0, 74.0, 98.0], "initial_abstraction_ratio": [0.2] * 3,
-    })
-
-
-def test_green_ampt_uses_pervious_area_weights_and_states_the_impervious_share():
-    out = model_inputs(parts("green_ampt"), ["S"], SI, default_method="green_ampt").iloc[0]
-    assert out["impervious_fraction"] == pytest.approx(0.4)
-    # (20 x 3 + 40 x 6) / 60 um/s = 5 um/s = 18 mm/h
-    assert out["pervious_ks_mm_per_h"] == pytest.approx(5e-6 * 3.6e6)
-    # presented values carry 6 significant digits (gisrun.units.SIGNIFICANT_DIGITS)
-    assert out["pervious_suction_head_mm"] == pytest.approx((20 * 100 + 40 * 200) / 60, rel=5e-6)
-    assert out["impervious_depression_storage_mm"] == pytest.approx(2.0)
-
-
-def test_curve_number_is_the_area_weighted_composite():
-    # TR-55 (1986) ch. 2: composite CN = area-weighted mean, impervious at 98
-    out = model_inputs(parts("curve_number"), ["S"], SI, default_method="green_ampt").iloc[0]
-    assert out["composite_curve_number"] == pytest.approx((20 * 61 + 40 * 74 + 40 * 98) / 100)
-    assert "pervious_ks_mm_per_h" not in out or np.isnan(out["pervious_ks_mm_per_h"])
-
-
-def test_us_units_rename_and_convert():
-    out = model_inputs(parts("green_ampt"), ["S"], US, default_method="green_ampt").iloc[0]
-    # presented values carry 6 significant digits (gisrun.units.SIGNIFICANT_DIGITS)
-    assert out["pervious_ks_in_per_h"] == pytest.approx(5e-6 * 3600 / 0.0254, rel=5e-6)
-    assert out["area_acre"] == pytest.approx(100 / 4046.8564224, rel=5e-6)
 
 
 @pytest.fixture(scope="module")
@@ -55,19 +28,76 @@ def tiny_run(tmp_path_factory):
     from test_cellgrid import tiny_project
 
     folder = tmp_path_factory.mktemp("export")
-    return run(tiny_project(folder / "p")), folder
+    return run(tiny_project(folder / "p", rain_scale=(1.0, 1.5))), folder
+
+
+def test_layer_converts_each_parameter_by_its_declared_unit(tiny_run):
+    result, _ = tiny_run
+    si, us = lumped_layer(result.lumped_parameters, SI), lumped_layer(result.lumped_parameters, US)
+    raw = result.lumped_parameters
+    ks = raw["parameter"].astype(str) == "ks_m_per_s"
+    assert (si.loc[ks, "unit"] == "mm/h").all() and (us.loc[ks, "unit"] == "in/h").all()
+    # presented values carry 6 significant digits (gisrun.units.SIGNIFICANT_DIGITS)
+    assert_allclose(si.loc[ks, "value"], raw.loc[ks, "value"] * 3.6e6, rtol=5e-6)  # m/s -> mm/h
+    assert_allclose(us.loc[ks, "value"], raw.loc[ks, "value"] * 3600 / 0.0254, rtol=5e-6)
+    storage = raw["parameter"].astype(str) == "depression_storage_m"
+    assert_allclose(si.loc[storage, "value"], raw.loc[storage, "value"] * 1000, rtol=5e-6)
+    assert_allclose(us["runoff_depth_in"], raw["runoff_depth_m"] / 0.0254, rtol=5e-6)
+    assert set(si["parameter"]) >= {"impervious_fraction", "ks", "suction_head"}
+
+
+def test_rates_per_second_are_given_per_hour():
+    frame = pd.DataFrame({"subcatchment_id": ["S"], "loss_method": ["horton"],
+                          "basis": ["area_weighted"], "storm": ["s"], "surface": ["pervious"],
+                          "parameter": ["horton_recovery_per_s"], "value": [0.04 / 3600],
+                          "runoff_depth_m": [0.01], "lumped_runoff_depth_m": [0.01],
+                          "lumped_difference_m": [0.0], "note": [""]})
+    row = lumped_layer(frame, SI).iloc[0]
+    assert row["parameter"] == "horton_recovery" and row["unit"] == "1/h"
+    assert row["value"] == pytest.approx(0.04)
+
+
+def test_wide_columns_follow_the_parameter_registry(tiny_run):
+    result, _ = tiny_run
+    layer = lumped_layer(result.lumped_parameters, SI)
+    wide = lumped_wide(layer, "green_ampt")
+    expected = [wide_column(surface, "impervious_fraction" if p is None
+                            else parameter_name(p.column), "-" if p is None else unit)
+                for (surface, p), unit in zip(
+                    table_parameters("green_ampt"),
+                    ["-", "mm/h", "mm", "-", "mm", "mm"], strict=True)]
+    assert list(wide.columns[3:3 + len(expected)]) == expected == [
+        "impervious_fraction", "ks_mm_per_h", "suction_head_mm", "moisture_deficit",
+        "depression_storage_mm", "impervious_depression_storage_mm"]
+    # one row per subcatchment, basis and storm; the long table's values
+    sets = layer[layer["parameter"] == "ks"]
+    assert len(wide) == len(sets)
+    assert_allclose(wide["ks_mm_per_h"], sets["value"], equal_nan=True)
+    assert_allclose(wide["lumped_difference_mm"], sets["lumped_difference_mm"])
+
+
+def test_every_method_declares_one_equivalent_parameter():
+    for name, module in ENGINES.items():
+        solved = [p for p in module.PARAMETERS if p.equivalent]
+        assert len(solved) == 1, name
+        rows = table_parameters(name)
+        assert rows[0] == ("whole", None)
+        assert ("pervious", solved[0]) in rows
 
 
 def test_csv_and_geopackage_round_trip(tiny_run):
     result, folder = tiny_run
-    ids = result.subcatchments["subcatchment_id"].tolist()
-    computed = model_inputs(result.parameters, ids, SI, default_method="green_ampt")
-    back = pd.read_csv(write_csv(folder / "model_inputs.csv", computed),
-                       dtype={"subcatchment_id": str})
-    assert_frame_equal(back, computed, check_dtype=False, rtol=1e-12)
+    layer = lumped_layer(result.lumped_parameters, SI)
+    wide = lumped_wide(layer, "green_ampt")
+    back = pd.read_csv(write_csv(folder / "lumped_green_ampt.csv", wide),
+                       dtype={"subcatchment_id": str, "note": object})
+    back["note"] = back["note"].where(back["note"].notna(), "")
+    assert_frame_equal(back, wide, check_dtype=False, rtol=1e-12)
     gpkg = write_outputs(result, output=folder / "out.gpkg")
-    table = pyogrio.read_dataframe(gpkg, layer="model_inputs", read_geometry=False)
-    assert_frame_equal(table, computed, check_dtype=False, rtol=1e-12)
+    table = pyogrio.read_dataframe(gpkg, layer="lumped_parameters", read_geometry=False)
+    table["note"] = table["note"].where(table["note"].notna(), "")
+    assert_frame_equal(table, layer, check_dtype=False, rtol=1e-12)
+    assert "model_inputs" not in {name for name, _ in pyogrio.list_layers(gpkg)}
 
 
 def test_excess_series_round_trip_and_sums_to_runoff(tiny_run):
@@ -82,3 +112,4 @@ def test_excess_series_round_trip_and_sums_to_runoff(tiny_run):
     step_min = result.project.time_step_s / 60
     assert_allclose(back["excess_intensity_mm_per_h"], back["excess_mm"] / step_min * 60,
                     rtol=1e-5)
+    assert np.isfinite(back["excess_mm"]).all()

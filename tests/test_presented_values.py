@@ -55,8 +55,9 @@ def test_horton_decay_and_recovery_come_out_per_hour(tmp_path):
             table.loc[group, "horton_decay_per_s"] * 3600.0)
         assert pervious.loc[group, "horton_recovery_per_h"] == pytest.approx(
             table.loc[group, "horton_recovery_per_s"] * 3600.0, rel=1e-5)
-    inputs = pyogrio.read_dataframe(gpkg, layer="model_inputs", read_geometry=False)
-    assert "pervious_horton_decay_per_h" in inputs
+    lumped = pyogrio.read_dataframe(gpkg, layer="lumped_parameters", read_geometry=False)
+    decay = lumped[lumped["parameter"] == "horton_decay"]
+    assert len(decay) and (decay["unit"] == "1/h").all()
 
 
 def test_written_layers_hold_rounded_values_and_the_run_keeps_si_unrounded(tmp_path):

@@ -1,7 +1,7 @@
 """One registry per fact: every list of choices and parameters is read from its registry.
 
 The registries: loss methods ``gisrun.engine.ENGINES`` (with each method's declared
-``PARAMETERS`` and ``MODEL_INPUTS``), storm kinds ``gisrun.storm.KINDS``, soil
+``PARAMETERS``), storm kinds ``gisrun.storm.KINDS``, soil
 classifications ``gisrun.parameters.soils.CLASSIFICATIONS`` and the fixed project-file
 choices of ``gisrun.options`` (nodata rule, combine rule, dual-group condition, unit
 system). The checks here are of gisrun's own wiring, not of hydrology: no external source.
@@ -29,7 +29,6 @@ from gisrun.errors import ParameterError, ProjectFileError, StormError, VectorEr
 from gisrun.parameters import composite, overrides
 from gisrun.parameters.defaults import IMPERVIOUS_RULES, RULES
 from gisrun.parameters.soils import CLASSIFICATIONS, valid_soil_labels
-from gisrun.present import model_inputs
 from gisrun.storm import KINDS, StormKey, StormKind, uniform
 from gisrun.units import SI
 from gisrun.workflow.pipeline import run
@@ -46,7 +45,7 @@ REGISTRIES: dict[str, set[str]] = {
 #: Modules that used to repeat a registry's names and now read them from it.
 CONSUMERS = ("config/project.py", "config/storms.py", "parameters/overrides.py",
              "parameters/composite.py", "parameters/assign.py", "parameters/defaults.py",
-             "present/model_inputs.py")
+             "present/model_inputs.py", "parameters/equivalent.py", "parameters/lumping.py")
 
 SPELLINGS = ["Green-Ampt", "green ampt", "green_ampt", " GREEN_AMPT "]
 
@@ -81,7 +80,6 @@ def test_lists_are_the_registries():
         assert column in overrides.accepted_columns()
     assert set(composite.PERVIOUS_AREA_WEIGHTED) == {
         c for c in overrides.PARAMETER_COLUMNS if PARAMETERS[c].composite == "pervious_area"}
-    assert model_inputs.METHOD_COLUMNS == {n: dict(m.MODEL_INPUTS) for n, m in ENGINES.items()}
     assert tuple(project_file.SOIL_CLASSIFICATIONS) == tuple(CLASSIFICATIONS)
     assert STORM_KINDS == (*KINDS, FILE_KIND)
 
@@ -90,8 +88,8 @@ def test_every_method_module_declares_what_the_registry_needs():
     for name, module in ENGINES.items():
         assert module.NAME == name
         columns = {p.column for p in module.PARAMETERS}
-        for _, (column, part) in module.MODEL_INPUTS.items():
-            assert column in columns and part in ("pervious", "impervious", "all")
+        for p in module.PARAMETERS:  # a bound names another parameter of the method
+            assert p.at_most is None or p.at_most in columns
         for p in module.PARAMETERS:  # every default names a rule that exists
             assert p.default in RULES or p.default.startswith(("run_antecedent", "table:"))
             assert not isinstance(p.impervious, str) or p.impervious in IMPERVIOUS_RULES
@@ -227,7 +225,7 @@ def test_a_storm_kind_is_one_registry_entry(monkeypatch):
 def test_a_loss_method_is_found_by_its_module(tmp_path, monkeypatch):
     """A module with a NAME in the engine package joins ENGINES; nothing else lists it."""
     (tmp_path / "steady_loss.py").write_text(
-        "from gisrun.engine.phi_index import (MODEL_INPUTS, PARAMETERS, Params, State,\n"
+        "from gisrun.engine.phi_index import (PARAMETERS, Params, State,\n"
         "                                      initial_state, step)\n"
         'NAME = "steady_loss"\nORDER = 99\n')
     monkeypatch.setattr(engine, "__path__", [*engine.__path__, str(tmp_path)])

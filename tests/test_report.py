@@ -101,3 +101,17 @@ def test_renders_in_headless_chromium(report, tmp_path):
                    check=True, timeout=120, capture_output=True)
     image = mpimg.imread(shot)
     assert len(np.unique(image.reshape(-1, image.shape[-1]), axis=0)) > 20
+
+
+def test_lumping_section_lists_subcatchments_largest_difference_first(report):
+    result, text, _ = report
+    assert 'id="lumping"' in text and "Lumping difference per subcatchment" in text
+    from gisrun.present.lumping import lumping_differences
+
+    diffs = lumping_differences(result)
+    assert len(diffs) == len(result.subcatchments)
+    sizes = diffs["lumped_difference_m"].abs().to_numpy()
+    assert (np.diff(sizes) <= 0).all()  # largest first
+    section = text[text.index('id="lumping"'):text.index('id="mass-balance"')]
+    order = [section.index(f"<td>{sid}</td>") for sid in diffs["subcatchment_id"]]
+    assert order == sorted(order)

@@ -45,6 +45,7 @@ from ..errors import ProjectFileError
 from ..options import (
     COMBINE_RULES,
     DUAL_GROUP_CONDITIONS,
+    LUMPED_PARAMETER_SETS,
     NODATA_RULES,
     UNIT_SYSTEMS,
     Choices,
@@ -85,7 +86,7 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "cover": ("path", "codes", "crs"),
     "nodata": ("rule", "max_fraction"),
     "method": ("name", "combine", "compare_composite", "initial_abstraction_ratio",
-               "antecedent_condition"),
+               "antecedent_condition", "lumped_parameters"),
     "parameters": ("overrides",),
     "rain_scale": ("field",),
 }
@@ -168,6 +169,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         rain_scale_field=read["rain_scale"].string("field", required=False),
         memory_budget_mb=top.number("memory_budget_mb", default=1500.0, low=50.0),
         compare_composite=method.flag("compare_composite", default=False),
+        lumped_parameters=method.choice("lumped_parameters", LUMPED_PARAMETER_SETS),
         initial_abstraction_ratio=_declared(method, "initial_abstraction_ratio"),
         antecedent_condition=int(_declared(method, "antecedent_condition")),
         overlay_cache=top.path("overlay_cache", required=False),

@@ -59,7 +59,7 @@ def _discover() -> dict[str, ModuleType]:
     return {m.NAME: m for m in methods}
 
 
-#: Loss method name -> module with ``NAME``, ``ORDER``, ``PARAMETERS``, ``MODEL_INPUTS``,
+#: Loss method name -> module with ``NAME``, ``ORDER``, ``PARAMETERS``,
 #: ``Params``, ``State``, ``initial_state`` and ``step`` (found by :func:`_discover`:
 #: a new method is a new module, nothing else to register).
 ENGINES: dict[str, ModuleType] = _discover()

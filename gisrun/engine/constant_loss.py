@@ -46,7 +46,6 @@ __all__ = [
     "NAME",
     "ORDER",
     "PARAMETERS",
-    "MODEL_INPUTS",
     "Params",
     "State",
     "initial_state",
@@ -61,15 +60,9 @@ ORDER = 40
 PARAMETERS: tuple[Parameter, ...] = (
     Parameter("initial_loss_m", "m", default="initial_loss",
               impervious="impervious_storage_as_initial_loss"),
-    Parameter("constant_loss_m_per_s", "m/s", default="group_min_infiltration"),
+    Parameter("constant_loss_m_per_s", "m/s", default="group_min_infiltration", equivalent=True),
     DEPRESSION_STORAGE,
 )
-#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
-MODEL_INPUTS: dict[str, tuple[str, str]] = {
-    "pervious_initial_loss_m": ("initial_loss_m", "pervious"),
-    "pervious_constant_loss_rate_m_per_s": ("constant_loss_m_per_s", "pervious"),
-    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-}
 
 
 @dataclass(frozen=True)

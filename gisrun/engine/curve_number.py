@@ -41,6 +41,9 @@ NRCS (2004). National Engineering Handbook Part 630 Hydrology, chapter 10.
 Chow, V. T., Maidment, D. R. and Mays, L. W. (1988). Applied Hydrology,
 McGraw-Hill, section 5.5.
 
+Hawkins, R. H. (1993). Asymptotic determination of runoff curve numbers from
+data. J. Irrig. Drain. Eng. 119(2), 334-345.
+
 Hawkins, R. H., Jiang, R., Woodward, D. E., Hjelmfelt, A. T. and Van Mullem,
 J. A. (2002). Runoff curve number method: examination of the initial
 abstraction ratio. Proc. Second Federal Interagency Hydrologic Modeling Conf.
@@ -70,7 +73,6 @@ __all__ = [
     "NAME",
     "ORDER",
     "PARAMETERS",
-    "MODEL_INPUTS",
     "Params",
     "State",
     "initial_state",
@@ -78,6 +80,8 @@ __all__ = [
     "cumulative_excess_m",
     "adjust_for_antecedent_condition",
     "retention_m",
+    "curve_number_for_runoff",
+    "equivalent_for_runoff",
 ]
 
 NAME = "curve_number"
@@ -88,17 +92,12 @@ ORDER = 30
 #: are run options ([method] in the project file); the ratio may also be overridden per unit.
 PARAMETERS: tuple[Parameter, ...] = (
     Parameter("curve_number", "-", default="cover_curve_number", low_open=True, high=100.0,
-              impervious="impervious_curve_number"),
+              impervious="impervious_curve_number", equivalent=True),
     Parameter("initial_abstraction_ratio", "-", default="run_abstraction_ratio",
               allowed=(0.2, 0.05), missing=0.2, impervious="run_abstraction_ratio"),
     Parameter("antecedent_condition", "-", default="run_antecedent_condition",
               allowed=(1.0, 2.0, 3.0), missing=2.0, overridable=False),
 )
-#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
-MODEL_INPUTS: dict[str, tuple[str, str]] = {
-    "composite_curve_number": ("curve_number", "all"),
-    "initial_abstraction_ratio": ("initial_abstraction_ratio", "all"),
-}
 
 INCH_M = 0.0254
 
@@ -139,6 +138,64 @@ def cumulative_excess_m(rain_total_m: FloatArray, retention: FloatArray,
     net = np.maximum(rain_total_m - abstraction_m, 0.0)
     denom = net + retention
     return np.where(net > 0, net * net / np.where(net > 0, denom, 1.0), 0.0)
+
+
+def curve_number_for_runoff(rain_m: FloatArray, runoff_m: FloatArray, ratio: FloatArray,
+                            condition: FloatArray) -> FloatArray:
+    r"""The AMC II curve number whose runoff from ``rain_m`` is ``runoff_m`` (inverse of eq. 2-1).
+
+    The rainfall-runoff back-calculation of Hawkins (1993): with
+    :math:`I_a = \lambda S`, TR-55 eq. 2-1 is a quadratic in :math:`S` whose
+    smaller root (the one with :math:`I_a \le P`) is, in a form free of cancellation,
+
+    .. math:: S = \frac{2P(P - Q)}{b + \sqrt{4\lambda PQ + (1 - \lambda)^2 Q^2}},
+              \qquad b = 2\lambda P + (1 - \lambda) Q,
+
+    for :math:`\lambda = 0.2` the same as Hawkins' :math:`S = 5\,[P + 2Q -
+    (4Q^2 + 5PQ)^{1/2}]`. For :math:`\lambda = 0.05` the retention is taken back
+    to :math:`S_{0.20} = (S_{0.05}/1.33)^{1/1.15}` (inches), then
+    :math:`CN = 1000/(10 + S_{0.20})` at the antecedent condition, converted back
+    to AMC II by the inverses of Chow et al. (1988) eqs. 5.5.4-5.5.5:
+    :math:`CN_{II} = 10\,CN_I/(4.2 + 0.058\,CN_I)` and
+    :math:`CN_{II} = 10\,CN_{III}/(23 - 0.13\,CN_{III})`.
+
+    ``runoff_m`` of 0 gives the largest curve number that still gives no runoff
+    (:math:`I_a = P`); runoff at or above the rain gives 100; no rain gives NaN
+    (every curve number gives no runoff).
+
+    Hawkins, R. H. (1993). Asymptotic determination of runoff curve numbers from
+    data. J. Irrig. Drain. Eng. 119(2), 334-345.
+
+    Examples
+    --------
+    >>> float(curve_number_for_runoff(3.0 * INCH_M, 1.25 * INCH_M, 0.2, 2).round(9))
+    80.0
+    """
+    p = np.asarray(rain_m, dtype=np.float64)
+    q = np.clip(np.asarray(runoff_m, dtype=np.float64), 0.0, p)
+    small = np.isclose(ratio, 0.05)
+    lam = np.where(small, 0.05, 0.2)
+    b = 2.0 * lam * p + (1.0 - lam) * q
+    root = np.sqrt(4.0 * lam * p * q + (1.0 - lam) ** 2 * q * q)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s_in = 2.0 * p * (p - q) / (b + root) / INCH_M
+        s20_in = np.where(small, (s_in / 1.33) ** (1.0 / 1.15), s_in)
+        cn = 1000.0 / (10.0 + s20_in)
+    cond = np.asarray(condition)
+    cn_ii = np.where(cond == 1, 10.0 * cn / (4.2 + 0.058 * cn),
+                     np.where(cond == 3, 10.0 * cn / (23.0 - 0.13 * cn), cn))
+    return np.where(p > 0, np.minimum(cn_ii, 100.0), np.nan)
+
+
+def equivalent_for_runoff(frame: pd.DataFrame, rain_m: FloatArray,
+                          runoff_m: FloatArray) -> FloatArray:
+    """The equivalent curve number of each row of ``frame`` (its ratio and condition).
+
+    The closed-form inverse the lumped parameters use instead of a root search
+    (:mod:`gisrun.parameters.equivalent`); see :func:`curve_number_for_runoff`.
+    """
+    _, ratio, condition = (p.read(frame) for p in PARAMETERS)
+    return curve_number_for_runoff(rain_m, runoff_m, ratio, condition)
 
 
 @dataclass(frozen=True)

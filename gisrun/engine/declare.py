@@ -6,8 +6,9 @@ engine reads and their ranges (:meth:`Parameter.read`), the override columns
 and their unit aliases (:mod:`gisrun.parameters.overrides`), the range check of
 override values, the composite weighting (:mod:`gisrun.parameters.composite`),
 the shipped defaults (:mod:`gisrun.parameters.defaults`, by ``default``) and
-the model-input columns (``MODEL_INPUTS`` of each method,
-:mod:`gisrun.present.model_inputs`).
+the lumped parameters handed on to other models (:mod:`gisrun.parameters.equivalent`:
+which parameter is solved for, its bounds, the rows of the ``lumped_parameters``
+table and the columns of its per-method CSV files, in declaration order).
 """
 
 from __future__ import annotations
@@ -66,6 +67,13 @@ class Parameter:
         only feed another parameter, e.g. the porosities).
     overridable : bool
         Accepted as an override column.
+    equivalent : bool
+        The one parameter of its method solved for when a subcatchment is lumped
+        into one pervious unit beside its impervious share (its *equivalent*
+        value); the method's other parameters keep their area-weighted values.
+    at_most : str, optional
+        Column of the same unit whose value bounds this one from above (Horton
+        ``fc <= f0``); the search for an equivalent value stays below it.
     """
 
     column: str
@@ -81,6 +89,8 @@ class Parameter:
     missing: float | None = None
     in_frame: bool = True
     overridable: bool = True
+    equivalent: bool = False
+    at_most: str | None = None
 
     def read(self, frame: pd.DataFrame) -> FloatArray:
         """The column from the unit parameter frame as float64, range-checked.

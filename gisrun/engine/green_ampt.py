@@ -85,7 +85,6 @@ __all__ = [
     "NAME",
     "ORDER",
     "PARAMETERS",
-    "MODEL_INPUTS",
     "Params",
     "State",
     "initial_state",
@@ -99,7 +98,8 @@ ORDER = 10
 
 #: Parameters (declarations; see :mod:`gisrun.engine.declare`).
 PARAMETERS: tuple[Parameter, ...] = (
-    Parameter("ks_m_per_s", "m/s", default="texture_green_ampt", positive_when_pervious=True),
+    Parameter("ks_m_per_s", "m/s", default="texture_green_ampt", positive_when_pervious=True,
+              equivalent=True),
     Parameter("suction_head_m", "m", default="texture_green_ampt", composite="pervious_area"),
     Parameter("moisture_deficit", "-", default="moisture_deficit", high=1.0,
               composite="pervious_area"),
@@ -110,14 +110,6 @@ PARAMETERS: tuple[Parameter, ...] = (
     Parameter("total_porosity", "-", default="texture_green_ampt", low_open=True, high=1.0,
               impervious=math.nan, in_frame=False),
 )
-#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
-MODEL_INPUTS: dict[str, tuple[str, str]] = {
-    "pervious_ks_m_per_s": ("ks_m_per_s", "pervious"),
-    "pervious_suction_head_m": ("suction_head_m", "pervious"),
-    "pervious_moisture_deficit": ("moisture_deficit", "pervious"),
-    "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
-    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-}
 _P = {p.column: p for p in PARAMETERS}
 
 #: Relative residual to which the ponded equation is solved.

@@ -33,8 +33,9 @@ The state is kept as the decay factor :math:`e = e^{-k t_e}`, so the capacity is
 Recovery (optional, ``horton_recovery_per_s`` :math:`k_r > 0`): in a step with
 no supply the capacity relaxes back toward :math:`f_0`,
 :math:`f \leftarrow f_0 - (f_0 - f)\,e^{-k_r \Delta t}` (i.e.
-:math:`1 - e \leftarrow (1 - e)\,e^{-k_r \Delta t}`); a first-order drying
-recovery is common practice in continuous simulation. Without recovery the
+:math:`1 - e \leftarrow (1 - e)\,e^{-k_r \Delta t}`), a first-order recovery at the rate
+:math:`k_r` (the shipped rates per hour by soil group are gisrun's choice, see the
+``horton_hsg`` table). Without recovery the
 capacity does not change during dry spells.
 
 Water that does not infiltrate fills depression storage; the rest is excess.
@@ -69,7 +70,6 @@ __all__ = [
     "NAME",
     "ORDER",
     "PARAMETERS",
-    "MODEL_INPUTS",
     "Params",
     "State",
     "initial_state",
@@ -85,20 +85,12 @@ ORDER = 20
 PARAMETERS: tuple[Parameter, ...] = (
     DEPRESSION_STORAGE,
     Parameter("horton_f0_m_per_s", "m/s", default="group_horton"),
-    Parameter("horton_fc_m_per_s", "m/s", default="group_horton"),
+    Parameter("horton_fc_m_per_s", "m/s", default="group_horton", equivalent=True,
+              at_most="horton_f0_m_per_s"),
     Parameter("horton_decay_per_s", "1/s", default="group_horton", composite="pervious_area"),
     Parameter("horton_recovery_per_s", "1/s", default="group_horton_recovery", missing=0.0,
               composite="pervious_area"),
 )
-#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
-MODEL_INPUTS: dict[str, tuple[str, str]] = {
-    "pervious_horton_initial_capacity_m_per_s": ("horton_f0_m_per_s", "pervious"),
-    "pervious_horton_final_capacity_m_per_s": ("horton_fc_m_per_s", "pervious"),
-    "pervious_horton_decay_per_s": ("horton_decay_per_s", "pervious"),
-    "pervious_horton_recovery_per_s": ("horton_recovery_per_s", "pervious"),
-    "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
-    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-}
 _P = {p.column: p for p in PARAMETERS}
 
 _RTOL = 1e-10
@@ -116,7 +108,7 @@ class Params:
     decay_per_s : ndarray
         Decay constant ``k``, 1/s.
     recovery_per_s : ndarray
-        Recovery constant during dry steps, 1/s (0 = none).
+        Recovery rate of the capacity in steps without supply, 1/s (0 = none).
     depression_storage_m : ndarray
         Surface storage filled before runoff, m.
     """

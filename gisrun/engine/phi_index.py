@@ -50,7 +50,6 @@ __all__ = [
     "NAME",
     "ORDER",
     "PARAMETERS",
-    "MODEL_INPUTS",
     "Params",
     "State",
     "initial_state",
@@ -65,15 +64,9 @@ ORDER = 50
 
 #: Parameters (declarations; see :mod:`gisrun.engine.declare`).
 PARAMETERS: tuple[Parameter, ...] = (
-    Parameter("phi_index_m_per_s", "m/s", default="group_min_infiltration"),
+    Parameter("phi_index_m_per_s", "m/s", default="group_min_infiltration", equivalent=True),
     DEPRESSION_STORAGE,
 )
-#: Model-input column (SI) -> (parameter column, the parts it is area-weighted over).
-MODEL_INPUTS: dict[str, tuple[str, str]] = {
-    "pervious_phi_index_m_per_s": ("phi_index_m_per_s", "pervious"),
-    "pervious_depression_storage_m": ("depression_storage_m", "pervious"),
-    "impervious_depression_storage_m": ("depression_storage_m", "impervious"),
-}
 
 
 @dataclass(frozen=True)

@@ -14,7 +14,7 @@ Parameter columns carry their unit in the name: the SI name of the unit
 parameter contract (``ks_m_per_s``, ``suction_head_m``) or the same quantity in
 a published unit (``ks_mm_per_h``, ``ks_cm_per_h``, ``ks_in_per_h``,
 ``suction_head_mm``, ``suction_head_cm``, ``suction_head_in``,
-``depression_storage_mm``, ``horton_decay_per_h``, ``horton_recovery_per_day``
+``depression_storage_mm``, ``horton_decay_per_h``, ``horton_recovery_per_h``
 ...). ``effective_porosity`` and ``total_porosity`` are accepted too: the moisture
 deficit is then recomputed from the effective porosity. A blank cell leaves the
 parameter alone. A ``note`` column is allowed and ignored.

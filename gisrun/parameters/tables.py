@@ -100,8 +100,6 @@ DEFAULT_INITIAL_ABSTRACTION_RATIO = 0.2
 #: Antecedent runoff condition of the tabulated curve numbers (TR-55 1986: II).
 DEFAULT_ANTECEDENT_CONDITION = 2
 
-_SECONDS_PER_DAY = 86400.0
-
 _TITLES: dict[str, str] = {
     "green_ampt_texture": "Green-Ampt parameters by USDA soil texture",
     "hsg_conductivity": "Conductivity classes and minimum infiltration by hydrologic soil group",
@@ -231,7 +229,7 @@ def _horton() -> pd.DataFrame:
             "horton_f0_m_per_s": to_si(raw["f0_in_per_h"].to_numpy(), "in_per_h"),
             "horton_fc_m_per_s": to_si(raw["fc_in_per_h"].to_numpy(), "in_per_h"),
             "horton_decay_per_s": raw["decay_per_h"].to_numpy(float) / 3600.0,
-            "horton_recovery_per_s": raw["recovery_per_day"].to_numpy(float) / _SECONDS_PER_DAY,
+            "horton_recovery_per_s": raw["recovery_per_h"].to_numpy(float) / 3600.0,
         },
         index=raw.index,
     )

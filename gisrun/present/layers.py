@@ -18,9 +18,12 @@ Layers of the output GeoPackage:
 ``ponding_rank_subcatchments``, ``ponding_rank_units``
     Subcatchments and units ordered by time to ponding under each storm
     (earliest first; those that never pond last, rank empty).
-``model_inputs``
-    Per-subcatchment loss parameters of its method, area and impervious share
-    (:func:`gisrun.present.model_inputs.model_inputs`).
+``lumped_parameters``
+    Per subcatchment, loss method, basis (area-weighted, equivalent, fitted) and
+    storm: the parameters of one pervious unit beside the impervious share, the
+    runoff they give and the difference from gisrun's runoff
+    (:func:`gisrun.present.model_inputs.lumped_layer`); left out when the run
+    made none.
 ``run_info``
     What was run: version, time, method, storms, units, input checksums,
     warnings and the caution.
@@ -37,10 +40,11 @@ from .._version import __version__
 from ..aggregate import soil_shares
 from ..model import CAUTION, RunResult, StormResult
 from ..units import UnitSystem, present_frame
+from .model_inputs import lumped_layer
 
 __all__ = [
     "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
-    "model_inputs_layer", "ponding_ranking", "subcatchment_table", "UNIT_LAYERS",
+    "lumped_parameters_layer", "ponding_ranking", "subcatchment_table", "UNIT_LAYERS",
 ]
 
 
@@ -106,11 +110,13 @@ def layer_builders(result: RunResult, *, skip: tuple[str, ...] = ()
         "coverage": lambda: present_frame(result.coverage, system),
         "ponding_rank_subcatchments": lambda: ranking(0),
         "ponding_rank_units": lambda: ranking(1),
-        "model_inputs": lambda: model_inputs_layer(result),
+        "lumped_parameters": lambda: lumped_parameters_layer(result),
         "run_info": lambda: run_info(result),
     })
     if result.parameters is None:  # the unit rows were streamed into the output by the run
         skip = (*skip, *UNIT_LAYERS)
+    if result.lumped_parameters.empty:  # not made ([method] lumped_parameters, composite)
+        skip = (*skip, "lumped_parameters")
     return {name: make for name, make in builders.items() if name not in skip}
 
 
@@ -139,13 +145,13 @@ def _all_storms(result: RunResult, kind: str) -> pd.DataFrame:
     return _storm_first(pd.concat(frames, ignore_index=True))
 
 
-def model_inputs_layer(result: RunResult) -> pd.DataFrame:
-    """Per-subcatchment parameters for a drainage model, in the project's units.
+def lumped_parameters_layer(result: RunResult) -> pd.DataFrame:
+    """The lumped parameter table in the project's units (long form, the canonical one).
 
-    The run keeps them per subcatchment (:attr:`gisrun.model.RunResult.model_inputs`,
-    built by :func:`gisrun.present.model_inputs.model_inputs_si`); this converts them.
+    The run keeps it in SI (:attr:`gisrun.model.RunResult.lumped_parameters`, built
+    by :mod:`gisrun.parameters.equivalent`); this converts it.
     """
-    return present_frame(result.model_inputs, result.project.units)
+    return lumped_layer(result.lumped_parameters, result.project.units)
 
 
 def series_layer(series: pd.DataFrame, storm_name: str, system: UnitSystem) -> pd.DataFrame:

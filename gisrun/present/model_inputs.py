@@ -1,26 +1,24 @@
-"""Model inputs to hand on: per-subcatchment loss parameters and excess-rainfall series.
+"""Model inputs to hand on: lumped parameters per subcatchment and excess-rainfall series.
 
-Compute only (frames in, frames out); :mod:`gisrun.write.extras` writes them
-as CSV and as GeoPackage tables. Columns are our own plain names with units,
-converted to the project's unit system at the end (``_mm``, ``_mm_per_h``,
-``_m2`` for ``units = "si"``).
+Compute only (frames in, frames out); :mod:`gisrun.write.extras` writes them as
+CSV and :mod:`gisrun.present.layers` as GeoPackage tables.
 
-Weighting (per subcatchment, over its soil x cover x surface units)
--------------------------------------------------------------------
-``green_ampt``
-    Area-weighted means over the pervious units of conductivity, suction head,
-    moisture deficit and depression storage; impervious share and the
-    impervious depression storage stated separately (common practice: the
-    impervious part is modelled as a separate, non-infiltrating surface).
-``horton``
-    Area-weighted pervious initial and final capacity, decay and recovery
-    constants and depression storage, plus the impervious share.
-``curve_number``
-    Composite curve number: area-weighted over the whole subcatchment with the
-    impervious parts at their own curve number (TR-55, 1986, ch. 2), and the
-    initial abstraction ratio.
-``constant_loss``, ``phi_index``
-    Area-weighted pervious rates and initial loss, plus the impervious share.
+``lumped_parameters`` (long form, the canonical table)
+    One row per subcatchment, loss method, basis (``area_weighted``,
+    ``equivalent``, ``fitted``), storm (or ``all storms``), surface and
+    parameter: ``value`` with its ``unit``, gisrun's ``runoff_depth``, the
+    ``lumped_runoff_depth`` the set gives run lumped through the same engine,
+    their ``lumped_difference`` (lumped minus gisrun; on ``all storms`` rows the
+    root-mean-square of the storms' differences) and a ``note`` where no value
+    reproduces the runoff. Built by :mod:`gisrun.parameters.equivalent`.
+Wide form, one table per loss method (:func:`lumped_wide`)
+    One row per subcatchment, basis and storm, one column per parameter row of
+    the long table, named from gisrun's parameter registry with the output unit
+    (``ks_mm_per_h``, ``horton_recovery_per_h``, ``impervious_depression_storage_mm``)
+    in declaration order.
+
+Units: depths and rates follow the project's unit system; decay and recovery
+constants are given per hour; dimensionless values have unit ``-``.
 """
 
 from __future__ import annotations
@@ -30,120 +28,116 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..engine import ENGINES
-from ..units import UnitSystem, present_frame
+from ..engine import PARAMETERS
+from ..units import UnitSystem, from_si, present_frame
 
-__all__ = ["METHOD_COLUMNS", "model_inputs", "model_inputs_si", "join_model_inputs",
+__all__ = ["lumped_layer", "lumped_wide", "parameter_name", "output_unit", "wide_column",
            "excess_series_table"]
 
-#: Output column (SI name) -> (unit parameter column, weighting) per loss method: each
-#: method module's ``MODEL_INPUTS`` declaration.
-METHOD_COLUMNS: dict[str, dict[str, tuple[str, str]]] = {
-    name: dict(module.MODEL_INPUTS) for name, module in ENGINES.items()
-}
+#: SI unit of a declared parameter -> (ending of its SI column name, unit-system attribute or
+#: a fixed output unit); dimensionless values keep their name and get unit ``-``.
+_ENDINGS = {"m/s": ("_m_per_s", "rate"), "m": ("_m", "depth"), "1/s": ("_per_s", "per_h"),
+            "-": ("", None)}
+_DIMENSIONLESS = "-"
 
 
-def model_inputs(params: pd.DataFrame, sub_ids: Any, system: UnitSystem,
-                 *, default_method: str) -> pd.DataFrame:
-    """Per-subcatchment loss parameters for each subcatchment's loss method, in ``system`` units.
+def parameter_name(column: str) -> str:
+    """A parameter's name without its unit (``ks_m_per_s`` -> ``ks``).
 
-    :func:`model_inputs_si` followed by the conversion to ``system``.
+    Examples
+    --------
+    >>> parameter_name("horton_recovery_per_s"), parameter_name("curve_number")
+    ('horton_recovery', 'curve_number')
     """
-    return present_frame(model_inputs_si(params, sub_ids, default_method=default_method), system)
+    if column not in PARAMETERS:
+        return column
+    ending = _ENDINGS[PARAMETERS[column].unit][0]
+    return column[: -len(ending)] if ending else column
 
 
-def model_inputs_si(params: pd.DataFrame, sub_ids: Any, *, default_method: str) -> pd.DataFrame:
-    """Per-subcatchment loss parameters for each subcatchment's loss method (SI columns).
+def output_unit(column: str, system: UnitSystem) -> str:
+    """The unit a parameter column is written in (a key of the unit table, or ``-``).
 
-    Parameters
-    ----------
-    params : DataFrame
-        Unit parameters (``subcatchment_id``, ``surface``, ``area_m2``,
-        ``loss_method`` and the SI parameter columns), one row per unit part.
-    sub_ids : array_like
-        Subcatchment ids in output order.
-    default_method : str
-        Method of subcatchments without a ``loss_method`` column.
-
-    Returns
-    -------
-    DataFrame
-        ``subcatchment_id``, ``loss_method``, ``area_m2``, ``impervious_fraction``
-        and the columns of every method present (empty where a subcatchment uses
-        another method), SI. Tables of disjoint sets of subcatchments join with
-        :func:`join_model_inputs`.
+    Examples
+    --------
+    >>> from gisrun.units import SI
+    >>> output_unit("ks_m_per_s", SI), output_unit("horton_decay_per_s", SI)
+    ('mm_per_h', 'per_h')
     """
-    sub_ids = pd.Index(np.asarray(sub_ids, dtype=object))
-    row = sub_ids.get_indexer(params["subcatchment_id"].to_numpy(dtype=object))
-    n = len(sub_ids)
-    area = params["area_m2"].to_numpy(dtype=np.float64)
-    surface = params["surface"].to_numpy()
-    impervious = surface == "impervious"
-    total = np.bincount(row, weights=area, minlength=n)
-    frame = pd.DataFrame({
-        "subcatchment_id": sub_ids.to_numpy(),
-        "loss_method": _first_method(params, row, n, default_method),
-        "area_m2": total,
-        "impervious_fraction": _ratio(np.bincount(row, weights=area * impervious, minlength=n),
-                                      total),
-    })
-    if "impervious_fraction" in params.columns and (surface == "composite").all():
-        frame["impervious_fraction"] = _first(params["impervious_fraction"].to_numpy(float),
-                                              row, n)
-    masks = {"pervious": ~impervious, "impervious": impervious,
-             "all": np.ones_like(impervious)}
-    for method, columns in METHOD_COLUMNS.items():
-        uses = frame["loss_method"].to_numpy() == method
-        if not uses.any():
-            continue
-        for out, (col, weighting) in columns.items():
-            if out in frame.columns:  # shared name (e.g. depression storage): fill its rows
-                target = frame[out].to_numpy(dtype=np.float64).copy()
-            else:
-                target = np.full(n, np.nan)
-            w = area * masks[weighting]
-            weight = np.bincount(row, weights=w, minlength=n)
-            value = _ratio(np.bincount(row, weights=w * params[col].to_numpy(float),
-                                       minlength=n), weight, empty=np.nan)
-            target[uses] = value[uses]
-            frame[out] = target
-    return frame[_model_input_columns(frame.columns)]
+    if column not in PARAMETERS:
+        return _DIMENSIONLESS
+    kind = _ENDINGS[PARAMETERS[column].unit][1]
+    if kind is None:
+        return _DIMENSIONLESS
+    return getattr(system, kind) if kind in ("rate", "depth") else kind
 
 
-def join_model_inputs(tables: list[pd.DataFrame]) -> pd.DataFrame:
-    """Stack :func:`model_inputs_si` tables of disjoint subcatchment sets (e.g. chunks).
+def _label(unit: str) -> str:
+    """``mm_per_h`` -> ``mm/h``, ``per_h`` -> ``1/h``, ``mm`` -> ``mm``."""
+    if unit.startswith("per_"):
+        return "1/" + unit[4:]
+    return unit.replace("_per_", "/")
 
-    The result equals one :func:`model_inputs_si` call over all of them: a
-    method's columns appear when any table has them, empty for the other rows.
+
+def wide_column(surface: str, parameter: str, unit: str) -> str:
+    """The wide-table column of a long-table parameter row.
+
+    Examples
+    --------
+    >>> wide_column("impervious", "depression_storage", "mm")
+    'impervious_depression_storage_mm'
+    >>> wide_column("pervious", "horton_decay", "1/h"), wide_column("whole", "curve_number", "-")
+    ('horton_decay_per_h', 'curve_number')
     """
-    frame = pd.concat(tables, ignore_index=True)
-    return frame[_model_input_columns(frame.columns)]
+    prefix = "impervious_" if surface == "impervious" else ""
+    if unit == _DIMENSIONLESS:
+        return prefix + parameter
+    suffix = "per_" + unit[2:] if unit.startswith("1/") else unit.replace("/", "_per_")
+    return f"{prefix}{parameter}_{suffix}"
 
 
-def _model_input_columns(present: Any) -> list[str]:
-    ordered = ["subcatchment_id", "loss_method", "area_m2", "impervious_fraction"]
-    for method in METHOD_COLUMNS:
-        ordered += [c for c in METHOD_COLUMNS[method] if c in present and c not in ordered]
-    return ordered
+def lumped_layer(table: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
+    """The lumped parameter table in the project's units (the GeoPackage layer).
+
+    ``table`` is :attr:`gisrun.model.RunResult.lumped_parameters` (SI).
+    """
+    columns = table["parameter"].astype(str)
+    units = pd.Series({c: output_unit(c, system) for c in columns.unique()}, dtype=object)
+    out_unit = units.reindex(columns.to_numpy()).to_numpy()
+    value = table["value"].to_numpy(dtype=np.float64).copy()
+    for unit in set(out_unit) - {_DIMENSIONLESS}:
+        rows = out_unit == unit
+        value[rows] = from_si(value[rows], unit)
+    frame = table.assign(parameter=[parameter_name(c) for c in columns], value=value,
+                         unit=[_label(u) for u in out_unit])
+    for column in ("loss_method", "basis", "storm", "surface", "note"):
+        frame[column] = frame[column].astype(str)
+    frame = present_frame(frame, system)
+    order = ["subcatchment_id", "loss_method", "basis", "storm", "surface", "parameter",
+             "value", "unit"]
+    return frame[[*order, *[c for c in frame.columns if c not in order]]]
 
 
-def _ratio(num: np.ndarray, den: np.ndarray, empty: float = 0.0) -> np.ndarray:
-    return np.divide(num, den, out=np.full(len(num), empty), where=den > 0)
+def lumped_wide(layer: pd.DataFrame, method: str) -> pd.DataFrame:
+    """One method's rows of :func:`lumped_layer` as a wide table.
 
-
-def _first(values: np.ndarray, row: np.ndarray, n: int, fill: Any = np.nan) -> np.ndarray:
-    """Each subcatchment's value from its first unit row; ``fill`` where it has none."""
-    out = np.full(n, fill, dtype=values.dtype if values.dtype == object else np.float64)
-    groups, first = np.unique(row, return_index=True)
-    keep = groups >= 0
-    out[groups[keep]] = values[first[keep]]
+    One row per subcatchment, basis and storm (the long table's order); one column
+    per parameter row, named by :func:`wide_column`, in the long table's order;
+    then the runoff columns and the note.
+    """
+    rows = layer[layer["loss_method"] == method]
+    keys = ["subcatchment_id", "basis", "storm"]
+    names = [wide_column(s, p, u) for s, p, u in
+             zip(rows["surface"], rows["parameter"], rows["unit"], strict=True)]
+    rows = rows.assign(column=names)
+    order = list(dict.fromkeys(names))
+    sets = pd.MultiIndex.from_frame(rows[keys].drop_duplicates())
+    wide = rows.set_index([*keys, "column"])["value"].unstack("column").reindex(sets)
+    runoff = [c for c in rows.columns if c.startswith(("runoff_depth", "lumped_"))]
+    rest = rows.drop_duplicates(keys).set_index(keys)[[*runoff, "note"]]
+    out = wide.reindex(columns=order).join(rest).reset_index()
+    out.columns.name = None
     return out
-
-
-def _first_method(params: pd.DataFrame, row: np.ndarray, n: int, default: str) -> np.ndarray:
-    if "loss_method" not in params.columns:
-        return np.full(n, default, dtype=object)
-    return _first(params["loss_method"].to_numpy(dtype=object), row, n, fill=default)
 
 
 def excess_series_table(storms: Any, system: UnitSystem) -> pd.DataFrame:

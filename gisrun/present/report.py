@@ -5,8 +5,8 @@ the file opens offline and can be mailed as one attachment. Sections (their
 ``id`` in brackets): caution [``caution``], inputs [``inputs``], method and
 parameter sources [``method``], storms with a hyetograph figure [``storms``],
 summary table [``summary``], maps and plots [``maps``], ponding-first ranking
-[``ranking``], mass balance [``mass-balance``], warnings [``warnings``] and the
-run's provenance [``provenance``].
+[``ranking``], lumping difference per subcatchment [``lumping``], mass balance
+[``mass-balance``], warnings [``warnings``] and the run's provenance [``provenance``].
 """
 
 from __future__ import annotations
@@ -22,12 +22,13 @@ import pandas as pd
 from ..model import RunResult
 from ..units import present_frame
 from .layers import run_info
+from .lumping import lumping_section
 
 __all__ = ["SECTIONS", "ReportFigures", "build_report"]
 
 #: Section ids in report order.
 SECTIONS = ("caution", "inputs", "method", "storms", "summary", "maps", "ranking",
-            "mass-balance", "warnings", "provenance")
+            "lumping", "mass-balance", "warnings", "provenance")
 
 _STYLE = """
 body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;margin:2em auto;max-width:70em;
@@ -87,6 +88,7 @@ def build_report(result: RunResult, figures: ReportFigures, *, ranking: tuple[pd
         _section("summary", "Summary per storm", _summary(result)),
         _section("maps", "Maps and plots", _maps(figures)),
         _section("ranking", "Which subcatchments pond first", _ranking(result, ranking, top)),
+        _section("lumping", "Lumping difference per subcatchment", lumping_section(result, top)),
         _section("mass-balance", "Mass balance", _mass_balance(result)),
         _section("warnings", "Warnings", _warnings(result)),
         _section("provenance", "Provenance", _provenance(result, files)),

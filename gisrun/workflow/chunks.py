@@ -27,12 +27,12 @@ from ..engine import LossResult
 from ..errors import GisrunWarning
 from ..grid.classes import ClassGrid
 from ..model import Inputs, StormResult
-from ..present.model_inputs import model_inputs_si
 from ..project import Project
 from ..storm import Hyetograph
 from .cells import slim_unit_results
 from .steps import (
     add_composite_comparison,
+    lumped_parameter_table,
     overlay_inputs,
     prepare_parameters,
     rain_scale_for_units,
@@ -200,8 +200,8 @@ class ChunkOutput:
     storm_subcatchments: list[pd.DataFrame]
     storm_units: list[pd.DataFrame]
     storm_series: list[pd.DataFrame]
-    #: Per-subcatchment parameters for a drainage model (SI), from the unit parameters.
-    model_inputs: pd.DataFrame
+    #: Lumped parameters per subcatchment, storm, method and basis (SI, long form).
+    lumped_parameters: pd.DataFrame
     #: Units run, and units per loss method (kept when the unit rows are streamed away).
     unit_count: int
     method_counts: dict[str, int]
@@ -227,6 +227,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         results = _run_storms(project, inputs, params, task.rains, sub_ids)
         if project.compare_composite and project.combine == "units":
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
+        lumped = lumped_parameter_table(project, inputs, params, results, sub_ids)
         cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
     notes = [str(n) for n in (*notes_overlay, *notes_params)]
     notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
@@ -238,7 +239,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         storm_series=[r.series for r in results],
         storm_losses=[r.loss for r in results] if task.keep_loss else [],
         cell_units=cell_units,
-        model_inputs=model_inputs_si(params, sub_ids, default_method=project.method),
+        lumped_parameters=lumped,
         overlay_notes=[str(n) for n in notes_overlay],
         unit_count=len(params),
         method_counts=params["loss_method"].value_counts(sort=False).to_dict(),

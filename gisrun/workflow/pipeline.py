@@ -25,7 +25,6 @@ from ..errors import GisrunWarning
 from ..io.overlay_cache import load_overlay, overlay_key, save_overlay
 from ..model import CellRasters, Inputs, RunResult, StormResult
 from ..present.layers import layer_name, storm_layer_name
-from ..present.model_inputs import join_model_inputs
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
 from .cells import compute_cells
@@ -262,7 +261,7 @@ def _combine(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64],
             pd.concat([o.parameter_sources for o in outputs], ignore_index=True)),
         storms=tuple(_storm(k, h, rains[k], outputs, ordered, kept_units)
                      for k, h in enumerate(inputs.storms)),
-        model_inputs=ordered([join_model_inputs([o.model_inputs for o in outputs])]),
+        lumped_parameters=ordered([o.lumped_parameters for o in outputs]),
         unit_count=sum(o.unit_count for o in outputs),
         method_counts=dict(sorted(counts.items(), key=lambda kv: -kv[1])),
         raster_crs=inputs.soil.crs,

@@ -27,6 +27,7 @@ from ..errors import ParameterError, VectorError
 from ..grid.overlay import compute_unit_areas
 from ..model import Inputs, StormResult
 from ..parameters import assign_parameters, composite_parameters
+from ..parameters.equivalent import LUMPED_COLUMNS, StormRunoff, lumped_parameters
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph
@@ -39,6 +40,7 @@ __all__ = [
     "run_storm",
     "add_composite_comparison",
     "rain_scale_for_units",
+    "lumped_parameter_table",
 ]
 
 
@@ -217,3 +219,25 @@ def rain_scale_for_units(project: Project, inputs: Inputs, params: pd.DataFrame
         )
     by_id = pd.Series(factor.to_numpy(), index=subs["subcatchment_id"])
     return by_id.reindex(params["subcatchment_id"]).to_numpy(dtype=np.float64)
+
+
+def lumped_parameter_table(project: Project, inputs: Inputs, params: pd.DataFrame,
+                           results: list[StormResult], sub_ids: NDArray[np.object_]
+                           ) -> pd.DataFrame:
+    """Lumped parameters of these subcatchments beside the runoff they give (SI, long form).
+
+    Made as ``[method] lumped_parameters`` asks (``"solve"``: area-weighted,
+    equivalent and fitted sets; ``"area_weighted"``: that set only; ``"off"``:
+    none) and only for ``combine = "units"`` (a composite run is lumped already:
+    its parameters are the ``unit_parameters`` layer). See
+    :mod:`gisrun.parameters.equivalent`.
+    """
+    if project.lumped_parameters == "off" or project.combine != "units":
+        return pd.DataFrame({c: [] for c in LUMPED_COLUMNS})
+    storms = [StormRunoff(r.name, r.rain_per_step_m,
+                          r.subcatchments["runoff_depth_m"].to_numpy(dtype=np.float64))
+              for r in results]
+    scale = rain_scale_for_units(project, inputs, pd.DataFrame({"subcatchment_id": sub_ids}))
+    return lumped_parameters(params, sub_ids, storms, project.time_step_s,
+                             default_method=project.method, rain_scale=scale,
+                             solve=project.lumped_parameters == "solve")

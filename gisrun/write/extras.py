@@ -9,8 +9,10 @@
     PNG maps and per-subcatchment infiltration plots.
 ``report.html``
     One self-contained HTML report (images embedded; opens offline).
-``model_inputs.csv``, ``excess_series.csv``
-    Per-subcatchment loss parameters and the excess-rainfall series.
+``lumped_<method>.csv``, ``excess_series.csv``
+    Per loss method, the lumped parameters in wide form (one row per
+    subcatchment, basis and storm; :func:`gisrun.present.model_inputs.lumped_wide`
+    of the ``lumped_parameters`` layer), and the excess-rainfall series.
 
 Everything is drawn from the :class:`~gisrun.model.RunResult`: no input is
 opened and no loss is computed here. The folder is built in a temporary folder
@@ -37,7 +39,8 @@ from ..io.commit import OutputSet
 from ..io.files import atomic_target, refuse_inputs_among, staged_folder
 from ..io.geopackage import write_csv
 from ..model import RunResult
-from ..present.layers import layer_name, model_inputs_layer, series_layer
+from ..present.layers import layer_name, lumped_parameters_layer, series_layer
+from ..present.model_inputs import lumped_wide
 from .figures import write_figures, write_report
 from .rasters import write_cell_rasters
 
@@ -55,7 +58,8 @@ class Deliverables:
     rasters: dict[str, dict[str, Path]] = field(default_factory=dict)
     maps: dict[str, Path] = field(default_factory=dict)
     report: Path | None = None
-    model_inputs: Path | None = None
+    #: ``lumped_<method>.csv`` by loss method.
+    lumped_parameters: dict[str, Path] = field(default_factory=dict)
     excess_series: Path | None = None
     notes: list[str] = field(default_factory=list)
 
@@ -66,7 +70,7 @@ class Deliverables:
             "rasters": {s: {k: str(p) for k, p in d.items()} for s, d in self.rasters.items()},
             "maps": {k: str(p) for k, p in self.maps.items()},
             "report": str(self.report) if self.report else None,
-            "model_inputs": str(self.model_inputs) if self.model_inputs else None,
+            "lumped_parameters": {m: str(p) for m, p in self.lumped_parameters.items()},
             "excess_series": str(self.excess_series) if self.excess_series else None,
         }
 
@@ -78,7 +82,8 @@ class Deliverables:
             folder=folder,
             rasters={s: {k: rebase(p) for k, p in d.items()} for s, d in self.rasters.items()},
             maps={k: rebase(p) for k, p in self.maps.items()},
-            report=rebase(self.report), model_inputs=rebase(self.model_inputs),
+            report=rebase(self.report),
+            lumped_parameters={m: rebase(p) for m, p in self.lumped_parameters.items()},
             excess_series=rebase(self.excess_series), notes=list(self.notes))
 
 
@@ -150,7 +155,7 @@ def write_deliverables(result: RunResult, folder: Path, *,
         out.notes.append("cell rasters skipped: the run made no cell values")
     if options.model_inputs:
         say("model inputs", 0, 1)
-        out.model_inputs = write_csv(folder / "model_inputs.csv", model_inputs_layer(result))
+        out.lumped_parameters = _write_lumped_csvs(result, folder)
         out.excess_series = _write_series_csv(result, folder / "excess_series.csv", gpkg)
         say("model inputs", 1, 1)
     if options.maps or options.report:
@@ -162,6 +167,15 @@ def write_deliverables(result: RunResult, folder: Path, *,
         if options.report:
             out.report = write_report(result, folder, figures.report)
     return out
+
+
+def _write_lumped_csvs(result: RunResult, folder: Path) -> dict[str, Path]:
+    """``lumped_<method>.csv`` per loss method, from the ``lumped_parameters`` layer."""
+    if result.lumped_parameters.empty:
+        return {}
+    layer = lumped_parameters_layer(result)
+    return {method: write_csv(folder / f"lumped_{method}.csv", lumped_wide(layer, method))
+            for method in dict.fromkeys(layer["loss_method"])}
 
 
 def _write_series_csv(result: RunResult, target: Path, gpkg: Path | None) -> Path:

@@ -140,8 +140,15 @@ def test_horton_table_in_si():
     midpoints = T.hsg_conductivity()["min_infiltration_mid_m_per_s"]
     assert_allclose(horton["horton_fc_m_per_s"], midpoints)
     assert (horton["horton_f0_m_per_s"] > horton["horton_fc_m_per_s"]).all()
-    # recovery: common practice, faster on lighter soils
-    assert horton["horton_recovery_per_s"].is_monotonic_decreasing
+    # recovery: a rate per hour, gisrun's choice (no publication), halving from A to D
+    assert_allclose(horton["horton_recovery_per_s"] * 3600.0, [0.08, 0.04, 0.02, 0.01])
+
+
+def test_horton_table_states_recovery_as_a_rate_of_our_own_choice():
+    table = T.read_shipped_table("horton_hsg")
+    assert "recovery_per_h" in table.frame.columns
+    text = " ".join(table.source_lines).lower()
+    assert "gisrun's choice" in text and "drying" not in text
 
 
 # NRCS TR-55 (1986) Table 2-2a (from memory): cover, impervious %, CN A/B/C/D

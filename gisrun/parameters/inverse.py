@@ -1,0 +1,224 @@
+"""One parameter from a runoff depth: a bracketed root search and a least-squares fit.
+
+Both work on many independent problems at once (one per subcatchment and storm):
+the depth function is called with an array of trial values and the indices of the
+problems they belong to, so one engine run serves every problem still open.
+
+Root search
+    :func:`solve_for_depth` finds the value whose runoff depth equals a target,
+    for a depth that is monotonic in the value (more conductivity, less runoff).
+    It uses :func:`scipy.optimize.elementwise.find_root`, Chandrupatla's (1997)
+    bracketing method: inverse quadratic interpolation safeguarded by bisection,
+    the vectorized relative of Brent's method, guaranteed to converge inside a
+    valid bracket. Rates are searched on a logarithmic scale. Where the depth is
+    flat at the target (no runoff for every value above a threshold), the
+    threshold is found by sectioning (a kink there defeats interpolation) and the
+    value given is the smallest found that gives the target exactly. A target
+    outside what any value in the bounds gives is reported as such, with the
+    bound that comes nearest.
+Least-squares fit
+    :func:`fit_least_squares` finds one value per problem that minimizes the sum
+    of squared depth differences over several storms: a grid over the range the
+    per-storm values span (outside it every difference grows), then
+    :func:`scipy.optimize.elementwise.find_minimum` (Chandrupatla's minimizer)
+    inside the best grid point's bracket.
+
+References
+----------
+Chandrupatla, T. R. (1997). A new hybrid quadratic/bisection algorithm for
+finding the zero of a nonlinear function without using derivatives. Advances in
+Engineering Software 28(3), 145-149.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+from scipy.optimize import elementwise
+
+__all__ = ["REPRODUCED", "ABOVE_REACH", "BELOW_REACH", "NO_RAIN", "Search", "solve_for_depth",
+           "fit_least_squares"]
+
+FloatArray = NDArray[np.float64]
+IntArray = NDArray[np.intp]
+#: ``depth(values, problems)``: runoff depth (m) of each problem at its trial value.
+DepthFunction = Callable[[FloatArray, IntArray], FloatArray]
+#: ``depths(values, problems)``: depth of each problem under every storm, (storms, problems).
+StormsFunction = Callable[[FloatArray, IntArray], FloatArray]
+
+#: Outcomes of a search, as written in the ``note`` of a lumped parameter set.
+REPRODUCED = ""
+ABOVE_REACH = "runoff above what any value gives: value at its bound"
+BELOW_REACH = "runoff below what any value gives: value at its bound"
+NO_RAIN = "no rain: every value gives the same runoff"
+
+#: Depth (m) within which a bound is taken to give the target itself.
+DEPTH_TOLERANCE_M = 1e-12
+#: Sections per round and rounds of the threshold search: 16**5, about 1e6 times narrower.
+_SECTIONS = 16
+_SECTION_ROUNDS = 5
+_TOLERANCES = {"xatol": 1e-10, "xrtol": 0.0, "fatol": 1e-12, "frtol": 0.0}
+#: The fit's tolerance on the search scale (log10 of a rate: 2e-5 relative; curve number 1e-5).
+_FIT_TOLERANCES = {"xatol": 1e-5, "xrtol": 0.0}
+_GRID = 9
+
+
+@dataclass(frozen=True)
+class Search:
+    """Bounds of the value searched, per problem, and whether to search on a log scale.
+
+    ``low`` may be 0 on a log scale: the search then starts a factor
+    ``1e-10`` below ``high``, and a target reached only below that is given 0.
+    """
+
+    low: FloatArray
+    high: FloatArray
+    log: bool
+
+    def inner_low(self) -> FloatArray:
+        """The lowest value searched on the search scale's own terms (positive on a log scale)."""
+        if not self.log:
+            return self.low
+        return np.maximum(self.low, self.high * 1e-10)
+
+    def to_scale(self, values: FloatArray) -> FloatArray:
+        """Values on the search scale."""
+        return np.log10(values) if self.log else values
+
+    def from_scale(self, x: FloatArray, problems: IntArray) -> FloatArray:
+        """Values from the search scale, kept inside each problem's bounds."""
+        values = 10.0 ** x if self.log else x
+        return np.clip(values, self.low[problems], self.high[problems])
+
+
+def solve_for_depth(depth: DepthFunction, target: FloatArray, search: Search
+                    ) -> tuple[FloatArray, list[str]]:
+    """The value giving each problem's target depth, and a note per problem.
+
+    Parameters
+    ----------
+    depth : callable
+        ``depth(values, problems)`` -> depth (m) per problem, monotonic in the value.
+    target : ndarray, shape (n,)
+        Depth to reproduce, m.
+    search : Search
+        Bounds per problem.
+
+    Returns
+    -------
+    values : ndarray, shape (n,)
+    notes : list of str
+        :data:`REPRODUCED`, or :data:`ABOVE_REACH` / :data:`BELOW_REACH` with the
+        value at the bound that comes nearest.
+    """
+    n = target.size
+    every = np.arange(n)
+    at_low, at_high = depth(search.low, every), depth(search.high, every)
+    miss_low, miss_high = np.abs(at_low - target), np.abs(at_high - target)
+    values = np.where(miss_low <= miss_high, search.low, search.high)
+    top, bottom = np.maximum(at_low, at_high), np.minimum(at_low, at_high)
+    notes = [REPRODUCED] * n
+    for i in np.flatnonzero(target > top + DEPTH_TOLERANCE_M):
+        notes[i] = ABOVE_REACH
+    for i in np.flatnonzero(target < bottom - DEPTH_TOLERANCE_M):
+        notes[i] = BELOW_REACH
+    between = (target <= top + DEPTH_TOLERANCE_M) & (target >= bottom - DEPTH_TOLERANCE_M)
+    high_is_near = (miss_high <= DEPTH_TOLERANCE_M) & (at_high != target)
+    todo = np.flatnonzero(between & (miss_low > DEPTH_TOLERANCE_M) & ~high_is_near)
+    if todo.size:
+        values[todo] = _inside(depth, target, search, todo, at_high[todo] - target[todo])
+    return values, notes
+
+
+def _inside(depth: DepthFunction, target: FloatArray, search: Search, problems: IntArray,
+            g_hi: FloatArray) -> FloatArray:
+    """Values of problems whose target lies between the depths at their bounds.
+
+    ``g_hi`` is the depth at the upper bound minus the target; 0 means the depth
+    is flat at the target up to the upper bound (no runoff for any larger rate),
+    and the value sought is where the flat part begins (:func:`_threshold`).
+    """
+    lo_s = search.to_scale(search.inner_low()[problems])
+    hi_s = search.to_scale(search.high[problems])
+    g_lo = depth(search.from_scale(lo_s, problems), problems) - target[problems]
+    # g_lo == 0: the inner low gives the target; same signs: only values below it do (0)
+    out = np.where(g_lo == 0.0, search.from_scale(lo_s, problems), search.low[problems])
+    flat = (g_hi == 0.0) & (g_lo != 0.0)
+    root = (g_hi != 0.0) & (g_lo != 0.0) & (np.sign(g_lo) != np.sign(g_hi))
+    if root.any():
+        def g(x: FloatArray, which: IntArray) -> FloatArray:
+            return depth(search.from_scale(x, which), which) - target[which]
+
+        res = elementwise.find_root(g, (lo_s[root], hi_s[root]), args=(problems[root],),
+                                    tolerances=_TOLERANCES)
+        out[root] = search.from_scale(res.x, problems[root])
+    if flat.any():
+        out[flat] = _threshold(depth, target, search, problems[flat], lo_s[flat], hi_s[flat])
+    return out
+
+
+def _threshold(depth: DepthFunction, target: FloatArray, search: Search, problems: IntArray,
+               a: FloatArray, b: FloatArray) -> FloatArray:
+    """Where the depth becomes flat at the target, between ``a`` (not flat) and ``b`` (flat).
+
+    Each round evaluates :data:`_SECTIONS` - 1 points inside every bracket in one
+    call and keeps the section where the flat part begins; the value returned is
+    on the flat part (its depth is the target exactly), within the final section.
+    A depth with a kink at the threshold defeats interpolating root searches,
+    which is why sections are used here.
+    """
+    inner = np.arange(1, _SECTIONS) / _SECTIONS
+    m = problems.size
+    for _ in range(_SECTION_ROUNDS):
+        xs = a[None, :] + (b - a)[None, :] * inner[:, None]  # (points, problems)
+        which = np.tile(problems, inner.size)
+        flat = (depth(search.from_scale(xs.reshape(-1), which), which)
+                == target[which]).reshape(inner.size, m)
+        first = np.where(flat.any(axis=0), np.argmax(flat, axis=0), inner.size)
+        cols = np.arange(m)
+        b = np.where(first < inner.size, xs[np.minimum(first, inner.size - 1), cols], b)
+        a = np.where(first > 0, xs[np.maximum(first - 1, 0), cols], a)
+    return search.from_scale(b, problems)
+
+
+def fit_least_squares(depths: StormsFunction, targets: FloatArray, span: tuple[FloatArray,
+                      FloatArray], search: Search) -> FloatArray:
+    """One value per problem minimizing the sum of squared depth differences over storms.
+
+    Parameters
+    ----------
+    depths : callable
+        ``depths(values, problems)`` -> depth (m), shape (storms, len(problems)).
+    targets : ndarray, shape (storms, n)
+        Depths to come near, m (NaN for a storm to leave out).
+    span : (ndarray, ndarray)
+        Per problem, the smallest and largest per-storm value: the minimum lies
+        between them when each depth is monotonic in the value.
+    search : Search
+        Bounds and scale.
+    """
+    n = targets.shape[1]
+    every = np.arange(n)
+    lo = search.to_scale(np.maximum(span[0], search.inner_low()))
+    hi = search.to_scale(np.maximum(span[1], search.inner_low()))
+    hi = np.maximum(hi, lo)
+
+    def cost(x: FloatArray, which: IntArray) -> FloatArray:
+        diff = depths(search.from_scale(x, which), which) - targets[:, which]
+        return np.nansum(diff * diff, axis=0)
+
+    grid = lo[None, :] + (hi - lo)[None, :] * np.linspace(0.0, 1.0, _GRID)[:, None]
+    costs = cost(grid.reshape(-1), np.tile(every, _GRID)).reshape(_GRID, n)  # one engine run
+    best = np.argmin(costs, axis=0)
+    out = grid[best, every]
+    inner = np.flatnonzero((best > 0) & (best < _GRID - 1) & (hi > lo))
+    if inner.size:
+        b = best[inner]
+        init = (grid[b - 1, inner], grid[b, inner], grid[b + 1, inner])
+        res = elementwise.find_minimum(cost, init, args=(inner,), tolerances=_FIT_TOLERANCES)
+        better = res.f_x <= costs[b, inner]
+        out[inner] = np.where(better, res.x, out[inner])
+    return search.from_scale(out, every)
