@@ -104,6 +104,23 @@ def _soil_becomes_folder(d: Path) -> None:
 
 
 _TWO = [square(0, 0, 50, 100), square(50, 0, 100, 100)]
+_SOUTH_UP = Affine(10.0, 0.0, X0, 0.0, 10.0, Y0)  # origin at the south-west corner, rows go north
+
+
+def _truncated_soil(d: Path) -> None:
+    """A GeoTIFF whose header is whole but whose cell data stops half-way (a cut-off copy)."""
+    (d / "soil.tif").unlink()
+    fine = np.kron(soil_codes(), np.ones((20, 20), dtype=np.uint8))  # 0.5 m cells, same area
+    write_raster(d / "soil.tif", fine, transform=Affine(0.5, 0.0, X0, 0.0, -0.5, Y0 + 100.0))
+    data = (d / "soil.tif").read_bytes()
+    (d / "soil.tif").write_bytes(data[: len(data) // 2])
+
+
+def _soil_nodata_zero_also_mapped(d: Path) -> None:
+    codes = soil_codes()
+    codes[0, 0] = 0
+    _soil(codes, nodata=0)(d)
+    edit_toml(d / "gisrun.toml", '"1" = "A"', '"0" = "A"\n"1" = "A"')
 _NODATA_WEST = soil_codes()
 _NODATA_WEST[:, :5] = 255  # the whole of S1 has no soil data
 _FLOAT_CODES = soil_codes().astype(np.float32)
@@ -237,6 +254,21 @@ CASES: dict[str, Case] = {
         re.compile(r"\[soil\]\.initial_saturation")),
     "negative time step": Case(_toml("time_step_min = 5", "time_step_min = -5"),
                                re.compile(r"time_step_min")),
+    # --- issue 14: inputs that stopped with an internal error or a misleading line -----------
+    "south-up soil raster": Case(_soil(soil_codes()[::-1], transform=_SOUTH_UP),
+                                 re.compile(r"soil\.tif.*south-up")),
+    "truncated soil GeoTIFF": Case(_truncated_soil,
+                                   re.compile(r"soil\.tif.*cannot be read.*ends early")),
+    "soil nodata value also a mapped code": Case(
+        _soil_nodata_zero_also_mapped, re.compile(r"soil\.tif.*nodata value 0 is also a class code")),
+    "20-digit raster code": Case(_toml('"1" = "A"', '"1" = "A"\n"12345678901234567890" = "A"'),
+                                 re.compile(r"\[soil\.codes\]\.12345678901234567890.*64 bits")),
+    "storm header names time_min twice": Case(
+        _write("storm.csv", "time_min,time_min\n5,1\n10,1\n"),
+        re.compile(r"storm\.csv:header: names the column 'time_min' twice")),
+    "override column twice": Case(
+        _with_overrides("soil_class,ks_mm_per_h,ks_mm_per_h\nA,3,4\n"),
+        re.compile(r"over\.csv:line 1:ks_mm_per_h: column appears twice")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),
