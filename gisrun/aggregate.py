@@ -18,7 +18,6 @@ import pandas as pd
 import scipy.sparse as sp
 from numpy.typing import NDArray
 
-
 __all__ = [
     "MASS_BALANCE_TOLERANCE",
     "area_weights",

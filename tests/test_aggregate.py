@@ -75,8 +75,9 @@ def test_nan_in_the_balance_is_a_breach(two_subs):
 
 def test_a_breach_is_an_internal_error_exit_1(tmp_path, capsys, monkeypatch):
     """README, exit codes: a mass-balance breach is an internal fault (1), not a bad input (2)."""
-    import gisrun.workflow.steps as steps
     from bad_inputs_helpers import make_project, run_cli
+
+    import gisrun.workflow.steps as steps
 
     real = steps.run_losses
 

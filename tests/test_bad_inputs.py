@@ -260,7 +260,8 @@ CASES: dict[str, Case] = {
     "truncated soil GeoTIFF": Case(_truncated_soil,
                                    re.compile(r"soil\.tif.*cannot be read.*ends early")),
     "soil nodata value also a mapped code": Case(
-        _soil_nodata_zero_also_mapped, re.compile(r"soil\.tif.*nodata value 0 is also a class code")),
+        _soil_nodata_zero_also_mapped,
+        re.compile(r"soil\.tif.*nodata value 0 is also a class code")),
     "20-digit raster code": Case(_toml('"1" = "A"', '"1" = "A"\n"12345678901234567890" = "A"'),
                                  re.compile(r"\[soil\.codes\]\.12345678901234567890.*64 bits")),
     "storm header names time_min twice": Case(
