@@ -270,6 +270,24 @@ CASES: dict[str, Case] = {
     "override column twice": Case(
         _with_overrides("soil_class,ks_mm_per_h,ks_mm_per_h\nA,3,4\n"),
         re.compile(r"over\.csv:line 1:ks_mm_per_h: column appears twice")),
+    "UTM coordinates labelled EPSG:4326": Case(
+        _polygons(_TWO, crs="EPSG:4326"), re.compile(r"sub\.gpkg.*id=S1.*outside longitude")),
+    "NaN vertex": Case(_polygons([_TWO[0], Polygon([(X0, Y0), (X0 + 50, Y0), (np.nan, Y0 + 9),
+                                                     (X0, Y0 + 100)])]),
+                       re.compile(r"sub\.gpkg.*id=S2.*NaN or infinite")),
+    "infinite vertex": Case(_polygons([_TWO[0], Polygon([(X0, Y0), (X0 + 50, Y0),
+                                                          (np.inf, Y0 + 9), (X0, Y0 + 100)])]),
+                            re.compile(r"sub\.gpkg.*id=S2.*NaN or infinite")),
+    "coordinates of 1e30": Case(
+        _polygons([_TWO[0], Polygon([(X0, Y0), (1e30, Y0), (1e30, Y0 + 9), (X0, Y0 + 9)])]),
+        re.compile(r"sub\.gpkg.*id=S2.*off the Earth")),
+    "storm row at 1e12 minutes": Case(_write("storm.csv", "time_min,depth_mm\n5,1\n1e12,1\n"),
+                                      re.compile(r"\[\[storms\]\] 1 \(steady\).*2e\+11 steps")),
+    "uniform storm of 1e9 minutes": Case(
+        _toml('kind = "file"\npath = "storm.csv"', 'kind = "uniform"\ndepth = 5\n'
+              "duration_min = 1e9"), re.compile(r"\[\[storms\]\] 1\.duration_min.*2e\+08 steps")),
+    "250-character storm name": Case(_toml('name = "steady"', f'name = "{"s" * 250}"'),
+                                     re.compile(r"\[\[storms\]\].*250 characters")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),

@@ -25,7 +25,7 @@ from ..io.vector import read_subcatchments
 from ..model import Inputs
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
-from ..storm import Hyetograph
+from ..storm import Hyetograph, check_step_count
 
 __all__ = [
     "read_inputs",
@@ -40,6 +40,10 @@ __all__ = [
     "input_checksums",
     "file_sha256",
 ]
+
+
+#: Longest storm name: its output files add a prefix and suffix, and file names stop at 255.
+MAX_STORM_NAME = 100
 
 
 def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
@@ -79,6 +83,10 @@ def read_storms(project: Project) -> tuple[Hyetograph, ...]:
     storms = tuple(storms_from_config(list(project.storms), base_dir=project.base_dir,
                                       units=project.units, where=where))
     check_storm_names([h.name for h in storms], where)
+    for i, h in enumerate(storms, start=1):  # before anything is resampled onto the run's step
+        check_step_count(float(h.time_s[-1]), project.time_step_s, f"{where} {i} ({h.name})",
+                         "shorten the storm or lengthen "
+                         f"{project.where('project', 'time_step_min')}")
     return storms
 
 
@@ -90,6 +98,11 @@ def check_storm_names(names: list[str], where: str) -> None:
     StormError
         Naming both storms.
     """
+    for name in names:  # file names of maps and rasters are built from it; most systems
+        if len(layer_name(name)) > MAX_STORM_NAME:  # stop file names at 255 bytes
+            raise StormError(where, f"storm name {name[:40]!r}... is {len(name)} characters "
+                             "long, too long for the file names of its outputs",
+                             f"give it a name of at most {MAX_STORM_NAME} characters")
     for naming in (storm_layer_name, layer_name):
         seen: dict[str, str] = {}
         for name in names:
