@@ -19,6 +19,7 @@ from pyproj import CRS, Transformer
 
 from ..config.storms import storms_from_config
 from ..errors import GisrunWarning, RasterError, StormError
+from ..io.datasets import raster_files, vector_files
 from ..io.raster import ClassRaster, read_class_raster
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
@@ -38,6 +39,7 @@ __all__ = [
     "check_inputs_codes",
     "check_storm_names",
     "input_checksums",
+    "dataset_files",
     "file_sha256",
 ]
 
@@ -184,20 +186,40 @@ def check_inputs_codes(project: Project, inputs: Inputs) -> None:
                            project.where("cover"))
 
 
-def input_checksums(project: Project) -> dict[str, str]:
-    """SHA-256 of every input file, so a result can be traced to its inputs."""
-    paths = [project.path, project.subcatchments.path, project.soil.path]
+def dataset_files(project: Project) -> dict[Path, list[Path] | None]:
+    """Every file GDAL reads for the subcatchment, soil and cover datasets (sidecars too).
+
+    Keyed by the path the project names; None where the files cannot be told
+    (see :mod:`gisrun.io.datasets`).
+    """
+    out: dict[Path, list[Path] | None] = {
+        Path(project.subcatchments.path): vector_files(project.subcatchments.path),
+        Path(project.soil.path): raster_files(project.soil.path),
+    }
     if project.cover:
-        paths.append(project.cover.path)
+        out[Path(project.cover.path)] = raster_files(project.cover.path)
+    return out
+
+
+def input_checksums(project: Project,
+                    datasets: dict[Path, list[Path] | None] | None = None) -> dict[str, str]:
+    """SHA-256 of every input file, sidecars included, so a result can be traced to its inputs.
+
+    ``datasets`` is :func:`dataset_files` when the caller has it already.
+    """
+    datasets = dataset_files(project) if datasets is None else datasets
+    paths: list[Path] = [Path(project.path)]
+    for named, files in datasets.items():
+        paths += files if files is not None else [named]
     if project.overrides:
-        paths.append(project.overrides)
+        paths.append(Path(project.overrides))
     for spec in project.storms:
         for key in ("path", "idf_table"):
             if isinstance(spec.get(key), str):
                 paths.append((project.base_dir / spec[key]).resolve())
     out = {}
     for path in paths:
-        if Path(path).is_file():
+        if path.is_file():
             out[os.path.relpath(path, project.base_dir)] = file_sha256(path)
     return out
 
