@@ -13,6 +13,7 @@ from __future__ import annotations
 import errno
 import os
 import re
+import sys
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -288,6 +289,13 @@ CASES: dict[str, Case] = {
               "duration_min = 1e9"), re.compile(r"\[\[storms\]\] 1\.duration_min.*2e\+08 steps")),
     "250-character storm name": Case(_toml('name = "steady"', f'name = "{"s" * 250}"'),
                                      re.compile(r"\[\[storms\]\].*250 characters")),
+    "output named .shp": Case(_toml('output = "out/result.gpkg"', 'output = "out/result.shp"'),
+                              re.compile(r"\[project\]\.output.*result\.shp.*not a \.gpkg")),
+    "output without an extension": Case(
+        _toml('output = "out/result.gpkg"', 'output = "out/result"'),
+        re.compile(r"\[project\]\.output.*out/result\).*\.gpkg")),
+    "--output named .shp": Case(lambda d: None, re.compile(r"--output.*x\.shp.*\.gpkg"),
+                                commands=("run",), extra=("--output", "x.shp")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),
@@ -421,6 +429,21 @@ def test_geographic_polygons_run_with_geodesic_areas(tmp_path, capsys):
     # a 50 m x 100 m UTM square on the central meridian is 5000 / 0.9996**2 m2 on the ellipsoid
     # (UTM scale factor 0.9996, common practice), never a planar area in square degrees
     np.testing.assert_allclose(out["area_m2"], 5000.0 / 0.9996**2, rtol=1e-3)
+
+
+# --- options that need an extra that is not installed ------------------------------------------
+
+@pytest.mark.parametrize("option", [("--workers", "2"), ("--scheduler", "synchronous"),
+                                    ("--scheduler", "tcp://127.0.0.1:8786")])
+def test_dask_options_without_dask_get_one_clear_line(tmp_path, capsys, monkeypatch, option):
+    folder = tmp_path / "project"
+    make_project(folder)
+    for name in ("dask", "distributed"):  # as if the dask extra were not installed
+        monkeypatch.setitem(sys.modules, name, None)
+    before = _files(folder)
+    code, out, err = run_cli(capsys, ["run", str(folder), *option, "--quiet"])
+    assert_one_clear_error(code, err + out, re.compile(rf"{option[0]}: needs dask.*gisrun\[dask\]"))
+    assert _files(folder) == before and not (folder / "out").exists()
 
 
 # --- outputs: a full disk, and the checksum rows ----------------------------------------------

@@ -15,6 +15,8 @@ import click
 from ..config.project import load_project
 from ..errors import OutputExistsError
 from ..model import CAUTION, RunResult
+from ..options import check_geopackage_name
+from ..workflow.chunks import require_dask
 from ..workflow.inputs import read_subcatchment_layer
 from ..workflow.stream import run_and_write
 from ..write.extras import Deliverables, ExtrasOptions, check_plot_ids, extras_folder, write_extras
@@ -59,6 +61,8 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
     if into is not None and output is not None:
         raise click.UsageError("give either --output or --into, not both")
     target = Path(into or output or loaded.output)
+    check_geopackage_name(target, "--into" if into else "--output" if output else "output")
+    require_dask(workers, scheduler)
     _refuse_existing(target, into=into, extras=not no_extras, overwrite=overwrite)
     if plot_ids and not no_extras:  # a wrong id fails before the work, not after it
         check_plot_ids(read_subcatchment_layer(loaded), plot_ids)
