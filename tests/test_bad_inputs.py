@@ -296,6 +296,9 @@ CASES: dict[str, Case] = {
         re.compile(r"\[project\]\.output.*out/result\).*\.gpkg")),
     "--output named .shp": Case(lambda d: None, re.compile(r"--output.*x\.shp.*\.gpkg"),
                                 commands=("run",), extra=("--output", "x.shp")),
+    "cover raster over the west half only": Case(
+        lambda d: write_raster(d / "cover.tif", np.full((10, 5), 5, dtype=np.uint8)),
+        re.compile(r"cover\.tif.*covers only part of subcatchments S2")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),

@@ -66,10 +66,10 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     storms = _attempt(problems, read_storms, project)
     overrides = _attempt(problems, read_overrides, project)
     codes_ok = soil is not None and _check_codes(problems, soil, subs, project.soil.codes,
-                                                 project.where("soil"))
+                                                 project.where("soil"), project)
     if project.cover is not None and cover is not None:
         codes_ok &= _check_codes(problems, cover, subs, project.cover.codes,
-                                 project.where("cover"))
+                                 project.where("cover"), project)
     missing_cover = project.cover is not None and cover is None
     if subs is None or missing_cover or storms is None or not codes_ok:
         return []
@@ -83,8 +83,9 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
 
 
 def _check_codes(problems: list[str], raster: ClassRaster, subs: gpd.GeoDataFrame | None,
-                 codes: dict[int, str], where: str) -> bool:
-    return _attempt(problems, check_raster_codes, raster, subs, codes, where) is not None
+                 codes: dict[int, str], where: str, project: Project) -> bool:
+    return _attempt(problems, check_raster_codes, raster, subs, codes, where,
+                    max_fraction=project.max_nodata_fraction) is not None
 
 
 def _attempt(problems: list[str], func: Callable[..., T], *args: Any, **kwargs: Any) -> T | None:

@@ -14,7 +14,9 @@ import warnings
 from pathlib import Path
 
 import geopandas as gpd
+import numpy as np
 import pandas as pd
+import shapely
 from pyproj import CRS, Transformer
 
 from ..config.storms import storms_from_config
@@ -147,10 +149,12 @@ def read_inputs(project: Project) -> Inputs:
 
 
 def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
-                       codes: dict[int, str], where: str) -> bool:
+                       codes: dict[int, str], where: str, *,
+                       max_fraction: float | None = None) -> bool:
     """Raise if the raster holds, under the subcatchments, codes missing from ``codes``.
 
-    With ``subs`` None the whole raster is scanned.
+    With ``subs`` None the whole raster is scanned. With ``max_fraction`` the raster's
+    extent is checked first (:func:`check_raster_extent`).
 
     Raises
     ------
@@ -158,6 +162,8 @@ def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
         Listing the unknown codes and the project file table to add them to.
     """
     bounds = None if subs is None else _bounds_in(subs, raster.crs)
+    if subs is not None and max_fraction is not None:
+        check_raster_extent(raster, subs, max_fraction)
     unknown = raster.unknown_codes(codes, bounds)
     if len(unknown):
         listed = ", ".join(str(int(c)) for c in sorted(unknown)[:10])
@@ -166,6 +172,38 @@ def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
             "add each code and its class to that table in the project file",
         )
     return True
+
+
+def check_raster_extent(raster: ClassRaster, subs: gpd.GeoDataFrame, max_fraction: float
+                        ) -> None:
+    """Stop, naming this raster, when it leaves more than ``max_fraction`` of a polygon uncovered.
+
+    The overlay sees the soil and cover rasters' missing cells together; this check tells
+    which raster falls short, so a cover raster that covers half the area is not reported as
+    a soil problem.
+
+    Raises
+    ------
+    RasterError
+        Naming the raster, the subcatchments and how much of each it covers.
+    """
+    geoms = subs.geometry
+    if geoms.crs is not None and CRS.from_user_input(geoms.crs) != CRS.from_user_input(raster.crs):
+        geoms = geoms.to_crs(raster.crs)
+    with warnings.catch_warnings():  # a ratio of planar areas, also in degrees
+        warnings.simplefilter("ignore", UserWarning)
+        area = geoms.area.to_numpy()
+        inside = geoms.intersection(shapely.box(*raster.bounds)).area.to_numpy()
+    outside = np.divide(area - inside, area, out=np.zeros_like(area), where=area > 0)
+    over = outside > max_fraction + 1e-9
+    if over.any():
+        ids = subs["subcatchment_id"].to_numpy()[over][:10]
+        shares = ", ".join(f"{i} ({1 - f:.0%})" for i, f in zip(ids, outside[over], strict=False))
+        raise RasterError(raster.where or Path(raster.path).name,
+                          f"covers only part of subcatchments {shares}, more than "
+                          f"{max_fraction:.0%} of their area lies outside this raster",
+                          "extend this raster over every subcatchment, or raise [nodata] "
+                          "max_fraction")
 
 
 def _bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, float]:
@@ -180,10 +218,10 @@ def _bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, f
 def check_inputs_codes(project: Project, inputs: Inputs) -> None:
     """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`)."""
     check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
-                       project.where("soil"))
+                       project.where("soil"), max_fraction=project.max_nodata_fraction)
     if inputs.cover is not None and project.cover is not None:
         check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
-                           project.where("cover"))
+                           project.where("cover"), max_fraction=project.max_nodata_fraction)
 
 
 def dataset_files(project: Project) -> dict[Path, list[Path] | None]:
