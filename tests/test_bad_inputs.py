@@ -337,6 +337,28 @@ def test_bad_input_gets_one_clear_line(tmp_path, capsys, name, command):
         assert _files(folder) == before
 
 
+#: Cases that only ``run`` can refuse: they depend on its command-line options.
+RUN_OPTIONS_ONLY = {"output exists without --overwrite": "check has no --overwrite",
+                    "--output named .shp": "check has no --output"}
+
+
+@pytest.mark.parametrize("name", [n for n, c in CASES.items() if "run" in c.commands])
+def test_check_finds_what_run_refuses(tmp_path, capsys, name):
+    """Wherever run exits 2, check (which reads the same project) must fail too."""
+    case = CASES[name]
+    if name in RUN_OPTIONS_ONLY:
+        pytest.skip(RUN_OPTIONS_ONLY[name])
+    folder = tmp_path / "project"
+    make_project(folder)
+    case.breaks(folder)
+    code, _, err = run_cli(capsys, ["run", str(folder / case.target), *case.extra,
+                                    "--no-extras", "--quiet"])
+    assert code == 2, err
+    code, out, err = run_cli(capsys, ["check", str(folder / case.target)])
+    assert code == 2, (name, err + out)
+    assert any(line.startswith("gisrun: error:") for line in err.splitlines()), err
+
+
 def _files(folder: Path) -> dict[str, bytes]:
     return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*"))
             if p.is_file()}

@@ -15,7 +15,7 @@ from typing import Any, TypeVar
 import geopandas as gpd
 
 from ..config.project import load_project
-from ..errors import GisrunError, GisrunWarning
+from ..errors import GisrunError, GisrunWarning, OutputError
 from ..io.raster import ClassRaster
 from ..model import Inputs
 from ..project import Project
@@ -29,7 +29,7 @@ from .inputs import (
 )
 from .steps import overlay_inputs, prepare_parameters
 
-__all__ = ["check_project"]
+__all__ = ["check_project", "check_output_path"]
 
 T = TypeVar("T")
 
@@ -60,6 +60,7 @@ def check_project(path: str | Path) -> tuple[list[str], list[str]]:
 
 def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     """Run every reader and the overlay and parameter steps; return their notes."""
+    _attempt(problems, check_output_path, project.output)
     subs = _attempt(problems, read_subcatchment_layer, project)
     soil = _attempt(problems, read_soil, project)
     cover = _attempt(problems, read_cover, project)
@@ -80,6 +81,25 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     prepared = _attempt(problems, prepare_parameters, project, inputs, overlaid[0])
     notes = [*overlaid[2], *(prepared[2] if prepared is not None else [])]
     return [str(note) for note in notes]
+
+
+def check_output_path(target: Path) -> None:
+    """Stop where ``run`` would: the output is a folder, or a file stands where a folder must.
+
+    Raises
+    ------
+    OutputError
+        With the same line ``run`` prints.
+    """
+    target = Path(target)
+    if target.is_dir():
+        raise OutputError(str(target), "is a folder", "give a file path for the output")
+    for path in target.parents:
+        if path.exists():
+            if not path.is_dir():
+                raise OutputError(str(path), "is a file, not a folder, so the output cannot go "
+                                  "under it", "choose another output path")
+            return
 
 
 def _check_codes(problems: list[str], raster: ClassRaster, subs: gpd.GeoDataFrame | None,
