@@ -10,9 +10,9 @@ row that matches nothing) are warnings, printed by ``check`` and recorded in the
 
 from __future__ import annotations
 
-import errno
 import os
 import re
+import subprocess
 import sys
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -473,25 +473,36 @@ def test_dask_options_without_dask_get_one_clear_line(tmp_path, capsys, monkeypa
 
 # --- outputs: a full disk, and the checksum rows ----------------------------------------------
 
-def test_full_disk_leaves_no_file_and_keeps_the_earlier_output(tmp_path, capsys, monkeypatch):
-    import gisrun.io.geopackage as output
+@pytest.fixture
+def small_disk(tmp_path):
+    """A real 128 KiB file system (tmpfs), too small for the tiny project's GeoPackage.
 
+    Mounting needs root (as in CI); elsewhere the test is skipped.
+    """
+    if os.geteuid() != 0:
+        pytest.skip("mounting a small file system needs root")
+    mount = tmp_path / "small"
+    mount.mkdir()
+    done = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=128k", "tmpfs", str(mount)],
+                          capture_output=True, check=False)
+    if done.returncode != 0:
+        pytest.skip(f"cannot mount a tmpfs here: {done.stderr.decode().strip()}")
+    yield mount
+    subprocess.run(["umount", str(mount)], check=True)
+
+
+def test_full_disk_leaves_no_file_and_keeps_the_earlier_output(tmp_path, capsys, small_disk):
+    """GDAL's own failure on a full file system ("database or disk is full"), not a mock."""
     folder = tmp_path / "project"
     make_project(folder)
-    target = tmp_path / "out" / "result.gpkg"
-    target.parent.mkdir()
+    target = small_disk / "result.gpkg"
     target.write_bytes(b"earlier output")
-
-    def full(*_args: object, **_kw: object) -> None:
-        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
-
-    monkeypatch.setattr(output, "write_layers_into", full)
     code, out, err = run_cli(capsys, ["run", str(folder), "--output", str(target), "--overwrite",
                                       "--no-extras", "--quiet"])
     line = assert_one_clear_error(code, err + out, "result.gpkg")
-    assert "No space left on device" in line and "disk space" in line
+    assert "the disk is full" in line and "free disk space" in line
     assert target.read_bytes() == b"earlier output"
-    assert sorted(p.name for p in target.parent.iterdir()) == ["result.gpkg"]
+    assert sorted(p.name for p in small_disk.iterdir()) == ["result.gpkg"]
 
 
 def test_changing_an_input_changes_its_checksum_row(tmp_path, capsys):

@@ -19,6 +19,7 @@ from pathlib import Path
 import geopandas as gpd
 import pandas as pd
 import pyogrio
+from pyogrio.errors import DataLayerError, DataSourceError, FieldError
 
 from ..errors import OutputError, OutputExistsError
 from .files import atomic_target
@@ -259,11 +260,36 @@ def open_output(target: str | Path, *, into_existing: bool, overwrite: bool
     Yields the temporary path and a layer-name check (a no-op for a new file).
     """
     if into_existing:
-        with existing_geopackage_copy(target, overwrite=overwrite) as opened:
+        with existing_geopackage_copy(target, overwrite=overwrite) as opened, \
+                _write_errors(Path(target)):
             yield opened
         return
-    with atomic_target(target, overwrite=overwrite) as tmp:
+    with atomic_target(target, overwrite=overwrite) as tmp, _write_errors(Path(target)):
         yield tmp, _no_check
+
+
+#: Free space below which a failed write is put down to a full disk.
+_FULL_DISK_BYTES = 1 << 20
+
+
+@contextmanager
+def _write_errors(target: Path) -> Iterator[None]:
+    """GDAL's and SQLite's write errors as one line naming the output (exit 2, not 1).
+
+    A full disk reaches us as GDAL's "database or disk is full", or as a later error of the
+    same write ("no such table", "cannot rollback"); the free space left tells them apart.
+    """
+    try:
+        yield
+    except (DataSourceError, DataLayerError, FieldError, sqlite3.Error) as err:
+        try:
+            full = shutil.disk_usage(target.parent).free < _FULL_DISK_BYTES
+        except OSError:
+            full = False
+        reason = "the disk is full" if full else f"GDAL: {err}"
+        raise OutputError(str(target), f"could not be written ({reason})",
+                          "free disk space or choose another output folder, then run again"
+                          ) from None
 
 
 def _no_check(_: Iterable[str]) -> None:
