@@ -1,6 +1,7 @@
 """The on-disk overlay cache: a re-run with a new storm reads the overlay instead of redoing it."""
 
 import dataclasses
+import hashlib
 from pathlib import Path
 
 import geopandas as gpd
@@ -139,23 +140,26 @@ def _tiny(folder: Path, sub_name: str = "sub.gpkg"):
     return toml
 
 
-def _runoff(project) -> dict[str, float]:
-    out = run(project).storms[0].subcatchments
-    return dict(zip(out["subcatchment_id"], out["infiltration_depth_m"], strict=True))
+def _soils(project) -> dict[str, str]:
+    """Soil class of each subcatchment's unit (soil A lies west, B east; one unit each)."""
+    units = run(project).units
+    assert units["subcatchment_id"].is_unique
+    return dict(zip(units["subcatchment_id"], units["soil_class"], strict=True))
 
 
 def test_a_shapefile_dbf_change_is_not_served_from_the_cache(tmp_path):
     """Swapping the ids in the .dbf (the .shp untouched) must give the new ids' results."""
     toml = _tiny(tmp_path / "p", "sub.shp")
-    first = _runoff(load_project(toml))
+    first = _soils(load_project(toml))
     shp = (tmp_path / "p" / "sub.shp").read_bytes()
     gdf = gpd.read_file(tmp_path / "p" / "sub.shp")
     gdf["code"] = gdf["code"].map({"S1": "S2", "S2": "S1"})
     gdf.to_file(tmp_path / "p" / "sub.shp", engine="pyogrio")
     assert (tmp_path / "p" / "sub.shp").read_bytes() == shp  # only the .dbf changed
-    second = _runoff(load_project(toml))
+    second = _soils(load_project(toml))
     assert len(list((tmp_path / "p" / "cache").glob("overlay-*"))) == 2
-    assert second == {"S1": first["S2"], "S2": first["S1"]}  # soil A is west, B east
+    assert first == {"S1": "A", "S2": "B"}
+    assert second == {"S1": "B", "S2": "A"}
 
 
 def test_a_vrt_source_change_changes_the_key(tmp_path):
@@ -167,23 +171,26 @@ def test_a_vrt_source_change_changes_the_key(tmp_path):
     with rasterio.open(folder / "soil.tif") as src:  # a VRT naming soil.tif as its source
         rasterio.shutil.copy(src, vrt, driver="VRT")
     edit_toml(toml, 'path = "soil.tif"', 'path = "soil.vrt"')
-    first = _runoff(load_project(toml))
+    first = _soils(load_project(toml))
     vrt_bytes = vrt.read_bytes()
     write_raster(folder / "soil.tif", soil_codes()[:, ::-1])  # B west, A east: same VRT file
     assert vrt.read_bytes() == vrt_bytes
-    second = _runoff(load_project(toml))
-    assert second == {"S1": first["S2"], "S2": first["S1"]}
+    second = _soils(load_project(toml))
+    assert first == {"S1": "A", "S2": "B"}
+    assert second == {"S1": "B", "S2": "A"}
 
 
 def test_a_geopackage_wal_is_part_of_the_key(tmp_path):
     """Ids swapped in rows committed to the -wal (another program holds the file open)."""
     import sqlite3
 
+    from gisrun.workflow.inputs import input_checksums
+
     toml = _tiny(tmp_path / "p")
     project = load_project(toml)
     with sqlite3.connect(project.subcatchments.path) as con:  # WAL mode before the first run
         con.execute("PRAGMA journal_mode=WAL")
-    first = _runoff(project)
+    first = _soils(project)
     main_file = Path(project.subcatchments.path).read_bytes()
     other = sqlite3.connect(project.subcatchments.path)
     _spatial_functions(other)  # the GeoPackage's R-tree triggers call them on an update
@@ -194,11 +201,16 @@ def test_a_geopackage_wal_is_part_of_the_key(tmp_path):
         other.commit()
         assert Path(f"{project.subcatchments.path}-wal").stat().st_size > 0
         assert Path(project.subcatchments.path).read_bytes() == main_file
-        second = _runoff(project)
+        wal = Path(f"{project.subcatchments.path}-wal")
+        sums = input_checksums(project)  # what run_info and the cache key see at the start
+        assert sums["sub.gpkg-wal"] == hashlib.sha256(wal.read_bytes()).hexdigest()
+        # (GDAL may checkpoint the -wal into the file while reading: the key covers both)
+        second = _soils(project)
     finally:
         other.close()
     assert len(list((tmp_path / "p" / "cache").glob("overlay-*"))) == 2
-    assert second == {"S1": first["S2"], "S2": first["S1"]}
+    assert first == {"S1": "A", "S2": "B"}
+    assert second == {"S1": "B", "S2": "A"}
 
 
 def _spatial_functions(con) -> None:
