@@ -359,9 +359,10 @@ def test_check_finds_what_run_refuses(tmp_path, capsys, name):
     assert any(line.startswith("gisrun: error:") for line in err.splitlines()), err
 
 
-def _files(folder: Path) -> dict[str, bytes]:
-    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*"))
-            if p.is_file()}
+def _files(folder: Path) -> dict[str, bytes | None]:
+    """Every file's bytes and every folder (None) under ``folder``: nothing may be left behind."""
+    return {str(p.relative_to(folder)): p.read_bytes() if p.is_file() else None
+            for p in sorted(folder.rglob("*"))}
 
 
 # --- problems that warn and let the run go on -------------------------------------------------

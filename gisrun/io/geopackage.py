@@ -264,8 +264,24 @@ def open_output(target: str | Path, *, into_existing: bool, overwrite: bool
                 _write_errors(Path(target)):
             yield opened
         return
-    with atomic_target(target, overwrite=overwrite) as tmp, _write_errors(Path(target)):
+    with _new_folders_removed_on_failure(Path(target).parent), \
+            atomic_target(target, overwrite=overwrite) as tmp, _write_errors(Path(target)):
         yield tmp, _no_check
+
+
+@contextmanager
+def _new_folders_removed_on_failure(folder: Path) -> Iterator[None]:
+    """Remove the (empty) folders made for an output that was never written."""
+    new = [p for p in (folder, *folder.parents) if not p.exists()]
+    try:
+        yield
+    except BaseException:
+        for path in new:  # deepest first; a folder something else put a file in stays
+            try:
+                path.rmdir()
+            except OSError:
+                break
+        raise
 
 
 #: Free space below which a failed write is put down to a full disk.
