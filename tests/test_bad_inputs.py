@@ -299,6 +299,14 @@ CASES: dict[str, Case] = {
     "cover raster over the west half only": Case(
         lambda d: write_raster(d / "cover.tif", np.full((10, 5), 5, dtype=np.uint8)),
         re.compile(r"cover\.tif.*covers only part of subcatchments S2")),
+    "infinite time step": Case(_toml("time_step_min = 5", "time_step_min = inf"),
+                               re.compile(r"gisrun\.toml:\[project\]\.time_step_min: is inf")),
+    "infinite memory budget": Case(
+        _toml("time_step_min = 5", "time_step_min = 5\nmemory_budget_mb = inf"),
+        re.compile(r"\[project\]\.memory_budget_mb: is inf")),
+    "curve number Ia/S of 0.1": Case(
+        _with_overrides("soil_class,initial_abstraction_ratio\nA,0.1\n"),
+        re.compile(r"over\.csv:line 2:initial_abstraction_ratio: value 0\.1")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),
