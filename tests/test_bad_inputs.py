@@ -482,22 +482,30 @@ def test_dask_options_without_dask_get_one_clear_line(tmp_path, capsys, monkeypa
 
 # --- outputs: a full disk, and the checksum rows ----------------------------------------------
 
-@pytest.fixture
-def small_disk(tmp_path):
-    """A real 128 KiB file system (tmpfs), too small for the tiny project's GeoPackage.
-
-    Mounting needs root (as in CI); elsewhere the test is skipped.
-    """
+def _mounted_tmpfs(tmp_path: Path, size: str):
+    """A real file system of ``size`` (tmpfs). Mounting needs root (as in CI), else skip."""
     if os.geteuid() != 0:
         pytest.skip("mounting a small file system needs root")
     mount = tmp_path / "small"
     mount.mkdir()
-    done = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=128k", "tmpfs", str(mount)],
+    done = subprocess.run(["mount", "-t", "tmpfs", "-o", f"size={size}", "tmpfs", str(mount)],
                           capture_output=True, check=False)
     if done.returncode != 0:
         pytest.skip(f"cannot mount a tmpfs here: {done.stderr.decode().strip()}")
     yield mount
     subprocess.run(["umount", str(mount)], check=True)
+
+
+@pytest.fixture
+def small_disk(tmp_path):
+    """128 KiB: too small for the tiny project's GeoPackage."""
+    yield from _mounted_tmpfs(tmp_path, "128k")
+
+
+@pytest.fixture
+def disk_for_the_geopackage_only(tmp_path):
+    """256 KiB: the tiny project's GeoPackage fits, its maps and rasters do not."""
+    yield from _mounted_tmpfs(tmp_path, "256k")
 
 
 def test_full_disk_leaves_no_file_and_keeps_the_earlier_output(tmp_path, capsys, small_disk):
@@ -512,6 +520,17 @@ def test_full_disk_leaves_no_file_and_keeps_the_earlier_output(tmp_path, capsys,
     assert "the disk is full" in line and "free disk space" in line
     assert target.read_bytes() == b"earlier output"
     assert sorted(p.name for p in small_disk.iterdir()) == ["result.gpkg"]
+
+
+def test_full_disk_while_writing_extras_leaves_nothing(tmp_path, capsys,
+                                                      disk_for_the_geopackage_only):
+    folder = tmp_path / "project"
+    make_project(folder)
+    target = disk_for_the_geopackage_only / "result.gpkg"
+    code, out, err = run_cli(capsys, ["run", str(folder), "--output", str(target), "--quiet"])
+    line = assert_one_clear_error(code, err + out, "result_files")
+    assert "No space left on device" in line and "free disk space" in line
+    assert list(disk_for_the_geopackage_only.iterdir()) == []
 
 
 def test_changing_an_input_changes_its_checksum_row(tmp_path, capsys):

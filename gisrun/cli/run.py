@@ -68,14 +68,20 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
         check_plot_ids(read_subcatchment_layer(loaded), plot_ids)
     options = ExtrasOptions(rasters=not no_rasters, maps=not no_maps, report=not no_report,
                             plot_subcatchments=plot_ids)
+    new_output = into is None and not target.exists()
     with progress_display(enabled=not (quiet or as_json)) as show:
         result, written = run_and_write(loaded, output=None if into else target,
                                         into=into, overwrite=overwrite,
                                         progress=show.step, workers=workers,
                                         scheduler=scheduler,
                                         cells=not (no_rasters or no_extras))
-        extras = None if no_extras else write_extras(result, written, overwrite=overwrite,
-                                                     options=options, progress=show.advance)
+        try:
+            extras = None if no_extras else write_extras(result, written, overwrite=overwrite,
+                                                         options=options, progress=show.advance)
+        except BaseException:
+            if new_output:  # a new output without its extras is not left behind half-made
+                written.unlink(missing_ok=True)
+            raise
     result = _with_notes(result, extras)
     if as_json:
         _echo_json(result, written, extras)
