@@ -13,7 +13,7 @@ from pathlib import Path
 import click
 
 from ..config.project import load_project
-from ..errors import OutputExistsError
+from ..errors import OutputError, OutputExistsError
 from ..model import CAUTION, RunResult
 from ..options import check_geopackage_name
 from ..workflow.chunks import require_dask
@@ -78,9 +78,13 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
         try:
             extras = None if no_extras else write_extras(result, written, overwrite=overwrite,
                                                          options=options, progress=show.advance)
-        except BaseException:
+        except BaseException as err:
             if new_output:  # a new output without its extras is not left behind half-made
                 written.unlink(missing_ok=True)
+            if isinstance(err, OSError) and not isinstance(err, OutputError):  # a full disk
+                raise OutputError(str(extras_folder(written)), "could not be written "
+                                  f"({err.strerror or err})", "free disk space or choose "
+                                  "another output folder, then run again") from None
             raise
     result = _with_notes(result, extras)
     if as_json:

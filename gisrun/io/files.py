@@ -122,12 +122,6 @@ def staged_folder(target: Path, *, overwrite: bool) -> Iterator[Path]:
         os.chmod(tmp, 0o777 & ~umask)  # mkdtemp makes it private; give it a normal folder's mode
         yield tmp
         _swap_in(tmp, target)
-    except OSError as err:  # a full disk or a lost permission while the folder is filled
-        if isinstance(err, OutputError):
-            raise
-        raise OutputError(str(target), f"could not be written ({err.strerror or err})",
-                          "free disk space or choose another output folder, then run again"
-                          ) from None
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
 
