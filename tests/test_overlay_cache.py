@@ -184,7 +184,7 @@ def test_a_geopackage_wal_is_part_of_the_key(tmp_path):
     """Ids swapped in rows committed to the -wal (another program holds the file open)."""
     import sqlite3
 
-    from gisrun.workflow.inputs import input_checksums
+    from gisrun.workflow.checksums import input_checksums
 
     toml = _tiny(tmp_path / "p")
     project = load_project(toml)

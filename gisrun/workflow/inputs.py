@@ -2,14 +2,13 @@
 
 Every reader checks its own file; this module adds the checks that need two
 inputs at once (raster codes under the subcatchments, storm names that would
-share a layer) and the checksums that trace a result to its inputs.
+share a layer). The checksums that trace a result to its inputs are in
+:mod:`gisrun.workflow.checksums`.
 """
 
 from __future__ import annotations
 
 import dataclasses
-import hashlib
-import os
 import warnings
 from pathlib import Path
 
@@ -21,7 +20,6 @@ from pyproj import CRS, Transformer
 
 from ..config.storms import storms_from_config
 from ..errors import GisrunWarning, RasterError, StormError
-from ..io.datasets import raster_files, vector_files
 from ..io.raster import ClassRaster, read_class_raster
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
@@ -40,9 +38,6 @@ __all__ = [
     "check_raster_codes",
     "check_inputs_codes",
     "check_storm_names",
-    "input_checksums",
-    "dataset_files",
-    "file_sha256",
 ]
 
 
@@ -222,50 +217,3 @@ def check_inputs_codes(project: Project, inputs: Inputs) -> None:
     if inputs.cover is not None and project.cover is not None:
         check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
                            project.where("cover"), max_fraction=project.max_nodata_fraction)
-
-
-def dataset_files(project: Project) -> dict[Path, list[Path] | None]:
-    """Every file GDAL reads for the subcatchment, soil and cover datasets (sidecars too).
-
-    Keyed by the path the project names; None where the files cannot be told
-    (see :mod:`gisrun.io.datasets`).
-    """
-    out: dict[Path, list[Path] | None] = {
-        Path(project.subcatchments.path): vector_files(project.subcatchments.path),
-        Path(project.soil.path): raster_files(project.soil.path),
-    }
-    if project.cover:
-        out[Path(project.cover.path)] = raster_files(project.cover.path)
-    return out
-
-
-def input_checksums(project: Project,
-                    datasets: dict[Path, list[Path] | None] | None = None) -> dict[str, str]:
-    """SHA-256 of every input file, sidecars included, so a result can be traced to its inputs.
-
-    ``datasets`` is :func:`dataset_files` when the caller has it already.
-    """
-    datasets = dataset_files(project) if datasets is None else datasets
-    paths: list[Path] = [Path(project.path)]
-    for named, files in datasets.items():
-        paths += files if files is not None else [named]
-    if project.overrides:
-        paths.append(Path(project.overrides))
-    for spec in project.storms:
-        for key in ("path", "idf_table"):
-            if isinstance(spec.get(key), str):
-                paths.append((project.base_dir / spec[key]).resolve())
-    out = {}
-    for path in paths:
-        if path.is_file():
-            out[os.path.relpath(path, project.base_dir)] = file_sha256(path)
-    return out
-
-
-def file_sha256(path: str | Path) -> str:
-    """SHA-256 of a file's bytes, read in 1 MB blocks."""
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()

@@ -29,6 +29,7 @@ from ..present.model_inputs import join_model_inputs
 from ..project import Project
 from ..storm import Hyetograph
 from .cells import compute_cells
+from .checksums import dataset_files, file_sha256, input_checksums
 from .chunks import (
     ChunkLoad,
     ChunkOutput,
@@ -39,13 +40,7 @@ from .chunks import (
     sample_rows,
     split_overlay,
 )
-from .inputs import (
-    check_inputs_codes,
-    dataset_files,
-    file_sha256,
-    input_checksums,
-    read_inputs,
-)
+from .inputs import check_inputs_codes, read_inputs
 from .steps import compact_sources, overlay_inputs
 
 __all__ = ["KEEP_STEP_ARRAYS_BELOW", "Progress", "SeriesSink", "UnitSink", "run"]
