@@ -28,12 +28,12 @@ from __future__ import annotations
 import difflib
 from collections.abc import Iterable
 
-from .errors import GisrunError, InputError
+from .errors import GisrunError, InputError, OutputError
 from .units import SYSTEMS
 
-__all__ = ["normalize_name", "did_you_mean", "choose", "Choices", "NODATA_RULES",
-           "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS", "LUMPED_PARAMETER_SETS",
-           "CHOICES"]
+__all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
+           "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
+           "LUMPED_PARAMETER_SETS", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -112,3 +112,20 @@ CHOICES: dict[str, Choices] = {
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
     "lumped_parameters": LUMPED_PARAMETER_SETS,
 }
+
+
+def check_geopackage_name(path: object, where: str) -> None:
+    """Stop when an output path does not end in ``.gpkg``: gisrun writes only GeoPackages.
+
+    Without the check ``result.shp`` silently became a GeoPackage and a name without an
+    extension printed GDAL's warnings about a non-conformant file name.
+
+    Raises
+    ------
+    OutputError
+        Naming ``where`` and the path.
+    """
+    name = str(path)
+    if not name.lower().endswith(".gpkg"):
+        raise OutputError(f"{where} ({name})", "is not a .gpkg file name, and gisrun writes "
+                          "only GeoPackages", "give an output path ending in .gpkg")

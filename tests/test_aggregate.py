@@ -1,3 +1,4 @@
+import dataclasses
 from types import SimpleNamespace
 
 import numpy as np
@@ -63,6 +64,36 @@ def test_mass_balance_fault_is_caught(two_subs):
     loss.excess_m[1, 2] += 1e-6  # water created from nothing in b
     with pytest.raises(MassBalanceError, match="subcatchment b"):
         summarize_subcatchments(loss, params, np.array(["a", "b"], dtype=object), DT)
+
+
+def test_nan_in_the_balance_is_a_breach(two_subs):
+    params, loss = two_subs
+    loss.infil_m[0, 2] = np.nan  # NaN compares false with any tolerance: it must still stop
+    with pytest.raises(MassBalanceError, match="subcatchment b"):
+        summarize_subcatchments(loss, params, np.array(["a", "b"], dtype=object), DT)
+
+
+def test_a_breach_is_an_internal_error_exit_1(tmp_path, capsys, monkeypatch):
+    """README, exit codes: a mass-balance breach is an internal fault (1), not a bad input (2)."""
+    from bad_inputs_helpers import make_project, run_cli
+
+    import gisrun.workflow.steps as steps
+
+    real = steps.run_losses
+
+    def leaky(*args: object, **kwargs: object) -> object:
+        loss = real(*args, **kwargs)
+        excess = loss.excess_m.copy()
+        excess[-1, :] = np.nan  # an engine fault: water turns into NaN
+        return dataclasses.replace(loss, excess_m=excess)
+
+    monkeypatch.setattr(steps, "run_losses", leaky)
+    make_project(tmp_path / "p")
+    code, out, err = run_cli(capsys, ["run", str(tmp_path / "p"), "--output",
+                                      str(tmp_path / "r.gpkg"), "--no-extras", "--quiet"])
+    assert code == 1, err
+    assert "internal error" in err and "mass balance" in err, err
+    assert not (tmp_path / "r.gpkg").exists()
 
 
 def test_series_sums_to_depths(two_subs):

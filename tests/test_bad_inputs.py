@@ -10,9 +10,10 @@ row that matches nothing) are warnings, printed by ``check`` and recorded in the
 
 from __future__ import annotations
 
-import errno
 import os
 import re
+import subprocess
+import sys
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -120,6 +121,23 @@ def _soil_becomes_folder(d: Path) -> None:
 
 
 _TWO = [square(0, 0, 50, 100), square(50, 0, 100, 100)]
+_SOUTH_UP = Affine(10.0, 0.0, X0, 0.0, 10.0, Y0)  # origin at the south-west corner, rows go north
+
+
+def _truncated_soil(d: Path) -> None:
+    """A GeoTIFF whose header is whole but whose cell data stops half-way (a cut-off copy)."""
+    (d / "soil.tif").unlink()
+    fine = np.kron(soil_codes(), np.ones((20, 20), dtype=np.uint8))  # 0.5 m cells, same area
+    write_raster(d / "soil.tif", fine, transform=Affine(0.5, 0.0, X0, 0.0, -0.5, Y0 + 100.0))
+    data = (d / "soil.tif").read_bytes()
+    (d / "soil.tif").write_bytes(data[: len(data) // 2])
+
+
+def _soil_nodata_zero_also_mapped(d: Path) -> None:
+    codes = soil_codes()
+    codes[0, 0] = 0
+    _soil(codes, nodata=0)(d)
+    edit_toml(d / "gisrun.toml", '"1" = "A"', '"0" = "A"\n"1" = "A"')
 _NODATA_WEST = soil_codes()
 _NODATA_WEST[:, :5] = 255  # the whole of S1 has no soil data
 _FLOAT_CODES = soil_codes().astype(np.float32)
@@ -279,6 +297,58 @@ CASES: dict[str, Case] = {
     "unknown lumped parameter choice": Case(
         _toml("[method]", '[method]\nlumped_parameters = "area_weightd"'),
         re.compile(r"\[method\]\.lumped_parameters.*did you mean 'area_weighted'")),
+    # --- issue 14: inputs that stopped with an internal error or a misleading line -----------
+    "south-up soil raster": Case(_soil(soil_codes()[::-1], transform=_SOUTH_UP),
+                                 re.compile(r"soil\.tif.*south-up")),
+    "truncated soil GeoTIFF": Case(_truncated_soil,
+                                   re.compile(r"soil\.tif.*cannot be read.*ends early")),
+    "soil nodata value also a mapped code": Case(
+        _soil_nodata_zero_also_mapped,
+        re.compile(r"soil\.tif.*nodata value 0 is also a class code")),
+    "20-digit raster code": Case(_toml('"1" = "A"', '"1" = "A"\n"12345678901234567890" = "A"'),
+                                 re.compile(r"\[soil\.codes\]\.12345678901234567890.*64 bits")),
+    "storm header names time_min twice": Case(
+        _write("storm.csv", "time_min,time_min\n5,1\n10,1\n"),
+        re.compile(r"storm\.csv:header: names the column 'time_min' twice")),
+    "override column twice": Case(
+        _with_overrides("soil_class,ks_mm_per_h,ks_mm_per_h\nA,3,4\n"),
+        re.compile(r"over\.csv:line 1:ks_mm_per_h: column appears twice")),
+    "UTM coordinates labelled EPSG:4326": Case(
+        _polygons(_TWO, crs="EPSG:4326"), re.compile(r"sub\.gpkg.*id=S1.*outside longitude")),
+    "NaN vertex": Case(_polygons([_TWO[0], Polygon([(X0, Y0), (X0 + 50, Y0), (np.nan, Y0 + 9),
+                                                     (X0, Y0 + 100)])]),
+                       re.compile(r"sub\.gpkg.*id=S2.*NaN or infinite")),
+    "infinite vertex": Case(_polygons([_TWO[0], Polygon([(X0, Y0), (X0 + 50, Y0),
+                                                          (np.inf, Y0 + 9), (X0, Y0 + 100)])]),
+                            re.compile(r"sub\.gpkg.*id=S2.*NaN or infinite")),
+    "coordinates of 1e30": Case(
+        _polygons([_TWO[0], Polygon([(X0, Y0), (1e30, Y0), (1e30, Y0 + 9), (X0, Y0 + 9)])]),
+        re.compile(r"sub\.gpkg.*id=S2.*off the Earth")),
+    "storm row at 1e12 minutes": Case(_write("storm.csv", "time_min,depth_mm\n5,1\n1e12,1\n"),
+                                      re.compile(r"\[\[storms\]\] 1 \(steady\).*2e\+11 steps")),
+    "uniform storm of 1e9 minutes": Case(
+        _toml('kind = "file"\npath = "storm.csv"', 'kind = "uniform"\ndepth = 5\n'
+              "duration_min = 1e9"), re.compile(r"\[\[storms\]\] 1\.duration_min.*2e\+08 steps")),
+    "250-character storm name": Case(_toml('name = "steady"', f'name = "{"s" * 250}"'),
+                                     re.compile(r"\[\[storms\]\].*250 characters")),
+    "output named .shp": Case(_toml('output = "out/result.gpkg"', 'output = "out/result.shp"'),
+                              re.compile(r"\[project\]\.output.*result\.shp.*not a \.gpkg")),
+    "output without an extension": Case(
+        _toml('output = "out/result.gpkg"', 'output = "out/result"'),
+        re.compile(r"\[project\]\.output.*out/result\).*\.gpkg")),
+    "--output named .shp": Case(lambda d: None, re.compile(r"--output.*x\.shp.*\.gpkg"),
+                                commands=("run",), extra=("--output", "x.shp")),
+    "cover raster over the west half only": Case(
+        lambda d: write_raster(d / "cover.tif", np.full((10, 5), 5, dtype=np.uint8)),
+        re.compile(r"cover\.tif.*covers only part of subcatchments S2")),
+    "infinite time step": Case(_toml("time_step_min = 5", "time_step_min = inf"),
+                               re.compile(r"gisrun\.toml:\[project\]\.time_step_min: is inf")),
+    "infinite memory budget": Case(
+        _toml("time_step_min = 5", "time_step_min = 5\nmemory_budget_mb = inf"),
+        re.compile(r"\[project\]\.memory_budget_mb: is inf")),
+    "curve number Ia/S of 0.1": Case(
+        _with_overrides("soil_class,initial_abstraction_ratio\nA,0.1\n"),
+        re.compile(r"over\.csv:line 2:initial_abstraction_ratio: value 0\.1")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),
@@ -293,7 +363,9 @@ CASES: dict[str, Case] = {
         re.compile(r"result\.gpkg.*already exists.*--overwrite"), commands=("run",)),
     "output is the soil raster": Case(
         _toml('output = "out/result.gpkg"', 'output = "soil.tif"'),
-        re.compile(r"soil\.tif: would replace an input of this run \(soil raster"),
+        # refused as an input of the run, or first as not a GeoPackage name: either stops it
+        re.compile(r"soil\.tif(: would replace an input of this run \(soil raster|\): is not "
+                   r"a \.gpkg)"),
         extra=("--overwrite",)),
     "output is the subcatchment file": Case(
         _toml('output = "out/result.gpkg"', 'output = "sub.gpkg"'),
@@ -301,7 +373,8 @@ CASES: dict[str, Case] = {
         extra=("--overwrite",)),
     "output is the project file": Case(
         _toml('output = "out/result.gpkg"', 'output = "gisrun.toml"'),
-        re.compile(r"gisrun\.toml: would replace an input of this run \(project file"),
+        re.compile(r"gisrun\.toml(: would replace an input of this run \(project file|\): is "
+                   r"not a \.gpkg)"),
         extra=("--overwrite",)),
     "output is a hard link to the cover raster": Case(
         _output_linked_to("cover.tif"),
@@ -333,9 +406,31 @@ def test_bad_input_gets_one_clear_line(tmp_path, capsys, name, command):
         assert _files(folder) == before
 
 
-def _files(folder: Path) -> dict[str, bytes]:
-    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*"))
-            if p.is_file()}
+#: Cases that only ``run`` can refuse: they depend on its command-line options.
+RUN_OPTIONS_ONLY = {"output exists without --overwrite": "check has no --overwrite",
+                    "--output named .shp": "check has no --output"}
+
+
+@pytest.mark.parametrize("name", [n for n, c in CASES.items()
+                                  if "run" in c.commands and n not in RUN_OPTIONS_ONLY])
+def test_check_finds_what_run_refuses(tmp_path, capsys, name):
+    """Wherever run exits 2, check (which reads the same project) must fail too."""
+    case = CASES[name]
+    folder = tmp_path / "project"
+    make_project(folder)
+    case.breaks(folder)
+    code, _, err = run_cli(capsys, ["run", str(folder / case.target), *case.extra,
+                                    "--no-extras", "--quiet"])
+    assert code == 2, err
+    code, out, err = run_cli(capsys, ["check", str(folder / case.target)])
+    assert code == 2, (name, err + out)
+    assert any(line.startswith("gisrun: error:") for line in err.splitlines()), err
+
+
+def _files(folder: Path) -> dict[str, bytes | None]:
+    """Every file's bytes and every folder (None) under ``folder``: nothing may be left behind."""
+    return {str(p.relative_to(folder)): p.read_bytes() if p.is_file() else None
+            for p in sorted(folder.rglob("*"))}
 
 
 # --- problems that warn and let the run go on -------------------------------------------------
@@ -441,27 +536,72 @@ def test_geographic_polygons_run_with_geodesic_areas(tmp_path, capsys):
     np.testing.assert_allclose(out["area_m2"], 5000.0 / 0.9996**2, rtol=1e-3)
 
 
-# --- outputs: a full disk, and the checksum rows ----------------------------------------------
+# --- options that need an extra that is not installed ------------------------------------------
 
-def test_full_disk_leaves_no_file_and_keeps_the_earlier_output(tmp_path, capsys, monkeypatch):
-    import gisrun.io.geopackage as output
-
+@pytest.mark.parametrize("option", [("--workers", "2"), ("--scheduler", "synchronous"),
+                                    ("--scheduler", "tcp://127.0.0.1:8786")])
+def test_dask_options_without_dask_get_one_clear_line(tmp_path, capsys, monkeypatch, option):
     folder = tmp_path / "project"
     make_project(folder)
-    target = tmp_path / "out" / "result.gpkg"
-    target.parent.mkdir()
+    for name in ("dask", "distributed"):  # as if the dask extra were not installed
+        monkeypatch.setitem(sys.modules, name, None)
+    before = _files(folder)
+    code, out, err = run_cli(capsys, ["run", str(folder), *option, "--quiet"])
+    assert_one_clear_error(code, err + out, re.compile(rf"{option[0]}: needs dask.*gisrun\[dask\]"))
+    assert _files(folder) == before and not (folder / "out").exists()
+
+
+# --- outputs: a full disk, and the checksum rows ----------------------------------------------
+
+def _mounted_tmpfs(tmp_path: Path, size: str):
+    """A real file system of ``size`` (tmpfs). Mounting needs root (as in CI), else skip."""
+    if os.geteuid() != 0:
+        pytest.skip("mounting a small file system needs root")
+    mount = tmp_path / "small"
+    mount.mkdir()
+    done = subprocess.run(["mount", "-t", "tmpfs", "-o", f"size={size}", "tmpfs", str(mount)],
+                          capture_output=True, check=False)
+    if done.returncode != 0:
+        pytest.skip(f"cannot mount a tmpfs here: {done.stderr.decode().strip()}")
+    yield mount
+    subprocess.run(["umount", str(mount)], check=True)
+
+
+@pytest.fixture
+def small_disk(tmp_path):
+    """128 KiB: too small for the tiny project's GeoPackage."""
+    yield from _mounted_tmpfs(tmp_path, "128k")
+
+
+@pytest.fixture
+def disk_for_the_geopackage_only(tmp_path):
+    """256 KiB: the tiny project's GeoPackage fits, its maps and rasters do not."""
+    yield from _mounted_tmpfs(tmp_path, "256k")
+
+
+def test_full_disk_leaves_no_file_and_keeps_the_earlier_output(tmp_path, capsys, small_disk):
+    """GDAL's own failure on a full file system ("database or disk is full"), not a mock."""
+    folder = tmp_path / "project"
+    make_project(folder)
+    target = small_disk / "result.gpkg"
     target.write_bytes(b"earlier output")
-
-    def full(*_args: object, **_kw: object) -> None:
-        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
-
-    monkeypatch.setattr(output, "write_layers_into", full)
     code, out, err = run_cli(capsys, ["run", str(folder), "--output", str(target), "--overwrite",
                                       "--no-extras", "--quiet"])
     line = assert_one_clear_error(code, err + out, "result.gpkg")
-    assert "No space left on device" in line and "disk space" in line
+    assert "the disk is full" in line and "free disk space" in line
     assert target.read_bytes() == b"earlier output"
-    assert sorted(p.name for p in target.parent.iterdir()) == ["result.gpkg"]
+    assert sorted(p.name for p in small_disk.iterdir()) == ["result.gpkg"]
+
+
+def test_full_disk_while_writing_extras_leaves_nothing(tmp_path, capsys,
+                                                      disk_for_the_geopackage_only):
+    folder = tmp_path / "project"
+    make_project(folder)
+    target = disk_for_the_geopackage_only / "result.gpkg"
+    code, out, err = run_cli(capsys, ["run", str(folder), "--output", str(target), "--quiet"])
+    line = assert_one_clear_error(code, err + out, "result_files")
+    assert "No space left on device" in line and "free disk space" in line
+    assert list(disk_for_the_geopackage_only.iterdir()) == []
 
 
 def test_changing_an_input_changes_its_checksum_row(tmp_path, capsys):

@@ -17,6 +17,8 @@ from ..errors import OutputExistsError
 from ..io.commit import OutputSet
 from ..io.files import refuse_inputs_among
 from ..model import CAUTION, RunResult
+from ..options import check_geopackage_name
+from ..workflow.chunks import require_dask
 from ..workflow.inputs import read_subcatchment_layer
 from ..workflow.stream import run_and_write
 from ..write.extras import Deliverables, ExtrasOptions, check_plot_ids, extras_folder, write_extras
@@ -61,6 +63,8 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
     if into is not None and output is not None:
         raise click.UsageError("give either --output or --into, not both")
     target = Path(into or output or loaded.output)
+    check_geopackage_name(target, "--into" if into else "--output" if output else "output")
+    require_dask(workers, scheduler)
     _refuse_existing(target, into=into, extras=not no_extras, overwrite=overwrite)
     refuse_inputs_among(([] if into else [target]) + ([] if no_extras else
                                                       [extras_folder(target)]),

@@ -9,6 +9,7 @@ line and exits 2.
 
 from __future__ import annotations
 
+from contextlib import nullcontext
 from pathlib import Path
 from typing import Any
 
@@ -69,11 +70,15 @@ def make(units_name: str, output: Path, overwrite: bool, plot_path: Path | None,
                             {"--idf-table": options["idf_table"]})
     spec = _spec_from_options(options)
     h = storm_from_config(spec, base_dir=Path.cwd(), units=units, where="gisrun storm make")
-    write_hyetograph_csv(h, output, units=units, overwrite=overwrite)
+    # the plot's temporary file is made first: an unwritable --plot path stops before the CSV
+    plotting = atomic_target(plot_path, overwrite=True) if plot_path else nullcontext(None)
+    with plotting as plot_tmp:
+        if plot_tmp is not None:
+            _storm_figure(h, units).savefig(plot_tmp, format="png", dpi=110)
+        write_hyetograph_csv(h, output, units=units, overwrite=overwrite)
     _echo_summary(h, units)
     click.echo(f"wrote {output}")
     if plot_path is not None:
-        _plot(h, plot_path, units)
         click.echo(f"wrote {plot_path}")
     click.echo(f"Caution: {STORM_CAUTION}")
 

@@ -49,6 +49,7 @@ from ..options import (
     NODATA_RULES,
     UNIT_SYSTEMS,
     Choices,
+    check_geopackage_name,
 )
 from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_labels
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
@@ -149,11 +150,13 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
             for name in _SCHEMA if name}
     top, method = read["project"], read["method"]
     step_min = top.number("time_step_min", default=5.0, low=0.0, low_open=True)
+    output = top.path("output", default="output/runoff.gpkg")
+    check_geopackage_name(output, top.where("output"))
     project = Project(
         path=file,
         name=top.string("name", default=file.parent.name) or file.parent.name,
         units=unit_system(top.choice("units", UNIT_SYSTEMS)),
-        output=top.path("output", default="output/runoff.gpkg"),
+        output=output,
         time_step_s=step_min * 60.0,
         subcatchments=_subcatchments(read["subcatchments"]),
         soil=_soil(read["soil"]),

@@ -155,6 +155,9 @@ class TableReader:
             except ValueError:
                 table.fail(str(key), "is not a whole-number raster code",
                            "use integer codes as keys, e.g. \"1\" = \"A\"")
+            if not _INT64_MIN <= code <= _INT64_MAX:
+                table.fail(str(key), "is beyond any raster band's whole numbers (64 bits)",
+                           "use the code the raster holds (check the raster's values)")
             if not isinstance(label, str) or not label.strip():
                 table.fail(str(key), f"maps to {label!r}",
                            "map each code to a class name in quotes")
@@ -164,6 +167,9 @@ class TableReader:
                                  "keep one entry per raster code")
             codes[code], keys[code] = label.strip(), str(key)
         return codes
+
+
+_INT64_MIN, _INT64_MAX = -(2**63), 2**63 - 1
 
 
 def _range_text(low: float, high: float, low_open: bool) -> str:

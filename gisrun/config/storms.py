@@ -20,7 +20,15 @@ from typing import Any
 from ..errors import StormError
 from ..io.storm_csv import read_hyetograph_csv, read_idf_table_csv, warn_if_implausible
 from ..options import did_you_mean
-from ..storm import KINDS, Hyetograph, IdfFormula, IdfTable, StormKey, StormKind
+from ..storm import (
+    KINDS,
+    Hyetograph,
+    IdfFormula,
+    IdfTable,
+    StormKey,
+    StormKind,
+    check_step_count,
+)
 from ..units import UnitSystem, to_si
 from .reader import StormTableError, TableReader
 
@@ -132,6 +140,9 @@ def _design_storm(kind: StormKind, table: TableReader, units: UnitSystem,
             continue
         args[key.arg], shown[key.name] = _value(key, table, units)
     name = name or kind.default_name.format(**shown)
+    if "duration_s" in args and "step_s" in args:  # before the builder allocates the steps
+        check_step_count(args["duration_s"], args["step_s"], f"{table.at}.duration_min",
+                         "shorten the storm or give a longer step_min")
     try:
         return kind.build(**args, name=name)
     except StormError as err:

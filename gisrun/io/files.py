@@ -22,7 +22,8 @@ from pathlib import Path
 from ..errors import OutputError
 from .commit import OutputSet, output_set
 
-__all__ = ["atomic_target", "refuse_inputs_among", "same_path", "staged_folder"]
+__all__ = ["atomic_target", "new_folders_removed_on_failure", "refuse_inputs_among", "same_path",
+           "staged_folder"]
 
 
 @contextmanager
@@ -120,3 +121,18 @@ def same_path(a: Path, b: Path) -> bool:
 def _same_or_inside(path: Path, output: Path) -> bool:
     return same_path(path, output) or Path(os.path.realpath(output)) in Path(
         os.path.realpath(path)).parents
+
+
+@contextmanager
+def new_folders_removed_on_failure(folder: Path) -> Iterator[None]:
+    """Remove the (empty) folders made for an output that was never written."""
+    new = [p for p in (folder, *folder.parents) if not p.exists()]
+    try:
+        yield
+    except BaseException:
+        for path in new:  # deepest first; a folder something else put a file in stays
+            try:
+                path.rmdir()
+            except OSError:
+                break
+        raise

@@ -12,6 +12,7 @@ through Arrow (pyarrow is a dependency): about 2.5x faster for long tables
 
 from __future__ import annotations
 
+import shutil
 import sqlite3
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from contextlib import closing, contextmanager
@@ -20,10 +21,11 @@ from pathlib import Path
 import geopandas as gpd
 import pandas as pd
 import pyogrio
+from pyogrio.errors import DataLayerError, DataSourceError, FieldError
 
 from ..errors import OutputError, OutputExistsError
 from .commit import OutputSet, output_set
-from .files import atomic_target
+from .files import atomic_target, new_folders_removed_on_failure
 from .gpkg_merge import merge_layers
 
 __all__ = [
@@ -306,11 +308,38 @@ def open_output(target: str | Path, *, into_existing: bool, overwrite: bool,
     set's commit, together with the set's other outputs.
     """
     if into_existing:
-        with existing_geopackage_copy(target, overwrite=overwrite, outputs=outputs) as opened:
+        with existing_geopackage_copy(target, overwrite=overwrite, outputs=outputs) as opened, \
+                _write_errors(Path(target)):
             yield opened
         return
-    with atomic_target(target, overwrite=overwrite, outputs=outputs) as tmp:
+    with new_folders_removed_on_failure(Path(target).parent), \
+            atomic_target(target, overwrite=overwrite, outputs=outputs) as tmp, \
+            _write_errors(Path(target)):
         yield tmp, _no_check
+
+
+#: Free space below which a failed write is put down to a full disk.
+_FULL_DISK_BYTES = 1 << 20
+
+
+@contextmanager
+def _write_errors(target: Path) -> Iterator[None]:
+    """GDAL's and SQLite's write errors as one line naming the output (exit 2, not 1).
+
+    A full disk reaches us as GDAL's "database or disk is full", or as a later error of the
+    same write ("no such table", "cannot rollback"); the free space left tells them apart.
+    """
+    try:
+        yield
+    except (DataSourceError, DataLayerError, FieldError, sqlite3.Error) as err:
+        try:
+            full = shutil.disk_usage(target.parent).free < _FULL_DISK_BYTES
+        except OSError:
+            full = False
+        reason = "the disk is full" if full else f"GDAL: {err}"
+        raise OutputError(str(target), f"could not be written ({reason})",
+                          "free disk space or choose another output folder, then run again"
+                          ) from None
 
 
 def _no_check(_: Iterable[str]) -> None:

@@ -78,6 +78,10 @@ class ClassRaster:
         if t.b != 0 or t.d != 0:
             raise RasterError(self.where or self.path, "grid is rotated or sheared",
                               "warp it to a north-up grid (nearest neighbour) first")
+        if t.e > 0:
+            raise RasterError(self.where or self.path, "grid is south-up (positive cell height "
+                              f"{t.e:g})", "warp it to a north-up grid first (gdalwarp, "
+                              "nearest neighbour)")
         if self.width <= 0 or self.height <= 0:
             raise RasterError(self.where or self.path, "raster has no cells", "use another raster")
 
@@ -107,8 +111,7 @@ class ClassRaster:
         """
         win = self._as_window(window)
         with self._open() as src:
-            codes = src.read(self.band, window=win)
-            return codes, src.window_transform(win)
+            return self._read(src, win), src.window_transform(win)
 
     def unknown_codes(self, codes: Iterable[int],
                       bounds: tuple[float, float, float, float] | None = None) -> list[int]:
@@ -143,7 +146,16 @@ class ClassRaster:
         step = max(1, SCAN_BLOCK_CELLS // max(1, c1 - c0))
         with self._open() as src:
             for r in range(r0, r1, step):
-                yield src.read(self.band, window=Window(c0, r, c1 - c0, min(step, r1 - r)))
+                yield self._read(src, Window(c0, r, c1 - c0, min(step, r1 - r)))
+
+    def _read(self, src: Any, win: Window) -> NDArray[Any]:
+        """Read one window; a file that ends early or is damaged is the raster's problem."""
+        try:
+            return src.read(self.band, window=win)
+        except RasterioIOError as err:
+            raise RasterError(self.where or self.path, f"cannot be read at rows {win.row_off}-"
+                              f"{win.row_off + win.height} (the file ends early or is damaged)",
+                              "copy or export the raster again") from err
 
     def _as_window(self, window: Any) -> Window:
         if isinstance(window, Window):
@@ -241,6 +253,7 @@ def read_class_raster(path: str | Path, *, codes: Mapping[int, str] | None = Non
                              width=src.width, height=src.height, nodata=src.nodatavals[band - 1],
                              res=(abs(t.a), abs(t.e)), where=name, dtype=src.dtypes[band - 1])
         _warn_if_untiled(src, band, name)
+    _check_nodata_not_a_code(raster, codes)
     if np.dtype(raster.dtype).kind == "f":
         _check_integer_values(raster, codes)
     return raster
@@ -258,6 +271,17 @@ def _warn_if_untiled(src: Any, band: int, name: str) -> None:
             f"{name}: stored in strips of whole rows ({block_rows} x {block_cols} blocks), so "
             "each window reads whole rows; a tiled copy reads faster (e.g. gdal_translate -co "
             "TILED=YES -co COMPRESS=DEFLATE)"), stacklevel=3)
+
+
+def _check_nodata_not_a_code(raster: ClassRaster, codes: Mapping[int, str] | None) -> None:
+    """Stop when the nodata value is also a mapped code: its cells would silently vanish."""
+    nodata = raster.nodata
+    if not codes or nodata is None or not math.isfinite(nodata) or nodata not in codes:
+        return
+    raise RasterError(raster.where, f"its nodata value {nodata:g} is also a class code in the "
+                      f"code table ({codes[int(nodata)]!r}), so those cells would count as "
+                      "missing", "give the raster another nodata value (gdal_edit -a_nodata) or "
+                      "remove that code from the table")
 
 
 def _check_integer_values(raster: ClassRaster, codes: Mapping[int, str] | None) -> None:

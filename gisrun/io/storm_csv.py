@@ -138,6 +138,10 @@ def _read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]], str 
 
 
 def _columns(header: list[str], src: str) -> tuple[str, str]:
+    twice = next((h for h in header if header.count(h) > 1), None)
+    if twice is not None:
+        raise StormError(f"{src}:header", f"names the column {twice!r} twice",
+                         "keep one time column and one value column, e.g. 'time_min,depth_mm'")
     if len(header) != 2:
         unknown = [h for h in header if h not in _TIME_COLUMNS and h not in _VALUE_COLUMNS]
         bad = unknown[0] if unknown else ",".join(header)

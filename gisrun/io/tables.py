@@ -55,6 +55,11 @@ def read_parameter_overrides(path: str | Path) -> pd.DataFrame:
         raise ParameterError(str(path), "has no header and data rows",
                              "add a header row and at least one row of values")
     header_fields = next(csv.reader([numbered[0][1]]))
+    names = [f.strip() for f in header_fields]
+    twice = next((f for f in names if names.count(f) > 1), None)
+    if twice is not None:
+        raise ParameterError(f"{path}:line {numbered[0][0]}:{twice}", "column appears twice in "
+                             "the header", "keep one column of each name")
     for n, line in numbered[1:]:
         if len(next(csv.reader([line]))) != len(header_fields):
             raise ParameterError(

@@ -16,6 +16,7 @@ import numpy as np
 import pyogrio
 import shapely
 from pyogrio.errors import DataLayerError, DataSourceError
+from pyproj import CRS
 
 from ..crs import checked_crs
 from ..errors import GisrunWarning, VectorError
@@ -154,6 +155,7 @@ def _checked_geometry(gdf: gpd.GeoDataFrame, here: str) -> gpd.GeoSeries:
         raise VectorError(f"{here}:id={ids[bad][0]}",
                           f"{types} geometries are not polygons (ids {ids[bad][:10].tolist()})",
                           "give a polygon layer")
+    _check_coordinates(geoms, ids, here, gdf.crs)
     geoms = _repaired(geoms, ids, here)
     zero = shapely.area(geoms) <= 0
     if zero.any():
@@ -161,6 +163,39 @@ def _checked_geometry(gdf: gpd.GeoDataFrame, here: str) -> gpd.GeoSeries:
                           f"polygons with zero area (ids {ids[zero][:10].tolist()})",
                           "fix or remove these polygons")
     return gpd.GeoSeries(geoms, index=gdf.index, crs=gdf.crs)
+
+
+#: Farther than this from a projected CRS's origin (in its units, metres or feet) is off the
+#: Earth: its circumference is about 4.0e7 m, 1.3e8 ft.
+_FARTHEST_PROJECTED = 1e9
+
+
+def _check_coordinates(geoms: np.ndarray, ids: np.ndarray, here: str, crs: object) -> None:
+    """Stop on NaN or infinite vertices, and on coordinates no place on Earth has in the CRS.
+
+    A layer of metres labelled with a geographic CRS (UTM coordinates marked EPSG:4326) has
+    "longitudes" in the hundreds of thousands; the label, not the data, is usually wrong.
+    """
+    xy, index = shapely.get_coordinates(geoms, return_index=True)
+    bad = ~np.isfinite(xy).all(axis=1)
+    if bad.any():
+        raise VectorError(f"{here}:id={ids[index[bad][0]]}", "has NaN or infinite vertex "
+                          f"coordinates (ids {list(dict.fromkeys(ids[index[bad]]))[:10]})",
+                          "fix or redraw these polygons")
+    geographic = crs is not None and CRS.from_user_input(crs).is_geographic
+    if geographic:
+        bad = (np.abs(xy[:, 0]) > 360.0) | (np.abs(xy[:, 1]) > 90.0 + 1e-9)
+        problem = "has coordinates outside longitude -360..360 / latitude -90..90"
+        fix = ("the layer is labelled with a geographic CRS but holds other coordinates: "
+               "assign its true CRS (e.g. ogr2ogr -a_srs EPSG:32617) or reproject it")
+    else:
+        bad = (np.abs(xy) > _FARTHEST_PROJECTED).any(axis=1)
+        problem = f"has coordinates beyond {_FARTHEST_PROJECTED:g} CRS units, off the Earth"
+        fix = "check the layer's CRS and the polygons' coordinates"
+    if bad.any():
+        x, y = xy[bad][0]
+        raise VectorError(f"{here}:id={ids[index[bad][0]]}", f"{problem} (e.g. {x:g}, {y:g})",
+                          fix)
 
 
 def _repaired(geoms: np.ndarray, ids: np.ndarray, here: str) -> np.ndarray:

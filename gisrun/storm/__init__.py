@@ -16,11 +16,13 @@ from .design import (
     nrcs_24h_table,
     uniform,
 )
-from .hyetograph import Hyetograph, max_depth_in_window_m
+from .hyetograph import MAX_STEPS, Hyetograph, check_step_count, max_depth_in_window_m
 from .idf import IdfFormula, IdfTable
 from .resampling import peak_window_s, resampling_note
 
 __all__ = [
+    "MAX_STEPS",
+    "check_step_count",
     "KINDS",
     "NRCS_DISTRIBUTIONS",
     "Hyetograph",

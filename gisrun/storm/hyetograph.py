@@ -25,10 +25,30 @@ from numpy.typing import ArrayLike, NDArray
 
 from ..errors import StormError
 
-__all__ = ["Hyetograph", "max_depth_in_window_m", "step_edges", "check_positive",
-           "frozen_array", "REL_TOL", "FloatArray"]
+__all__ = ["Hyetograph", "MAX_STEPS", "check_step_count", "max_depth_in_window_m",
+           "step_edges", "check_positive", "frozen_array", "REL_TOL", "FloatArray"]
 
 FloatArray = NDArray[np.float64]
+#: Most time steps a storm may have on the run's step: 2 million is 3.8 years of 1-minute steps
+#: (a rain array of 16 MB per unit); more is a typing slip (a time in seconds written as
+#: minutes) that would otherwise try to allocate terabytes before anything is checked.
+MAX_STEPS = 2_000_000
+
+
+def check_step_count(duration_s: float, step_s: float, where: str, fix: str) -> None:
+    """Stop before allocating when ``duration_s`` on ``step_s`` is more than :data:`MAX_STEPS`.
+
+    Raises
+    ------
+    StormError
+        Naming ``where``, the step count and ``fix``.
+    """
+    steps = duration_s / step_s
+    if not steps <= MAX_STEPS:
+        raise StormError(where, f"lasts {duration_s / 60:g} minutes, {steps:.3g} steps of "
+                         f"{step_s / 60:g} minutes (at most {MAX_STEPS:,} are allowed)", fix)
+
+
 REL_TOL = 1e-9  # relative tolerance for "the duration is a whole number of steps"
 
 

@@ -15,7 +15,7 @@ from typing import Any, TypeVar
 import geopandas as gpd
 
 from ..config.project import load_project
-from ..errors import GisrunError, GisrunWarning
+from ..errors import GisrunError, GisrunWarning, OutputError
 from ..io.files import refuse_inputs_among
 from ..io.raster import ClassRaster
 from ..model import Inputs
@@ -33,7 +33,7 @@ from .inputs import (
 )
 from .steps import overlay_inputs, prepare_parameters
 
-__all__ = ["check_project"]
+__all__ = ["check_project", "check_output_path"]
 
 T = TypeVar("T")
 
@@ -66,6 +66,7 @@ def check_project(path: str | Path) -> tuple[list[str], list[str]]:
 
 def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     """Run every reader and the overlay and parameter steps; return their notes."""
+    _attempt(problems, check_output_path, project.output)
     subs = _attempt(problems, read_subcatchment_layer, project)
     soil = _attempt(problems, read_soil, project)
     cover = _attempt(problems, read_cover, project)
@@ -76,10 +77,10 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
         if storms is not None:
             _attempt(problems, warn_if_rain_scale_implausible, project, subs, storms)
     codes_ok = soil is not None and _check_codes(problems, soil, subs, project.soil.codes,
-                                                 project.where("soil"))
+                                                 project.where("soil"), project)
     if project.cover is not None and cover is not None:
         codes_ok &= _check_codes(problems, cover, subs, project.cover.codes,
-                                 project.where("cover"))
+                                 project.where("cover"), project)
     storm_notes = _resampling_notes(project, storms or ())
     missing_cover = project.cover is not None and cover is None
     if subs is None or missing_cover or storms is None or not codes_ok:
@@ -99,9 +100,29 @@ def _resampling_notes(project: Project, storms: tuple[Hyetograph, ...]) -> list[
             if (note := resampling_note(h, project.time_step_s, units=project.units))]
 
 
+def check_output_path(target: Path) -> None:
+    """Stop where ``run`` would: the output is a folder, or a file stands where a folder must.
+
+    Raises
+    ------
+    OutputError
+        With the same line ``run`` prints.
+    """
+    target = Path(target)
+    if target.is_dir():
+        raise OutputError(str(target), "is a folder", "give a file path for the output")
+    for path in target.parents:
+        if path.exists():
+            if not path.is_dir():
+                raise OutputError(str(path), "is a file, not a folder, so the output cannot go "
+                                  "under it", "choose another output path")
+            return
+
+
 def _check_codes(problems: list[str], raster: ClassRaster, subs: gpd.GeoDataFrame | None,
-                 codes: dict[int, str], where: str) -> bool:
-    return _attempt(problems, check_raster_codes, raster, subs, codes, where) is not None
+                 codes: dict[int, str], where: str, project: Project) -> bool:
+    return _attempt(problems, check_raster_codes, raster, subs, codes, where,
+                    max_fraction=project.max_nodata_fraction) is not None
 
 
 def _attempt(problems: list[str], func: Callable[..., T], *args: Any, **kwargs: Any) -> T | None:

@@ -2,14 +2,13 @@
 
 Every reader checks its own file; this module adds the checks that need two
 inputs at once (raster codes under the subcatchments, storm names that would
-share a layer) and the checksums that trace a result to its inputs.
+share a layer). The checksums that trace a result to its inputs are in
+:mod:`gisrun.workflow.checksums`.
 """
 
 from __future__ import annotations
 
 import dataclasses
-import hashlib
-import os
 import warnings
 from pathlib import Path
 
@@ -30,7 +29,7 @@ from ..model import Inputs
 from ..parameters.tables import UNSPECIFIED_COVER_STANDS_FOR, cover_table
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
-from ..storm import Hyetograph
+from ..storm import Hyetograph, check_step_count
 
 __all__ = [
     "read_inputs",
@@ -46,9 +45,11 @@ __all__ = [
     "warn_if_rain_scale_implausible",
     "subcatchment_overlaps",
     "check_overlaps",
-    "input_checksums",
-    "file_sha256",
 ]
+
+
+#: Longest storm name: its output files add a prefix and suffix, and file names stop at 255.
+MAX_STORM_NAME = 100
 
 
 def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
@@ -115,6 +116,10 @@ def read_storms(project: Project) -> tuple[Hyetograph, ...]:
     storms = tuple(storms_from_config(list(project.storms), base_dir=project.base_dir,
                                       units=project.units, where=where))
     check_storm_names([h.name for h in storms], where)
+    for i, h in enumerate(storms, start=1):  # before anything is resampled onto the run's step
+        check_step_count(float(h.time_s[-1]), project.time_step_s, f"{where} {i} ({h.name})",
+                         "shorten the storm or lengthen "
+                         f"{project.where('project', 'time_step_min')}")
     return storms
 
 
@@ -126,6 +131,11 @@ def check_storm_names(names: list[str], where: str) -> None:
     StormError
         Naming both storms.
     """
+    for name in names:  # file names of maps and rasters are built from it; most systems
+        if len(layer_name(name)) > MAX_STORM_NAME:  # stop file names at 255 bytes
+            raise StormError(where, f"storm name {name[:40]!r}... is {len(name)} characters "
+                             "long, too long for the file names of its outputs",
+                             f"give it a name of at most {MAX_STORM_NAME} characters")
     for naming in (storm_layer_name, layer_name):
         seen: dict[str, str] = {}
         for name in names:
@@ -267,10 +277,12 @@ def check_overlaps(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame:
 
 
 def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
-                       codes: dict[int, str], where: str) -> bool:
+                       codes: dict[int, str], where: str, *,
+                       max_fraction: float | None = None) -> bool:
     """Raise if the raster holds, under the subcatchments, codes missing from ``codes``.
 
-    With ``subs`` None the whole raster is scanned.
+    With ``subs`` None the whole raster is scanned. With ``max_fraction`` the raster's
+    extent is checked first (:func:`check_raster_extent`).
 
     Raises
     ------
@@ -278,6 +290,8 @@ def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
         Listing the unknown codes and the project file table to add them to.
     """
     bounds = None if subs is None else _bounds_in(subs, raster.crs)
+    if subs is not None and max_fraction is not None:
+        check_raster_extent(raster, subs, max_fraction)
     unknown = raster.unknown_codes(codes, bounds)
     if len(unknown):
         listed = ", ".join(str(int(c)) for c in sorted(unknown)[:10])
@@ -286,6 +300,38 @@ def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
             "add each code and its class to that table in the project file",
         )
     return True
+
+
+def check_raster_extent(raster: ClassRaster, subs: gpd.GeoDataFrame, max_fraction: float
+                        ) -> None:
+    """Stop, naming this raster, when it leaves more than ``max_fraction`` of a polygon uncovered.
+
+    The overlay sees the soil and cover rasters' missing cells together; this check tells
+    which raster falls short, so a cover raster that covers half the area is not reported as
+    a soil problem.
+
+    Raises
+    ------
+    RasterError
+        Naming the raster, the subcatchments and how much of each it covers.
+    """
+    geoms = subs.geometry
+    if geoms.crs is not None and CRS.from_user_input(geoms.crs) != CRS.from_user_input(raster.crs):
+        geoms = geoms.to_crs(raster.crs)
+    with warnings.catch_warnings():  # a ratio of planar areas, also in degrees
+        warnings.simplefilter("ignore", UserWarning)
+        area = geoms.area.to_numpy()
+        inside = geoms.intersection(shapely.box(*raster.bounds)).area.to_numpy()
+    outside = np.divide(area - inside, area, out=np.zeros_like(area), where=area > 0)
+    over = outside > max_fraction + 1e-9
+    if over.any():
+        ids = subs["subcatchment_id"].to_numpy()[over][:10]
+        shares = ", ".join(f"{i} ({1 - f:.0%})" for i, f in zip(ids, outside[over], strict=False))
+        raise RasterError(raster.where or Path(raster.path).name,
+                          f"covers only part of subcatchments {shares}, more than "
+                          f"{max_fraction:.0%} of their area lies outside this raster",
+                          "extend this raster over every subcatchment, or raise [nodata] "
+                          "max_fraction")
 
 
 def _bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, float]:
@@ -300,34 +346,7 @@ def _bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, f
 def check_inputs_codes(project: Project, inputs: Inputs) -> None:
     """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`)."""
     check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
-                       project.where("soil"))
+                       project.where("soil"), max_fraction=project.max_nodata_fraction)
     if inputs.cover is not None and project.cover is not None:
         check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
-                           project.where("cover"))
-
-
-def input_checksums(project: Project) -> dict[str, str]:
-    """SHA-256 of every input file, so a result can be traced to its inputs."""
-    paths = [project.path, project.subcatchments.path, project.soil.path]
-    if project.cover:
-        paths.append(project.cover.path)
-    if project.overrides:
-        paths.append(project.overrides)
-    for spec in project.storms:
-        for key in ("path", "idf_table"):
-            if isinstance(spec.get(key), str):
-                paths.append((project.base_dir / spec[key]).resolve())
-    out = {}
-    for path in paths:
-        if Path(path).is_file():
-            out[os.path.relpath(path, project.base_dir)] = file_sha256(path)
-    return out
-
-
-def file_sha256(path: str | Path) -> str:
-    """SHA-256 of a file's bytes, read in 1 MB blocks."""
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
+                           project.where("cover"), max_fraction=project.max_nodata_fraction)

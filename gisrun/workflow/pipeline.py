@@ -28,6 +28,7 @@ from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
 from .cells import compute_cells
+from .checksums import dataset_files, file_sha256, input_checksums
 from .chunks import (
     ChunkLoad,
     ChunkOutput,
@@ -38,7 +39,7 @@ from .chunks import (
     sample_rows,
     split_overlay,
 )
-from .inputs import check_inputs_codes, file_sha256, input_checksums, read_inputs
+from .inputs import check_inputs_codes, read_inputs
 from .steps import compact_sources, overlay_inputs
 
 __all__ = ["KEEP_STEP_ARRAYS_BELOW", "Progress", "SeriesSink", "UnitSink", "run"]
@@ -128,15 +129,18 @@ def run(
     rains = tuple(h.resample(project.time_step_s) for h in inputs.storms)
     resampled = [note for h, rain in zip(inputs.storms, rains, strict=True)
                  if (note := resampling_note(h, project.time_step_s, rain, project.units))]
-    checksums = input_checksums(project)
-    cache_key, cached = _cached_overlay(project, checksums)
+    datasets = dataset_files(project)
+    checksums = input_checksums(project, datasets)
+    with warnings.catch_warnings(record=True) as refused:
+        warnings.simplefilter("always", GisrunWarning)
+        cache_key, cached = _cached_overlay(project, datasets, checksums)
     tasks = _tasks(project, inputs, rains, cached, keep_loss=keep_loss, cells=cells)
     if cached is not None:
         say(f"overlay read from the cache ({project.overlay_cache.name}/overlay-{cache_key})")
     say(f"overlay, parameters and {len(inputs.storms)} storm(s) in {len(tasks)} chunk(s)")
     outputs = list(_stream(execute(tasks, workers=workers, scheduler=scheduler), inputs,
                            series_sink, unit_sink))
-    notes = [*inputs.notes, *(str(w.message) for w in caught
+    notes = [*inputs.notes, *(str(w.message) for w in [*caught, *refused]
                               if issubclass(w.category, GisrunWarning)), *resampled]
     notes += [n for out in outputs for n in out.notes]
     cell_rasters = None
@@ -226,16 +230,28 @@ def _cells_per_subcatchment(inputs: Inputs) -> float:
     return best
 
 
-def _cached_overlay(project: Project, checksums: dict[str, str]
-                    ) -> tuple[str | None, Overlay | None]:
-    """(key, stored overlay or None) when the project asks for an overlay cache."""
+def _cached_overlay(project: Project, datasets: dict[Path, list[Path] | None],
+                    checksums: dict[str, str]) -> tuple[str | None, Overlay | None]:
+    """(key, stored overlay or None) when the project asks for an overlay cache.
+
+    The key covers every file GDAL reads for the three datasets (a shapefile's ``.dbf``, a
+    VRT's sources, a GeoPackage's ``-wal``); where those files cannot be told the cache is
+    not used, with a warning, rather than risk serving an overlay of other polygons.
+    """
     if project.overlay_cache is None:
         return None, None
-    files = [project.subcatchments.path, project.soil.path]
-    if project.cover:
-        files.append(project.cover.path)
-    digests = [checksums.get(os.path.relpath(f, project.base_dir)) or file_sha256(f)
-               for f in files]
+    unknown = [str(named) for named, files in datasets.items() if files is None]
+    if unknown:
+        warnings.warn(GisrunWarning(
+            f"{unknown[0]}: the overlay cache was not used, as the files GDAL reads for this "
+            "dataset cannot be listed (give a GeoPackage, shapefile, GeoJSON, FlatGeobuf or "
+            "a local raster to use the cache)"), stacklevel=3)
+        return None, None
+    digests = []
+    for files in datasets.values():
+        for f in files or ():
+            name = os.path.relpath(f, project.base_dir)
+            digests.append(f"{name}={checksums.get(name) or file_sha256(f)}")
     key = overlay_key(project, digests)
     return key, load_overlay(project.overlay_cache, key)
 

@@ -24,7 +24,7 @@ from ..config.project import load_project
 from ..errors import OutputError
 from ..io import geopackage
 from ..io.commit import OutputSet, output_set
-from ..io.files import refuse_inputs_among
+from ..io.files import new_folders_removed_on_failure, refuse_inputs_among
 from ..io.geopackage import LayerCheck
 from ..model import Inputs, RunResult
 from ..present.layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
@@ -95,7 +95,8 @@ def run_and_write(
     large = len(inputs.subcatchments) >= KEEP_STEP_ARRAYS_BELOW
     names = ["excess_series", "run_info", *UNIT_LAYERS,
              *(storm_layer_name(h.name) for h in inputs.storms)]
-    with output_set() as outputs:  # the GeoPackage and the extras are moved in together
+    with new_folders_removed_on_failure(target.parent), \
+            output_set() as outputs:  # the GeoPackage and the extras are moved in together
         opened = geopackage.open_output(target, into_existing=into is not None,
                                         overwrite=overwrite, outputs=outputs)
         with opened as (tmp, check):

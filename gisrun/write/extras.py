@@ -34,7 +34,7 @@ from pathlib import Path
 import geopandas as gpd
 import pandas as pd
 
-from ..errors import VectorError
+from ..errors import OutputError, VectorError
 from ..io.commit import OutputSet
 from ..io.files import atomic_target, refuse_inputs_among, staged_folder
 from ..io.geopackage import write_csv
@@ -221,13 +221,21 @@ def write_extras(result: RunResult, gpkg: str | Path, *, overwrite: bool = False
     OutputExistsError
         If the folder exists and ``overwrite`` is false.
     OutputError
-        If the folder holds an input of the run.
+        If the folder holds an input of the run, or cannot be written (a full disk).
     """
     gpkg = Path(gpkg)
     folder = extras_folder(final_gpkg if final_gpkg is not None else gpkg)
     refuse_inputs_among([folder], result.project.input_files())
-    with staged_folder(folder, overwrite=overwrite, outputs=outputs) as tmp:
-        made = write_deliverables(result, tmp, options=options, gpkg=gpkg, progress=progress)
+    try:
+        with staged_folder(folder, overwrite=overwrite, outputs=outputs) as tmp:
+            made = write_deliverables(result, tmp, options=options, gpkg=gpkg,
+                                      progress=progress)
+    except OSError as err:
+        if isinstance(err, OutputError):
+            raise
+        raise OutputError(str(folder), f"could not be written ({err.strerror or err})",
+                          "free disk space or choose another output folder, then run again"
+                          ) from None
     if any(s.loss is None for s in result.storms):
         made.notes.append("infiltration plots skipped: the run did not keep per-unit step arrays")
     return made.moved_to(folder)

@@ -110,3 +110,16 @@ def test_plot_under_a_file_is_one_line_error_naming_it(tmp_path, capsys):
     assert code == 2
     assert str(blocker) in err and "is a file, not a folder" in err and "Traceback" not in err
     assert err.count("\n") == 1
+
+
+def test_make_with_an_unwritable_plot_path_writes_nothing(tmp_path, capsys):
+    """storm make --plot into a path that cannot be written: exit 2 and no CSV either."""
+    (tmp_path / "blocker").write_text("a file, not a folder")
+    csv = tmp_path / "h.csv"
+    code = main(["storm", "make", "--kind", "uniform", "--depth", "20", "--duration-min", "60",
+                 "-o", str(csv), "--plot", str(tmp_path / "blocker" / "h.png")])
+    err = capsys.readouterr().err
+    assert code == 2, err
+    errors = [line for line in err.splitlines() if line.startswith("gisrun: error:")]
+    assert len(errors) == 1 and "blocker" in errors[0], err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["blocker"]
