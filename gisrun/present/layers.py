@@ -37,6 +37,7 @@ from .._version import __version__
 from ..aggregate import soil_shares
 from ..model import CAUTION, RunResult, StormResult
 from ..units import UnitSystem, present_frame
+from .display import human
 
 __all__ = [
     "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
@@ -163,19 +164,25 @@ def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
         empty where it never ponds),
         ids (``subcatchment_id``; units also ``soil_class``, ``cover_class``),
         ``time_to_ponding_s``, ``runoff_depth_m``, ``runoff_coefficient`` and
-        ``area_m2`` / ``modelled_area_m2``. Impervious unit parts are left out
-        of the unit ranking (they have no infiltration capacity to exceed).
+        ``area_m2`` / ``modelled_area_m2``, ``loss_method`` and
+        ``ponding_rank_in_method`` (the rank among those with the same method:
+        methods differ in what "ponding" means, so compare within a method).
+        Impervious unit parts are left out of the unit ranking (they have no
+        infiltration capacity to exceed).
     """
     subs, units = [], []
+    methods = result.model_inputs[["subcatchment_id", "loss_method"]]
     for storm in result.storms:
         s = storm.subcatchments[["subcatchment_id", "time_to_ponding_s", "runoff_depth_m",
                                  "runoff_coefficient", "modelled_area_m2"]]
+        s = s.merge(methods, on="subcatchment_id", how="left")
         subs.append(_ranked(s, storm.name, ["subcatchment_id"]))
         if storm.units is None:  # streamed run: the unit ranking is made in the output file
             continue
         u = storm.units[storm.units["surface"] != "impervious"]
         keys = ["subcatchment_id", "soil_class", "cover_class"]
-        u = u[[*keys, "time_to_ponding_s", "runoff_depth_m", "runoff_coefficient", "area_m2"]]
+        u = u[[*keys, "time_to_ponding_s", "runoff_depth_m", "runoff_coefficient", "area_m2",
+               "loss_method"]]
         units.append(_ranked(u, storm.name, keys))
     return (pd.concat(subs, ignore_index=True),
             pd.concat(units, ignore_index=True) if units else pd.DataFrame())
@@ -184,8 +191,10 @@ def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
 def _ranked(frame: pd.DataFrame, storm: str, keys: list[str]) -> pd.DataFrame:
     out = frame.sort_values(["time_to_ponding_s", *keys], na_position="last", kind="stable")
     rank = out["time_to_ponding_s"].rank(method="min").astype("Int64")  # ties share a rank
-    out = out.assign(storm=storm, ponding_rank=rank)
-    return out[["storm", "ponding_rank", *[c for c in frame.columns]]].reset_index(drop=True)
+    within = out.groupby("loss_method", sort=False)["time_to_ponding_s"].rank(method="min")
+    out = out.assign(storm=storm, ponding_rank=rank, ponding_rank_in_method=within.astype("Int64"))
+    return out[["storm", "ponding_rank", *[c for c in frame.columns],
+                "ponding_rank_in_method"]].reset_index(drop=True)
 
 
 def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:
@@ -219,7 +228,8 @@ def run_info(result: RunResult) -> pd.DataFrame:
     for storm in result.storms:
         h = storm.hyetograph
         depth = present_frame(pd.DataFrame({"d_m": [h.total_depth_m]}), project.units).iloc[0, 0]
-        rows.append(("storm", f"{h.name}: {depth:.4g} {depth_unit} over {h.duration_s / 60:g} min"))
+        rows.append(("storm", f"{h.name}: {human(depth)} {depth_unit} over "
+                              f"{human(h.duration_s / 60)} min"))
     for name, digest in result.checksums.items():
         rows.append((f"sha256:{name}", digest))
     if "source" in result.parameter_sources.columns:
