@@ -9,6 +9,7 @@ line and exits 2.
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 from typing import Any
 
@@ -17,7 +18,8 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from ..config.storms import storm_from_config
+from ..config.storms import STORM_KINDS, storm_from_config
+from ..errors import StormError
 from ..io.files import atomic_target
 from ..io.storm_csv import read_hyetograph_csv, write_hyetograph_csv
 from ..storm import Hyetograph
@@ -61,7 +63,11 @@ def make(units_name: str, output: Path, overwrite: bool, plot_path: Path | None,
     """Make a design storm and write it as a storm CSV (time_min, depth)."""
     units = unit_system(units_name)
     spec = _spec_from_options(options)
-    h = storm_from_config(spec, base_dir=Path.cwd(), units=units, where="gisrun storm make")
+    _check_options(spec)
+    try:
+        h = storm_from_config(spec, base_dir=Path.cwd(), units=units, where=_MAKE)
+    except StormError as err:
+        raise _in_flag_words(err) from None
     write_hyetograph_csv(h, output, units=units, overwrite=overwrite)
     _echo_summary(h, units)
     click.echo(f"wrote {output}")
@@ -69,6 +75,51 @@ def make(units_name: str, output: Path, overwrite: bool, plot_path: Path | None,
         _plot(h, plot_path, units)
         click.echo(f"wrote {plot_path}")
     click.echo(f"Caution: {STORM_CAUTION}")
+
+
+_MAKE = "gisrun storm make"
+
+#: The ``[[storms]]`` key each ``storm make`` option sets, as the user typed it.
+_FLAGS = {"kind": "--kind", "distribution": "--distribution", "depth": "--depth",
+          "duration_min": "--duration-min", "step_min": "--step-min",
+          "idf": "--idf-a/--idf-b/--idf-c", "idf.a": "--idf-a", "idf.b": "--idf-b",
+          "idf.c": "--idf-c", "idf_table": "--idf-table", "peak_position": "--peak-position",
+          "name": "--name"}
+
+
+def _check_options(spec: dict[str, Any]) -> None:
+    """Missing or misplaced options of ``storm make``, said in its own flags."""
+    kind = spec["kind"]
+    required, optional = STORM_KINDS[kind]
+    allowed = {"kind", "name", *required, *optional}
+    for key in spec:
+        if key not in allowed:
+            takes = " ".join(_FLAGS[k] for k in sorted(allowed - {"kind"}))
+            raise StormError(f"{_MAKE} {_FLAGS[key]}", f"does not apply to --kind {kind}",
+                             f"remove it; --kind {kind} takes {takes}")
+    for key in required:
+        if key not in spec:
+            add = ("give --idf-a, --idf-b and --idf-c (i = a / (t + b)^c)" if key == "idf"
+                   else f"add {_FLAGS[key]} VALUE")
+            raise StormError(_MAKE, f"--kind {kind} needs {_FLAGS[key]}", add)
+    if kind == "alternating_block" and ("idf" in spec) == ("idf_table" in spec):
+        raise StormError(_MAKE, "--kind alternating_block needs either --idf-a/--idf-b/--idf-c "
+                         "or --idf-table", "give the IDF formula's three coefficients or a table")
+    missing = [k for k in "abc" if "idf" in spec and k not in spec["idf"]]
+    if missing:
+        raise StormError(_MAKE, f"the IDF formula needs {_FLAGS['idf.' + missing[0]]} too",
+                         "give --idf-a, --idf-b and --idf-c (i = a / (t + b)^c)")
+
+
+def _in_flag_words(err: StormError) -> StormError:
+    """A project-file error (``gisrun storm make.depth: ...; set depth > 0``) in flag words."""
+    where, fix = err.where, err.fix
+    if where.startswith(f"{_MAKE}."):
+        key = where[len(_MAKE) + 1:]
+        flag = _FLAGS.get(key, key)
+        where = f"{_MAKE} {flag}"
+        fix = re.sub(rf"^set {re.escape(key.split('.')[-1])}\b", f"set {flag}", fix)
+    return StormError(where, err.problem, fix)
 
 
 def _spec_from_options(options: dict[str, Any]) -> dict[str, Any]:
@@ -88,6 +139,9 @@ def _spec_from_options(options: dict[str, Any]) -> dict[str, Any]:
 def show(path: Path, units_name: str, plot_path: Path | None) -> None:
     """Print a storm file's total depth, duration, peak intensity and step."""
     units = unit_system(units_name)
+    if not path.exists():
+        raise StormError(str(path), "does not exist",
+                         f"check the file name; a relative path is taken from {Path.cwd()}")
     h = read_hyetograph_csv(path, units=units)
     _echo_summary(h, units)
     if plot_path is not None:
