@@ -6,6 +6,9 @@ import io
 
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.legend import Legend
+from matplotlib.patches import Patch
+from matplotlib.text import Text
 
 __all__ = ["PRINT_DPI", "new_figure", "figure_png"]
 
@@ -25,5 +28,8 @@ def figure_png(fig: Figure, *, dpi: int = PRINT_DPI) -> bytes:
     if not isinstance(fig.canvas, FigureCanvasAgg):
         FigureCanvasAgg(fig)
     buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight")
+    # legends, labels and scale bars outside the frame count for the trimmed box too
+    extra = [c for ax in fig.axes for c in ax.get_children()
+             if isinstance(c, Legend) or (isinstance(c, (Text, Patch)) and not c.get_clip_on())]
+    fig.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight", bbox_extra_artists=extra)
     return buffer.getvalue()

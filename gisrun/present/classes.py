@@ -22,7 +22,8 @@ from ..model import RunResult
 from ..units import from_si
 from .display import human, human_range
 
-__all__ = ["Classes", "RunClasses", "class_breaks", "shared_classes", "run_classes",
+__all__ = ["Classes", "RunClasses", "class_breaks", "doubling_breaks", "shared_classes",
+           "run_classes",
            "MISSING_COLOUR"]
 
 MISSING_COLOUR = "#d9d9d9"
@@ -104,8 +105,28 @@ class Classes:
         return out
 
 
+def doubling_breaks(low: float, high: float, first: float = 15.0) -> NDArray[np.float64] | None:
+    """Edges 0, ``first``, 2 ``first``, 4 ``first`` ... around ``low``-``high`` (None if too few).
+
+    For times (minutes): a storm of 3 hours and one of 24 hours share one legend and
+    still each spread over several classes.
+
+    Examples
+    --------
+    >>> doubling_breaks(32.5, 700.0).tolist()
+    [30.0, 60.0, 120.0, 240.0, 480.0, 960.0]
+    """
+    if not high > first:
+        return None
+    edges = [0.0, first]
+    while edges[-1] < high:
+        edges.append(edges[-1] * 2)
+    start = max(i for i, e in enumerate(edges) if e <= max(low, 0.0))
+    return np.asarray(edges[start:], dtype=np.float64)
+
+
 def shared_classes(arrays: Iterable[ArrayLikeFloat], *, n_classes: int = 7,
-                   cmap: str = "cividis") -> Classes:
+                   cmap: str = "cividis", doubling: bool = False) -> Classes:
     """One set of classes spanning the values of every array (e.g. one quantity, every storm).
 
     Examples
@@ -131,7 +152,9 @@ def shared_classes(arrays: Iterable[ArrayLikeFloat], *, n_classes: int = 7,
         return Classes(np.array([0.0, 0.0]) if zeros else np.array([0.0, 1.0]), cmap=cmap)
     if zeros and lo > 0:
         lo = 0.0
-    return Classes(class_breaks([lo, hi], n_classes), zero_class=zeros and lo == 0.0, cmap=cmap)
+    edges = doubling_breaks(lo, hi) if doubling else None
+    edges = class_breaks([lo, hi], n_classes) if edges is None else edges
+    return Classes(edges, zero_class=zeros and lo == 0.0, cmap=cmap)
 
 
 @dataclass(frozen=True)
@@ -147,6 +170,8 @@ def run_classes(result: RunResult) -> RunClasses:
     """Classes of runoff depth (display unit), time to ponding (min) and cell runoff depth.
 
     Every storm's values count, so one colour means the same range on every map.
+    Times to ponding are classed in doubling steps (15, 30, 60 ... min), so storms of
+    very different durations still spread over several classes.
     """
     depth = result.project.units.depth
     runoff = [from_si(s.subcatchments["runoff_depth_m"].to_numpy(float), depth)
@@ -157,7 +182,8 @@ def run_classes(result: RunResult) -> RunClasses:
         cells = shared_classes((from_si(_finite_range(a), depth)
                                 for a in result.cells.runoff_depth_m), n_classes=7,
                                cmap="viridis")
-    return RunClasses(shared_classes(runoff), shared_classes(ponding, cmap="viridis"), cells)
+    return RunClasses(shared_classes(runoff),
+                      shared_classes(ponding, cmap="viridis", doubling=True), cells)
 
 
 def _finite_range(values: NDArray[np.float64]) -> NDArray[np.float64]:
