@@ -47,12 +47,11 @@ def table(frame: pd.DataFrame, *, empty: str = "", left: int = 1) -> str:
         return f"<p>{esc(empty)}</p>" if empty else ""
     align = ["r" if i >= left and _numeric(frame.iloc[:, i]) else "l"
              for i in range(frame.shape[1])]
-    heads = "".join(f'<th class="{a}">{esc(c)}</th>' for a, c in zip(align, frame.columns,
-                                                                     strict=True))
+    at = [' class="r"' if a == "r" else "" for a in align]  # cells are left-aligned by default
+    heads = "".join(f"<th{a}>{esc(c)}</th>" for a, c in zip(at, frame.columns, strict=True))
     rows = []
     for values in frame.itertuples(index=False, name=None):
-        cells = "".join(f'<td class="{a}">{esc(v)}</td>' for a, v in zip(align, values,
-                                                                        strict=True))
+        cells = "".join(f"<td{a}>{esc(v)}</td>" for a, v in zip(at, values, strict=True))
         rows.append(f"<tr>{cells}</tr>")
     return (f'<div class="table-wrap"><table><thead><tr>{heads}</tr></thead>'
             f"<tbody>{''.join(rows)}</tbody></table></div>")

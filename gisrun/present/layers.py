@@ -164,11 +164,12 @@ def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
         empty where it never ponds),
         ids (``subcatchment_id``; units also ``soil_class``, ``cover_class``),
         ``time_to_ponding_s``, ``runoff_depth_m``, ``runoff_coefficient`` and
-        ``area_m2`` / ``modelled_area_m2``, ``loss_method`` and
-        ``ponding_rank_in_method`` (the rank among those with the same method:
-        methods differ in what "ponding" means, so compare within a method).
-        Impervious unit parts are left out of the unit ranking (they have no
-        infiltration capacity to exceed).
+        ``area_m2`` / ``modelled_area_m2``; subcatchments also ``loss_method``
+        and ``ponding_rank_in_method`` (the rank among those with the same
+        method: methods differ in what "ponding" means, so compare within a
+        method). The unit ranking keeps the columns a streamed run ranks inside
+        its output file. Impervious unit parts are left out of the unit ranking
+        (they have no infiltration capacity to exceed).
     """
     subs, units = [], []
     methods = result.model_inputs[["subcatchment_id", "loss_method"]]
@@ -181,8 +182,7 @@ def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
             continue
         u = storm.units[storm.units["surface"] != "impervious"]
         keys = ["subcatchment_id", "soil_class", "cover_class"]
-        u = u[[*keys, "time_to_ponding_s", "runoff_depth_m", "runoff_coefficient", "area_m2",
-               "loss_method"]]
+        u = u[[*keys, "time_to_ponding_s", "runoff_depth_m", "runoff_coefficient", "area_m2"]]
         units.append(_ranked(u, storm.name, keys))
     return (pd.concat(subs, ignore_index=True),
             pd.concat(units, ignore_index=True) if units else pd.DataFrame())
@@ -191,10 +191,13 @@ def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
 def _ranked(frame: pd.DataFrame, storm: str, keys: list[str]) -> pd.DataFrame:
     out = frame.sort_values(["time_to_ponding_s", *keys], na_position="last", kind="stable")
     rank = out["time_to_ponding_s"].rank(method="min").astype("Int64")  # ties share a rank
-    within = out.groupby("loss_method", sort=False)["time_to_ponding_s"].rank(method="min")
-    out = out.assign(storm=storm, ponding_rank=rank, ponding_rank_in_method=within.astype("Int64"))
-    return out[["storm", "ponding_rank", *[c for c in frame.columns],
-                "ponding_rank_in_method"]].reset_index(drop=True)
+    out = out.assign(storm=storm, ponding_rank=rank)
+    columns = ["storm", "ponding_rank", *frame.columns]
+    if "loss_method" in frame.columns:
+        within = out.groupby("loss_method", sort=False)["time_to_ponding_s"].rank(method="min")
+        out = out.assign(ponding_rank_in_method=within.astype("Int64"))
+        columns.append("ponding_rank_in_method")
+    return out[columns].reset_index(drop=True)
 
 
 def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:

@@ -53,8 +53,8 @@ h1{font-size:1.6em}h2{border-bottom:2px solid #3b528b;padding-bottom:.2em;margin
 .table-wrap{max-width:100%;overflow-x:auto}
 table{border-collapse:collapse;font-size:.85em;margin:.6em 0;max-width:100%}
 th,td{border:1px solid #ccc;padding:.25em .5em;vertical-align:top;overflow-wrap:anywhere}
-th{background:#eef1f7;font-weight:600}.r{text-align:right;font-variant-numeric:tabular-nums}
-.l{text-align:left}td.r{white-space:nowrap}
+th{background:#eef1f7;font-weight:600;text-align:left}td.r{white-space:nowrap}
+.r{text-align:right;font-variant-numeric:tabular-nums}
 .caution{background:#fff4e0;border-left:6px solid #d55e00;padding:.8em 1em}
 figure{margin:1em 0}figure img{max-width:100%;border:1px solid #ddd}
 figcaption,.small{font-size:.85em;color:#555}nav a{margin-right:1em}

@@ -100,6 +100,9 @@ def summary_section(result: RunResult) -> str:
 
 
 def _ranking_frame(frame: pd.DataFrame, result: RunResult, keys: list[str]) -> pd.DataFrame:
+    if "loss_method" not in frame.columns and "subcatchment_id" in frame.columns:
+        methods = result.model_inputs[["subcatchment_id", "loss_method"]]
+        frame = frame.merge(methods, on="subcatchment_id", how="left")
     if "ponding_rank_in_method" not in frame.columns and "loss_method" in frame.columns:
         frame = frame.assign(ponding_rank_in_method=frame.groupby("loss_method")[
             "time_to_ponding_s"].rank(method="min").astype("Int64"))
