@@ -13,10 +13,14 @@ import numpy as np
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
+from PIL import Image
+from report_helpers import methods_project
 from shapely.geometry import box
 
+from gisrun import run
 from gisrun.engine import run_losses
 from gisrun.present import maps, plots
+from gisrun.write.figures import write_figures
 
 
 def decoded(png: bytes) -> np.ndarray:
@@ -128,8 +132,6 @@ def test_zero_runoff_legend_reads_zero():
 
 def test_maps_are_print_resolution():
     """Defect: map PNGs were about 780 x 440 px; now 150 dpi and about 2000 px wide."""
-    from PIL import Image
-
     png = maps.figure_png(maps.subcatchment_map(boxes([1.0, 5.0, 9.0]), "v", title="t",
                                                 label="mm", crs="EPSG:32617"))
     image = Image.open(io.BytesIO(png))
@@ -183,11 +185,6 @@ def test_every_map_of_a_run_shares_its_classes(tmp_path, monkeypatch):
     """Defect: each storm's map picked its own breaks, so one colour meant 40-50 mm on one
     map and 120-140 mm on another. Every map of a quantity now has the same legend,
     spanning every storm's values."""
-    from report_helpers import methods_project
-
-    from gisrun import run
-    from gisrun.write.figures import write_figures
-
     result = run(methods_project(tmp_path / "p"))
     seen = []
     real = maps.subcatchment_map

@@ -15,6 +15,7 @@ import numpy as np
 import pytest
 from browser_helpers import probe, screenshot
 from report_helpers import methods_project
+from test_cellgrid import tiny_project
 
 from gisrun import CAUTION, run
 from gisrun.present.display import human
@@ -194,8 +195,6 @@ def test_parameter_sheet_lists_exactly_the_methods_used_in_display_units(report,
     sheet_text = text[text.index('id="parameters"'):text.index('id="storms"')]
     assert "ks_m_per_s" not in sheet_text and "phi-index" not in sheet_text
     # a run with one method lists that method only
-    from test_cellgrid import tiny_project
-
     one = run(tiny_project(tmp_path / "one"))
     page = parsed(build_report(one, ReportFigures(), ranking=ponding_ranking(one),
                                caution=CAUTION))
