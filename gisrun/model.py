@@ -121,6 +121,8 @@ class RunResult:
     #: Units (soil x cover x surface parts) that were run, and how many per loss method.
     unit_count: int
     method_counts: Mapping[str, int]
+    #: The loss method of each subcatchment (``subcatchment_id``, ``loss_method``), layer order.
+    subcatchment_methods: pd.DataFrame
     #: The soil raster's CRS (maps of cell values are drawn in it).
     raster_crs: CRS
     warnings: tuple[str, ...] = ()

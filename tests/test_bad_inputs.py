@@ -237,6 +237,9 @@ CASES: dict[str, Case] = {
     "rain column without units": Case(_write("storm.csv", "time_min,rain\n5,1\n10,1\n"),
                                       re.compile(r"storm\.csv:header.*'rain'")),
     "storm file empty": Case(_write("storm.csv", ""), re.compile(r"storm\.csv.*empty")),
+    "storm file separated by semicolons": Case(
+        _write("storm.csv", "time_min;depth_mm\n5;1\n10;1\n"),
+        re.compile(r"storm\.csv:header.*separates them by ';': save it with commas")),
     "unknown storm kind": Case(_toml('kind = "file"', 'kind = "flie"'),
                                re.compile(r"gisrun\.toml:\[\[storms\]\] 1\.kind.*'file'")),
     "negative design storm depth": Case(

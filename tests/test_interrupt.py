@@ -187,4 +187,4 @@ def test_a_signal_while_a_raster_is_moved_into_the_staged_folder_discards_all(tm
     err = capsys.readouterr().err
     assert code == 143, err
     assert "discarded" in err and "unchanged" in err
-    assert sorted(p.name for p in (project.parent / "out").iterdir()) == []
+    assert not (project.parent / "out").exists()  # the folder the run made is gone too

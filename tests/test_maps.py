@@ -13,10 +13,14 @@ import numpy as np
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
+from PIL import Image
+from report_helpers import methods_project
 from shapely.geometry import box
 
+from gisrun import run
 from gisrun.engine import run_losses
-from gisrun.present import maps
+from gisrun.present import maps, plots
+from gisrun.write.figures import write_figures
 
 
 def decoded(png: bytes) -> np.ndarray:
@@ -33,6 +37,7 @@ def test_class_breaks_cover_the_values_with_round_edges():
     assert np.all(np.diff(edges) > 0)
     assert maps.class_breaks([np.nan, np.nan]).tolist() == [0.0, 1.0]
     assert len(maps.class_breaks([5.0, 5.0])) >= 2  # one value still gets a class
+    assert maps.shared_classes([[5.0, 5.0]]).labels() == ["5"]
 
 
 def test_subcatchment_and_raster_maps_decode_and_are_not_blank():
@@ -55,16 +60,17 @@ def test_pervious_series_weights_by_pervious_area_and_marks_ponding():
                            "depression_storage_m": [0.0, 0.0, 0.0]})
     rain = np.full(6, 0.01)  # 10 mm per 10 min step = 16.7 um/s, above both rates
     loss = run_losses(params, rain, 600.0, method="phi_index")
-    s = maps.pervious_series(loss, params, "S", 600.0)
+    s = plots.pervious_series(loss, params, "S", 600.0)
     # actual infiltration = phi of each pervious unit, weighted 1:3 (impervious left out)
     assert_allclose(s.infiltration_m_per_s, (1 * 2e-6 + 3 * 6e-6) / 4)
     assert_allclose(s.rain_m_per_s, 0.01 / 600)
-    decoded(maps.figure_png(maps.infiltration_plot(s, title="S", rate_unit="mm/h",
-                                                   to_rate=lambda v: np.asarray(v) * 3.6e6)))
+    assert s.method == "phi_index"
+    decoded(maps.figure_png(plots.infiltration_plot(s, title="S", rate_unit="mm/h",
+                                                    to_rate=lambda v: np.asarray(v) * 3.6e6)))
 
 
 def test_hyetograph_plot_decodes():
-    decoded(maps.figure_png(maps.hyetograph_plot(
+    decoded(maps.figure_png(plots.hyetograph_plot(
         [("a", np.array([0.0, 10, 20]), np.array([5.0, 10.0]))], rate_unit="mm/h")))
 
 
@@ -83,8 +89,8 @@ def test_drawing_leaves_pyplot_figures_alone():
     import matplotlib.pyplot as plt
 
     before = plt.get_fignums()
-    fig = maps.hyetograph_plot([("a", np.array([0.0, 10, 20]), np.array([5.0, 10.0]))],
-                               rate_unit="mm/h")
+    fig = plots.hyetograph_plot([("a", np.array([0.0, 10, 20]), np.array([5.0, 10.0]))],
+                                rate_unit="mm/h")
     assert plt.get_fignums() == before
     assert type(fig.canvas).__name__ == "FigureCanvasAgg"
     decoded(maps.figure_png(fig))
@@ -97,3 +103,106 @@ def test_importing_maps_does_not_switch_the_backend():
     out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True,
                          check=True).stdout
     assert out.strip() == "svg"
+
+
+# --- what the issue found wrong with the maps (each test failed on the maps before) ---
+
+def boxes(values, **columns):
+    geoms = [box(100 * i, 0, 100 * i + 100, 100) for i in range(len(values))]
+    return gpd.GeoDataFrame({"v": values, "sid": [f"S{i + 1}" for i in range(len(values))],
+                             **columns}, geometry=geoms, crs="EPSG:32617")
+
+
+def legend_texts(fig, title=None):
+    out = []
+    for legend in fig.axes[0].get_children():
+        if type(legend).__name__ == "Legend" and (
+                title is None or legend.get_title().get_text() == title):
+            out += [t.get_text() for t in legend.get_texts()]
+    return out
+
+
+def test_zero_runoff_legend_reads_zero():
+    """Defect: a storm with no runoff got the legend ``-1e-06 - -5e-07 ...``."""
+    fig = maps.subcatchment_map(boxes([0.0, 0.0, 0.0]), "v", title="t",
+                                label="runoff depth (mm)", crs="EPSG:32617")
+    assert legend_texts(fig, "runoff depth (mm)") == ["0"]
+    decoded(maps.figure_png(fig))
+
+
+def test_maps_are_print_resolution():
+    """Defect: map PNGs were about 780 x 440 px; now 150 dpi and about 2000 px wide."""
+    png = maps.figure_png(maps.subcatchment_map(boxes([1.0, 5.0, 9.0]), "v", title="t",
+                                                label="mm", crs="EPSG:32617"))
+    image = Image.open(io.BytesIO(png))
+    assert image.size[0] >= 1800
+    assert round(image.info["dpi"][0]) >= 150
+
+
+def test_ids_are_written_where_they_fit():
+    """Defect: no subcatchment labels. A 100 m box holds its id; a 1 m sliver does not."""
+    gdf = boxes([1.0, 2.0])
+    gdf.loc[len(gdf)] = {"v": 3.0, "sid": "SLIVER", "geometry": box(200, 0, 201, 100)}
+    gdf = gdf.set_crs("EPSG:32617", allow_override=True)
+    fig = maps.subcatchment_map(gdf, "v", title="t", label="mm", crs=gdf.crs, id_column="sid")
+    texts = [t.get_text() for t in fig.axes[0].texts]
+    assert "S1" in texts and "S2" in texts and "SLIVER" not in texts
+
+
+@pytest.mark.parametrize(("unit", "ends"), [("m", (" m", " km")), ("ft", (" ft", " mi"))])
+def test_scale_bar_is_off_the_data_and_in_the_run_units(unit, ends):
+    """Defects: the scale bar sat on the data with an unreadable label, and US-unit runs got
+    a metric bar. The bar now lies below the map frame, labelled in the run's units."""
+    small = gpd.GeoDataFrame({"v": [1.0, 2.0]}, geometry=[box(0, 0, 30, 30), box(30, 0, 60, 30)],
+                             crs="EPSG:32617")
+    fig = maps.subcatchment_map(small, "v", title="t", label="mm", crs=small.crs,
+                                distance_unit=unit)
+    fig.canvas.draw()
+    ax = fig.axes[0]
+    frame = ax.get_window_extent()
+    bars = [p for p in ax.patches if type(p).__name__ == "Rectangle" and p.get_facecolor()[:3]
+            in ((0.0, 0.0, 0.0), (1.0, 1.0, 1.0))]
+    assert len(bars) == 2
+    for bar in bars:
+        assert bar.get_window_extent().y1 < frame.y0  # below the frame: never on the data
+    labels = [t for t in ax.texts if t.get_text().endswith(ends)]
+    assert len(labels) == 1 and labels[0].get_fontsize() >= 9
+    assert labels[0].get_window_extent().y1 < frame.y0
+
+
+def test_methods_are_hatched_with_a_legend_where_they_differ():
+    """Defect: maps did not say which loss method each subcatchment used."""
+    gdf = boxes([1.0, 2.0, 3.0], how=["green_ampt", "green_ampt", "curve_number"])
+    fig = maps.subcatchment_map(gdf, "v", title="t", label="mm", crs=gdf.crs,
+                                method_column="how")
+    assert legend_texts(fig, "loss method") == ["Green-Ampt", "curve number"]
+    one = maps.subcatchment_map(boxes([1.0, 2.0], how=["horton"] * 2), "v", title="t",
+                                label="mm", crs="EPSG:32617", method_column="how")
+    assert legend_texts(one, "loss method") == []  # one method: nothing to tell apart
+
+
+def test_every_map_of_a_run_shares_its_classes(tmp_path, monkeypatch):
+    """Defect: each storm's map picked its own breaks, so one colour meant 40-50 mm on one
+    map and 120-140 mm on another. Every map of a quantity now has the same legend,
+    spanning every storm's values."""
+    result = run(methods_project(tmp_path / "p"))
+    seen = []
+    real = maps.subcatchment_map
+
+    def recording(gdf, column, **kw):
+        fig = real(gdf, column, **kw)
+        classes = [t for t in legend_texts(fig, kw["label"]) if t != "does not pond"]
+        seen.append((kw["label"], classes))
+        return fig
+
+    monkeypatch.setattr(maps, "subcatchment_map", recording)
+    write_figures(result, tmp_path / "maps", plot_ids=[], cell_maps=False,
+                  progress=lambda *a: None)
+    runoff = [t for label, t in seen if label.startswith("runoff depth")]
+    ponding = [t for label, t in seen if label.startswith("time to ponding")]
+    assert len(runoff) == len(ponding) == len(result.storms) == 2
+    assert runoff[0] == runoff[1] and ponding[0] == ponding[1]
+    # the drizzle makes no runoff, the heavy storm up to ~29 mm: one legend covers both
+    assert runoff[0][0] == "0"
+    top = max(float(s.subcatchments["runoff_depth_m"].max()) * 1000 for s in result.storms)
+    assert float(runoff[0][-1].split("–")[-1].replace(",", "")) >= top

@@ -12,7 +12,7 @@ from .options import project_argument
 __all__ = ["check"]
 
 
-@click.command()
+@click.command(short_help="Check every input of PROJECT without running it.")
 @project_argument
 def check(project: Path) -> None:
     """Check every input of PROJECT without running it; report each problem on one line."""

@@ -29,7 +29,7 @@ from .progress import progress_display
 __all__ = ["run"]
 
 
-@click.command()
+@click.command(short_help="Run PROJECT; write its GeoPackage, maps and report.")
 @project_argument
 @click.option("--output", "-o", type=click.Path(path_type=Path),
               help="GeoPackage to write (default: the project's [project] output).")

@@ -9,6 +9,7 @@ line and exits 2.
 
 from __future__ import annotations
 
+import re
 from contextlib import nullcontext
 from pathlib import Path
 from typing import Any
@@ -19,7 +20,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from ..config.storms import storm_from_config
-from ..errors import OutputError
+from ..errors import OutputError, StormError
 from ..io.files import atomic_target, refuse_inputs_among, same_path
 from ..io.storm_csv import read_hyetograph_csv, write_hyetograph_csv
 from ..storm import KINDS, Hyetograph
@@ -69,7 +70,11 @@ def make(units_name: str, output: Path, overwrite: bool, plot_path: Path | None,
         refuse_inputs_among([output, *([plot_path] if plot_path else [])],
                             {"--idf-table": options["idf_table"]})
     spec = _spec_from_options(options)
-    h = storm_from_config(spec, base_dir=Path.cwd(), units=units, where="gisrun storm make")
+    _check_options(spec)
+    try:
+        h = storm_from_config(spec, base_dir=Path.cwd(), units=units, where=_MAKE)
+    except StormError as err:
+        raise _in_flag_words(err) from None
     # the plot's temporary file is made first: an unwritable --plot path stops before the CSV
     plotting = atomic_target(plot_path, overwrite=True) if plot_path else nullcontext(None)
     with plotting as plot_tmp:
@@ -81,6 +86,51 @@ def make(units_name: str, output: Path, overwrite: bool, plot_path: Path | None,
     if plot_path is not None:
         click.echo(f"wrote {plot_path}")
     click.echo(f"Caution: {STORM_CAUTION}")
+
+
+_MAKE = "gisrun storm make"
+
+#: The ``[[storms]]`` key each ``storm make`` option sets, as the user typed it.
+_FLAGS = {"kind": "--kind", "distribution": "--distribution", "depth": "--depth",
+          "duration_min": "--duration-min", "step_min": "--step-min",
+          "idf": "--idf-a/--idf-b/--idf-c", "idf.a": "--idf-a", "idf.b": "--idf-b",
+          "idf.c": "--idf-c", "idf_table": "--idf-table", "peak_position": "--peak-position",
+          "name": "--name"}
+
+
+def _check_options(spec: dict[str, Any]) -> None:
+    """Missing or misplaced options of ``storm make``, said in its own flags."""
+    kind = spec["kind"]
+    required = [key.name for key in KINDS[kind].required]
+    allowed = {"kind", "name", *(key.name for key in KINDS[kind].keys)}
+    for key in spec:
+        if key not in allowed:
+            takes = " ".join(_FLAGS[k] for k in sorted(allowed - {"kind"}))
+            raise StormError(f"{_MAKE} {_FLAGS[key]}", f"does not apply to --kind {kind}",
+                             f"remove it; --kind {kind} takes {takes}")
+    for key in required:
+        if key not in spec:
+            add = ("give --idf-a, --idf-b and --idf-c (i = a / (t + b)^c)" if key == "idf"
+                   else f"add {_FLAGS[key]} VALUE")
+            raise StormError(_MAKE, f"--kind {kind} needs {_FLAGS[key]}", add)
+    if kind == "alternating_block" and ("idf" in spec) == ("idf_table" in spec):
+        raise StormError(_MAKE, "--kind alternating_block needs either --idf-a/--idf-b/--idf-c "
+                         "or --idf-table", "give the IDF formula's three coefficients or a table")
+    missing = [k for k in "abc" if "idf" in spec and k not in spec["idf"]]
+    if missing:
+        raise StormError(_MAKE, f"the IDF formula needs {_FLAGS['idf.' + missing[0]]} too",
+                         "give --idf-a, --idf-b and --idf-c (i = a / (t + b)^c)")
+
+
+def _in_flag_words(err: StormError) -> StormError:
+    """A project-file error (``gisrun storm make.depth: ...; set depth > 0``) in flag words."""
+    where, fix = err.where, err.fix
+    if where.startswith(f"{_MAKE}."):
+        key = where[len(_MAKE) + 1:]
+        flag = _FLAGS.get(key, key)
+        where = f"{_MAKE} {flag}"
+        fix = re.sub(rf"^set {re.escape(key.split('.')[-1])}\b", f"set {flag}", fix)
+    return StormError(where, err.problem, fix)
 
 
 def _spec_from_options(options: dict[str, Any]) -> dict[str, Any]:
@@ -100,6 +150,9 @@ def _spec_from_options(options: dict[str, Any]) -> dict[str, Any]:
 def show(path: Path, units_name: str, plot_path: Path | None) -> None:
     """Print a storm file's total depth, duration, peak intensity and step."""
     units = unit_system(units_name)
+    if not path.exists():
+        raise StormError(str(path), "does not exist",
+                         f"check the file name; a relative path is taken from {Path.cwd()}")
     if plot_path is not None:
         refuse_inputs_among([plot_path], {"STORM_CSV": path})
     h = read_hyetograph_csv(path, units=units)

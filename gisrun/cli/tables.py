@@ -10,7 +10,7 @@ from ..parameters import list_tables
 __all__ = ["tables"]
 
 
-@click.command()
+@click.command(short_help="List the shipped parameter tables and their sources.")
 @click.argument("name", required=False)
 def tables(name: str | None) -> None:
     """List the shipped parameter tables and their sources (or print table NAME)."""

@@ -145,7 +145,9 @@ def _columns(header: list[str], src: str) -> tuple[str, str]:
     if len(header) != 2:
         unknown = [h for h in header if h not in _TIME_COLUMNS and h not in _VALUE_COLUMNS]
         bad = unknown[0] if unknown else ",".join(header)
-        hint = did_you_mean(bad, [*_TIME_COLUMNS, *_VALUE_COLUMNS]) if unknown else ""
+        sep = next((c for c in ";\t|" if len(header) == 1 and c in header[0]), None)
+        hint = (f"the file separates them by {sep!r}: save it with commas" if sep else
+                did_you_mean(bad, [*_TIME_COLUMNS, *_VALUE_COLUMNS]) if unknown else "")
         raise StormError(f"{src}:header", f"has {len(header)} columns ({bad!r} is not used)",
                          f"keep one time column and one value column; {hint}".rstrip("; "))
     time_cols = [h for h in header if h in _TIME_COLUMNS]

@@ -40,6 +40,7 @@ from .._version import __version__
 from ..aggregate import soil_shares
 from ..model import CAUTION, RunResult, StormResult
 from ..units import UnitSystem, present_frame
+from .display import human
 from .model_inputs import lumped_layer
 
 __all__ = [
@@ -169,13 +170,19 @@ def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
         empty where it never ponds),
         ids (``subcatchment_id``; units also ``soil_class``, ``cover_class``),
         ``time_to_ponding_s``, ``runoff_depth_m``, ``runoff_coefficient`` and
-        ``area_m2`` / ``modelled_area_m2``. Impervious unit parts are left out
-        of the unit ranking (they have no infiltration capacity to exceed).
+        ``area_m2`` / ``modelled_area_m2``; subcatchments also ``loss_method``
+        and ``ponding_rank_in_method`` (the rank among those with the same
+        method: methods differ in what "ponding" means, so compare within a
+        method). The unit ranking keeps the columns a streamed run ranks inside
+        its output file. Impervious unit parts are left out of the unit ranking
+        (they have no infiltration capacity to exceed).
     """
     subs, units = [], []
+    methods = result.subcatchment_methods
     for storm in result.storms:
         s = storm.subcatchments[["subcatchment_id", "time_to_ponding_s", "runoff_depth_m",
                                  "runoff_coefficient", "modelled_area_m2"]]
+        s = s.merge(methods, on="subcatchment_id", how="left")
         subs.append(_ranked(s, storm.name, ["subcatchment_id"]))
         if storm.units is None:  # streamed run: the unit ranking is made in the output file
             continue
@@ -191,7 +198,12 @@ def _ranked(frame: pd.DataFrame, storm: str, keys: list[str]) -> pd.DataFrame:
     out = frame.sort_values(["time_to_ponding_s", *keys], na_position="last", kind="stable")
     rank = out["time_to_ponding_s"].rank(method="min").astype("Int64")  # ties share a rank
     out = out.assign(storm=storm, ponding_rank=rank)
-    return out[["storm", "ponding_rank", *[c for c in frame.columns]]].reset_index(drop=True)
+    columns = ["storm", "ponding_rank", *frame.columns]
+    if "loss_method" in frame.columns:
+        within = out.groupby("loss_method", sort=False)["time_to_ponding_s"].rank(method="min")
+        out = out.assign(ponding_rank_in_method=within.astype("Int64"))
+        columns.append("ponding_rank_in_method")
+    return out[columns].reset_index(drop=True)
 
 
 def _storm_first(frame: pd.DataFrame) -> pd.DataFrame:
@@ -239,7 +251,8 @@ def run_info(result: RunResult) -> pd.DataFrame:
     for storm in result.storms:
         h = storm.hyetograph
         depth = present_frame(pd.DataFrame({"d_m": [h.total_depth_m]}), project.units).iloc[0, 0]
-        rows.append(("storm", f"{h.name}: {depth:.4g} {depth_unit} over {h.duration_s / 60:g} min"))
+        rows.append(("storm", f"{h.name}: {human(depth)} {depth_unit} over "
+                              f"{human(h.duration_s / 60)} min"))
     for name, digest in result.checksums.items():
         rows.append((f"sha256:{name}", digest))
     if "source" in result.parameter_sources.columns:

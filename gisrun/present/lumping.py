@@ -13,7 +13,8 @@ import numpy as np
 import pandas as pd
 
 from ..model import RunResult
-from ..units import present_frame
+from .display import display_frame
+from .html import table
 
 __all__ = ["lumping_section", "lumping_differences"]
 
@@ -54,13 +55,11 @@ def lumping_section(result: RunResult, top: int) -> str:
     if frame.empty:
         return ("<p>No lumped parameters were made for this run (<code>[method] "
                 "lumped_parameters = \"off\"</code>, or units combined as a composite).</p>")
-    shown = present_frame(frame.head(top), result.project.units)
+    shown = display_frame(frame.head(top), result.project.units)
     text = (f"<p>Running each subcatchment as one pervious unit with area-weighted parameters "
             f"beside its impervious share, against gisrun's per-unit runoff: the storm where "
             f"the difference (lumped minus gisrun) is largest, largest first (top {top} of "
             f"{len(frame)}). The equivalent and fitted sets that remove it are in the "
             "GeoPackage layer <code>lumped_parameters</code> and the "
             "<code>lumped_&lt;method&gt;.csv</code> files.</p>")
-    table = shown.to_html(index=False, escape=True, na_rep="-", border=0,
-                          float_format=lambda v: f"{v:,.4g}")
-    return text + table
+    return text + table(shown)

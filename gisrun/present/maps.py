@@ -1,96 +1,58 @@
-"""PNG maps and plots from result frames (matplotlib, Agg; reads and writes no files).
+"""PNG maps from result frames (matplotlib, Agg; reads and writes no files).
 
 Every function returns a :class:`matplotlib.figure.Figure` drawn on its own Agg
 canvas (no pyplot state, no global backend switch); :func:`figure_png` turns it
-into PNG bytes, which :mod:`gisrun.write.extras` writes and
-:mod:`gisrun.present.report` embeds. Colour maps are perceptually uniform and
-colour-blind safe (``cividis``, ``viridis``); legends are classed and carry
-units; maps in a projected CRS get a scale bar and a north arrow (the grid's
-north; correct for north-up grids), and every map names its CRS.
+into PNG bytes at print resolution (150 dpi, about 2000 px wide), which
+:mod:`gisrun.write.figures` writes and :mod:`gisrun.present.report` embeds.
+Colour maps are perceptually uniform and colour-blind safe (``cividis``,
+``viridis``); legends are classed with :class:`~gisrun.present.classes.Classes`
+shared by every storm of a run, and carry units. Subcatchments are labelled with
+their id where the label fits inside the polygon, and hatched by loss method
+where methods differ. Maps in a projected CRS get a scale bar below the map (off
+the data), in metres and kilometres or feet and miles after the run's unit
+system, and a north arrow (the grid's north; correct for north-up grids); every
+map names its CRS.
 """
 
 from __future__ import annotations
 
-import io
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass
-
 import geopandas as gpd
 import numpy as np
 import pandas as pd
-from matplotlib import colormaps
+from matplotlib import patheffects
 from matplotlib.axes import Axes
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.colors import BoundaryNorm, Colormap
+from matplotlib.colors import ListedColormap
 from matplotlib.figure import Figure
 from matplotlib.patches import Patch, Rectangle
-from matplotlib.ticker import MaxNLocator
+from matplotlib.transforms import blended_transform_factory
 from numpy.typing import NDArray
 from pyproj import CRS
+from shapely.geometry import box
 
-from ..engine import LossResult
+from .canvas import PRINT_DPI, figure_png, new_figure
+from .classes import MISSING_COLOUR, Classes, class_breaks, shared_classes
+from .display import distance_label, method_name
 
-__all__ = ["class_breaks", "subcatchment_map", "raster_map", "infiltration_plot",
-           "hyetograph_plot", "pervious_series", "PerviousSeries", "figure_png"]
-
-MISSING_COLOUR = "#d9d9d9"
+__all__ = ["class_breaks", "shared_classes", "Classes", "subcatchment_map", "raster_map",
+           "figure_png", "PRINT_DPI", "METHOD_HATCHES", "MAP_SIZE_IN"]
 
 #: Anything :meth:`pyproj.CRS.from_user_input` accepts (a CRS, "EPSG:32617", an EPSG code...).
 CRSLike = CRS | str | int
 
+#: Figure size of a map, inches (about 2000 px wide at 150 dpi once trimmed).
+MAP_SIZE_IN = (14.5, 9.5)
 
-def _figure(figsize: tuple[float, float]) -> Figure:
-    """A new figure on its own Agg canvas (pyplot's list of figures is not touched)."""
-    fig = Figure(figsize=figsize, dpi=100)
-    FigureCanvasAgg(fig)
-    return fig
+#: Hatching of each loss method on a map where methods differ (the most used one is plain).
+METHOD_HATCHES = {"green_ampt": "", "horton": "///", "curve_number": "...",
+                  "constant_loss": "xxx", "phi_index": "\\\\\\"}
 
-
-def class_breaks(values: ArrayLikeFloat, n_classes: int = 5) -> NDArray[np.float64]:
-    """Round-numbered class edges spanning the finite values (at least two edges).
-
-    Examples
-    --------
-    >>> class_breaks([0.3, 7.9, 12.2]).tolist()
-    [0.0, 2.5, 5.0, 7.5, 10.0, 12.5]
-    """
-    v = np.asarray(values, dtype=np.float64)
-    v = v[np.isfinite(v)]
-    if v.size == 0:
-        return np.array([0.0, 1.0])
-    lo, hi = float(v.min()), float(v.max())
-    if hi - lo < 1e-12 * max(1.0, abs(hi)):
-        pad = max(abs(hi) * 0.05, 1e-6)
-        lo, hi = lo - pad, hi + pad
-    edges = MaxNLocator(nbins=n_classes, steps=[1, 2, 2.5, 5, 10]).tick_values(lo, hi)
-    edges = edges[(edges >= lo - (edges[1] - edges[0])) & (edges <= hi + (edges[1] - edges[0]))]
-    if lo >= 0 and edges[0] < 0:
-        edges = edges[edges >= 0] if (edges >= 0).sum() >= 2 else np.array([0.0, hi])
-    if edges[0] > lo:
-        edges = np.r_[lo, edges]
-    if edges[-1] < hi:
-        edges = np.r_[edges, hi]
-    return np.asarray(edges, dtype=np.float64)
-
-
-ArrayLikeFloat = Sequence[float] | NDArray[np.float64] | pd.Series
-
-
-def _classed(values: ArrayLikeFloat, cmap_name: str, n_classes: int
-             ) -> tuple[NDArray[np.float64], Colormap, BoundaryNorm]:
-    edges = class_breaks(values, n_classes)
-    cmap = colormaps[cmap_name].resampled(len(edges) - 1)
-    return edges, cmap, BoundaryNorm(edges, cmap.N)
-
-
-def _fmt(v: float) -> str:
-    return f"{v:,.3g}" if abs(v) < 1000 else f"{v:,.0f}"
+_LABEL_PT = 7.0
 
 
 def subcatchment_map(gdf: gpd.GeoDataFrame, column: str, *, title: str, label: str,
-                     crs: CRSLike,
-                     cmap: str = "cividis", n_classes: int = 5,
-                     missing_label: str = "no value") -> Figure:
+                     crs: CRSLike, classes: Classes | None = None, id_column: str | None = None,
+                     method_column: str | None = None, distance_unit: str = "m",
+                     cmap: str = "cividis", missing_label: str = "no value") -> Figure:
     """Choropleth of one column per subcatchment with a classed legend.
 
     Parameters
@@ -102,195 +64,149 @@ def subcatchment_map(gdf: gpd.GeoDataFrame, column: str, *, title: str, label: s
     title, label : str
         Figure title; legend title with the unit (``"runoff depth (mm)"``).
     crs : CRS-like
-        Named under the map; decides scale bar units.
+        Named under the map; decides whether a scale bar is drawn.
+    classes : Classes, optional
+        The run's classes of this quantity (:func:`shared_classes`); by default from
+        this map's values alone.
+    id_column, method_column : str, optional
+        Label polygons with this id where it fits; hatch by this loss method column.
+    distance_unit : ``"m"`` or ``"ft"``
+        Unit of the scale bar (the run's unit system).
     """
     values = pd.to_numeric(gdf[column], errors="coerce").to_numpy(dtype=np.float64)
-    edges, cm, norm = _classed(values, cmap, n_classes)
-    fig = _figure((8, 5.6))
+    classes = classes or shared_classes([values], cmap=cmap)
+    colours = classes.colours()
+    index = classes.index(values)
+    fig = new_figure(MAP_SIZE_IN)
     ax = fig.subplots()
-    finite = np.isfinite(values)
-    if finite.any():
-        gdf[finite].plot(ax=ax, color=cm(norm(values[finite])), edgecolor="white", linewidth=0.4)
-    if (~finite).any():
-        gdf[~finite].plot(ax=ax, color=MISSING_COLOUR, edgecolor="white", linewidth=0.4,
-                          hatch="//")
-    handles = [Patch(facecolor=cm(i), label=f"{_fmt(edges[i])} - {_fmt(edges[i + 1])}")
-               for i in range(len(edges) - 1)]
-    if (~finite).any():
+    have = index >= 0
+    if have.any():
+        gdf[have].plot(ax=ax, color=[colours[i] for i in index[have]], edgecolor="white",
+                       linewidth=0.5)
+    if (~have).any():
+        gdf[~have].plot(ax=ax, color=MISSING_COLOUR, edgecolor="white", linewidth=0.5,
+                        hatch="//")
+    handles = [Patch(facecolor=c, label=t) for c, t in zip(colours, classes.labels(), strict=True)]
+    if (~have).any():
         handles.append(Patch(facecolor=MISSING_COLOUR, hatch="//", label=missing_label))
-    ax.legend(handles=handles, title=label, loc="upper left", bbox_to_anchor=(1.01, 1.0),
-              frameon=False, fontsize=8, title_fontsize=9)
-    _decorate(ax, title, crs)
+    legend = ax.legend(handles=handles, title=label, loc="upper left", bbox_to_anchor=(1.01, 1.0),
+                       frameon=False, fontsize=10, title_fontsize=11)
+    if method_column is not None:
+        _method_hatching(ax, gdf, method_column, legend)
+    _decorate(ax, title, crs, distance_unit)
+    if id_column is not None:
+        _label_ids(ax, gdf, id_column)
     return fig
+
+
+def _method_hatching(ax: Axes, gdf: gpd.GeoDataFrame, column: str, first_legend: object) -> None:
+    """Hatch every method but the most used one, with a legend of methods, if methods differ."""
+    methods = gdf[column].astype(str)
+    counts = methods.value_counts()
+    if len(counts) < 2:
+        return
+    plain = counts.index[0]
+    patterns = iter(["///", "...", "xxx", "\\\\\\", "ooo"])
+    handles = [Patch(facecolor="white", edgecolor="#333333", label=method_name(plain))]
+    for method in counts.index[1:]:
+        hatch = METHOD_HATCHES.get(method) or next(patterns)
+        hatch = hatch if hatch else next(patterns)
+        gdf[methods == method].plot(ax=ax, facecolor="none", edgecolor="#222222", hatch=hatch,
+                                    linewidth=0.0)
+        handles.append(Patch(facecolor="white", edgecolor="#333333", hatch=hatch,
+                             label=method_name(method)))
+    ax.add_artist(first_legend)
+    ax.legend(handles=handles, title="loss method", loc="center left", bbox_to_anchor=(1.01, 0.45),
+              frameon=False, fontsize=10, title_fontsize=11)
+
+
+def _label_ids(ax: Axes, gdf: gpd.GeoDataFrame, column: str) -> None:
+    """Write each polygon's id at a point inside it, where the text box fits in the polygon."""
+    fig = ax.figure
+    ax.apply_aspect()
+    width_in = ax.get_position().width * fig.get_figwidth()
+    x0, x1 = ax.get_xlim()
+    units_per_pt = (x1 - x0) / (width_in * 72.0)
+    outline = [patheffects.withStroke(linewidth=2.0, foreground="white")]
+    for geom, text in zip(gdf.geometry, gdf[column].astype(str), strict=True):
+        if geom is None or geom.is_empty:
+            continue
+        p = geom.representative_point()
+        half_w = 0.5 * len(text) * _LABEL_PT * 0.62 * units_per_pt
+        half_h = 0.5 * _LABEL_PT * 1.25 * units_per_pt
+        if geom.contains(box(p.x - half_w, p.y - half_h, p.x + half_w, p.y + half_h)):
+            ax.text(p.x, p.y, text, ha="center", va="center", fontsize=_LABEL_PT,
+                    color="black", path_effects=outline)
 
 
 def raster_map(values: NDArray[np.float64], extent: tuple[float, float, float, float], *,
                title: str, label: str, crs: CRSLike, outlines: gpd.GeoDataFrame | None = None,
-               cmap: str = "viridis",
-               n_classes: int = 6) -> Figure:
-    """Draw a float raster (NaN = nodata) with a classed colour bar and optional outlines."""
-    edges, cm, norm = _classed(values, cmap, n_classes)
-    fig = _figure((8, 5.6))
+               classes: Classes | None = None, distance_unit: str = "m",
+               cmap: str = "viridis") -> Figure:
+    """Draw a float raster (NaN = nodata) with a classed legend and optional outlines."""
+    classes = classes or shared_classes([values], cmap=cmap)
+    index = classes.index(values)
+    fig = new_figure(MAP_SIZE_IN)
     ax = fig.subplots()
-    image = ax.imshow(np.ma.masked_invalid(values), extent=extent, cmap=cm, norm=norm,
-                      interpolation="nearest")
+    colours = classes.colours()
+    ax.imshow(np.ma.masked_less(index, 0), extent=extent, interpolation="nearest",
+              cmap=ListedColormap(colours), vmin=-0.5, vmax=len(colours) - 0.5)
     if outlines is not None:
         outlines.boundary.plot(ax=ax, color="black", linewidth=0.3)
-    bar = fig.colorbar(image, ax=ax, shrink=0.8, ticks=edges, spacing="proportional")
-    bar.set_label(label)
-    _decorate(ax, title, crs)
+    handles = [Patch(facecolor=c, label=t) for c, t in zip(colours, classes.labels(), strict=True)]
+    ax.legend(handles=handles, title=label, loc="upper left", bbox_to_anchor=(1.01, 1.0),
+              frameon=False, fontsize=10, title_fontsize=11)
+    _decorate(ax, title, crs, distance_unit)
     return fig
 
 
-def _decorate(ax: Axes, title: str, crs: CRSLike) -> None:
+def _decorate(ax: Axes, title: str, crs: CRSLike, distance_unit: str) -> None:
     crs = CRS.from_user_input(crs)
-    ax.set_title(title, fontsize=11)
+    ax.set_title(title, fontsize=13)
     ax.set_xticks([])
     ax.set_yticks([])
     ax.set_xlabel("")
     ax.set_ylabel("")
     ax.set_aspect("equal")
-    ax.text(0.0, -0.03, f"CRS: {crs.name}" + (f" (EPSG:{crs.to_epsg()})" if crs.to_epsg() else ""),
-            transform=ax.transAxes, fontsize=7, va="top")
+    ax.text(0.0, -0.02, f"CRS: {crs.name}" + (f" (EPSG:{crs.to_epsg()})" if crs.to_epsg() else ""),
+            transform=ax.transAxes, fontsize=9, va="top")
     if crs.is_projected:
-        _scale_bar(ax, crs.axis_info[0].unit_conversion_factor)
+        _scale_bar(ax, crs.axis_info[0].unit_conversion_factor, distance_unit)
         _north_arrow(ax)
 
 
-def _scale_bar(ax: Axes, metres_per_unit: float) -> None:
+def nice_length(target: float) -> float:
+    """The largest 1, 2 or 5 x 10^n not above ``target`` (a scale-bar length).
+
+    Examples
+    --------
+    >>> nice_length(730.0), nice_length(0.3)
+    (500.0, 0.2)
+    """
+    power = 10 ** np.floor(np.log10(target))
+    return float(max(m * power for m in (1, 2, 5) if m * power <= target))
+
+
+def _scale_bar(ax: Axes, metres_per_unit: float, distance_unit: str) -> None:
+    """A scale bar below the map's frame (so never on the data), in ``m`` or ``ft`` terms."""
     x0, x1 = ax.get_xlim()
-    y0, y1 = ax.get_ylim()
-    target_m = (x1 - x0) * metres_per_unit / 5
-    power = 10 ** np.floor(np.log10(target_m))
-    length_m = max(m * power for m in (1, 2, 5) if m * power <= target_m)
-    length = length_m / metres_per_unit
-    bx, by, bh = x0 + 0.04 * (x1 - x0), y0 + 0.05 * (y1 - y0), 0.012 * (y1 - y0)
+    unit_m = 0.3048 if distance_unit == "ft" else 1.0
+    target = (x1 - x0) * metres_per_unit / unit_m / 4  # in display units
+    big = 5280.0 if distance_unit == "ft" else 1000.0
+    length = nice_length(target / big) * big if target >= big else nice_length(target)
+    span = length * unit_m / metres_per_unit  # in CRS units
+    trans = blended_transform_factory(ax.transData, ax.transAxes)
+    bx, by, bh = x1 - span, -0.05, 0.014
     for i in range(2):
-        ax.add_patch(Rectangle((bx + i * length / 2, by), length / 2, bh,
+        ax.add_patch(Rectangle((bx + i * span / 2, by), span / 2, bh, transform=trans,
                                facecolor="black" if i == 0 else "white", edgecolor="black",
-                               linewidth=0.6))
-    text = f"{length_m / 1000:g} km" if length_m >= 1000 else f"{length_m:g} m"
-    ax.text(bx + length / 2, by + 1.8 * bh, text, ha="center", va="bottom", fontsize=7)
+                               linewidth=0.8, clip_on=False))
+    ax.text(bx + span / 2, by - 0.008, distance_label(length, "ft" if distance_unit == "ft"
+                                                       else "m"),
+            transform=trans, ha="center", va="top", fontsize=10, clip_on=False)
 
 
 def _north_arrow(ax: Axes) -> None:
-    ax.annotate("N", xy=(0.95, 0.95), xytext=(0.95, 0.83), xycoords="axes fraction",
-                ha="center", va="center", fontsize=9, fontweight="bold",
-                arrowprops={"arrowstyle": "-|>", "color": "black", "linewidth": 1.2})
-
-
-@dataclass(frozen=True)
-class PerviousSeries:
-    """One subcatchment's pervious-area rates through a storm (m/s; step ends in s)."""
-
-    time_end_s: NDArray[np.float64]
-    rain_m_per_s: NDArray[np.float64]
-    capacity_m_per_s: NDArray[np.float64]
-    infiltration_m_per_s: NDArray[np.float64]
-    ponding_s: float
-
-
-def pervious_series(loss: LossResult, params: pd.DataFrame, sub_id: str, dt_s: float
-                    ) -> PerviousSeries:
-    """Area-weighted rain, infiltration capacity and infiltration over pervious units.
-
-    The capacity is NaN where the method has no rate form (curve number).
-
-    Parameters
-    ----------
-    loss : LossResult
-        Per-unit results of one storm, in the row order of ``params``.
-    params : DataFrame
-        Unit parameters (``subcatchment_id``, ``surface``, ``area_m2``).
-    sub_id : str
-        The subcatchment.
-    dt_s : float
-        Time step, s.
-    """
-    rows = (params["subcatchment_id"].astype(str).to_numpy() == str(sub_id)) & (
-        params["surface"].to_numpy() != "impervious")
-    area = params["area_m2"].to_numpy(dtype=np.float64) * rows
-    w = area / area.sum() if area.sum() > 0 else area
-    cap = loss.capacity_m_per_s[:, rows]
-    cap_w = w[rows]
-    has = np.isfinite(cap)
-    capacity = np.where(has.all(axis=1), np.where(has, cap, 0.0) @ cap_w, np.nan)
-    ponding = loss.time_to_ponding_s[rows]
-    n = loss.rain_m.shape[0]
-    return PerviousSeries(
-        time_end_s=np.arange(1, n + 1) * dt_s,
-        rain_m_per_s=np.asarray(loss.rain_m[:, rows] @ cap_w) / dt_s,
-        capacity_m_per_s=capacity,
-        infiltration_m_per_s=np.asarray(loss.infil_m[:, rows] @ cap_w) / dt_s,
-        ponding_s=float(np.nanmin(ponding)) if np.isfinite(ponding).any() else float("nan"),
-    )
-
-
-def infiltration_plot(series: PerviousSeries, *, title: str, rate_unit: str,
-                      to_rate: Callable[[NDArray[np.float64]], NDArray[np.float64]]) -> Figure:
-    """Rain, infiltration capacity and actual infiltration through a storm, excess shaded.
-
-    Parameters
-    ----------
-    series : PerviousSeries
-    title : str
-    rate_unit : str
-        Label of the rate unit (``"mm/h"``).
-    to_rate : callable
-        Converts m/s arrays to ``rate_unit``.
-    """
-    t = series.time_end_s / 60.0
-    edges = np.r_[t[0] - (t[1] - t[0] if t.size > 1 else t[0]), t]
-    rain = to_rate(series.rain_m_per_s)
-    infil = to_rate(series.infiltration_m_per_s)
-    cap = to_rate(series.capacity_m_per_s)
-    fig = _figure((8, 4))
-    ax = fig.subplots()
-    ax.stairs(rain, edges, color="#1f4e79", linewidth=1.2, label="rain intensity")
-    ax.stairs(infil, edges, color="#e69f00", linewidth=1.2, label="actual infiltration")
-    ax.fill_between(edges, np.r_[infil, infil[-1]], np.r_[rain, rain[-1]], step="post",
-                    where=np.r_[rain > infil, False], color="#56b4e9", alpha=0.45,
-                    label="excess (runoff from pervious area)")
-    if np.isfinite(cap).any():
-        ax.plot(t, cap, color="#009e73", linestyle="--", linewidth=1.2,
-                label="infiltration capacity (end of step)")
-        finite = cap[np.isfinite(cap)]
-        top = max(float(rain.max()), float(np.percentile(finite, 5)) if finite.size else 0.0)
-        ax.set_ylim(0, top * 1.25 if top > 0 else 1.0)
-    if np.isfinite(series.ponding_s):
-        tp = series.ponding_s / 60.0
-        ax.axvline(tp, color="#d55e00", linewidth=1.2, linestyle=":")
-        ax.text(tp, ax.get_ylim()[1] * 0.95, f" ponding {tp:.0f} min", color="#d55e00",
-                fontsize=8, va="top")
-    ax.set_xlabel("time from storm start (min)")
-    ax.set_ylabel(f"rate ({rate_unit})")
-    ax.set_title(title, fontsize=10)
-    ax.legend(fontsize=7, loc="upper right", frameon=False)
-    fig.tight_layout()
-    return fig
-
-
-def hyetograph_plot(storms: Sequence[tuple[str, NDArray[np.float64], NDArray[np.float64]]], *,
-                    rate_unit: str) -> Figure:
-    """Each storm's intensity through time: (name, interval edges in min, intensity) tuples."""
-    n = max(1, len(storms))
-    fig = _figure((8, 1.9 * n + 0.6))
-    axes = fig.subplots(n, 1, squeeze=False)
-    colours = colormaps["viridis"].resampled(n + 1)
-    for ax, (k, (name, edges, intensity)) in zip(axes[:, 0], enumerate(storms), strict=False):
-        ax.stairs(intensity, edges, fill=True, color=colours(k), alpha=0.85)
-        ax.set_title(name, fontsize=9, loc="left")
-        ax.set_ylabel(rate_unit, fontsize=8)
-        ax.tick_params(labelsize=7)
-    axes[-1, 0].set_xlabel("time from storm start (min)")
-    fig.tight_layout()
-    return fig
-
-
-def figure_png(fig: Figure, *, dpi: int = 100) -> bytes:
-    """PNG bytes of a figure, rendered on an Agg canvas."""
-    if not isinstance(fig.canvas, FigureCanvasAgg):
-        FigureCanvasAgg(fig)
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight")
-    return buffer.getvalue()
+    ax.annotate("N", xy=(1.04, 0.14), xytext=(1.04, 0.02), xycoords="axes fraction",
+                ha="center", va="center", fontsize=11, fontweight="bold", annotation_clip=False,
+                arrowprops={"arrowstyle": "-|>", "color": "black", "linewidth": 1.4})

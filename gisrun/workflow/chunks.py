@@ -206,6 +206,8 @@ class ChunkOutput:
     #: Units run, and units per loss method (kept when the unit rows are streamed away).
     unit_count: int
     method_counts: dict[str, int]
+    #: The loss method of each subcatchment of the chunk.
+    subcatchment_methods: pd.DataFrame
     storm_losses: list[LossResult] = field(default_factory=list)
     #: Per storm, the unit-level results the cell rasters are made from (when asked for).
     cell_units: list[pd.DataFrame] = field(default_factory=list)
@@ -244,7 +246,16 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         overlay_notes=[str(n) for n in notes_overlay],
         unit_count=len(params),
         method_counts=params["loss_method"].value_counts(sort=False).to_dict(),
+        subcatchment_methods=_subcatchment_methods(params, sub_ids, project.method),
     )
+
+
+def _subcatchment_methods(params: pd.DataFrame, sub_ids: NDArray[np.object_], default: str
+                          ) -> pd.DataFrame:
+    """Each subcatchment's loss method (its units share one; the run's for one with none)."""
+    first = params.groupby("subcatchment_id", sort=False)["loss_method"].first()
+    methods = first.reindex(sub_ids).fillna(default).astype(str)
+    return pd.DataFrame({"subcatchment_id": sub_ids, "loss_method": methods.to_numpy()})
 
 
 def _run_storms(project: Project, inputs: Inputs, params: pd.DataFrame,

@@ -278,6 +278,7 @@ def _combine(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64],
         storms=tuple(_storm(k, h, rains[k], outputs, ordered, kept_units)
                      for k, h in enumerate(inputs.storms)),
         lumped_parameters=ordered([o.lumped_parameters for o in outputs]),
+        subcatchment_methods=ordered([o.subcatchment_methods for o in outputs]),
         unit_count=sum(o.unit_count for o in outputs),
         method_counts=dict(sorted(counts.items(), key=lambda kv: -kv[1])),
         raster_crs=inputs.soil.crs,

@@ -13,10 +13,13 @@ from pathlib import Path
 import numpy as np
 
 from ..model import CAUTION, RunResult, StormResult
-from ..present import maps
+from ..present import maps, plots
+from ..present.canvas import figure_png
+from ..present.classes import RunClasses, run_classes
+from ..present.display import method_name
 from ..present.layers import layer_name, ponding_ranking
-from ..present.report import REPORT_TOP, ReportFigures, build_report
-from ..units import from_si
+from ..present.report import REPORT_TOP, ReportFigures, SubcatchmentPlot, build_report
+from ..units import UnitSystem, from_si
 from .rasters import cell_preview
 
 __all__ = ["Figures", "write_figures", "write_report"]
@@ -40,79 +43,105 @@ class Figures:
 
 def write_figures(result: RunResult, folder: Path, *, plot_ids: list[str], cell_maps: bool,
                   progress: Progress) -> Figures:
-    """Write every map and plot of the run into ``folder`` (created)."""
+    """Write every map and plot of the run into ``folder`` (created).
+
+    The class breaks of each mapped quantity are computed once from every storm
+    (:func:`gisrun.present.classes.run_classes`) and shared by all its maps.
+    """
     system = result.project.units
     folder.mkdir(parents=True, exist_ok=True)
     out = Figures()
-    hyeto = maps.hyetograph_plot(
+    hyeto = plots.hyetograph_plot(
         [(s.name, s.hyetograph.time_s / 60.0, from_si(s.hyetograph.intensity_m_per_s,
                                                       system.rate)) for s in result.storms],
-        rate_unit=system.rate.replace("_per_", "/"))
-    out.report.hyetograph = out.save(maps.figure_png(hyeto), folder / "hyetographs.png",
+        rate_unit=rate_label(system))
+    out.report.hyetograph = out.save(figure_png(hyeto), folder / "hyetographs.png",
                                      "hyetographs")
+    classes = run_classes(result)
     total = len(result.storms)
     for k, storm in enumerate(result.storms):
         progress("maps and plots", k, total)
-        images = _subcatchment_maps(result, storm, folder, out)
+        images = _subcatchment_maps(result, storm, classes, folder, out)
         if cell_maps and result.cells is not None:
-            images.append(_cell_map(result, k, folder, out))
-        images += _infiltration_plots(result, storm, plot_ids, folder, out)
+            images.append(_cell_map(result, k, classes, folder, out))
         out.report.per_storm[storm.name] = images
+        out.report.plots += _infiltration_plots(result, storm, plot_ids, folder, out)
     progress("maps and plots", total, total)
     return out
 
 
-def _subcatchment_maps(result: RunResult, storm: StormResult, folder: Path, out: Figures
-                       ) -> list[tuple[str, bytes]]:
+def rate_label(system: UnitSystem) -> str:
+    """The run's rate unit as written (``mm/h``, ``in/h``)."""
+    return system.rate.replace("_per_", "/")
+
+
+def _subcatchment_maps(result: RunResult, storm: StormResult, classes: RunClasses,
+                       folder: Path, out: Figures) -> list[tuple[str, bytes]]:
     system, crs, stem = result.project.units, result.subcatchments.crs, storm.file_stem
     gdf = result.subcatchments[["subcatchment_id", "geometry"]].merge(
-        storm.subcatchments, on="subcatchment_id", how="left")
+        storm.subcatchments, on="subcatchment_id", how="left").merge(
+        result.subcatchment_methods, on="subcatchment_id",
+        how="left")
     gdf["runoff"] = from_si(gdf["runoff_depth_m"].to_numpy(float), system.depth)
     gdf["ponding"] = gdf["time_to_ponding_s"] / 60.0
+    common = {"crs": crs, "id_column": "subcatchment_id", "method_column": "loss_method",
+              "distance_unit": distance_unit(system)}
     fig = maps.subcatchment_map(gdf, "runoff", title=f"Runoff depth per subcatchment, "
-                                f"{storm.name}", label=f"runoff depth ({system.depth})", crs=crs)
-    runoff = (f"Runoff depth per subcatchment ({system.depth}), {storm.name}",
-              out.save(maps.figure_png(fig), folder / f"runoff_depth_{stem}.png",
+                                f"{storm.name}", label=f"runoff depth ({system.depth})",
+                                classes=classes.runoff_depth, **common)
+    runoff = (f"Runoff depth per subcatchment ({system.depth}), {storm.name}; the same classes "
+              "on every storm's map",
+              out.save(figure_png(fig), folder / f"runoff_depth_{stem}.png",
                        f"runoff_depth_{stem}"))
     fig = maps.subcatchment_map(gdf, "ponding", title=f"Time to ponding, {storm.name}",
-                                label="time to ponding (min)", crs=crs, cmap="viridis",
-                                missing_label="does not pond")
-    ponding = (f"Time to ponding (min, earliest pervious part), {storm.name}",
-               out.save(maps.figure_png(fig), folder / f"time_to_ponding_{stem}.png",
+                                label="time to ponding (min)", classes=classes.time_to_ponding,
+                                missing_label="does not pond", **common)
+    ponding = (f"Time to ponding (min, earliest pervious part; curve number: runoff start), "
+               f"{storm.name}",
+               out.save(figure_png(fig), folder / f"time_to_ponding_{stem}.png",
                         f"time_to_ponding_{stem}"))
     return [runoff, ponding]
 
 
-def _cell_map(result: RunResult, k: int, folder: Path, out: Figures) -> tuple[str, bytes]:
+def distance_unit(system: UnitSystem) -> str:
+    """Scale bars in feet and miles for US-unit runs, metres and kilometres otherwise."""
+    return "ft" if system.name == "us" else "m"
+
+
+def _cell_map(result: RunResult, k: int, classes: RunClasses, folder: Path, out: Figures
+              ) -> tuple[str, bytes]:
     storm, cells, system = result.storms[k], result.cells, result.project.units
     values, extent = cell_preview(cells, from_si(cells.runoff_depth_m[k], system.depth))
     fig = maps.raster_map(values, extent, title=f"Cell-level runoff depth, {storm.name}",
                           label=f"runoff depth ({system.depth})", crs=result.raster_crs,
-                          outlines=result.subcatchments.to_crs(result.raster_crs))
+                          outlines=result.subcatchments.to_crs(result.raster_crs),
+                          classes=classes.cell_runoff_depth,
+                          distance_unit=distance_unit(system))
     key = f"cell_runoff_depth_{storm.file_stem}"
     return (f"Cell-level runoff depth ({system.depth}) on the soil grid, {storm.name}",
-            out.save(maps.figure_png(fig), folder / f"{key}.png", key))
+            out.save(figure_png(fig), folder / f"{key}.png", key))
 
 
 def _infiltration_plots(result: RunResult, storm: StormResult, named: list[str], folder: Path,
-                        out: Figures) -> list[tuple[str, bytes]]:
+                        out: Figures) -> list[SubcatchmentPlot]:
     if storm.loss is None or result.parameters is None:
         return []
     system, dt_s = result.project.units, result.project.time_step_s
     plotted = _earliest(storm, 1)
     plotted += [s for s in named if s not in plotted]
-    images = []
+    made = []
     for sid in plotted:
-        series = maps.pervious_series(storm.loss, result.parameters, sid, dt_s)
-        fig = maps.infiltration_plot(
-            series, title=f"{sid}, {storm.name}: pervious area",
-            rate_unit=system.rate.replace("_per_", "/"),
+        series = plots.pervious_series(storm.loss, result.parameters, sid, dt_s)
+        fig = plots.infiltration_plot(
+            series, title=f"{sid}, {storm.name}", rate_unit=rate_label(system),
             to_rate=lambda v: from_si(np.asarray(v, float), system.rate))
         key = f"infiltration_{storm.file_stem}_{layer_name(sid)}"
-        images.append((f"Rain, infiltration capacity and infiltration over the pervious "
-                       f"area of {sid}, {storm.name}",
-                       out.save(maps.figure_png(fig), folder / f"{key}.png", key)))
-    return images
+        caption = (f"{sid}, {storm.name} ({method_name(series.method)}): what becomes of the "
+                   "rain on the pervious area (infiltration, storage filling and excess add up "
+                   "to the rain), the infiltration capacity and the ponding instant")
+        made.append(SubcatchmentPlot(sid, storm.name, caption,
+                                     out.save(figure_png(fig), folder / f"{key}.png", key)))
+    return made
 
 
 def _earliest(storm: StormResult, n: int) -> list[str]:

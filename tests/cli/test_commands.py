@@ -22,6 +22,17 @@ def test_the_group_lists_every_command():
         assert f"  {command} " in result.output
 
 
+@pytest.mark.parametrize("group", [[], ["storm"]])
+def test_command_lists_are_not_cut_off_in_an_80_column_terminal(group):
+    """Defect: the help lines of ``check`` and ``tables`` ended in '...' in the command list."""
+    result = CliRunner().invoke(cli, [*group, "--help"], terminal_width=80)
+    listed = result.output.split("Commands:")[1].strip().splitlines()
+    assert len(listed) >= 2
+    for line in listed:
+        assert not line.rstrip().endswith("..."), line
+        assert len(line) <= 80
+
+
 @pytest.mark.parametrize("args", [["run"], ["check"], ["tables"], ["storm"], ["storm", "make"],
                                   ["storm", "show"]])
 def test_every_command_has_help(args):

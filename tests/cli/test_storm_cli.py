@@ -123,3 +123,62 @@ def test_make_with_an_unwritable_plot_path_writes_nothing(tmp_path, capsys):
     errors = [line for line in err.splitlines() if line.startswith("gisrun: error:")]
     assert len(errors) == 1 and "blocker" in errors[0], err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["blocker"]
+
+
+# --- errors speak in the words of the command typed (issue 17) ---
+
+def make_error(tmp_path, *args):
+    out = tmp_path / "x.csv"
+    result = CliRunner().invoke(storm, ["make", *args, "-o", str(out)])
+    assert isinstance(result.exception, StormError), result.output
+    assert not out.exists()
+    return str(result.exception)
+
+
+@pytest.mark.parametrize(("args", "expected"), [
+    (["--kind", "nrcs_24h", "--depth", "50"],
+     "gisrun storm make: --kind nrcs_24h needs --distribution; add --distribution VALUE"),
+    (["--kind", "uniform", "--depth", "50"],
+     "gisrun storm make: --kind uniform needs --duration-min; add --duration-min VALUE"),
+    (["--kind", "uniform", "--depth", "-5", "--duration-min", "60"],
+     "gisrun storm make --depth: is -5.0, outside (0, inf); give a number > 0"),
+    (["--kind", "chicago", "--duration-min", "60", "--idf-a", "100", "--idf-b", "10",
+      "--idf-c", "0.8", "--peak-position", "2"],
+     "gisrun storm make --peak-position: is 2.0, outside [0, 1]; give a number >= 0 and <= 1"),
+    (["--kind", "alternating_block", "--duration-min", "60", "--idf-a", "100"],
+     "gisrun storm make: the IDF formula needs --idf-b too; give --idf-a, --idf-b and --idf-c "
+     "(i = a / (t + b)^c)"),
+])
+def test_make_errors_name_the_flags_not_project_file_keys(tmp_path, args, expected):
+    """Defect: ``storm make`` said ``add distribution = ...`` (project-file words)."""
+    message = make_error(tmp_path, *args)
+    assert message == expected
+    assert "= ..." not in message and "duration_min" not in message
+
+
+def test_make_option_that_does_not_apply_lists_the_flags_that_do(tmp_path):
+    message = make_error(tmp_path, "--kind", "uniform", "--depth", "5", "--duration-min", "60",
+                         "--idf-a", "3")
+    assert message.startswith("gisrun storm make --idf-a/--idf-b/--idf-c: does not apply to "
+                              "--kind uniform; remove it; --kind uniform takes --depth")
+
+
+def test_show_missing_file_says_where_it_looked_without_a_project(tmp_path, monkeypatch):
+    """Defect: ``storm show`` on a missing file spoke of 'the project file' with no project."""
+    monkeypatch.chdir(tmp_path)
+    result = CliRunner().invoke(storm, ["show", "nothere.csv"])
+    message = str(result.exception)
+    assert isinstance(result.exception, StormError)
+    assert message.startswith("nothere.csv: does not exist")
+    assert str(tmp_path) in message and "project" not in message
+
+
+@pytest.mark.parametrize(("sep", "shown"), [(";", "';'"), ("\t", "'\\t'")])
+def test_csv_with_another_separator_gets_a_hint(tmp_path, sep, shown):
+    """Defect: a semicolon-separated CSV failed with 'has 1 columns' and no hint."""
+    src = tmp_path / "semi.csv"
+    src.write_text(f"time_min{sep}depth_mm\n5{sep}1\n10{sep}2\n")
+    result = CliRunner().invoke(storm, ["show", str(src)])
+    message = str(result.exception)
+    assert "has 1 columns (" in message
+    assert message.endswith(f"the file separates them by {shown}: save it with commas")
