@@ -180,14 +180,18 @@ def test_chunking_and_row_bands_do_not_change_results(geotiff):
 
 def test_partly_and_wholly_outside(half_and_half_soil):
     soil = read_class_raster(half_and_half_soil)  # covers x 0-100, y 0-100
-    gdf = frame([box(90, 90, 120, 110), box(200, 0, 210, 10)], crs=LOCAL)
+    gdf = frame([box(90, 90, 120, 110)], crs=LOCAL)
     units, cov, _ = compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"},
                                        nodata_rule="omit", max_nodata_fraction=1.0)
     # 30 x 20 = 600 m2, of which 10 x 10 = 100 m2 on the raster (class B): by hand
     assert by_class(units, "S0") == pytest.approx({"B": 100.0})
-    assert cov.outside_area_m2.tolist() == pytest.approx([500.0, 100.0])
-    assert cov.nodata_fraction.tolist() == pytest.approx([500 / 600, 1.0])
-    assert "S1" not in set(units.subcatchment_id)
+    assert cov.outside_area_m2.tolist() == pytest.approx([500.0])
+    assert cov.nodata_fraction.tolist() == pytest.approx([500 / 600])
+    # wholly outside: nothing to model it with, under every rule (it would get no rain)
+    outside = frame([box(90, 90, 120, 110), box(200, 0, 210, 10)], crs=LOCAL)
+    with pytest.raises(RasterError, match=r"S1 lie wholly outside"):
+        compute_unit_areas(outside, soil, soil_codes={1: "A", 2: "B"}, nodata_rule="omit",
+                           max_nodata_fraction=1.0)
 
 
 @pytest.fixture
@@ -436,7 +440,14 @@ def test_dominant_rule_stops_on_a_subcatchment_with_nothing_to_fill_from(half_an
                                           r"outside .*'dominant'.*; extend the rasters"):
         compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"}, nodata_rule="dominant",
                            max_nodata_fraction=1.0)
-    # "omit" leaves it out as it says (its coverage shows it all outside)
-    _, cov, _ = compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"}, nodata_rule="omit",
+    # "omit" and "error" would leave it with no unit at all, and so no rain: never zero rain
+    for rule in ("omit", "error"):
+        with pytest.raises(RasterError, match=rf"S1 lie wholly outside .*'{rule}'"):
+            compute_unit_areas(gdf, soil, soil_codes={1: "A", 2: "B"}, nodata_rule=rule,
+                               max_nodata_fraction=1.0)
+    # partly outside is fine under "omit": the outside part is left out, as it says
+    part = frame([box(0, 0, 50, 100), box(90, 0, 210, 10)], crs=LOCAL)
+    _, cov, _ = compute_unit_areas(part, soil, soil_codes={1: "A", 2: "B"}, nodata_rule="omit",
                                    max_nodata_fraction=1.0)
-    assert cov["nodata_fraction"].tolist() == pytest.approx([0.0, 1.0])
+    assert cov["nodata_fraction"].iloc[0] == pytest.approx(0.0)
+    assert 0.0 < cov["nodata_fraction"].iloc[1] < 1.0

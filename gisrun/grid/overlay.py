@@ -100,8 +100,8 @@ def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid,
     Raises
     ------
     RasterError
-        A subcatchment above ``max_nodata_fraction``, or (rule ``"dominant"``) one
-        wholly outside the rasters or on nodata: nothing to fill it from.
+        A subcatchment above ``max_nodata_fraction``, or one wholly outside the
+        rasters or on nodata, under any rule: nothing to model it with.
     CRSError
         Soil and cover rasters in different CRSs, or polygons without a CRS.
     InputError
@@ -354,8 +354,14 @@ def _finish(ids: NDArray[Any], own_m2: NDArray[np.float64], sums: tuple[NDArray[
     keep = (cls >= 2) & (area > 1e-9 * own_m2[poly])
     poly, cls, area = poly[keep], cls[keep] - 2, area[keep]
     missing = np.where(missing > 1e-9 * own_m2, missing, 0.0)
+    empty = np.setdiff1d(np.flatnonzero(missing > 0), poly)
+    if empty.size:  # wholly outside or on nodata: nothing to model (it would get no rain)
+        raise RasterError(grid.fine.where, f"subcatchment(s) {', '.join(map(str, ids[empty][:10]))}"
+                          f" lie wholly outside the rasters or on nodata, so nodata rule {rule!r}"
+                          " has no soil and cover to model them with", "extend the rasters over "
+                          "them or remove them from the subcatchment layer")
     if rule == "dominant":
-        area = _fill_dominant(poly, area, missing, ids, notes, grid.fine.where)
+        area = _fill_dominant(poly, area, missing, ids, notes)
     elif missing.any():
         notes.append(f"{int(np.count_nonzero(missing))} subcatchment(s) have nodata or "
                      "outside-raster area left out of their units (see coverage)")
@@ -378,14 +384,8 @@ def _check_fraction(ids: NDArray[Any], fraction: NDArray[np.float64], max_fracti
 
 
 def _fill_dominant(poly: NDArray[Any], area: NDArray[np.float64], missing: NDArray[np.float64],
-                   ids: NDArray[Any], notes: list[str], where: str) -> NDArray[np.float64]:
-    """Give each subcatchment's missing area to its largest unit; stop if it has none."""
-    empty = np.setdiff1d(np.flatnonzero(missing > 0), poly)
-    if empty.size:  # wholly outside or on nodata: no class to fill from (it would get no rain)
-        raise RasterError(where, f"subcatchment(s) {', '.join(map(str, ids[empty][:10]))} lie "
-                          "wholly outside the rasters or on nodata, so nodata rule 'dominant' "
-                          "has no class to fill them from", "extend the rasters over them or "
-                          "remove them from the subcatchment layer")
+                   ids: NDArray[Any], notes: list[str]) -> NDArray[np.float64]:
+    """Give each subcatchment's missing area to its largest unit."""
     if poly.size == 0:
         return area
     order = np.lexsort((-area, poly))  # largest unit of each subcatchment first
