@@ -7,9 +7,14 @@ The notebook API, step by step (see :mod:`gisrun.workflow.steps`)::
     result = gisrun.run(project)              # overlay, parameters, every storm
     gisrun.write_outputs(result, overwrite=True)
 
+``write_extras`` and ``ExtrasOptions`` (the maps, rasters and report) are loaded on
+first use, so importing gisrun for its computation does not load matplotlib.
+
 Results are planning-level estimates: check them against local codes and agency
 methods and have them reviewed by a licensed engineer.
 """
+
+import importlib
 
 from ._version import __version__
 from .config.project import load_project
@@ -22,7 +27,6 @@ from .workflow.inputs import read_inputs
 from .workflow.pipeline import run
 from .workflow.steps import overlay_inputs, prepare_parameters, run_storm
 from .workflow.stream import run_and_write
-from .write.extras import ExtrasOptions, write_extras
 from .write.geopackage import write_outputs
 
 __all__ = [
@@ -47,3 +51,10 @@ __all__ = [
     "write_extras",
     "write_outputs",
 ]
+
+
+def __getattr__(name: str) -> object:
+    """Load the writers of the extras (and with them matplotlib) on first use."""
+    if name in ("ExtrasOptions", "write_extras"):
+        return getattr(importlib.import_module(".write.extras", __name__), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

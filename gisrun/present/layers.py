@@ -49,6 +49,9 @@ __all__ = [
 ]
 
 
+#: Rows of each ranking the report shows per storm (a streamed run keeps that many in memory).
+REPORT_TOP = 10
+
 #: Layers with one row per unit (and storm); a streamed run writes them chunk by chunk.
 UNIT_LAYERS = ("unit_results", "unit_parameters", "ponding_rank_units")
 

@@ -26,6 +26,7 @@ import pandas as pd
 from ..model import RunResult
 from .explore import explore_section
 from .html import anchor, esc, image, section
+from .layers import REPORT_TOP
 from .lumping import lumping_section
 from .parameter_sheet import parameter_sheet
 from .report_tables import (
@@ -102,7 +103,6 @@ CONTENT_POLICY = ("default-src 'none'; img-src data:; style-src 'unsafe-inline';
                   "script-src 'unsafe-inline'")
 
 #: Rows of each ranking shown per storm.
-REPORT_TOP = 10
 
 
 def plot_anchor(plot: SubcatchmentPlot) -> str:

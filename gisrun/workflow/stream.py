@@ -27,8 +27,13 @@ from ..io.commit import OutputSet, output_set
 from ..io.files import new_folders_removed_on_failure, refuse_inputs_among
 from ..io.geopackage import LayerCheck
 from ..model import Inputs, RunResult
-from ..present.layers import UNIT_LAYERS, layer_builders, series_layer, storm_layer_name
-from ..present.report import REPORT_TOP
+from ..present.layers import (
+    REPORT_TOP,
+    UNIT_LAYERS,
+    layer_builders,
+    series_layer,
+    storm_layer_name,
+)
 from ..project import Project
 from ..units import present_frame, si_frame
 from .inputs import read_inputs
@@ -172,7 +177,7 @@ class _Sinks:
 def _rank_units_in_file(path: Path, result: RunResult) -> pd.DataFrame:
     """Write ``ponding_rank_units`` from the streamed ``unit_results``; return its top rows (SI).
 
-    The top :data:`~gisrun.present.report.REPORT_TOP` rows of each storm are what the report
+    The top :data:`~gisrun.present.layers.REPORT_TOP` rows of each storm are what the report
     shows; the result carries them so the writers need not read the file.
     """
     system = result.project.units
