@@ -18,6 +18,9 @@ from gisrun.write import extras as deliverables
 from gisrun.write.extras import ExtrasOptions, extras_folder, write_extras
 from gisrun.write.rasters import write_cell_rasters
 
+#: End-to-end runs (and, for the report, a headless browser): `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
+
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 FAST = ExtrasOptions(maps=False, report=False)
 

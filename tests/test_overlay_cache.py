@@ -15,6 +15,9 @@ from gisrun import load_project, run
 from gisrun.errors import GisrunError, OutputError
 from gisrun.io.overlay_cache import entry_folder, load_overlay, overlay_key, save_overlay
 
+#: End-to-end runs (and, for the report, a headless browser): `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
+
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
 

@@ -23,6 +23,9 @@ from gisrun.present.layers import ponding_ranking
 from gisrun.present.report import CONTENT_POLICY, SECTIONS, ReportFigures, build_report
 from gisrun.write.extras import ExtrasOptions, write_deliverables
 
+#: End-to-end runs (and, for the report, a headless browser): `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
+
 
 class Collect(HTMLParser):
     """Ids, references, scripts, visible text, and per table its header and body rows."""

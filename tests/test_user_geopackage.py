@@ -26,6 +26,9 @@ from gisrun.errors import OutputError, OutputExistsError
 from gisrun.io import geopackage, gpkg_merge
 from gisrun.workflow.stream import run_and_write
 
+#: End-to-end runs (and, for the report, a headless browser): `pytest -m "not slow"` skips them.
+pytestmark = pytest.mark.slow
+
 GISRUN_LAYERS = {"runoff_steady", "excess_series", "subcatchment_results", "unit_results",
                  "unit_parameters", "parameter_sources", "coverage", "run_info"}
 
