@@ -103,8 +103,8 @@ DUAL_GROUP_CONDITIONS = Choices(("drained", "undrained"), what="dual-group condi
 UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
 #: Which lumped parameter sets a run makes (``[method] lumped_parameters``): all three
 #: (root searches), the area-weighted set only, or none.
-LUMPED_PARAMETER_SETS = Choices(("solve", "area_weighted", "off"),
-                                what="lumped parameters choice", default="solve")
+LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
+                                what="lumped parameters choice", default="auto")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {

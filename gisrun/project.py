@@ -88,7 +88,7 @@ class Project:
     memory_budget_mb: float = 1500.0
     compare_composite: bool = False
     #: Lumped parameter sets to make: ``"solve"``, ``"area_weighted"`` or ``"off"``.
-    lumped_parameters: str = "solve"
+    lumped_parameters: str = "auto"
     initial_abstraction_ratio: float = 0.2
     antecedent_condition: int = 2
     overlay_cache: Path | None = None

@@ -20,9 +20,24 @@ def project(tmp_path_factory):
 
 
 def test_default_makes_all_three_sets(project):
-    assert project.lumped_parameters == "solve"
-    table = run(project).lumped_parameters
-    assert set(table["basis"].astype(str)) == {"area_weighted", "equivalent", "fitted"}
+    assert project.lumped_parameters == "auto"
+    result = run(project)
+    assert set(result.lumped_parameters["basis"].astype(str)) == {"area_weighted", "equivalent",
+                                                                   "fitted"}
+    assert result.project.lumped_parameters == "solve"
+
+
+def test_default_makes_none_for_a_large_run_and_says_so(project, monkeypatch):
+    # the searches and the table kept for the whole run cost more than the run itself at
+    # 100,000 subcatchments (bench_run.py): "auto" leaves them out above the threshold
+    import gisrun.workflow.pipeline as pipeline
+
+    monkeypatch.setattr(pipeline, "KEEP_STEP_ARRAYS_BELOW", 2)  # the tiny project has 2
+    result = run(project)
+    assert result.lumped_parameters.empty and result.project.lumped_parameters == "off"
+    assert any("lumped parameters not made for 2 subcatchments" in w for w in result.warnings)
+    asked = run(dataclasses.replace(project, lumped_parameters="area_weighted"))
+    assert not asked.lumped_parameters.empty
 
 
 def test_area_weighted_only_skips_the_searches(project):

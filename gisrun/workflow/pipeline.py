@@ -9,6 +9,7 @@ puts their results back in the layer's order and returns a frozen
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as _dt
 import os
 import warnings
@@ -123,6 +124,7 @@ def run(
         check_inputs_codes(project, inputs)
     if keep_loss is None:
         keep_loss = len(inputs.subcatchments) < KEEP_STEP_ARRAYS_BELOW
+    project, lumping_note = _lumping_for_size(project, len(inputs.subcatchments))
     cells = keep_loss if cells is None else cells
     if keep_loss:  # a run small enough to keep its step arrays keeps its unit rows too
         unit_sink = None
@@ -140,7 +142,7 @@ def run(
     say(f"overlay, parameters and {len(inputs.storms)} storm(s) in {len(tasks)} chunk(s)")
     outputs = list(_stream(execute(tasks, workers=workers, scheduler=scheduler), inputs,
                            series_sink, unit_sink))
-    notes = [*inputs.notes, *(str(w.message) for w in [*caught, *refused]
+    notes = [*inputs.notes, *lumping_note, *(str(w.message) for w in [*caught, *refused]
                               if issubclass(w.category, GisrunWarning)), *resampled]
     notes += [n for out in outputs for n in out.notes]
     cell_rasters = None
@@ -157,6 +159,22 @@ def run(
         save_overlay(project.overlay_cache, cache_key, result.units, result.coverage,
                      overlay_notes)
     return result
+
+
+def _lumping_for_size(project: Project, n_subcatchments: int) -> tuple[Project, list[str]]:
+    """``lumped_parameters = "auto"``: solve below KEEP_STEP_ARRAYS_BELOW subcatchments, else off.
+
+    The equivalent and fitted sets take root searches per subcatchment and storm and a table
+    kept for the whole run; a large run makes them only when the project asks (``"solve"``).
+    """
+    if project.lumped_parameters != "auto":
+        return project, []
+    if n_subcatchments < KEEP_STEP_ARRAYS_BELOW:
+        return dataclasses.replace(project, lumped_parameters="solve"), []
+    return dataclasses.replace(project, lumped_parameters="off"), [
+        f"lumped parameters not made for {n_subcatchments} subcatchments (automatic above "
+        f"{KEEP_STEP_ARRAYS_BELOW - 1}); set [method] lumped_parameters = \"area_weighted\" or "
+        "\"solve\" to make them"]
 
 
 def _tasks(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64], ...],

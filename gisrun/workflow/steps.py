@@ -240,4 +240,4 @@ def lumped_parameter_table(project: Project, inputs: Inputs, params: pd.DataFram
     scale = rain_scale_for_units(project, inputs, pd.DataFrame({"subcatchment_id": sub_ids}))
     return lumped_parameters(params, sub_ids, storms, project.time_step_s,
                              default_method=project.method, rain_scale=scale,
-                             solve=project.lumped_parameters == "solve")
+                             solve=project.lumped_parameters in ("solve", "auto"))
