@@ -206,11 +206,17 @@ def round_significant(values: ArrayLike, digits: int = SIGNIFICANT_DIGITS
         return x
     whole = bool(keep.all())
     v = x if whole else x[keep]
-    shift = digits - 1 - np.floor(np.log10(np.abs(v))).astype(np.int64)
-    scale = _POWERS_OF_TEN.take(np.abs(shift))  # 10 ** |shift|, looked up, not recomputed
+    work = np.abs(v)
+    np.floor(np.log10(work, out=work), out=work)
+    shift = (digits - 1) - work.astype(np.int64)
     up = shift >= 0  # multiply by an exact power of ten, round, divide: the nearest double
     with np.errstate(over="ignore", invalid="ignore"):
-        out = np.where(up, np.round(v * scale) / scale, np.round(v / scale) * scale)
+        if up.all():  # values below 10 ** digits: one branch, in place
+            scale = _POWERS_OF_TEN.take(shift)  # 10 ** shift, looked up, not recomputed
+            out = np.divide(np.round(np.multiply(v, scale, out=work), out=work), scale, out=work)
+        else:
+            scale = _POWERS_OF_TEN.take(np.abs(shift))
+            out = np.where(up, np.round(v * scale) / scale, np.round(v / scale) * scale)
     if whole:
         return out
     x[keep] = out
