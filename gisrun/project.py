@@ -13,7 +13,7 @@ from typing import Any
 
 from .units import UnitSystem
 
-__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "Project"]
+__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "UncertaintySettings", "Project"]
 
 
 @dataclass(frozen=True)
@@ -51,6 +51,23 @@ class CoverSource:
     path: Path
     codes: dict[int, str]
     crs: str | None = None
+
+
+@dataclass(frozen=True)
+class UncertaintySettings:
+    """``[uncertainty]``: runoff bands from the published parameter ranges.
+
+    ``samples`` parameter sets are drawn by Latin hypercube from ``seed``; the
+    bands are the ``percentiles`` of each subcatchment's figures; ``top_k`` is the
+    length of the ponding-first list whose stability is counted; the tornado
+    figures are drawn for ``sensitivity_subcatchments`` (or the largest few).
+    """
+
+    samples: int
+    seed: int
+    percentiles: tuple[float, ...] = (10.0, 50.0, 90.0)
+    top_k: int = 10
+    sensitivity_subcatchments: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -92,6 +109,8 @@ class Project:
     initial_abstraction_ratio: float = 0.2
     antecedent_condition: int = 2
     overlay_cache: Path | None = None
+    #: Runoff bands from the parameter ranges (``[uncertainty]``); None when not asked for.
+    uncertainty: UncertaintySettings | None = None
 
     @property
     def base_dir(self) -> Path:

@@ -55,6 +55,7 @@ from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_l
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
 from .reader import TableReader
+from .uncertainty import UNCERTAINTY_KEYS, uncertainty_settings
 
 __all__ = [
     "PROJECT_FILE_NAMES",
@@ -78,7 +79,7 @@ _REQUIRED = ("subcatchments", "soil")
 #: Keys of each table ("" = the top level); [[storms]] keys come from the storm kinds.
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
-         "storms", "rain_scale"),
+         "storms", "rain_scale", "uncertainty"),
     "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
                       "max_overlap_fraction"),
@@ -90,6 +91,7 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
                "antecedent_condition", "lumped_parameters"),
     "parameters": ("overrides",),
     "rain_scale": ("field",),
+    "uncertainty": UNCERTAINTY_KEYS,
 }
 
 
@@ -176,6 +178,8 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         initial_abstraction_ratio=_declared(method, "initial_abstraction_ratio"),
         antecedent_condition=int(_declared(method, "antecedent_condition")),
         overlay_cache=top.path("overlay_cache", required=False),
+        uncertainty=uncertainty_settings(read["uncertainty"], present="uncertainty" in raw,
+                                         combine=method.choice("combine", COMBINE_RULES)),
     )
     _check_class_labels(file, project)
     return project
