@@ -1,13 +1,15 @@
-"""Run parameter sets through the engine on the distinct unit parts, aggregate to subcatchments.
+"""Parameter sets through the engine, once per distinct unit part of the whole run.
 
-A chunk's unit parts are reduced once to their distinct rows (same parameters,
-method, rain factor, soil, cover and surface; per subcatchment only where an
-override names it). A sample changes the values of those rows only, so every
-sample costs one engine run over the distinct rows, not over every unit: units
-that share a row share its result, exactly as the engine's own deduplication
-copies it. Per-unit totals are spread back by index and area-weighted to
-subcatchments with the run's own weights (:func:`gisrun.aggregate.area_weights`),
-so a sample whose values equal the run's gives the run's figures bit for bit.
+A chunk's unit parts are reduced to their distinct rows (same parameters, method,
+rain factor, soil, cover and surface; per subcatchment only where an override row
+or attribute gives that subcatchment a value), each with a *key* that is the same
+in every chunk (:func:`distinct_parts`). A sample changes the values of the rows
+that have a range (:func:`sampled_values`, :func:`apply_values`). The sampled rows
+of every chunk are gathered into one table in the order of their keys and every
+sample is run over it once (:func:`run_row_sets`): a soil x cover part that appears
+in a thousand chunks is simulated once per sample, not a thousand times, and the
+result does not depend on how the run was cut into chunks or on which worker ran
+a chunk. Rows without a range keep the run's own results.
 """
 
 from __future__ import annotations
@@ -19,39 +21,43 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from ..aggregate import area_weights
 from ..engine import run_losses
 from .ranges import Ranges
 from .spread import SPREADS, values_from_uniform
 
-__all__ = ["DistinctParts", "distinct_parts", "SampleRunner", "sampled_values",
-           "apply_values", "StormFigures"]
+__all__ = ["DistinctParts", "distinct_parts", "sampled_values", "apply_values",
+           "run_row_sets", "RowFigures", "BATCH_ROWS"]
 
 FloatArray = NDArray[np.float64]
 _KEYS = ("soil_class", "cover_class", "surface", "hydrologic_soil_group", "loss_method")
 
+#: Most rows in one engine call when parameter sets are run together: the engine's step
+#: arrays (3 x steps x rows x 8 bytes) stay near 60 MB for a 24 h storm at 5 min.
+BATCH_ROWS = 8192
+
 
 @dataclass(frozen=True)
 class DistinctParts:
-    """The distinct rows of a unit parameter frame and, for every unit, its row."""
+    """The distinct rows of a unit parameter frame, their keys and every unit's row."""
 
     frame: pd.DataFrame
     inverse: NDArray[np.intp]
     #: Rain depth factor of each distinct row (None: every row takes the storm as is).
     rain_scale: FloatArray | None
+    #: One hashable key per distinct row, the same for the same part in any chunk.
+    keys: list[tuple]
 
 
 def distinct_parts(params: pd.DataFrame, *, named: set[str] = frozenset(),
                    rain_scale: FloatArray | None = None) -> DistinctParts:
-    """Group unit parts that any sample treats alike (see the module docstring)."""
+    """Group unit parts that every sample treats alike (see the module docstring)."""
     params = params.reset_index(drop=True)
     ids = params["subcatchment_id"].astype(str).to_numpy(dtype=object)
     own = np.where(np.isin(ids, list(named)), ids, "") if named else np.full(len(ids), "")
     cols = [pd.factorize(pd.Series(own))[0].astype(np.float64)]
     cols += [pd.factorize(params[k].astype(object), use_na_sentinel=False)[0].astype(np.float64)
              for k in _KEYS if k in params.columns]
-    numeric = [c for c in params.columns if c not in (*_KEYS, "subcatchment_id", "area_m2")
-               and pd.api.types.is_numeric_dtype(params[c])]
+    numeric = _numeric_columns(params)
     cols += [params[c].to_numpy(dtype=np.float64) for c in numeric]
     if rain_scale is not None:
         cols.append(np.asarray(rain_scale, dtype=np.float64))
@@ -63,101 +69,26 @@ def distinct_parts(params: pd.DataFrame, *, named: set[str] = frozenset(),
     position[order] = np.arange(len(order))
     frame = params.iloc[first[order]].reset_index(drop=True)
     frame["subcatchment_id"] = own[first[order]]
-    scale = None if rain_scale is None else np.asarray(rain_scale)[first[order]]
-    return DistinctParts(frame, position[inverse.reshape(-1)], scale)
+    scale = None if rain_scale is None else np.asarray(rain_scale, dtype=np.float64)[first[order]]
+    return DistinctParts(frame, position[inverse.reshape(-1)], scale,
+                         _keys(frame, numeric, scale))
 
 
-@dataclass(frozen=True)
-class StormFigures:
-    """One storm's subcatchment figures for one parameter set (SI, layer order)."""
-
-    runoff_depth_m: FloatArray
-    time_to_ponding_s: FloatArray
+def _numeric_columns(params: pd.DataFrame) -> list[str]:
+    return [c for c in params.columns if c not in (*_KEYS, "subcatchment_id", "area_m2")
+            and pd.api.types.is_numeric_dtype(params[c])]
 
 
-#: Most unit rows in one engine call when parameter sets are run together: the engine's
-#: step arrays (3 x steps x rows x 8 bytes) stay near 60 MB for a 24 h storm at 5 min.
-BATCH_ROWS = 8192
-
-
-class SampleRunner:
-    """Runs parameter sets of the distinct rows through every storm of a chunk.
-
-    Sets are run together, as many as fit in :data:`BATCH_ROWS` rows per engine
-    call: the engine's time loop costs per step, so one call over many sets costs
-    little more than one over one set. Where every set is the same, the engine's
-    deduplication runs the rows once, exactly as the run did.
-    """
-
-    def __init__(self, params: pd.DataFrame, parts: DistinctParts, sub_ids: NDArray[np.object_],
-                 rains: Sequence[FloatArray], dt_s: float) -> None:
-        self.parts, self.rains, self.dt_s = parts, list(rains), float(dt_s)
-        self.weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(),
-                                    sub_ids)
-        rows = pd.Index(np.asarray(sub_ids, dtype=object)).get_indexer(params["subcatchment_id"])
-        self.area_m2 = np.bincount(rows, weights=params["area_m2"].to_numpy(),
-                                   minlength=len(sub_ids))
-        self.sub_ids = np.asarray(sub_ids, dtype=object)
-        self._ponding = _PondingGroups(rows, params, self.area_m2, len(sub_ids))
-
-    def run(self, frame: pd.DataFrame) -> list[StormFigures]:
-        """Subcatchment runoff depth and time to ponding of every storm for one set."""
-        return [StormFigures(f.runoff_depth_m[0], f.time_to_ponding_s[0])
-                for f in self.run_many([frame])]
-
-    def run_many(self, frames: Sequence[pd.DataFrame]) -> list[StormFigures]:
-        """Per storm, the figures of every set: arrays of shape (sets, subcatchments)."""
-        n_rows = len(self.parts.frame)
-        per_call = max(1, BATCH_ROWS // max(n_rows, 1))
-        depth = [np.empty((len(frames), len(self.sub_ids))) for _ in self.rains]
-        ponding = [np.empty((len(frames), len(self.sub_ids))) for _ in self.rains]
-        for start in range(0, len(frames), per_call):
-            batch = list(frames[start:start + per_call])
-            joined = pd.concat(batch, ignore_index=True) if len(batch) > 1 else batch[0]
-            for k, rain in enumerate(self.rains):
-                runoff, ponded = self._run_storm(joined, rain, len(batch))
-                done = slice(start, start + len(batch))
-                depth[k][done] = np.asarray(self.weights @ runoff.T).T
-                ponding[k][done] = self._ponding.earliest(ponded)
-        return [StormFigures(d, p) for d, p in zip(depth, ponding, strict=True)]
-
-    def _run_storm(self, joined: pd.DataFrame, rain: FloatArray, n_sets: int
-                   ) -> tuple[FloatArray, FloatArray]:
-        """Per-unit runoff depth and ponding time of each set, (sets x units)."""
-        if self.parts.rain_scale is not None:
-            rain = rain[:, None] * np.tile(self.parts.rain_scale, n_sets)[None, :]
-        loss = run_losses(joined, rain, self.dt_s)
-        n_rows = len(self.parts.frame)
-        runoff = loss.excess_m.sum(axis=0).reshape(n_sets, n_rows)[:, self.parts.inverse]
-        ponded = np.asarray(loss.time_to_ponding_s, dtype=np.float64).reshape(n_sets, n_rows)
-        return runoff, ponded[:, self.parts.inverse]
-
-
-class _PondingGroups:
-    """The earliest ponding time of each subcatchment's pervious units, for many sets at once.
-
-    The same figure as :func:`gisrun.aggregate.earliest_ponding` (a minimum does not
-    depend on order), by one sort and :func:`numpy.minimum.reduceat` per batch.
-    """
-
-    def __init__(self, rows: NDArray[np.intp], params: pd.DataFrame, area_m2: FloatArray,
-                 n_subs: int) -> None:
-        share = (params["area_m2"].to_numpy() > 0) & (area_m2[rows] > 0)
-        keep = np.flatnonzero(share & (params["surface"] != "impervious").to_numpy())
-        order = keep[np.argsort(rows[keep], kind="stable")]
-        self.order, self.n_subs = order, n_subs
-        self.groups, self.starts = np.unique(rows[order], return_index=True)
-
-    def earliest(self, ponded: FloatArray) -> FloatArray:
-        out = np.full((ponded.shape[0], self.n_subs), np.nan)
-        if not self.order.size:
-            return out
-        values = ponded[:, self.order]
-        values = np.where(np.isnan(values), np.inf, values)
-        least = np.minimum.reduceat(values, self.starts, axis=1)
-        least[np.isinf(least)] = np.nan
-        out[:, self.groups] = least
-        return out
+def _keys(frame: pd.DataFrame, numeric: list[str], scale: FloatArray | None) -> list[tuple]:
+    """Row keys from the values themselves (exact bits of every number), not chunk codes."""
+    text = [frame[c].astype(str).tolist() for c in ("subcatchment_id", *_KEYS)
+            if c in frame.columns]
+    bits = np.column_stack([frame[c].to_numpy(dtype=np.float64) for c in numeric]
+                           + ([scale] if scale is not None else [])
+                           ).view(np.int64) if numeric or scale is not None else None
+    numbers = [tuple(row) for row in bits.tolist()] if bits is not None else [()] * len(frame)
+    return [(*names, *nums) for names, nums in zip(zip(*text, strict=True), numbers,
+                                                   strict=True)]
 
 
 def sampled_values(ranges: Ranges, columns: dict[str, FloatArray]
@@ -197,3 +128,39 @@ def apply_values(base: pd.DataFrame, values: dict[str, tuple[NDArray[np.intp], F
         frame["horton_fc_m_per_s"] = np.minimum(frame["horton_fc_m_per_s"].to_numpy(),
                                                 frame["horton_f0_m_per_s"].to_numpy())
     return frame
+
+
+@dataclass(frozen=True)
+class RowFigures:
+    """One storm's totals per parameter set and row: arrays of shape (sets, rows), SI."""
+
+    runoff_depth_m: FloatArray
+    time_to_ponding_s: FloatArray
+
+
+def run_row_sets(frames: Sequence[pd.DataFrame], rains: Sequence[FloatArray], dt_s: float, *,
+                 rain_scale: FloatArray | None = None) -> list[RowFigures]:
+    """Run parameter sets of the same rows through every storm; per storm, each row's totals.
+
+    The sets are concatenated into engine calls of up to :data:`BATCH_ROWS` rows: the
+    engine's time loop costs per step, so one call over many sets costs little more
+    than one over one set. Ponding times of impervious rows are NaN (as in the unit
+    results: ponding describes pervious ground).
+    """
+    n_rows = len(frames[0]) if frames else 0
+    per_call = max(1, BATCH_ROWS // max(n_rows, 1))
+    runoff = [np.empty((len(frames), n_rows)) for _ in rains]
+    ponding = [np.empty((len(frames), n_rows)) for _ in rains]
+    for start in range(0, len(frames), per_call):
+        batch = list(frames[start:start + per_call])
+        joined = pd.concat(batch, ignore_index=True) if len(batch) > 1 else batch[0]
+        impervious = (joined["surface"] == "impervious").to_numpy()
+        for k, rain in enumerate(rains):
+            if rain_scale is not None:
+                rain = rain[:, None] * np.tile(rain_scale, len(batch))[None, :]
+            loss = run_losses(joined, rain, dt_s)
+            done = slice(start, start + len(batch))
+            runoff[k][done] = loss.excess_m.sum(axis=0).reshape(len(batch), n_rows)
+            ponded = np.where(impervious, np.nan, loss.time_to_ponding_s)
+            ponding[k][done] = ponded.reshape(len(batch), n_rows)
+    return [RowFigures(r, p) for r, p in zip(runoff, ponding, strict=True)]

@@ -4,10 +4,11 @@ For every sampled parameter, the distinct unit parts that have a range for it ar
 set to the range's low end, then to its high end (one standard deviation, the
 10th/90th percentile for the curve number, the interval's ends for a uniform),
 every other parameter at the run's value, and each subcatchment's runoff depth is
-recorded. The *swing* ``|high - low|`` ranks the parameters per subcatchment and
-storm: rank 1 moves its runoff most. Draws of the same parameter move together
-(all textures at their low end at once), so the swing is the parameter's, not a
-texture's.
+recorded (the run-wide runs are :func:`gisrun.uncertainty.rowsets.run_samples`;
+units whose part has no range for the parameter keep the run's own totals). The
+*swing* ``|high - low|`` ranks the parameters per subcatchment and storm: rank 1
+moves its runoff most. Draws of the same parameter move together (all textures at
+their low end at once), so the swing is the parameter's, not a texture's.
 """
 
 from __future__ import annotations
@@ -18,8 +19,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from .ranges import Ranges
-from .sampling import DistinctParts, SampleRunner, StormFigures, apply_values
+from .rowsets import SampledRows
 from .spread import SPREADS
 
 __all__ = ["one_at_a_time", "SENSITIVITY_COLUMNS"]
@@ -30,27 +30,31 @@ SENSITIVITY_COLUMNS = ("storm", "subcatchment_id", "parameter", "runoff_depth_m"
                        "runoff_depth_swing_m", "sensitivity_rank")
 
 
-def one_at_a_time(runner: SampleRunner, parts: DistinctParts, ranges: Ranges,
-                  storm_names: Sequence[str], *, saturation: float,
-                  central: list[StormFigures]) -> pd.DataFrame:
+def one_at_a_time(part: object, rows: SampledRows, agg: object, unit_row: NDArray[np.intp],
+                  storm_names: Sequence[str]) -> pd.DataFrame:
     """Long table: per storm, subcatchment and sampled parameter, runoff at each range end.
 
-    Only subcatchments with a part that has a range for the parameter get a row.
+    ``part`` is the chunk's :class:`~gisrun.uncertainty.analysis.ChunkParts`, ``agg`` its
+    :class:`~gisrun.uncertainty.analysis.Aggregator` and ``unit_row`` each unit's row in
+    the run-wide table (-1 where its part has no range). Only subcatchments with a part
+    that has a range for the parameter get a row.
     """
     frames = []
     for column in SPREADS:
-        rows = np.flatnonzero(ranges.sampled(column))
-        if not rows.size:
+        if column not in rows.at_low:
             continue
-        ends = runner.run_many([apply_values(parts.frame, {column: (rows, bound[column][rows])},
-                                             saturation=saturation)
-                                for bound in (ranges.low, ranges.high)])
-        touched = np.zeros(len(parts.frame), dtype=bool)
-        touched[rows] = True
-        has = np.asarray(runner.weights @ touched[parts.inverse].astype(float)).ravel() > 0
+        on = part.ranges.sampled(column)[part.parts.inverse] & (unit_row >= 0)
+        if not on.any():
+            continue
+        has = np.asarray(agg.weights @ on.astype(float)).ravel() > 0
         for k, storm in enumerate(storm_names):
-            frames.append(_rows(storm, column, runner.sub_ids, has, central[k].runoff_depth_m,
-                                ends[k].runoff_depth_m[0], ends[k].runoff_depth_m[1]))
+            run = part.run_runoff_m[k]
+            ends = []
+            for figures in (rows.at_low[column][k], rows.at_high[column][k]):
+                runoff = run.copy()
+                runoff[on] = figures.runoff_depth_m[0, unit_row[on]]
+                ends.append(agg.depth(runoff)[0])
+            frames.append(_rows(storm, column, part.sub_ids, has, agg.depth(run)[0], *ends))
     if not frames:
         return pd.DataFrame({c: [] for c in SENSITIVITY_COLUMNS})
     table = pd.concat(frames, ignore_index=True)

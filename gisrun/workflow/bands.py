@@ -1,10 +1,14 @@
-"""The uncertainty runs inside the chunked run: per chunk, then put together.
+"""The uncertainty runs inside the chunked run: per chunk, once for the run, per chunk again.
 
-Each chunk, after its storms, hands its unit parameters (as assigned; the overlay
-and the parameter work are the run's own) to :func:`gisrun.uncertainty.analyse_chunk`
-(:func:`chunk_uncertainty`). :func:`combine_uncertainty` puts the chunks' bands
-into the layer's order, merges each sample's first-to-pond lists over the chunks
-and picks the subcatchments drawn as tornado figures.
+Each chunk, after its storms, reduces its unit parameters (as assigned: the overlay
+and the parameter work are the run's own) to distinct parts with their ranges and
+keeps the run's unit totals (:func:`chunk_uncertainty`,
+:func:`gisrun.uncertainty.prepare_parts`). After the last chunk,
+:func:`combine_uncertainty` runs every sample once over the sampled parts of the
+whole run (:func:`gisrun.uncertainty.run_samples`), makes each chunk's bands
+(:func:`gisrun.uncertainty.chunk_bands`), puts them in the layer's order, merges
+each sample's first-to-pond lists over the chunks and picks the subcatchments drawn
+as tornado figures.
 """
 
 from __future__ import annotations
@@ -16,16 +20,20 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from ..errors import InputError
-from ..model import Inputs, UncertaintyResult
+from ..model import Inputs, StormResult, UncertaintyResult
 from ..project import Project
 from ..uncertainty import (
     ChunkInputs,
+    ChunkParts,
     ChunkUncertainty,
     RangeSettings,
-    analyse_chunk,
+    chunk_bands,
     first_k_share,
+    gather_rows,
     merge_first_k,
     parameter_ranges,
+    prepare_parts,
+    run_samples,
 )
 from .steps import rain_scale_for_units, subcatchment_attributes
 
@@ -37,14 +45,14 @@ TORNADO_COUNT = 3
 
 
 def chunk_uncertainty(project: Project, inputs: Inputs, params: pd.DataFrame,
-                      rains: Sequence[NDArray[np.float64]], sub_ids: NDArray[np.object_]
-                      ) -> ChunkUncertainty | None:
-    """One chunk's bands, first-to-pond lists and sensitivity (None without ``[uncertainty]``)."""
-    settings = project.uncertainty
-    if settings is None:
+                      results: Sequence[StormResult], sub_ids: NDArray[np.object_]
+                      ) -> ChunkParts | None:
+    """One chunk's distinct parts, ranges and unit totals (None without ``[uncertainty]``)."""
+    if project.uncertainty is None:
         return None
-    return analyse_chunk(params, _chunk_inputs(project, inputs, params, rains, sub_ids),
-                         settings)
+    chunk = _chunk_inputs(project, inputs, params, [r.rain_per_step_m for r in results],
+                          sub_ids)
+    return prepare_parts(params, chunk, [r.units for r in results])
 
 
 def check_uncertainty_ranges(project: Project, inputs: Inputs, params: pd.DataFrame) -> None:
@@ -95,17 +103,22 @@ def check_named_ids(project: Project, inputs: Inputs) -> None:
                              f"use ids from the {project.subcatchments.id_field!r} field")
 
 
-def combine_uncertainty(project: Project, inputs: Inputs, parts: list[ChunkUncertainty | None],
+def combine_uncertainty(project: Project, inputs: Inputs, chunk_parts: list[ChunkParts | None],
+                        rains: Sequence[NDArray[np.float64]],
                         ordered: Callable[[list[pd.DataFrame]], pd.DataFrame],
                         coverage: pd.DataFrame) -> UncertaintyResult | None:
-    """The run's uncertainty result from its chunks' parts (in layer order).
+    """The run's uncertainty result: the run-wide sample runs, then each chunk's bands.
 
     ``coverage`` is the run's coverage table (its ``area_m2`` picks the largest
     subcatchments for the tornado figures when the project names none).
     """
     settings = project.uncertainty
-    if settings is None or any(p is None for p in parts):
+    if settings is None or not chunk_parts or any(p is None for p in chunk_parts):
         return None
+    rows = run_samples(gather_rows(chunk_parts), rains, project.time_step_s, settings,
+                       saturation=project.soil.initial_saturation)
+    names = [h.name for h in inputs.storms]
+    parts = [chunk_bands(p, rows, settings, names) for p in chunk_parts]
     ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
     position = pd.Series(np.arange(len(ids)), index=ids)
     bands = []

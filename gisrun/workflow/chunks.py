@@ -30,7 +30,7 @@ from ..grid.classes import ClassGrid
 from ..model import Inputs, StormResult
 from ..project import Project
 from ..storm import Hyetograph
-from ..uncertainty import ChunkUncertainty
+from ..uncertainty import ChunkParts
 from .bands import chunk_uncertainty
 from .cells import slim_unit_results
 from .steps import (
@@ -215,8 +215,8 @@ class ChunkOutput:
     cell_units: list[pd.DataFrame] = field(default_factory=list)
     #: The overlay's own notes (also in ``notes``), for the overlay cache.
     overlay_notes: list[str] = field(default_factory=list)
-    #: Bands, first-to-pond lists and sensitivity of the chunk (``[uncertainty]``).
-    uncertainty: ChunkUncertainty | None = None
+    #: Distinct parts, ranges and unit totals for the uncertainty runs (``[uncertainty]``).
+    uncertainty: ChunkParts | None = None
 
 
 def process_chunk(task: ChunkTask) -> ChunkOutput:
@@ -236,7 +236,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
         lumped = lumped_parameter_table(project, inputs, params, results, sub_ids)
         cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
-        bands = chunk_uncertainty(project, inputs, params, task.rains, sub_ids)
+        bands = chunk_uncertainty(project, inputs, params, results, sub_ids)
     notes = [str(n) for n in (*notes_overlay, *notes_params)]
     notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     return ChunkOutput(

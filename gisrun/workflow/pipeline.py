@@ -308,7 +308,7 @@ def _combine(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64],
         checksums=checksums,
         cells=cells,
         uncertainty=combine_uncertainty(project, inputs, [o.uncertainty for o in outputs],
-                                        ordered, coverage),
+                                        rains, ordered, coverage),
     )
 
 

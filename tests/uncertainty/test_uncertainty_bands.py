@@ -14,7 +14,8 @@ from gisrun.parameters import assign_parameters
 from gisrun.project import UncertaintySettings
 from gisrun.storm import Hyetograph
 from gisrun.uncertainty import ChunkInputs, RangeSettings, analyse_chunk
-from gisrun.uncertainty.analysis import prepare_chunk, sample_figures
+from gisrun.uncertainty.analysis import Aggregator, prepare_parts, unit_figures
+from gisrun.uncertainty.rowsets import gather_rows, run_samples
 from gisrun.uncertainty.summary import band_table
 from gisrun.workflow.steps import run_storm
 
@@ -49,23 +50,36 @@ def _chunk(storms=(STORM,)) -> ChunkInputs:
                        tuple(h.resample(DT) for h in storms), DT, RANGES)
 
 
-def _figures(params, n=40, seed=1, storms=(STORM,)):
-    prepared = prepare_chunk(params, _chunk(storms))
-    return sample_figures(prepared, UncertaintySettings(samples=n, seed=seed), saturation=0.3)
+def _part(params, storms=(STORM,)):
+    units = [run_storm(params, h, DT, sub_ids=SUBS).units for h in storms]  # the run's own
+    return prepare_parts(params, _chunk(storms), units)
+
+
+def _figures(params, n=40, seed=1, storms=(STORM,), part=None):
+    """Per storm, every sample's (runoff depth, time to ponding), (samples x subcatchments)."""
+    part = part or _part(params, storms)
+    rows = run_samples(gather_rows([part]), [h.resample(DT) for h in storms], DT,
+                       UncertaintySettings(samples=n, seed=seed), saturation=0.3)
+    agg = Aggregator(part)
+    out = []
+    for k in range(len(storms)):
+        runoff, ponding = unit_figures(part, rows, k, n)
+        out.append((agg.depth(runoff), agg.ponding(ponding)))
+    return out
 
 
 @pytest.mark.parametrize("method", ["green_ampt", "horton", "curve_number", "constant_loss",
                                     "phi_index"])
 def test_zero_width_ranges_collapse_to_the_run_exactly(method):
     params = _params(method)
-    prepared = prepare_chunk(params, _chunk())
-    for column in prepared.ranges.draw:  # every range of zero width
-        prepared.ranges.low[column] = prepared.ranges.central[column].copy()
-        prepared.ranges.high[column] = prepared.ranges.central[column].copy()
-        prepared.ranges.draw[column][:] = ""
-    fig = sample_figures(prepared, UncertaintySettings(samples=9, seed=4), saturation=0.3)[0]
-    bands = band_table(SUBS, prepared.runner.area_m2, fig.runoff_depth_m,
-                       fig.time_to_ponding_s, (10, 50, 90))
+    part = _part(params)
+    assert part.ranges.draw_names()  # the method has ranges to zero
+    for column in part.ranges.draw:  # every range of zero width
+        part.ranges.low[column] = part.ranges.central[column].copy()
+        part.ranges.high[column] = part.ranges.central[column].copy()
+        part.ranges.draw[column][:] = ""
+    depth, ponding = _figures(params, n=9, seed=4, part=part)[0]
+    bands = band_table(SUBS, Aggregator(part).area_m2, depth, ponding, (10, 50, 90))
     run = run_storm(params, STORM, DT, sub_ids=SUBS).subcatchments  # today's result
     for p in ("p10", "p50", "p90"):
         assert np.array_equal(bands[f"runoff_depth_{p}_m"], run["runoff_depth_m"])
@@ -77,7 +91,7 @@ def test_zero_width_ranges_collapse_to_the_run_exactly(method):
 
 
 def test_the_samples_differ_when_the_ranges_are_not_zero():
-    depth = _figures(_params("green_ampt"))[0].runoff_depth_m
+    depth, _ = _figures(_params("green_ampt"))[0]
     assert np.all(depth.max(axis=0) > depth.min(axis=0))
 
 
@@ -91,18 +105,18 @@ def test_raising_ks_everywhere_never_raises_runoff_in_any_sample(factor, rain, s
     params = _params("green_ampt")
     wetter = params.assign(ks_m_per_s=params["ks_m_per_s"] * factor)
     storm = _storm(rain)
-    base = _figures(params, n=16, seed=seed, storms=(storm,))[0]
-    more = _figures(wetter, n=16, seed=seed, storms=(storm,))[0]
-    assert np.all(more.runoff_depth_m <= base.runoff_depth_m * (1 + 1e-9) + 1e-12)
+    base, _ = _figures(params, n=16, seed=seed, storms=(storm,))[0]
+    more, _ = _figures(wetter, n=16, seed=seed, storms=(storm,))[0]
+    assert np.all(more <= base * (1 + 1e-9) + 1e-12)
 
 
 def test_reproducible_with_the_seed():
     params = _params("green_ampt")
     a, b = _figures(params, seed=11)[0], _figures(params, seed=11)[0]
     c = _figures(params, seed=12)[0]
-    assert np.array_equal(a.runoff_depth_m, b.runoff_depth_m)
-    assert np.array_equal(a.time_to_ponding_s, b.time_to_ponding_s, equal_nan=True)
-    assert not np.array_equal(a.runoff_depth_m, c.runoff_depth_m)
+    assert np.array_equal(a[0], b[0])
+    assert np.array_equal(a[1], b[1], equal_nan=True)
+    assert not np.array_equal(a[0], c[0])
 
 
 def test_p50_matches_the_central_run_where_the_response_is_linear():
@@ -114,8 +128,9 @@ def test_p50_matches_the_central_run_where_the_response_is_linear():
     storm = _storm([3.0] * 24)  # 36 mm/h for 2 h, above 0.45 in/h (11.4 mm/h)
     n = 51
     chunk = _chunk((storm,))
-    result = analyse_chunk(params, chunk, UncertaintySettings(samples=n, seed=5))
-    central = run_storm(params, storm, DT, sub_ids=SUBS).subcatchments["runoff_depth_m"]
+    run = run_storm(params, storm, DT, sub_ids=SUBS)
+    result = analyse_chunk(params, chunk, UncertaintySettings(samples=n, seed=5), [run.units])
+    central = run.subcatchments["runoff_depth_m"]
     width_m = (0.30 - 0.15) * 0.0254 * 2.0  # group B range (TR-55 App. A) over 2 h, m
     p50 = result.bands[0]["runoff_depth_p50_m"].to_numpy()
     assert np.all(np.abs(p50 - central.to_numpy()) <= width_m / n + 1e-12)
@@ -127,7 +142,9 @@ def test_one_at_a_time_swing_is_the_analytic_one_where_linear():
     # group B pervious (S2's open space part) the swing is the range width x T x its share
     params = _params("phi_index")
     storm = _storm([3.0] * 24)
-    result = analyse_chunk(params, _chunk((storm,)), UncertaintySettings(samples=4, seed=1))
+    units = [run_storm(params, storm, DT, sub_ids=SUBS).units]
+    result = analyse_chunk(params, _chunk((storm,)), UncertaintySettings(samples=4, seed=1),
+                           units)
     table = result.sensitivity.set_index(["subcatchment_id", "parameter"])
     s2 = params[params["subcatchment_id"] == "S2"]
     share_b = s2.loc[(s2["soil_class"] == "B") & (s2["surface"] == "pervious"), "area_m2"].sum()
@@ -141,17 +158,19 @@ def test_one_at_a_time_swing_is_the_analytic_one_where_linear():
 
 def test_first_to_pond_share_and_probability_are_shares_of_samples():
     params = _params("green_ampt")
-    result = analyse_chunk(params, _chunk(), UncertaintySettings(samples=20, seed=3, top_k=1))
+    units = [run_storm(params, STORM, DT, sub_ids=SUBS).units]
+    result = analyse_chunk(params, _chunk(), UncertaintySettings(samples=20, seed=3, top_k=1),
+                           units)
     times, positions = result.first[0]
     assert times.shape == (20, 1)
     # the first to pond in each sample is the subcatchment with the earliest time in it
-    fig = _figures(params, n=20, seed=3)[0]
-    earliest = np.nanargmin(np.where(np.isnan(fig.time_to_ponding_s), np.inf,
-                                     fig.time_to_ponding_s), axis=1)
-    ponds = np.isfinite(fig.time_to_ponding_s).any(axis=1)
+    _, ponding = _figures(params, n=20, seed=3)[0]
+    earliest = np.argmin(np.where(np.isnan(ponding), np.inf, ponding), axis=1)
+    ponds = np.isfinite(ponding).any(axis=1)
+    assert ponds.any()
     assert np.array_equal(positions[ponds, 0], earliest[ponds])
     prob = result.bands[0]["ponding_probability"].to_numpy()
-    assert np.array_equal(prob, np.isfinite(fig.time_to_ponding_s).mean(axis=0))
+    assert np.array_equal(prob, np.isfinite(ponding).mean(axis=0))
 
 
 def test_settings_are_frozen():
