@@ -105,12 +105,15 @@ UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
 #: (root searches), the area-weighted set only, or none.
 LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
                                 what="lumped parameters choice", default="auto")
+#: What a raster key missing from its attribute table does (``[soil] unlisted_keys``):
+#: stop, or count its cells as nodata (then the nodata rule applies).
+UNLISTED_KEY_RULES = Choices(("error", "nodata"), what="unlisted key rule", default="error")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
-    "lumped_parameters": LUMPED_PARAMETER_SETS,
+    "lumped_parameters": LUMPED_PARAMETER_SETS, "unlisted_keys": UNLISTED_KEY_RULES,
 }
 
 

@@ -28,6 +28,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any, Protocol
 
 import numpy as np
@@ -36,6 +37,8 @@ from pyproj import CRS
 
 __all__ = ["ClassGrid", "read_padded", "CodeLookup", "nesting", "CentreSampling"]
 
+#: Widest span of codes (highest - lowest) looked up in a dense table (4 MB of int32).
+DENSE_TABLE_MAX = 1 << 20
 #: Tolerance, in cells, for calling a ratio of grid sizes or offsets a whole number.
 WHOLE_TOLERANCE = 1e-6
 
@@ -110,6 +113,8 @@ class CodeLookup:
         vals = np.asarray(block)
         if vals.dtype.kind in "iub" and vals.dtype.itemsize <= 2 and self.codes.size:
             out = self._small_int(vals)
+        elif vals.dtype.kind in "iu" and self._dense is not None:
+            out = self._dense_gather(vals)
         else:
             out = self._search(vals)
         if self.nodata is not None and not np.isnan(self.nodata):
@@ -118,6 +123,27 @@ class CodeLookup:
         if mask is not np.ma.nomask:
             out[mask] = self.outside_index
         return out
+
+    @cached_property
+    def _dense(self) -> tuple[int, NDArray[np.int32]] | None:
+        """(lowest code - 1, table over lowest - 1 .. highest + 1) when the codes span at
+        most :data:`DENSE_TABLE_MAX` values: one gather per cell, however many codes (map-unit
+        keys run to thousands; a binary search would cost a step per doubling)."""
+        if not self.codes.size:
+            return None
+        low, high = int(self.codes[0]), int(self.codes[-1])
+        if high - low > DENSE_TABLE_MAX:
+            return None
+        table = np.full(high - low + 3, self.nodata_index, dtype=np.int32)
+        table[self.codes - low + 1] = self.idx
+        return low - 1, table
+
+    def _dense_gather(self, vals: NDArray[Any]) -> NDArray[np.int32]:
+        """Codes outside the table's span land on its first or last entry (nodata)."""
+        start, table = self._dense
+        offset = vals.astype(np.int64) - start
+        np.clip(offset, 0, table.size - 1, out=offset)
+        return table[offset]
 
     def _small_int(self, vals: NDArray[Any]) -> NDArray[np.int32]:
         """One table over the whole range of a small integer type: a single gather."""
