@@ -174,6 +174,9 @@ def read_inputs(project: Project) -> Inputs:
         )
         warn_if_rain_scale_implausible(project, inputs.subcatchments, inputs.storms)
         check_overlaps(project, inputs.subcatchments)
+        for source in (project.soil, project.cover):
+            if source is not None and source.keys is not None:  # what the table supplied
+                warnings.warn(source.keys.summary(), GisrunWarning, stacklevel=2)
     for w in caught:  # pass them on, and keep their text with the inputs for the run table
         warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     notes = tuple(str(w.message) for w in caught if issubclass(w.category, GisrunWarning))
