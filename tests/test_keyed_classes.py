@@ -13,6 +13,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyogrio
 import pytest
 import rasterio
 from shapely.geometry import Polygon
@@ -176,3 +177,80 @@ def test_unlisted_keys_stop_the_run_or_count_as_nodata(twin_projects, capsys):
     # under the dominant rule the A area went to other units; the total stays the same
     assert units_nodata["area_m2"].sum() == pytest.approx(units["area_m2"].sum(), rel=1e-12)
     assert used.get("A", 0) > 0
+
+
+def test_cover_keys_with_a_table_set_class_and_per_key_values(tmp_path):
+    project = make_project(tmp_path / "cover")
+    keys = np.full((10, 10), 11, dtype=np.int16)
+    keys[:, 5:] = 12
+    write_geotiff(project.parent / "cover.tif", keys, origin=(X0, Y0 + 100.0), crs=CRS)
+    (project.parent / "cover_units.csv").write_text(
+        "land_key,cover_class,depression_storage_mm,survey_note\n"
+        "11,open_space_good,4.0,lawn\n12,woods_good,,wood\n")
+    edit_toml(project, '[cover.codes]\n"5" = "open_space_good"',
+              'attributes = "cover_units.csv"\nattributes_key = "land_key"')
+    loaded = load_project(project)
+    assert loaded.cover.codes == {11: "open_space_good", 12: "woods_good"}
+    assert loaded.cover.keys.unused == ("survey_note",)
+    result = run(loaded)
+    params = result.parameters[result.parameters["surface"] == "pervious"]
+    lawn = params[params["cover_class"] == "open_space_good"]
+    wood = params[params["cover_class"] == "woods_good"]
+    # the key's value (4 mm) replaces the cover table's 5 mm; the woods keep the table's value
+    assert lawn["depression_storage_m"].tolist() == [pytest.approx(0.004, rel=1e-15)]
+    assert wood["depression_storage_m"].iloc[0] != pytest.approx(0.004)
+    sources = result.parameter_sources
+    row = sources[(sources["cover_class"] == "open_space_good")
+                  & (sources["parameter"] == "depression_storage_m")
+                  & (sources["surface"] == "pervious")]
+    assert row["source"].tolist() == ["cover_units.csv:key 11 (cover attribute table)"]
+
+
+PAM = """<PAMDataset>
+  <PAMRasterBand band="1">
+    <GDALRasterAttributeTable tableType="thematic">
+      <FieldDefn index="0"><Name>Value</Name><Type>0</Type><Usage>5</Usage></FieldDefn>
+      <FieldDefn index="1"><Name>Count</Name><Type>0</Type><Usage>1</Usage></FieldDefn>
+      <FieldDefn index="2"><Name>hydrologic_soil_group</Name><Type>2</Type><Usage>0</Usage>
+      </FieldDefn>
+      <Row index="0"><F>101</F><F>50</F><F>C</F></Row>
+      <Row index="1"><F>202</F><F>50</F><F>D</F></Row>
+    </GDALRasterAttributeTable>
+  </PAMRasterBand>
+</PAMDataset>
+"""
+
+
+def _keyed_tiny(folder: Path) -> Path:
+    project = make_project(folder)
+    keys = np.full((10, 10), 101, dtype=np.int32)
+    keys[:, 5:] = 202
+    write_geotiff(project.parent / "soil.tif", keys, origin=(X0, Y0 + 100.0), crs=CRS,
+                  nodata=-1)
+    return project
+
+
+def test_the_rasters_own_table_is_read_from_gdals_side_file(tmp_path):
+    # The side file follows GDAL's PAM layout (PAMDataset/PAMRasterBand/GDALRasterAttributeTable,
+    # FieldDefn Name/Type/Usage with usage 5 = the value column, Row/F cells): GDAL's raster
+    # attribute table documentation (gdal.org, GDALRasterAttributeTable).
+    project = _keyed_tiny(tmp_path / "pam")
+    (project.parent / "soil.tif.aux.xml").write_text(PAM)
+    edit_toml(project, '[soil.codes]\n"1" = "A"\n"2" = "B"\n', 'attributes = "raster"\n')
+    loaded = load_project(project)
+    assert loaded.soil.codes == {101: "C", 202: "D"}
+    assert loaded.soil.keys.unused == ("Count",)
+    units = run(loaded).units
+    assert units.set_index("subcatchment_id")["soil_class"].to_dict() == {"S1": "C", "S2": "D"}
+
+
+def test_a_geopackage_attribute_table_is_read_by_its_layer(tmp_path):
+    project = _keyed_tiny(tmp_path / "gpkg")
+    table = pd.DataFrame({"mukey": [101, 202], "hydrologic_soil_group": ["B", "A"]})
+    pyogrio.write_dataframe(table, project.parent / "survey.gpkg", layer="map_units")
+    edit_toml(project, '[soil.codes]\n"1" = "A"\n"2" = "B"\n',
+              'attributes = "survey.gpkg"\nattributes_layer = "map_units"\n'
+              'attributes_key = "mukey"\n')
+    loaded = load_project(project)
+    assert loaded.soil.codes == {101: "B", 202: "A"}
+    assert loaded.input_files()["soil attribute table"] == project.parent / "survey.gpkg"

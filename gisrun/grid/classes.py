@@ -113,12 +113,14 @@ class CodeLookup:
         vals = np.asarray(block)
         if vals.dtype.kind in "iub" and vals.dtype.itemsize <= 2 and self.codes.size:
             out = self._small_int(vals)
+            if self.nodata is not None and not np.isnan(self.nodata):
+                out[vals == self.nodata] = self.nodata_index
         elif vals.dtype.kind in "iu" and self._dense is not None:
-            out = self._dense_gather(vals)
+            out = self._dense_gather(vals)  # nodata is in its table
         else:
             out = self._search(vals)
-        if self.nodata is not None and not np.isnan(self.nodata):
-            out[vals == self.nodata] = self.nodata_index
+            if self.nodata is not None and not np.isnan(self.nodata):
+                out[vals == self.nodata] = self.nodata_index
         mask = np.ma.getmask(block)
         if mask is not np.ma.nomask:
             out[mask] = self.outside_index
@@ -136,14 +138,23 @@ class CodeLookup:
             return None
         table = np.full(high - low + 3, self.nodata_index, dtype=np.int32)
         table[self.codes - low + 1] = self.idx
+        nodata = self.nodata
+        if nodata is not None and np.isfinite(nodata) and low <= nodata <= high:
+            if float(nodata).is_integer():  # nodata wins over a code, as on the other paths
+                table[int(nodata) - low + 1] = self.nodata_index
         return low - 1, table
 
     def _dense_gather(self, vals: NDArray[Any]) -> NDArray[np.int32]:
-        """Codes outside the table's span land on its first or last entry (nodata)."""
+        """Codes outside the table's span land on its first or last entry (nodata).
+
+        The offsets stay 32-bit for 32-bit codes when the table starts within 2**30 of 0:
+        an offset that wraps around then still falls outside the table (below 0 or above
+        2**30), so clipping sends it to nodata as it should.
+        """
         start, table = self._dense
-        offset = vals.astype(np.int64) - start
-        np.clip(offset, 0, table.size - 1, out=offset)
-        return table[offset]
+        narrow = vals.dtype.itemsize <= 4 and vals.dtype.kind == "i" and abs(start) <= 1 << 30
+        offset = np.subtract(vals, start, dtype=np.int32 if narrow else np.int64)
+        return np.take(table, offset, mode="clip")
 
     def _small_int(self, vals: NDArray[Any]) -> NDArray[np.int32]:
         """One table over the whole range of a small integer type: a single gather."""
