@@ -33,7 +33,7 @@ from .units import SYSTEMS
 
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
-           "LUMPED_PARAMETER_SETS", "CHOICES"]
+           "LUMPED_PARAMETER_SETS", "SERIES_STORES", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -108,12 +108,17 @@ LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
 #: What a raster key missing from its attribute table does (``[soil] unlisted_keys``):
 #: stop, or count its cells as nodata (then the nodata rule applies).
 UNLISTED_KEY_RULES = Choices(("error", "nodata"), what="unlisted key rule", default="error")
+#: Where a run's excess-rainfall series go (``[project] series``): the GeoPackage's
+#: ``excess_series`` table, a Parquet file beside it, or "auto" (by size, see
+#: :data:`gisrun.workflow.series.SERIES_IN_GEOPACKAGE_BELOW`).
+SERIES_STORES = Choices(("auto", "geopackage", "parquet"), what="series store", default="auto")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
-    "lumped_parameters": LUMPED_PARAMETER_SETS, "unlisted_keys": UNLISTED_KEY_RULES,
+    "lumped_parameters": LUMPED_PARAMETER_SETS, "series": SERIES_STORES,
+    "unlisted_keys": UNLISTED_KEY_RULES,
 }
 
 
