@@ -33,7 +33,7 @@ from .units import SYSTEMS
 
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
-           "LUMPED_PARAMETER_SETS", "CHOICES"]
+           "LUMPED_PARAMETER_SETS", "IMPERVIOUS_SCALES", "RUNON_TARGETS", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -105,12 +105,18 @@ UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
 #: (root searches), the area-weighted set only, or none.
 LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
                                 what="lumped parameters choice", default="auto")
+#: What the values of an impervious-share grid are (``[impervious] scale``): no default, the
+#: project file must say.
+IMPERVIOUS_SCALES = Choices(("percent", "fraction"), what="impervious scale", default="percent")
+#: Where disconnected impervious runoff runs on (``[impervious] runon_to``).
+RUNON_TARGETS = Choices(("unit", "subcatchment"), what="run-on target", default="unit")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
-    "lumped_parameters": LUMPED_PARAMETER_SETS,
+    "lumped_parameters": LUMPED_PARAMETER_SETS, "impervious_scale": IMPERVIOUS_SCALES,
+    "runon_to": RUNON_TARGETS,
 }
 
 
