@@ -33,7 +33,8 @@ from .units import SYSTEMS
 
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
-           "LUMPED_PARAMETER_SETS", "IMPERVIOUS_SCALES", "RUNON_TARGETS", "CHOICES"]
+           "LUMPED_PARAMETER_SETS", "SERIES_STORES", "IMPERVIOUS_SCALES", "RUNON_TARGETS",
+           "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -105,6 +106,10 @@ UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
 #: (root searches), the area-weighted set only, or none.
 LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
                                 what="lumped parameters choice", default="auto")
+#: Where a run's excess-rainfall series go (``[project] series``): the GeoPackage's
+#: ``excess_series`` table, a Parquet file beside it, or "auto" (by size, see
+#: :data:`gisrun.workflow.series.SERIES_IN_GEOPACKAGE_BELOW`).
+SERIES_STORES = Choices(("auto", "geopackage", "parquet"), what="series store", default="auto")
 #: What the values of an impervious-share grid are (``[impervious] scale``): no default, the
 #: project file must say.
 IMPERVIOUS_SCALES = Choices(("percent", "fraction"), what="impervious scale", default="percent")
@@ -115,8 +120,8 @@ RUNON_TARGETS = Choices(("unit", "subcatchment"), what="run-on target", default=
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
-    "lumped_parameters": LUMPED_PARAMETER_SETS, "impervious_scale": IMPERVIOUS_SCALES,
-    "runon_to": RUNON_TARGETS,
+    "lumped_parameters": LUMPED_PARAMETER_SETS, "series": SERIES_STORES,
+    "impervious_scale": IMPERVIOUS_SCALES, "runon_to": RUNON_TARGETS,
 }
 
 

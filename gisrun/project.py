@@ -131,6 +131,8 @@ class Project:
     initial_abstraction_ratio: float = 0.2
     antecedent_condition: int = 2
     overlay_cache: Path | None = None
+    #: Where the excess series go: ``"auto"``, ``"geopackage"`` or ``"parquet"``.
+    series: str = "auto"
     #: The ``[impervious]`` table; None when the project has none.
     impervious: ImperviousSource | None = None
 
