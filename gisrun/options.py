@@ -33,7 +33,8 @@ from .units import SYSTEMS
 
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
-           "LUMPED_PARAMETER_SETS", "SERIES_STORES", "CHOICES"]
+           "LUMPED_PARAMETER_SETS", "SERIES_STORES", "IMPERVIOUS_SCALES", "RUNON_TARGETS",
+           "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -112,6 +113,11 @@ UNLISTED_KEY_RULES = Choices(("error", "nodata"), what="unlisted key rule", defa
 #: ``excess_series`` table, a Parquet file beside it, or "auto" (by size, see
 #: :data:`gisrun.workflow.series.SERIES_IN_GEOPACKAGE_BELOW`).
 SERIES_STORES = Choices(("auto", "geopackage", "parquet"), what="series store", default="auto")
+#: What the values of an impervious-share grid are (``[impervious] scale``): no default, the
+#: project file must say.
+IMPERVIOUS_SCALES = Choices(("percent", "fraction"), what="impervious scale", default="percent")
+#: Where disconnected impervious runoff runs on (``[impervious] runon_to``).
+RUNON_TARGETS = Choices(("unit", "subcatchment"), what="run-on target", default="unit")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
@@ -119,6 +125,7 @@ CHOICES: dict[str, Choices] = {
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
     "lumped_parameters": LUMPED_PARAMETER_SETS, "series": SERIES_STORES,
     "unlisted_keys": UNLISTED_KEY_RULES,
+    "impervious_scale": IMPERVIOUS_SCALES, "runon_to": RUNON_TARGETS,
 }
 
 

@@ -1,8 +1,10 @@
 """Assign loss-method parameters to every soil x cover unit.
 
 Each unit of the unit table is split into a pervious and an impervious part by
-its cover's impervious fraction (TR-55 1986, Tables 2-2a-c); parts with zero
-area are dropped. A cover of ``"unspecified"`` (no cover raster) is fully
+its cover's impervious fraction (TR-55 1986, Tables 2-2a-c), or by the unit's own
+``impervious_fraction`` column when the unit table has one (measured on an
+impervious-share grid, :mod:`gisrun.grid.impervious`; the cover class still sets
+the pervious part's parameters); parts with zero area are dropped. A cover of ``"unspecified"`` (no cover raster) is fully
 pervious and takes the curve numbers of open space in good condition. Soil
 labels ``"water"`` and ``"rock"`` take no water: their whole area is impervious.
 
@@ -50,7 +52,7 @@ from ..errors import GisrunWarning, ParameterError
 from ..options import DUAL_GROUP_CONDITIONS, choose
 from .class_keys import KeyedClasses
 from .defaults import ASSIGNED_COLUMNS, RunSettings, shipped_values
-from .keyed import COVER_TABLE_RANK, SOIL_TABLE_RANK, apply_keyed_values, resolve_keyed_soils
+from .keyed import apply_keyed_values, mark_base_classes, resolve_keyed_soils
 from .overrides import PARAMETER_COLUMNS
 from .precedence import (
     apply_attributes,
@@ -144,9 +146,7 @@ def assign_parameters(
         soil x cover x surface with a ``unit_parts`` count (what the output
         stores; cheap for millions of units) instead of one row per unit part.
     soil_keys, cover_keys : KeyedClasses, optional
-        The classes of a keyed soil or cover raster and what their attribute
-        table gives (:mod:`gisrun.parameters.class_keys`); an override row
-        keyed by a soil class also matches the classes that are variants of it.
+        Classes of keyed rasters and what their tables give (:mod:`~gisrun.parameters.keyed`).
 
     Returns
     -------
@@ -173,9 +173,7 @@ def assign_parameters(
                                 dual_group_condition, warnings)
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
     all_rows = _expand(units, soils)
-    if soil_keys is not None:
-        bases = soil_keys.base_classes()
-        all_rows["soil_base_class"] = all_rows["soil_class"].map(lambda s: bases.get(s, s))
+    mark_base_classes(all_rows, soil_keys)
     layers = override_layers(overrides, classification)
     attributes = attribute_table(subcatchment_attributes)
     # Parameters depend on soil, cover and surface, and on the subcatchment only where a layer
@@ -189,8 +187,7 @@ def assign_parameters(
         apply_layer(rows, values, sources, ranks, rank, layer, warnings)
     if attributes is not None:
         apply_attributes(rows, values, sources, ranks, attributes)
-    apply_keyed_values(rows, values, sources, ranks, cover_keys, "cover_class", COVER_TABLE_RANK)
-    apply_keyed_values(rows, values, sources, ranks, soil_keys, "soil_class", SOIL_TABLE_RANK)
+    apply_keyed_values(rows, values, sources, ranks, cover_keys, soil_keys)
     _rederive(rows, values, sources, ranks, initial_saturation)
     if initial_water_content is not None:
         _deficit_from_water_content(rows, values, sources, ranks, initial_water_content, warnings)
@@ -276,7 +273,16 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
     if missing:
         raise ParameterError("unit table", f"has no column(s) {missing}",
                              "pass the overlay's unit table unchanged")
-    out = units.loc[:, list(_UNIT_COLUMNS)].reset_index(drop=True)
+    extra = ["impervious_fraction"] if "impervious_fraction" in units.columns else []
+    out = units.loc[:, [*_UNIT_COLUMNS, *extra]].reset_index(drop=True)
+    if extra:
+        share = pd.to_numeric(out["impervious_fraction"], errors="coerce").to_numpy(float)
+        if not np.all((share >= 0) & (share <= 1)):
+            i = int(np.flatnonzero(~((share >= 0) & (share <= 1)))[0])
+            raise ParameterError(f"unit table:row {i + 1}:impervious_fraction",
+                                 f"value {units['impervious_fraction'].iloc[i]!r} is outside 0-1",
+                                 "give each unit's impervious share as a fraction 0-1")
+        out["impervious_fraction"] = share
     area = pd.to_numeric(out["area_m2"], errors="coerce").to_numpy(float)
     bad = ~np.isfinite(area) | (area < 0)
     if bad.any():
@@ -291,9 +297,13 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
 
 
 def _expand(units: pd.DataFrame, soils: dict[str, SoilInfo]) -> pd.DataFrame:
-    cover = cover_table()
-    fractions = {**cover["impervious_fraction"].to_dict(), UNSPECIFIED_COVER: 0.0}
-    frac = units["cover_class"].map(fractions)
+    if "impervious_fraction" in units.columns:  # measured per unit (an impervious grid)
+        frac = units["impervious_fraction"]
+        units = units.drop(columns="impervious_fraction")
+    else:
+        cover = cover_table()
+        fractions = {**cover["impervious_fraction"].to_dict(), UNSPECIFIED_COVER: 0.0}
+        frac = units["cover_class"].map(fractions)
     infiltrates = units["soil_class"].map({k: v.infiltrates for k, v in soils.items()})
     frac = frac.where(infiltrates, 1.0).to_numpy(float)
     perv = units.assign(surface="pervious", area_m2=units["area_m2"] * (1.0 - frac))

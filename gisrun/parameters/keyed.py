@@ -21,7 +21,8 @@ from ..errors import GisrunWarning
 from .class_keys import KeyedClasses
 from .soils import SoilInfo, resolve_soils
 
-__all__ = ["SOIL_TABLE_RANK", "COVER_TABLE_RANK", "resolve_keyed_soils", "apply_keyed_values"]
+__all__ = ["SOIL_TABLE_RANK", "COVER_TABLE_RANK", "resolve_keyed_soils", "mark_base_classes",
+           "apply_keyed_values"]
 
 #: Rank of a soil attribute table's per-key values (see :mod:`gisrun.parameters.precedence`).
 SOIL_TABLE_RANK = 15
@@ -76,9 +77,24 @@ def _with_table(info: SoilInfo, group: str | None, texture: str | None, source: 
     return info
 
 
+def mark_base_classes(rows: pd.DataFrame, soil_keys: KeyedClasses | None) -> None:
+    """Add ``soil_base_class`` (the class a keyed class is a variant of), so that an override
+    row keyed by a soil class also matches its variants (:func:`.precedence.apply_layer`)."""
+    if soil_keys is not None:
+        bases = soil_keys.base_classes()
+        rows["soil_base_class"] = rows["soil_class"].map(lambda s: bases.get(s, s))
+
+
 def apply_keyed_values(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
-                       ranks: pd.DataFrame, keyed: KeyedClasses | None, column: str,
-                       rank: int) -> None:
+                       ranks: pd.DataFrame, cover_keys: KeyedClasses | None,
+                       soil_keys: KeyedClasses | None) -> None:
+    """The cover table's values (:data:`COVER_TABLE_RANK`), then the soil table's."""
+    _apply(rows, values, sources, ranks, cover_keys, "cover_class", COVER_TABLE_RANK)
+    _apply(rows, values, sources, ranks, soil_keys, "soil_class", SOIL_TABLE_RANK)
+
+
+def _apply(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
+           ranks: pd.DataFrame, keyed: KeyedClasses | None, column: str, rank: int) -> None:
     """Set the per-class values of a keyed table on the pervious parts of its classes.
 
     A value replaces only what ranks below ``rank`` (so the override rows keyed
