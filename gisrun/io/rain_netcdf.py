@@ -134,11 +134,11 @@ def _axis(var: xr.DataArray, dims: list[str], axis: str, names: dict[str, tuple[
 
 
 def _times(coord: xr.DataArray, where: str) -> tuple[Any, ...]:
-    values = coord.values
+    values = np.ravel(coord.values)
     if values.dtype.kind == "M":
         return tuple(pd.DatetimeIndex(values).to_pydatetime())
-    if values.dtype.kind == "O" and all(hasattr(v, "calendar") for v in values.ravel()):
-        return tuple(values.ravel())
+    if values.dtype.kind == "O" and all(hasattr(v, "calendar") for v in values):
+        return tuple(values)
     raise StormError(where, f"has no CF time units (units = {coord.attrs.get('units')!r})",
                      "write units such as 'minutes since 2026-07-01 00:00:00'")
 
