@@ -27,8 +27,8 @@ from ..grid.rain_weights import RainGridGeometry, RainGridWeights
 
 __all__ = ["RainGrid", "grid_areal_depth", "steps_per_block", "BLOCK_BYTES"]
 
-#: Bytes of one block of grid steps held in memory while the areal rain is made (64 MB).
-BLOCK_BYTES = 64 * 2**20
+#: Bytes of one block of grid steps held in memory while the areal rain is made (128 MB).
+BLOCK_BYTES = 128 * 2**20
 
 
 class RainGrid(RainGridGeometry, Protocol):
@@ -45,7 +45,7 @@ class RainGrid(RainGridGeometry, Protocol):
 
 
 def steps_per_block(grid: RainGrid, block_bytes: int = BLOCK_BYTES) -> int:
-    """How many steps of ``grid`` fit in ``block_bytes`` as float64 (at least one)."""
+    """Steps of ``grid`` that fit in ``block_bytes`` as float64 (at least one)."""
     return max(1, int(block_bytes // max(8 * grid.width * grid.height, 1)))
 
 
@@ -60,27 +60,42 @@ def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
     grid : RainGrid
         The rain stack, read ``block_bytes`` at a time.
     block_bytes : int
-        Memory for one block of grid steps.
+        Memory for one block of grid steps (the block's means per subcatchment come on top,
+        and, when the stack takes more than one block, are copied into the result).
 
     Returns
     -------
     ndarray, shape (steps, subcatchments)
+        In Fortran order: each subcatchment's steps lie together (a chunk of subcatchments
+        takes its columns cheaply, and a block's product is the result without a transpose).
 
     Raises
     ------
     StormError
         If a cell a subcatchment uses is nodata or negative in some step.
     """
-    out = np.empty((grid.steps, len(weights.subcatchment_ids)), dtype=np.float64)
     k = steps_per_block(grid, block_bytes)
+    if k >= grid.steps:
+        return _block_means(weights, grid, 0, grid.steps).T
+    out = np.empty((grid.steps, len(weights.subcatchment_ids)), dtype=np.float64, order="F")
     for first in range(0, grid.steps, k):
         stop = min(first + k, grid.steps)
-        block = grid.read_steps(first, stop)
-        values = block.reshape(stop - first, -1)[:, weights.cells]
-        del block
-        _check_values(values, weights, grid, first)
-        out[first:stop] = weighted_means(values, weights.matrix)
+        out.T[:, first:stop] = _block_means(weights, grid, first, stop)
     return out
+
+
+def _block_means(weights: RainGridWeights, grid: RainGrid, first: int, stop: int
+                 ) -> NDArray[np.float64]:
+    """Means of steps ``first:stop``, ``(subcatchments, steps)``, as the sparse product makes it."""
+    block = grid.read_steps(first, stop)
+    cells_by_step = block.reshape(stop - first, -1).T[weights.cells]  # (cells, steps), C order
+    del block
+    _check_values(cells_by_step.T, weights, grid, first)
+    low = cells_by_step.min(axis=0)
+    cells_by_step -= low
+    means = np.asarray(weights.matrix @ cells_by_step)
+    means += low
+    return means
 
 
 def weighted_means(values: NDArray[np.float64], matrix: Any) -> NDArray[np.float64]:
