@@ -92,6 +92,8 @@ class Project:
     initial_abstraction_ratio: float = 0.2
     antecedent_condition: int = 2
     overlay_cache: Path | None = None
+    #: Where the excess series go: ``"auto"``, ``"geopackage"`` or ``"parquet"``.
+    series: str = "auto"
 
     @property
     def base_dir(self) -> Path:
