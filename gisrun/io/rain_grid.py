@@ -26,19 +26,13 @@ from numpy.typing import NDArray
 from pyproj import CRS
 
 from ..errors import StormError
+from ..options import RAIN_GRID_FORMATS
 from ..units import rain_unit
 from . import rain_geotiff, rain_netcdf
 from .rain_sources import RainGridSettings
 
-__all__ = ["RainGridSettings", "RainStack", "open_rain_grid", "FORMATS", "TIME_MARKS",
-           "RAIN_IS"]
+__all__ = ["RainGridSettings", "RainStack", "open_rain_grid"]
 
-#: The stack formats, by the name a project file gives (``format = ...``).
-FORMATS = ("netcdf", "geotiff", "geotiff_folder")
-#: What a time of the source marks: the end (default) or the start of its step.
-TIME_MARKS = ("end", "start")
-#: What the values are: depth per step, or intensity (depth per time).
-RAIN_IS = ("depth", "intensity")
 #: Largest difference between two steps, as a share of the step, taken as rounding.
 STEP_TOLERANCE = 1e-6
 
@@ -52,7 +46,7 @@ class RainStack:
     path : str
         The file (or the folder, for ``geotiff_folder``).
     format : str
-        One of :data:`FORMATS`.
+        One of :data:`gisrun.options.RAIN_GRID_FORMATS`.
     crs : pyproj.CRS
     transform : affine.Affine
         Cell ``(row, col)`` -> CRS coordinates of its corner; rows may run south-up.
@@ -148,10 +142,8 @@ def _format(settings: RainGridSettings) -> str:
     if not path.exists():
         raise StormError(str(path), "does not exist", "check the rain grid's path")
     if settings.format is not None:
-        if settings.format not in FORMATS:
-            raise StormError(str(path), f"format {settings.format!r} is not one of "
-                             f"{list(FORMATS)}", "give one of them, or leave format out")
-        return settings.format
+        return RAIN_GRID_FORMATS.pick(settings.format, where=f"{path}: format",
+                                      error=StormError)
     if path.is_dir():
         return "geotiff_folder"
     suffix = path.suffix.lower()
@@ -160,7 +152,7 @@ def _format(settings: RainGridSettings) -> str:
     if suffix in (".tif", ".tiff"):
         return "geotiff"
     raise StormError(str(path), f"is not a known rain grid format ({suffix or 'no suffix'})",
-                     f"give format = one of {list(FORMATS)}")
+                     f"give format = one of {list(RAIN_GRID_FORMATS)}")
 
 
 def _steps(found: Any, settings: RainGridSettings) -> tuple[float, str, tuple[str, ...]]:
