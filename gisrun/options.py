@@ -34,7 +34,7 @@ from .units import SYSTEMS
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
            "LUMPED_PARAMETER_SETS", "SERIES_STORES", "IMPERVIOUS_SCALES", "RUNON_TARGETS",
-           "CHOICES"]
+           "RAIN_GRID_FORMATS", "RAIN_TIME_MARKS", "RAIN_VALUES", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -118,6 +118,14 @@ SERIES_STORES = Choices(("auto", "geopackage", "parquet"), what="series store", 
 IMPERVIOUS_SCALES = Choices(("percent", "fraction"), what="impervious scale", default="percent")
 #: Where disconnected impervious runoff runs on (``[impervious] runon_to``).
 RUNON_TARGETS = Choices(("unit", "subcatchment"), what="run-on target", default="unit")
+#: How a stack of rain grids is stored (``[[storms]] format`` of a rain grid; inferred from the
+#: path when not given).
+RAIN_GRID_FORMATS = Choices(("netcdf", "geotiff", "geotiff_folder"), what="rain grid format",
+                            default="netcdf")
+#: What a rain grid's time marks: the end of its step or the start (``[[storms]] time_marks``).
+RAIN_TIME_MARKS = Choices(("end", "start"), what="time mark", default="end")
+#: What a rain grid's values are (``[[storms]] rain_is``; inferred from the unit when not given).
+RAIN_VALUES = Choices(("depth", "intensity"), what="kind of rain value", default="depth")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
@@ -126,6 +134,8 @@ CHOICES: dict[str, Choices] = {
     "lumped_parameters": LUMPED_PARAMETER_SETS, "series": SERIES_STORES,
     "unlisted_keys": UNLISTED_KEY_RULES,
     "impervious_scale": IMPERVIOUS_SCALES, "runon_to": RUNON_TARGETS,
+    "rain_grid_format": RAIN_GRID_FORMATS, "time_marks": RAIN_TIME_MARKS,
+    "rain_is": RAIN_VALUES,
 }
 
 
