@@ -22,14 +22,17 @@ pytestmark = pytest.mark.slow
 UNCERTAINTY = '\n[uncertainty]\nsamples = 12\nseed = 99\npercentiles = [5, 50, 95]\ntop_k = 1\n'
 
 
-def _run(tmp_path, capsys, name, extra=""):
+def _run(tmp_path, capsys, name, extra="", printed=None):
     folder = tmp_path / name
     project = make_project(folder)
     project.write_text(project.read_text() + extra)
     # a heavier storm than the helper's, so both soils run off in some samples
     (folder / "storm.csv").write_text("time_min,intensity_mm_per_h\n0,0\n20,45\n40,45\n60,45\n")
-    code, out, err = run_cli(capsys, ["run", str(folder), "--quiet"])
+    code, out, err = run_cli(capsys, ["run", str(folder)] + (["--quiet"] if printed is None
+                                                               else []))
     assert code == 0, err
+    if printed is not None:
+        printed.append(out)
     return folder / "out" / "result.gpkg"
 
 
@@ -39,7 +42,11 @@ def _rows(gpkg, layer):
 
 
 def test_bands_layers_report_and_figures(tmp_path, capsys):
-    gpkg = _run(tmp_path, capsys, "with", UNCERTAINTY)
+    printed = []
+    gpkg = _run(tmp_path, capsys, "with", UNCERTAINTY, printed)
+    said = " ".join(printed[0].split())  # the console wraps long lines
+    assert "Runoff bands (p5/p50/p95) from 12 parameter sets" in said
+    assert BAND_CAUTION in said and "Planning-level estimates only" in said
     plain = _run(tmp_path, capsys, "without")
     layers = {name for name, _ in pyogrio.list_layers(gpkg)}
     assert {"runoff_bands", "parameter_sensitivity", "uncertainty_ranges"} <= layers
