@@ -7,13 +7,14 @@ module holds only the types, so compute and result modules can name a
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from .units import UnitSystem
 
-__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "Project"]
+__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "ImperviousSource",
+           "UncertaintySettings", "Project"]
 
 
 @dataclass(frozen=True)
@@ -33,7 +34,12 @@ class SubcatchmentSource:
 
 @dataclass(frozen=True)
 class SoilSource:
-    """The soil raster, its code table and the soil choices of the run."""
+    """The soil raster, its code table and the soil choices of the run.
+
+    With an attribute table (``[soil] attributes``) ``codes`` is the table's
+    key -> class map and ``keys`` the :class:`gisrun.parameters.class_keys.KeyedClasses`
+    it was read into (typed loosely here so the project types import no compute).
+    """
 
     path: Path
     codes: dict[int, str]
@@ -42,15 +48,77 @@ class SoilSource:
     initial_saturation: float = 0.3
     crs: str | None = None
     initial_water_content: float | None = None
+    keys: Any = None
+    attributes: Path | None = None
+    unlisted_keys: str = "error"
 
 
 @dataclass(frozen=True)
 class CoverSource:
-    """The land-cover raster and its code table."""
+    """The land-cover raster and its code table (or attribute table, as for the soil)."""
 
     path: Path
     codes: dict[int, str]
     crs: str | None = None
+    keys: Any = None
+    attributes: Path | None = None
+    unlisted_keys: str = "error"
+
+
+@dataclass(frozen=True)
+class ImperviousSource:
+    """The ``[impervious]`` table: an impervious-share grid and disconnected impervious area.
+
+    Attributes
+    ----------
+    path : Path or None
+        Impervious-share raster; None: each cover's tabulated share is used.
+    scale : str or None
+        What the grid's values are: ``"percent"`` (0-100) or ``"fraction"`` (0-1).
+    disconnected_fraction : float or None
+        Project-wide share of impervious area draining onto pervious ground (0-1).
+    disconnected_field : str or None
+        Subcatchment field giving that share per subcatchment (blank: the next source).
+    disconnected_by_cover : dict of str to float
+        That share per cover class.
+    runon_to : str
+        Where disconnected runoff runs on: ``"unit"`` (the pervious part of the same
+        soil x cover unit) or ``"subcatchment"`` (all its pervious parts, by area).
+    compare_connected : bool
+        Also run with every impervious area connected and report the difference.
+    """
+
+    path: Path | None = None
+    scale: str | None = None
+    crs: str | None = None
+    disconnected_fraction: float | None = None
+    disconnected_field: str | None = None
+    disconnected_by_cover: dict[str, float] = field(default_factory=dict)
+    runon_to: str = "unit"
+    compare_connected: bool = False
+
+    @property
+    def disconnects(self) -> bool:
+        """Whether any disconnected share is stated."""
+        return (self.disconnected_fraction is not None or self.disconnected_field is not None
+                or bool(self.disconnected_by_cover))
+
+
+@dataclass(frozen=True)
+class UncertaintySettings:
+    """``[uncertainty]``: runoff bands from the published parameter ranges.
+
+    ``samples`` parameter sets are drawn by Latin hypercube from ``seed``; the
+    bands are the ``percentiles`` of each subcatchment's figures; ``top_k`` is the
+    length of the ponding-first list whose stability is counted; the tornado
+    figures are drawn for ``sensitivity_subcatchments`` (or the largest few).
+    """
+
+    samples: int
+    seed: int
+    percentiles: tuple[float, ...] = (10.0, 50.0, 90.0)
+    top_k: int = 10
+    sensitivity_subcatchments: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -94,6 +162,10 @@ class Project:
     overlay_cache: Path | None = None
     #: Where the excess series go: ``"auto"``, ``"geopackage"`` or ``"parquet"``.
     series: str = "auto"
+    #: The ``[impervious]`` table; None when the project has none.
+    impervious: ImperviousSource | None = None
+    #: Runoff bands from the parameter ranges (``[uncertainty]``); None when not asked for.
+    uncertainty: UncertaintySettings | None = None
 
     @property
     def base_dir(self) -> Path:
@@ -108,10 +180,16 @@ class Project:
         """Every file the run reads, by what it is (``"soil raster"``); no file is opened."""
         files = {"project file": self.path, "subcatchment file": self.subcatchments.path,
                  "soil raster": self.soil.path}
+        if self.soil.attributes is not None:
+            files["soil attribute table"] = self.soil.attributes
         if self.cover is not None:
             files["cover raster"] = self.cover.path
+            if self.cover.attributes is not None:
+                files["cover attribute table"] = self.cover.attributes
         if self.overrides is not None:
             files["parameter override file"] = self.overrides
+        if self.impervious is not None and self.impervious.path is not None:
+            files["impervious raster"] = self.impervious.path
         for i, spec in enumerate(self.storms, start=1):
             for key in ("path", "idf_table"):
                 if isinstance(spec.get(key), str):

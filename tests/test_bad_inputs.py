@@ -92,6 +92,14 @@ def _with_overrides(text: str) -> Callable[[Path], None]:
     return write
 
 
+def _append(text: str) -> Callable[[Path], None]:
+    return lambda d: (d / "gisrun.toml").write_text((d / "gisrun.toml").read_text() + "\n" + text)
+
+
+def _imp_grid(values: np.ndarray, **kw: object) -> Callable[[Path], None]:
+    return lambda d: write_raster(d / "imp.tif", values.astype(np.float32), **kw)
+
+
 def _both(*steps: Callable[[Path], object]) -> Callable[[Path], None]:
     def run_all(d: Path) -> None:
         for step in steps:
@@ -270,6 +278,30 @@ CASES: dict[str, Case] = {
     "negative moisture deficit": Case(
         _with_overrides("# site tests\nsoil_class,moisture_deficit\nA,0.2\nB,-0.05\n"),
         re.compile(r"over\.csv:line 4:moisture_deficit")),
+    "override range low above high": Case(
+        _with_overrides("soil_class,ks_mm_per_h_low,ks_mm_per_h_high\nA,9,1\n"),
+        re.compile(r"over\.csv:line 2:ks_mm_per_h_low")),
+    "override range without its low end": Case(
+        _with_overrides("soil_class,ks_mm_per_h_high\nA,9\n"),
+        re.compile(r"over\.csv:ks_mm_per_h_high")),
+    "override range missing the value used": Case(
+        _both(_with_overrides("soil_class,ks_mm_per_h_low,ks_mm_per_h_high\nA,1,2\n"),
+              _toml("[method]", "[uncertainty]\nsamples = 4\n\n[method]")),
+        re.compile(r"over\.csv:line 2:ks_m_per_s_low/_high")),
+    # --- uncertainty runs ---------------------------------------------------------------------
+    "uncertainty with one sample": Case(_toml("[method]", "[uncertainty]\nsamples = 1\n\n[method]"),
+                                        re.compile(r"\[uncertainty\]\.samples")),
+    "uncertainty percentiles not ascending": Case(
+        _toml("[method]", "[uncertainty]\nsamples = 4\npercentiles = [50, 10]\n\n[method]"),
+        re.compile(r"\[uncertainty\]\.percentiles")),
+    "uncertainty with composite parameters": Case(
+        _toml('name = "green_ampt"', 'name = "green_ampt"\ncombine = "composite"\n\n'
+              '[uncertainty]\nsamples = 4'),
+        re.compile(r"\[uncertainty\]")),
+    "uncertainty tornado id unknown": Case(
+        _toml("[method]", '[uncertainty]\nsamples = 4\nsensitivity_subcatchments = ["S9"]\n'
+              "\n[method]"),
+        re.compile(r"\[uncertainty\]\.sensitivity_subcatchments.*S9")),
     "override value not a number": Case(_with_overrides("soil_class,suction_head_mm\nA,deep\n"),
                                         re.compile(r"over\.csv:line 2:suction_head_mm")),
     "unknown override column": Case(_with_overrides("soil_class,ks_mmh\nA,3\n"),
@@ -354,6 +386,31 @@ CASES: dict[str, Case] = {
     "curve number Ia/S of 0.1": Case(
         _with_overrides("soil_class,initial_abstraction_ratio\nA,0.1\n"),
         re.compile(r"over\.csv:line 2:initial_abstraction_ratio: value 0\.1")),
+    # --- issue 18: impervious-share grid ------------------------------------------------------
+    "impervious grid without its scale": Case(
+        _append('[impervious]\npath = "imp.tif"\n'),
+        re.compile(r"gisrun\.toml:\[impervious\]\.scale: is missing.*\"percent\"")),
+    "impervious scale misspelt": Case(
+        _append('[impervious]\npath = "imp.tif"\nscale = "percnt"\n'),
+        re.compile(r"\[impervious\]\.scale.*did you mean 'percent'")),
+    "impervious grid missing": Case(
+        _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n'),
+        re.compile(r"imp\.tif.*file not found")),
+    "impervious value above 100 percent": Case(
+        _both(_imp_grid(np.full((10, 10), 140.0)),
+              _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n')),
+        re.compile(r"imp\.tif.*value 140, outside 0-100 for \[impervious\] scale = 'percent'")),
+    "impervious percent grid read as a fraction": Case(
+        _both(_imp_grid(np.full((10, 10), 40.0)),
+              _append('[impervious]\npath = "imp.tif"\nscale = "fraction"\n')),
+        re.compile(r"imp\.tif.*value 40, outside 0-1")),
+    "impervious grid mostly nodata": Case(
+        _both(_imp_grid(np.where(np.arange(10)[None, :] < 4, -9.0, 30.0) + np.zeros((10, 1)),
+                        nodata=-9.0),
+              _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n')),
+        re.compile(r"imp\.tif.*subcatchments S1 \(80\.0%\) above \[nodata\] max_fraction")),
+    "empty impervious table": Case(_append('[impervious]\nrunon_to = "unit"\n'),
+                                   re.compile(r"\[impervious\]: names neither")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),

@@ -1,8 +1,10 @@
 """Assign loss-method parameters to every soil x cover unit.
 
 Each unit of the unit table is split into a pervious and an impervious part by
-its cover's impervious fraction (TR-55 1986, Tables 2-2a-c); parts with zero
-area are dropped. A cover of ``"unspecified"`` (no cover raster) is fully
+its cover's impervious fraction (TR-55 1986, Tables 2-2a-c), or by the unit's own
+``impervious_fraction`` column when the unit table has one (measured on an
+impervious-share grid, :mod:`gisrun.grid.impervious`; the cover class still sets
+the pervious part's parameters); parts with zero area are dropped. A cover of ``"unspecified"`` (no cover raster) is fully
 pervious and takes the curve numbers of open space in good condition. Soil
 labels ``"water"`` and ``"rock"`` take no water: their whole area is impervious.
 
@@ -28,8 +30,9 @@ source that gives a value wins, and the provenance table records which:
 2. override rows keyed by ``subcatchment_id`` (more keys rank higher: with soil
    and cover, then with soil, then with cover, then the id alone);
 3. override rows keyed by ``soil_class`` and ``cover_class``;
-4. override rows keyed by ``soil_class`` alone, then by ``cover_class`` alone;
-5. the shipped tables.
+4. the soil, then the cover attribute table of a keyed raster (per-key values);
+5. override rows keyed by ``soil_class`` alone, then by ``cover_class`` alone;
+6. the shipped tables.
 
 Override rows apply to the pervious part unless their ``surface`` is
 ``impervious``; a ``loss_method`` applies to both parts. A derived value
@@ -47,7 +50,9 @@ import pandas as pd
 from ..engine import PARAMETERS, method_name
 from ..errors import GisrunWarning, ParameterError
 from ..options import DUAL_GROUP_CONDITIONS, choose
+from .class_keys import KeyedClasses
 from .defaults import ASSIGNED_COLUMNS, RunSettings, shipped_values
+from .keyed import apply_keyed_values, mark_base_classes, resolve_keyed_soils
 from .overrides import PARAMETER_COLUMNS
 from .precedence import (
     apply_attributes,
@@ -60,7 +65,6 @@ from .soils import (
     CLASSIFICATIONS,
     SoilInfo,
     check_cover_labels,
-    resolve_soils,
 )
 from .tables import (
     DEFAULT_ANTECEDENT_CONDITION,
@@ -99,6 +103,8 @@ def assign_parameters(
     antecedent_condition: int = DEFAULT_ANTECEDENT_CONDITION,
     initial_water_content: float | None = None,
     compact_provenance: bool = False,
+    soil_keys: KeyedClasses | None = None,
+    cover_keys: KeyedClasses | None = None,
 ) -> AssignedParameters:
     """Give every unit SI parameters for every loss method.
 
@@ -139,6 +145,8 @@ def assign_parameters(
         Return the provenance as one row per parameter, source and
         soil x cover x surface with a ``unit_parts`` count (what the output
         stores; cheap for millions of units) instead of one row per unit part.
+    soil_keys, cover_keys : KeyedClasses, optional
+        Classes of keyed rasters and what their tables give (:mod:`~gisrun.parameters.keyed`).
 
     Returns
     -------
@@ -161,10 +169,11 @@ def assign_parameters(
     method = method_name(method, where="[method] name")
     units = _checked_units(units)
     warnings: list[GisrunWarning] = []
-    soils = resolve_soils(units["soil_class"].unique(), classification, dual_group_condition,
-                          warnings)
+    soils = resolve_keyed_soils(units["soil_class"].unique(), soil_keys, classification,
+                                dual_group_condition, warnings)
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
     all_rows = _expand(units, soils)
+    mark_base_classes(all_rows, soil_keys)
     layers = override_layers(overrides, classification)
     attributes = attribute_table(subcatchment_attributes)
     # Parameters depend on soil, cover and surface, and on the subcatchment only where a layer
@@ -178,6 +187,7 @@ def assign_parameters(
         apply_layer(rows, values, sources, ranks, rank, layer, warnings)
     if attributes is not None:
         apply_attributes(rows, values, sources, ranks, attributes)
+    apply_keyed_values(rows, values, sources, ranks, cover_keys, soil_keys)
     _rederive(rows, values, sources, ranks, initial_saturation)
     if initial_water_content is not None:
         _deficit_from_water_content(rows, values, sources, ranks, initial_water_content, warnings)
@@ -263,7 +273,16 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
     if missing:
         raise ParameterError("unit table", f"has no column(s) {missing}",
                              "pass the overlay's unit table unchanged")
-    out = units.loc[:, list(_UNIT_COLUMNS)].reset_index(drop=True)
+    extra = ["impervious_fraction"] if "impervious_fraction" in units.columns else []
+    out = units.loc[:, [*_UNIT_COLUMNS, *extra]].reset_index(drop=True)
+    if extra:
+        share = pd.to_numeric(out["impervious_fraction"], errors="coerce").to_numpy(float)
+        if not np.all((share >= 0) & (share <= 1)):
+            i = int(np.flatnonzero(~((share >= 0) & (share <= 1)))[0])
+            raise ParameterError(f"unit table:row {i + 1}:impervious_fraction",
+                                 f"value {units['impervious_fraction'].iloc[i]!r} is outside 0-1",
+                                 "give each unit's impervious share as a fraction 0-1")
+        out["impervious_fraction"] = share
     area = pd.to_numeric(out["area_m2"], errors="coerce").to_numpy(float)
     bad = ~np.isfinite(area) | (area < 0)
     if bad.any():
@@ -278,9 +297,13 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
 
 
 def _expand(units: pd.DataFrame, soils: dict[str, SoilInfo]) -> pd.DataFrame:
-    cover = cover_table()
-    fractions = {**cover["impervious_fraction"].to_dict(), UNSPECIFIED_COVER: 0.0}
-    frac = units["cover_class"].map(fractions)
+    if "impervious_fraction" in units.columns:  # measured per unit (an impervious grid)
+        frac = units["impervious_fraction"]
+        units = units.drop(columns="impervious_fraction")
+    else:
+        cover = cover_table()
+        fractions = {**cover["impervious_fraction"].to_dict(), UNSPECIFIED_COVER: 0.0}
+        frac = units["cover_class"].map(fractions)
     infiltrates = units["soil_class"].map({k: v.infiltrates for k, v in soils.items()})
     frac = frac.where(infiltrates, 1.0).to_numpy(float)
     perv = units.assign(surface="pervious", area_m2=units["area_m2"] * (1.0 - frac))
