@@ -33,7 +33,11 @@ class SubcatchmentSource:
 
 @dataclass(frozen=True)
 class SoilSource:
-    """The soil raster, its code table and the soil choices of the run."""
+    """The soil raster or polygon layer, its code table and the soil choices of the run.
+
+    With ``class_field`` the file is a polygon layer (``layer`` picks one) whose field
+    holds each polygon's class, or a code looked up in ``codes`` when that is given.
+    """
 
     path: Path
     codes: dict[int, str]
@@ -42,15 +46,39 @@ class SoilSource:
     initial_saturation: float = 0.3
     crs: str | None = None
     initial_water_content: float | None = None
+    layer: str | None = None
+    class_field: str | None = None
+
+    @property
+    def is_polygons(self) -> bool:
+        """True for a polygon layer, False for a raster."""
+        return self.class_field is not None
+
+    @property
+    def kind(self) -> str:
+        """``"polygon layer"`` or ``"raster"``, for messages and listings."""
+        return "polygon layer" if self.is_polygons else "raster"
 
 
 @dataclass(frozen=True)
 class CoverSource:
-    """The land-cover raster and its code table."""
+    """The land-cover raster or polygon layer and its code table (see :class:`SoilSource`)."""
 
     path: Path
     codes: dict[int, str]
     crs: str | None = None
+    layer: str | None = None
+    class_field: str | None = None
+
+    @property
+    def is_polygons(self) -> bool:
+        """True for a polygon layer, False for a raster."""
+        return self.class_field is not None
+
+    @property
+    def kind(self) -> str:
+        """``"polygon layer"`` or ``"raster"``, for messages and listings."""
+        return "polygon layer" if self.is_polygons else "raster"
 
 
 @dataclass(frozen=True)
@@ -105,9 +133,9 @@ class Project:
     def input_files(self) -> dict[str, Path]:
         """Every file the run reads, by what it is (``"soil raster"``); no file is opened."""
         files = {"project file": self.path, "subcatchment file": self.subcatchments.path,
-                 "soil raster": self.soil.path}
+                 f"soil {self.soil.kind}": self.soil.path}
         if self.cover is not None:
-            files["cover raster"] = self.cover.path
+            files[f"cover {self.cover.kind}"] = self.cover.path
         if self.overrides is not None:
             files["parameter override file"] = self.overrides
         for i, spec in enumerate(self.storms, start=1):

@@ -83,8 +83,8 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
                       "max_overlap_fraction"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
-             "initial_water_content", "codes", "crs"),
-    "cover": ("path", "codes", "crs"),
+             "initial_water_content", "codes", "crs", "layer", "class_field"),
+    "cover": ("path", "codes", "crs", "layer", "class_field"),
     "nodata": ("rule", "max_fraction"),
     "method": ("name", "combine", "compare_composite", "initial_abstraction_ratio",
                "antecedent_condition", "lumped_parameters"),
@@ -207,9 +207,12 @@ def _subcatchments(sub: TableReader) -> SubcatchmentSource:
 
 
 def _soil(soil: TableReader) -> SoilSource:
+    layer, class_field = _polygon_keys(soil)
     return SoilSource(
         path=soil.path("path"),
-        codes=soil.codes("soil"),
+        codes=_codes(soil, "soil", class_field),
+        layer=layer,
+        class_field=class_field,
         classification=soil.choice("classification", SOIL_CLASSIFICATIONS),
         dual_group_condition=soil.choice("dual_group_condition", DUAL_GROUP_CONDITIONS),
         initial_saturation=soil.number("initial_saturation", default=0.3, low=0.0, high=1.0),
@@ -246,8 +249,27 @@ def _water_content(soil: TableReader) -> float | None:
 def _cover(cover: TableReader, *, present: bool) -> CoverSource | None:
     if not present or not cover.data:
         return None
-    return CoverSource(path=cover.path("path"), codes=cover.codes("cover"),
-                       crs=cover.string("crs", required=False))
+    layer, class_field = _polygon_keys(cover)
+    return CoverSource(path=cover.path("path"), codes=_codes(cover, "cover", class_field),
+                       crs=cover.string("crs", required=False), layer=layer,
+                       class_field=class_field)
+
+
+def _polygon_keys(table: TableReader) -> tuple[str | None, str | None]:
+    """``layer`` and ``class_field`` of a polygon layer (both None for a raster)."""
+    layer = table.string("layer", required=False)
+    class_field = table.string("class_field", required=False)
+    if layer is not None and class_field is None:
+        table.fail("layer", "is given without class_field", "name the field that holds each "
+                   "polygon's class (class_field = ...), or remove layer for a raster")
+    return layer, class_field
+
+
+def _codes(table: TableReader, section: str, class_field: str | None) -> dict[int, str]:
+    """The code table; optional for a polygon layer, whose field may hold the classes."""
+    if class_field is not None and "codes" not in table.data:
+        return {}
+    return table.codes(section)
 
 
 def _storms(top_level: TableReader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ...]:

@@ -16,6 +16,7 @@ import geopandas as gpd
 
 from ..config.project import load_project
 from ..errors import GisrunError, GisrunWarning, OutputError
+from ..grid.polygons import ClassPolygons
 from ..io.files import refuse_inputs_among
 from ..io.raster import ClassRaster
 from ..model import Inputs
@@ -31,6 +32,7 @@ from .inputs import (
     read_subcatchment_layer,
     warn_if_rain_scale_implausible,
 )
+from .polygon_inputs import align_polygon_layers, describe_polygon_layer
 from .steps import overlay_inputs, prepare_parameters
 
 __all__ = ["check_project", "check_output_path"]
@@ -38,13 +40,16 @@ __all__ = ["check_project", "check_output_path"]
 T = TypeVar("T")
 
 
-def check_project(path: str | Path) -> tuple[list[str], list[str]]:
+def check_project(path: str | Path, facts: list[str] | None = None
+                  ) -> tuple[list[str], list[str]]:
     """Check a project's inputs without running it.
 
     Parameters
     ----------
     path : path
         Project file or folder.
+    facts : list, optional
+        Filled with one line per polygon layer: its features, classes, overlaps and gaps.
 
     Returns
     -------
@@ -59,12 +64,12 @@ def check_project(path: str | Path) -> tuple[list[str], list[str]]:
         project = _attempt(problems, load_project, path)
         if project is not None:  # the output a run would write must not be an input
             _attempt(problems, refuse_inputs_among, [project.output], project.input_files())
-        later = _check_inputs(project, problems) if project is not None else []
+        later = _check_inputs(project, problems, facts) if project is not None else []
     notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     return problems, list(dict.fromkeys([*notes, *later]))
 
 
-def _check_inputs(project: Project, problems: list[str]) -> list[str]:
+def _check_inputs(project: Project, problems: list[str], facts: list[str] | None) -> list[str]:
     """Run every reader and the overlay and parameter steps; return their notes."""
     _attempt(problems, check_output_path, project.output)
     subs = _attempt(problems, read_subcatchment_layer, project)
@@ -85,7 +90,13 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     missing_cover = project.cover is not None and cover is None
     if subs is None or missing_cover or storms is None or not codes_ok:
         return storm_notes
-    inputs = Inputs(subs, soil, cover, storms, overrides)
+    inputs = _attempt(problems, align_polygon_layers, project,
+                      Inputs(subs, soil, cover, storms, overrides))
+    if inputs is None:
+        return storm_notes
+    if facts is not None:
+        facts += [describe_polygon_layer(x, subs) for x in (inputs.soil, inputs.cover)
+                  if isinstance(x, ClassPolygons)]
     overlaid = _attempt(problems, overlay_inputs, project, inputs)
     if overlaid is None:
         return storm_notes
@@ -119,8 +130,11 @@ def check_output_path(target: Path) -> None:
             return
 
 
-def _check_codes(problems: list[str], raster: ClassRaster, subs: gpd.GeoDataFrame | None,
-                 codes: dict[int, str], where: str, project: Project) -> bool:
+def _check_codes(problems: list[str], raster: ClassRaster | ClassPolygons,
+                 subs: gpd.GeoDataFrame | None, codes: dict[int, str], where: str,
+                 project: Project) -> bool:
+    if isinstance(raster, ClassPolygons):  # its classes were checked as it was read
+        return True
     return _attempt(problems, check_raster_codes, raster, subs, codes, where,
                     max_fraction=project.max_nodata_fraction) is not None
 

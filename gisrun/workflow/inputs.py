@@ -21,6 +21,7 @@ from pyproj import CRS, Transformer
 from ..config.storms import storms_from_config
 from ..crs import ground_areas, is_web_mercator
 from ..errors import GisrunWarning, RasterError, StormError, VectorError
+from ..grid.polygons import ClassPolygons
 from ..io.raster import ClassRaster, read_class_raster
 from ..io.storm_csv import warn_if_implausible
 from ..io.tables import read_parameter_overrides
@@ -30,6 +31,7 @@ from ..parameters.tables import UNSPECIFIED_COVER_STANDS_FOR, cover_table
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph, check_step_count
+from .polygon_inputs import align_polygon_layers, read_class_polygons
 
 __all__ = [
     "read_inputs",
@@ -68,15 +70,17 @@ def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
     return subs
 
 
-def read_soil(project: Project) -> ClassRaster:
-    """Open the soil raster and check it against the project's code table."""
+def read_soil(project: Project) -> ClassRaster | ClassPolygons:
+    """Open the soil raster (or read the polygon layer) and check it against the code table."""
+    if project.soil.is_polygons:
+        return read_class_polygons(project, "soil")
     return read_class_raster(project.soil.path, codes=project.soil.codes,
                              where=f"{project.soil.path} ({project.where('soil', 'path')})",
                              crs=project.soil.crs)
 
 
-def read_cover(project: Project) -> ClassRaster | None:
-    """Open the land-cover raster, if the project names one.
+def read_cover(project: Project) -> ClassRaster | ClassPolygons | None:
+    """Open the land-cover raster (or read the polygon layer), if the project names one.
 
     Warns
     -----
@@ -87,6 +91,8 @@ def read_cover(project: Project) -> ClassRaster | None:
     if project.cover is None:
         warnings.warn(no_cover_note(project), GisrunWarning, stacklevel=2)
         return None
+    if project.cover.is_polygons:
+        return read_class_polygons(project, "cover")
     return read_class_raster(project.cover.path, codes=project.cover.codes,
                              where=f"{project.cover.path} ({project.where('cover', 'path')})",
                              crs=project.cover.crs)
@@ -171,6 +177,7 @@ def read_inputs(project: Project) -> Inputs:
             storms=read_storms(project),
             overrides=read_overrides(project),
         )
+        inputs = align_polygon_layers(project, inputs)
         warn_if_rain_scale_implausible(project, inputs.subcatchments, inputs.storms)
         check_overlaps(project, inputs.subcatchments)
     for w in caught:  # pass them on, and keep their text with the inputs for the run table
@@ -344,9 +351,14 @@ def _bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, f
 
 
 def check_inputs_codes(project: Project, inputs: Inputs) -> None:
-    """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`)."""
-    check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
-                       project.where("soil"), max_fraction=project.max_nodata_fraction)
-    if inputs.cover is not None and project.cover is not None:
+    """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`).
+
+    A polygon layer's classes were checked as it was read.
+    """
+    if not isinstance(inputs.soil, ClassPolygons):
+        check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
+                           project.where("soil"), max_fraction=project.max_nodata_fraction)
+    if inputs.cover is not None and project.cover is not None \
+            and not isinstance(inputs.cover, ClassPolygons):
         check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
                            project.where("cover"), max_fraction=project.max_nodata_fraction)

@@ -25,6 +25,7 @@ from ..aggregate import area_weights, subcatchment_series, summarize_subcatchmen
 from ..engine import ENGINES, method_name, run_losses
 from ..errors import ParameterError, VectorError
 from ..grid.overlay import compute_unit_areas
+from ..grid.polygons import ClassPolygons, polygon_unit_areas
 from ..model import Inputs, StormResult
 from ..parameters import assign_parameters, composite_parameters
 from ..parameters.equivalent import LUMPED_COLUMNS, StormRunoff, lumped_parameters
@@ -32,6 +33,7 @@ from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph
 from .inputs import check_inputs_codes
+from .polygon_inputs import class_layer_sources
 
 __all__ = [
     "overlay_inputs",
@@ -58,7 +60,8 @@ def overlay_inputs(project: Project, inputs: Inputs, *, check_codes: bool = True
     """
     if check_codes:
         check_inputs_codes(project, inputs)
-    return compute_unit_areas(
+    polygons = any(isinstance(x, ClassPolygons) for x in (inputs.soil, inputs.cover))
+    return (polygon_unit_areas if polygons else compute_unit_areas)(
         inputs.subcatchments, inputs.soil, inputs.cover,
         soil_codes=project.soil.codes,
         cover_codes=project.cover.codes if project.cover else None,
@@ -85,9 +88,12 @@ def prepare_parameters(
         initial_water_content=project.soil.initial_water_content,
         compact_provenance=True,
     )
+    sources, layers = pd.DataFrame(sources), class_layer_sources(project, params)
+    if not layers.empty:
+        sources = pd.concat([sources, layers], ignore_index=True)
     if project.combine == "composite":
         params = composite_parameters(params)
-    return params.reset_index(drop=True), compact_sources(pd.DataFrame(sources)), list(notes)
+    return params.reset_index(drop=True), compact_sources(sources), list(notes)
 
 
 _SOURCE_KEYS = ["parameter", "source", "soil_class", "cover_class", "surface"]
