@@ -73,8 +73,8 @@ SUBS = [Polygon([(X0 - 10, Y0 - 50), (X0 + 90, Y0 - 45), (X0 + 80, Y0 + 40), (X0
 
 
 def test_soil_polygons_equal_shapely_intersections():
-    units, coverage, _ = polygon_unit_areas(frame(SUBS), layer(SOIL_SHAPES, SOIL_LABELS),
-                                            nodata_rule="omit", max_nodata_fraction=1.0)
+    units, coverage, notes = polygon_unit_areas(frame(SUBS), layer(SOIL_SHAPES, SOIL_LABELS),
+                                                nodata_rule="omit", max_nodata_fraction=1.0)
     ref = shapely_reference(SUBS, (SOIL_SHAPES, SOIL_LABELS))
     got = {(sid, s, c): a for sid in ("S0", "S1") for (s, c), a in units_dict(units, sid).items()}
     assert got.keys() == ref.keys()
@@ -86,6 +86,8 @@ def test_soil_polygons_equal_shapely_intersections():
     row = coverage.set_index("subcatchment_id").loc["S0"]
     assert row["nodata_area_m2"] == pytest.approx(nodata, rel=1e-9)
     assert row["outside_area_m2"] == pytest.approx(shapely.area(SUBS[0]) - covered, rel=1e-9)
+    gap_notes = [n for n in notes if n.startswith("soil.gpkg:soil: ")]
+    assert len(gap_notes) == 1 and "2 subcatchment(s) have ground in no polygon" in gap_notes[0]
 
 
 #: Hand-made cover map: two roofs (one a multipolygon), woods, the rest open space; a gap.

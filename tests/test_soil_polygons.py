@@ -9,11 +9,12 @@ from __future__ import annotations
 import warnings
 from pathlib import Path
 
+import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pyogrio
 import pytest
-from bad_inputs_helpers import make_project, run_cli, square
+from bad_inputs_helpers import CRS, edit_toml, make_project, run_cli, square, write_raster
 from polygon_helpers import soil_layer
 
 from gisrun import load_project, read_inputs
@@ -125,3 +126,38 @@ def test_demo_soil_polygons_equal_the_raster_demo():
         np.testing.assert_allclose(c_p[column], c_r[column], rtol=1e-8, atol=1e-6)
     numeric = s_r.select_dtypes("number").columns
     pd.testing.assert_frame_equal(s_p[numeric], s_r[numeric], rtol=1e-8, atol=1e-9)
+
+
+def _cover_raster_in_halves(d):
+    """Cover raster: impervious (code 1) in the north half, open space (5) in the south."""
+    codes = np.full((10, 10), 5, dtype=np.uint8)
+    codes[:5] = 1
+    (d / "cover.tif").unlink()
+    write_raster(d / "cover.tif", codes)
+    edit_toml(d / "gisrun.toml", '"5" = "open_space_good"', '"1" = "impervious"\n'
+              '"5" = "open_space_good"')
+
+
+def _cover_polygons_in_halves(d):
+    """The same cover as two polygons of a cover layer, class names in the field."""
+    gpd.GeoDataFrame({"cover": ["impervious", "open_space_good"]},
+                     geometry=[square(0, 50, 100, 100), square(0, 0, 100, 50)],
+                     crs=CRS).to_file(d / "cover.gpkg", layer="cover", engine="pyogrio")
+    edit_toml(d / "gisrun.toml", 'path = "cover.tif"', 'path = "cover.gpkg"\n'
+              'class_field = "cover"')
+    edit_toml(d / "gisrun.toml", '[cover.codes]\n"5" = "open_space_good"\n', "")
+
+
+@pytest.mark.parametrize("soil_as_polygons", [False, True])
+def test_cover_polygons_give_the_cover_raster_results(tmp_path, capsys, soil_as_polygons):
+    soil = (soil_layer(),) if soil_as_polygons else ()
+    raster, _ = run_tiny(tmp_path, capsys, *soil, _cover_raster_in_halves, name="raster.gpkg")
+    polygons, _ = run_tiny(tmp_path, capsys, *soil, _cover_polygons_in_halves,
+                           name="polygons.gpkg")
+    for layer in ("runoff_steady", "unit_results"):
+        a = pyogrio.read_dataframe(raster, layer=layer, read_geometry=False)
+        b = pyogrio.read_dataframe(polygons, layer=layer, read_geometry=False)
+        assert set(a.get("cover_class", ["x"])) == set(b.get("cover_class", ["x"]))
+        numeric = a.select_dtypes("number").columns
+        np.testing.assert_allclose(b[numeric].to_numpy(float), a[numeric].to_numpy(float),
+                                   rtol=1e-12, atol=1e-12)

@@ -62,6 +62,8 @@ __all__ = ["ClassPolygons", "class_polygons", "polygon_unit_areas", "layer_overl
 #: (slivers where neighbouring polygons' shared edges were snapped), not two classes
 #: claiming the same ground (common practice: such slivers are cleaned, not mapped).
 OVERLAP_NOISE = 1e-6
+#: Class of ground in no polygon of a layer while the sums are made (then outside).
+_GAP = -1
 
 
 @dataclass(frozen=True)
@@ -148,6 +150,8 @@ def polygon_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid | ClassP
         sums = _mixed_sums(subcatchments, soil, cover, raster, (soil_codes, cover_codes),
                            (soil_labels, cover_labels), chunk_cells, notes)
     first = soil if isinstance(soil, ClassPolygons) else cover
+    layers = " and ".join(x.where for x in (soil, cover) if isinstance(x, ClassPolygons))
+    sums = _note_gaps(sums, ids, ground.area_m2, layers, notes)
     shim = _Labels([(s, c) for s in soil_labels for c in cover_labels], first.where)
     try:
         units, coverage = _finish(ids, ground.area_m2, _summed(sums, len(shim.labels) + 2),
@@ -158,6 +162,20 @@ def polygon_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid | ClassP
                           "draw polygons over the gaps, give unsurveyed polygons a class, or "
                           "raise the nodata maximum") from None
     return units, coverage.assign(area_method=ground.method), notes
+
+
+def _note_gaps(sums: tuple[NDArray[Any], ...], ids: NDArray[Any], own_m2: NDArray[np.float64],
+               where: str, notes: list[str]) -> tuple[NDArray[Any], ...]:
+    """Say which subcatchments have ground in no polygon; the gaps then count as outside."""
+    poly, cls, area = sums
+    gap = np.bincount(poly[cls == _GAP], area[cls == _GAP], minlength=ids.size)
+    found = gap > 1e-9 * own_m2
+    if found.any():
+        notes.append(f"{where}: {int(found.sum())} subcatchment(s) have ground in no polygon "
+                     f"({gap[found].sum():.6g} m2 of gaps in all, e.g. "
+                     f"{', '.join(map(str, ids[found][:5]))}); counted as outside under the "
+                     "nodata rule (see coverage)")
+    return poly, np.where(cls == _GAP, _OUTSIDE, cls), area
 
 
 def _summed(sums: tuple[NDArray[Any], ...], n_classes: int) -> tuple[NDArray[Any], ...]:
@@ -265,14 +283,14 @@ def _vector_sums(subs: gpd.GeoDataFrame, soil: ClassPolygons, cover: ClassPolygo
 def _gaps(owner: NDArray[np.int64], cut_area: NDArray[np.float64],
           whole_area: NDArray[np.float64], whole_sub: NDArray[np.int64]
           ) -> tuple[NDArray[Any], ...]:
-    """(subcatchment, outside, m2): the area of each whole its cut pieces leave uncovered.
+    """(subcatchment, gap, m2): the area of each whole its cut pieces leave uncovered.
 
     ``owner`` is each piece's whole (index into ``whole_area``); ``whole_sub`` each
     whole's subcatchment. Overlapping polygons can cover more than the whole: no gap.
     """
     covered = np.bincount(owner, cut_area, minlength=whole_area.size)
     gap = np.maximum(whole_area - covered, 0.0)
-    return whole_sub, np.full(whole_area.size, _OUTSIDE, dtype=np.int64), gap
+    return whole_sub, np.full(whole_area.size, _GAP, dtype=np.int64), gap
 
 
 def _combined(soil_cls: NDArray[np.int64], cover_cls: NDArray[np.int64], n_cover: int
