@@ -18,7 +18,7 @@ from bad_inputs_helpers import CRS, edit_toml, make_project, run_cli, square, wr
 from polygon_helpers import soil_layer
 
 from gisrun import load_project, read_inputs
-from gisrun.errors import ProjectFileError
+from gisrun.errors import InputError, ProjectFileError
 from gisrun.workflow.steps import overlay_inputs, prepare_parameters, run_storm
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
@@ -161,3 +161,14 @@ def test_cover_polygons_give_the_cover_raster_results(tmp_path, capsys, soil_as_
         numeric = a.select_dtypes("number").columns
         np.testing.assert_allclose(b[numeric].to_numpy(float), a[numeric].to_numpy(float),
                                    rtol=1e-12, atol=1e-12)
+
+
+def test_impervious_grid_with_a_polygon_layer_is_refused(tmp_path):
+    folder = tmp_path / "p"
+    make_project(folder)
+    soil_layer()(folder)
+    write_raster(folder / "imp.tif", np.full((10, 10), 40, dtype=np.uint8))
+    with open(folder / "gisrun.toml", "a") as handle:
+        handle.write('\n[impervious]\npath = "imp.tif"\nscale = "percent"\n')
+    with pytest.raises(InputError, match=r"\[impervious\]\.path: .*\[soil\] is a polygon layer"):
+        read_inputs(load_project(folder))

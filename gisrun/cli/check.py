@@ -17,7 +17,7 @@ __all__ = ["check"]
 def check(project: Path) -> None:
     """Check every input of PROJECT without running it; report each problem on one line."""
     facts: list[str] = []
-    problems, notes = check_project(project, facts)
+    problems, notes, outputs = check_project(project, facts)
     for fact in facts:
         click.echo(f"polygon layer {fact}")
     for note in notes:
@@ -27,4 +27,6 @@ def check(project: Path) -> None:
     if problems:
         click.echo(f"{len(problems)} problem(s) found.", err=True)
         raise click.exceptions.Exit(2)
+    for line in outputs:
+        click.echo(line)
     click.echo("No problems found.")

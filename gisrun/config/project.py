@@ -47,6 +47,7 @@ from ..options import (
     DUAL_GROUP_CONDITIONS,
     LUMPED_PARAMETER_SETS,
     NODATA_RULES,
+    SERIES_STORES,
     UNIT_SYSTEMS,
     Choices,
     check_geopackage_name,
@@ -54,6 +55,7 @@ from ..options import (
 from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_labels
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
+from .impervious import IMPERVIOUS_KEYS, check_impervious_combination, read_impervious
 from .reader import TableReader
 
 __all__ = [
@@ -78,8 +80,9 @@ _REQUIRED = ("subcatchments", "soil")
 #: Keys of each table ("" = the top level); [[storms]] keys come from the storm kinds.
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
-         "storms", "rain_scale"),
-    "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache"),
+         "storms", "rain_scale", "impervious"),
+    "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache",
+                "series"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
                       "max_overlap_fraction"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
@@ -90,6 +93,7 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
                "antecedent_condition", "lumped_parameters"),
     "parameters": ("overrides",),
     "rain_scale": ("field",),
+    "impervious": IMPERVIOUS_KEYS,
 }
 
 
@@ -176,8 +180,13 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         initial_abstraction_ratio=_declared(method, "initial_abstraction_ratio"),
         antecedent_condition=int(_declared(method, "antecedent_condition")),
         overlay_cache=top.path("overlay_cache", required=False),
+        series=top.choice("series", SERIES_STORES),
+        impervious=read_impervious(read["impervious"], present="impervious" in raw),
     )
     _check_class_labels(file, project)
+    check_impervious_combination(project.impervious, combine=project.combine,
+                                 compare_composite=project.compare_composite,
+                                 where=method.where())
     return project
 
 

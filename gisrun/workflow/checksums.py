@@ -30,6 +30,8 @@ def dataset_files(project: Project) -> dict[Path, list[Path] | None]:
         if source is not None:
             files = vector_files if source.is_polygons else raster_files
             out[Path(source.path)] = files(source.path)
+    if project.impervious is not None and project.impervious.path is not None:
+        out[Path(project.impervious.path)] = raster_files(project.impervious.path)
     return out
 
 

@@ -183,6 +183,8 @@ class ChunkTask:
     cells: bool = False
     #: (units, coverage, notes) of this chunk from the overlay cache; None to overlay.
     overlay: tuple[pd.DataFrame, pd.DataFrame, list[str]] | None = None
+    #: The impervious-share grid, if the project names one.
+    impervious: ClassGrid | None = None
 
 
 @dataclass
@@ -219,7 +221,8 @@ class ChunkOutput:
 def process_chunk(task: ChunkTask) -> ChunkOutput:
     """Overlay, parameters and every storm for one chunk of subcatchments."""
     project = task.project
-    inputs = Inputs(task.subcatchments, task.soil, task.cover, task.storms, task.overrides)
+    inputs = Inputs(task.subcatchments, task.soil, task.cover, task.storms, task.overrides,
+                    impervious=task.impervious)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
         if task.overlay is not None:

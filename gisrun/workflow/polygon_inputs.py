@@ -19,7 +19,7 @@ import pandas as pd
 import shapely
 from pyproj import CRS
 
-from ..errors import GisrunWarning, ParameterError, VectorError
+from ..errors import GisrunWarning, InputError, ParameterError, VectorError
 from ..grid.polygons import (
     OVERLAP_NOISE,
     ClassPolygons,
@@ -125,6 +125,12 @@ def align_polygon_layers(project: Project, inputs: Inputs) -> Inputs:
               if isinstance(getattr(inputs, k), ClassPolygons)}
     if not layers:
         return inputs
+    if project.impervious is not None and project.impervious.path is not None:
+        first = project.where(next(iter(layers)))
+        raise InputError(project.where("impervious", "path"), "an impervious-share grid is "
+                         f"measured on the class rasters' cells, and {first} is a polygon "
+                         "layer", "use soil and cover rasters with the grid, or leave the "
+                         "grid out (the cover table's percent is then used)")
     rasters = [r for r in (inputs.soil, inputs.cover)
                if r is not None and not isinstance(r, ClassPolygons)]
     target = CRS.from_user_input(rasters[0].crs if rasters else inputs.subcatchments.crs)
