@@ -17,6 +17,9 @@ It writes, next to itself:
 - ``soil_map.gpkg`` (layer ``soil_map``): the soil raster as polygons (each connected patch of
   one code, traced along the cell edges), field ``soil_group``; unsurveyed patches have none.
 - ``gisrun_soil_polygons.toml``: the same project with the soil map as polygons.
+- ``soil_map_units.tif``, ``soil_map_units.csv``, ``gisrun_map_units.toml``: the soil map as
+  map-unit keys with an attribute table, and the project file that reads them
+  (``map_units.py``).
 
 The data exist to show the program working; they are never a test reference.
 """
@@ -35,6 +38,8 @@ from numpy.typing import NDArray
 from rasterio.features import rasterize, shapes
 from rasterio.transform import from_origin
 from scipy.ndimage import gaussian_filter
+
+from map_units import write_map_units  # noqa: E402  (beside this script)
 
 HERE = Path(__file__).resolve().parent
 RNG_STATE = 20240611  # fixed state of the random-number generator: same files every run
@@ -501,6 +506,7 @@ def main() -> None:
     (HERE / "gisrun_soil_polygons.toml").write_text(
         polygon_project_text((HERE / "gisrun.toml").read_text(encoding="utf-8")),
         encoding="utf-8", newline="\n")
+    write_map_units(HERE, SOIL_CODES)
     print(f"{TOWN}: {len(subs)} subcatchments, {subs.area.sum() / 1e6:.2f} km2; "
           f"soil {soil.shape[1]}x{soil.shape[0]} @ {SOIL_CELL_M:g} m, "
           f"cover {cover.shape[1]}x{cover.shape[0]} @ {COVER_CELL_M:g} m; written to {HERE}")

@@ -37,6 +37,9 @@ class SoilSource:
 
     With ``class_field`` the file is a polygon layer (``layer`` picks one) whose field
     holds each polygon's class, or a code looked up in ``codes`` when that is given.
+    With an attribute table (``[soil] attributes``) ``codes`` is the table's
+    key -> class map and ``keys`` the :class:`gisrun.parameters.class_keys.KeyedClasses`
+    it was read into (typed loosely here so the project types import no compute).
     """
 
     path: Path
@@ -46,6 +49,9 @@ class SoilSource:
     initial_saturation: float = 0.3
     crs: str | None = None
     initial_water_content: float | None = None
+    keys: Any = None
+    attributes: Path | None = None
+    unlisted_keys: str = "error"
     layer: str | None = None
     class_field: str | None = None
 
@@ -62,11 +68,15 @@ class SoilSource:
 
 @dataclass(frozen=True)
 class CoverSource:
-    """The land-cover raster or polygon layer and its code table (see :class:`SoilSource`)."""
+    """The land-cover raster or polygon layer and its code table (or attribute table, as for
+    the soil; see :class:`SoilSource`)."""
 
     path: Path
     codes: dict[int, str]
     crs: str | None = None
+    keys: Any = None
+    attributes: Path | None = None
+    unlisted_keys: str = "error"
     layer: str | None = None
     class_field: str | None = None
 
@@ -177,8 +187,12 @@ class Project:
         """Every file the run reads, by what it is (``"soil raster"``); no file is opened."""
         files = {"project file": self.path, "subcatchment file": self.subcatchments.path,
                  f"soil {self.soil.kind}": self.soil.path}
+        if self.soil.attributes is not None:
+            files["soil attribute table"] = self.soil.attributes
         if self.cover is not None:
             files[f"cover {self.cover.kind}"] = self.cover.path
+            if self.cover.attributes is not None:
+                files["cover attribute table"] = self.cover.attributes
         if self.overrides is not None:
             files["parameter override file"] = self.overrides
         if self.impervious is not None and self.impervious.path is not None:

@@ -172,3 +172,22 @@ def test_impervious_grid_with_a_polygon_layer_is_refused(tmp_path):
         handle.write('\n[impervious]\npath = "imp.tif"\nscale = "percent"\n')
     with pytest.raises(InputError, match=r"\[impervious\]\.path: .*\[soil\] is a polygon layer"):
         read_inputs(load_project(folder))
+
+
+def _keys_with_table(d):
+    """Map-unit keys in the layer's field, their groups in an attribute table (CSV)."""
+    (d / "soil_keys.csv").write_text("key,hydrologic_soil_group\n470,A\n471,B\n")
+    edit_toml(d / "gisrun.toml", 'class_field = "group"',
+              'class_field = "group"\nattributes = "soil_keys.csv"')
+
+
+def test_keys_in_the_field_go_through_an_attribute_table(tmp_path, capsys):
+    named, _ = run_tiny(tmp_path, capsys, soil_layer(), name="named.gpkg")
+    keyed, _ = run_tiny(tmp_path, capsys, soil_layer(labels=[470, 471]), _keys_with_table,
+                        name="keyed.gpkg")
+    a = pyogrio.read_dataframe(named, layer="unit_results", read_geometry=False)
+    b = pyogrio.read_dataframe(keyed, layer="unit_results", read_geometry=False)
+    assert a["soil_class"].tolist() == b["soil_class"].tolist()
+    numeric = a.select_dtypes("number").columns
+    np.testing.assert_allclose(b[numeric].to_numpy(float), a[numeric].to_numpy(float),
+                               rtol=1e-12)

@@ -49,12 +49,14 @@ from ..options import (
     NODATA_RULES,
     SERIES_STORES,
     UNIT_SYSTEMS,
+    UNLISTED_KEY_RULES,
     Choices,
     check_geopackage_name,
 )
 from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_labels
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
+from .attributes import ATTRIBUTE_KEYS, KeyedSource, keyed_source
 from .impervious import IMPERVIOUS_KEYS, check_impervious_combination, read_impervious
 from .reader import TableReader
 
@@ -86,8 +88,9 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
                       "max_overlap_fraction"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
-             "initial_water_content", "codes", "crs", "layer", "class_field"),
-    "cover": ("path", "codes", "crs", "layer", "class_field"),
+             "initial_water_content", "codes", "crs", "layer", "class_field",
+             *ATTRIBUTE_KEYS),
+    "cover": ("path", "codes", "crs", "layer", "class_field", *ATTRIBUTE_KEYS),
     "nodata": ("rule", "max_fraction"),
     "method": ("name", "combine", "compare_composite", "initial_abstraction_ratio",
                "antecedent_condition", "lumped_parameters"),
@@ -217,12 +220,13 @@ def _subcatchments(sub: TableReader) -> SubcatchmentSource:
 
 def _soil(soil: TableReader) -> SoilSource:
     layer, class_field = _polygon_keys(soil)
+    classification = soil.choice("classification", SOIL_CLASSIFICATIONS)
+    codes, keys, attributes, unlisted = _class_table(soil, "soil", class_field, classification)
     return SoilSource(
         path=soil.path("path"),
-        codes=_codes(soil, "soil", class_field),
-        layer=layer,
-        class_field=class_field,
-        classification=soil.choice("classification", SOIL_CLASSIFICATIONS),
+        codes=codes, keys=keys, attributes=attributes, unlisted_keys=unlisted,
+        layer=layer, class_field=class_field,
+        classification=classification,
         dual_group_condition=soil.choice("dual_group_condition", DUAL_GROUP_CONDITIONS),
         initial_saturation=soil.number("initial_saturation", default=0.3, low=0.0, high=1.0),
         crs=soil.string("crs", required=False),
@@ -238,10 +242,11 @@ def _declared(method: TableReader, key: str) -> float:
 
 def _check_class_labels(file: Path, project: Project) -> None:
     """Stop on a code table entry naming a class the parameter tables do not know."""
-    for code, label in project.soil.codes.items():
-        check_soil_labels([label], project.soil.classification,
-                          f'{file.name}:[soil.codes]."{code}"')
-    if project.cover is not None:
+    if project.soil.keys is None:  # an attribute table checks its own classes
+        for code, label in project.soil.codes.items():
+            check_soil_labels([label], project.soil.classification,
+                              f'{file.name}:[soil.codes]."{code}"')
+    if project.cover is not None and project.cover.keys is None:
         for code, label in project.cover.codes.items():
             check_cover_labels([label], f'{file.name}:[cover.codes]."{code}"')
 
@@ -259,9 +264,10 @@ def _cover(cover: TableReader, *, present: bool) -> CoverSource | None:
     if not present or not cover.data:
         return None
     layer, class_field = _polygon_keys(cover)
-    return CoverSource(path=cover.path("path"), codes=_codes(cover, "cover", class_field),
-                       crs=cover.string("crs", required=False), layer=layer,
-                       class_field=class_field)
+    codes, keys, attributes, unlisted = _class_table(cover, "cover", class_field)
+    return CoverSource(path=cover.path("path"), codes=codes, keys=keys, attributes=attributes,
+                       unlisted_keys=unlisted, crs=cover.string("crs", required=False),
+                       layer=layer, class_field=class_field)
 
 
 def _polygon_keys(table: TableReader) -> tuple[str | None, str | None]:
@@ -274,11 +280,13 @@ def _polygon_keys(table: TableReader) -> tuple[str | None, str | None]:
     return layer, class_field
 
 
-def _codes(table: TableReader, section: str, class_field: str | None) -> dict[int, str]:
-    """The code table; optional for a polygon layer, whose field may hold the classes."""
-    if class_field is not None and "codes" not in table.data:
-        return {}
-    return table.codes(section)
+def _class_table(table: TableReader, kind: str, class_field: str | None,
+                 classification: str = "hydrologic_soil_group") -> KeyedSource:
+    """The code or attribute table; neither is needed by a polygon layer of class names."""
+    if class_field is not None and "codes" not in table.data \
+            and "attributes" not in table.data:
+        return {}, None, None, UNLISTED_KEY_RULES.default
+    return keyed_source(table, kind, classification)
 
 
 def _storms(top_level: TableReader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ...]:

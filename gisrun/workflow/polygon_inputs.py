@@ -53,8 +53,10 @@ def read_class_polygons(project: Project, section: str) -> ClassPolygons:
                                    crs=source.crs)
     where = f"{here}:{source.class_field}"
     if source.codes:
-        labels = _coded_labels(frame["value"].to_numpy(), source.codes, where,
-                               project.where(section, "codes"))
+        table = (f"{source.attributes.name} ({project.where(section, 'attributes')})"
+                 if source.attributes is not None else project.where(section, "codes"))
+        labels = _coded_labels(frame["value"].to_numpy(), source.codes, where, table,
+                               unlisted_nodata=source.unlisted_keys == "nodata")
     else:
         labels = _plain_labels(frame["value"].to_numpy())
     valid = (valid_soil_labels(project.soil.classification) if section == "soil"
@@ -79,8 +81,12 @@ def _plain_labels(raw: np.ndarray) -> np.ndarray:
     return out
 
 
-def _coded_labels(raw: np.ndarray, codes: dict[int, str], where: str, table: str) -> np.ndarray:
-    """Each value looked up in the code table; None where empty."""
+def _coded_labels(raw: np.ndarray, codes: dict[int, str], where: str, table: str, *,
+                  unlisted_nodata: bool = False) -> np.ndarray:
+    """Each value looked up in the code (or attribute) table; None where empty.
+
+    With ``unlisted_nodata`` a code the table does not list is nodata (with a warning).
+    """
     null = _is_null(raw)
     numbers = pd.to_numeric(pd.Series(raw, dtype=object).where(~null), errors="coerce")
     values = numbers.to_numpy(dtype=np.float64)
@@ -91,7 +97,12 @@ def _coded_labels(raw: np.ndarray, codes: dict[int, str], where: str, table: str
                           "values are the class names")
     known = np.isin(values, np.array(sorted(codes), dtype=np.float64))
     unknown = sorted({int(v) for v in values[~null & ~known]})
-    if unknown:
+    if unknown and unlisted_nodata:
+        warnings.warn(f"{where}: codes {', '.join(map(str, unknown[:10]))} are not in {table}; "
+                      "their polygons count as nodata (unlisted_keys)", GisrunWarning,
+                      stacklevel=3)
+        null = null | ~known
+    elif unknown:
         raise VectorError(where, f"holds codes {', '.join(map(str, unknown[:10]))} that "
                           f"{table} does not list", "add each code and its class to that "
                           "table in the project file")

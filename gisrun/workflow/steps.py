@@ -97,6 +97,8 @@ def prepare_parameters(
         antecedent_condition=project.antecedent_condition,
         initial_water_content=project.soil.initial_water_content,
         compact_provenance=True,
+        soil_keys=project.soil.keys,
+        cover_keys=project.cover.keys if project.cover else None,
     )
     sources = pd.DataFrame(sources)
     if "impervious_fraction" in units.columns and project.impervious is not None:
