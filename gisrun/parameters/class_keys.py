@@ -17,7 +17,9 @@ soil
     group is derived from the last three by the NEH 630 Ch. 7 criteria
     (:mod:`gisrun.parameters.hsg_criteria`), or from the texture (TR-55 App. A).
 cover
-    ``cover_class`` (a shipped cover class).
+    ``cover_class`` (a shipped cover class), ``impervious_percent`` (0-100) or
+    ``impervious_fraction`` (0-1): the class's impervious share instead of the
+    cover table's (an impervious-share grid still wins).
 both
     any parameter column of the override table, unit in the name
     (``ks_mm_per_h``, ``suction_head_mm``, ``depression_storage_mm`` ...).
@@ -50,12 +52,15 @@ from .tables import (
     green_ampt_by_texture,
 )
 
-__all__ = ["KeyedClass", "KeyedClasses", "keyed_classes", "UNLISTED_KEYS", "SOIL_COLUMNS"]
+__all__ = ["KeyedClass", "KeyedClasses", "keyed_classes", "UNLISTED_KEYS", "SOIL_COLUMNS",
+           "COVER_COLUMNS"]
 
 #: ``unlisted_keys``: what a raster key missing from the table does.
 UNLISTED_KEYS = ("error", "nodata")
 #: Class columns of a soil table (the group and the texture).
 SOIL_COLUMNS = ("hydrologic_soil_group", "texture")
+#: Class columns of a cover table: the class, and its impervious share (one of the two units).
+COVER_COLUMNS = ("cover_class", "impervious_percent", "impervious_fraction")
 _LENGTH_UNITS = ("m", "cm", "mm", "in", "ft")
 _RATE_UNITS = ("m_per_s", "mm_per_h", "cm_per_h", "in_per_h", "um_per_s")
 #: Property columns (stem -> units accepted) that only feed the group criteria.
@@ -77,6 +82,8 @@ class KeyedClass:
     group: str | None = None
     group_source: str = ""
     texture: str | None = None
+    #: A cover class's impervious share from the table (None: the cover table's).
+    impervious_fraction: float | None = None
     #: (SI parameter column, value) pairs the keys set.
     values: tuple[tuple[str, float], ...] = ()
 
@@ -168,14 +175,15 @@ def keyed_classes(frame: pd.DataFrame, *, key: str, kind: str, where: str,
     frame = frame.reset_index(drop=True)
     frame.columns = [str(c).strip() for c in frame.columns]
     keys = _keys(frame, key, where, row_names)
-    classes_cols = SOIL_COLUMNS if kind == "soil" else ("cover_class",)
+    classes_cols = SOIL_COLUMNS if kind == "soil" else COVER_COLUMNS
     parameters, properties, unused = _sort_columns(frame, key, classes_cols, where)
     values = _parameter_values(frame, parameters, where, row_names, keys)
     if kind == "soil":
         labels, extra, derived = _soil_classes(frame, properties, where, row_names,
                                                classification)
     else:
-        labels, extra, derived = _cover_classes(frame, where, row_names), {}, 0
+        labels, derived = _cover_classes(frame, where, row_names), 0
+        extra = {"impervious_fraction": _impervious(frame, where, row_names)}
     used = tuple(c for c in frame.columns if c not in unused)
     table = pd.DataFrame({"key": keys, "label": labels}).join(values).join(
         pd.DataFrame(extra, index=frame.index))
@@ -344,6 +352,26 @@ def _derived_groups(frame: pd.DataFrame, properties: dict[str, tuple[str, float]
     return [g if ok else None for g, ok in zip(groups.tolist(), profile, strict=True)]
 
 
+def _impervious(frame: pd.DataFrame, where: str, names: list[str]) -> list[float | None]:
+    """Each key's impervious share (0-1) from ``impervious_percent`` or ``_fraction``."""
+    given = [c for c in ("impervious_percent", "impervious_fraction") if c in frame.columns]
+    if len(given) > 1:
+        raise ParameterError(f"{where}:{given[1]}", "gives the same share as impervious_percent",
+                             "keep one of the two columns")
+    if not given:
+        return [None] * len(frame)
+    col, scale = given[0], (100.0 if given[0] == "impervious_percent" else 1.0)
+    out: list[float | None] = []
+    for i, cell in enumerate(_cells(frame, col)):
+        value = pd.to_numeric(cell, errors="coerce") if cell is not None else None
+        if value is not None and not (np.isfinite(value) and 0.0 <= value <= scale):
+            raise ParameterError(f"{where}:{names[i]}:{col}", f"value {cell!r} is outside "
+                                 f"0-{scale:g}", "give the share of the class that is "
+                                 "impervious, or leave it blank for the cover table's")
+        out.append(None if value is None else float(value) / scale)
+    return out
+
+
 def _cover_classes(frame: pd.DataFrame, where: str, names: list[str]) -> list[str]:
     labels = _required(_cells(frame, "cover_class"), "cover_class", where, names)
     for i, label in enumerate(labels):
@@ -379,10 +407,12 @@ def _keyed_class(name: str, base: str, part: pd.DataFrame, value_cols: list[str]
                  values: tuple[object, ...], where: str) -> KeyedClass:
     given = dict(zip(value_cols, values, strict=True))
     group, texture = given.pop("group", None), given.pop("texture", None)
+    share = given.pop("impervious_fraction", None)
     first = int(part["key"].iloc[0])
     source = f"{where}: key {first}" + (" and keys with the same values" if len(part) > 1 else "")
     return KeyedClass(
         label=name, base_class=base, keys=len(part), first_key=first,
         group=None if group is None else str(group), group_source=source,
         texture=None if texture is None else str(texture),
+        impervious_fraction=None if share is None else float(share),
         values=tuple((c, float(v)) for c, v in given.items() if v is not None))
