@@ -52,8 +52,11 @@ def resolve_keyed_soils(labels: Iterable[str], keyed: KeyedClasses | None, class
             out[label] = base_info[label]
             continue
         found = classes[label]
-        out[label] = _with_table(base_info[found.base_class], found.group, found.texture,
-                                 found.group_source, dual_condition, warnings)
+        info = base_info[found.base_class]
+        if info.infiltrates and found.group is None:
+            info = replace(info, group_source=f"{info.group_source} from {keyed.where}")
+        out[label] = _with_table(info, found.group, found.texture, found.group_source,
+                                 dual_condition, warnings)
     return out
 
 
