@@ -30,6 +30,7 @@ from ..grid.polygons import ClassPolygons, polygon_unit_areas
 from ..model import Inputs, StormResult
 from ..parameters import assign_parameters, composite_parameters
 from ..parameters.equivalent import LUMPED_COLUMNS, StormRunoff, lumped_parameters
+from ..parameters.keyed import table_impervious_shares
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph
@@ -44,6 +45,7 @@ __all__ = [
     "add_composite_comparison",
     "rain_scale_for_units",
     "lumped_parameter_table",
+    "subcatchment_attributes",
 ]
 
 
@@ -85,6 +87,8 @@ def prepare_parameters(
 ) -> tuple[pd.DataFrame, pd.DataFrame, list]:
     """Unit parameters (SI) from the published tables and the user's overrides."""
     attributes = _subcatchment_attributes(project, inputs.subcatchments)
+    units, table_shares = table_impervious_shares(units, project.cover.keys if project.cover
+                                                  else None)
     params, sources, notes = assign_parameters(
         units,
         classification=project.soil.classification,
@@ -103,6 +107,8 @@ def prepare_parameters(
     sources = pd.DataFrame(sources)
     if "impervious_fraction" in units.columns and project.impervious is not None:
         sources = pd.concat([sources, _share_sources(units, project)], ignore_index=True)
+    if table_shares is not None:
+        sources = pd.concat([sources, table_shares], ignore_index=True)
     layers = class_layer_sources(project, params)
     if not layers.empty:
         sources = pd.concat([sources, layers], ignore_index=True)
@@ -140,6 +146,11 @@ def compact_sources(sources: pd.DataFrame) -> pd.DataFrame:
     frame = sources[_SOURCE_KEYS].assign(unit_parts=counts.to_numpy())
     return (frame.groupby(_SOURCE_KEYS, dropna=False, sort=True)["unit_parts"].sum()
             .reset_index())
+
+
+def subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
+    """Per-subcatchment method choice and parameter values from the layer's fields (or None)."""
+    return _subcatchment_attributes(project, subs)
 
 
 def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
