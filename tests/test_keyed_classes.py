@@ -290,3 +290,24 @@ def test_a_cover_tables_impervious_share_splits_the_units(tmp_path):
         "12,residential_quarter_acre,40\n")
     with pytest.raises(GisrunError, match=r"cover_units\.csv:line 3: sets other values"):
         load_project(project)
+
+
+def test_texture_classification_takes_the_tables_group_over_the_textures(tmp_path):
+    project = _keyed_tiny(tmp_path / "texture")
+    (project.parent / "units.csv").write_text(
+        "key,texture,hydrologic_soil_group\n101,loam,\n202,sandy loam,C\n")
+    edit_toml(project, 'classification = "hydrologic_soil_group"', 'classification = "texture"')
+    edit_toml(project, '[soil.codes]\n"1" = "A"\n"2" = "B"\n', 'attributes = "units.csv"\n')
+    result = run(load_project(project))
+    params = result.parameters[result.parameters["surface"] == "pervious"].set_index(
+        "soil_class")
+    # loam keeps its TR-55 (1986) App. A group B; sandy loam (A by texture) takes the table's C
+    assert params.loc[["loam"], "hydrologic_soil_group"].tolist() == ["B"]
+    assert params.loc[["sandy loam"], "hydrologic_soil_group"].tolist() == ["C"]
+    # Green-Ampt stays that of the texture: Rawls et al. (1983) sandy loam Ks 1.09 cm/h
+    assert params.loc[["sandy loam"], "ks_m_per_s"].iloc[0] == pytest.approx(1.09e-2 / 3600,
+                                                                             rel=1e-12)
+    sources = result.parameter_sources
+    cn = sources[(sources["parameter"] == "curve_number") & (sources["soil_class"]
+                                                              == "sandy loam")]
+    assert any("group C from units.csv" in s for s in cn["source"])
