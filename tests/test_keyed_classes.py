@@ -26,6 +26,8 @@ from gisrun import CAUTION, GisrunError, run  # noqa: E402
 from gisrun.present.layers import ponding_ranking  # noqa: E402
 from gisrun.present.report import ReportFigures, build_report  # noqa: E402
 from gisrun.config.project import load_project  # noqa: E402
+from gisrun.io.attribute_tables import read_attribute_table  # noqa: E402
+from gisrun.parameters.class_keys import keyed_classes  # noqa: E402
 
 GROUPS = {1: "A", 2: "B", 3: "C", 4: "D", 5: "B/D", 6: "C/D"}
 N_KEYS = 2000
@@ -311,3 +313,20 @@ def test_texture_classification_takes_the_tables_group_over_the_textures(tmp_pat
     cn = sources[(sources["parameter"] == "curve_number") & (sources["soil_class"]
                                                               == "sandy loam")]
     assert any("group C from units.csv" in s for s in cn["source"])
+
+
+def test_a_linearly_binned_raster_table_gets_its_keys_from_the_binning(tmp_path):
+    # GDAL's linear binning (GDALRasterAttributeTable Row0Min / BinSize attributes, no value
+    # column): row i holds the values from Row0Min + i * BinSize (GDAL raster attribute table
+    # documentation, GetLinearBinning)
+    side = tmp_path / "soil.tif.aux.xml"
+    side.write_text(
+        '<PAMDataset><PAMRasterBand band="1"><GDALRasterAttributeTable Row0Min="100" '
+        'BinSize="1" tableType="thematic"><FieldDefn index="0"><Name>hydrologic_soil_group'
+        '</Name><Type>2</Type><Usage>0</Usage></FieldDefn><Row index="0"><F>A</F></Row>'
+        '<Row index="1"><F>B/D</F></Row></GDALRasterAttributeTable></PAMRasterBand>'
+        '</PAMDataset>')
+    frame, rows, value = read_attribute_table(side)
+    assert value == "value" and rows == ["row 1", "row 2"]
+    keyed = keyed_classes(frame, key=value, kind="soil", where=side.name, row_names=rows)
+    assert keyed.codes == {100: "A", 101: "B/D"}
