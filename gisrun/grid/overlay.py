@@ -12,13 +12,18 @@ piece adds to each cell it crosses the exact area between the piece and the
 cell's right side (x is linear in y, so this is a closed form), and adds its
 whole height to every cell further right. A running sum along the row then
 gives each cell's covered fraction exactly (the accumulation used by exact
-area-coverage scan converters). Only cells touched by an edge are stored;
-between them the running sum is constant (0 outside, 1 inside), so interior
-cells are counted as runs read straight from the class raster. Work grows with
-the number of boundary cells plus covered cells, and subcatchments are handled
-in spatially compact chunks, each reading only its own raster window (in row
-bands when one window would be large), so memory does not grow with the
-raster.
+area-coverage scan converters). Compact polygons (bounding box at most about
+four times their area) run the sum over the span of cells each of their rows
+reaches, laid end to end, and add up share x cell by (polygon, class) in one
+pass, with no sort (:mod:`gisrun.grid.dense_sums`). Others (long thin or
+sprawling shapes) store only the cells an edge touches; between them the
+running sum is constant (0 outside, 1 inside), so interior cells are counted
+as runs read straight from the class raster (:mod:`gisrun.grid.sparse_sums`).
+The two give the same areas up to the order of float additions. Work grows
+with the number of boundary cells plus covered cells, and subcatchments are
+handled in spatially compact chunks, each reading only its own raster window
+(in row bands when one window would be large), so memory does not grow with
+the raster.
 
 Two rasters (soil and cover) on different grids: the computation runs on the
 finer grid (smaller cell); the coarser raster is sampled at each fine cell's
@@ -53,6 +58,7 @@ from ..errors import CRSError, InputError, RasterError
 from ..options import NODATA_RULES
 from .classes import ClassGrid
 from .coverage import cell_coverage
+from .dense_sums import dense_chunk_sums, dense_eligible
 from .fine_grid import NODATA_CLASS as _NODATA
 from .fine_grid import OUTSIDE_CLASS as _OUTSIDE
 from .fine_grid import UNSPECIFIED_COVER
@@ -153,15 +159,26 @@ def _class_sums(geoms: NDArray[Any], grid: _Grid, chunk_cells: int) -> tuple[NDA
     b = shapely.bounds(px)
     box = np.column_stack([np.floor(b[:, 1]), np.ceil(b[:, 3]), np.floor(b[:, 0]),
                            np.ceil(b[:, 2])]).astype(np.int64)  # r0, r1, c0, c1
+    dense = dense_eligible(px, box, chunk_cells)
     out: list[tuple[NDArray[Any], ...]] = []
     for idx in _compact_chunks(px, box, chunk_cells):
-        r0, r1 = box[idx, 0].min(), box[idx, 1].max()
-        c0, c1 = box[idx, 2].min(), box[idx, 3].max()
-        cov = cell_coverage(px[idx], origin=(float(c0), float(r0)))
-        local = _chunk_sums(cov, grid, len(idx), (int(r0), int(r1), int(c0), int(c1)), chunk_cells)
+        local = np.zeros((idx.size, grid.n_classes))
+        on, off = np.flatnonzero(dense[idx]), np.flatnonzero(~dense[idx])
+        if on.size:
+            local[on] = dense_chunk_sums(px[idx[on]], box[idx[on]], grid, chunk_cells)
+        if off.size:
+            local[off] = _sparse_sums(px[idx[off]], box[idx[off]], grid, chunk_cells)
         poly, cls = np.nonzero(local)
         out.append((idx[poly], cls, local[poly, cls]))
     return tuple(np.concatenate(parts) for parts in zip(*out, strict=True))
+
+
+def _sparse_sums(px: NDArray[Any], box: NDArray[np.int64], grid: _Grid, chunk_cells: int
+                 ) -> NDArray[np.float64]:
+    r0, r1 = box[:, 0].min(), box[:, 1].max()
+    c0, c1 = box[:, 2].min(), box[:, 3].max()
+    cov = cell_coverage(px, origin=(float(c0), float(r0)))
+    return _chunk_sums(cov, grid, len(px), (int(r0), int(r1), int(c0), int(c1)), chunk_cells)
 
 
 def _compact_chunks(px: NDArray[Any], box: NDArray[np.int64],
