@@ -54,7 +54,9 @@ from ..options import (
 from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_labels
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
+from .areal import AREAL_KINDS
 from .reader import TableReader
+from .storms import STORM_FILE_KEYS
 
 __all__ = [
     "PROJECT_FILE_NAMES",
@@ -176,6 +178,8 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         initial_abstraction_ratio=_declared(method, "initial_abstraction_ratio"),
         antecedent_condition=int(_declared(method, "antecedent_condition")),
         overlay_cache=top.path("overlay_cache", required=False),
+        storm_file_keys=tuple(dict.fromkeys(
+            [*STORM_FILE_KEYS, *(k for kind in AREAL_KINDS.values() for k in kind.file_keys)])),
     )
     _check_class_labels(file, project)
     return project

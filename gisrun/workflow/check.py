@@ -70,7 +70,7 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     subs = _attempt(problems, read_subcatchment_layer, project)
     soil = _attempt(problems, read_soil, project)
     cover = _attempt(problems, read_cover, project)
-    storms = _attempt(problems, read_storms, project)
+    storms = _attempt(problems, read_storms, project, subs)
     overrides = _attempt(problems, read_overrides, project)
     if subs is not None:
         _attempt(problems, check_overlaps, project, subs)

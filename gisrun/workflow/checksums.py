@@ -44,10 +44,9 @@ def input_checksums(project: Project,
         paths += files if files is not None else [named]
     if project.overrides:
         paths.append(Path(project.overrides))
-    for spec in project.storms:
-        for key in ("path", "idf_table"):
-            if isinstance(spec.get(key), str):
-                paths.append((project.base_dir / spec[key]).resolve())
+    for named in project.storm_files().values():  # a folder of records: each file in it
+        named = named.resolve()
+        paths += sorted(p for p in named.iterdir()) if named.is_dir() else [named]
     out = {}
     for path in paths:
         if path.is_file():

@@ -70,6 +70,10 @@ _BYTES_PER_UNIT_ROW = 400
 _BYTES_PER_CELL = 16
 #: Bytes per subcatchment besides (polygon geometry and per-polygon tables; measured ~27 kB).
 _BYTES_PER_SUBCATCHMENT = 32_000
+#: Areal rain: bytes per subcatchment, step and storm (the chunk's columns, kept with its task)
+#: and per unit and step of the storm being run (its rain per unit, the engine's checked copy
+#: and the frame its deduplication hashes).
+_BYTES_PER_AREAL_VALUE, _BYTES_PER_AREAL_UNIT_STEP = 8, 24
 
 
 @dataclass(frozen=True)
@@ -119,12 +123,14 @@ def plan_chunks(geoms: gpd.GeoSeries, max_per_chunk: int) -> list[np.ndarray]:
 
 
 def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int,
-                          load: ChunkLoad = ChunkLoad()) -> int:
+                          load: ChunkLoad = ChunkLoad(), *, areal_storms: int = 0) -> int:
     """Subcatchments per chunk whose working set stays within a third of the budget.
 
     A chunk's working set is its overlay window, one storm's engine arrays at a time and
     every storm's results until the chunk is written; with the load measured on the inputs
     the peak memory is set by the budget rather than by the raster or catchment size.
+    ``areal_storms`` storms with areal rain add their columns of the chunk and, while one
+    runs, a rain series per unit.
 
     Examples
     --------
@@ -139,6 +145,9 @@ def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int,
     per_sub = (units * steps * _BYTES_PER_UNIT_STEP
                + storms * (steps * _BYTES_PER_SERIES_ROW + units * _BYTES_PER_UNIT_ROW)
                + load.cells_per_subcatchment * _BYTES_PER_CELL + _BYTES_PER_SUBCATCHMENT)
+    if areal_storms:
+        per_sub += steps * (areal_storms * _BYTES_PER_AREAL_VALUE
+                            + units * _BYTES_PER_AREAL_UNIT_STEP)
     return int(np.clip(budget_mb * 1e6 * _CHUNK_SHARE // per_sub, 16, 50_000))
 
 
@@ -174,7 +183,8 @@ class ChunkTask:
     soil: ClassGrid
     cover: ClassGrid | None
     storms: tuple[Hyetograph, ...]
-    #: Each storm's rain per run step (resampled once for the whole run), m.
+    #: Each storm's rain per run step (resampled once for the whole run), m: ``(steps,)``, or
+    #: for areal rain ``(steps, subcatchments)``, this chunk's columns in its rows' order.
     rains: tuple[NDArray[np.float64], ...]
     overrides: pd.DataFrame | None = None
     keep_loss: bool = True

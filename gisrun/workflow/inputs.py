@@ -104,8 +104,12 @@ def no_cover_note(project: Project) -> str:
             f"with a land-cover raster so roofs, roads and other covers are priced as such")
 
 
-def read_storms(project: Project) -> tuple[Hyetograph, ...]:
-    """Build every storm of the project (design storms and hyetograph files).
+def read_storms(project: Project, subcatchments: gpd.GeoDataFrame | None = None
+                ) -> tuple[Hyetograph, ...]:
+    """Build every storm of the project (design storms, hyetograph files, areal rain).
+
+    Storms of areal rain (:data:`gisrun.config.areal.AREAL_KINDS`) need ``subcatchments``,
+    the layer as read.
 
     Raises
     ------
@@ -114,7 +118,8 @@ def read_storms(project: Project) -> tuple[Hyetograph, ...]:
     """
     where = f"{project.path.name}:[[storms]]"
     storms = tuple(storms_from_config(list(project.storms), base_dir=project.base_dir,
-                                      units=project.units, where=where))
+                                      units=project.units, where=where,
+                                      subcatchments=subcatchments))
     check_storm_names([h.name for h in storms], where)
     for i, h in enumerate(storms, start=1):  # before anything is resampled onto the run's step
         check_step_count(float(h.time_s[-1]), project.time_step_s, f"{where} {i} ({h.name})",
@@ -164,11 +169,12 @@ def read_inputs(project: Project) -> Inputs:
     """
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
+        subcatchments = read_subcatchment_layer(project)
         inputs = Inputs(
-            subcatchments=read_subcatchment_layer(project),
+            subcatchments=subcatchments,
             soil=read_soil(project),
             cover=read_cover(project),
-            storms=read_storms(project),
+            storms=read_storms(project, subcatchments),
             overrides=read_overrides(project),
         )
         warn_if_rain_scale_implausible(project, inputs.subcatchments, inputs.storms)

@@ -41,6 +41,7 @@ from .chunks import (
     split_overlay,
 )
 from .inputs import check_inputs_codes, read_inputs
+from .rain import chunk_rain, run_rain
 from .steps import compact_sources, overlay_inputs
 
 __all__ = ["KEEP_STEP_ARRAYS_BELOW", "Progress", "SeriesSink", "UnitSink", "run"]
@@ -128,9 +129,11 @@ def run(
     cells = keep_loss if cells is None else cells
     if keep_loss:  # a run small enough to keep its step arrays keeps its unit rows too
         unit_sink = None
-    rains = tuple(h.resample(project.time_step_s) for h in inputs.storms)
+    sub_ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
+    rains = tuple(run_rain(h, project.time_step_s, sub_ids) for h in inputs.storms)
     resampled = [note for h, rain in zip(inputs.storms, rains, strict=True)
-                 if (note := resampling_note(h, project.time_step_s, rain, project.units))]
+                 if (note := resampling_note(h, project.time_step_s,
+                                             rain if rain.ndim == 1 else None, project.units))]
     datasets = dataset_files(project)
     checksums = input_checksums(project, datasets)
     with warnings.catch_warnings(record=True) as refused:
@@ -184,8 +187,8 @@ def _tasks(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64], .
     overlays = (split_overlay(cached, inputs.subcatchments, chunks) if cached is not None
                 else [None] * len(chunks))
     return [ChunkTask(i, project, inputs.subcatchments.iloc[rows], inputs.soil, inputs.cover,
-                      inputs.storms, rains, inputs.overrides, keep_loss=keep_loss, cells=cells,
-                      overlay=overlay)
+                      inputs.storms, tuple(chunk_rain(r, rows) for r in rains),
+                      inputs.overrides, keep_loss=keep_loss, cells=cells, overlay=overlay)
             for i, (rows, overlay) in enumerate(zip(chunks, overlays, strict=True))]
 
 
@@ -213,8 +216,11 @@ def _chunk_size(project: Project, inputs: Inputs, n_steps: int, cached: Overlay 
     """
     subs = inputs.subcatchments
 
+    areal = sum(h.areal is not None for h in inputs.storms)
+
     def size(load: ChunkLoad) -> int:
-        return chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms), load)
+        return chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms), load,
+                                     areal_storms=areal)
 
     cells = _cells_per_subcatchment(inputs)
     if cached is not None:
