@@ -13,13 +13,14 @@ import pandas as pd
 import pyogrio
 import pytest
 
-from gisrun import load_project, read_inputs, run, write_outputs
+from gisrun import load_project, read_inputs, run, write_extras, write_outputs
 from gisrun.config.areal import AREAL_KINDS, ArealKind
 from gisrun.config.storms import storm_from_config
 from gisrun.errors import StormError
 from gisrun.storm import ArealRain, Hyetograph, areal_storm, weighted_mean
 from gisrun.storm.areal import interpolate_columns
 from gisrun.workflow.chunks import chunk_size_for_budget
+from gisrun.write.extras import ExtrasOptions
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
@@ -179,3 +180,17 @@ def test_an_areal_kind_is_read_from_the_project_file(flat_kind, tmp_path):
     with pytest.raises(StormError, match="needs the subcatchment layer"):
         storm_from_config({"kind": "flat_rain", "depth_mm": 2, "label": "x"},
                           base_dir=tmp_path, units=project.units, where="t")
+
+
+def test_areal_storm_gets_a_rain_map_and_weights_in_run_info(demo, tmp_path):
+    project, inputs = demo
+    h = inputs.storms[0]
+    storm = _uniform_areal(inputs, lambda i: h.depth_m * (1.0 + int(i[-1]) % 3))
+    result = run(project, inputs=dataclasses.replace(inputs, storms=(storm,)))
+    gpkg = write_outputs(result, output=tmp_path / "areal.gpkg")
+    made = write_extras(result, gpkg, options=ExtrasOptions(rasters=False))
+    key = f"rain_depth_{result.storms[0].file_stem}"
+    assert made.maps[key].is_file() and made.maps[key].stat().st_size > 10_000
+    assert "Rain depth per subcatchment" in made.report.read_text(encoding="utf-8")
+    info = pyogrio.read_dataframe(gpkg, layer="run_info")
+    assert "one invented gauge" in info.loc[info["key"] == "areal_rain", "value"].iloc[0]
