@@ -134,3 +134,6 @@ class RunResult:
     #: The first pervious units to pond under each storm (SI columns), for a report on a
     #: run whose unit rows were streamed; None when ``storms[k].units`` are kept.
     unit_ranking_top: pd.DataFrame | None = None
+    #: Name of the Parquet file beside the GeoPackage that holds the excess series (set by the
+    #: writer that wrote it); None when they are the GeoPackage's ``excess_series`` table.
+    series_file: str | None = None

@@ -33,7 +33,7 @@ from .units import SYSTEMS
 
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
-           "LUMPED_PARAMETER_SETS", "CHOICES"]
+           "LUMPED_PARAMETER_SETS", "SERIES_STORES", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -105,12 +105,16 @@ UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
 #: (root searches), the area-weighted set only, or none.
 LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
                                 what="lumped parameters choice", default="auto")
+#: Where a run's excess-rainfall series go (``[project] series``): the GeoPackage's
+#: ``excess_series`` table, a Parquet file beside it, or "auto" (by size, see
+#: :data:`gisrun.workflow.series.SERIES_IN_GEOPACKAGE_BELOW`).
+SERIES_STORES = Choices(("auto", "geopackage", "parquet"), what="series store", default="auto")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
-    "lumped_parameters": LUMPED_PARAMETER_SETS,
+    "lumped_parameters": LUMPED_PARAMETER_SETS, "series": SERIES_STORES,
 }
 
 

@@ -94,6 +94,8 @@ class Project:
     overlay_cache: Path | None = None
     #: ``[[storms]]`` keys whose value names an input file or folder (from the storm kinds).
     storm_file_keys: tuple[str, ...] = ("path", "idf_table")
+    #: Where the excess series go: ``"auto"``, ``"geopackage"`` or ``"parquet"``.
+    series: str = "auto"
 
     @property
     def base_dir(self) -> Path:

@@ -300,6 +300,8 @@ CASES: dict[str, Case] = {
     "unknown lumped parameter choice": Case(
         _toml("[method]", '[method]\nlumped_parameters = "area_weightd"'),
         re.compile(r"\[method\]\.lumped_parameters.*did you mean 'area_weighted'")),
+    "unknown series store": Case(_toml("time_step_min = 5", 'time_step_min = 5\nseries = "parqet"'),
+                                 re.compile(r"\[project\]\.series.*did you mean 'parquet'")),
     # --- issue 14: inputs that stopped with an internal error or a misleading line -----------
     "south-up soil raster": Case(_soil(soil_codes()[::-1], transform=_SOUTH_UP),
                                  re.compile(r"soil\.tif.*south-up")),

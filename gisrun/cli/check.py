@@ -16,7 +16,7 @@ __all__ = ["check"]
 @project_argument
 def check(project: Path) -> None:
     """Check every input of PROJECT without running it; report each problem on one line."""
-    problems, notes = check_project(project)
+    problems, notes, outputs = check_project(project)
     for note in notes:
         click.echo(f"gisrun: warning: {note}", err=True)
     for problem in problems:
@@ -24,4 +24,6 @@ def check(project: Path) -> None:
     if problems:
         click.echo(f"{len(problems)} problem(s) found.", err=True)
         raise click.exceptions.Exit(2)
+    for line in outputs:
+        click.echo(line)
     click.echo("No problems found.")

@@ -49,6 +49,8 @@ def as_dict(result: RunResult, written: Path) -> dict[str, Any]:
     """A JSON-ready summary of a run."""
     return {
         "output": str(written),
+        "excess_series": (str(written.with_name(result.series_file)) if result.series_file
+                          else f"{written}:excess_series"),
         "subcatchments": int(len(result.subcatchments)),
         "units": int(result.unit_count),
         "loss_method": result.project.method,
@@ -78,6 +80,9 @@ def print_summary(result: RunResult, written: Path) -> None:
     for note in result.warnings:
         console.print(f"[yellow]warning:[/yellow] {note}", highlight=False)
     console.print(f"Output written to {written}", highlight=False)
+    if result.series_file is not None:
+        console.print(f"Excess series in {written.with_name(result.series_file)} (Parquet; "
+                      f"pandas.read_parquet reads it)", highlight=False)
 
 
 _LABELS = {

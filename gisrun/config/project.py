@@ -47,6 +47,7 @@ from ..options import (
     DUAL_GROUP_CONDITIONS,
     LUMPED_PARAMETER_SETS,
     NODATA_RULES,
+    SERIES_STORES,
     UNIT_SYSTEMS,
     Choices,
     check_geopackage_name,
@@ -81,7 +82,8 @@ _REQUIRED = ("subcatchments", "soil")
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
          "storms", "rain_scale"),
-    "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache"),
+    "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache",
+                "series"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
                       "max_overlap_fraction"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
@@ -180,6 +182,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         overlay_cache=top.path("overlay_cache", required=False),
         storm_file_keys=tuple(dict.fromkeys(
             [*STORM_FILE_KEYS, *(k for kind in AREAL_KINDS.values() for k in kind.file_keys)])),
+        series=top.choice("series", SERIES_STORES),
     )
     _check_class_labels(file, project)
     return project

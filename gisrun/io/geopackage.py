@@ -47,6 +47,7 @@ def write_geopackage(
     layers: Mapping[str, pd.DataFrame | gpd.GeoDataFrame],
     *,
     overwrite: bool = False,
+    outputs: OutputSet | None = None,
 ) -> Path:
     """Write several layers (spatial or plain tables) into one new GeoPackage, atomically.
 
@@ -59,6 +60,8 @@ def write_geopackage(
         table without geometry.
     overwrite : bool
         Replace an existing file.
+    outputs : OutputSet, optional
+        Stage the file in this set, to be moved in with its other outputs.
 
     Returns
     -------
@@ -66,7 +69,7 @@ def write_geopackage(
         ``target``.
     """
     target = Path(target)
-    with atomic_target(target, overwrite=overwrite) as tmp:
+    with atomic_target(target, overwrite=overwrite, outputs=outputs) as tmp:
         for name, frame in layers.items():
             _write_layer(tmp, name, frame)
     return target

@@ -11,7 +11,9 @@ Layers of the output GeoPackage:
     The same figures for every storm in one table (column ``storm``).
 ``excess_series``
     Long table: subcatchment, storm, step end time, rain, infiltration and
-    excess depth in the step and as intensities.
+    excess depth in the step and as intensities; left out when the run wrote
+    them to a Parquet file beside the GeoPackage (``RunResult.series_file``,
+    named in ``run_info``).
 ``unit_results``, ``unit_parameters``, ``parameter_sources``, ``coverage``
     Per soil x cover unit results and parameters, where each parameter came
     from, and nodata / outside-raster area per subcatchment.
@@ -128,6 +130,8 @@ def layer_builders(result: RunResult, *, skip: tuple[str, ...] = ()
         skip = (*skip, "rain_weights")
     if result.parameters is None:  # the unit rows were streamed into the output by the run
         skip = (*skip, *UNIT_LAYERS)
+    if result.series_file is not None:  # the series went to a Parquet file beside it
+        skip = (*skip, "excess_series")
     if result.lumped_parameters.empty:  # not made ([method] lumped_parameters, composite)
         skip = (*skip, "lumped_parameters")
     return {name: make for name, make in builders.items() if name not in skip}
@@ -246,6 +250,16 @@ def _area_rows(result: RunResult) -> list[tuple[str, str]]:
             for m, n in counts.items()]
 
 
+def _series_rows(result: RunResult) -> list[tuple[str, str]]:
+    """Where the excess series are when they are not this GeoPackage's ``excess_series``."""
+    if result.series_file is None:
+        return []
+    return [("excess_series_file", result.series_file),
+            ("excess_series_format", "Parquet, beside this GeoPackage; read it with "
+             f"pandas.read_parquet(\"{result.series_file}\") (same columns as an "
+             "excess_series table)")]
+
+
 def run_info(result: RunResult) -> pd.DataFrame:
     """Key-value table describing the run (provenance), one row per fact."""
     project = result.project
@@ -268,6 +282,7 @@ def run_info(result: RunResult) -> pd.DataFrame:
         ("subcatchment_count", str(len(result.subcatchments))),
         ("unit_count", str(result.unit_count)),
         *_area_rows(result),
+        *_series_rows(result),
     ]
     depth_unit = project.units.depth
     for storm in result.storms:

@@ -18,6 +18,7 @@ from ..config.project import load_project
 from ..errors import GisrunError, GisrunWarning, OutputError
 from ..io.files import refuse_inputs_among
 from ..io.raster import ClassRaster
+from ..io.series_file import series_path, series_store
 from ..model import Inputs
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
@@ -33,12 +34,12 @@ from .inputs import (
 )
 from .steps import overlay_inputs, prepare_parameters
 
-__all__ = ["check_project", "check_output_path"]
+__all__ = ["check_project", "check_output_path", "output_lines"]
 
 T = TypeVar("T")
 
 
-def check_project(path: str | Path) -> tuple[list[str], list[str]]:
+def check_project(path: str | Path) -> tuple[list[str], list[str], list[str]]:
     """Check a project's inputs without running it.
 
     Parameters
@@ -52,26 +53,36 @@ def check_project(path: str | Path) -> tuple[list[str], list[str]]:
         One line per problem (empty when the project can run).
     notes : list of str
         Warnings raised while checking.
+    outputs : list of str
+        Where a run would write: the GeoPackage, and where the excess series go (its
+        ``excess_series`` table or a Parquet file beside it, and how to read that).
     """
     problems: list[str] = []
+    outputs: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
         project = _attempt(problems, load_project, path)
         if project is not None:  # the output a run would write must not be an input
             _attempt(problems, refuse_inputs_among, [project.output], project.input_files())
-        later = _check_inputs(project, problems) if project is not None else []
+        later = _check_inputs(project, problems, outputs) if project is not None else []
     notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
-    return problems, list(dict.fromkeys([*notes, *later]))
+    return problems, list(dict.fromkeys([*notes, *later])), outputs
 
 
-def _check_inputs(project: Project, problems: list[str]) -> list[str]:
-    """Run every reader and the overlay and parameter steps; return their notes."""
+def _check_inputs(project: Project, problems: list[str], outputs: list[str]) -> list[str]:
+    """Run every reader and the overlay and parameter steps; return their notes.
+
+    Where the run would write is added to ``outputs`` once the subcatchments and storms
+    (which decide where the series go) have been read.
+    """
     _attempt(problems, check_output_path, project.output)
     subs = _attempt(problems, read_subcatchment_layer, project)
     soil = _attempt(problems, read_soil, project)
     cover = _attempt(problems, read_cover, project)
     storms = _attempt(problems, read_storms, project, subs)
     overrides = _attempt(problems, read_overrides, project)
+    if subs is not None and storms is not None:
+        outputs += output_lines(project, len(subs), storms)
     if subs is not None:
         _attempt(problems, check_overlaps, project, subs)
         if storms is not None:
@@ -92,6 +103,21 @@ def _check_inputs(project: Project, problems: list[str]) -> list[str]:
     prepared = _attempt(problems, prepare_parameters, project, inputs, overlaid[0])
     notes = [*overlaid[2], *(prepared[2] if prepared is not None else [])]
     return [*storm_notes, *(str(note) for note in notes)]
+
+
+def output_lines(project: Project, n_subcatchments: int,
+                 storms: tuple[Hyetograph, ...]) -> list[str]:
+    """Where a run of ``project`` writes its GeoPackage and its excess series."""
+    gpkg = project.output
+    rows = n_subcatchments * sum(len(h.resample(project.time_step_s)) for h in storms)
+    lines = [f"output: {gpkg}"]
+    if series_store(project.series, rows) == "geopackage":
+        lines.append(f"excess series: {rows:,} rows in {gpkg.name}, table excess_series")
+    else:
+        parquet = series_path(gpkg)
+        lines.append(f"excess series: {rows:,} rows in {parquet} (Parquet; read with "
+                     f"pandas.read_parquet(\"{parquet.name}\"))")
+    return lines
 
 
 def _resampling_notes(project: Project, storms: tuple[Hyetograph, ...]) -> list[str]:

@@ -15,6 +15,7 @@ from __future__ import annotations
 import dataclasses
 import os
 from collections.abc import Callable, Iterable
+from contextlib import nullcontext
 from pathlib import Path
 
 import pandas as pd
@@ -26,6 +27,7 @@ from ..io import geopackage
 from ..io.commit import OutputSet, output_set
 from ..io.files import new_folders_removed_on_failure, refuse_inputs_among
 from ..io.geopackage import LayerCheck
+from ..io.series_file import SeriesFile, series_metadata, series_path, series_store
 from ..model import Inputs, RunResult
 from ..present.layers import (
     REPORT_TOP,
@@ -39,7 +41,7 @@ from ..units import present_frame, si_frame
 from .inputs import read_inputs
 from .pipeline import KEEP_STEP_ARRAYS_BELOW, Progress, run
 
-__all__ = ["run_and_write", "Extras"]
+__all__ = ["run_and_write", "series_rows", "Extras"]
 
 #: ``extras(result, gpkg_being_built, outputs)``: stage more outputs to move in with the GeoPackage.
 Extras = Callable[[RunResult, Path, OutputSet], object]
@@ -98,7 +100,8 @@ def run_and_write(
     say("reading inputs")
     inputs = read_inputs(project)
     large = len(inputs.subcatchments) >= KEEP_STEP_ARRAYS_BELOW
-    names = ["excess_series", "run_info", *UNIT_LAYERS,
+    parquet = series_store(project.series, series_rows(project, inputs)) == "parquet"
+    names = [*([] if parquet else ["excess_series"]), "run_info", *UNIT_LAYERS,
              *(storm_layer_name(h.name) for h in inputs.storms)]
     with new_folders_removed_on_failure(target.parent), \
             output_set() as outputs:  # the GeoPackage and the extras are moved in together
@@ -108,22 +111,46 @@ def run_and_write(
             if into is not None:
                 check = _keeping_the_subcatchments(project, Path(into), check)
             check(names)  # refuse a taken layer name before the work, not after it
-            result = _run_into(project, inputs, tmp, check, large=large, progress=progress,
-                               workers=workers, scheduler=scheduler, cells=cells)
+            series = _series_file(project, target, outputs, overwrite) if parquet else None
+            result = _run_into(project, inputs, tmp, check, large=large, series=series,
+                               progress=progress, workers=workers, scheduler=scheduler,
+                               cells=cells)
         if extras is not None:
             extras(result, tmp, outputs)
         say("moving outputs into place")
     return result, target
 
 
+def series_rows(project: Project, inputs: Inputs) -> int:
+    """Rows of the run's excess series: subcatchments x steps, summed over the storms."""
+    steps = sum(len(h.resample(project.time_step_s)) for h in inputs.storms)
+    return len(inputs.subcatchments) * steps
+
+
+def _series_file(project: Project, target: Path, outputs: OutputSet,
+                 overwrite: bool) -> tuple[Path, SeriesFile]:
+    """The Parquet series file beside ``target``, staged in ``outputs`` (not yet opened)."""
+    final = series_path(target)
+    refuse_inputs_among([final], project.input_files())
+    tmp = outputs.file(final, overwrite=overwrite)
+    return final, SeriesFile(tmp, series_metadata(project, target))
+
+
 def _run_into(project: Project, inputs: Inputs, tmp: Path, check: LayerCheck, *, large: bool,
-              progress: Progress | None, workers: int | None, scheduler: str | None,
-              cells: bool) -> RunResult:
-    """Run and write every layer into the GeoPackage being built at ``tmp``."""
-    sinks = _Sinks(tmp, project) if large else None
-    result = run(project, inputs=inputs, progress=progress, workers=workers,
-                 scheduler=scheduler, series_sink=sinks and sinks.series,
-                 unit_sink=sinks and sinks.units, keep_loss=not large, cells=cells)
+              series: tuple[Path, SeriesFile] | None, progress: Progress | None,
+              workers: int | None, scheduler: str | None, cells: bool) -> RunResult:
+    """Run and write every layer into the GeoPackage being built at ``tmp``.
+
+    With ``series`` (the Parquet file's final path and its writer) the excess series go
+    into that file chunk by chunk, whatever the run's size.
+    """
+    sinks = _Sinks(tmp, project, series[1] if series else None) if large or series else None
+    with series[1] if series else nullcontext():
+        result = run(project, inputs=inputs, progress=progress, workers=workers,
+                     scheduler=scheduler, series_sink=sinks and sinks.series,
+                     unit_sink=sinks and sinks.units, keep_loss=not large, cells=cells)
+    if series is not None:
+        result = dataclasses.replace(result, series_file=series[0].name)
     if progress is not None:
         progress("writing outputs")
     if result.parameters is None:  # unit rows streamed: rank them inside the file
@@ -155,10 +182,10 @@ def _keeping_the_subcatchments(project: Project, into: Path, check: LayerCheck) 
 
 
 class _Sinks:
-    """Append a large run's rows to the GeoPackage being built, chunk by chunk."""
+    """Append a large run's rows to the GeoPackage being built (or the series file), by chunk."""
 
-    def __init__(self, path: Path, project: Project) -> None:
-        self.path, self.system = path, project.units
+    def __init__(self, path: Path, project: Project, series: SeriesFile | None) -> None:
+        self.path, self.system, self.file = path, project.units, series
         self.started: set[str] = set()
 
     def _append(self, layer: str, frame: pd.DataFrame) -> None:
@@ -166,7 +193,11 @@ class _Sinks:
         self.started.add(layer)
 
     def series(self, _: int, name: str, series: pd.DataFrame) -> None:
-        self._append("excess_series", series_layer(series, name, self.system))
+        frame = series_layer(series, name, self.system)
+        if self.file is not None:
+            self.file.write(frame)
+        else:
+            self._append("excess_series", frame)
 
     def units(self, params: pd.DataFrame, units: list[tuple[str, pd.DataFrame]]) -> None:
         self._append("unit_parameters", present_frame(params, self.system))

@@ -19,7 +19,9 @@ opened and no loss is computed here. The folder is built in a temporary folder
 beside the target and moved into place at the end, so a failed run leaves either
 the old folder or none, never half a folder. A large run that streamed its
 excess series into the GeoPackage has its series copied from there in batches
-(the one thing read back, from the run's own output).
+(the one thing read back, from the run's own output). A run that wrote its series
+to a Parquet file beside the GeoPackage (``RunResult.series_file``) gets no CSV copy:
+the file is the series, and one ``pandas.read_parquet`` call reads it.
 """
 
 from __future__ import annotations
@@ -156,7 +158,8 @@ def write_deliverables(result: RunResult, folder: Path, *,
     if options.model_inputs:
         say("model inputs", 0, 1)
         out.lumped_parameters = _write_lumped_csvs(result, folder)
-        out.excess_series = _write_series_csv(result, folder / "excess_series.csv", gpkg)
+        if result.series_file is None:  # a Parquet series file is not copied to CSV
+            out.excess_series = _write_series_csv(result, folder / "excess_series.csv", gpkg)
         say("model inputs", 1, 1)
     if options.maps or options.report:
         figures = write_figures(result, folder / "maps", plot_ids=plots,

@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import dataclasses
 from pathlib import Path
 
-from ..io.files import refuse_inputs_among
+from ..io.commit import output_set
+from ..io.files import atomic_target, refuse_inputs_among
 from ..io.geopackage import write_geopackage
+from ..io.series_file import SeriesFile, series_metadata, series_path, series_store
 from ..model import RunResult
-from ..present.layers import build_layers
+from ..present.layers import build_layers, series_layer
 
 __all__ = ["write_outputs"]
 
@@ -16,6 +19,12 @@ def write_outputs(
     result: RunResult, *, output: str | Path | None = None, overwrite: bool = False
 ) -> Path:
     """Write the run's GeoPackage (atomically); returns its path.
+
+    When the project's ``series`` choice puts the excess series in a Parquet file
+    (``"parquet"``, or ``"auto"`` for a run of
+    :data:`gisrun.io.series_file.SERIES_IN_GEOPACKAGE_BELOW` rows or more), that file is
+    written beside the GeoPackage (``<stem>.series.parquet``) and the two are moved in
+    together.
 
     Parameters
     ----------
@@ -41,4 +50,17 @@ def write_outputs(
                          "them; write large runs with run_and_write")
     target = Path(output) if output else result.project.output
     refuse_inputs_among([target], result.project.input_files())
-    return write_geopackage(target, build_layers(result), overwrite=overwrite)
+    rows = len(result.subcatchments) * sum(len(s.rain_per_step_m) for s in result.storms)
+    if series_store(result.project.series, rows) == "geopackage":
+        return write_geopackage(target, build_layers(result), overwrite=overwrite)
+    final = series_path(target)
+    refuse_inputs_among([final], result.project.input_files())
+    result = dataclasses.replace(result, series_file=final.name)
+    system = result.project.units
+    with output_set() as outputs:
+        write_geopackage(target, build_layers(result), overwrite=overwrite, outputs=outputs)
+        with atomic_target(final, overwrite=overwrite, outputs=outputs) as tmp, \
+                SeriesFile(tmp, series_metadata(result.project, target)) as store:
+            for storm in result.storms:
+                store.write(series_layer(storm.series, storm.name, system))
+    return target
