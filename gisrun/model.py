@@ -72,6 +72,8 @@ class Inputs:
     overrides: pd.DataFrame | None = None
     #: Warnings raised while reading (repaired polygons, implausible storms), as text.
     notes: tuple[str, ...] = ()
+    #: The impervious-share grid (``[impervious] path``), if the project names one.
+    impervious: ClassGrid | None = None
 
 
 @dataclass(frozen=True)

@@ -33,7 +33,8 @@ from .units import SYSTEMS
 
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
-           "LUMPED_PARAMETER_SETS", "SERIES_STORES", "CHOICES"]
+           "LUMPED_PARAMETER_SETS", "SERIES_STORES", "IMPERVIOUS_SCALES", "RUNON_TARGETS",
+           "RAIN_GRID_FORMATS", "RAIN_TIME_MARKS", "RAIN_VALUES", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -109,12 +110,28 @@ LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
 #: ``excess_series`` table, a Parquet file beside it, or "auto" (by size, see
 #: :data:`gisrun.workflow.series.SERIES_IN_GEOPACKAGE_BELOW`).
 SERIES_STORES = Choices(("auto", "geopackage", "parquet"), what="series store", default="auto")
+#: What the values of an impervious-share grid are (``[impervious] scale``): no default, the
+#: project file must say.
+IMPERVIOUS_SCALES = Choices(("percent", "fraction"), what="impervious scale", default="percent")
+#: Where disconnected impervious runoff runs on (``[impervious] runon_to``).
+RUNON_TARGETS = Choices(("unit", "subcatchment"), what="run-on target", default="unit")
+#: How a stack of rain grids is stored (``[[storms]] format`` of a rain grid; inferred from the
+#: path when not given).
+RAIN_GRID_FORMATS = Choices(("netcdf", "geotiff", "geotiff_folder"), what="rain grid format",
+                            default="netcdf")
+#: What a rain grid's time marks: the end of its step or the start (``[[storms]] time_marks``).
+RAIN_TIME_MARKS = Choices(("end", "start"), what="time mark", default="end")
+#: What a rain grid's values are (``[[storms]] rain_is``; inferred from the unit when not given).
+RAIN_VALUES = Choices(("depth", "intensity"), what="kind of rain value", default="depth")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
     "lumped_parameters": LUMPED_PARAMETER_SETS, "series": SERIES_STORES,
+    "impervious_scale": IMPERVIOUS_SCALES, "runon_to": RUNON_TARGETS,
+    "rain_grid_format": RAIN_GRID_FORMATS, "time_marks": RAIN_TIME_MARKS,
+    "rain_is": RAIN_VALUES,
 }
 
 

@@ -7,13 +7,13 @@ module holds only the types, so compute and result modules can name a
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from .units import UnitSystem
 
-__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "Project"]
+__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "ImperviousSource", "Project"]
 
 
 @dataclass(frozen=True)
@@ -51,6 +51,45 @@ class CoverSource:
     path: Path
     codes: dict[int, str]
     crs: str | None = None
+
+
+@dataclass(frozen=True)
+class ImperviousSource:
+    """The ``[impervious]`` table: an impervious-share grid and disconnected impervious area.
+
+    Attributes
+    ----------
+    path : Path or None
+        Impervious-share raster; None: each cover's tabulated share is used.
+    scale : str or None
+        What the grid's values are: ``"percent"`` (0-100) or ``"fraction"`` (0-1).
+    disconnected_fraction : float or None
+        Project-wide share of impervious area draining onto pervious ground (0-1).
+    disconnected_field : str or None
+        Subcatchment field giving that share per subcatchment (blank: the next source).
+    disconnected_by_cover : dict of str to float
+        That share per cover class.
+    runon_to : str
+        Where disconnected runoff runs on: ``"unit"`` (the pervious part of the same
+        soil x cover unit) or ``"subcatchment"`` (all its pervious parts, by area).
+    compare_connected : bool
+        Also run with every impervious area connected and report the difference.
+    """
+
+    path: Path | None = None
+    scale: str | None = None
+    crs: str | None = None
+    disconnected_fraction: float | None = None
+    disconnected_field: str | None = None
+    disconnected_by_cover: dict[str, float] = field(default_factory=dict)
+    runon_to: str = "unit"
+    compare_connected: bool = False
+
+    @property
+    def disconnects(self) -> bool:
+        """Whether any disconnected share is stated."""
+        return (self.disconnected_fraction is not None or self.disconnected_field is not None
+                or bool(self.disconnected_by_cover))
 
 
 @dataclass(frozen=True)
@@ -96,6 +135,8 @@ class Project:
     storm_file_keys: tuple[str, ...] = ("path", "idf_table")
     #: Where the excess series go: ``"auto"``, ``"geopackage"`` or ``"parquet"``.
     series: str = "auto"
+    #: The ``[impervious]`` table; None when the project has none.
+    impervious: ImperviousSource | None = None
 
     @property
     def base_dir(self) -> Path:
@@ -114,6 +155,8 @@ class Project:
             files["cover raster"] = self.cover.path
         if self.overrides is not None:
             files["parameter override file"] = self.overrides
+        if self.impervious is not None and self.impervious.path is not None:
+            files["impervious raster"] = self.impervious.path
         files.update(self.storm_files())
         return files
 

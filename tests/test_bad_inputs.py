@@ -92,6 +92,14 @@ def _with_overrides(text: str) -> Callable[[Path], None]:
     return write
 
 
+def _append(text: str) -> Callable[[Path], None]:
+    return lambda d: (d / "gisrun.toml").write_text((d / "gisrun.toml").read_text() + "\n" + text)
+
+
+def _imp_grid(values: np.ndarray, **kw: object) -> Callable[[Path], None]:
+    return lambda d: write_raster(d / "imp.tif", values.astype(np.float32), **kw)
+
+
 def _both(*steps: Callable[[Path], object]) -> Callable[[Path], None]:
     def run_all(d: Path) -> None:
         for step in steps:
@@ -354,6 +362,31 @@ CASES: dict[str, Case] = {
     "curve number Ia/S of 0.1": Case(
         _with_overrides("soil_class,initial_abstraction_ratio\nA,0.1\n"),
         re.compile(r"over\.csv:line 2:initial_abstraction_ratio: value 0\.1")),
+    # --- issue 18: impervious-share grid ------------------------------------------------------
+    "impervious grid without its scale": Case(
+        _append('[impervious]\npath = "imp.tif"\n'),
+        re.compile(r"gisrun\.toml:\[impervious\]\.scale: is missing.*\"percent\"")),
+    "impervious scale misspelt": Case(
+        _append('[impervious]\npath = "imp.tif"\nscale = "percnt"\n'),
+        re.compile(r"\[impervious\]\.scale.*did you mean 'percent'")),
+    "impervious grid missing": Case(
+        _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n'),
+        re.compile(r"imp\.tif.*file not found")),
+    "impervious value above 100 percent": Case(
+        _both(_imp_grid(np.full((10, 10), 140.0)),
+              _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n')),
+        re.compile(r"imp\.tif.*value 140, outside 0-100 for \[impervious\] scale = 'percent'")),
+    "impervious percent grid read as a fraction": Case(
+        _both(_imp_grid(np.full((10, 10), 40.0)),
+              _append('[impervious]\npath = "imp.tif"\nscale = "fraction"\n')),
+        re.compile(r"imp\.tif.*value 40, outside 0-1")),
+    "impervious grid mostly nodata": Case(
+        _both(_imp_grid(np.where(np.arange(10)[None, :] < 4, -9.0, 30.0) + np.zeros((10, 1)),
+                        nodata=-9.0),
+              _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n')),
+        re.compile(r"imp\.tif.*subcatchments S1 \(80\.0%\) above \[nodata\] max_fraction")),
+    "empty impervious table": Case(_append('[impervious]\nrunon_to = "unit"\n'),
+                                   re.compile(r"\[impervious\]: names neither")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),

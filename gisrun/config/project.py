@@ -56,6 +56,7 @@ from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_l
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
 from .areal import AREAL_KINDS
+from .impervious import IMPERVIOUS_KEYS, check_impervious_combination, read_impervious
 from .reader import TableReader
 from .storms import STORM_FILE_KEYS
 
@@ -81,7 +82,7 @@ _REQUIRED = ("subcatchments", "soil")
 #: Keys of each table ("" = the top level); [[storms]] keys come from the storm kinds.
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
-         "storms", "rain_scale"),
+         "storms", "rain_scale", "impervious"),
     "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache",
                 "series"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
@@ -94,6 +95,7 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
                "antecedent_condition", "lumped_parameters"),
     "parameters": ("overrides",),
     "rain_scale": ("field",),
+    "impervious": IMPERVIOUS_KEYS,
 }
 
 
@@ -183,8 +185,12 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         storm_file_keys=tuple(dict.fromkeys(
             [*STORM_FILE_KEYS, *(k for kind in AREAL_KINDS.values() for k in kind.file_keys)])),
         series=top.choice("series", SERIES_STORES),
+        impervious=read_impervious(read["impervious"], present="impervious" in raw),
     )
     _check_class_labels(file, project)
+    check_impervious_combination(project.impervious, combine=project.combine,
+                                 compare_composite=project.compare_composite,
+                                 where=method.where())
     return project
 
 

@@ -50,6 +50,9 @@ def overlay_key(project: Any, file_digests: Sequence[str]) -> str:
         "cover": repr(project.cover),
         "nodata": [project.nodata_rule, project.max_nodata_fraction],
     }
+    impervious = getattr(project, "impervious", None)
+    if impervious is not None and impervious.path is not None:  # the units carry its shares
+        parts["impervious"] = [str(impervious.path), impervious.scale, impervious.crs]
     text = json.dumps(parts, sort_keys=True, default=str)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
 

@@ -28,7 +28,7 @@ from rasterio.windows import Window, from_bounds
 from ..crs import checked_crs
 from ..errors import GisrunWarning, RasterError
 
-__all__ = ["ClassRaster", "read_class_raster"]
+__all__ = ["ClassRaster", "read_class_raster", "read_value_raster"]
 
 #: Cells read per block when scanning a whole raster (about 64 MB of int64).
 SCAN_BLOCK_CELLS = 8_000_000
@@ -205,7 +205,8 @@ def _is_nodata(vals: NDArray[Any], nodata: float | None) -> NDArray[np.bool_]:
 
 
 def read_class_raster(path: str | Path, *, codes: Mapping[int, str] | None = None,
-                      where: str | None = None, crs: object = None, band: int = 1) -> ClassRaster:
+                      where: str | None = None, crs: object = None, band: int = 1,
+                      whole_numbers: bool = True) -> ClassRaster:
     """Open a categorical raster, check it, and describe its grid.
 
     Parameters
@@ -220,6 +221,8 @@ def read_class_raster(path: str | Path, *, codes: Mapping[int, str] | None = Non
         CRS to use when the file has none.
     band : int
         Band number (1-based).
+    whole_numbers : bool
+        Check that a float band holds whole numbers only (class codes).
 
     Returns
     -------
@@ -254,9 +257,19 @@ def read_class_raster(path: str | Path, *, codes: Mapping[int, str] | None = Non
                              res=(abs(t.a), abs(t.e)), where=name, dtype=src.dtypes[band - 1])
         _warn_if_untiled(src, band, name)
     _check_nodata_not_a_code(raster, codes)
-    if np.dtype(raster.dtype).kind == "f":
+    if whole_numbers and np.dtype(raster.dtype).kind == "f":
         _check_integer_values(raster, codes)
     return raster
+
+
+def read_value_raster(path: str | Path, *, where: str | None = None, crs: object = None,
+                      band: int = 1) -> ClassRaster:
+    """Open a raster of measured values (an impervious share), check its grid, read nothing.
+
+    The same grid checks as :func:`read_class_raster`, without asking for whole numbers;
+    the values are checked where they are read (:mod:`gisrun.grid.impervious`).
+    """
+    return read_class_raster(path, where=where, crs=crs, band=band, whole_numbers=False)
 
 
 #: Rasters with more cells than this are worth tiling (common practice: 256 or 512 blocks).

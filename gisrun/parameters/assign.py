@@ -1,8 +1,10 @@
 """Assign loss-method parameters to every soil x cover unit.
 
 Each unit of the unit table is split into a pervious and an impervious part by
-its cover's impervious fraction (TR-55 1986, Tables 2-2a-c); parts with zero
-area are dropped. A cover of ``"unspecified"`` (no cover raster) is fully
+its cover's impervious fraction (TR-55 1986, Tables 2-2a-c), or by the unit's own
+``impervious_fraction`` column when the unit table has one (measured on an
+impervious-share grid, :mod:`gisrun.grid.impervious`; the cover class still sets
+the pervious part's parameters); parts with zero area are dropped. A cover of ``"unspecified"`` (no cover raster) is fully
 pervious and takes the curve numbers of open space in good condition. Soil
 labels ``"water"`` and ``"rock"`` take no water: their whole area is impervious.
 
@@ -263,7 +265,16 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
     if missing:
         raise ParameterError("unit table", f"has no column(s) {missing}",
                              "pass the overlay's unit table unchanged")
-    out = units.loc[:, list(_UNIT_COLUMNS)].reset_index(drop=True)
+    extra = ["impervious_fraction"] if "impervious_fraction" in units.columns else []
+    out = units.loc[:, [*_UNIT_COLUMNS, *extra]].reset_index(drop=True)
+    if extra:
+        share = pd.to_numeric(out["impervious_fraction"], errors="coerce").to_numpy(float)
+        if not np.all((share >= 0) & (share <= 1)):
+            i = int(np.flatnonzero(~((share >= 0) & (share <= 1)))[0])
+            raise ParameterError(f"unit table:row {i + 1}:impervious_fraction",
+                                 f"value {units['impervious_fraction'].iloc[i]!r} is outside 0-1",
+                                 "give each unit's impervious share as a fraction 0-1")
+        out["impervious_fraction"] = share
     area = pd.to_numeric(out["area_m2"], errors="coerce").to_numpy(float)
     bad = ~np.isfinite(area) | (area < 0)
     if bad.any():
@@ -278,9 +289,13 @@ def _checked_units(units: pd.DataFrame) -> pd.DataFrame:
 
 
 def _expand(units: pd.DataFrame, soils: dict[str, SoilInfo]) -> pd.DataFrame:
-    cover = cover_table()
-    fractions = {**cover["impervious_fraction"].to_dict(), UNSPECIFIED_COVER: 0.0}
-    frac = units["cover_class"].map(fractions)
+    if "impervious_fraction" in units.columns:  # measured per unit (an impervious grid)
+        frac = units["impervious_fraction"]
+        units = units.drop(columns="impervious_fraction")
+    else:
+        cover = cover_table()
+        fractions = {**cover["impervious_fraction"].to_dict(), UNSPECIFIED_COVER: 0.0}
+        frac = units["cover_class"].map(fractions)
     infiltrates = units["soil_class"].map({k: v.infiltrates for k, v in soils.items()})
     frac = frac.where(infiltrates, 1.0).to_numpy(float)
     perv = units.assign(surface="pervious", area_m2=units["area_m2"] * (1.0 - frac))

@@ -26,6 +26,7 @@ from .inputs import (
     check_overlaps,
     check_raster_codes,
     read_cover,
+    read_impervious_grid,
     read_overrides,
     read_soil,
     read_storms,
@@ -81,6 +82,7 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str]) -> 
     cover = _attempt(problems, read_cover, project)
     storms = _attempt(problems, read_storms, project, subs)
     overrides = _attempt(problems, read_overrides, project)
+    impervious = _attempt(problems, read_impervious_grid, project)
     if subs is not None and storms is not None:
         outputs += output_lines(project, len(subs), storms)
     if subs is not None:
@@ -94,9 +96,11 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str]) -> 
                                  project.where("cover"), project)
     storm_notes = _resampling_notes(project, storms or ())
     missing_cover = project.cover is not None and cover is None
+    missing_cover |= (project.impervious is not None and project.impervious.path is not None
+                      and impervious is None)
     if subs is None or missing_cover or storms is None or not codes_ok:
         return storm_notes
-    inputs = Inputs(subs, soil, cover, storms, overrides)
+    inputs = Inputs(subs, soil, cover, storms, overrides, impervious=impervious)
     overlaid = _attempt(problems, overlay_inputs, project, inputs)
     if overlaid is None:
         return storm_notes

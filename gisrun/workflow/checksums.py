@@ -29,6 +29,8 @@ def dataset_files(project: Project) -> dict[Path, list[Path] | None]:
     }
     if project.cover:
         out[Path(project.cover.path)] = raster_files(project.cover.path)
+    if project.impervious is not None and project.impervious.path is not None:
+        out[Path(project.impervious.path)] = raster_files(project.impervious.path)
     return out
 
 

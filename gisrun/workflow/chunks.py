@@ -70,9 +70,8 @@ _BYTES_PER_UNIT_ROW = 400
 _BYTES_PER_CELL = 16
 #: Bytes per subcatchment besides (polygon geometry and per-polygon tables; measured ~27 kB).
 _BYTES_PER_SUBCATCHMENT = 32_000
-#: Areal rain: bytes per subcatchment, step and storm (the chunk's columns, kept with its task)
-#: and per unit and step of the storm being run (its rain per unit, the engine's checked copy
-#: and the frame its deduplication hashes).
+#: Areal rain: bytes per subcatchment, step and storm (the chunk's columns) and per unit and step
+#: of the storm being run (its rain per unit, the engine's copy, the deduplication's frame).
 _BYTES_PER_AREAL_VALUE, _BYTES_PER_AREAL_UNIT_STEP = 8, 24
 
 
@@ -129,8 +128,7 @@ def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int,
     A chunk's working set is its overlay window, one storm's engine arrays at a time and
     every storm's results until the chunk is written; with the load measured on the inputs
     the peak memory is set by the budget rather than by the raster or catchment size.
-    ``areal_storms`` storms with areal rain add their columns of the chunk and, while one
-    runs, a rain series per unit.
+    ``areal_storms`` storms of areal rain add their columns and, while one runs, rain per unit.
 
     Examples
     --------
@@ -183,8 +181,8 @@ class ChunkTask:
     soil: ClassGrid
     cover: ClassGrid | None
     storms: tuple[Hyetograph, ...]
-    #: Each storm's rain per run step (resampled once for the whole run), m: ``(steps,)``, or
-    #: for areal rain ``(steps, subcatchments)``, this chunk's columns in its rows' order.
+    #: Each storm's rain per run step (resampled once), m: ``(steps,)``, or (areal rain) this
+    #: chunk's columns ``(steps, subcatchments)``.
     rains: tuple[NDArray[np.float64], ...]
     overrides: pd.DataFrame | None = None
     keep_loss: bool = True
@@ -192,6 +190,8 @@ class ChunkTask:
     cells: bool = False
     #: (units, coverage, notes) of this chunk from the overlay cache; None to overlay.
     overlay: tuple[pd.DataFrame, pd.DataFrame, list[str]] | None = None
+    #: The impervious-share grid, if the project names one.
+    impervious: ClassGrid | None = None
 
 
 @dataclass
@@ -228,7 +228,8 @@ class ChunkOutput:
 def process_chunk(task: ChunkTask) -> ChunkOutput:
     """Overlay, parameters and every storm for one chunk of subcatchments."""
     project = task.project
-    inputs = Inputs(task.subcatchments, task.soil, task.cover, task.storms, task.overrides)
+    inputs = Inputs(task.subcatchments, task.soil, task.cover, task.storms, task.overrides,
+                    impervious=task.impervious)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
         if task.overlay is not None:

@@ -21,7 +21,7 @@ from pyproj import CRS, Transformer
 from ..config.storms import storms_from_config
 from ..crs import ground_areas, is_web_mercator
 from ..errors import GisrunWarning, RasterError, StormError, VectorError
-from ..io.raster import ClassRaster, read_class_raster
+from ..io.raster import ClassRaster, read_class_raster, read_value_raster
 from ..io.storm_csv import warn_if_implausible
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
@@ -36,6 +36,7 @@ __all__ = [
     "read_subcatchment_layer",
     "read_soil",
     "read_cover",
+    "read_impervious_grid",
     "no_cover_note",
     "read_storms",
     "read_overrides",
@@ -55,8 +56,10 @@ MAX_STORM_NAME = 100
 def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
     """Read the subcatchment polygons with the fields the run needs."""
     src = project.subcatchments
+    disconnected = project.impervious.disconnected_field if project.impervious else None
     keep = tuple(dict.fromkeys(
-        f for f in (src.method_field, project.rain_scale_field, *src.parameter_fields) if f))
+        f for f in (src.method_field, project.rain_scale_field, disconnected,
+                    *src.parameter_fields) if f))
     subs = read_subcatchments(src.path, id_field=src.id_field, layer=src.layer, crs=src.crs,
                               keep_fields=keep)
     if subs.crs is not None and is_web_mercator(subs.crs):
@@ -90,6 +93,15 @@ def read_cover(project: Project) -> ClassRaster | None:
     return read_class_raster(project.cover.path, codes=project.cover.codes,
                              where=f"{project.cover.path} ({project.where('cover', 'path')})",
                              crs=project.cover.crs)
+
+
+def read_impervious_grid(project: Project) -> ClassRaster | None:
+    """Open the impervious-share grid, if the project names one (values are read in the overlay)."""
+    source = project.impervious
+    if source is None or source.path is None:
+        return None
+    return read_value_raster(source.path, crs=source.crs,
+                             where=f"{source.path} ({project.where('impervious', 'path')})")
 
 
 def no_cover_note(project: Project) -> str:
@@ -176,6 +188,7 @@ def read_inputs(project: Project) -> Inputs:
             cover=read_cover(project),
             storms=read_storms(project, subcatchments),
             overrides=read_overrides(project),
+            impervious=read_impervious_grid(project),
         )
         warn_if_rain_scale_implausible(project, inputs.subcatchments, inputs.storms)
         check_overlaps(project, inputs.subcatchments)

@@ -188,7 +188,8 @@ def _tasks(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64], .
                 else [None] * len(chunks))
     return [ChunkTask(i, project, inputs.subcatchments.iloc[rows], inputs.soil, inputs.cover,
                       inputs.storms, tuple(chunk_rain(r, rows) for r in rains),
-                      inputs.overrides, keep_loss=keep_loss, cells=cells, overlay=overlay)
+                      inputs.overrides, keep_loss=keep_loss, cells=cells, overlay=overlay,
+                      impervious=inputs.impervious)
             for i, (rows, overlay) in enumerate(zip(chunks, overlays, strict=True))]
 
 
@@ -240,7 +241,7 @@ def _chunk_size(project: Project, inputs: Inputs, n_steps: int, cached: Overlay 
 def _cells_per_subcatchment(inputs: Inputs) -> float:
     """Mean polygon area in cells of the finer raster (in each raster's own CRS)."""
     best = 0.0
-    for raster in (inputs.soil, inputs.cover):
+    for raster in (inputs.soil, inputs.cover, inputs.impervious):
         if raster is None:
             continue
         geoms = inputs.subcatchments.geometry

@@ -24,6 +24,7 @@ from numpy.typing import NDArray
 from ..aggregate import area_weights, subcatchment_series, summarize_subcatchments, summarize_units
 from ..engine import ENGINES, method_name, run_losses
 from ..errors import ParameterError, VectorError
+from ..grid.impervious import impervious_shares
 from ..grid.overlay import compute_unit_areas
 from ..model import Inputs, StormResult
 from ..parameters import assign_parameters, composite_parameters
@@ -59,13 +60,22 @@ def overlay_inputs(project: Project, inputs: Inputs, *, check_codes: bool = True
     """
     if check_codes:
         check_inputs_codes(project, inputs)
-    return compute_unit_areas(
+    cover_codes = project.cover.codes if project.cover else None
+    units, coverage, notes = compute_unit_areas(
         inputs.subcatchments, inputs.soil, inputs.cover,
         soil_codes=project.soil.codes,
-        cover_codes=project.cover.codes if project.cover else None,
+        cover_codes=cover_codes,
         nodata_rule=project.nodata_rule,
         max_nodata_fraction=project.max_nodata_fraction,
     )
+    source = project.impervious
+    if source is not None and source.path is not None and inputs.impervious is not None:
+        units, more = impervious_shares(
+            inputs.subcatchments, inputs.soil, inputs.cover, inputs.impervious, units,
+            soil_codes=project.soil.codes, cover_codes=cover_codes, scale=source.scale,
+            max_nodata_fraction=project.max_nodata_fraction)
+        notes = [*notes, *more]
+    return units, coverage, notes
 
 
 def prepare_parameters(
@@ -86,9 +96,25 @@ def prepare_parameters(
         initial_water_content=project.soil.initial_water_content,
         compact_provenance=True,
     )
+    sources = pd.DataFrame(sources)
+    if "impervious_fraction" in units.columns and project.impervious is not None:
+        sources = pd.concat([sources, _share_sources(units, project)], ignore_index=True)
     if project.combine == "composite":
         params = composite_parameters(params)
-    return params.reset_index(drop=True), compact_sources(pd.DataFrame(sources)), list(notes)
+    return params.reset_index(drop=True), compact_sources(sources), list(notes)
+
+
+def _share_sources(units: pd.DataFrame, project: Project) -> pd.DataFrame:
+    """Provenance rows of the impervious shares measured on the grid (one per soil x cover)."""
+    counts = units.groupby(["soil_class", "cover_class"], sort=True).size()
+    name = project.impervious.path.name
+    return pd.DataFrame({
+        "parameter": "impervious_fraction",
+        "source": f"impervious grid {name} ({project.where('impervious', 'path')}), "
+                  "area-weighted exactly over each unit's cells",
+        "soil_class": counts.index.get_level_values(0), "cover_class":
+        counts.index.get_level_values(1), "surface": "impervious",
+        "unit_parts": counts.to_numpy()})
 
 
 _SOURCE_KEYS = ["parameter", "source", "soil_class", "cover_class", "surface"]
