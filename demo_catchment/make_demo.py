@@ -14,6 +14,9 @@ It writes, next to itself:
 - ``land_cover.tif``: 5 m cover codes on the same extent (2 x 2 cover cells = 1 soil cell).
 - ``storms/observed_event.csv``: an observed-style 5-minute hyetograph.
 - ``gisrun.toml``: the project file that ties them together.
+- ``soil_map_units.tif``, ``soil_map_units.csv``, ``gisrun_map_units.toml``: the soil map as
+  map-unit keys with an attribute table, and the project file that reads them
+  (``map_units.py``).
 
 The data exist to show the program working; they are never a test reference.
 """
@@ -32,6 +35,8 @@ from numpy.typing import NDArray
 from rasterio.features import rasterize
 from rasterio.transform import from_origin
 from scipy.ndimage import gaussian_filter
+
+from map_units import write_map_units  # noqa: E402  (beside this script)
 
 HERE = Path(__file__).resolve().parent
 RNG_STATE = 20240611  # fixed state of the random-number generator: same files every run
@@ -454,6 +459,7 @@ def main() -> None:
     pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": GPKG_DATE})
     subs.to_file(gpkg, layer="subcatchments", driver="GPKG", engine="pyogrio")
     write_project_file(HERE / "gisrun.toml")
+    write_map_units(HERE, SOIL_CODES)
     print(f"{TOWN}: {len(subs)} subcatchments, {subs.area.sum() / 1e6:.2f} km2; "
           f"soil {soil.shape[1]}x{soil.shape[0]} @ {SOIL_CELL_M:g} m, "
           f"cover {cover.shape[1]}x{cover.shape[0]} @ {COVER_CELL_M:g} m; written to {HERE}")
