@@ -14,6 +14,8 @@ It writes, next to itself:
 - ``land_cover.tif``: 5 m cover codes on the same extent (2 x 2 cover cells = 1 soil cell).
 - ``storms/observed_event.csv``: an observed-style 5-minute hyetograph.
 - ``gisrun.toml``: the project file that ties them together.
+- ``impervious_percent.tif`` and ``disconnected_roofs.toml``: an impervious-percent grid and a
+  second project file where most house roofs spill onto lawns (``make_impervious.py``).
 
 The data exist to show the program working; they are never a test reference.
 """
@@ -31,6 +33,7 @@ import shapely
 from numpy.typing import NDArray
 from rasterio.features import rasterize
 from rasterio.transform import from_origin
+from make_impervious import impervious_percent, write_impervious, write_scenario
 from scipy.ndimage import gaussian_filter
 
 HERE = Path(__file__).resolve().parent
@@ -454,6 +457,9 @@ def main() -> None:
     pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": GPKG_DATE})
     subs.to_file(gpkg, layer="subcatchments", driver="GPKG", engine="pyogrio")
     write_project_file(HERE / "gisrun.toml")
+    write_impervious(HERE / "impervious_percent.tif", impervious_percent(cover, COVER_NODATA),
+                     frame_cover, COVER_CELL_M, CRS)
+    write_scenario(HERE / "gisrun.toml", HERE / "disconnected_roofs.toml")
     print(f"{TOWN}: {len(subs)} subcatchments, {subs.area.sum() / 1e6:.2f} km2; "
           f"soil {soil.shape[1]}x{soil.shape[0]} @ {SOIL_CELL_M:g} m, "
           f"cover {cover.shape[1]}x{cover.shape[0]} @ {COVER_CELL_M:g} m; written to {HERE}")

@@ -49,7 +49,7 @@ import pandas as pd
 from ..engine import PARAMETERS, method_name
 from ..errors import GisrunWarning, ParameterError
 from ..options import DUAL_GROUP_CONDITIONS, choose
-from .defaults import ASSIGNED_COLUMNS, RunSettings, shipped_values
+from .defaults import ASSIGNED_COLUMNS, RunSettings, bare_cover_warnings, shipped_values
 from .overrides import PARAMETER_COLUMNS
 from .precedence import (
     apply_attributes,
@@ -167,6 +167,7 @@ def assign_parameters(
                           warnings)
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
     all_rows = _expand(units, soils)
+    warnings += bare_cover_warnings(all_rows)
     layers = override_layers(overrides, classification)
     attributes = attribute_table(subcatchment_attributes)
     # Parameters depend on soil, cover and surface, and on the subcatchment only where a layer

@@ -31,6 +31,7 @@ from ..model import Inputs, StormResult
 from ..project import Project
 from ..storm import Hyetograph
 from .cells import slim_unit_results
+from .disconnection import add_connected_comparison
 from .steps import (
     add_composite_comparison,
     lumped_parameter_table,
@@ -38,6 +39,7 @@ from .steps import (
     prepare_parameters,
     rain_scale_for_units,
     run_storm,
+    runon_target,
 )
 
 __all__ = [
@@ -233,6 +235,8 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         results = _run_storms(project, inputs, params, task.rains, sub_ids)
         if project.compare_composite and project.combine == "units":
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
+        if project.impervious is not None and project.impervious.compare_connected:
+            results = add_connected_comparison(project, inputs, units, results, sub_ids)
         lumped = lumped_parameter_table(project, inputs, params, results, sub_ids)
         cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
     notes = [str(n) for n in (*notes_overlay, *notes_params)]
@@ -266,7 +270,7 @@ def _run_storms(project: Project, inputs: Inputs, params: pd.DataFrame,
                 ) -> list[StormResult]:
     scale = rain_scale_for_units(project, inputs, params)
     return [run_storm(params, h, project.time_step_s, sub_ids=sub_ids, rain_scale=scale,
-                      rain_per_step_m=rain)
+                      rain_per_step_m=rain, runon_to=runon_target(project))
             for h, rain in zip(inputs.storms, rains, strict=True)]
 
 

@@ -41,7 +41,7 @@ from .chunks import (
     split_overlay,
 )
 from .inputs import check_inputs_codes, read_inputs
-from .steps import compact_sources, overlay_inputs
+from .steps import compact_sources, overlay_inputs, runon_target
 
 __all__ = ["KEEP_STEP_ARRAYS_BELOW", "Progress", "SeriesSink", "UnitSink", "run"]
 
@@ -167,10 +167,14 @@ def _lumping_for_size(project: Project, n_subcatchments: int) -> tuple[Project, 
     The equivalent and fitted sets take root searches per subcatchment and storm and a table
     kept for the whole run; a large run makes them only when the project asks (``"solve"``).
     """
+    notes = [] if runon_target(project) is None or project.lumped_parameters == "off" else [
+        "lumped parameters describe each subcatchment with every impervious area connected (a "
+        "lumped model has no run-on): the equivalent and fitted sets fold the disconnection "
+        "into the pervious parameter, the area-weighted set leaves it out"]
     if project.lumped_parameters != "auto":
-        return project, []
+        return project, notes
     if n_subcatchments < KEEP_STEP_ARRAYS_BELOW:
-        return dataclasses.replace(project, lumped_parameters="solve"), []
+        return dataclasses.replace(project, lumped_parameters="solve"), notes
     return dataclasses.replace(project, lumped_parameters="off"), [
         f"lumped parameters not made for {n_subcatchments} subcatchments (automatic above "
         f"{KEEP_STEP_ARRAYS_BELOW - 1}); set [method] lumped_parameters = \"area_weighted\" or "
