@@ -10,6 +10,7 @@ from numpy.testing import assert_allclose
 from gisrun.parameters.disconnection import tr55_unconnected_cn
 from gisrun.present.layers import ponding_ranking
 from gisrun.present.report import ReportFigures, build_report
+from gisrun.workflow.check import check_project
 from gisrun.workflow.pipeline import run
 
 SUB_COLUMNS = ["subcatchment_id", "modelled_area_m2", "rain_depth_m", "infiltration_depth_m",
@@ -94,3 +95,17 @@ def test_curve_number_units_take_tr55_composite(tmp_path):
     assert not result.storms[0].subcatchments["runon_depth_m"].any()
     assert result.parameter_sources["source"].str.contains("Figure 2-4").any()
     assert np.isfinite(result.storms[0].subcatchments["runoff_depth_m"]).all()
+
+
+def test_check_reports_where_tr55_does_not_apply(tmp_path):
+    """`gisrun check` runs the parameter step: the note naming the subcatchments outside
+    Figure 2-4's limit (commercial, 85 % impervious, TR-55 1986 Table 2-2a) is among its notes."""
+    folder = tmp_path / "p"
+    make_project(folder)
+    toml = folder / "gisrun.toml"
+    text = toml.read_text().replace('"5" = "open_space_good"', '"5" = "commercial"')
+    toml.write_text(text.replace('name = "green_ampt"', 'name = "curve_number"')
+                    + "\n[impervious]\ndisconnected_fraction = 0.4\n")
+    problems, notes, _ = check_project(folder)
+    assert problems == []
+    assert any("Figure 2-4 applies only below 30 %" in n and "S1, S2" in n for n in notes)

@@ -218,6 +218,9 @@ def _chunk_size(project: Project, inputs: Inputs, n_steps: int, cached: Overlay 
     subs = inputs.subcatchments
 
     def size(load: ChunkLoad) -> int:
+        if runon_target(project) is not None:  # run-on: a second engine pass and two more
+            load = dataclasses.replace(  # step arrays; counted as twice the units (not measured)
+                load, units_per_subcatchment=2.0 * load.units_per_subcatchment)
         return chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms), load)
 
     cells = _cells_per_subcatchment(inputs)
