@@ -16,6 +16,9 @@ It writes, next to itself:
 - ``gisrun.toml``: the project file that ties them together.
 - ``impervious_percent.tif`` and ``disconnected_roofs.toml``: an impervious-percent grid and a
   second project file where most house roofs spill onto lawns (``make_impervious.py``).
+- ``soil_map_units.tif``, ``soil_map_units.csv``, ``gisrun_map_units.toml``: the soil map as
+  map-unit keys with an attribute table, and the project file that reads them
+  (``map_units.py``).
 
 The data exist to show the program working; they are never a test reference.
 """
@@ -33,8 +36,10 @@ import shapely
 from numpy.typing import NDArray
 from rasterio.features import rasterize
 from rasterio.transform import from_origin
-from make_impervious import impervious_percent, write_impervious, write_scenario
 from scipy.ndimage import gaussian_filter
+
+from make_impervious import impervious_percent, write_impervious, write_scenario  # noqa: E402
+from map_units import write_map_units  # noqa: E402  (beside this script)
 
 HERE = Path(__file__).resolve().parent
 RNG_STATE = 20240611  # fixed state of the random-number generator: same files every run
@@ -460,6 +465,7 @@ def main() -> None:
     write_impervious(HERE / "impervious_percent.tif", impervious_percent(cover, COVER_NODATA),
                      frame_cover, COVER_CELL_M, CRS)
     write_scenario(HERE / "gisrun.toml", HERE / "disconnected_roofs.toml")
+    write_map_units(HERE, SOIL_CODES)
     print(f"{TOWN}: {len(subs)} subcatchments, {subs.area.sum() / 1e6:.2f} km2; "
           f"soil {soil.shape[1]}x{soil.shape[0]} @ {SOIL_CELL_M:g} m, "
           f"cover {cover.shape[1]}x{cover.shape[0]} @ {COVER_CELL_M:g} m; written to {HERE}")

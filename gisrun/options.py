@@ -34,7 +34,7 @@ from .units import SYSTEMS
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
            "LUMPED_PARAMETER_SETS", "SERIES_STORES", "IMPERVIOUS_SCALES", "RUNON_TARGETS",
-           "CHOICES"]
+           "RAIN_GRID_FORMATS", "RAIN_TIME_MARKS", "RAIN_VALUES", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -106,6 +106,9 @@ UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
 #: (root searches), the area-weighted set only, or none.
 LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
                                 what="lumped parameters choice", default="auto")
+#: What a raster key missing from its attribute table does (``[soil] unlisted_keys``):
+#: stop, or count its cells as nodata (then the nodata rule applies).
+UNLISTED_KEY_RULES = Choices(("error", "nodata"), what="unlisted key rule", default="error")
 #: Where a run's excess-rainfall series go (``[project] series``): the GeoPackage's
 #: ``excess_series`` table, a Parquet file beside it, or "auto" (by size, see
 #: :data:`gisrun.workflow.series.SERIES_IN_GEOPACKAGE_BELOW`).
@@ -115,13 +118,24 @@ SERIES_STORES = Choices(("auto", "geopackage", "parquet"), what="series store", 
 IMPERVIOUS_SCALES = Choices(("percent", "fraction"), what="impervious scale", default="percent")
 #: Where disconnected impervious runoff runs on (``[impervious] runon_to``).
 RUNON_TARGETS = Choices(("unit", "subcatchment"), what="run-on target", default="unit")
+#: How a stack of rain grids is stored (``[[storms]] format`` of a rain grid; inferred from the
+#: path when not given).
+RAIN_GRID_FORMATS = Choices(("netcdf", "geotiff", "geotiff_folder"), what="rain grid format",
+                            default="netcdf")
+#: What a rain grid's time marks: the end of its step or the start (``[[storms]] time_marks``).
+RAIN_TIME_MARKS = Choices(("end", "start"), what="time mark", default="end")
+#: What a rain grid's values are (``[[storms]] rain_is``; inferred from the unit when not given).
+RAIN_VALUES = Choices(("depth", "intensity"), what="kind of rain value", default="depth")
 
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
     "lumped_parameters": LUMPED_PARAMETER_SETS, "series": SERIES_STORES,
+    "unlisted_keys": UNLISTED_KEY_RULES,
     "impervious_scale": IMPERVIOUS_SCALES, "runon_to": RUNON_TARGETS,
+    "rain_grid_format": RAIN_GRID_FORMATS, "time_marks": RAIN_TIME_MARKS,
+    "rain_is": RAIN_VALUES,
 }
 
 

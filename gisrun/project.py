@@ -33,7 +33,12 @@ class SubcatchmentSource:
 
 @dataclass(frozen=True)
 class SoilSource:
-    """The soil raster, its code table and the soil choices of the run."""
+    """The soil raster, its code table and the soil choices of the run.
+
+    With an attribute table (``[soil] attributes``) ``codes`` is the table's
+    key -> class map and ``keys`` the :class:`gisrun.parameters.class_keys.KeyedClasses`
+    it was read into (typed loosely here so the project types import no compute).
+    """
 
     path: Path
     codes: dict[int, str]
@@ -42,15 +47,21 @@ class SoilSource:
     initial_saturation: float = 0.3
     crs: str | None = None
     initial_water_content: float | None = None
+    keys: Any = None
+    attributes: Path | None = None
+    unlisted_keys: str = "error"
 
 
 @dataclass(frozen=True)
 class CoverSource:
-    """The land-cover raster and its code table."""
+    """The land-cover raster and its code table (or attribute table, as for the soil)."""
 
     path: Path
     codes: dict[int, str]
     crs: str | None = None
+    keys: Any = None
+    attributes: Path | None = None
+    unlisted_keys: str = "error"
 
 
 @dataclass(frozen=True)
@@ -149,8 +160,12 @@ class Project:
         """Every file the run reads, by what it is (``"soil raster"``); no file is opened."""
         files = {"project file": self.path, "subcatchment file": self.subcatchments.path,
                  "soil raster": self.soil.path}
+        if self.soil.attributes is not None:
+            files["soil attribute table"] = self.soil.attributes
         if self.cover is not None:
             files["cover raster"] = self.cover.path
+            if self.cover.attributes is not None:
+                files["cover attribute table"] = self.cover.attributes
         if self.overrides is not None:
             files["parameter override file"] = self.overrides
         if self.impervious is not None and self.impervious.path is not None:

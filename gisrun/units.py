@@ -17,6 +17,7 @@ Examples
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
@@ -42,6 +43,8 @@ __all__ = [
     "si_frame",
     "round_significant",
     "SIGNIFICANT_DIGITS",
+    "RainUnit",
+    "rain_unit",
 ]
 
 #: Multiply a value in the named unit by this factor to get SI.
@@ -265,3 +268,71 @@ def _convert_columns(frame: pd.DataFrame, endings: list[tuple[str, str, str]],
                 renames[name] = name[: -len(ending)] + new_ending
                 break
     return out.rename(columns=renames)
+
+
+#: Unit names as rain products write them (CF/UDUNITS symbols and words) -> (factor to SI,
+#: power of length, power of time). A kilogram of rain water per square metre is a millimetre of
+#: depth: 1 kg counts as 0.001 m3 (water at 1000 kg/m3; the CF ``precipitation_amount`` in
+#: ``kg m-2``; common practice).
+_WRITTEN: dict[str, tuple[float, int, int]] = {
+    **dict.fromkeys(("m", "meter", "meters", "metre", "metres"), (1.0, 1, 0)),
+    **dict.fromkeys(("cm", "centimeter", "centimeters", "centimetre", "centimetres"),
+                    (1e-2, 1, 0)),
+    **dict.fromkeys(("mm", "millimeter", "millimeters", "millimetre", "millimetres"),
+                    (1e-3, 1, 0)),
+    **dict.fromkeys(("in", "inch", "inches"), (0.0254, 1, 0)),
+    "kg": (1e-3, 3, 0),
+    **dict.fromkeys(("s", "sec", "second", "seconds"), (1.0, 0, 1)),
+    **dict.fromkeys(("min", "minute", "minutes"), (60.0, 0, 1)),
+    **dict.fromkeys(("h", "hr", "hour", "hours"), (3600.0, 0, 1)),
+    **dict.fromkeys(("d", "day", "days"), (86400.0, 0, 1)),
+}
+_TOKEN = re.compile(r"^([a-z]+)(-?[0-9]+)?$")
+
+
+@dataclass(frozen=True)
+class RainUnit:
+    """A rain unit read from text: a depth (to m) or an intensity (to m/s)."""
+
+    text: str
+    kind: str  # "depth" or "intensity"
+    factor: float  # multiply a value in this unit by it for m or m/s
+
+
+def rain_unit(text: str, where: str) -> RainUnit:
+    """Read a rain unit as a file or a project file writes it.
+
+    Symbols and words of length (``m``, ``mm``, ``in``, ``kg`` of water over an area) and time
+    (``s``, ``min``, ``h``, ``d``), with powers written as in CF/UDUNITS (``kg m-2 s-1``,
+    ``m**-2``, ``m^-2``) and ``/`` for division (``mm/h``).
+
+    Raises
+    ------
+    InputError
+        Naming ``where`` when the text is not a depth or a depth per time.
+
+    Examples
+    --------
+    >>> rain_unit("kg m-2", "rain.nc").kind, rain_unit("kg m-2", "rain.nc").factor
+    ('depth', 0.001)
+    >>> u = rain_unit("mm h-1", "rain.nc"); u.kind, u.factor == 1e-3 / 3600
+    ('intensity', True)
+    >>> rain_unit("mm/hr", "rain.nc").factor == rain_unit("mm hr-1", "rain.nc").factor
+    True
+    """
+    factor, length, time = 1.0, 0, 0
+    clean = str(text).strip().lower().replace("**", "").replace("^", "")
+    for i, part in enumerate(clean.split("/")):
+        for token in re.split(r"[\s*.·]+", part.strip()):
+            match = _TOKEN.match(token) if token else None
+            if match is None or match.group(1) not in _WRITTEN:
+                raise InputError(where, f"rain unit {text!r} is not understood",
+                                 "write a depth such as 'mm' or 'kg m-2', or an intensity such "
+                                 "as 'mm/h' or 'mm h-1'")
+            power = int(match.group(2) or 1) * (-1 if i > 0 else 1)
+            f, lp, tp = _WRITTEN[match.group(1)]
+            factor, length, time = factor * f**power, length + lp * power, time + tp * power
+    if length == 1 and time in (0, -1):
+        return RainUnit(str(text), "depth" if time == 0 else "intensity", factor)
+    raise InputError(where, f"rain unit {text!r} is neither a depth nor a depth per time",
+                     "write a depth such as 'mm' or an intensity such as 'mm/h'")

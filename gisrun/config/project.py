@@ -55,6 +55,7 @@ from ..options import (
 from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_labels
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
+from .attributes import ATTRIBUTE_KEYS, keyed_source
 from .impervious import IMPERVIOUS_KEYS, check_impervious_combination, read_impervious
 from .reader import TableReader
 
@@ -86,8 +87,8 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
                       "max_overlap_fraction"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
-             "initial_water_content", "codes", "crs"),
-    "cover": ("path", "codes", "crs"),
+             "initial_water_content", "codes", "crs", *ATTRIBUTE_KEYS),
+    "cover": ("path", "codes", "crs", *ATTRIBUTE_KEYS),
     "nodata": ("rule", "max_fraction"),
     "method": ("name", "combine", "compare_composite", "initial_abstraction_ratio",
                "antecedent_condition", "lumped_parameters"),
@@ -216,10 +217,12 @@ def _subcatchments(sub: TableReader) -> SubcatchmentSource:
 
 
 def _soil(soil: TableReader) -> SoilSource:
+    classification = soil.choice("classification", SOIL_CLASSIFICATIONS)
+    codes, keys, attributes, unlisted = keyed_source(soil, "soil", classification)
     return SoilSource(
         path=soil.path("path"),
-        codes=soil.codes("soil"),
-        classification=soil.choice("classification", SOIL_CLASSIFICATIONS),
+        codes=codes, keys=keys, attributes=attributes, unlisted_keys=unlisted,
+        classification=classification,
         dual_group_condition=soil.choice("dual_group_condition", DUAL_GROUP_CONDITIONS),
         initial_saturation=soil.number("initial_saturation", default=0.3, low=0.0, high=1.0),
         crs=soil.string("crs", required=False),
@@ -235,10 +238,11 @@ def _declared(method: TableReader, key: str) -> float:
 
 def _check_class_labels(file: Path, project: Project) -> None:
     """Stop on a code table entry naming a class the parameter tables do not know."""
-    for code, label in project.soil.codes.items():
-        check_soil_labels([label], project.soil.classification,
-                          f'{file.name}:[soil.codes]."{code}"')
-    if project.cover is not None:
+    if project.soil.keys is None:  # an attribute table checks its own classes
+        for code, label in project.soil.codes.items():
+            check_soil_labels([label], project.soil.classification,
+                              f'{file.name}:[soil.codes]."{code}"')
+    if project.cover is not None and project.cover.keys is None:
         for code, label in project.cover.codes.items():
             check_cover_labels([label], f'{file.name}:[cover.codes]."{code}"')
 
@@ -255,8 +259,9 @@ def _water_content(soil: TableReader) -> float | None:
 def _cover(cover: TableReader, *, present: bool) -> CoverSource | None:
     if not present or not cover.data:
         return None
-    return CoverSource(path=cover.path("path"), codes=cover.codes("cover"),
-                       crs=cover.string("crs", required=False))
+    codes, keys, attributes, unlisted = keyed_source(cover, "cover")
+    return CoverSource(path=cover.path("path"), codes=codes, keys=keys, attributes=attributes,
+                       unlisted_keys=unlisted, crs=cover.string("crs", required=False))
 
 
 def _storms(top_level: TableReader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ...]:

@@ -98,6 +98,8 @@ def prepare_parameters(
         antecedent_condition=project.antecedent_condition,
         initial_water_content=project.soil.initial_water_content,
         compact_provenance=True,
+        soil_keys=project.soil.keys,
+        cover_keys=project.cover.keys if project.cover else None,
     )
     sources = pd.DataFrame(sources)
     notes = list(notes)

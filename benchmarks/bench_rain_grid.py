@@ -1,0 +1,155 @@
+"""Areal rain from a gridded rainfall product vs reading the rain stack once.
+
+Inputs (invented, made on demand in ``benchmarks/scratch/rain_grid_polygons<M>/``): the
+benchmark subcatchments of ``make_inputs.make_subcatchments`` (``--polygons``, default 100,000,
+tiling 200 x 200 km in EPSG:32617) and a CF NetCDF rain stack on a 1 km grid over the same
+extent, every 5 minutes for 24 hours (288 steps, float32, intensity in mm/h).
+
+It measures, interleaved (``--repeat`` rounds, the fastest of each kept):
+
+- read: ``RainStack.read_steps`` over every block of steps, the way the areal rain reads them
+  (the floor: the stack read once), for the stack stored plain and deflated (zlib 4, shuffle,
+  one step per chunk, as rainfall products are usually shipped);
+- areal: ``gisrun.storm.gridded.grid_areal_depth(weights, stack)``, the rain per subcatchment
+  for every step (reading included: one sparse product per block);
+- weights: ``gisrun.grid.rain_weights.rain_grid_weights`` (made once per run, shown apart).
+
+Target: areal within 2x read. Peak memory of the areal call by ``tracemalloc`` (numpy's
+arrays included), and the process's peak resident size.
+
+Command line::
+
+    python benchmarks/bench_rain_grid.py                    # 100,000 subcatchments
+    python benchmarks/bench_rain_grid.py --polygons 10000 --repeat 2
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import sys
+import time
+import tracemalloc
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import xarray as xr
+from pyproj import CRS
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+
+from make_inputs import CRS as BENCH_CRS  # noqa: E402
+from make_inputs import NORTH_M, WEST_M, make_subcatchments  # noqa: E402
+
+from gisrun.grid.rain_weights import rain_grid_weights  # noqa: E402
+from gisrun.io.rain_grid import RainGridSettings, open_rain_grid  # noqa: E402
+from gisrun.storm.gridded import grid_areal_depth, steps_per_block  # noqa: E402
+
+EXTENT_CELLS, CELL_M = 20_000, 10.0  # the large benchmark set's extent: 200 km
+RAIN_CELL_M, STEP_MIN, HOURS = 1000.0, 5, 24
+
+
+def write_rain(path: Path, *, deflate: bool) -> Path:
+    """An invented storm: a rain cell drifting across the extent, 1 km, 5-min, 24 h (mm/h).
+
+    ``deflate``: compressed as rainfall products are usually shipped (zlib level 4 with
+    shuffle, chunks of one step); otherwise stored plain (the cheapest stack to read).
+    """
+    if path.exists():
+        return path
+    n = int(EXTENT_CELLS * CELL_M / RAIN_CELL_M)
+    steps = HOURS * 60 // STEP_MIN
+    x = WEST_M + RAIN_CELL_M * (np.arange(n) + 0.5)
+    y = NORTH_M - RAIN_CELL_M * (np.arange(n) + 0.5)
+    rng = np.random.default_rng(3)
+    values = np.empty((steps, n, n), dtype=np.float32)
+    gx, gy = np.meshgrid(np.arange(n), np.arange(n))
+    for k in range(steps):
+        cx, cy = n * k / steps, n / 2 + n / 4 * np.sin(k / 40)
+        peak = 40 * np.exp(-((gx - cx) ** 2 + (gy - cy) ** 2) / (2 * (n / 6) ** 2))
+        values[k] = peak * rng.uniform(0.8, 1.2, size=(n, n))
+    minutes = STEP_MIN * (np.arange(steps) + 1.0)
+    ds = xr.Dataset(
+        {"rain_rate": (("time", "y", "x"), values, {"units": "mm h-1", "grid_mapping": "crs"})},
+        coords={"time": ("time", minutes, {"units": "minutes since 2026-07-01 00:00:00",
+                                           "standard_name": "time"}),
+                "y": ("y", y, {"standard_name": "projection_y_coordinate", "units": "m"}),
+                "x": ("x", x, {"standard_name": "projection_x_coordinate", "units": "m"})})
+    ds["crs"] = ((), 0, CRS(BENCH_CRS).to_cf())
+    path.parent.mkdir(parents=True, exist_ok=True)
+    encoding = {"rain_rate": {"zlib": True, "complevel": 4, "shuffle": True,
+                              "chunksizes": (1, n, n)}} if deflate else {}
+    ds.to_netcdf(path.with_suffix(".partial.nc"), encoding=encoding)
+    path.with_suffix(".partial.nc").rename(path)
+    return path
+
+
+def read_once(stack) -> float:
+    """Read every block of the stack, as grid_areal_depth does; returns the total (kept)."""
+    k, total = steps_per_block(stack), 0.0
+    for first in range(0, stack.steps, k):
+        total += float(np.nansum(stack.read_steps(first, min(first + k, stack.steps))))
+    return total
+
+
+def timed(fn, *args, **kwargs):
+    t0 = time.perf_counter()
+    out = fn(*args, **kwargs)
+    return time.perf_counter() - t0, out
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--polygons", type=int, default=100_000)
+    parser.add_argument("--repeat", type=int, default=3)
+    args = parser.parse_args(argv)
+    folder = HERE / "scratch" / f"rain_grid_polygons{args.polygons}"
+    gpkg = folder / "subcatchments.gpkg"
+    if not gpkg.exists():
+        make_subcatchments(folder, n_polygons=args.polygons, n_cells=EXTENT_CELLS, cell_m=CELL_M)
+    subs = gpd.read_file(gpkg, layer="subcatchments", engine="pyogrio")
+    stacks = {kind: open_rain_grid(RainGridSettings(write_rain(
+        folder / f"rain_1km_5min_24h_{kind}.nc", deflate=kind == "deflate")))
+        for kind in ("plain", "deflate")}
+    t_weights, weights = timed(rain_grid_weights, subs.geometry, subs["subcatchment_code"],
+                               stacks["plain"])
+    times: dict[str, list[float]] = {}
+    for _ in range(args.repeat):  # interleaved, the fastest of each kept
+        for kind, stack in stacks.items():
+            times.setdefault(f"read {kind}", []).append(timed(read_once, stack)[0])
+            times.setdefault(f"areal {kind}", []).append(
+                timed(grid_areal_depth, weights, stack)[0])
+    tracemalloc.start()
+    depth = grid_areal_depth(weights, stacks["plain"])
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    best = {name: min(values) for name, values in times.items()}
+    _report(args, stacks["plain"], weights, depth, t_weights, best, peak)
+    return 0
+
+
+def _report(args, stack, weights, depth, t_weights, best, peak) -> None:
+    rows = [(f"{what}, {kind} NetCDF", best[f"{what.split()[0]} {kind}"], call)
+            for kind in ("plain", "deflate")
+            for what, call in (("read the stack once", "RainStack.read_steps, every block"),
+                               ("areal rain, all steps", "grid_areal_depth(weights, stack)"))]
+    rows.append(("weights (once per run)", t_weights,
+                 "rain_grid_weights(subcatchments.geometry, ids, stack)"))
+    print(f"{args.polygons:,} subcatchments; rain grid {stack.width} x {stack.height} cells of "
+          f"1 km, {stack.steps} steps of {stack.step_s / 60:g} min; {weights.matrix.nnz:,} "
+          f"weights; block of {steps_per_block(stack)} steps")
+    print(pd.DataFrame(rows, columns=["what", "seconds", "call"]).to_string(index=False))
+    for kind in ("plain", "deflate"):
+        read, areal = best[f"read {kind}"], best[f"areal {kind}"]
+        print(f"{kind} NetCDF: areal rain / read once {areal / read:.2f} (target <= 2); "
+              f"(weights + areal rain) / read once {(t_weights + areal) / read:.2f}")
+    print(f"peak traced memory of the areal call: {peak / 2**20:.0f} MB (result alone "
+          f"{depth.nbytes / 2**20:.0f} MB); process peak resident "
+          f"{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,192 @@
+"""Read a rain stack from a NetCDF file following the CF conventions (through xarray).
+
+The time coordinate is decoded by xarray's CF decoding (``units = "minutes since ..."``,
+any CF calendar through cftime); CF time bounds, when the time coordinate names them, give
+the step and its start. The grid's axes are found by their CF attributes (``axis``,
+``standard_name``, ``units``) or their usual names; the CRS by the variable's
+``grid_mapping`` (``pyproj.CRS.from_cf``), or longitude-latitude on WGS 84 for
+``longitude``/``latitude`` axes with no grid mapping (common practice), or as the project
+states.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+from numpy.typing import NDArray
+from pyproj import CRS
+from pyproj.exceptions import CRSError as _PyprojCRSError
+
+from ..crs import checked_crs
+from ..errors import StormError
+from .rain_sources import FoundStack, RainGridSettings, affine_from_centres
+
+__all__ = ["describe", "read_steps"]
+
+_X_NAMES = {"standard_name": ("projection_x_coordinate", "longitude", "grid_longitude"),
+            "units": ("degrees_east", "degree_east", "degree_e", "degrees_e"),
+            "name": ("x", "lon", "longitude", "easting")}
+_Y_NAMES = {"standard_name": ("projection_y_coordinate", "latitude", "grid_latitude"),
+            "units": ("degrees_north", "degree_north", "degree_n", "degrees_n"),
+            "name": ("y", "lat", "latitude", "northing")}
+
+
+def describe(settings: RainGridSettings) -> FoundStack:
+    """Grid, CRS, times and unit of the rain variable of a CF NetCDF file.
+
+    Raises
+    ------
+    StormError
+        For an unreadable file, a missing variable, time units that are not CF or not
+        understood, time bounds that do not match the times, or irregular axes.
+    """
+    path = Path(settings.path)
+    with _open(path) as ds:
+        name = _variable(ds, settings.variable, path)
+        var = ds[name]
+        where = f"{path.name}:{name}"
+        tdim, ydim, xdim = _dims(var, where)
+        times = _times(ds[tdim], f"{path.name}:{tdim}")
+        step_s, start = _bounds(ds, tdim, times, f"{path.name}:{tdim}")
+        x = np.asarray(ds[xdim].values, dtype=np.float64)
+        y = np.asarray(ds[ydim].values, dtype=np.float64)
+        transform = affine_from_centres(x, y, where)
+        crs = _crs(ds, var, _is_lonlat(ds[xdim], ds[ydim]), settings.crs, where)
+        unit = var.attrs.get("units")
+        return FoundStack(crs, transform, x.size, y.size, times, _text(unit), where,
+                          step_s=step_s, start=start, variable=name)
+
+
+def read_steps(path: str, variable: str, first: int, stop: int, where: str
+               ) -> NDArray[np.float64]:
+    """Values of ``variable`` at time steps ``first:stop``, ``(k, y, x)``; NaN where missing."""
+    with _open(Path(path), decode_times=False) as ds:
+        var = ds[variable]
+        tdim, ydim, xdim = _dims(var, where)
+        block = var.isel({tdim: slice(first, stop)}).transpose(tdim, ydim, xdim)
+        return np.array(block.values, dtype=np.float64)
+
+
+def _open(path: Path, decode_times: bool = True) -> xr.Dataset:
+    try:
+        return xr.open_dataset(path, decode_times=decode_times, decode_timedelta=False)
+    except ValueError as err:
+        if decode_times and "time" in str(err):
+            raise _time_error(path, err) from None
+        raise StormError(str(path), f"cannot be read as NetCDF ({_first_line(err)})",
+                         "check that the file is a NetCDF file") from None
+    except OSError as err:
+        raise StormError(str(path), f"cannot be opened ({_first_line(err)})",
+                         "check the path and that the file is a readable NetCDF file") from None
+
+
+def _time_error(path: Path, err: Exception) -> StormError:
+    with _open(path, decode_times=False) as ds:
+        names = [n for n in ds.variables if "since" in str(ds[n].attrs.get("units", ""))]
+        name = names[0] if names else "time"
+        units = ds[name].attrs.get("units") if name in ds.variables else None
+    return StormError(f"{path.name}:{name}", f"time units {units!r} are not understood "
+                      f"({_first_line(err)})", "write CF time units such as 'minutes since "
+                      "2026-07-01 00:00:00'")
+
+
+def _variable(ds: xr.Dataset, wanted: str | None, path: Path) -> str:
+    candidates = [str(n) for n, v in ds.data_vars.items() if v.ndim == 3]
+    if wanted is not None:
+        if wanted not in ds.data_vars:
+            raise StormError(str(path), f"has no variable {wanted!r}",
+                             f"give variable = one of {candidates or list(ds.data_vars)}")
+        return wanted
+    if len(candidates) != 1:
+        raise StormError(str(path), f"has {len(candidates)} gridded variables "
+                         f"{candidates}", "name the rain one with variable = ...")
+    return candidates[0]
+
+
+def _dims(var: xr.DataArray, where: str) -> tuple[str, str, str]:
+    dims = [str(d) for d in var.dims]
+    if len(dims) != 3:
+        raise StormError(where, f"has dimensions {dims}", "give a variable on (time, y, x)")
+    x = _axis(var, dims, "X", _X_NAMES)
+    y = _axis(var, dims, "Y", _Y_NAMES)
+    rest = [d for d in dims if d not in (x, y)]
+    if x is None or y is None or len(rest) != 1:
+        raise StormError(where, f"has no recognisable x, y and time dimensions among {dims}",
+                         "give the coordinates CF attributes (axis = 'X' / 'Y' / 'T')")
+    return rest[0], y, x
+
+
+def _axis(var: xr.DataArray, dims: list[str], axis: str, names: dict[str, tuple[str, ...]]
+          ) -> str | None:
+    for d in dims:
+        attrs = var[d].attrs if d in var.coords else {}
+        if str(attrs.get("axis", "")).upper() == axis:
+            return d
+        if str(attrs.get("standard_name", "")).lower() in names["standard_name"]:
+            return d
+        if str(attrs.get("units", "")).lower() in names["units"]:
+            return d
+    return next((d for d in dims if d.lower() in names["name"]), None)
+
+
+def _times(coord: xr.DataArray, where: str) -> tuple[Any, ...]:
+    values = np.ravel(coord.values)
+    if values.dtype.kind == "M":
+        return tuple(pd.DatetimeIndex(values).to_pydatetime())
+    if values.dtype.kind == "O" and all(hasattr(v, "calendar") for v in values):
+        return tuple(values)
+    raise StormError(where, f"has no CF time units (units = {coord.attrs.get('units')!r})",
+                     "write units such as 'minutes since 2026-07-01 00:00:00'")
+
+
+def _bounds(ds: xr.Dataset, tdim: str, times: tuple[Any, ...], where: str
+            ) -> tuple[float | None, Any]:
+    """Step and start from the CF time bounds, if the time coordinate names them."""
+    name = ds[tdim].attrs.get("bounds") or ds[tdim].encoding.get("bounds")
+    if not name or name not in ds.variables:
+        return None, None
+    edges = _times(ds[name], f"{where} bounds")
+    lo, hi = edges[0::2], edges[1::2]
+    widths = np.array([(b - a).total_seconds() for a, b in zip(lo, hi, strict=True)])
+    gaps = np.array([(a - b).total_seconds() for a, b in zip(lo[1:], hi[:-1], strict=True)])
+    step = float(widths[0])
+    if step <= 0 or np.any(np.abs(widths - step) > 1e-6 * step) or np.any(np.abs(gaps) > 1e-3):
+        raise StormError(where, "has time bounds of unequal or non-contiguous steps (mismatched "
+                         "step)", "give bounds of one fixed step, each starting where the last "
+                         "ended")
+    return step, lo[0]
+
+
+def _is_lonlat(x: xr.DataArray, y: xr.DataArray) -> bool:
+    return (str(x.attrs.get("units", "")).lower() in _X_NAMES["units"]
+            or str(x.attrs.get("standard_name", "")).lower() == "longitude"
+            or str(y.attrs.get("standard_name", "")).lower() == "latitude"
+            or x.name in ("lon", "longitude"))
+
+
+def _crs(ds: xr.Dataset, var: xr.DataArray, lonlat: bool, stated: str | None,
+         where: str) -> CRS:
+    mapping = var.attrs.get("grid_mapping") or var.encoding.get("grid_mapping")
+    if mapping and str(mapping).split(":")[0] in ds.variables:
+        attrs = ds[str(mapping).split(":")[0]].attrs
+        try:
+            return CRS.from_cf(attrs)
+        except _PyprojCRSError as err:
+            raise StormError(where, f"grid_mapping {mapping!r} is not understood "
+                             f"({_first_line(err)})", "state the grid's CRS in the project "
+                             "file (crs = ...)") from None
+    if stated is None and lonlat:
+        return CRS.from_epsg(4326)
+    return checked_crs(None, where, stated=stated)
+
+
+def _text(value: object) -> str | None:
+    return None if value is None or not str(value).strip() else str(value).strip()
+
+
+def _first_line(err: Exception) -> str:
+    return str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__

@@ -1,0 +1,192 @@
+"""Reading rain stacks: CF NetCDF (xarray), multi-band GeoTIFF, a folder of GeoTIFFs."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import rasterio
+import xarray as xr
+from pyproj import CRS
+from rasterio.transform import from_origin
+
+from gisrun.errors import GisrunError
+from gisrun.io.rain_grid import RainGridSettings, open_rain_grid
+
+RNG = np.random.default_rng(11)
+
+
+def write_netcdf(path: Path, values: np.ndarray, *, units: str | None = "mm h-1",
+                 time_units: str = "minutes since 2026-07-01 00:00:00",
+                 minutes: np.ndarray | None = None, bounds: bool = False,
+                 projected: bool = False) -> Path:
+    """A CF NetCDF written with xarray: ``values`` (time, y, x)."""
+    n, ny, nx = values.shape
+    minutes = np.arange(1, n + 1) * 5.0 if minutes is None else minutes
+    attrs = {} if units is None else {"units": units}
+    if projected:
+        coords = {"y": ("y", 4_480_000.0 - 1000 * np.arange(ny),
+                        {"standard_name": "projection_y_coordinate", "units": "m"}),
+                  "x": ("x", 500_500.0 + 1000 * np.arange(nx),
+                        {"standard_name": "projection_x_coordinate", "units": "m"})}
+        attrs["grid_mapping"] = "crs"
+        dims = ("time", "y", "x")
+    else:
+        coords = {"lat": ("lat", 40.0 + 0.1 * np.arange(ny), {"units": "degrees_north"}),
+                  "lon": ("lon", -80.0 + 0.1 * np.arange(nx), {"units": "degrees_east"})}
+        dims = ("time", "lat", "lon")
+    ds = xr.Dataset({"precip": (dims, values, attrs)}, coords=coords)
+    ds["time"] = ("time", minutes, {"units": time_units, "standard_name": "time"})
+    if bounds:
+        ds["time"].attrs["bounds"] = "time_bnds"
+        ds["time_bnds"] = (("time", "nv"), np.column_stack([minutes - 5.0, minutes]))
+    if projected:
+        ds["crs"] = ((), 0, CRS("EPSG:32617").to_cf())
+    ds.to_netcdf(path)
+    return path
+
+
+def test_netcdf_intensity_becomes_depth_per_step_with_cf_times(tmp_path):
+    values = RNG.uniform(0, 30, (4, 3, 5))  # mm/h over 5-minute steps
+    stack = open_rain_grid(RainGridSettings(write_netcdf(tmp_path / "r.nc", values)))
+    assert stack.step_s == 300.0 and stack.steps == 4
+    assert stack.start == "2026-07-01T00:00:00"  # the first time marks the end of its step
+    assert stack.labels[0] == "2026-07-01T00:05:00"
+    assert stack.crs.equals(CRS("EPSG:4326"))
+    assert (stack.width, stack.height) == (5, 3)
+    assert stack.transform.c == pytest.approx(-80.05) and stack.transform.e == pytest.approx(0.1)
+    # mm/h x 5 min / 60 -> mm -> m
+    np.testing.assert_allclose(stack.read_steps(1, 3), values[1:3] * 5 / 60 / 1000, rtol=1e-12)
+
+
+def test_netcdf_time_bounds_give_the_step_and_its_start(tmp_path):
+    path = write_netcdf(tmp_path / "r.nc", np.ones((3, 2, 2)), units="kg m-2", bounds=True)
+    stack = open_rain_grid(RainGridSettings(path, time_marks="start"))  # bounds win
+    assert stack.start == "2026-07-01T00:00:00" and stack.step_s == 300.0
+    np.testing.assert_allclose(stack.read_steps(0, 3), 0.001)  # 1 kg m-2 = 1 mm
+
+
+def test_netcdf_grid_mapping_gives_the_crs(tmp_path):
+    path = write_netcdf(tmp_path / "r.nc", np.ones((2, 3, 2)), units="mm", projected=True)
+    stack = open_rain_grid(RainGridSettings(path))
+    assert stack.crs.to_epsg() == 32617
+    assert (stack.transform.a, stack.transform.e) == (1000.0, -1000.0)
+    assert (stack.transform.c, stack.transform.f) == (500_000.0, 4_480_500.0)
+
+
+@pytest.mark.parametrize("case, message", [
+    ("fortnights", r"r\.nc:time: time units 'fortnights since 2026-07-01' are not understood"),
+    ("no_since", r"r\.nc:time: has no CF time units"),
+    ("irregular", r"r\.nc:precip: has an irregular time step: 5 min at first, 10 min from "
+                  r"2026-07-01T00:10:00"),
+    ("unit", r"r\.nc:precip: rain unit 'furlongs' is not understood"),
+    ("no_unit", r"r\.nc:precip: has no rain unit"),
+    ("step_min", r"r\.nc:precip: has a step of 5 min but the project file says step_min = 10"),
+    ("rain_is", r"r\.nc:precip: rain_is = 'depth' but its unit 'mm h-1' is an intensity"),
+    ("variable", r"r\.nc: has no variable 'rain'"),
+])
+def test_bad_netcdf_is_a_one_line_error(tmp_path, case, message):
+    kwargs, settings = {}, {}
+    if case == "fortnights":
+        kwargs["time_units"] = "fortnights since 2026-07-01"
+    elif case == "no_since":
+        kwargs["time_units"] = "minutes"
+    elif case == "irregular":
+        kwargs["minutes"] = np.array([5.0, 10.0, 20.0, 25.0])
+    elif case in ("unit", "no_unit"):
+        kwargs["units"] = "furlongs" if case == "unit" else None
+    settings = {"step_min": {"step_s": 600.0}, "rain_is": {"rain_is": "depth"},
+                "variable": {"variable": "rain"}}.get(case, {})
+    path = write_netcdf(tmp_path / "r.nc", np.ones((4, 2, 2)), **kwargs)
+    with pytest.raises(GisrunError, match=message) as err:
+        open_rain_grid(RainGridSettings(path, **settings))
+    assert "\n" not in str(err.value)
+
+
+def _write_bands(path: Path, values: np.ndarray, descriptions: list[str] | None,
+                 unit: str | None = "mm", nodata: float | None = None) -> Path:
+    profile = {"driver": "GTiff", "height": values.shape[1], "width": values.shape[2],
+               "count": values.shape[0], "dtype": "float32", "crs": "EPSG:32617",
+               "transform": from_origin(500_000, 4_480_000, 1000, 1000), "nodata": nodata}
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(values.astype(np.float32))
+        for b in range(1, values.shape[0] + 1):
+            if descriptions:
+                dst.set_band_description(b, descriptions[b - 1])
+            if unit:
+                dst.set_band_unit(b, unit)
+    return path
+
+
+def test_multiband_geotiff_with_band_times(tmp_path):
+    values = RNG.uniform(0, 2, (3, 2, 4)).astype(np.float32)
+    values[1, 0, 0] = -9999
+    times = [f"2026-07-01T00:{m:02d}:00" for m in (10, 20, 30)]
+    path = _write_bands(tmp_path / "r.tif", values, times, nodata=-9999)
+    stack = open_rain_grid(RainGridSettings(path))
+    assert stack.step_s == 600.0 and stack.start == "2026-07-01T00:00:00"
+    got = stack.read_steps(0, 3)
+    assert np.isnan(got[1, 0, 0])
+    ok = ~np.isnan(got)
+    np.testing.assert_allclose(got[ok], values.astype(np.float64)[ok] / 1000, rtol=1e-12)
+
+
+def test_multiband_geotiff_times_from_the_project(tmp_path):
+    path = _write_bands(tmp_path / "r.tif", np.ones((3, 2, 2)), None, unit=None)
+    stack = open_rain_grid(RainGridSettings(path, unit="in/h", start="2026-07-01T06:00",
+                                            step_s=900.0, time_marks="start"))
+    assert stack.labels == ("2026-07-01T06:00:00", "2026-07-01T06:15:00",
+                            "2026-07-01T06:30:00")
+    np.testing.assert_allclose(stack.read_steps(2, 3), 0.0254 / 4)  # 1 in/h for 15 min
+    with pytest.raises(GisrunError, match=r"r\.tif: has no band times"):
+        open_rain_grid(RainGridSettings(path, unit="mm"))
+
+
+def _folder(tmp_path: Path, names: list[str]) -> Path:
+    folder = tmp_path / "grids"
+    folder.mkdir()
+    for k, name in enumerate(names):
+        _write_bands(folder / name, np.full((1, 2, 3), float(k)), None)
+    return folder
+
+
+def test_folder_of_geotiffs_ordered_by_the_time_in_their_names(tmp_path):
+    names = ["rain_20260701_0015.tif", "rain_20260701_0005.tif", "rain_20260701_0010.tif"]
+    folder = _folder(tmp_path, names)
+    stack = open_rain_grid(RainGridSettings(folder, time_pattern="rain_%Y%m%d_%H%M.tif"))
+    assert stack.format == "geotiff_folder" and stack.step_s == 300.0
+    assert stack.start == "2026-07-01T00:00:00"
+    # the values written were 0, 1, 2 mm in the order of `names`: time order is 1, 2, 0
+    np.testing.assert_allclose(stack.read_steps(0, 3)[:, 0, 0], [0.001, 0.002, 0.0])
+
+
+def test_folder_errors_name_the_file(tmp_path):
+    folder = _folder(tmp_path, ["rain_20260701_0005.tif", "radar_0010.tif"])
+    with pytest.raises(GisrunError, match=r"radar_0010\.tif: does not match time_pattern"):
+        open_rain_grid(RainGridSettings(folder, time_pattern="rain_%Y%m%d_%H%M.tif"))
+    with pytest.raises(GisrunError, match=r"no time_pattern is given"):
+        open_rain_grid(RainGridSettings(folder))
+
+
+def test_cf_times_decoded_by_xarray_agree_with_pandas(tmp_path):
+    # The decoded labels are xarray's; pandas' own arithmetic is the independent check.
+    minutes = np.array([7.0, 12.0, 17.0])
+    path = write_netcdf(tmp_path / "r.nc", np.zeros((3, 2, 2)), minutes=minutes,
+                        time_units="minutes since 2026-06-30 23:58:00")
+    stack = open_rain_grid(RainGridSettings(path))
+    expected = pd.Timestamp("2026-06-30 23:58:00") + pd.to_timedelta(minutes, unit="min")
+    assert stack.labels == tuple(t.isoformat() for t in expected)
+
+
+def test_a_cf_calendar_other_than_the_standard_one(tmp_path):
+    # A 365-day calendar decodes to cftime dates (xarray); the step and labels are the same.
+    path = write_netcdf(tmp_path / "r.nc", np.ones((3, 2, 2)))
+    with xr.open_dataset(path, decode_times=False) as ds:
+        ds = ds.load()
+    ds["time"].attrs["calendar"] = "noleap"
+    ds.to_netcdf(tmp_path / "noleap.nc")
+    stack = open_rain_grid(RainGridSettings(tmp_path / "noleap.nc"))
+    assert stack.step_s == 300.0 and stack.start == "2026-07-01T00:00:00"
+    assert stack.labels[-1] == "2026-07-01T00:15:00"
