@@ -13,7 +13,8 @@ from typing import Any
 
 from .units import UnitSystem
 
-__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "ImperviousSource", "Project"]
+__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "ImperviousSource",
+           "UncertaintySettings", "Project"]
 
 
 @dataclass(frozen=True)
@@ -104,6 +105,23 @@ class ImperviousSource:
 
 
 @dataclass(frozen=True)
+class UncertaintySettings:
+    """``[uncertainty]``: runoff bands from the published parameter ranges.
+
+    ``samples`` parameter sets are drawn by Latin hypercube from ``seed``; the
+    bands are the ``percentiles`` of each subcatchment's figures; ``top_k`` is the
+    length of the ponding-first list whose stability is counted; the tornado
+    figures are drawn for ``sensitivity_subcatchments`` (or the largest few).
+    """
+
+    samples: int
+    seed: int
+    percentiles: tuple[float, ...] = (10.0, 50.0, 90.0)
+    top_k: int = 10
+    sensitivity_subcatchments: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class Project:
     """A checked project: every input path absolute, every value in SI.
 
@@ -146,6 +164,8 @@ class Project:
     series: str = "auto"
     #: The ``[impervious]`` table; None when the project has none.
     impervious: ImperviousSource | None = None
+    #: Runoff bands from the parameter ranges (``[uncertainty]``); None when not asked for.
+    uncertainty: UncertaintySettings | None = None
 
     @property
     def base_dir(self) -> Path:

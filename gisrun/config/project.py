@@ -58,6 +58,7 @@ from ..units import unit_system
 from .attributes import ATTRIBUTE_KEYS, keyed_source
 from .impervious import IMPERVIOUS_KEYS, check_impervious_combination, read_impervious
 from .reader import TableReader
+from .uncertainty import UNCERTAINTY_KEYS, uncertainty_settings
 
 __all__ = [
     "PROJECT_FILE_NAMES",
@@ -81,7 +82,7 @@ _REQUIRED = ("subcatchments", "soil")
 #: Keys of each table ("" = the top level); [[storms]] keys come from the storm kinds.
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
-         "storms", "rain_scale", "impervious"),
+         "storms", "rain_scale", "impervious", "uncertainty"),
     "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache",
                 "series"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
@@ -95,6 +96,7 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "parameters": ("overrides",),
     "rain_scale": ("field",),
     "impervious": IMPERVIOUS_KEYS,
+    "uncertainty": UNCERTAINTY_KEYS,
 }
 
 
@@ -183,10 +185,13 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         overlay_cache=top.path("overlay_cache", required=False),
         series=top.choice("series", SERIES_STORES),
         impervious=read_impervious(read["impervious"], present="impervious" in raw),
+        uncertainty=uncertainty_settings(read["uncertainty"], present="uncertainty" in raw,
+                                         combine=method.choice("combine", COMBINE_RULES)),
     )
     _check_class_labels(file, project)
     check_impervious_combination(project.impervious, combine=project.combine,
                                  compare_composite=project.compare_composite,
+                                 uncertainty=project.uncertainty is not None,
                                  where=method.where())
     return project
 

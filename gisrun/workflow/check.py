@@ -22,6 +22,7 @@ from ..io.series_file import series_path, series_store
 from ..model import Inputs
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
+from .bands import check_named_ids, check_uncertainty_ranges
 from .inputs import (
     bounds_in,
     check_overlaps,
@@ -108,6 +109,9 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str]) -> 
     if overlaid is None:
         return storm_notes
     prepared = _attempt(problems, prepare_parameters, project, inputs, overlaid[0])
+    _attempt(problems, check_named_ids, project, inputs)
+    if prepared is not None:
+        _attempt(problems, check_uncertainty_ranges, project, inputs, prepared[0])
     notes = [*overlaid[2], *(prepared[2] if prepared is not None else [])]
     return [*storm_notes, *(str(note) for note in notes)]
 

@@ -46,6 +46,9 @@ def input_checksums(project: Project,
         paths += files if files is not None else [named]
     if project.overrides:
         paths.append(Path(project.overrides))
+    for source in (project.soil, project.cover):  # attribute tables of keyed rasters
+        if source is not None and source.attributes is not None:
+            paths.append(Path(source.attributes))
     for spec in project.storms:
         for key in ("path", "idf_table"):
             if isinstance(spec.get(key), str):

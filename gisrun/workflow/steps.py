@@ -30,6 +30,7 @@ from ..model import Inputs, StormResult
 from ..parameters import assign_parameters, composite_parameters
 from ..parameters.disconnection import Disconnection, assign_disconnection, merge_sources
 from ..parameters.equivalent import LUMPED_COLUMNS, StormRunoff, lumped_parameters
+from ..parameters.keyed import table_impervious_shares
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..runon import run_with_runon
@@ -46,6 +47,7 @@ __all__ = [
     "lumped_parameter_table",
     "disconnection_spec",
     "runon_target",
+    "subcatchment_attributes",
 ]
 
 
@@ -86,6 +88,8 @@ def prepare_parameters(
 ) -> tuple[pd.DataFrame, pd.DataFrame, list]:
     """Unit parameters (SI) from the published tables and the user's overrides."""
     attributes = _subcatchment_attributes(project, inputs.subcatchments)
+    units, table_shares = table_impervious_shares(units, project.cover.keys if project.cover
+                                                  else None)
     params, sources, notes = assign_parameters(
         units,
         classification=project.soil.classification,
@@ -109,6 +113,8 @@ def prepare_parameters(
         params, more, said = assign_disconnection(
             params, disconnection_spec(project, inputs.subcatchments))
         sources, notes = merge_sources(sources, more), [*notes, *said]
+    if table_shares is not None:
+        sources = pd.concat([sources, table_shares], ignore_index=True)
     if project.combine == "composite":
         params = composite_parameters(params)
     return params.reset_index(drop=True), compact_sources(sources), notes
@@ -172,6 +178,11 @@ def compact_sources(sources: pd.DataFrame) -> pd.DataFrame:
     frame = sources[_SOURCE_KEYS].assign(unit_parts=counts.to_numpy())
     return (frame.groupby(_SOURCE_KEYS, dropna=False, sort=True)["unit_parts"].sum()
             .reset_index())
+
+
+def subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
+    """Per-subcatchment method choice and parameter values from the layer's fields (or None)."""
+    return _subcatchment_attributes(project, subs)
 
 
 def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
