@@ -423,7 +423,7 @@ CASES: dict[str, Case] = {
               _append("[impervious]\ndisconnected_fraction = 0.5\n")),
         re.compile(r"\[method\]\.combine: is 'composite'.*use combine = \"units\"")),
     "disconnection with uncertainty bands": Case(
-        _append("[impervious]\ndisconnected_fraction = 0.5\n[uncertainty]\n"),
+        _append("[impervious]\ndisconnected_fraction = 0.5\n[uncertainty]\nsamples = 20\n"),
         re.compile(r"gisrun\.toml:\[uncertainty\]: runs each soil x cover part on its own")),
     "disconnected share in the layer not a number": Case(
         _both(_polygons(_TWO, roofs=["lots", "0.2"]),

@@ -186,8 +186,7 @@ class ChunkTask:
     cells: bool = False
     #: (units, coverage, notes) of this chunk from the overlay cache; None to overlay.
     overlay: tuple[pd.DataFrame, pd.DataFrame, list[str]] | None = None
-    #: The impervious-share grid, if the project names one.
-    impervious: ClassGrid | None = None
+    impervious: ClassGrid | None = None  # the impervious-share grid, if the project names one
 
 
 @dataclass
@@ -239,8 +238,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         results = _run_storms(project, inputs, params, task.rains, sub_ids)
         if project.compare_composite and project.combine == "units":
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
-        if project.impervious is not None and project.impervious.compare_connected:
-            results = add_connected_comparison(project, inputs, units, results, sub_ids)
+        results = add_connected_comparison(project, inputs, units, results, sub_ids)
         lumped = lumped_parameter_table(project, inputs, params, results, sub_ids)
         cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
         bands = chunk_uncertainty(project, inputs, params, results, sub_ids)

@@ -35,7 +35,12 @@ def connected_project(project: Project) -> Project:
 def add_connected_comparison(project: Project, inputs: Inputs, units: pd.DataFrame,
                              results: list[StormResult], sub_ids: NDArray[np.object_]
                              ) -> list[StormResult]:
-    """Each result with the connected runoff and the difference disconnection makes (SI)."""
+    """Each result with the connected runoff and the difference disconnection makes (SI).
+
+    The results unchanged unless the project asks (``[impervious] compare_connected``).
+    """
+    if project.impervious is None or not project.impervious.compare_connected:
+        return results
     connected = connected_project(project)
     params, _, _ = prepare_parameters(connected, inputs, units)
     scale = rain_scale_for_units(project, inputs, params)
