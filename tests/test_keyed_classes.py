@@ -26,6 +26,8 @@ from gisrun import CAUTION, GisrunError, run  # noqa: E402
 from gisrun.present.layers import ponding_ranking  # noqa: E402
 from gisrun.present.report import ReportFigures, build_report  # noqa: E402
 from gisrun.config.project import load_project  # noqa: E402
+from gisrun.io.attribute_tables import read_attribute_table  # noqa: E402
+from gisrun.parameters.class_keys import keyed_classes  # noqa: E402
 
 GROUPS = {1: "A", 2: "B", 3: "C", 4: "D", 5: "B/D", 6: "C/D"}
 N_KEYS = 2000
@@ -290,3 +292,41 @@ def test_a_cover_tables_impervious_share_splits_the_units(tmp_path):
         "12,residential_quarter_acre,40\n")
     with pytest.raises(GisrunError, match=r"cover_units\.csv:line 3: sets other values"):
         load_project(project)
+
+
+def test_texture_classification_takes_the_tables_group_over_the_textures(tmp_path):
+    project = _keyed_tiny(tmp_path / "texture")
+    (project.parent / "units.csv").write_text(
+        "key,texture,hydrologic_soil_group\n101,loam,\n202,sandy loam,C\n")
+    edit_toml(project, 'classification = "hydrologic_soil_group"', 'classification = "texture"')
+    edit_toml(project, '[soil.codes]\n"1" = "A"\n"2" = "B"\n', 'attributes = "units.csv"\n')
+    result = run(load_project(project))
+    params = result.parameters[result.parameters["surface"] == "pervious"].set_index(
+        "soil_class")
+    # loam keeps its TR-55 (1986) App. A group B; sandy loam (A by texture) takes the table's C
+    assert params.loc[["loam"], "hydrologic_soil_group"].tolist() == ["B"]
+    assert params.loc[["sandy loam"], "hydrologic_soil_group"].tolist() == ["C"]
+    # Green-Ampt stays that of the texture: Rawls et al. (1983) sandy loam Ks 1.09 cm/h
+    assert params.loc[["sandy loam"], "ks_m_per_s"].iloc[0] == pytest.approx(1.09e-2 / 3600,
+                                                                             rel=1e-12)
+    sources = result.parameter_sources
+    cn = sources[(sources["parameter"] == "curve_number") & (sources["soil_class"]
+                                                              == "sandy loam")]
+    assert any("group C from units.csv" in s for s in cn["source"])
+
+
+def test_a_linearly_binned_raster_table_gets_its_keys_from_the_binning(tmp_path):
+    # GDAL's linear binning (GDALRasterAttributeTable Row0Min / BinSize attributes, no value
+    # column): row i holds the values from Row0Min + i * BinSize (GDAL raster attribute table
+    # documentation, GetLinearBinning)
+    side = tmp_path / "soil.tif.aux.xml"
+    side.write_text(
+        '<PAMDataset><PAMRasterBand band="1"><GDALRasterAttributeTable Row0Min="100" '
+        'BinSize="1" tableType="thematic"><FieldDefn index="0"><Name>hydrologic_soil_group'
+        '</Name><Type>2</Type><Usage>0</Usage></FieldDefn><Row index="0"><F>A</F></Row>'
+        '<Row index="1"><F>B/D</F></Row></GDALRasterAttributeTable></PAMRasterBand>'
+        '</PAMDataset>')
+    frame, rows, value = read_attribute_table(side)
+    assert value == "value" and rows == ["row 1", "row 2"]
+    keyed = keyed_classes(frame, key=value, kind="soil", where=side.name, row_names=rows)
+    assert keyed.codes == {100: "A", 101: "B/D"}
