@@ -34,7 +34,7 @@ from ..storm import Hyetograph
 from ..uncertainty import ChunkParts
 from .bands import chunk_uncertainty
 from .cells import slim_unit_results
-from .disconnection import add_connected_comparison
+from .disconnection import add_connected_comparison, runon_target
 from .steps import (
     add_composite_comparison,
     lumped_parameter_table,
@@ -42,7 +42,6 @@ from .steps import (
     prepare_parameters,
     rain_scale_for_units,
     run_storm,
-    runon_target,
 )
 
 __all__ = [

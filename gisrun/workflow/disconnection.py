@@ -19,7 +19,13 @@ from ..model import Inputs, StormResult
 from ..project import Project
 from .steps import prepare_parameters, rain_scale_for_units, run_storm
 
-__all__ = ["connected_project", "add_connected_comparison"]
+__all__ = ["connected_project", "add_connected_comparison", "runon_target"]
+
+
+def runon_target(project: Project) -> str | None:
+    """Where disconnected impervious runoff goes in this run; None when nothing is disconnected."""
+    source = project.impervious
+    return source.runon_to if source is not None and source.disconnects else None
 
 
 def connected_project(project: Project) -> Project:

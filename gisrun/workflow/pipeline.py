@@ -43,7 +43,8 @@ from .chunks import (
     split_overlay,
 )
 from .inputs import check_inputs_codes, read_inputs
-from .steps import compact_sources, overlay_inputs, runon_target
+from .disconnection import runon_target
+from .steps import compact_sources, overlay_inputs
 
 __all__ = ["KEEP_STEP_ARRAYS_BELOW", "Progress", "SeriesSink", "UnitSink", "run"]
 

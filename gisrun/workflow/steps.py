@@ -48,7 +48,6 @@ __all__ = [
     "rain_scale_for_units",
     "lumped_parameter_table",
     "disconnection_spec",
-    "runon_target",
     "subcatchment_attributes",
 ]
 
@@ -259,12 +258,6 @@ def run_storm(
                        layer_name=storm_layer_name(hyetograph.name),
                        file_stem=layer_name(hyetograph.name), subcatchments=subs,
                        series=series, units=units, loss=loss)
-
-
-def runon_target(project: Project) -> str | None:
-    """Where disconnected impervious runoff goes in this run; None when nothing is disconnected."""
-    source = project.impervious
-    return source.runon_to if source is not None and source.disconnects else None
 
 
 def add_composite_comparison(project: Project, inputs: Inputs, params: pd.DataFrame,
