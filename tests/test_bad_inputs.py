@@ -426,10 +426,6 @@ CASES: dict[str, Case] = {
     "disconnection with uncertainty bands": Case(
         _append("[impervious]\ndisconnected_fraction = 0.5\n[uncertainty]\nsamples = 20\n"),
         re.compile(r"gisrun\.toml:\[uncertainty\]: runs each soil x cover part on its own")),
-    "impervious grid with a polygon soil layer": Case(
-        _both(_toml('path = "soil.tif"', 'path = "soil.gpkg"\nclass_field = "group"'),
-              _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n')),
-        re.compile(r"gisrun\.toml:\[impervious\]\.path: an impervious grid is measured on")),
     "disconnected share in the layer not a number": Case(
         _both(_polygons(_TWO, roofs=["lots", "0.2"]),
               _append('[impervious]\ndisconnected_field = "roofs"\n')),

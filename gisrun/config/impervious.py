@@ -82,7 +82,7 @@ def _by_cover(table: TableReader) -> dict[str, float]:
 
 def check_impervious_combination(source: ImperviousSource | None, *, combine: str,
                                  compare_composite: bool, where: str,
-                                 uncertainty: bool = False, polygons: bool = False) -> None:
+                                 uncertainty: bool = False) -> None:
     """Stop on run options that cannot carry run-on from disconnected impervious area.
 
     A composite run averages each subcatchment into one parameter set, which has no
@@ -92,18 +92,12 @@ def check_impervious_combination(source: ImperviousSource | None, *, combine: st
     ------
     ProjectFileError
         ``combine = "composite"``, ``compare_composite = true`` or an ``[uncertainty]``
-        table (whose samples run each soil x cover part on its own) with a disconnected share;
-        an impervious grid with a polygon soil or cover layer.
+        table (whose samples run each soil x cover part on its own) with a disconnected share.
     """
-    at = where.rsplit(":", 1)[0]
-    if source is not None and source.path is not None and polygons:
-        raise ProjectFileError(f"{at}:[impervious].path", "an impervious grid is measured on the "
-                               "class rasters' cells, and this project's soil or cover is a "
-                               "polygon layer", "rasterise the polygon layer, or leave out the "
-                               "grid (the cover table's shares are used)")
     if source is None or not source.disconnects:
         return
     if uncertainty:
+        at = where.rsplit(":", 1)[0]
         raise ProjectFileError(f"{at}:[uncertainty]", "runs each soil x cover part on its own "
                                "and so cannot carry run-on from disconnected impervious area",
                                "remove [uncertainty] or the disconnected share for this run")

@@ -194,8 +194,6 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
     check_impervious_combination(project.impervious, combine=project.combine,
                                  compare_composite=project.compare_composite,
                                  uncertainty=project.uncertainty is not None,
-                                 polygons=project.soil.is_polygons or bool(
-                                     project.cover and project.cover.is_polygons),
                                  where=method.where())
     return project
 
