@@ -38,6 +38,7 @@ from ..runon import run_with_runon
 from ..storm import Hyetograph
 from .inputs import check_inputs_codes
 from .polygon_inputs import class_layer_sources
+from .rain import run_rain, unit_rain
 
 __all__ = [
     "overlay_inputs",
@@ -236,12 +237,16 @@ def run_storm(
     """Run every unit through one storm and aggregate to subcatchments (all SI).
 
     ``rain_per_step_m`` is the storm already resampled onto ``dt_s`` (resampled
-    here when not given). ``runon_to`` (``"unit"`` or ``"subcatchment"``) routes the
-    ``disconnected_fraction`` of impervious runoff onto pervious parts
-    (:func:`gisrun.runon.run_with_runon`); None runs every part on its rain alone.
+    here when not given): ``(steps,)``, or ``(steps, len(sub_ids))`` for a storm with areal
+    rain (:func:`gisrun.workflow.rain.run_rain`), each unit then taking its subcatchment's
+    column. ``rain_scale`` is a factor per unit (row of ``params``). ``runon_to``
+    (``"unit"`` or ``"subcatchment"``) routes the ``disconnected_fraction`` of impervious
+    runoff onto pervious parts (:func:`gisrun.runon.run_with_runon`); None runs every part
+    on its rain alone.
     """
-    rain = hyetograph.resample(dt_s) if rain_per_step_m is None else rain_per_step_m
-    rain_units = rain if rain_scale is None else rain[:, None] * rain_scale[None, :]
+    rain = (run_rain(hyetograph, dt_s, sub_ids) if rain_per_step_m is None
+            else rain_per_step_m)
+    rain_units = unit_rain(rain, params["subcatchment_id"], sub_ids, rain_scale)
     if runon_to is None:
         loss = run_losses(params, rain_units, dt_s)
     else:
