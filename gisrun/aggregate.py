@@ -211,7 +211,8 @@ def subcatchment_series(
     Returns
     -------
     DataFrame
-        ``subcatchment_id``, ``time_end_s`` (end of the step), ``rain_m``,
+        ``subcatchment_id`` (a categorical of ``sub_ids``: a run's series has millions of
+        rows and few ids), ``time_end_s`` (end of the step), ``rain_m``,
         ``infiltration_m``, ``excess_m`` (area-weighted depths in the step).
     """
     sub_ids = np.asarray(sub_ids, dtype=object)
@@ -223,8 +224,9 @@ def subcatchment_series(
         for name, arr in (("rain_m", loss.rain_m), ("infiltration_m", loss.infil_m),
                           ("excess_m", loss.excess_m))
     }
+    codes = np.repeat(np.arange(len(sub_ids), dtype=np.int32), n_steps)
     return pd.DataFrame({
-        "subcatchment_id": np.repeat(sub_ids, n_steps),
+        "subcatchment_id": pd.Categorical.from_codes(codes, categories=pd.Index(sub_ids)),
         "time_end_s": np.tile(np.arange(1, n_steps + 1) * dt_s, len(sub_ids)),
         **frames,
     })
