@@ -41,7 +41,7 @@ from make_inputs import (
 from rasterio.features import shapes
 
 from gisrun.grid.overlay import compute_unit_areas
-from gisrun.grid.polygons import class_polygons, polygon_unit_areas
+from gisrun.grid.polygons import MAX_VERTICES, class_polygons, polygon_unit_areas
 from gisrun.io.raster import read_class_raster
 from gisrun.io.vector import read_subcatchments
 
@@ -88,6 +88,10 @@ def main() -> None:
     soil, cover = read_class_raster(paths.soil), read_class_raster(paths.cover)
     soil_polygons = traced(paths.soil, SOIL, "soil (traced)")
     cover_polygons = traced(paths.cover, COVER, "cover (traced)")
+    start = time.perf_counter()  # done once per run by the workflow (align_polygon_layers)
+    soil_polygons, cover_polygons = soil_polygons.subdivide(), cover_polygons.subdivide()
+    print(f"cutting both layers into pieces of at most {MAX_VERTICES} vertices, once per run: "
+          f"{time.perf_counter() - start:.2f} s (ClassPolygons.subdivide())")
     vertices = int(shapely.get_num_coordinates(soil_polygons.geometry).sum())
     print(f"{args.cells} x {args.cells} cells, {len(subs)} subcatchments; soil traced into "
           f"{len(soil_polygons.labels)} polygons ({vertices} vertices), cover into "
