@@ -88,14 +88,14 @@ def main() -> None:
     soil, cover = read_class_raster(paths.soil), read_class_raster(paths.cover)
     soil_polygons = traced(paths.soil, SOIL, "soil (traced)")
     cover_polygons = traced(paths.cover, COVER, "cover (traced)")
-    start = time.perf_counter()  # done once per run by the workflow (align_polygon_layers)
-    soil_polygons, cover_polygons = soil_polygons.subdivide(), cover_polygons.subdivide()
-    print(f"cutting both layers into pieces of at most {MAX_VERTICES} vertices, once per run: "
-          f"{time.perf_counter() - start:.2f} s (ClassPolygons.subdivide())")
     vertices = int(shapely.get_num_coordinates(soil_polygons.geometry).sum())
     print(f"{args.cells} x {args.cells} cells, {len(subs)} subcatchments; soil traced into "
           f"{len(soil_polygons.labels)} polygons ({vertices} vertices), cover into "
           f"{len(cover_polygons.labels)}; best of {args.repeat}, interleaved")
+    start = time.perf_counter()  # done once per run by the workflow (align_polygon_layers)
+    soil_polygons, cover_polygons = soil_polygons.subdivide(), cover_polygons.subdivide()
+    print(f"cutting both layers into pieces of at most {MAX_VERTICES} vertices, once per run: "
+          f"{time.perf_counter() - start:.2f} s (ClassPolygons.subdivide())")
     options = {"nodata_rule": "dominant", "max_nodata_fraction": 1.0}
     cases = [
         ("soil polygons + cover raster",
