@@ -36,6 +36,7 @@ from ..project import Project
 from ..storm import Hyetograph
 from .inputs import check_inputs_codes
 from .polygon_inputs import class_layer_sources
+from .rain import run_rain, unit_rain
 
 __all__ = [
     "overlay_inputs",
@@ -198,11 +199,14 @@ def run_storm(
     """Run every unit through one storm and aggregate to subcatchments (all SI).
 
     ``rain_per_step_m`` is the storm already resampled onto ``dt_s`` (resampled
-    here when not given).
+    here when not given): ``(steps,)``, or ``(steps, len(sub_ids))`` for a storm with areal
+    rain (:func:`gisrun.workflow.rain.run_rain`), each unit then taking its subcatchment's
+    column. ``rain_scale`` is a factor per unit (row of ``params``).
     """
-    rain = hyetograph.resample(dt_s) if rain_per_step_m is None else rain_per_step_m
-    rain_units = rain if rain_scale is None else rain[:, None] * rain_scale[None, :]
-    loss = run_losses(params, rain_units, dt_s)
+    rain = (run_rain(hyetograph, dt_s, sub_ids) if rain_per_step_m is None
+            else rain_per_step_m)
+    loss = run_losses(params, unit_rain(rain, params["subcatchment_id"], sub_ids, rain_scale),
+                      dt_s)
     units = summarize_units(loss, params, dt_s)
     weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
     series = subcatchment_series(loss, params, sub_ids, dt_s, weights=weights)
