@@ -16,6 +16,8 @@ It writes, next to itself:
 - ``storms/gauges.gpkg``, ``storms/gauge_records.csv``: three invented rain gauges and their
   5-minute records of another event (the ``gauged_event`` storm).
 - ``gisrun.toml``: the project file that ties them together.
+- ``impervious_percent.tif`` and ``disconnected_roofs.toml``: an impervious-percent grid and a
+  second project file where most house roofs spill onto lawns (``make_impervious.py``).
 - ``soil_map.gpkg`` (layer ``soil_map``): the soil raster as polygons (each connected patch of
   one code, traced along the cell edges), field ``soil_group``; unsurveyed patches have none.
 - ``gisrun_soil_polygons.toml``: the same project with the soil map as polygons.
@@ -41,6 +43,7 @@ from rasterio.features import rasterize, shapes
 from rasterio.transform import from_origin
 from scipy.ndimage import gaussian_filter
 
+from make_impervious import impervious_percent, write_impervious, write_scenario  # noqa: E402
 from map_units import write_map_units  # noqa: E402  (beside this script)
 
 HERE = Path(__file__).resolve().parent
@@ -554,6 +557,9 @@ def main() -> None:
     pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": GPKG_DATE})
     subs.to_file(gpkg, layer="subcatchments", driver="GPKG", engine="pyogrio")
     write_project_file(HERE / "gisrun.toml")
+    write_impervious(HERE / "impervious_percent.tif", impervious_percent(cover, COVER_NODATA),
+                     frame_cover, COVER_CELL_M, CRS)
+    write_scenario(HERE / "gisrun.toml", HERE / "disconnected_roofs.toml")
     write_soil_polygons(HERE / "soil_map.gpkg", soil, frame_soil)
     (HERE / "gisrun_soil_polygons.toml").write_text(
         polygon_project_text((HERE / "gisrun.toml").read_text(encoding="utf-8")),

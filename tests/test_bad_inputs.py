@@ -443,6 +443,28 @@ CASES: dict[str, Case] = {
                         nodata=-9.0),
               _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n')),
         re.compile(r"imp\.tif.*subcatchments S1 \(80\.0%\) above \[nodata\] max_fraction")),
+    "disconnected share above one": Case(
+        _append("[impervious]\ndisconnected_fraction = 1.5\n"),
+        re.compile(r"\[impervious\]\.disconnected_fraction: is 1\.5, outside \[0, 1\]")),
+    "disconnected share by an unknown cover": Case(
+        _append("[impervious.disconnected_by_cover]\nopen_spcae_good = 0.5\n"),
+        re.compile(r"disconnected_by_cover\.open_spcae_good.*did you mean 'open_space_good'")),
+    "run-on target misspelt": Case(
+        _append('[impervious]\ndisconnected_fraction = 0.5\nrunon_to = "subcatchmnt"\n'),
+        re.compile(r"\[impervious\]\.runon_to.*did you mean 'subcatchment'")),
+    "disconnection with composite parameters": Case(
+        _both(_toml('name = "green_ampt"', 'name = "green_ampt"\ncombine = "composite"'),
+              _append("[impervious]\ndisconnected_fraction = 0.5\n")),
+        re.compile(r"\[method\]\.combine: is 'composite'.*use combine = \"units\"")),
+    "disconnection with uncertainty bands": Case(
+        _append("[impervious]\ndisconnected_fraction = 0.5\n[uncertainty]\nsamples = 20\n"),
+        re.compile(r"gisrun\.toml:\[uncertainty\]: runs each soil x cover part on its own")),
+    "disconnected share in the layer not a number": Case(
+        _both(_polygons(_TWO, roofs=["lots", "0.2"]),
+              _append('[impervious]\ndisconnected_field = "roofs"\n')),
+        re.compile(r"sub\.gpkg:roofs:id=S1: disconnected share 'lots' is not a number")),
+    "disconnected share field missing": Case(
+        _append('[impervious]\ndisconnected_field = "roof"\n'), re.compile(r"roof")),
     "empty impervious table": Case(_append('[impervious]\nrunon_to = "unit"\n'),
                                    re.compile(r"\[impervious\]: names neither")),
     # --- rain gauges --------------------------------------------------------------------------
