@@ -26,6 +26,7 @@ import numpy as np
 from ..crs import ground_areas
 from ..storm import ArealRain, Hyetograph, areal_storm
 from ..units import UnitSystem
+from .gauges import GAUGE_FILE_KEYS, GAUGE_KEYS, GAUGE_REQUIRED, build_gauges
 from .reader import TableReader
 
 __all__ = ["ArealKind", "AREAL_KINDS", "build_areal_storm", "ArealBuilder"]
@@ -51,7 +52,10 @@ class ArealKind:
 
 
 #: Kinds of areal rain, by the ``kind`` a ``[[storms]]`` table names.
-AREAL_KINDS: dict[str, ArealKind] = {}
+AREAL_KINDS: dict[str, ArealKind] = {
+    "gauges": ArealKind(GAUGE_KEYS, GAUGE_REQUIRED, GAUGE_FILE_KEYS, build_gauges,
+                        default_name="gauges"),
+}
 
 
 def build_areal_storm(kind: ArealKind, table: TableReader, subcatchments: gpd.GeoDataFrame,
