@@ -20,6 +20,7 @@ from shapely.geometry import box
 
 from gisrun.errors import GisrunError
 from gisrun.grid.rain_weights import authalic_q, rain_grid_weights, row_cell_areas_m2
+from gisrun.storm import weighted_mean
 from gisrun.storm.gridded import grid_areal_depth
 
 UTM = "EPSG:32617"
@@ -85,6 +86,8 @@ def test_areal_depth_is_the_weighted_mean_and_exact_for_a_uniform_grid():
     assert depth[0, 0] == pytest.approx(37500 / 15000, rel=1e-12)
     assert depth[0, 1] == pytest.approx(5.0, rel=1e-12)  # the plain mean of 1..9
     assert np.all(depth[1] == 0.0007)
+    # block by block, the same numbers as the areal-rain plumbing's weighted mean
+    assert np.array_equal(depth, weighted_mean(values.reshape(2, -1)[:, w.cells], w.matrix))
 
 
 def test_a_subcatchment_beyond_the_grid_is_an_error_naming_it():

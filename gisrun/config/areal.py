@@ -26,6 +26,7 @@ import numpy as np
 from ..crs import ground_areas
 from ..storm import ArealRain, Hyetograph, areal_storm
 from ..units import UnitSystem
+from .rain_grid import RAIN_GRID_KEYS, build_rain_grid
 from .reader import TableReader
 
 __all__ = ["ArealKind", "AREAL_KINDS", "build_areal_storm", "ArealBuilder"]
@@ -51,7 +52,10 @@ class ArealKind:
 
 
 #: Kinds of areal rain, by the ``kind`` a ``[[storms]]`` table names.
-AREAL_KINDS: dict[str, ArealKind] = {}
+AREAL_KINDS: dict[str, ArealKind] = {
+    "rain_grid": ArealKind(keys=RAIN_GRID_KEYS, required=("path",), file_keys=("path",),
+                           build=build_rain_grid, default_name="rain_grid"),
+}
 
 
 def build_areal_storm(kind: ArealKind, table: TableReader, subcatchments: gpd.GeoDataFrame,
