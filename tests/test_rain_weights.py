@@ -111,8 +111,8 @@ def test_nodata_in_a_used_cell_is_an_error_naming_the_subcatchment_and_time():
 
 
 def test_authalic_q_matches_pyproj_cylindrical_equal_area():
-    # Snyder (1987) eq. 10-15: the ellipsoidal cylindrical equal-area northing is a q / 2
-    # (k0 = 1); pyproj's "cea" computes it independently.
+    # Snyder (1987), ch. 10 (eq. 10-15, number from memory): the ellipsoidal cylindrical
+    # equal-area northing is a q / 2 (k0 = 1); pyproj's "cea" computes it independently.
     lat = np.array([-89.0, -45.0, 0.0, 12.5, 45.0, 60.0, 89.9])
     cea = Transformer.from_crs(WGS84, CRS("+proj=cea +ellps=WGS84 +lat_ts=0"), always_xy=True)
     _, y = cea.transform(np.zeros_like(lat), lat)
