@@ -13,6 +13,7 @@ Command line::
     python benchmarks/make_inputs.py                       # 8000 x 8000 cells, 10,000 polygons
     python benchmarks/make_inputs.py --cells 20000 --polygons 100000
     python benchmarks/make_inputs.py --cells 2000 --polygons 500 --out /tmp/small
+    python benchmarks/make_inputs.py --edge-heavy          # 100,000 small curved polygons
 
 From Python (benchmark scripts)::
 
@@ -41,6 +42,7 @@ from scipy import sparse
 __all__ = [
     "InputPaths",
     "default_out_dir",
+    "make_edge_heavy",
     "make_inputs",
     "make_rasters",
     "make_subcatchments",
@@ -58,6 +60,13 @@ PATCH_SCALES_CELLS = (160.0, 32.0)  # broad and fine patch sizes of the class fi
 PATCH_WEIGHTS = (1.0, 0.45)
 SOIL_NODATA, COVER_NODATA = 255, 0
 NODATA_SHARE = 0.004  # share of soil cells set to nodata (small scattered blobs)
+# The edge-heavy set: many small polygons with curved, densified edges (about 95 vertices each)
+# and more nodata, so that work at polygon edges dominates an overlay.
+EDGE_HEAVY = dict(n_cells=8000, n_polygons=100_000, vertex_spacing_m=11.0, nodata_share=0.03,
+                  curved_edges=True)
+# Smooth bend of the plane that makes straight edges curved: (wavelength m, amplitude m) pairs.
+BEND_WAVES = ((800.0, 30.0), (300.0, 10.0))
+BEND_RAMP_M = 2000.0  # the bend fades to nothing over this distance from the frame
 GAP_SCALE_CELLS = 10.0  # size of the nodata blobs
 GPKG_DATE = "2024-06-11T00:00:00.000Z"  # pinned so the GeoPackage is reproducible
 
@@ -88,9 +97,17 @@ class InputPaths:
                    folder / "subcatchments.gpkg", folder / "gisrun.toml")
 
 
-def default_out_dir(n_cells: int, n_polygons: int) -> Path:
-    """``benchmarks/scratch/cells<N>_polygons<M>``, next to this script."""
-    return HERE / "scratch" / f"cells{n_cells}_polygons{n_polygons}"
+def default_out_dir(n_cells: int, n_polygons: int, *, edge_heavy: bool = False) -> Path:
+    """``benchmarks/scratch/[edge_heavy_]cells<N>_polygons<M>``, next to this script."""
+    prefix = "edge_heavy_" if edge_heavy else ""
+    return HERE / "scratch" / f"{prefix}cells{n_cells}_polygons{n_polygons}"
+
+
+def make_edge_heavy(out_dir: str | Path | None = None, *, overwrite: bool = False) -> InputPaths:
+    """The edge-heavy set (``EDGE_HEAVY``): 100,000 small curved polygons, 3 % nodata."""
+    folder = out_dir or default_out_dir(EDGE_HEAVY["n_cells"], EDGE_HEAVY["n_polygons"],
+                                        edge_heavy=True)
+    return make_inputs(folder, overwrite=overwrite, **EDGE_HEAVY)
 
 
 # --- smooth random fields, evaluated strip by strip ---
@@ -162,11 +179,12 @@ def _raster_profile(n_cells: int, cell_m: float, nodata: int) -> dict:
 
 
 def make_rasters(out_dir: str | Path, *, n_cells: int = 8000, cell_m: float = CELL_M,
-                 rng_state: int = RNG_STATE) -> tuple[Path, Path]:
+                 rng_state: int = RNG_STATE, nodata_share: float = NODATA_SHARE
+                 ) -> tuple[Path, Path]:
     """Write ``soil_groups.tif`` and ``land_cover.tif`` (N x N cells) into ``out_dir``.
 
-    Soil codes 1-6 are A, B, C, D, B/D, C/D with 255 as nodata (about 0.4 % of cells, in small
-    blobs); cover codes 1-8 are the cover classes in ``COVER_CLASSES``. Both rasters share one
+    Soil codes 1-6 are A, B, C, D, B/D, C/D with 255 as nodata (``nodata_share`` of the cells,
+    0.4 % by default, in small blobs); cover codes 1-8 are the cover classes in ``COVER_CLASSES``. Both rasters share one
     grid. Written in strips of ``BLOCK`` rows, so memory does not grow with ``n_cells``.
 
     Returns
@@ -181,7 +199,7 @@ def make_rasters(out_dir: str | Path, *, n_cells: int = 8000, cell_m: float = CE
     gap_field = _SmoothField(rng, n_cells, scales_cells=(GAP_SCALE_CELLS,), weights=(1.0,))
     soil_edges = _thresholds(soil_field, n_cells, [s for _, s in SOIL_CLASSES.values()], rng)
     cover_edges = _thresholds(cover_field, n_cells, [s for _, s in COVER_CLASSES.values()], rng)
-    gap_edge = _thresholds(gap_field, n_cells, [1 - NODATA_SHARE, NODATA_SHARE], rng)[0]
+    gap_edge = _thresholds(gap_field, n_cells, [1 - nodata_share, nodata_share], rng)[0]
     with (
         rasterio.Env(GDAL_CACHEMAX=256),
         rasterio.open(paths.soil, "w", **_raster_profile(n_cells, cell_m, SOIL_NODATA)) as soil,
@@ -195,7 +213,7 @@ def make_rasters(out_dir: str | Path, *, n_cells: int = 8000, cell_m: float = CE
             soil.write(soil_codes, 1, window=window)
             cover.write(_classify(cover_field.rows(r0, r1), cover_edges, list(COVER_CLASSES)), 1,
                         window=window)
-        soil.update_tags(DATA="synthetic benchmark input",
+        soil.update_tags(DATA="synthetic benchmark input", NODATA_SHARE=repr(nodata_share),
                          **{f"CODE_{c}": label for c, (label, _) in SOIL_CLASSES.items()})
         cover.update_tags(DATA="synthetic benchmark input",
                           **{f"CODE_{c}": label for c, (label, _) in COVER_CLASSES.items()})
@@ -218,13 +236,16 @@ def _jittered_points(n_points: int, size_m: float, rng: np.random.Generator
 
 def make_subcatchments(out_dir: str | Path, *, n_polygons: int = 10_000, n_cells: int = 8000,
                        cell_m: float = CELL_M, rng_state: int = RNG_STATE,
-                       vertex_spacing_m: float | None = None) -> Path:
+                       vertex_spacing_m: float | None = None, curved_edges: bool = False
+                       ) -> Path:
     """Write ``subcatchments.gpkg`` (layer ``subcatchments``): Voronoi cells tiling the grid.
 
     Fields: ``subcatchment_code`` (``S000001`` ...), ``name``, ``loss_method`` (null for 96 %,
     ``horton`` or ``curve_number`` for 2 % each). The cells tile the raster extent less one
     cell at the edges, so every polygon lies inside the rasters. ``vertex_spacing_m`` adds
-    vertices along every edge (shared edges stay shared) to mimic digitised boundaries.
+    vertices along every edge (shared edges stay shared) to mimic digitised boundaries;
+    ``curved_edges`` then bends the plane smoothly (:func:`_bend`), so the straight Voronoi edges
+    become curves and the cells still tile the frame.
 
     Returns
     -------
@@ -242,6 +263,8 @@ def make_subcatchments(out_dir: str | Path, *, n_polygons: int = 10_000, n_cells
     geoms = shapely.set_precision(shapely.intersection(np.asarray(cells.geoms), frame), 0.01)
     if vertex_spacing_m:
         geoms = shapely.segmentize(geoms, vertex_spacing_m)
+    if curved_edges:
+        geoms = _bend(geoms, size_m, cell_m)
     centres = shapely.get_coordinates(shapely.point_on_surface(geoms))
     order = np.lexsort((centres[:, 0], -np.floor(centres[:, 1] / (size_m / np.sqrt(n_polygons)))))
     geoms = shapely.transform(geoms[order], lambda xy: xy + np.array([WEST_M, NORTH_M - size_m]))
@@ -256,6 +279,22 @@ def make_subcatchments(out_dir: str | Path, *, n_polygons: int = 10_000, n_cells
     pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": GPKG_DATE})
     frame_out.to_file(paths.subcatchments, layer="subcatchments", driver="GPKG", engine="pyogrio")
     return paths.subcatchments
+
+
+def _bend(geoms: NDArray, size_m: float, cell_m: float) -> NDArray:
+    """Move every vertex by a smooth displacement that vanishes on the frame.
+
+    x moves by a sum of sines of y and y by a sum of sines of x (``BEND_WAVES``), faded out
+    towards the frame over ``BEND_RAMP_M``. The map is one-to-one (its slopes stay well below
+    1), and equal vertices move equally, so shared edges stay shared and the tiling holds.
+    """
+    def shift(along: NDArray, across: NDArray) -> NDArray:
+        wave = sum(amp * np.sin(2 * np.pi * along / length) for length, amp in BEND_WAVES)
+        fade = np.clip(np.minimum(across - cell_m, size_m - cell_m - across) / BEND_RAMP_M, 0, 1)
+        return wave * fade
+
+    return shapely.transform(geoms, lambda xy: xy + np.column_stack(
+        [shift(xy[:, 1], xy[:, 0]), shift(xy[:, 0] + 0.37 * size_m, xy[:, 1])]))
 
 
 # --- project file ---
@@ -319,13 +358,16 @@ depth = 90
 """
 
 
-def _rasters_match(paths: InputPaths, n_cells: int, cell_m: float) -> bool:
-    """True when both rasters exist with the requested size and cell size."""
+def _rasters_match(paths: InputPaths, n_cells: int, cell_m: float, nodata_share: float) -> bool:
+    """True when both rasters exist with the requested size, cell size and nodata share."""
     for path in (paths.soil, paths.cover):
         if not path.exists():
             return False
         with rasterio.open(path) as src:
             if src.width != n_cells or src.height != n_cells or src.res[0] != cell_m:
+                return False
+            if path == paths.soil and src.tags().get("NODATA_SHARE", repr(NODATA_SHARE)) != repr(
+                    nodata_share):
                 return False
     return True
 
@@ -339,19 +381,20 @@ def _polygons_match(paths: InputPaths, n_polygons: int) -> bool:
 
 def make_inputs(out_dir: str | Path | None = None, *, n_cells: int = 8000,
                 n_polygons: int = 10_000, cell_m: float = CELL_M,
-                vertex_spacing_m: float | None = None, overwrite: bool = False) -> InputPaths:
+                vertex_spacing_m: float | None = None, nodata_share: float = NODATA_SHARE,
+                curved_edges: bool = False, overwrite: bool = False) -> InputPaths:
     """Make (or reuse) a full set of inputs: both rasters, the subcatchments, the project file.
 
     Files that already exist with the requested sizes are kept unless ``overwrite`` (the check
-    is by raster size and polygon count only, not by content).
+    is by raster size, soil nodata share and polygon count only, not by content).
     """
     paths = InputPaths.in_folder(Path(out_dir) if out_dir else default_out_dir(n_cells,
                                                                                n_polygons))
-    if overwrite or not _rasters_match(paths, n_cells, cell_m):
-        make_rasters(paths.folder, n_cells=n_cells, cell_m=cell_m)
+    if overwrite or not _rasters_match(paths, n_cells, cell_m, nodata_share):
+        make_rasters(paths.folder, n_cells=n_cells, cell_m=cell_m, nodata_share=nodata_share)
     if overwrite or not _polygons_match(paths, n_polygons):
         make_subcatchments(paths.folder, n_polygons=n_polygons, n_cells=n_cells, cell_m=cell_m,
-                           vertex_spacing_m=vertex_spacing_m)
+                           vertex_spacing_m=vertex_spacing_m, curved_edges=curved_edges)
     write_project_file(paths.folder, n_cells=n_cells, n_polygons=n_polygons)
     return paths
 
@@ -366,6 +409,10 @@ def _parse(argv: list[str] | None) -> argparse.Namespace:
     parser.add_argument("--cell-size-m", type=float, default=CELL_M, help="cell size, m (10)")
     parser.add_argument("--vertex-spacing-m", type=float, default=None,
                         help="add polygon vertices at this spacing, m (default: none added)")
+    parser.add_argument("--edge-heavy", action="store_true",
+                        help="the edge-heavy set: 8000 x 8000 cells, 100,000 curved polygons of "
+                        "about 95 vertices, 3 %% soil nodata (ignores --cells, --polygons, "
+                        "--vertex-spacing-m)")
     parser.add_argument("--overwrite", action="store_true", help="rewrite files that exist")
     return parser.parse_args(argv)
 
@@ -374,9 +421,13 @@ def main(argv: list[str] | None = None) -> int:
     """Command-line entry point: make the inputs and print what was written."""
     args = _parse(argv)
     start = time.perf_counter()
-    paths = make_inputs(args.out, n_cells=args.cells, n_polygons=args.polygons,
-                        cell_m=args.cell_size_m, vertex_spacing_m=args.vertex_spacing_m,
-                        overwrite=args.overwrite)
+    if args.edge_heavy:
+        paths = make_edge_heavy(args.out, overwrite=args.overwrite)
+        args.cells, args.polygons = EDGE_HEAVY["n_cells"], EDGE_HEAVY["n_polygons"]
+    else:
+        paths = make_inputs(args.out, n_cells=args.cells, n_polygons=args.polygons,
+                            cell_m=args.cell_size_m, vertex_spacing_m=args.vertex_spacing_m,
+                            overwrite=args.overwrite)
     for path in (paths.soil, paths.cover, paths.subcatchments, paths.project):
         print(f"{path}  {path.stat().st_size / 1e6:9.2f} MB")
     print(f"{args.cells} x {args.cells} cells, {args.polygons} polygons in "

@@ -17,6 +17,9 @@ It writes, next to itself:
   longitude-latitude cells, 5-minute rain rates): the observed event with a storm cell
   crossing the valley.
 - ``gisrun.toml``: the project file that ties them together.
+- ``soil_map_units.tif``, ``soil_map_units.csv``, ``gisrun_map_units.toml``: the soil map as
+  map-unit keys with an attribute table, and the project file that reads them
+  (``map_units.py``).
 
 The data exist to show the program working; they are never a test reference.
 """
@@ -36,6 +39,8 @@ from numpy.typing import NDArray
 from rasterio.features import rasterize
 from rasterio.transform import from_origin
 from scipy.ndimage import gaussian_filter
+
+from map_units import write_map_units  # noqa: E402  (beside this script)
 
 HERE = Path(__file__).resolve().parent
 RNG_STATE = 20240611  # fixed state of the random-number generator: same files every run
@@ -517,6 +522,7 @@ def main() -> None:
     pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": GPKG_DATE})
     subs.to_file(gpkg, layer="subcatchments", driver="GPKG", engine="pyogrio")
     write_project_file(HERE / "gisrun.toml")
+    write_map_units(HERE, SOIL_CODES)
     print(f"{TOWN}: {len(subs)} subcatchments, {subs.area.sum() / 1e6:.2f} km2; "
           f"soil {soil.shape[1]}x{soil.shape[0]} @ {SOIL_CELL_M:g} m, "
           f"cover {cover.shape[1]}x{cover.shape[0]} @ {COVER_CELL_M:g} m; written to {HERE}")

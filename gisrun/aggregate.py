@@ -28,6 +28,7 @@ __all__ = [
     "summarize_units",
     "subcatchment_series",
     "soil_shares",
+    "earliest_ponding",
     "MassBalanceError",
 ]
 
@@ -255,6 +256,16 @@ def _group_min(values: NDArray[np.float64], weights: sp.csr_matrix,
     np.minimum.at(out, coo.row[keep], values[coo.col[keep]])
     out[np.isinf(out)] = np.nan
     return out
+
+
+def earliest_ponding(unit_ponding_s: NDArray[np.float64], weights: sp.csr_matrix,
+                     pervious: NDArray[np.bool_]) -> NDArray[np.float64]:
+    """A subcatchment's time to ponding from its units' (as :func:`summarize_subcatchments`).
+
+    The earliest ponding instant among the pervious units of each row of
+    ``weights``; NaN where none ponds.
+    """
+    return _group_min(unit_ponding_s, weights, pervious)
 
 
 def _check_mass_balance(out: pd.DataFrame) -> None:

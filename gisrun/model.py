@@ -22,16 +22,24 @@ from pyproj import CRS
 
 from .engine import LossResult
 from .grid.classes import ClassGrid
-from .project import Project
+from .project import Project, UncertaintySettings
 from .storm import Hyetograph
 
-__all__ = ["CAUTION", "GridSpec", "CellRasters", "Inputs", "StormResult", "RunResult"]
+__all__ = ["CAUTION", "BAND_CAUTION", "GridSpec", "CellRasters", "Inputs", "StormResult",
+           "UncertaintyResult", "RunResult"]
 
 #: Printed by the CLI, written into the run table and the report.
 CAUTION = (
     "Planning-level estimates only. Runoff figures depend on published typical parameters and "
     "simplified loss methods; before sizing drains or judging flood risk, check them against "
     "local codes and agency methods and have them reviewed by a licensed engineer."
+)
+
+#: Said wherever runoff bands are shown (report, README, run table).
+BAND_CAUTION = (
+    "The bands cover the spread of the loss parameters within their published ranges only: "
+    "not the error of the loss methods themselves, nor of the rain, the soil and cover maps or "
+    "the subcatchment boundaries. The true runoff can lie outside them."
 )
 
 
@@ -103,6 +111,25 @@ class StormResult:
 
 
 @dataclass(frozen=True)
+class UncertaintyResult:
+    """Runoff bands from the parameter ranges (:mod:`gisrun.uncertainty`), SI columns.
+
+    ``bands``: per storm and subcatchment the percentiles of runoff depth, volume
+    and time to ponding, ``ponding_probability``, ``first_to_pond_share`` (share
+    of samples in which it is among the first ``top_k`` to pond) and
+    ``most_influential_parameter``. ``sensitivity``: the one-at-a-time table.
+    ``draws``: what was sampled, its distribution and the source of its range.
+    """
+
+    settings: UncertaintySettings
+    bands: pd.DataFrame
+    sensitivity: pd.DataFrame
+    draws: pd.DataFrame
+    #: Subcatchments drawn as tornado figures (named in the project, or the largest).
+    tornado_subcatchments: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class RunResult:
     """A whole run: the overlay, the parameters and one :class:`StormResult` per storm.
 
@@ -139,3 +166,5 @@ class RunResult:
     #: Name of the Parquet file beside the GeoPackage that holds the excess series (set by the
     #: writer that wrote it); None when they are the GeoPackage's ``excess_series`` table.
     series_file: str | None = None
+    #: Runoff bands and sensitivity (``[uncertainty]``); None when not asked for.
+    uncertainty: UncertaintyResult | None = None

@@ -106,6 +106,9 @@ UNIT_SYSTEMS = Choices(tuple(SYSTEMS), what="unit system", default="si")
 #: (root searches), the area-weighted set only, or none.
 LUMPED_PARAMETER_SETS = Choices(("auto", "solve", "area_weighted", "off"),
                                 what="lumped parameters choice", default="auto")
+#: What a raster key missing from its attribute table does (``[soil] unlisted_keys``):
+#: stop, or count its cells as nodata (then the nodata rule applies).
+UNLISTED_KEY_RULES = Choices(("error", "nodata"), what="unlisted key rule", default="error")
 #: Where a run's excess-rainfall series go (``[project] series``): the GeoPackage's
 #: ``excess_series`` table, a Parquet file beside it, or "auto" (by size, see
 #: :data:`gisrun.workflow.series.SERIES_IN_GEOPACKAGE_BELOW`).
@@ -129,6 +132,7 @@ CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
     "dual_group_condition": DUAL_GROUP_CONDITIONS, "units": UNIT_SYSTEMS,
     "lumped_parameters": LUMPED_PARAMETER_SETS, "series": SERIES_STORES,
+    "unlisted_keys": UNLISTED_KEY_RULES,
     "impervious_scale": IMPERVIOUS_SCALES, "runon_to": RUNON_TARGETS,
     "rain_grid_format": RAIN_GRID_FORMATS, "time_marks": RAIN_TIME_MARKS,
     "rain_is": RAIN_VALUES,

@@ -13,7 +13,8 @@ from typing import Any
 
 from .units import UnitSystem
 
-__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "ImperviousSource", "Project"]
+__all__ = ["SubcatchmentSource", "SoilSource", "CoverSource", "ImperviousSource",
+           "UncertaintySettings", "Project"]
 
 
 @dataclass(frozen=True)
@@ -33,7 +34,12 @@ class SubcatchmentSource:
 
 @dataclass(frozen=True)
 class SoilSource:
-    """The soil raster, its code table and the soil choices of the run."""
+    """The soil raster, its code table and the soil choices of the run.
+
+    With an attribute table (``[soil] attributes``) ``codes`` is the table's
+    key -> class map and ``keys`` the :class:`gisrun.parameters.class_keys.KeyedClasses`
+    it was read into (typed loosely here so the project types import no compute).
+    """
 
     path: Path
     codes: dict[int, str]
@@ -42,15 +48,21 @@ class SoilSource:
     initial_saturation: float = 0.3
     crs: str | None = None
     initial_water_content: float | None = None
+    keys: Any = None
+    attributes: Path | None = None
+    unlisted_keys: str = "error"
 
 
 @dataclass(frozen=True)
 class CoverSource:
-    """The land-cover raster and its code table."""
+    """The land-cover raster and its code table (or attribute table, as for the soil)."""
 
     path: Path
     codes: dict[int, str]
     crs: str | None = None
+    keys: Any = None
+    attributes: Path | None = None
+    unlisted_keys: str = "error"
 
 
 @dataclass(frozen=True)
@@ -90,6 +102,23 @@ class ImperviousSource:
         """Whether any disconnected share is stated."""
         return (self.disconnected_fraction is not None or self.disconnected_field is not None
                 or bool(self.disconnected_by_cover))
+
+
+@dataclass(frozen=True)
+class UncertaintySettings:
+    """``[uncertainty]``: runoff bands from the published parameter ranges.
+
+    ``samples`` parameter sets are drawn by Latin hypercube from ``seed``; the
+    bands are the ``percentiles`` of each subcatchment's figures; ``top_k`` is the
+    length of the ponding-first list whose stability is counted; the tornado
+    figures are drawn for ``sensitivity_subcatchments`` (or the largest few).
+    """
+
+    samples: int
+    seed: int
+    percentiles: tuple[float, ...] = (10.0, 50.0, 90.0)
+    top_k: int = 10
+    sensitivity_subcatchments: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -137,6 +166,8 @@ class Project:
     series: str = "auto"
     #: The ``[impervious]`` table; None when the project has none.
     impervious: ImperviousSource | None = None
+    #: Runoff bands from the parameter ranges (``[uncertainty]``); None when not asked for.
+    uncertainty: UncertaintySettings | None = None
 
     @property
     def base_dir(self) -> Path:
@@ -151,8 +182,12 @@ class Project:
         """Every file the run reads, by what it is (``"soil raster"``); no file is opened."""
         files = {"project file": self.path, "subcatchment file": self.subcatchments.path,
                  "soil raster": self.soil.path}
+        if self.soil.attributes is not None:
+            files["soil attribute table"] = self.soil.attributes
         if self.cover is not None:
             files["cover raster"] = self.cover.path
+            if self.cover.attributes is not None:
+                files["cover attribute table"] = self.cover.attributes
         if self.overrides is not None:
             files["parameter override file"] = self.overrides
         if self.impervious is not None and self.impervious.path is not None:

@@ -309,6 +309,30 @@ CASES: dict[str, Case] = {
     "negative moisture deficit": Case(
         _with_overrides("# site tests\nsoil_class,moisture_deficit\nA,0.2\nB,-0.05\n"),
         re.compile(r"over\.csv:line 4:moisture_deficit")),
+    "override range low above high": Case(
+        _with_overrides("soil_class,ks_mm_per_h_low,ks_mm_per_h_high\nA,9,1\n"),
+        re.compile(r"over\.csv:line 2:ks_mm_per_h_low")),
+    "override range without its low end": Case(
+        _with_overrides("soil_class,ks_mm_per_h_high\nA,9\n"),
+        re.compile(r"over\.csv:ks_mm_per_h_high")),
+    "override range missing the value used": Case(
+        _both(_with_overrides("soil_class,ks_mm_per_h_low,ks_mm_per_h_high\nA,1,2\n"),
+              _toml("[method]", "[uncertainty]\nsamples = 4\n\n[method]")),
+        re.compile(r"over\.csv:line 2:ks_m_per_s_low/_high")),
+    # --- uncertainty runs ---------------------------------------------------------------------
+    "uncertainty with one sample": Case(_toml("[method]", "[uncertainty]\nsamples = 1\n\n[method]"),
+                                        re.compile(r"\[uncertainty\]\.samples")),
+    "uncertainty percentiles not ascending": Case(
+        _toml("[method]", "[uncertainty]\nsamples = 4\npercentiles = [50, 10]\n\n[method]"),
+        re.compile(r"\[uncertainty\]\.percentiles")),
+    "uncertainty with composite parameters": Case(
+        _toml('name = "green_ampt"', 'name = "green_ampt"\ncombine = "composite"\n\n'
+              '[uncertainty]\nsamples = 4'),
+        re.compile(r"\[uncertainty\]")),
+    "uncertainty tornado id unknown": Case(
+        _toml("[method]", '[uncertainty]\nsamples = 4\nsensitivity_subcatchments = ["S9"]\n'
+              "\n[method]"),
+        re.compile(r"\[uncertainty\]\.sensitivity_subcatchments.*S9")),
     "override value not a number": Case(_with_overrides("soil_class,suction_head_mm\nA,deep\n"),
                                         re.compile(r"over\.csv:line 2:suction_head_mm")),
     "unknown override column": Case(_with_overrides("soil_class,ks_mmh\nA,3\n"),

@@ -153,3 +153,20 @@ def test_cell_plan_treats_the_raster_nodata_as_nodata_as_the_overlay_does():
                                cover_grid=None, soil_codes={1: "A", 9: "B"}, cover_codes=None,
                                soil_labels=["A", "B"], cover_labels=["unspecified"])
     assert plan.soil_classes.index(soil.codes).tolist() == [[0, 2]]
+
+
+@pytest.mark.parametrize("dtype", ["int32", "int64", "uint32", "uint64"])
+@pytest.mark.parametrize("span", [2_000, 2_000_000])  # the dense table, and the binary search
+def test_lookup_of_thousands_of_wide_codes_matches_a_plain_mapping(dtype, span):
+    rng = np.random.default_rng(5)
+    keys = 460_000 + rng.choice(span, 2000, replace=False)
+    codes = {int(k): "ABCDEF"[i % 6] for i, k in enumerate(keys)}
+    nodata = int(keys.min()) + 1 if int(keys.min()) + 1 not in codes else int(keys.min()) - 1
+    lookup = CodeLookup(codes, list("ABCDEF"), float(nodata), first=2, nodata_index=1,
+                        outside_index=0)
+    info = np.iinfo(dtype)
+    strange = [nodata, 0, 459_999, int(keys.max()) + 1, int(info.max), int(info.min)]
+    vals = np.array([*keys[rng.integers(0, keys.size, 5000)].tolist(), *strange], dtype=dtype)
+    expected = [1 if v == nodata else 2 + "ABCDEF".index(codes[v]) if v in codes else 1
+                for v in vals.tolist()]
+    assert lookup.index(vals.reshape(1, -1)).ravel().tolist() == expected

@@ -9,7 +9,7 @@ import numpy as np
 from rich.console import Console
 from rich.table import Table
 
-from ..model import CAUTION, RunResult, StormResult
+from ..model import BAND_CAUTION, CAUTION, RunResult, StormResult
 from ..units import UnitSystem, from_si
 
 __all__ = ["as_dict", "print_summary"]
@@ -57,8 +57,19 @@ def as_dict(result: RunResult, written: Path) -> dict[str, Any]:
         "unit_system": result.project.units.name,
         "storms": _storm_rows(result),
         "warnings": list(result.warnings),
+        "uncertainty": _bands(result),
         "caution": CAUTION,
     }
+
+
+def _bands(result: RunResult) -> dict[str, Any] | None:
+    """What the uncertainty runs did, and their caution (None when there were none)."""
+    if result.uncertainty is None:
+        return None
+    s = result.uncertainty.settings
+    return {"samples": s.samples, "seed": s.seed, "percentiles": list(s.percentiles),
+            "top_k": s.top_k, "layers": ["runoff_bands", "parameter_sensitivity",
+                                         "uncertainty_ranges"], "caution": BAND_CAUTION}
 
 
 def print_summary(result: RunResult, written: Path) -> None:
@@ -83,6 +94,12 @@ def print_summary(result: RunResult, written: Path) -> None:
     if result.series_file is not None:
         console.print(f"Excess series in {written.with_name(result.series_file)} (Parquet; "
                       f"pandas.read_parquet reads it)", highlight=False)
+    bands = _bands(result)
+    if bands is not None:
+        pct = "/".join(f"p{p:g}" for p in bands["percentiles"])
+        console.print(f"Runoff bands ({pct}) from {bands['samples']} parameter sets (seed "
+                      f"{bands['seed']}) in the layers runoff_bands and parameter_sensitivity. "
+                      f"{bands['caution']}", highlight=False)
 
 
 _LABELS = {

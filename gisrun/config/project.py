@@ -56,9 +56,11 @@ from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_l
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
 from .areal import AREAL_KINDS
+from .attributes import ATTRIBUTE_KEYS, keyed_source
 from .impervious import IMPERVIOUS_KEYS, check_impervious_combination, read_impervious
 from .reader import TableReader
 from .storms import STORM_FILE_KEYS
+from .uncertainty import UNCERTAINTY_KEYS, uncertainty_settings
 
 __all__ = [
     "PROJECT_FILE_NAMES",
@@ -82,20 +84,21 @@ _REQUIRED = ("subcatchments", "soil")
 #: Keys of each table ("" = the top level); [[storms]] keys come from the storm kinds.
 _SCHEMA: dict[str, tuple[str, ...]] = {
     "": ("project", "subcatchments", "soil", "cover", "nodata", "method", "parameters",
-         "storms", "rain_scale", "impervious"),
+         "storms", "rain_scale", "impervious", "uncertainty"),
     "project": ("name", "units", "output", "time_step_min", "memory_budget_mb", "overlay_cache",
                 "series"),
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
                       "max_overlap_fraction"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
-             "initial_water_content", "codes", "crs"),
-    "cover": ("path", "codes", "crs"),
+             "initial_water_content", "codes", "crs", *ATTRIBUTE_KEYS),
+    "cover": ("path", "codes", "crs", *ATTRIBUTE_KEYS),
     "nodata": ("rule", "max_fraction"),
     "method": ("name", "combine", "compare_composite", "initial_abstraction_ratio",
                "antecedent_condition", "lumped_parameters"),
     "parameters": ("overrides",),
     "rain_scale": ("field",),
     "impervious": IMPERVIOUS_KEYS,
+    "uncertainty": UNCERTAINTY_KEYS,
 }
 
 
@@ -186,6 +189,8 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
             [*STORM_FILE_KEYS, *(k for kind in AREAL_KINDS.values() for k in kind.file_keys)])),
         series=top.choice("series", SERIES_STORES),
         impervious=read_impervious(read["impervious"], present="impervious" in raw),
+        uncertainty=uncertainty_settings(read["uncertainty"], present="uncertainty" in raw,
+                                         combine=method.choice("combine", COMBINE_RULES)),
     )
     _check_class_labels(file, project)
     check_impervious_combination(project.impervious, combine=project.combine,
@@ -220,10 +225,12 @@ def _subcatchments(sub: TableReader) -> SubcatchmentSource:
 
 
 def _soil(soil: TableReader) -> SoilSource:
+    classification = soil.choice("classification", SOIL_CLASSIFICATIONS)
+    codes, keys, attributes, unlisted = keyed_source(soil, "soil", classification)
     return SoilSource(
         path=soil.path("path"),
-        codes=soil.codes("soil"),
-        classification=soil.choice("classification", SOIL_CLASSIFICATIONS),
+        codes=codes, keys=keys, attributes=attributes, unlisted_keys=unlisted,
+        classification=classification,
         dual_group_condition=soil.choice("dual_group_condition", DUAL_GROUP_CONDITIONS),
         initial_saturation=soil.number("initial_saturation", default=0.3, low=0.0, high=1.0),
         crs=soil.string("crs", required=False),
@@ -239,10 +246,11 @@ def _declared(method: TableReader, key: str) -> float:
 
 def _check_class_labels(file: Path, project: Project) -> None:
     """Stop on a code table entry naming a class the parameter tables do not know."""
-    for code, label in project.soil.codes.items():
-        check_soil_labels([label], project.soil.classification,
-                          f'{file.name}:[soil.codes]."{code}"')
-    if project.cover is not None:
+    if project.soil.keys is None:  # an attribute table checks its own classes
+        for code, label in project.soil.codes.items():
+            check_soil_labels([label], project.soil.classification,
+                              f'{file.name}:[soil.codes]."{code}"')
+    if project.cover is not None and project.cover.keys is None:
         for code, label in project.cover.codes.items():
             check_cover_labels([label], f'{file.name}:[cover.codes]."{code}"')
 
@@ -259,8 +267,9 @@ def _water_content(soil: TableReader) -> float | None:
 def _cover(cover: TableReader, *, present: bool) -> CoverSource | None:
     if not present or not cover.data:
         return None
-    return CoverSource(path=cover.path("path"), codes=cover.codes("cover"),
-                       crs=cover.string("crs", required=False))
+    codes, keys, attributes, unlisted = keyed_source(cover, "cover")
+    return CoverSource(path=cover.path("path"), codes=codes, keys=keys, attributes=attributes,
+                       unlisted_keys=unlisted, crs=cover.string("crs", required=False))
 
 
 def _storms(top_level: TableReader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ...]:

@@ -28,6 +28,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any, Protocol
 
 import numpy as np
@@ -36,6 +37,8 @@ from pyproj import CRS
 
 __all__ = ["ClassGrid", "read_padded", "CodeLookup", "nesting", "CentreSampling"]
 
+#: Widest span of codes (highest - lowest) looked up in a dense table (4 MB of int32).
+DENSE_TABLE_MAX = 1 << 20
 #: Tolerance, in cells, for calling a ratio of grid sizes or offsets a whole number.
 WHOLE_TOLERANCE = 1e-6
 
@@ -110,14 +113,48 @@ class CodeLookup:
         vals = np.asarray(block)
         if vals.dtype.kind in "iub" and vals.dtype.itemsize <= 2 and self.codes.size:
             out = self._small_int(vals)
+            if self.nodata is not None and not np.isnan(self.nodata):
+                out[vals == self.nodata] = self.nodata_index
+        elif vals.dtype.kind in "iu" and self._dense is not None:
+            out = self._dense_gather(vals)  # nodata is in its table
         else:
             out = self._search(vals)
-        if self.nodata is not None and not np.isnan(self.nodata):
-            out[vals == self.nodata] = self.nodata_index
+            if self.nodata is not None and not np.isnan(self.nodata):
+                out[vals == self.nodata] = self.nodata_index
         mask = np.ma.getmask(block)
         if mask is not np.ma.nomask:
             out[mask] = self.outside_index
         return out
+
+    @cached_property
+    def _dense(self) -> tuple[int, NDArray[np.int32]] | None:
+        """(lowest code - 1, table over lowest - 1 .. highest + 1) when the codes span at
+        most :data:`DENSE_TABLE_MAX` values: one gather per cell, however many codes (map-unit
+        keys run to thousands; a binary search would cost a step per doubling)."""
+        if not self.codes.size:
+            return None
+        low, high = int(self.codes[0]), int(self.codes[-1])
+        if high - low > DENSE_TABLE_MAX:
+            return None
+        table = np.full(high - low + 3, self.nodata_index, dtype=np.int32)
+        table[self.codes - low + 1] = self.idx
+        nodata = self.nodata
+        if nodata is not None and np.isfinite(nodata) and low <= nodata <= high:
+            if float(nodata).is_integer():  # nodata wins over a code, as on the other paths
+                table[int(nodata) - low + 1] = self.nodata_index
+        return low - 1, table
+
+    def _dense_gather(self, vals: NDArray[Any]) -> NDArray[np.int32]:
+        """Codes outside the table's span land on its first or last entry (nodata).
+
+        The offsets stay 32-bit for 32-bit codes when the table starts within 2**30 of 0:
+        an offset that wraps around then still falls outside the table (below 0 or above
+        2**30), so clipping sends it to nodata as it should.
+        """
+        start, table = self._dense
+        narrow = vals.dtype.itemsize <= 4 and vals.dtype.kind == "i" and abs(start) <= 1 << 30
+        offset = np.subtract(vals, start, dtype=np.int32 if narrow else np.int64)
+        return np.take(table, offset, mode="clip")
 
     def _small_int(self, vals: NDArray[Any]) -> NDArray[np.int32]:
         """One table over the whole range of a small integer type: a single gather."""

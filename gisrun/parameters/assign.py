@@ -30,8 +30,9 @@ source that gives a value wins, and the provenance table records which:
 2. override rows keyed by ``subcatchment_id`` (more keys rank higher: with soil
    and cover, then with soil, then with cover, then the id alone);
 3. override rows keyed by ``soil_class`` and ``cover_class``;
-4. override rows keyed by ``soil_class`` alone, then by ``cover_class`` alone;
-5. the shipped tables.
+4. the soil, then the cover attribute table of a keyed raster (per-key values);
+5. override rows keyed by ``soil_class`` alone, then by ``cover_class`` alone;
+6. the shipped tables.
 
 Override rows apply to the pervious part unless their ``surface`` is
 ``impervious``; a ``loss_method`` applies to both parts. A derived value
@@ -49,7 +50,9 @@ import pandas as pd
 from ..engine import PARAMETERS, method_name
 from ..errors import GisrunWarning, ParameterError
 from ..options import DUAL_GROUP_CONDITIONS, choose
+from .class_keys import KeyedClasses
 from .defaults import ASSIGNED_COLUMNS, RunSettings, shipped_values
+from .keyed import apply_keyed_values, mark_base_classes, resolve_keyed_soils
 from .overrides import PARAMETER_COLUMNS
 from .precedence import (
     apply_attributes,
@@ -62,7 +65,6 @@ from .soils import (
     CLASSIFICATIONS,
     SoilInfo,
     check_cover_labels,
-    resolve_soils,
 )
 from .tables import (
     DEFAULT_ANTECEDENT_CONDITION,
@@ -101,6 +103,8 @@ def assign_parameters(
     antecedent_condition: int = DEFAULT_ANTECEDENT_CONDITION,
     initial_water_content: float | None = None,
     compact_provenance: bool = False,
+    soil_keys: KeyedClasses | None = None,
+    cover_keys: KeyedClasses | None = None,
 ) -> AssignedParameters:
     """Give every unit SI parameters for every loss method.
 
@@ -141,6 +145,8 @@ def assign_parameters(
         Return the provenance as one row per parameter, source and
         soil x cover x surface with a ``unit_parts`` count (what the output
         stores; cheap for millions of units) instead of one row per unit part.
+    soil_keys, cover_keys : KeyedClasses, optional
+        Classes of keyed rasters and what their tables give (:mod:`~gisrun.parameters.keyed`).
 
     Returns
     -------
@@ -163,10 +169,11 @@ def assign_parameters(
     method = method_name(method, where="[method] name")
     units = _checked_units(units)
     warnings: list[GisrunWarning] = []
-    soils = resolve_soils(units["soil_class"].unique(), classification, dual_group_condition,
-                          warnings)
+    soils = resolve_keyed_soils(units["soil_class"].unique(), soil_keys, classification,
+                                dual_group_condition, warnings)
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
     all_rows = _expand(units, soils)
+    mark_base_classes(all_rows, soil_keys)
     layers = override_layers(overrides, classification)
     attributes = attribute_table(subcatchment_attributes)
     # Parameters depend on soil, cover and surface, and on the subcatchment only where a layer
@@ -180,6 +187,7 @@ def assign_parameters(
         apply_layer(rows, values, sources, ranks, rank, layer, warnings)
     if attributes is not None:
         apply_attributes(rows, values, sources, ranks, attributes)
+    apply_keyed_values(rows, values, sources, ranks, cover_keys, soil_keys)
     _rederive(rows, values, sources, ranks, initial_saturation)
     if initial_water_content is not None:
         _deficit_from_water_content(rows, values, sources, ranks, initial_water_content, warnings)

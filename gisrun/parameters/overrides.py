@@ -18,6 +18,12 @@ a published unit (``ks_mm_per_h``, ``ks_cm_per_h``, ``ks_in_per_h``,
 ...). ``effective_porosity`` and ``total_porosity`` are accepted too: the moisture
 deficit is then recomputed from the effective porosity. A blank cell leaves the
 parameter alone. A ``note`` column is allowed and ignored.
+
+Any parameter column may have a range beside it for the uncertainty runs:
+``<column>_low`` and ``<column>_high`` (``ks_mm_per_h_low``, ``ks_mm_per_h_high``),
+both given or both blank in a row, ``low <= high``, each within the parameter's
+allowed range; they become ``<SI column>_low`` / ``_high`` and do not change the
+value a run uses (:mod:`gisrun.uncertainty.ranges` reads them).
 """
 
 from __future__ import annotations
@@ -130,11 +136,16 @@ def normalize_overrides(
     out = pd.DataFrame(index=frame.index)
     for key in KEY_COLUMNS:
         out[key] = _key_column(frame, key)
+    given_as: dict[str, str] = {}
     for col in _parameter_columns(frame, where):
-        si, factor = ALIASES[col]
+        alias = col if col in ALIASES else _range_name(col) or col
+        si, factor = ALIASES[alias]
+        si += col[len(alias):]  # "_low" / "_high" of a range column
+        given_as[si] = col
         given = _numbers(frame[col], where, col, names)
         out[si] = given * factor
         _check_range(out[si], si, where, col, names, out["surface"], given)
+    _check_range_pairs(out, where, names, given_as)
     if "loss_method" in frame.columns:
         out["loss_method"] = pd.Series([
             None if _blank(v) else check_loss_method(v, f"{where}:{names[i]}:loss_method")
@@ -143,6 +154,35 @@ def normalize_overrides(
     out["override_source"] = [f"{where}:{n}" for n in names]
     _check_rows(out, where, names)
     return out
+
+
+def _range_name(col: str) -> str | None:
+    """The parameter alias of a range column (``ks_mm_per_h_low`` -> ``ks_mm_per_h``)."""
+    for end in ("_low", "_high"):
+        if col.endswith(end) and col.removesuffix(end) in ALIASES:
+            return col.removesuffix(end)
+    return None
+
+
+def _check_range_pairs(out: pd.DataFrame, where: str, names: list[str],
+                       given_as: dict[str, str]) -> None:
+    """Both ends of a range given together, low <= high (named as the user wrote them)."""
+    for col in [c for c in out.columns if c.endswith("_high")]:
+        if f"{col.removesuffix('_high')}_low" not in out.columns:
+            raise ParameterError(f"{where}:{given_as[col]}", "has no matching _low column",
+                                 "give both ends of the range")
+    for col in [c for c in out.columns if c.endswith("_low") and c in given_as]:
+        stem = col.removesuffix("_low")
+        low = out[col]
+        high = out[f"{stem}_high"] if f"{stem}_high" in out.columns else low * np.nan
+        bad = (low.isna() != high.isna()) | (low > high).fillna(False)
+        if bad.any():
+            i = int(np.flatnonzero(bad.to_numpy())[0])
+            name = given_as[col]
+            raise ParameterError(
+                f"{where}:{names[i]}:{name}",
+                f"and {name.removesuffix('_low')}_high are not a range (one blank, or low "
+                "above high)", "give both ends, the low one first, or leave both blank")
 
 
 def _blank(value: object) -> bool:
@@ -167,14 +207,15 @@ def _parameter_columns(frame: pd.DataFrame, where: str) -> list[str]:
     for col in frame.columns:
         if col in KEY_COLUMNS or col in _IGNORED or col == "loss_method":
             continue
-        if col not in ALIASES:
+        if col not in ALIASES and _range_name(col) is None:
             near = did_you_mean(col, accepted)
             hint = f"{near}; " if near.startswith("did") else ""
             raise ParameterError(
                 f"{where}:{col}", "is not a parameter column",
                 f"{hint}name a parameter with its unit, e.g. ks_mm_per_h, suction_head_mm",
             )
-        si = ALIASES[col][0]
+        alias = col if col in ALIASES else _range_name(col) or col
+        si = ALIASES[alias][0] + col[len(alias):]
         if si in seen:
             raise ParameterError(
                 f"{where}:{col}", f"gives the same parameter as column {seen[si]!r}",
@@ -203,7 +244,8 @@ def _check_range(
     given: pd.Series,
 ) -> None:
     """Check values against the parameter's declared range."""
-    p = PARAMETERS[si]
+    p = PARAMETERS[si] if si in PARAMETERS else PARAMETERS[
+        si.removesuffix("_low").removesuffix("_high")]
     v = values.to_numpy()
     if p.allowed:
         bad = ~np.isin(np.round(v, 12), p.allowed)

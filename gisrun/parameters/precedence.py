@@ -2,8 +2,9 @@
 
 Precedence (highest first; see :mod:`gisrun.parameters.assign`): subcatchment
 attributes (rank 40), override rows keyed by ``subcatchment_id`` (30-33, more keys
-rank higher), by soil and cover (20), by soil (12), by cover (11), the shipped
-tables (0).
+rank higher), by soil and cover (20), a keyed raster's soil (15) and cover (14)
+attribute tables (:mod:`gisrun.parameters.keyed`), override rows by soil (12), by
+cover (11), the shipped tables (0).
 """
 
 from __future__ import annotations
@@ -82,7 +83,10 @@ def apply_layer(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
     match = np.ones(len(rows), dtype=bool)
     for key in ("subcatchment_id", "soil_class", "cover_class"):
         if layer.get(key) is not None:
-            match &= (rows[key] == layer[key]).to_numpy()
+            same = rows[key] == layer[key]
+            if key == "soil_class" and "soil_base_class" in rows.columns:
+                same |= rows["soil_base_class"] == layer[key]  # a keyed class's variants
+            match &= same.to_numpy()
     if not match.any():
         keys = ", ".join(f"{k}={layer[k]}" for k in ("subcatchment_id", "soil_class", "cover_class")
                          if layer.get(k) is not None)

@@ -27,6 +27,10 @@ Tables
 ``hsg_defaults``
     gisrun's documented choices per group: representative Green-Ampt texture
     and initial soil loss (common practice).
+``green_ampt_texture_ranges``
+    The ranges (about one standard deviation) of effective porosity and
+    suction head for the same textures (Rawls, Brakensiek and Miller 1983),
+    read by :mod:`gisrun.uncertainty`.
 ``cover_curve_numbers``
     Curve numbers and impervious share of cover classes (NRCS TR-55 1986,
     Tables 2-2a to 2-2c) with pervious-part curve numbers and depression
@@ -74,6 +78,7 @@ __all__ = [
     "horton_by_group",
     "group_defaults",
     "cover_table",
+    "green_ampt_ranges_by_texture",
 ]
 
 #: The four hydrologic soil groups (NRCS NEH Part 630 Ch. 7, 2009).
@@ -106,6 +111,8 @@ _TITLES: dict[str, str] = {
     "horton_hsg": "Horton parameters by hydrologic soil group",
     "hsg_defaults": "Representative texture and initial soil loss by hydrologic soil group",
     "cover_curve_numbers": "Runoff curve numbers and impervious share by cover class",
+    "green_ampt_texture_ranges": "Green-Ampt parameter ranges (about one standard deviation) "
+                                 "by USDA soil texture",
 }
 
 
@@ -286,3 +293,25 @@ def cover_table() -> pd.DataFrame:
     """
     return _cover().copy()
 
+
+
+@cache
+def _green_ampt_ranges() -> pd.DataFrame:
+    raw = read_shipped_table("green_ampt_texture_ranges").frame.set_index("texture")
+    out = pd.DataFrame(index=raw.index)
+    for end in ("low", "high"):
+        out[f"effective_porosity_{end}"] = raw[f"effective_porosity_{end}"].astype(float)
+        out[f"suction_head_m_{end}"] = to_si(raw[f"suction_head_cm_{end}"].to_numpy(), "cm")
+    return out
+
+
+def green_ampt_ranges_by_texture() -> pd.DataFrame:
+    """Published ranges (about one standard deviation) of Green-Ampt parameters, SI.
+
+    Returns
+    -------
+    DataFrame
+        Indexed by texture: ``effective_porosity_low``/``_high`` (-) and
+        ``suction_head_m_low``/``_high`` (m), Rawls, Brakensiek and Miller (1983).
+    """
+    return _green_ampt_ranges().copy()

@@ -30,6 +30,10 @@ Layers of the output GeoPackage:
     For storms whose rain differs between subcatchments (gauges, a rain grid): each source's
     weight in each subcatchment's areal rain (storm, source id, subcatchment id, weight);
     left out when no storm has such rain.
+``runoff_bands``, ``parameter_sensitivity``, ``uncertainty_ranges``
+    With ``[uncertainty]``: percentiles of each subcatchment's figures over the
+    parameter sets, the one-at-a-time sensitivity and what was sampled
+    (:mod:`gisrun.present.bands`).
 ``run_info``
     What was run: version, time, method, storms, units, input checksums,
     warnings and the caution.
@@ -44,9 +48,10 @@ import pandas as pd
 
 from .._version import __version__
 from ..aggregate import soil_shares
-from ..model import CAUTION, RunResult, StormResult
+from ..model import BAND_CAUTION, CAUTION, RunResult, StormResult
 from ..storm.areal import WEIGHT_COLUMNS
 from ..units import UnitSystem, present_frame
+from .bands import band_builders
 from .display import human
 from .model_inputs import lumped_layer
 
@@ -124,6 +129,7 @@ def layer_builders(result: RunResult, *, skip: tuple[str, ...] = ()
         "ponding_rank_units": lambda: ranking(1),
         "lumped_parameters": lambda: lumped_parameters_layer(result),
         "rain_weights": lambda: rain_weights_layer(result),
+        **band_builders(result),
         "run_info": lambda: run_info(result),
     })
     if all(storm.hyetograph.areal is None for storm in result.storms):
@@ -260,6 +266,17 @@ def _series_rows(result: RunResult) -> list[tuple[str, str]]:
              "excess_series table)")]
 
 
+def _uncertainty_rows(result: RunResult) -> list[tuple[str, str]]:
+    if result.uncertainty is None:
+        return []
+    s = result.uncertainty.settings
+    return [("uncertainty_samples", str(s.samples)), ("uncertainty_seed", str(s.seed)),
+            ("uncertainty_percentiles", ", ".join(f"{p:g}" for p in s.percentiles)),
+            ("uncertainty_top_k", str(s.top_k)),
+            ("uncertainty_sampling", "Latin hypercube, independent draws (gisrun.uncertainty)"),
+            ("uncertainty_caution", BAND_CAUTION)]
+
+
 def run_info(result: RunResult) -> pd.DataFrame:
     """Key-value table describing the run (provenance), one row per fact."""
     project = result.project
@@ -301,6 +318,7 @@ def run_info(result: RunResult) -> pd.DataFrame:
             rows.append(("parameter_source", source))
     for note in result.warnings:
         rows.append(("warning", note))
+    rows += _uncertainty_rows(result)
     rows.append(("caution", CAUTION))
     return pd.DataFrame(rows, columns=["key", "value"])
 

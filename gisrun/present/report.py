@@ -8,8 +8,9 @@ mailed as one attachment (no external script, tile, font or link). Sections
 [``storms``], summary table with the runoff coefficient [``summary``], the
 interactive subcatchment map [``explore``], maps and plots [``maps``],
 ponding-first rankings overall and within each method [``ranking``], the
-lumping difference per subcatchment [``lumping``], mass balance
-[``mass-balance``], warnings [``warnings``] and the run's provenance [``provenance``].
+runoff bands from the parameter ranges [``bands``], the lumping difference per
+subcatchment [``lumping``], mass balance [``mass-balance``], warnings
+[``warnings``] and the run's provenance [``provenance``].
 
 Numbers are written for people (thousands separators, no scientific notation,
 units in the headers in the run's unit system); every table wraps to the page
@@ -24,6 +25,7 @@ from dataclasses import dataclass, field
 import pandas as pd
 
 from ..model import RunResult
+from .bands import bands_section
 from .explore import explore_section
 from .html import anchor, esc, image, section
 from .layers import REPORT_TOP
@@ -44,9 +46,10 @@ __all__ = ["SECTIONS", "ReportFigures", "SubcatchmentPlot", "build_report", "REP
 
 #: Section ids in report order.
 SECTIONS = ("caution", "inputs", "method", "parameters", "storms", "summary", "explore", "maps",
-            "ranking", "lumping", "mass-balance", "warnings", "provenance")
+            "ranking", "bands", "lumping", "mass-balance", "warnings", "provenance")
 
-_TITLES = {"mass-balance": "mass balance", "explore": "map", "parameters": "parameter sheet"}
+_TITLES = {"mass-balance": "mass balance", "explore": "map", "parameters": "parameter sheet",
+           "bands": "how sure"}
 
 _STYLE = """
 body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;margin:2em auto;max-width:76em;
@@ -96,6 +99,8 @@ class ReportFigures:
     hyetograph: bytes | None = None
     per_storm: dict[str, list[tuple[str, bytes]]] = field(default_factory=dict)
     plots: list[SubcatchmentPlot] = field(default_factory=list)
+    #: Band-width maps and tornado figures of an uncertainty run, with captions.
+    uncertainty: list[tuple[str, bytes]] = field(default_factory=list)
 
 
 #: The report loads nothing from outside itself: only inline style and script, data: images.
@@ -146,6 +151,7 @@ def build_report(result: RunResult, figures: ReportFigures, *, ranking: tuple[pd
         "explore": explore_section(result, plots),
         "maps": _maps(figures),
         "ranking": ranking_section(result, (subs, units), top),
+        "bands": bands_section(result, figures.uncertainty, top),
         "lumping": lumping_section(result, top),
         "mass-balance": mass_balance_section(result),
         "warnings": _warnings(result),
@@ -155,6 +161,7 @@ def build_report(result: RunResult, figures: ReportFigures, *, ranking: tuple[pd
               "parameters": "Parameter sheet: the values used", "storms": "Storms",
               "summary": "Summary per storm", "explore": "Subcatchment map (interactive)",
               "maps": "Maps and plots", "ranking": "Which subcatchments pond first",
+              "bands": "How sure: runoff bands from the parameter ranges",
               "lumping": "Lumping difference per subcatchment", "mass-balance": "Mass balance",
               "warnings": "Warnings", "provenance": "Provenance"}
     nav = "".join(f'<a href="#{s}">{_TITLES.get(s, s)}</a>' for s in SECTIONS)

@@ -22,9 +22,12 @@ from ..io.series_file import series_path, series_store
 from ..model import Inputs
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
+from .bands import check_named_ids, check_uncertainty_ranges
 from .inputs import (
+    bounds_in,
     check_overlaps,
     check_raster_codes,
+    check_raster_extent,
     read_cover,
     read_impervious_grid,
     read_overrides,
@@ -91,12 +94,13 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str]) -> 
         _attempt(problems, check_overlaps, project, subs)
         if storms is not None:
             _attempt(problems, warn_if_rain_scale_implausible, project, subs, storms)
-    codes_ok = soil is not None and _check_codes(problems, soil, subs, project.soil.codes,
+    keyed_notes: list[str] = []
+    codes_ok = soil is not None and _check_codes(problems, keyed_notes, soil, subs, project.soil,
                                                  project.where("soil"), project)
     if project.cover is not None and cover is not None:
-        codes_ok &= _check_codes(problems, cover, subs, project.cover.codes,
+        codes_ok &= _check_codes(problems, keyed_notes, cover, subs, project.cover,
                                  project.where("cover"), project)
-    storm_notes = _resampling_notes(project, storms or ())
+    storm_notes = [*keyed_notes, *_resampling_notes(project, storms or ())]
     missing_cover = project.cover is not None and cover is None
     missing_cover |= (project.impervious is not None and project.impervious.path is not None
                       and impervious is None)
@@ -107,6 +111,9 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str]) -> 
     if overlaid is None:
         return storm_notes
     prepared = _attempt(problems, prepare_parameters, project, inputs, overlaid[0])
+    _attempt(problems, check_named_ids, project, inputs)
+    if prepared is not None:
+        _attempt(problems, check_uncertainty_ranges, project, inputs, prepared[0])
     notes = [*overlaid[2], *(prepared[2] if prepared is not None else [])]
     return [*storm_notes, *(str(note) for note in notes)]
 
@@ -151,10 +158,31 @@ def check_output_path(target: Path) -> None:
             return
 
 
-def _check_codes(problems: list[str], raster: ClassRaster, subs: gpd.GeoDataFrame | None,
-                 codes: dict[int, str], where: str, project: Project) -> bool:
-    return _attempt(problems, check_raster_codes, raster, subs, codes, where,
-                    max_fraction=project.max_nodata_fraction) is not None
+def _check_codes(problems: list[str], notes: list[str], raster: ClassRaster,
+                 subs: gpd.GeoDataFrame | None, source: Any, where: str, project: Project
+                 ) -> bool:
+    """Check a raster's codes; for a keyed raster, note what its attribute table supplied."""
+    if source.keys is not None:
+        notes.append(source.keys.summary())
+    if source.unlisted_keys == "nodata":
+        unknown = _attempt(problems, raster.unknown_codes, source.codes,
+                           None if subs is None else bounds_in(subs, raster.crs))
+        if unknown:
+            notes.append(f"{raster.where}: keys {', '.join(map(str, unknown[:10]))}"
+                         f"{' ...' if len(unknown) > 10 else ''} are not in "
+                         f"{source.keys.where}; their cells count as nodata ({where}."
+                         "unlisted_keys)")
+        if subs is None:
+            return unknown is not None
+        return _attempt(problems, _extent_ok, raster, subs, project.max_nodata_fraction) is True
+    return _attempt(problems, check_raster_codes, raster, subs, source.codes, where,
+                    max_fraction=project.max_nodata_fraction,
+                    table=source.attributes) is not None
+
+
+def _extent_ok(raster: ClassRaster, subs: gpd.GeoDataFrame, max_fraction: float) -> bool:
+    check_raster_extent(raster, subs, max_fraction)
+    return True
 
 
 def _attempt(problems: list[str], func: Callable[..., T], *args: Any, **kwargs: Any) -> T | None:

@@ -30,6 +30,8 @@ from ..grid.classes import ClassGrid
 from ..model import Inputs, StormResult
 from ..project import Project
 from ..storm import Hyetograph
+from ..uncertainty import ChunkParts
+from .bands import chunk_uncertainty
 from .cells import slim_unit_results
 from .steps import (
     add_composite_comparison,
@@ -223,6 +225,8 @@ class ChunkOutput:
     cell_units: list[pd.DataFrame] = field(default_factory=list)
     #: The overlay's own notes (also in ``notes``), for the overlay cache.
     overlay_notes: list[str] = field(default_factory=list)
+    #: Distinct parts, ranges and unit totals for the uncertainty runs (``[uncertainty]``).
+    uncertainty: ChunkParts | None = None
 
 
 def process_chunk(task: ChunkTask) -> ChunkOutput:
@@ -243,6 +247,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
         lumped = lumped_parameter_table(project, inputs, params, results, sub_ids)
         cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
+        bands = chunk_uncertainty(project, inputs, params, results, sub_ids)
     notes = [str(n) for n in (*notes_overlay, *notes_params)]
     notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     return ChunkOutput(
@@ -258,6 +263,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         unit_count=len(params),
         method_counts=params["loss_method"].value_counts(sort=False).to_dict(),
         subcatchment_methods=_subcatchment_methods(params, sub_ids, project.method),
+        uncertainty=bands,
     )
 
 

@@ -46,6 +46,7 @@ __all__ = [
     "warn_if_rain_scale_implausible",
     "subcatchment_overlaps",
     "check_overlaps",
+    "bounds_in",
 ]
 
 
@@ -192,6 +193,9 @@ def read_inputs(project: Project) -> Inputs:
         )
         warn_if_rain_scale_implausible(project, inputs.subcatchments, inputs.storms)
         check_overlaps(project, inputs.subcatchments)
+        for source in (project.soil, project.cover):
+            if source is not None and source.keys is not None:  # what the table supplied
+                warnings.warn(source.keys.summary(), GisrunWarning, stacklevel=2)
     for w in caught:  # pass them on, and keep their text with the inputs for the run table
         warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     notes = tuple(str(w.message) for w in caught if issubclass(w.category, GisrunWarning))
@@ -297,7 +301,7 @@ def check_overlaps(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame:
 
 def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
                        codes: dict[int, str], where: str, *,
-                       max_fraction: float | None = None) -> bool:
+                       max_fraction: float | None = None, table: Path | None = None) -> bool:
     """Raise if the raster holds, under the subcatchments, codes missing from ``codes``.
 
     With ``subs`` None the whole raster is scanned. With ``max_fraction`` the raster's
@@ -308,10 +312,17 @@ def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
     RasterError
         Listing the unknown codes and the project file table to add them to.
     """
-    bounds = None if subs is None else _bounds_in(subs, raster.crs)
+    bounds = None if subs is None else bounds_in(subs, raster.crs)
     if subs is not None and max_fraction is not None:
         check_raster_extent(raster, subs, max_fraction)
     unknown = raster.unknown_codes(codes, bounds)
+    if len(unknown) and table is not None:
+        listed = ", ".join(str(int(c)) for c in sorted(unknown)[:10])
+        more = f" and {len(unknown) - 10} more" if len(unknown) > 10 else ""
+        raise RasterError(
+            Path(raster.path).name, f"holds keys {listed}{more} that its attribute table "
+            f"{table.name} does not list", f"add rows for them to the table, or set {where}."
+            "unlisted_keys = \"nodata\" to count their cells as nodata")
     if len(unknown):
         listed = ", ".join(str(int(c)) for c in sorted(unknown)[:10])
         raise RasterError(
@@ -319,6 +330,16 @@ def check_raster_codes(raster: ClassRaster, subs: gpd.GeoDataFrame | None,
             "add each code and its class to that table in the project file",
         )
     return True
+
+
+def _warn_unlisted(raster: ClassRaster, subs: gpd.GeoDataFrame, source: object, where: str
+                   ) -> None:
+    unknown = raster.unknown_codes(source.codes, bounds_in(subs, raster.crs))
+    if unknown:
+        listed = ", ".join(str(k) for k in unknown[:10]) + (" ..." if len(unknown) > 10 else "")
+        warnings.warn(f"{Path(raster.path).name}: keys {listed} are not in "
+                      f"{source.attributes.name}; their cells count as nodata "
+                      f"({where}.unlisted_keys)", GisrunWarning, stacklevel=3)
 
 
 def check_raster_extent(raster: ClassRaster, subs: gpd.GeoDataFrame, max_fraction: float
@@ -353,7 +374,7 @@ def check_raster_extent(raster: ClassRaster, subs: gpd.GeoDataFrame, max_fractio
                           "max_fraction")
 
 
-def _bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, float]:
+def bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, float]:
     """The polygons' bounds in another CRS (densified edges, so the box still covers them)."""
     bounds = tuple(float(v) for v in subs.total_bounds)
     if CRS.from_user_input(subs.crs) == CRS.from_user_input(crs):
@@ -363,9 +384,18 @@ def _bounds_in(subs: gpd.GeoDataFrame, crs: CRS) -> tuple[float, float, float, f
 
 
 def check_inputs_codes(project: Project, inputs: Inputs) -> None:
-    """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`)."""
-    check_raster_codes(inputs.soil, inputs.subcatchments, project.soil.codes,
-                       project.where("soil"), max_fraction=project.max_nodata_fraction)
+    """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`).
+
+    A keyed raster whose ``unlisted_keys`` is ``"nodata"`` has only its extent checked:
+    its unlisted keys count as nodata in the overlay.
+    """
+    sources = [(inputs.soil, project.soil, "soil")]
     if inputs.cover is not None and project.cover is not None:
-        check_raster_codes(inputs.cover, inputs.subcatchments, project.cover.codes,
-                           project.where("cover"), max_fraction=project.max_nodata_fraction)
+        sources.append((inputs.cover, project.cover, "cover"))
+    for raster, source, section in sources:
+        if source.unlisted_keys == "nodata":
+            check_raster_extent(raster, inputs.subcatchments, project.max_nodata_fraction)
+            _warn_unlisted(raster, inputs.subcatchments, source, project.where(section))
+            continue
+        check_raster_codes(raster, inputs.subcatchments, source.codes, project.where(section),
+                           max_fraction=project.max_nodata_fraction, table=source.attributes)

@@ -28,6 +28,7 @@ from ..model import CellRasters, Inputs, RunResult, StormResult
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
+from .bands import check_named_ids, combine_uncertainty
 from .cells import compute_cells
 from .checksums import dataset_files, file_sha256, input_checksums
 from .chunks import (
@@ -123,6 +124,7 @@ def run(
         say("reading inputs")
         inputs = read_inputs(project) if inputs is None else inputs
         check_inputs_codes(project, inputs)
+        check_named_ids(project, inputs)
     if keep_loss is None:
         keep_loss = len(inputs.subcatchments) < KEEP_STEP_ARRAYS_BELOW
     project, lumping_note = _lumping_for_size(project, len(inputs.subcatchments))
@@ -287,6 +289,7 @@ def _combine(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64],
     """Put chunk outputs together in the subcatchment layer's row order."""
     ordered = _layer_order(inputs)
     kept_units = all(o.parameters is not None for o in outputs)
+    coverage = ordered([o.coverage for o in outputs])
     counts: dict[str, int] = {}
     for o in outputs:
         for method, count in o.method_counts.items():
@@ -295,7 +298,7 @@ def _combine(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64],
         project=project,
         subcatchments=inputs.subcatchments,
         units=ordered([o.units for o in outputs]),
-        coverage=ordered([o.coverage for o in outputs]),
+        coverage=coverage,
         parameters=(pd.concat([o.parameters for o in outputs], ignore_index=True)
                     if kept_units else None),
         parameter_sources=compact_sources(
@@ -311,6 +314,8 @@ def _combine(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64],
         started_utc=started,
         checksums=checksums,
         cells=cells,
+        uncertainty=combine_uncertainty(project, inputs, [o.uncertainty for o in outputs],
+                                        rains, ordered, coverage),
     )
 
 

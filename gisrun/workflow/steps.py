@@ -43,6 +43,7 @@ __all__ = [
     "add_composite_comparison",
     "rain_scale_for_units",
     "lumped_parameter_table",
+    "subcatchment_attributes",
 ]
 
 
@@ -95,6 +96,8 @@ def prepare_parameters(
         antecedent_condition=project.antecedent_condition,
         initial_water_content=project.soil.initial_water_content,
         compact_provenance=True,
+        soil_keys=project.soil.keys,
+        cover_keys=project.cover.keys if project.cover else None,
     )
     sources = pd.DataFrame(sources)
     if "impervious_fraction" in units.columns and project.impervious is not None:
@@ -133,6 +136,11 @@ def compact_sources(sources: pd.DataFrame) -> pd.DataFrame:
     frame = sources[_SOURCE_KEYS].assign(unit_parts=counts.to_numpy())
     return (frame.groupby(_SOURCE_KEYS, dropna=False, sort=True)["unit_parts"].sum()
             .reset_index())
+
+
+def subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:
+    """Per-subcatchment method choice and parameter values from the layer's fields (or None)."""
+    return _subcatchment_attributes(project, subs)
 
 
 def _subcatchment_attributes(project: Project, subs: gpd.GeoDataFrame) -> pd.DataFrame | None:

@@ -11,9 +11,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 from ..model import CAUTION, RunResult, StormResult
-from ..present import maps, plots
+from ..present import band_figures, maps, plots
+from ..present.bands import band_width_label
 from ..present.canvas import figure_png
 from ..present.classes import Classes, RunClasses, run_classes
 from ..present.display import method_name
@@ -68,8 +70,52 @@ def write_figures(result: RunResult, folder: Path, *, plot_ids: list[str], cell_
             images.append(_cell_map(result, k, classes, folder, out))
         out.report.per_storm[storm.name] = images
         out.report.plots += _infiltration_plots(result, storm, plot_ids, folder, out)
+    if result.uncertainty is not None:
+        out.report.uncertainty = _band_figures(result, folder, out)
     progress("maps and plots", total, total)
     return out
+
+
+def _band_figures(result: RunResult, folder: Path, out: Figures) -> list[tuple[str, bytes]]:
+    """The band-width map of every storm and the tornado figures."""
+    system, unc = result.project.units, result.uncertainty
+    bands = unc.bands.assign(width=from_si(unc.bands["runoff_depth_band_m"].to_numpy(float),
+                                           system.depth))
+    classes = band_figures.band_classes([bands["width"].to_numpy()])
+    label = band_width_label(result)
+    made = []
+    for storm in result.storms:
+        gdf = result.subcatchments[["subcatchment_id", "geometry"]].merge(
+            bands[bands["storm"] == storm.name], on="subcatchment_id", how="left")
+        fig = band_figures.band_width_map(gdf, "width", storm=storm.name, label=label,
+                                          samples=unc.settings.samples,
+                                          crs=result.subcatchments.crs, classes=classes,
+                                          distance_unit=distance_unit(system))
+        key = f"runoff_band_width_{storm.file_stem}"
+        made.append((f"Width of the runoff depth band ({label}), {storm.name}: parameter "
+                     "spread only, not model or rain error",
+                     out.save(figure_png(fig), folder / f"{key}.png", key)))
+        made += _tornados(result, storm, folder, out)
+    return made
+
+
+def _tornados(result: RunResult, storm: StormResult, folder: Path, out: Figures
+              ) -> list[tuple[str, bytes]]:
+    system, table = result.project.units, result.uncertainty.sensitivity
+    made = []
+    for sid in result.uncertainty.tornado_subcatchments:
+        rows = table[(table["storm"] == storm.name) & (table["subcatchment_id"] == sid)]
+        shown = pd.DataFrame({"parameter": rows["parameter"].to_numpy()})
+        for col in ("runoff_depth", "runoff_depth_at_low", "runoff_depth_at_high"):
+            shown[col] = from_si(rows[f"{col}_m"].to_numpy(float), system.depth)
+        fig = band_figures.tornado_figure(
+            shown, title=f"{sid}, {storm.name}: each parameter alone at the ends of its range",
+            depth_unit=system.depth)
+        key = f"tornado_{storm.file_stem}_{layer_name(sid)}"
+        made.append((f"{sid}, {storm.name}: which parameter moves the runoff most "
+                     "(one at a time, the others at the run's values)",
+                     out.save(figure_png(fig), folder / f"{key}.png", key)))
+    return made
 
 
 def rate_label(system: UnitSystem) -> str:

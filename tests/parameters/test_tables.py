@@ -18,7 +18,7 @@ def test_every_table_names_its_source_and_units():
     shipped = list_tables()
     assert [t.name for t in shipped] == [
         "green_ampt_texture", "hsg_conductivity", "horton_hsg", "hsg_defaults",
-        "cover_curve_numbers"]
+        "cover_curve_numbers", "green_ampt_texture_ranges"]
     for table in shipped:
         assert any(line.startswith("source:") for line in table.source_lines), table.name
         assert any(line.startswith("units:") for line in table.source_lines), table.name
