@@ -7,6 +7,7 @@ uniform storm's results exactly (issue acceptance: exact equality of the GeoPack
 
 import dataclasses
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 import pandas as pd
@@ -16,9 +17,10 @@ import pytest
 from gisrun import load_project, read_inputs, run, write_extras, write_outputs
 from gisrun.config.areal import AREAL_KINDS, ArealKind
 from gisrun.config.storms import storm_from_config
-from gisrun.errors import StormError
+from gisrun.errors import InputError, StormError
 from gisrun.storm import ArealRain, Hyetograph, areal_storm, weighted_mean
 from gisrun.storm.areal import interpolate_columns
+from gisrun.workflow.bands import check_named_ids
 from gisrun.workflow.chunks import chunk_size_for_budget
 from gisrun.write.extras import ExtrasOptions
 
@@ -194,3 +196,13 @@ def test_areal_storm_gets_a_rain_map_and_weights_in_run_info(demo, tmp_path):
     assert "Rain depth per subcatchment" in made.report.read_text(encoding="utf-8")
     info = pyogrio.read_dataframe(gpkg, layer="run_info")
     assert "one invented gauge" in info.loc[info["key"] == "areal_rain", "value"].iloc[0]
+
+
+def test_uncertainty_bands_refuse_an_areal_storm(demo):
+    project, inputs = demo
+    storm = _uniform_areal(inputs, lambda _: inputs.storms[0].depth_m)
+    ranges = SimpleNamespace(sensitivity_subcatchments=())  # any [uncertainty] table
+    sampled = dataclasses.replace(project, uncertainty=ranges)
+    with pytest.raises(InputError, match="cannot sample storm 'observed_event'"):
+        check_named_ids(sampled, dataclasses.replace(inputs, storms=(storm,)))
+    check_named_ids(sampled, inputs)  # a storm of one series is sampled as before

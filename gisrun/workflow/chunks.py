@@ -14,7 +14,6 @@ and are put back in the layer's row order.
 from __future__ import annotations
 
 import dataclasses
-import importlib.util
 import warnings
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
@@ -25,7 +24,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from ..engine import LossResult
-from ..errors import GisrunWarning, InputError
+from ..errors import GisrunWarning
 from ..grid.classes import ClassGrid
 from ..model import Inputs, StormResult
 from ..project import Project
@@ -318,25 +317,6 @@ def split_overlay(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],
         out.append((units.iloc[u].reset_index(drop=True), coverage.iloc[c].reset_index(drop=True),
                     notes if k == 0 else []))
     return out
-
-
-def require_dask(workers: int | None, scheduler: str | None) -> None:
-    """Stop before any work when ``--workers`` or ``--scheduler`` asks for dask and it is absent.
-
-    Raises
-    ------
-    InputError
-        Naming the option and the extra to install.
-    """
-    if not workers and not scheduler:
-        return
-    local = scheduler in ("synchronous", "threads", "sync", "processes") and not workers
-    needed = ("dask",) if local else ("dask", "distributed")
-    missing = [name for name in needed if importlib.util.find_spec(name) is None]
-    if missing:
-        option = "--workers" if workers else "--scheduler"
-        raise InputError(option, f"needs {' and '.join(missing)}, which is not installed",
-                         'install the extra: pip install "gisrun[dask]", or run without it')
 
 
 def execute(

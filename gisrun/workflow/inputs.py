@@ -119,10 +119,7 @@ def no_cover_note(project: Project) -> str:
 
 def read_storms(project: Project, subcatchments: gpd.GeoDataFrame | None = None
                 ) -> tuple[Hyetograph, ...]:
-    """Build every storm of the project (design storms, hyetograph files, areal rain).
-
-    Storms of areal rain (:data:`gisrun.config.areal.AREAL_KINDS`) need ``subcatchments``,
-    the layer as read.
+    """Build every storm of the project; areal rain (``config.areal``) needs ``subcatchments``.
 
     Raises
     ------

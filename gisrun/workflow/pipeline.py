@@ -27,7 +27,7 @@ from ..io.overlay_cache import load_overlay, overlay_key, save_overlay
 from ..model import CellRasters, Inputs, RunResult, StormResult
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
-from ..storm import Hyetograph, resampling_note
+from ..storm import Hyetograph
 from .bands import check_named_ids, combine_uncertainty
 from .cells import compute_cells
 from .checksums import dataset_files, file_sha256, input_checksums
@@ -42,7 +42,7 @@ from .chunks import (
     split_overlay,
 )
 from .inputs import check_inputs_codes, read_inputs
-from .rain import chunk_rain, run_rain
+from .rain import chunk_rain, run_rains
 from .steps import compact_sources, overlay_inputs
 
 __all__ = ["KEEP_STEP_ARRAYS_BELOW", "Progress", "SeriesSink", "UnitSink", "run"]
@@ -131,11 +131,7 @@ def run(
     cells = keep_loss if cells is None else cells
     if keep_loss:  # a run small enough to keep its step arrays keeps its unit rows too
         unit_sink = None
-    sub_ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
-    rains = tuple(run_rain(h, project.time_step_s, sub_ids) for h in inputs.storms)
-    resampled = [note for h, rain in zip(inputs.storms, rains, strict=True)
-                 if (note := resampling_note(h, project.time_step_s,
-                                             rain if rain.ndim == 1 else None, project.units))]
+    rains, resampled = run_rains(project, inputs)
     datasets = dataset_files(project)
     checksums = input_checksums(project, datasets)
     with warnings.catch_warnings(record=True) as refused:

@@ -14,9 +14,11 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike, NDArray
 
-from ..storm import Hyetograph
+from ..model import Inputs
+from ..project import Project
+from ..storm import Hyetograph, resampling_note
 
-__all__ = ["run_rain", "chunk_rain", "unit_rain"]
+__all__ = ["run_rain", "run_rains", "chunk_rain", "unit_rain"]
 
 FloatArray = NDArray[np.float64]
 
@@ -33,6 +35,21 @@ def run_rain(h: Hyetograph, dt_s: float, sub_ids: ArrayLike) -> FloatArray:
         return h.resample(dt_s)
     columns = h.areal.positions(sub_ids, f"storm {h.name!r}")
     return h.areal.resample(dt_s, columns)
+
+
+def run_rains(project: Project, inputs: Inputs) -> tuple[tuple[FloatArray, ...], list[str]]:
+    """Every storm's rain on the run's step (:func:`run_rain`), and what resampling did to them.
+
+    The notes (:func:`gisrun.storm.resampling_note`) are about each storm's own hyetograph, for
+    areal rain the basin mean.
+    """
+    dt_s = project.time_step_s
+    sub_ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
+    rains = tuple(run_rain(h, dt_s, sub_ids) for h in inputs.storms)
+    notes = [note for h, rain in zip(inputs.storms, rains, strict=True)
+             if (note := resampling_note(h, dt_s, rain if rain.ndim == 1 else None,
+                                         project.units))]
+    return rains, notes
 
 
 def chunk_rain(rain: FloatArray, rows: NDArray[np.intp]) -> FloatArray:
