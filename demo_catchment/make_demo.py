@@ -474,12 +474,6 @@ combine = "units"
 # for the invented town (a 2-, 10- and 100-year 24-hour depth); use your agency's values.
 {design_storms}
 
-# An observed-style event: 5-minute intensities, each row's time marks the end of its interval.
-[[storms]]
-name = "observed_event"
-kind = "file"
-path = "storms/observed_event.csv"
-
 # A rain grid: an invented radar-style NetCDF (CF conventions, longitude-latitude cells of
 # 0.005 degrees, 5-minute rain rates in mm/h, times read from the file). Each subcatchment
 # gets the exact area-weighted mean of the cells over it (layer rain_weights).
@@ -488,6 +482,12 @@ name = "radar_event"
 kind = "rain_grid"
 path = "storms/radar_event.nc"
 variable = "rain_rate"
+
+# An observed-style event: 5-minute intensities, each row's time marks the end of its interval.
+[[storms]]
+name = "observed_event"
+kind = "file"
+path = "storms/observed_event.csv"
 
 # Other kinds, for reference:
 # [[storms]]

@@ -105,3 +105,15 @@ def test_the_valid_keyed_project_runs(tmp_path, capsys):
     code, out, err = run_cli(capsys, ["check", str(folder)])
     assert code == 0, err
     assert "units.csv: 2 soil keys in 2 class(es)" in err + out
+
+
+def test_check_lists_unlisted_keys_that_count_as_nodata(tmp_path, capsys):
+    folder = tmp_path / "project"
+    keyed_project(folder)
+    _unknown_key(folder)
+    edit_toml(folder / "gisrun.toml", 'attributes = "units.csv"',
+              'attributes = "units.csv"\nunlisted_keys = "nodata"')
+    code, out, err = run_cli(capsys, ["check", str(folder)])
+    assert code == 0, err
+    assert re.search(r"soil\.tif.*keys 303 are not in units\.csv; their cells count as nodata",
+                     err + out), err + out

@@ -14,6 +14,7 @@ import pandas as pd
 import pytest
 
 from gisrun import load_project, overlay_inputs, prepare_parameters, read_inputs, run
+from gisrun.workflow.checksums import input_checksums
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
@@ -28,6 +29,9 @@ def test_demo_table_derives_groups_and_lists_what_it_gave():
     assert keyed.soil.keys.derived_groups == (table["hydrologic_soil_group"] == "").sum() > 0
     assert "map_unit_name" in keyed.soil.keys.unused
     assert len(keyed.soil.codes) == len(table)
+    # the table is an input like the raster: hashed for the run's checksums, never an output
+    assert "soil_map_units.csv" in input_checksums(keyed)
+    assert keyed.input_files()["soil attribute table"] == DEMO / "soil_map_units.csv"
 
 
 def test_demo_keys_give_the_typed_units_and_parameters_exactly():

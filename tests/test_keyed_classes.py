@@ -22,8 +22,12 @@ sys.path.insert(0, str(Path(__file__).parent))
 from bad_inputs_helpers import CRS, X0, Y0, edit_toml, make_project, run_cli  # noqa: E402
 from conftest import write_geotiff, write_polygons  # noqa: E402
 
-from gisrun import run  # noqa: E402
+from gisrun import CAUTION, GisrunError, run  # noqa: E402
+from gisrun.present.layers import ponding_ranking  # noqa: E402
+from gisrun.present.report import ReportFigures, build_report  # noqa: E402
 from gisrun.config.project import load_project  # noqa: E402
+from gisrun.io.attribute_tables import read_attribute_table  # noqa: E402
+from gisrun.parameters.class_keys import keyed_classes  # noqa: E402
 
 GROUPS = {1: "A", 2: "B", 3: "C", 4: "D", 5: "B/D", 6: "C/D"}
 N_KEYS = 2000
@@ -150,6 +154,13 @@ def test_per_key_values_rank_above_class_overrides_and_are_recorded(twin_project
     row = sources[(sources["soil_class"] == variant) & (sources["parameter"] == "ks_m_per_s")
                   & (sources["surface"] == "pervious")]
     assert row["source"].tolist() == [f"map_units.csv:key {b_keys[0]} (soil attribute table)"]
+    # the report lists the variant in its parameter sheet and what the table gave in its warnings
+    page = build_report(result, ReportFigures(), ranking=ponding_ranking(result), caution=CAUTION)
+    sheet = page[page.index('id="parameters"'):page.index('id="storms"')]
+    assert variant in sheet
+    notes = page[page.index('id="warnings"'):]
+    assert "map_units.csv: 2000 soil keys in 7 class(es)" in notes
+    assert "got their group from the NRCS NEH 630 Ch. 7 (2009) Table 7-1 criteria" in notes
 
 
 def test_unlisted_keys_stop_the_run_or_count_as_nodata(twin_projects, capsys):
@@ -254,3 +265,68 @@ def test_a_geopackage_attribute_table_is_read_by_its_layer(tmp_path):
     loaded = load_project(project)
     assert loaded.soil.codes == {101: "B", 202: "A"}
     assert loaded.input_files()["soil attribute table"] == project.parent / "survey.gpkg"
+
+
+def test_a_cover_tables_impervious_share_splits_the_units(tmp_path):
+    project = make_project(tmp_path / "share")
+    keys = np.full((10, 10), 11, dtype=np.int16)
+    keys[:, 5:] = 12
+    write_geotiff(project.parent / "cover.tif", keys, origin=(X0, Y0 + 100.0), crs=CRS)
+    (project.parent / "cover_units.csv").write_text(
+        "key,cover_class,impervious_percent\n11,residential_quarter_acre,52.5\n"
+        "12,residential_quarter_acre,52.5\n")
+    edit_toml(project, '[cover.codes]\n"5" = "open_space_good"', 'attributes = "cover_units.csv"')
+    result = run(load_project(project))
+    params = result.parameters
+    share = (params.loc[params["surface"] == "impervious", "area_m2"].sum()
+             / params["area_m2"].sum())
+    # 52.5 % from the table instead of TR-55 Table 2-2a's 38 % for 1/4 acre lots
+    assert share == pytest.approx(0.525, rel=1e-12)
+    sources = result.parameter_sources
+    rows = sources[sources["parameter"] == "impervious_fraction"]
+    assert set(rows["source"]) == {"cover_units.csv:key 11 (+1 more with the same values) "
+                                   "(cover attribute table)"}
+    # keys of one class that disagree are an error naming the row
+    (project.parent / "cover_units.csv").write_text(
+        "key,cover_class,impervious_percent\n11,residential_quarter_acre,52.5\n"
+        "12,residential_quarter_acre,40\n")
+    with pytest.raises(GisrunError, match=r"cover_units\.csv:line 3: sets other values"):
+        load_project(project)
+
+
+def test_texture_classification_takes_the_tables_group_over_the_textures(tmp_path):
+    project = _keyed_tiny(tmp_path / "texture")
+    (project.parent / "units.csv").write_text(
+        "key,texture,hydrologic_soil_group\n101,loam,\n202,sandy loam,C\n")
+    edit_toml(project, 'classification = "hydrologic_soil_group"', 'classification = "texture"')
+    edit_toml(project, '[soil.codes]\n"1" = "A"\n"2" = "B"\n', 'attributes = "units.csv"\n')
+    result = run(load_project(project))
+    params = result.parameters[result.parameters["surface"] == "pervious"].set_index(
+        "soil_class")
+    # loam keeps its TR-55 (1986) App. A group B; sandy loam (A by texture) takes the table's C
+    assert params.loc[["loam"], "hydrologic_soil_group"].tolist() == ["B"]
+    assert params.loc[["sandy loam"], "hydrologic_soil_group"].tolist() == ["C"]
+    # Green-Ampt stays that of the texture: Rawls et al. (1983) sandy loam Ks 1.09 cm/h
+    assert params.loc[["sandy loam"], "ks_m_per_s"].iloc[0] == pytest.approx(1.09e-2 / 3600,
+                                                                             rel=1e-12)
+    sources = result.parameter_sources
+    cn = sources[(sources["parameter"] == "curve_number") & (sources["soil_class"]
+                                                              == "sandy loam")]
+    assert any("group C from units.csv" in s for s in cn["source"])
+
+
+def test_a_linearly_binned_raster_table_gets_its_keys_from_the_binning(tmp_path):
+    # GDAL's linear binning (GDALRasterAttributeTable Row0Min / BinSize attributes, no value
+    # column): row i holds the values from Row0Min + i * BinSize (GDAL raster attribute table
+    # documentation, GetLinearBinning)
+    side = tmp_path / "soil.tif.aux.xml"
+    side.write_text(
+        '<PAMDataset><PAMRasterBand band="1"><GDALRasterAttributeTable Row0Min="100" '
+        'BinSize="1" tableType="thematic"><FieldDefn index="0"><Name>hydrologic_soil_group'
+        '</Name><Type>2</Type><Usage>0</Usage></FieldDefn><Row index="0"><F>A</F></Row>'
+        '<Row index="1"><F>B/D</F></Row></GDALRasterAttributeTable></PAMRasterBand>'
+        '</PAMDataset>')
+    frame, rows, value = read_attribute_table(side)
+    assert value == "value" and rows == ["row 1", "row 2"]
+    keyed = keyed_classes(frame, key=value, kind="soil", where=side.name, row_names=rows)
+    assert keyed.codes == {100: "A", 101: "B/D"}

@@ -40,7 +40,8 @@ def write_uniform_grid(path: Path, depth_m: np.ndarray, bounds: tuple[float, ...
 @pytest.fixture(scope="module")
 def demo():
     loaded = load_project(DEMO)
-    project = dataclasses.replace(loaded, storms=loaded.storms[-1:])  # the short observed event
+    project = dataclasses.replace(loaded, storms=tuple(  # the short observed event
+        s for s in loaded.storms if s["name"] == "observed_event"))
     return project, read_inputs(project)
 
 

@@ -17,7 +17,9 @@ soil
     group is derived from the last three by the NEH 630 Ch. 7 criteria
     (:mod:`gisrun.parameters.hsg_criteria`), or from the texture (TR-55 App. A).
 cover
-    ``cover_class`` (a shipped cover class).
+    ``cover_class`` (a shipped cover class), ``impervious_percent`` (0-100) or
+    ``impervious_fraction`` (0-1): the class's impervious share instead of the
+    cover table's (an impervious-share grid still wins).
 both
     any parameter column of the override table, unit in the name
     (``ks_mm_per_h``, ``suction_head_mm``, ``depression_storage_mm`` ...).
@@ -38,32 +40,29 @@ import pandas as pd
 
 from ..errors import ParameterError
 from ..options import did_you_mean
-from ..units import FACTORS_TO_SI
-from .hsg_criteria import CRITERIA_SOURCE, group_from_properties
-from .overrides import ALIASES, normalize_overrides
-from .soils import check_cover_labels, valid_soil_labels
-from .tables import (
-    DUAL_GROUPS,
-    HYDROLOGIC_SOIL_GROUPS,
-    NON_INFILTRATING_SOILS,
-    TEXTURE_CLASSES,
-    green_ampt_by_texture,
+from .hsg_criteria import CRITERIA_SOURCE
+from .key_columns import (
+    PROPERTIES,
+    cover_classes,
+    impervious_shares,
+    property_names,
+    property_of,
+    soil_classes,
 )
+from .overrides import ALIASES, normalize_overrides
 
-__all__ = ["KeyedClass", "KeyedClasses", "keyed_classes", "UNLISTED_KEYS", "SOIL_COLUMNS"]
+__all__ = ["KeyedClass", "KeyedClasses", "keyed_classes", "UNLISTED_KEYS", "SOIL_COLUMNS",
+           "COVER_COLUMNS"]
 
 #: ``unlisted_keys``: what a raster key missing from the table does.
 UNLISTED_KEYS = ("error", "nodata")
 #: Class columns of a soil table (the group and the texture).
 SOIL_COLUMNS = ("hydrologic_soil_group", "texture")
-_LENGTH_UNITS = ("m", "cm", "mm", "in", "ft")
-_RATE_UNITS = ("m_per_s", "mm_per_h", "cm_per_h", "in_per_h", "um_per_s")
-#: Property columns (stem -> units accepted) that only feed the group criteria.
-_PROPERTIES = {"ks_least_transmissive": _RATE_UNITS, "restrictive_layer_depth": _LENGTH_UNITS,
-               "water_table_depth": _LENGTH_UNITS}
+#: Class columns of a cover table: the class, and its impervious share (one of the two units).
+COVER_COLUMNS = ("cover_class", "impervious_percent", "impervious_fraction")
 #: Stems of parameter columns, to tell a misspelt unit from an unrelated column.
 _STEMS = tuple(sorted({name.rsplit("_", 1)[0].split("_per")[0] + "_" for name in ALIASES
-                       if "_" in name} | {f"{s}_" for s in _PROPERTIES}, key=len, reverse=True))
+                       if "_" in name} | {f"{s}_" for s in PROPERTIES}, key=len, reverse=True))
 
 
 @dataclass(frozen=True)
@@ -77,6 +76,8 @@ class KeyedClass:
     group: str | None = None
     group_source: str = ""
     texture: str | None = None
+    #: A cover class's impervious share from the table (None: the cover table's).
+    impervious_fraction: float | None = None
     #: (SI parameter column, value) pairs the keys set.
     values: tuple[tuple[str, float], ...] = ()
 
@@ -168,14 +169,15 @@ def keyed_classes(frame: pd.DataFrame, *, key: str, kind: str, where: str,
     frame = frame.reset_index(drop=True)
     frame.columns = [str(c).strip() for c in frame.columns]
     keys = _keys(frame, key, where, row_names)
-    classes_cols = SOIL_COLUMNS if kind == "soil" else ("cover_class",)
+    classes_cols = SOIL_COLUMNS if kind == "soil" else COVER_COLUMNS
     parameters, properties, unused = _sort_columns(frame, key, classes_cols, where)
     values = _parameter_values(frame, parameters, where, row_names, keys)
     if kind == "soil":
-        labels, extra, derived = _soil_classes(frame, properties, where, row_names,
+        labels, extra, derived = soil_classes(frame, properties, where, row_names,
                                                classification)
     else:
-        labels, extra, derived = _cover_classes(frame, where, row_names), {}, 0
+        labels, derived = cover_classes(frame, where, row_names), 0
+        extra = {"impervious_fraction": impervious_shares(frame, where, row_names)}
     used = tuple(c for c in frame.columns if c not in unused)
     table = pd.DataFrame({"key": keys, "label": labels}).join(values).join(
         pd.DataFrame(extra, index=frame.index))
@@ -218,28 +220,16 @@ def _sort_columns(frame: pd.DataFrame, key: str, class_cols: tuple[str, ...], wh
             continue
         if col in ALIASES:
             parameters.append(col)
-        elif _property(col) is not None:
-            properties[col] = _property(col)
+        elif property_of(col) is not None:
+            properties[col] = property_of(col)
         elif col.startswith(_STEMS):
             stem = next(s for s in _STEMS if col.startswith(s))
-            known = sorted(n for n in [*ALIASES, *_property_names()] if n.startswith(stem))
+            known = sorted(n for n in [*ALIASES, *property_names()] if n.startswith(stem))
             raise ParameterError(f"{where}:{col}", "has a unit gisrun does not know",
                                  f"name the unit as one of: {', '.join(known[:8])}")
         else:
             unused.append(col)
     return parameters, properties, unused
-
-
-def _property(col: str) -> tuple[str, float] | None:
-    for stem, units in _PROPERTIES.items():
-        unit = col.removeprefix(f"{stem}_")
-        if col.startswith(f"{stem}_") and unit in units:
-            return stem, FACTORS_TO_SI[unit]
-    return None
-
-
-def _property_names() -> list[str]:
-    return [f"{stem}_{u}" for stem, units in _PROPERTIES.items() for u in units]
 
 
 def _parameter_values(frame: pd.DataFrame, columns: list[str], where: str, names: list[str],
@@ -250,105 +240,6 @@ def _parameter_values(frame: pd.DataFrame, columns: list[str], where: str, names
     probe = frame[columns].assign(soil_class=[str(k) for k in keys])
     si = normalize_overrides(probe, where=where, row_names=names)
     return si[[ALIASES[c][0] for c in columns]]
-
-
-def _cells(frame: pd.DataFrame, col: str) -> list[str | None]:
-    if col not in frame.columns:
-        return [None] * len(frame)
-    return [None if pd.isna(v) or not str(v).strip() else str(v).strip() for v in frame[col]]
-
-
-def _soil_classes(frame: pd.DataFrame, properties: dict[str, tuple[str, float]], where: str,
-                  names: list[str], classification: str
-                  ) -> tuple[list[str], dict[str, list[object]], int]:
-    """Label of each row, per-row group/texture columns, and how many groups were derived."""
-    given = _checked(_cells(frame, "hydrologic_soil_group"), "hydrologic_soil_group",
-                     (*HYDROLOGIC_SOIL_GROUPS, *DUAL_GROUPS, *NON_INFILTRATING_SOILS), where,
-                     names, upper=True)
-    texture = _checked(_cells(frame, "texture"), "texture",
-                       (*TEXTURE_CLASSES, *NON_INFILTRATING_SOILS), where, names)
-    derived = _derived_groups(frame, properties, where, names)
-    group = [g if g is not None else d for g, d in zip(given, derived, strict=True)]
-    n_derived = sum(1 for g, d in zip(given, derived, strict=True) if g is None and d is not None)
-    if classification == "texture":
-        labels = _required(texture, "texture", where, names)
-        return labels, {"group": group, "texture": [None] * len(labels)}, n_derived
-    by_texture = green_ampt_by_texture()["hydrologic_soil_group"].to_dict()
-    labels = [g if g is not None else _texture_group(t, by_texture)
-              for g, t in zip(group, texture, strict=True)]
-    labels = [lab if lab in valid_soil_labels(classification) else None for lab in labels]
-    missing = [i for i, lab in enumerate(labels) if lab is None]
-    if missing:
-        i = missing[0]
-        raise ParameterError(f"{where}:{names[i]}", "gives no hydrologic_soil_group and nothing "
-                             "to derive it from", "fill in the group, or ks_least_transmissive_"
-                             "um_per_s with the depths, or a texture")
-    tex = [t if t not in NON_INFILTRATING_SOILS else None for t in texture]
-    return labels, {"group": [None] * len(labels), "texture": tex}, n_derived
-
-
-def _texture_group(texture: str | None, by_texture: dict[str, str]) -> str | None:
-    """The group of a texture (TR-55 1986, App. A); silt as silt loam, as the texture path."""
-    if texture is None or texture in NON_INFILTRATING_SOILS:
-        return texture
-    return by_texture.get("silt loam" if texture == "silt" else texture)
-
-
-def _checked(cells: list[str | None], col: str, valid: tuple[str, ...], where: str,
-             names: list[str], *, upper: bool = False) -> list[str | None]:
-    out = []
-    for i, cell in enumerate(cells):
-        value = cell
-        if upper and cell is not None and cell not in valid:
-            value = cell.upper() if cell.upper() in valid else cell.lower()
-        if value is not None and value not in valid:
-            near = did_you_mean(value, list(valid))
-            hint = f"{near}; " if near.startswith("did") else ""
-            raise ParameterError(f"{where}:{names[i]}:{col}", f"value {cell!r} is not known",
-                                 f"{hint}use one of {', '.join(valid)}")
-        out.append(value)
-    return out
-
-
-def _required(cells: list[str | None], col: str, where: str, names: list[str]) -> list[str]:
-    for i, cell in enumerate(cells):
-        if cell is None:
-            raise ParameterError(f"{where}:{names[i]}:{col}", "is blank",
-                                 f"give every key its {col}")
-    return [str(c) for c in cells]
-
-
-def _derived_groups(frame: pd.DataFrame, properties: dict[str, tuple[str, float]], where: str,
-                    names: list[str]) -> list[str | None]:
-    """The group from the profile where a Ksat is given (NEH 630 Ch. 7, Table 7-1)."""
-    si = {"ks_least_transmissive": np.full(len(frame), np.nan),
-          "restrictive_layer_depth": np.full(len(frame), np.nan),
-          "water_table_depth": np.full(len(frame), np.nan)}
-    ks_fallback = next((c for c in frame.columns if c in ALIASES
-                        and ALIASES[c][0] == "ks_m_per_s"), None)
-    sources = dict(properties)
-    if not any(s == "ks_least_transmissive" for s, _ in properties.values()) and ks_fallback:
-        sources[ks_fallback] = ("ks_least_transmissive", ALIASES[ks_fallback][1])
-    for col, (stem, factor) in sources.items():
-        cells = _cells(frame, col)
-        values = pd.to_numeric(pd.Series(cells, dtype=object), errors="coerce").to_numpy(float)
-        bad = np.array([c is not None for c in cells]) & ~(np.isfinite(values) & (values >= 0))
-        if bad.any():
-            i = int(np.flatnonzero(bad)[0])
-            raise ParameterError(f"{where}:{names[i]}:{col}", f"value {cells[i]!r} is not a "
-                                 "number of 0 or more", "enter a number or leave it blank")
-        si[stem] = values * factor
-    groups = group_from_properties(si["ks_least_transmissive"], si["restrictive_layer_depth"],
-                                   si["water_table_depth"])
-    profile = np.isfinite(si["ks_least_transmissive"]) | (si["restrictive_layer_depth"] < 0.5)
-    return [g if ok else None for g, ok in zip(groups.tolist(), profile, strict=True)]
-
-
-def _cover_classes(frame: pd.DataFrame, where: str, names: list[str]) -> list[str]:
-    labels = _required(_cells(frame, "cover_class"), "cover_class", where, names)
-    for i, label in enumerate(labels):
-        check_cover_labels([label], f"{where}:{names[i]}:cover_class")
-    return labels
 
 
 def _group_keys(table: pd.DataFrame, kind: str, where: str, names: list[str]
@@ -379,10 +270,12 @@ def _keyed_class(name: str, base: str, part: pd.DataFrame, value_cols: list[str]
                  values: tuple[object, ...], where: str) -> KeyedClass:
     given = dict(zip(value_cols, values, strict=True))
     group, texture = given.pop("group", None), given.pop("texture", None)
+    share = given.pop("impervious_fraction", None)
     first = int(part["key"].iloc[0])
     source = f"{where}: key {first}" + (" and keys with the same values" if len(part) > 1 else "")
     return KeyedClass(
         label=name, base_class=base, keys=len(part), first_key=first,
         group=None if group is None else str(group), group_source=source,
         texture=None if texture is None else str(texture),
+        impervious_fraction=None if share is None else float(share),
         values=tuple((c, float(v)) for c, v in given.items() if v is not None))

@@ -20,9 +20,10 @@ import pandas as pd
 from ..errors import GisrunWarning
 from .class_keys import KeyedClasses
 from .soils import SoilInfo, resolve_soils
+from .tables import UNSPECIFIED_COVER, cover_table
 
 __all__ = ["SOIL_TABLE_RANK", "COVER_TABLE_RANK", "resolve_keyed_soils", "mark_base_classes",
-           "apply_keyed_values"]
+           "apply_keyed_values", "table_impervious_shares"]
 
 #: Rank of a soil attribute table's per-key values (see :mod:`gisrun.parameters.precedence`).
 SOIL_TABLE_RANK = 15
@@ -51,8 +52,11 @@ def resolve_keyed_soils(labels: Iterable[str], keyed: KeyedClasses | None, class
             out[label] = base_info[label]
             continue
         found = classes[label]
-        out[label] = _with_table(base_info[found.base_class], found.group, found.texture,
-                                 found.group_source, dual_condition, warnings)
+        info = base_info[found.base_class]
+        if info.infiltrates and found.group is None:
+            info = replace(info, group_source=f"{info.group_source} from {keyed.where}")
+        out[label] = _with_table(info, found.group, found.texture, found.group_source,
+                                 dual_condition, warnings)
     return out
 
 
@@ -120,3 +124,36 @@ def _apply(rows: pd.DataFrame, values: pd.DataFrame, sources: pd.DataFrame,
         sources.loc[target, col] = [f"{s} ({kind} attribute table)"
                                     for s in label[position[target]]]
         ranks.loc[target, col] = rank
+
+
+def table_impervious_shares(units: pd.DataFrame, cover_keys: KeyedClasses | None
+                            ) -> tuple[pd.DataFrame, pd.DataFrame | None]:
+    """The unit table with ``impervious_fraction`` from a cover attribute table, and its sources.
+
+    Only when the table gives a share for some class and the units carry none yet (a share
+    measured on an impervious grid wins); other classes keep the cover table's share.
+
+    Returns
+    -------
+    units : DataFrame
+        With ``impervious_fraction`` when the table gave one.
+    sources : DataFrame or None
+        Provenance rows (``parameter_sources`` shape) of the shares the table gave.
+    """
+    given = {} if cover_keys is None else {c.label: c for c in cover_keys.classes
+                                           if c.impervious_fraction is not None}
+    if not given or "impervious_fraction" in units.columns:
+        return units, None
+    shipped = {**cover_table()["impervious_fraction"].to_dict(), UNSPECIFIED_COVER: 0.0}
+    shares = {**shipped, **{label: c.impervious_fraction for label, c in given.items()}}
+    out = units.assign(impervious_fraction=units["cover_class"].map(shares).astype(float))
+    mine = units[units["cover_class"].isin(list(given))]
+    counts = mine.groupby(["soil_class", "cover_class"], sort=True).size()
+    covers = counts.index.get_level_values(1)
+    sources = pd.DataFrame({
+        "parameter": "impervious_fraction",
+        "source": [f"{cover_keys.where}:{given[c].source} (cover attribute table)"
+                   for c in covers],
+        "soil_class": counts.index.get_level_values(0), "cover_class": covers,
+        "surface": "impervious", "unit_parts": counts.to_numpy()})
+    return out, sources

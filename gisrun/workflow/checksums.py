@@ -46,6 +46,9 @@ def input_checksums(project: Project,
         paths += files if files is not None else [named]
     if project.overrides:
         paths.append(Path(project.overrides))
+    for source in (project.soil, project.cover):  # attribute tables of keyed rasters
+        if source is not None and source.attributes is not None:
+            paths.append(Path(source.attributes))
     for named in project.storm_files().values():  # a folder of records: each file in it
         named = named.resolve()
         paths += sorted(p for p in named.iterdir()) if named.is_dir() else [named]

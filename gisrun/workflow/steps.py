@@ -29,6 +29,7 @@ from ..grid.overlay import compute_unit_areas
 from ..model import Inputs, StormResult
 from ..parameters import assign_parameters, composite_parameters
 from ..parameters.equivalent import LUMPED_COLUMNS, StormRunoff, lumped_parameters
+from ..parameters.keyed import table_impervious_shares
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph
@@ -84,6 +85,8 @@ def prepare_parameters(
 ) -> tuple[pd.DataFrame, pd.DataFrame, list]:
     """Unit parameters (SI) from the published tables and the user's overrides."""
     attributes = _subcatchment_attributes(project, inputs.subcatchments)
+    units, table_shares = table_impervious_shares(units, project.cover.keys if project.cover
+                                                  else None)
     params, sources, notes = assign_parameters(
         units,
         classification=project.soil.classification,
@@ -102,6 +105,8 @@ def prepare_parameters(
     sources = pd.DataFrame(sources)
     if "impervious_fraction" in units.columns and project.impervious is not None:
         sources = pd.concat([sources, _share_sources(units, project)], ignore_index=True)
+    if table_shares is not None:
+        sources = pd.concat([sources, table_shares], ignore_index=True)
     if project.combine == "composite":
         params = composite_parameters(params)
     return params.reset_index(drop=True), compact_sources(sources), list(notes)
