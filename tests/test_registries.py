@@ -21,8 +21,8 @@ from bad_inputs_helpers import edit_toml, make_project, write_subcatchments
 
 from gisrun import engine, options
 from gisrun.cli.main import cli
-from gisrun.config.areal import AREAL_KINDS
 from gisrun.config import project as project_file
+from gisrun.config.areal import AREAL_KINDS
 from gisrun.config.project import load_project
 from gisrun.config.storms import FILE_KIND, STORM_KINDS, storm_from_config
 from gisrun.engine import ENGINES, PARAMETERS, method_name, run_losses

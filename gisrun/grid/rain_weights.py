@@ -157,7 +157,7 @@ def polygons_on_grid(geoms: gpd.GeoSeries, grid: RainGridGeometry) -> NDArray[An
         raise CRSError(grid.where, "has a rotated grid", "give a grid whose rows run east-west")
     shapes = np.asarray(geoms, dtype=object)
     src = CRS.from_user_input(geoms.crs)
-    if not src.equals(grid.crs):
+    if not src.equals(grid.crs) or grid.crs.is_geographic:  # edges curve in (lon, q) too
         shapes = _reprojected(shapes, src, grid.crs)
     if not grid.crs.is_geographic:
         return shapely.transform(shapes, lambda xy: np.column_stack(
