@@ -6,9 +6,10 @@ Generates the benchmark inputs (``make_inputs.py``; by default the 100,000-subca
 - the plain run (``gisrun.run``, rows handed to sinks that drop them, nothing written): the loss
   engine's time summed over its chunks (``steps.run_losses``) and the peak memory;
 - the same run with ``[uncertainty] samples = N`` (default 100): the time spent in the
-  uncertainty work of every chunk (``workflow.bands.chunk_uncertainty``: sampling, the engine
-  runs of every sample and of the one-at-a-time sensitivity, the bands), its own engine time, and
-  the peak memory. The overlay and the parameter assignment are the run's own (shared).
+  uncertainty work (``workflow.bands.chunk_uncertainty`` in every chunk: distinct parts and
+  ranges; ``workflow.bands.combine_uncertainty`` after the last: the run-wide engine runs of every
+  sample and of the one-at-a-time sets, and each chunk's bands), its own engine time, and the
+  peak memory. The overlay and the parameter assignment are the run's own (shared).
 
 It prints the ratio the target is stated in: uncertainty time / the plain run's engine time
 (target <= 20 for 100 samples), and peak memory / ``[project] memory_budget_mb`` (target <= 1).
@@ -35,6 +36,7 @@ import sys, time
 import gisrun
 import gisrun.workflow.bands as bands
 import gisrun.workflow.chunks as chunks
+import gisrun.workflow.pipeline as pipeline
 import gisrun.workflow.steps as steps
 
 spent = {"engine": 0.0, "bands": 0.0}
@@ -49,7 +51,8 @@ def timed(fn, key):
     return wrapper
 
 steps.run_losses = timed(steps.run_losses, "engine")  # the run's own loss engine, every chunk
-chunks.chunk_uncertainty = timed(bands.chunk_uncertainty, "bands")  # every chunk's bands
+chunks.chunk_uncertainty = timed(bands.chunk_uncertainty, "bands")  # every chunk's parts
+pipeline.combine_uncertainty = timed(bands.combine_uncertainty, "bands")  # samples and bands
 drop = lambda *args: None
 t = time.perf_counter()
 result = gisrun.run(sys.argv[1], series_sink=drop, unit_sink=drop, keep_loss=False, cells=False)
@@ -100,8 +103,9 @@ def main(argv: list[str] | None = None) -> None:
             ratio = r["bands_s"] / plain["engine_s"] if plain["engine_s"] else float("nan")
             print(f"{name:>12} {r['wall_s']:>8.1f} {r['peak_mb']:>8.0f} {r['engine_s']:>9.2f} "
                   f"{r['bands_s']:>8.2f} {ratio:>13.2f} {r['peak_mb'] / r['budget_mb']:>12.2f}")
-    print("bands/engine: time of every chunk's uncertainty work (samples, sensitivity, bands) "
-          "over the plain run's loss-engine time (target <= 20 for 100 samples); peak/budget: "
+    print("bands/engine: time of the uncertainty work (distinct parts and ranges in every chunk, "
+          "the run-wide sample and one-at-a-time runs, each chunk's bands) over the plain run's "
+          "loss-engine time (target <= 20 for 100 samples); peak/budget: "
           "peak resident memory over [project] memory_budget_mb (target <= 1)")
 
 

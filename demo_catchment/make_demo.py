@@ -17,6 +17,9 @@ It writes, next to itself:
   longitude-latitude cells, 5-minute rain rates): the observed event with a storm cell
   crossing the valley.
 - ``gisrun.toml``: the project file that ties them together.
+- ``soil_map.gpkg`` (layer ``soil_map``): the soil raster as polygons (each connected patch of
+  one code, traced along the cell edges), field ``soil_group``; unsurveyed patches have none.
+- ``gisrun_soil_polygons.toml``: the same project with the soil map as polygons.
 - ``soil_map_units.tif``, ``soil_map_units.csv``, ``gisrun_map_units.toml``: the soil map as
   map-unit keys with an attribute table, and the project file that reads them
   (``map_units.py``).
@@ -36,7 +39,7 @@ import rasterio
 import shapely
 import xarray as xr
 from numpy.typing import NDArray
-from rasterio.features import rasterize
+from rasterio.features import rasterize, shapes
 from rasterio.transform import from_origin
 from scipy.ndimage import gaussian_filter
 
@@ -394,6 +397,46 @@ def write_raster(path: Path, data: NDArray[np.uint8], frame: tuple, cell_m: floa
                         **{f"CODE_{c}": label for c, label in codes.items()})
 
 
+def write_soil_polygons(path: Path, soil: NDArray[np.uint8], frame: tuple) -> None:
+    """The soil raster traced into polygons: one per connected patch of a code.
+
+    Edges follow the cell edges exactly, so an overlay of these polygons gives the raster's
+    unit areas; unsurveyed (nodata) patches are kept with an empty class.
+    """
+    west, north, _, _ = frame
+    traced = list(shapes(soil, transform=from_origin(west, north, SOIL_CELL_M, SOIL_CELL_M)))
+    groups = [None if int(v) == SOIL_NODATA else SOIL_CODES[int(v)] for _, v in traced]
+    layer = gpd.GeoDataFrame({"soil_group": groups},
+                             geometry=[shapely.geometry.shape(g) for g, _ in traced], crs=CRS)
+    path.unlink(missing_ok=True)
+    layer.to_file(path, layer="soil_map", driver="GPKG", engine="pyogrio")
+
+
+def polygon_project_text(raster_project: str) -> str:
+    """The demo project with the soil map as polygons instead of the soil raster."""
+    start = raster_project.index("# [soil]:")
+    end = raster_project.index("# [cover]:")
+    text = raster_project[:start] + SOIL_POLYGON_SECTION + raster_project[end:]
+    text = text.replace('name = "Kestlow Vale demo"', 'name = "Kestlow Vale demo, soil polygons"')
+    return text.replace("output/demo_runoff.gpkg", "output/demo_soil_polygons.gpkg")
+
+
+SOIL_POLYGON_SECTION = """\
+# [soil]: here a polygon layer of soil classes (the soil raster traced along its cell edges).
+# class_field names the field holding each polygon's hydrologic soil group; polygons with no
+# value are unsurveyed (nodata), and ground in no polygon counts as outside the soil map.
+# A [soil.codes] table would turn whole-number codes in that field into classes.
+[soil]
+path = "soil_map.gpkg"
+layer = "soil_map"
+class_field = "soil_group"
+classification = "hydrologic_soil_group"
+dual_group_condition = "undrained"
+initial_saturation = 0.3
+
+"""
+
+
 def write_project_file(path: Path) -> None:
     """The demo project file, following the gisrun project file format."""
     soil = "\n".join(f'"{c}" = "{label}"' for c, label in SOIL_CODES.items())
@@ -522,6 +565,10 @@ def main() -> None:
     pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": GPKG_DATE})
     subs.to_file(gpkg, layer="subcatchments", driver="GPKG", engine="pyogrio")
     write_project_file(HERE / "gisrun.toml")
+    write_soil_polygons(HERE / "soil_map.gpkg", soil, frame_soil)
+    (HERE / "gisrun_soil_polygons.toml").write_text(
+        polygon_project_text((HERE / "gisrun.toml").read_text(encoding="utf-8")),
+        encoding="utf-8", newline="\n")
     write_map_units(HERE, SOIL_CODES)
     print(f"{TOWN}: {len(subs)} subcatchments, {subs.area.sum() / 1e6:.2f} km2; "
           f"soil {soil.shape[1]}x{soil.shape[0]} @ {SOIL_CELL_M:g} m, "

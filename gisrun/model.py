@@ -22,6 +22,7 @@ from pyproj import CRS
 
 from .engine import LossResult
 from .grid.classes import ClassGrid
+from .grid.polygons import ClassPolygons
 from .project import Project, UncertaintySettings
 from .storm import Hyetograph
 
@@ -74,8 +75,9 @@ class Inputs:
     """Everything read from disk for a run, checked and in SI."""
 
     subcatchments: gpd.GeoDataFrame
-    soil: ClassGrid
-    cover: ClassGrid | None
+    #: A class raster, or a polygon layer of classes (already in the overlay's CRS).
+    soil: ClassGrid | ClassPolygons
+    cover: ClassGrid | ClassPolygons | None
     storms: tuple[Hyetograph, ...]
     overrides: pd.DataFrame | None = None
     #: Warnings raised while reading (repaired polygons, implausible storms), as text.

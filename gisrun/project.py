@@ -34,8 +34,10 @@ class SubcatchmentSource:
 
 @dataclass(frozen=True)
 class SoilSource:
-    """The soil raster, its code table and the soil choices of the run.
+    """The soil raster or polygon layer, its code table and the soil choices of the run.
 
+    With ``class_field`` the file is a polygon layer (``layer`` picks one) whose field
+    holds each polygon's class, or a code looked up in ``codes`` when that is given.
     With an attribute table (``[soil] attributes``) ``codes`` is the table's
     key -> class map and ``keys`` the :class:`gisrun.parameters.class_keys.KeyedClasses`
     it was read into (typed loosely here so the project types import no compute).
@@ -51,11 +53,24 @@ class SoilSource:
     keys: Any = None
     attributes: Path | None = None
     unlisted_keys: str = "error"
+    layer: str | None = None
+    class_field: str | None = None
+
+    @property
+    def is_polygons(self) -> bool:
+        """True for a polygon layer, False for a raster."""
+        return self.class_field is not None
+
+    @property
+    def kind(self) -> str:
+        """``"polygon layer"`` or ``"raster"``, for messages and listings."""
+        return "polygon layer" if self.is_polygons else "raster"
 
 
 @dataclass(frozen=True)
 class CoverSource:
-    """The land-cover raster and its code table (or attribute table, as for the soil)."""
+    """The land-cover raster or polygon layer and its code table (or attribute table, as for
+    the soil; see :class:`SoilSource`)."""
 
     path: Path
     codes: dict[int, str]
@@ -63,6 +78,18 @@ class CoverSource:
     keys: Any = None
     attributes: Path | None = None
     unlisted_keys: str = "error"
+    layer: str | None = None
+    class_field: str | None = None
+
+    @property
+    def is_polygons(self) -> bool:
+        """True for a polygon layer, False for a raster."""
+        return self.class_field is not None
+
+    @property
+    def kind(self) -> str:
+        """``"polygon layer"`` or ``"raster"``, for messages and listings."""
+        return "polygon layer" if self.is_polygons else "raster"
 
 
 @dataclass(frozen=True)
@@ -181,11 +208,11 @@ class Project:
     def input_files(self) -> dict[str, Path]:
         """Every file the run reads, by what it is (``"soil raster"``); no file is opened."""
         files = {"project file": self.path, "subcatchment file": self.subcatchments.path,
-                 "soil raster": self.soil.path}
+                 f"soil {self.soil.kind}": self.soil.path}
         if self.soil.attributes is not None:
             files["soil attribute table"] = self.soil.attributes
         if self.cover is not None:
-            files["cover raster"] = self.cover.path
+            files[f"cover {self.cover.kind}"] = self.cover.path
             if self.cover.attributes is not None:
                 files["cover attribute table"] = self.cover.attributes
         if self.overrides is not None:

@@ -36,6 +36,7 @@ from bad_inputs_helpers import (
     write_raster,
     write_subcatchments,
 )
+from polygon_helpers import soil_layer
 from shapely.geometry import LineString, Polygon
 
 BOTH = ("check", "run")
@@ -473,6 +474,32 @@ CASES: dict[str, Case] = {
         _output_linked_to("cover.tif"),
         re.compile(r"result\.gpkg: would replace an input of this run \(cover raster"),
         extra=("--overwrite",)),
+    # issue 18: soil polygon layers
+    "soil layer class field missing": Case(
+        soil_layer(field="soil_group"), re.compile(r"soil\.gpkg:soils:group: no such field")),
+    "soil layer class field of a date type": Case(
+        soil_layer(field="group2", group=np.array(["2020-01-01", "2021-01-01"],
+                                                  dtype="datetime64[ms]")),
+        re.compile(r"soil\.gpkg:soils:group: is a datetime64.*text or whole-number field")),
+    "soil layer class unknown": Case(
+        soil_layer(labels=["A", "Q"]), re.compile(r"soil\.gpkg:soils:group: holds 'Q'")),
+    "soil layer code missing from the code table": Case(
+        soil_layer(labels=[1, 7], keep_codes=True),
+        re.compile(r"soil\.gpkg:soils:group: holds codes 7 that .*\[soil\]\.codes")),
+    "soil layer polygons overlap": Case(
+        soil_layer([square(0, 0, 60, 100), square(50, 0, 100, 100)]),
+        re.compile(r"soil\.gpkg:soils:fid=1,2: features 1 and 2 overlap by 1000 m2")),
+    "soil layer of lines": Case(
+        soil_layer([LineString([(X0, Y0), (X0 + 50, Y0 + 50)]),
+                    LineString([(X0 + 50, Y0), (X0 + 99, Y0 + 50)])]),
+        re.compile(r"soil\.gpkg:soils:fid=1.*are not polygons")),
+    "soil layer leaves a subcatchment uncovered": Case(
+        soil_layer([square(0, 0, 50, 100), square(50, 0, 60, 100)]),
+        re.compile(r"soil\.gpkg:soils: nodata or outside-layer \(gap\) share.*S2 \(80\.0%\)"
+                   r".*draw polygons over the gaps")),
+    "soil layer name unknown": Case(
+        _both(soil_layer(), _toml('layer = "soils"', 'layer = "soil"')),
+        re.compile(r"soil\.gpkg:soil: no such layer")),
 }
 
 PARAMS = [pytest.param(name, command, id=f"{command}: {name}")
@@ -569,6 +596,13 @@ WARNING_CASES = {
         re.compile(r"sub\.gpkg:factor:id=S1 \(rain scale 1e\+06 x storm 'steady'\).*world record")),
     "override for a class not in the project": (_override_for_absent_class,
                                                 re.compile(r"over\.csv:line 2.*matches no unit")),
+    "soil layer polygon is repaired": (
+        # a spike into the square: make_valid keeps the square, drops the spike (no area)
+        soil_layer([square(0, 0, 50, 100), Polygon([(X0 + 50, Y0), (X0 + 100, Y0),
+                                                    (X0 + 100, Y0 + 100), (X0 + 50, Y0 + 100),
+                                                    (X0 + 50, Y0 + 50), (X0 + 70, Y0 + 50),
+                                                    (X0 + 50, Y0 + 50)])]),
+        re.compile(r"soil\.gpkg:soils: repaired 1 invalid polygon.*feature ids \[2\]")),
 }
 
 

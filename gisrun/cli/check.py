@@ -16,7 +16,10 @@ __all__ = ["check"]
 @project_argument
 def check(project: Path) -> None:
     """Check every input of PROJECT without running it; report each problem on one line."""
-    problems, notes, outputs = check_project(project)
+    facts: list[str] = []
+    problems, notes, outputs = check_project(project, facts)
+    for fact in facts:
+        click.echo(f"polygon layer {fact}")
     for note in notes:
         click.echo(f"gisrun: warning: {note}", err=True)
     for problem in problems:

@@ -49,6 +49,7 @@ from ..options import (
     NODATA_RULES,
     SERIES_STORES,
     UNIT_SYSTEMS,
+    UNLISTED_KEY_RULES,
     Choices,
     check_geopackage_name,
 )
@@ -56,7 +57,7 @@ from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_l
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
 from .areal import AREAL_KINDS
-from .attributes import ATTRIBUTE_KEYS, keyed_source
+from .attributes import ATTRIBUTE_KEYS, KeyedSource, keyed_source
 from .impervious import IMPERVIOUS_KEYS, check_impervious_combination, read_impervious
 from .reader import TableReader
 from .storms import STORM_FILE_KEYS
@@ -90,8 +91,9 @@ _SCHEMA: dict[str, tuple[str, ...]] = {
     "subcatchments": ("path", "layer", "id_field", "crs", "method_field", "parameter_fields",
                       "max_overlap_fraction"),
     "soil": ("path", "classification", "dual_group_condition", "initial_saturation",
-             "initial_water_content", "codes", "crs", *ATTRIBUTE_KEYS),
-    "cover": ("path", "codes", "crs", *ATTRIBUTE_KEYS),
+             "initial_water_content", "codes", "crs", "layer", "class_field",
+             *ATTRIBUTE_KEYS),
+    "cover": ("path", "codes", "crs", "layer", "class_field", *ATTRIBUTE_KEYS),
     "nodata": ("rule", "max_fraction"),
     "method": ("name", "combine", "compare_composite", "initial_abstraction_ratio",
                "antecedent_condition", "lumped_parameters"),
@@ -225,11 +227,13 @@ def _subcatchments(sub: TableReader) -> SubcatchmentSource:
 
 
 def _soil(soil: TableReader) -> SoilSource:
+    layer, class_field = _polygon_keys(soil)
     classification = soil.choice("classification", SOIL_CLASSIFICATIONS)
-    codes, keys, attributes, unlisted = keyed_source(soil, "soil", classification)
+    codes, keys, attributes, unlisted = _class_table(soil, "soil", class_field, classification)
     return SoilSource(
         path=soil.path("path"),
         codes=codes, keys=keys, attributes=attributes, unlisted_keys=unlisted,
+        layer=layer, class_field=class_field,
         classification=classification,
         dual_group_condition=soil.choice("dual_group_condition", DUAL_GROUP_CONDITIONS),
         initial_saturation=soil.number("initial_saturation", default=0.3, low=0.0, high=1.0),
@@ -267,9 +271,30 @@ def _water_content(soil: TableReader) -> float | None:
 def _cover(cover: TableReader, *, present: bool) -> CoverSource | None:
     if not present or not cover.data:
         return None
-    codes, keys, attributes, unlisted = keyed_source(cover, "cover")
+    layer, class_field = _polygon_keys(cover)
+    codes, keys, attributes, unlisted = _class_table(cover, "cover", class_field)
     return CoverSource(path=cover.path("path"), codes=codes, keys=keys, attributes=attributes,
-                       unlisted_keys=unlisted, crs=cover.string("crs", required=False))
+                       unlisted_keys=unlisted, crs=cover.string("crs", required=False),
+                       layer=layer, class_field=class_field)
+
+
+def _polygon_keys(table: TableReader) -> tuple[str | None, str | None]:
+    """``layer`` and ``class_field`` of a polygon layer (both None for a raster)."""
+    layer = table.string("layer", required=False)
+    class_field = table.string("class_field", required=False)
+    if layer is not None and class_field is None:
+        table.fail("layer", "is given without class_field", "name the field that holds each "
+                   "polygon's class (class_field = ...), or remove layer for a raster")
+    return layer, class_field
+
+
+def _class_table(table: TableReader, kind: str, class_field: str | None,
+                 classification: str = "hydrologic_soil_group") -> KeyedSource:
+    """The code or attribute table; neither is needed by a polygon layer of class names."""
+    if class_field is not None and "codes" not in table.data \
+            and "attributes" not in table.data:
+        return {}, None, None, UNLISTED_KEY_RULES.default
+    return keyed_source(table, kind, classification)
 
 
 def _storms(top_level: TableReader, raw: Mapping[str, Any]) -> tuple[dict[str, Any], ...]:

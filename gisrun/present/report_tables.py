@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from ..model import RunResult
+from ..project import CoverSource, SoilSource
 from .display import display_frame, human, method_name
 from .html import esc, table
 from .layers import run_info
@@ -27,8 +28,9 @@ def inputs_section(result: RunResult) -> str:
     rows = [("project file", p.path.name), ("subcatchments", f"{p.subcatchments.path.name} "
              f"({human(len(result.subcatchments))} polygons, id field {p.subcatchments.id_field})"),
             ("subcatchment CRS", result.subcatchments.crs.name),
-            ("soil raster", f"{p.soil.path.name} ({p.soil.classification})"),
-            ("cover raster", p.cover.path.name if p.cover else "none"),
+            (f"soil {p.soil.kind}", f"{_named(p.soil)} ({p.soil.classification})"),
+            (f"cover {p.cover.kind}" if p.cover else "cover raster",
+             _named(p.cover) if p.cover else "none"),
             ("parameter overrides", p.overrides.name if p.overrides else "none"),
             ("unit system", p.units.name), ("time step", f"{human(p.time_step_s / 60)} min"),
             ("nodata rule", f"{p.nodata_rule} (max share {p.max_nodata_fraction:.0%})")]
@@ -41,6 +43,15 @@ def inputs_section(result: RunResult) -> str:
         return body + "<p>Every subcatchment is wholly covered by soil and cover data.</p>"
     return body + ("<p>Subcatchments with nodata or outside-raster area (filled by the nodata "
                    "rule):</p>" + table(frame))
+
+
+def _named(source: SoilSource | CoverSource) -> str:
+    """The file, and for a polygon layer its layer and class field."""
+    if not source.is_polygons:
+        return source.path.name
+    layer = f", layer {source.layer}" if source.layer else ""
+    return (f"{source.path.name}{layer}, class field {source.class_field}: unit areas by "
+            "exact polygon intersection")
 
 
 def method_counts_section(result: RunResult) -> str:

@@ -16,6 +16,7 @@ import geopandas as gpd
 
 from ..config.project import load_project
 from ..errors import GisrunError, GisrunWarning, OutputError
+from ..grid.polygons import ClassPolygons
 from ..io.files import refuse_inputs_among
 from ..io.raster import ClassRaster
 from ..io.series_file import series_path, series_store
@@ -36,6 +37,7 @@ from .inputs import (
     read_subcatchment_layer,
     warn_if_rain_scale_implausible,
 )
+from .polygon_inputs import align_polygon_layers, describe_polygon_layer
 from .steps import overlay_inputs, prepare_parameters
 
 __all__ = ["check_project", "check_output_path", "output_lines"]
@@ -43,13 +45,16 @@ __all__ = ["check_project", "check_output_path", "output_lines"]
 T = TypeVar("T")
 
 
-def check_project(path: str | Path) -> tuple[list[str], list[str], list[str]]:
+def check_project(path: str | Path, facts: list[str] | None = None
+                  ) -> tuple[list[str], list[str], list[str]]:
     """Check a project's inputs without running it.
 
     Parameters
     ----------
     path : path
         Project file or folder.
+    facts : list, optional
+        Filled with one line per polygon layer: its features, classes, overlaps and gaps.
 
     Returns
     -------
@@ -68,16 +73,19 @@ def check_project(path: str | Path) -> tuple[list[str], list[str], list[str]]:
         project = _attempt(problems, load_project, path)
         if project is not None:  # the output a run would write must not be an input
             _attempt(problems, refuse_inputs_among, [project.output], project.input_files())
-        later = _check_inputs(project, problems, outputs) if project is not None else []
+        later = (_check_inputs(project, problems, outputs, facts) if project is not None
+                 else [])
     notes = [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
     return problems, list(dict.fromkeys([*notes, *later])), outputs
 
 
-def _check_inputs(project: Project, problems: list[str], outputs: list[str]) -> list[str]:
+def _check_inputs(project: Project, problems: list[str], outputs: list[str],
+                  facts: list[str] | None = None) -> list[str]:
     """Run every reader and the overlay and parameter steps; return their notes.
 
     Where the run would write is added to ``outputs`` once the subcatchments and storms
-    (which decide where the series go) have been read.
+    (which decide where the series go) have been read; ``facts`` gets one line per
+    polygon layer.
     """
     _attempt(problems, check_output_path, project.output)
     subs = _attempt(problems, read_subcatchment_layer, project)
@@ -106,7 +114,13 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str]) -> 
                       and impervious is None)
     if subs is None or missing_cover or storms is None or not codes_ok:
         return storm_notes
-    inputs = Inputs(subs, soil, cover, storms, overrides, impervious=impervious)
+    inputs = _attempt(problems, align_polygon_layers, project,
+                      Inputs(subs, soil, cover, storms, overrides, impervious=impervious))
+    if inputs is None:
+        return storm_notes
+    if facts is not None:
+        facts += [describe_polygon_layer(x, subs) for x in (inputs.soil, inputs.cover)
+                  if isinstance(x, ClassPolygons)]
     overlaid = _attempt(problems, overlay_inputs, project, inputs)
     if overlaid is None:
         return storm_notes
@@ -158,10 +172,15 @@ def check_output_path(target: Path) -> None:
             return
 
 
-def _check_codes(problems: list[str], notes: list[str], raster: ClassRaster,
+def _check_codes(problems: list[str], notes: list[str], raster: ClassRaster | ClassPolygons,
                  subs: gpd.GeoDataFrame | None, source: Any, where: str, project: Project
                  ) -> bool:
-    """Check a raster's codes; for a keyed raster, note what its attribute table supplied."""
+    """Check a raster's codes; for a keyed raster, note what its attribute table supplied.
+
+    A polygon layer's classes were checked as it was read.
+    """
+    if isinstance(raster, ClassPolygons):
+        return True
     if source.keys is not None:
         notes.append(source.keys.summary())
     if source.unlisted_keys == "nodata":

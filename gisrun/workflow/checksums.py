@@ -25,10 +25,11 @@ def dataset_files(project: Project) -> dict[Path, list[Path] | None]:
     """
     out: dict[Path, list[Path] | None] = {
         Path(project.subcatchments.path): vector_files(project.subcatchments.path),
-        Path(project.soil.path): raster_files(project.soil.path),
     }
-    if project.cover:
-        out[Path(project.cover.path)] = raster_files(project.cover.path)
+    for source in (project.soil, project.cover):
+        if source is not None:
+            files = vector_files if source.is_polygons else raster_files
+            out[Path(source.path)] = files(source.path)
     if project.impervious is not None and project.impervious.path is not None:
         out[Path(project.impervious.path)] = raster_files(project.impervious.path)
     return out

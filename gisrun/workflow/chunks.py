@@ -26,6 +26,7 @@ from numpy.typing import NDArray
 from ..engine import LossResult
 from ..errors import GisrunWarning
 from ..grid.classes import ClassGrid
+from ..grid.polygons import ClassPolygons
 from ..model import Inputs, StormResult
 from ..project import Project
 from ..storm import Hyetograph
@@ -179,8 +180,8 @@ class ChunkTask:
     index: int
     project: Project
     subcatchments: gpd.GeoDataFrame
-    soil: ClassGrid
-    cover: ClassGrid | None
+    soil: ClassGrid | ClassPolygons
+    cover: ClassGrid | ClassPolygons | None
     storms: tuple[Hyetograph, ...]
     #: Each storm's rain per run step (resampled once), m: ``(steps,)``, or (areal rain) this
     #: chunk's columns ``(steps, subcatchments)``.

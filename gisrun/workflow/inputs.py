@@ -30,6 +30,7 @@ from ..parameters.tables import UNSPECIFIED_COVER_STANDS_FOR, cover_table
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph, check_step_count
+from .polygon_inputs import ClassPolygons, align_polygon_layers, read_class_polygons
 
 __all__ = [
     "read_inputs",
@@ -72,15 +73,17 @@ def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
     return subs
 
 
-def read_soil(project: Project) -> ClassRaster:
-    """Open the soil raster and check it against the project's code table."""
+def read_soil(project: Project) -> ClassRaster | ClassPolygons:
+    """Open the soil raster (or read the polygon layer) and check it against the code table."""
+    if project.soil.is_polygons:
+        return read_class_polygons(project, "soil")
     return read_class_raster(project.soil.path, codes=project.soil.codes,
                              where=f"{project.soil.path} ({project.where('soil', 'path')})",
                              crs=project.soil.crs)
 
 
-def read_cover(project: Project) -> ClassRaster | None:
-    """Open the land-cover raster, if the project names one.
+def read_cover(project: Project) -> ClassRaster | ClassPolygons | None:
+    """Open the land-cover raster (or read the polygon layer), if the project names one.
 
     Warns
     -----
@@ -91,6 +94,8 @@ def read_cover(project: Project) -> ClassRaster | None:
     if project.cover is None:
         warnings.warn(no_cover_note(project), GisrunWarning, stacklevel=2)
         return None
+    if project.cover.is_polygons:
+        return read_class_polygons(project, "cover")
     return read_class_raster(project.cover.path, codes=project.cover.codes,
                              where=f"{project.cover.path} ({project.where('cover', 'path')})",
                              crs=project.cover.crs)
@@ -180,14 +185,14 @@ def read_inputs(project: Project) -> Inputs:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
         subcatchments = read_subcatchment_layer(project)
-        inputs = Inputs(
+        inputs = align_polygon_layers(project, Inputs(
             subcatchments=subcatchments,
             soil=read_soil(project),
             cover=read_cover(project),
             storms=read_storms(project, subcatchments),
             overrides=read_overrides(project),
             impervious=read_impervious_grid(project),
-        )
+        ))
         warn_if_rain_scale_implausible(project, inputs.subcatchments, inputs.storms)
         check_overlaps(project, inputs.subcatchments)
         for source in (project.soil, project.cover):
@@ -384,11 +389,11 @@ def check_inputs_codes(project: Project, inputs: Inputs) -> None:
     """Check both rasters' codes under the subcatchments (see :func:`check_raster_codes`).
 
     A keyed raster whose ``unlisted_keys`` is ``"nodata"`` has only its extent checked:
-    its unlisted keys count as nodata in the overlay.
+    its unlisted keys count as nodata in the overlay (a polygon layer's, as it was read).
     """
-    sources = [(inputs.soil, project.soil, "soil")]
-    if inputs.cover is not None and project.cover is not None:
-        sources.append((inputs.cover, project.cover, "cover"))
+    pairs = ((inputs.soil, project.soil, "soil"), (inputs.cover, project.cover, "cover"))
+    sources = [(r, s, k) for r, s, k in pairs
+               if r is not None and s is not None and not isinstance(r, ClassPolygons)]
     for raster, source, section in sources:
         if source.unlisted_keys == "nodata":
             check_raster_extent(raster, inputs.subcatchments, project.max_nodata_fraction)

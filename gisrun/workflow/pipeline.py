@@ -23,6 +23,7 @@ from numpy.typing import NDArray
 from ..config.project import load_project
 from ..engine import LossResult
 from ..errors import GisrunWarning
+from ..grid.polygons import ClassPolygons
 from ..io.overlay_cache import load_overlay, overlay_key, save_overlay
 from ..model import CellRasters, Inputs, RunResult, StormResult
 from ..present.layers import layer_name, storm_layer_name
@@ -129,6 +130,7 @@ def run(
         keep_loss = len(inputs.subcatchments) < KEEP_STEP_ARRAYS_BELOW
     project, lumping_note = _lumping_for_size(project, len(inputs.subcatchments))
     cells = keep_loss if cells is None else cells
+    cells, cells_note = _cells_possible(inputs, cells)
     if keep_loss:  # a run small enough to keep its step arrays keeps its unit rows too
         unit_sink = None
     rains, resampled = run_rains(project, inputs)
@@ -143,7 +145,7 @@ def run(
     say(f"overlay, parameters and {len(inputs.storms)} storm(s) in {len(tasks)} chunk(s)")
     outputs = list(_stream(execute(tasks, workers=workers, scheduler=scheduler), inputs,
                            series_sink, unit_sink))
-    notes = [*inputs.notes, *lumping_note, *(str(w.message) for w in [*caught, *refused]
+    notes = [*inputs.notes, *lumping_note, *cells_note, *(str(w.message) for w in [*caught, *refused]
                               if issubclass(w.category, GisrunWarning)), *resampled]
     notes += [n for out in outputs for n in out.notes]
     cell_rasters = None
@@ -176,6 +178,16 @@ def _lumping_for_size(project: Project, n_subcatchments: int) -> tuple[Project, 
         f"lumped parameters not made for {n_subcatchments} subcatchments (automatic above "
         f"{KEEP_STEP_ARRAYS_BELOW - 1}); set [method] lumped_parameters = \"area_weighted\" or "
         "\"solve\" to make them"]
+
+
+def _cells_possible(inputs: Inputs, cells: bool) -> tuple[bool, list[str]]:
+    """Cell values are made on the soil raster's grid: none when soil or cover is polygons."""
+    layers = [x.where for x in (inputs.soil, inputs.cover) if isinstance(x, ClassPolygons)]
+    if not cells or not layers:
+        return cells, []
+    return False, [f"no cell rasters: {layers[0]} is a polygon layer, and the cell values are "
+                   "made on the cells of soil and cover rasters (the subcatchment and unit "
+                   "results are complete)"]
 
 
 def _tasks(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64], ...],
@@ -240,7 +252,7 @@ def _cells_per_subcatchment(inputs: Inputs) -> float:
     """Mean polygon area in cells of the finer raster (in each raster's own CRS)."""
     best = 0.0
     for raster in (inputs.soil, inputs.cover, inputs.impervious):
-        if raster is None:
+        if raster is None or isinstance(raster, ClassPolygons):
             continue
         geoms = inputs.subcatchments.geometry
         if geoms.crs is not None and raster.crs is not None and geoms.crs != raster.crs:

@@ -26,6 +26,7 @@ from ..engine import ENGINES, method_name, run_losses
 from ..errors import ParameterError, VectorError
 from ..grid.impervious import impervious_shares
 from ..grid.overlay import compute_unit_areas
+from ..grid.polygons import ClassPolygons, polygon_unit_areas
 from ..model import Inputs, StormResult
 from ..parameters import assign_parameters, composite_parameters
 from ..parameters.equivalent import LUMPED_COLUMNS, StormRunoff, lumped_parameters
@@ -34,6 +35,7 @@ from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..storm import Hyetograph
 from .inputs import check_inputs_codes
+from .polygon_inputs import class_layer_sources
 from .rain import run_rain, unit_rain
 
 __all__ = [
@@ -63,7 +65,8 @@ def overlay_inputs(project: Project, inputs: Inputs, *, check_codes: bool = True
     if check_codes:
         check_inputs_codes(project, inputs)
     cover_codes = project.cover.codes if project.cover else None
-    units, coverage, notes = compute_unit_areas(
+    polygons = any(isinstance(x, ClassPolygons) for x in (inputs.soil, inputs.cover))
+    units, coverage, notes = (polygon_unit_areas if polygons else compute_unit_areas)(
         inputs.subcatchments, inputs.soil, inputs.cover,
         soil_codes=project.soil.codes,
         cover_codes=cover_codes,
@@ -107,6 +110,9 @@ def prepare_parameters(
         sources = pd.concat([sources, _share_sources(units, project)], ignore_index=True)
     if table_shares is not None:
         sources = pd.concat([sources, table_shares], ignore_index=True)
+    layers = class_layer_sources(project, params)
+    if not layers.empty:
+        sources = pd.concat([sources, layers], ignore_index=True)
     if project.combine == "composite":
         params = composite_parameters(params)
     return params.reset_index(drop=True), compact_sources(sources), list(notes)

@@ -100,3 +100,27 @@ def test_bands_do_not_depend_on_the_chunking(tmp_path):
     numbers = [c for c in one.columns if one[c].dtype == float]
     assert np.allclose(one[numbers], many[numbers], rtol=1e-12, atol=1e-15, equal_nan=True)
     assert results[1].project.memory_budget_mb == 50
+
+
+def test_pinned_values_give_the_run_result_through_the_whole_run(tmp_path, capsys):
+    # every Green-Ampt parameter of both soils given without a range: nothing is sampled, and
+    # the band is the run's own result in every column (the layers are written the same way)
+    over = ("soil_class,ks_mm_per_h,suction_head_mm,effective_porosity\n"
+            "A,10.9,110.1,0.412\nB,6.5,166.8,0.486\n")
+    folder = tmp_path / "pinned"
+    project = make_project(folder)
+    (folder / "over.csv").write_text(over)
+    project.write_text(project.read_text() + '\n[parameters]\noverrides = "over.csv"\n'
+                       + UNCERTAINTY)
+    (folder / "storm.csv").write_text("time_min,intensity_mm_per_h\n0,0\n20,45\n40,45\n60,45\n")
+    code, _, err = run_cli(capsys, ["run", str(folder), "--quiet", "--no-extras"])
+    assert code == 0, err
+    gpkg = folder / "out" / "result.gpkg"
+    run = pyogrio.read_dataframe(gpkg, layer="runoff_steady")
+    bands = pyogrio.read_dataframe(gpkg, layer="runoff_bands")
+    assert pyogrio.read_dataframe(gpkg, layer="uncertainty_ranges").empty
+    for p in (5, 50, 95):
+        assert np.array_equal(bands[f"runoff_depth_p{p}_mm"], run["runoff_depth_mm"])
+        assert np.array_equal(bands[f"runoff_volume_p{p}_m3"], run["runoff_volume_m3"])
+        assert np.array_equal(bands[f"time_to_ponding_p{p}_min"], run["time_to_ponding_min"],
+                              equal_nan=True)
