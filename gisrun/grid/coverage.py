@@ -14,7 +14,7 @@ import numpy as np
 import shapely
 from numpy.typing import NDArray
 
-__all__ = ["CellCoverage", "cell_coverage"]
+__all__ = ["CellCoverage", "cell_coverage", "cell_increments"]
 
 
 @dataclass(frozen=True)
@@ -79,10 +79,25 @@ def cell_coverage(geoms: NDArray[Any], origin: tuple[float, float] = (0.0, 0.0))
     >>> cov.run_start.tolist(), cov.run_stop.tolist()  # cells 2 and 3 wholly inside
     ([2], [4])
     """
-    x0, y0, x1, y1, poly = _edges(geoms, origin)
-    piece_poly, row, dy, xmin, xmax = _row_pieces(x0, y0, x1, y1, poly)
-    p, r, c, acc = _cell_increments(piece_poly, row, dy, xmin, xmax)
+    p, r, c, acc = cell_increments(geoms, origin)
     return _running_sums(p, r, c, acc, n_poly=len(geoms))
+
+
+def cell_increments(geoms: NDArray[Any], origin: tuple[float, float] = (0.0, 0.0)
+                    ) -> tuple[NDArray[Any], ...]:
+    """The increments of :func:`cell_coverage` before they are summed (grid coordinates).
+
+    Returns
+    -------
+    poly, row, col : ndarray of int
+        Polygon index, row and column (relative to ``origin``) of each increment;
+        grouped by polygon, in the order of the polygons.
+    increment : ndarray of float
+        Added up per cell in the order given, then run along each row of each
+        polygon, they give the covered share of every cell of the row.
+    """
+    x0, y0, x1, y1, poly = _edges(geoms, origin)
+    return _cell_increments(*_row_pieces(x0, y0, x1, y1, poly))
 
 
 def _edges(geoms: NDArray[Any], origin: tuple[float, float]) -> tuple[NDArray[Any], ...]:
@@ -130,10 +145,29 @@ def _cell_increments(poly: NDArray[Any], row: NDArray[Any], dy: NDArray[Any],
     n = np.floor(xmax).astype(np.int64) - cmin + 2  # crossed cells and the next one
     piece, k = _expand(n)
     col = cmin[piece] + k
-    lo, width = xmin[piece], (xmax - xmin)[piece]
-    v = (col - lo).astype(np.float64)  # u - xmin for u = col
-    second = _mean_excess(v + 1, width) - 2 * _mean_excess(v, width) + _mean_excess(v - 1, width)
-    return poly[piece], row[piece], col, dy[piece] * second
+    acc = np.empty(col.size)
+    # Most pieces stay in one column: then the second difference below is, in closed form,
+    # dy * (cmin + 1 - mid) in that column and dy * (mid - cmin) in the next (mid: the piece's
+    # mean x), written with the same v and half-width as the general case.
+    one = np.flatnonzero(n == 2)
+    first = (np.cumsum(n) - n)[one]
+    v = cmin[one] - xmin[one]
+    half = (xmax[one] - xmin[one]) / 2
+    acc[first] = dy[one] * ((v + 1) - half)
+    acc[first + 1] = dy[one] * (half - v)
+    # Pieces over several columns: E at col + 1 for each of their cells; E(col) and E(col - 1)
+    # are the previous cells' values (0 before the piece: E vanishes left of xmin).
+    many = np.flatnonzero(n[piece] > 2)
+    pm = piece[many]
+    lo, width = xmin[pm], xmax[pm] - xmin[pm]
+    e_next = _mean_excess((col[many] - lo).astype(np.float64) + 1, width)
+    start = np.r_[True, pm[1:] != pm[:-1]]
+    e_here = np.r_[0.0, e_next[:-1]]
+    e_here[start] = 0.0
+    e_before = np.r_[0.0, e_here[:-1]]
+    e_before[start] = 0.0
+    acc[many] = dy[pm] * (e_next - 2 * e_here + e_before)
+    return poly[piece], row[piece], col, acc
 
 
 def _mean_excess(v: NDArray[np.float64], width: NDArray[np.float64]) -> NDArray[np.float64]:

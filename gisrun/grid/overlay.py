@@ -12,13 +12,18 @@ piece adds to each cell it crosses the exact area between the piece and the
 cell's right side (x is linear in y, so this is a closed form), and adds its
 whole height to every cell further right. A running sum along the row then
 gives each cell's covered fraction exactly (the accumulation used by exact
-area-coverage scan converters). Only cells touched by an edge are stored;
-between them the running sum is constant (0 outside, 1 inside), so interior
-cells are counted as runs read straight from the class raster. Work grows with
-the number of boundary cells plus covered cells, and subcatchments are handled
-in spatially compact chunks, each reading only its own raster window (in row
-bands when one window would be large), so memory does not grow with the
-raster.
+area-coverage scan converters). Compact polygons (bounding box at most about
+four times their area) run the sum over the span of cells each of their rows
+reaches, laid end to end, and add up share x cell by (polygon, class) in one
+pass, with no sort (:mod:`gisrun.grid.dense_sums`). Others (long thin or
+sprawling shapes) store only the cells an edge touches; between them the
+running sum is constant (0 outside, 1 inside), so interior cells are counted
+as runs read straight from the class raster (:mod:`gisrun.grid.sparse_sums`).
+The two give the same areas up to the order of float additions. Work grows
+with the number of boundary cells plus covered cells, and subcatchments are
+handled in spatially compact chunks, each reading only its own raster window
+(in row bands when one window would be large), so memory does not grow with
+the raster.
 
 Two rasters (soil and cover) on different grids: the computation runs on the
 finer grid (smaller cell); the coarser raster is sampled at each fine cell's
@@ -48,16 +53,24 @@ import shapely
 from numpy.typing import NDArray
 from pyproj import CRS
 
-from ..crs import geodesic_cell_area_m2, ground_areas, linear_unit_m
+from ..crs import ground_areas
 from ..errors import CRSError, InputError, RasterError
 from ..options import NODATA_RULES
-from .classes import CentreSampling, ClassGrid, CodeLookup, nesting, read_padded
+from .classes import ClassGrid
 from .coverage import cell_coverage
+from .dense_sums import dense_chunk_sums, dense_eligible
+from .fine_grid import NODATA_CLASS as _NODATA
+from .fine_grid import OUTSIDE_CLASS as _OUTSIDE
+from .fine_grid import UNSPECIFIED_COVER
+from .fine_grid import FineGrid as _Grid
+from .fine_grid import combined_table as _combined_table  # noqa: F401 - kept importable here
+from .fine_grid import lookup_classes as _lookup  # noqa: F401 - kept importable here
+from .fine_grid import note_alignment as _note_alignment  # noqa: F401 - kept importable here
+from .sparse_sums import painted_counts as _painted_counts  # noqa: F401 - kept importable here
+from .sparse_sums import run_sums as _run_sums  # noqa: F401 - kept importable here
+from .sparse_sums import sparse_chunk_sums as _chunk_sums
 
 __all__ = ["compute_unit_areas", "UNSPECIFIED_COVER"]
-
-UNSPECIFIED_COVER = "unspecified"
-_OUTSIDE, _NODATA = 0, 1  # class indices before the real (soil x cover) classes
 
 
 def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid,
@@ -127,102 +140,6 @@ def _check_options(rule: str, fraction: float) -> None:
         raise InputError(f"max nodata fraction {fraction!r}", "is outside 0-1", "give a share 0-1")
 
 
-class _Grid:
-    """The computation grid (the finer raster) and how to read classes on it."""
-
-    def __init__(self, fine: ClassGrid, coarse: ClassGrid | None, fine_lut: CodeLookup,
-                 coarse_lut: CodeLookup | None, fine_is_soil: bool, labels: list[tuple[str, str]]):
-        self.fine, self.coarse, self.fine_lut, self.coarse_lut = fine, coarse, fine_lut, coarse_lut
-        self.fine_is_soil, self.labels = fine_is_soil, labels
-        self.crs = CRS.from_user_input(fine.crs)
-        self.t = fine.transform
-        self.n_classes = 2 + len(labels)
-        self._sampling = None if coarse is None else CentreSampling(fine.transform,
-                                                                    coarse.transform)
-        self._combined = None if coarse_lut is None else _combined_table(
-            fine_lut, coarse_lut, fine_is_soil)
-
-    @classmethod
-    def build(cls, soil: ClassGrid, cover: ClassGrid | None, soil_codes: Mapping[int, str],
-              cover_codes: Mapping[int, str] | None, notes: list[str]) -> _Grid:
-        soil_lut = _lookup(soil_codes, soil.nodata)
-        if cover is None:
-            labels = [(s, UNSPECIFIED_COVER) for s in soil_lut.labels]
-            return cls(soil, None, soil_lut, None, True, labels)
-        if cover_codes is None:
-            raise InputError(f"{cover.where}", "cover raster given without a code table",
-                             "add the cover codes")
-        if not CRS.from_user_input(soil.crs).equals(CRS.from_user_input(cover.crs)):
-            raise CRSError(f"{cover.where}", f"CRS differs from the soil raster {soil.where}",
-                           "warp one raster to the other's CRS with nearest neighbour first")
-        cover_lut = _lookup(cover_codes, cover.nodata)
-        labels = [(s, c) for s in soil_lut.labels for c in cover_lut.labels]
-        soil_cell = abs(soil.transform.a * soil.transform.e)
-        fine_is_soil = soil_cell <= abs(cover.transform.a * cover.transform.e)
-        fine, coarse = (soil, cover) if fine_is_soil else (cover, soil)
-        _note_alignment(fine, coarse, notes)
-        luts = (soil_lut, cover_lut) if fine_is_soil else (cover_lut, soil_lut)
-        return cls(fine, coarse, luts[0], luts[1], fine_is_soil, labels)
-
-    def classes(self, r0: int, r1: int, c0: int, c1: int) -> NDArray[np.int32]:
-        """Class index of fine cells rows r0:r1, cols c0:c1 (0 outside, 1 nodata)."""
-        fine = self.fine_lut.index(read_padded(self.fine, (r0, r1), (c0, c1)))
-        if self.coarse is None:
-            return fine
-        coarse = self._sampling.sample(self.coarse, self.coarse_lut, (r0, r1), (c0, c1))
-        # one look-up in the (fine class x coarse class) table instead of arithmetic and masks
-        flat = fine * np.int32(len(self.coarse_lut.labels) + 2)
-        flat += coarse
-        return self._combined[flat]
-
-    def row_weights(self, r0: int, r1: int) -> NDArray[np.float64] | None:
-        """Cell area per row in m2 for a geographic grid; None for a projected one."""
-        if not self.crs.is_geographic:
-            return None
-        t = self.t
-        edges = t.f + t.e * np.arange(r0, r1 + 1)
-        lat = np.clip(edges, -90.0, 90.0)
-        return geodesic_cell_area_m2(self.crs, t.c, t.c + t.a, lat[:-1], lat[1:])
-
-    @property
-    def cell_area_m2(self) -> float:
-        if self.crs.is_geographic:
-            return 1.0  # row weights carry the area
-        return abs(self.t.a * self.t.e) * linear_unit_m(self.crs) ** 2
-
-
-def _lookup(codes: Mapping[int, str], nodata: float | None) -> CodeLookup:
-    """Codes -> 0 outside, 1 nodata, 2.. labels (sorted)."""
-    return CodeLookup(codes, sorted(set(codes.values())), nodata, first=2,
-                      nodata_index=_NODATA, outside_index=_OUTSIDE)
-
-
-def _combined_table(fine: CodeLookup, coarse: CodeLookup, fine_is_soil: bool
-                    ) -> NDArray[np.int32]:
-    """Class of every (fine index, coarse index) pair, flattened fine-major.
-
-    Real classes are soil-major: (soil - 2) * n_cover + (cover - 2) + 2. A pair
-    with an outside cell is outside; otherwise one with a nodata cell is nodata.
-    """
-    f = np.arange(len(fine.labels) + 2)[:, None]
-    c = np.arange(len(coarse.labels) + 2)[None, :]
-    soil, cover = (f, c) if fine_is_soil else (c, f)
-    n_cover = len(coarse.labels if fine_is_soil else fine.labels)
-    out = (soil - 2) * n_cover + (cover - 2) + 2
-    out = np.where((soil == _NODATA) | (cover == _NODATA), _NODATA, out)
-    out = np.where((soil == _OUTSIDE) | (cover == _OUTSIDE), _OUTSIDE, out)
-    return out.astype(np.int32).ravel()
-
-
-def _note_alignment(fine: ClassGrid, coarse: ClassGrid, notes: list[str]) -> None:
-    ft, ct = fine.transform, coarse.transform
-    if nesting(ft, ct) is not None:
-        return
-    bound = abs(ft.a / ct.a) + abs(ft.e / ct.e)
-    notes.append(f"{coarse.where} is not aligned with {fine.where}: sampled at the finer grid's "
-                 f"cell centres; class shares may be off by up to about {bound:.1%} of each area")
-
-
 def _to_grid_crs(geoms: gpd.GeoSeries, crs: CRS, notes: list[str]) -> NDArray[Any]:
     if geoms.crs is None:
         raise CRSError("subcatchments", "have no CRS", "state the layer's CRS in the project file")
@@ -242,15 +159,26 @@ def _class_sums(geoms: NDArray[Any], grid: _Grid, chunk_cells: int) -> tuple[NDA
     b = shapely.bounds(px)
     box = np.column_stack([np.floor(b[:, 1]), np.ceil(b[:, 3]), np.floor(b[:, 0]),
                            np.ceil(b[:, 2])]).astype(np.int64)  # r0, r1, c0, c1
+    dense = dense_eligible(px, box, chunk_cells)
     out: list[tuple[NDArray[Any], ...]] = []
     for idx in _compact_chunks(px, box, chunk_cells):
-        r0, r1 = box[idx, 0].min(), box[idx, 1].max()
-        c0, c1 = box[idx, 2].min(), box[idx, 3].max()
-        cov = cell_coverage(px[idx], origin=(float(c0), float(r0)))
-        local = _chunk_sums(cov, grid, len(idx), (int(r0), int(r1), int(c0), int(c1)), chunk_cells)
+        local = np.zeros((idx.size, grid.n_classes))
+        on, off = np.flatnonzero(dense[idx]), np.flatnonzero(~dense[idx])
+        if on.size:
+            local[on] = dense_chunk_sums(px[idx[on]], box[idx[on]], grid, chunk_cells)
+        if off.size:
+            local[off] = _sparse_sums(px[idx[off]], box[idx[off]], grid, chunk_cells)
         poly, cls = np.nonzero(local)
         out.append((idx[poly], cls, local[poly, cls]))
     return tuple(np.concatenate(parts) for parts in zip(*out, strict=True))
+
+
+def _sparse_sums(px: NDArray[Any], box: NDArray[np.int64], grid: _Grid, chunk_cells: int
+                 ) -> NDArray[np.float64]:
+    r0, r1 = box[:, 0].min(), box[:, 1].max()
+    c0, c1 = box[:, 2].min(), box[:, 3].max()
+    cov = cell_coverage(px, origin=(float(c0), float(r0)))
+    return _chunk_sums(cov, grid, len(px), (int(r0), int(r1), int(c0), int(c1)), chunk_cells)
 
 
 def _compact_chunks(px: NDArray[Any], box: NDArray[np.int64],
@@ -271,68 +199,6 @@ def _compact_chunks(px: NDArray[Any], box: NDArray[np.int64],
         r0, r1, c0, c1 = nr0, nr1, nc0, nc1
     chunks.append(np.array(current))
     return chunks
-
-
-def _chunk_sums(cov: Any, grid: _Grid, n_poly: int, win: tuple[int, int, int, int],
-                chunk_cells: int) -> NDArray[np.float64]:
-    """Covered area per (polygon, class) in one window, read in row bands."""
-    r0, r1, c0, c1 = win
-    width, n_cls = c1 - c0, grid.n_classes
-    sums = np.zeros(n_poly * n_cls)
-    band = max(1, chunk_cells // max(width, 1))
-    for a in range(0, r1 - r0, band):
-        b = min(a + band, r1 - r0)
-        cls = grid.classes(r0 + a, r0 + b, c0, c1).ravel()
-        area = grid.row_weights(r0 + a, r0 + b)
-        e0, e1 = np.searchsorted(cov.row, [a, b])
-        col = cov.col[e0:e1]
-        ok = (col >= 0) & (col < width)
-        rows = cov.row[e0:e1][ok] - a
-        w = cov.fraction[e0:e1][ok] * (area[rows] if area is not None else 1.0)
-        flat = rows * width + col[ok]
-        sums += np.bincount(cov.poly[e0:e1][ok] * n_cls + cls[flat], w, minlength=sums.size)
-        sums += _run_sums(cov, a, b, width, cls, area, n_cls, sums.size)
-    return sums.reshape(n_poly, n_cls)
-
-
-def _run_sums(cov: Any, a: int, b: int, width: int, cls: NDArray[np.intp],
-              area: NDArray[np.float64] | None, n_cls: int, size: int) -> NDArray[np.float64]:
-    """Area per (polygon, class) of the interior runs in rows a:b of a window."""
-    s0, s1 = np.searchsorted(cov.run_row, [a, b])
-    rows = cov.run_row[s0:s1] - a
-    start = np.clip(cov.run_start[s0:s1], 0, width)
-    n = np.clip(cov.run_stop[s0:s1], 0, width) - start
-    poly, weight = cov.run_poly[s0:s1], cov.run_weight[s0:s1]
-    whole = (weight == 1) & (n > 0)
-    out = np.zeros(size)
-    if area is None and whole.any():
-        flat0 = rows[whole] * width + start[whole]
-        painted = _painted_counts(flat0, n[whole], poly[whole], cls, n_cls, size)
-        if painted is not None:
-            out += painted
-            poly, rows, start, n, weight = (v[~whole] for v in (poly, rows, start, n, weight))
-    owner = np.repeat(np.arange(n.size), n)
-    flat = np.arange(owner.size) + np.repeat(rows * width + start - (np.cumsum(n) - n), n)
-    w = weight * (area[rows] if area is not None else 1.0)
-    return out + np.bincount(poly[owner] * n_cls + cls[flat], w[owner], minlength=size)
-
-
-def _painted_counts(flat0: NDArray[np.int64], n: NDArray[np.int64], poly: NDArray[np.int64],
-                    cls: NDArray[np.intp], n_cls: int, size: int) -> NDArray[np.float64] | None:
-    """Cell counts per (polygon, class) by painting runs into a label raster.
-
-    Each run adds its label (polygon + 1) at its first cell and takes it off after
-    its last; a running sum then labels every cell. Returns None when runs
-    overlap (overlapping subcatchments), which the caller counts cell by cell.
-    """
-    mark = np.zeros(cls.size + 1, dtype=np.int32)
-    np.add.at(mark, flat0, (poly + 1).astype(np.int32))
-    np.add.at(mark, flat0 + n, -(poly + 1).astype(np.int32))
-    label = np.cumsum(mark[:-1], dtype=np.int32)
-    if np.count_nonzero(label) != n.sum():
-        return None
-    counts = np.bincount(label * n_cls + cls, minlength=size + n_cls)
-    return counts[n_cls:].astype(np.float64)  # label 0: cells in no run
 
 
 def _finish(ids: NDArray[Any], own_m2: NDArray[np.float64], sums: tuple[NDArray[Any], ...],
