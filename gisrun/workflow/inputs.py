@@ -18,19 +18,18 @@ import pandas as pd
 import shapely
 from pyproj import CRS, Transformer
 
-from ..config.storms import storms_from_config
 from ..crs import ground_areas, is_web_mercator
-from ..errors import GisrunWarning, RasterError, StormError, VectorError
+from ..errors import GisrunWarning, RasterError, VectorError
 from ..io.raster import ClassRaster, read_class_raster, read_value_raster
 from ..io.storm_csv import warn_if_implausible
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
 from ..model import Inputs
 from ..parameters.tables import UNSPECIFIED_COVER_STANDS_FOR, cover_table
-from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
-from ..storm import Hyetograph, check_step_count
+from ..storm import Hyetograph
 from .polygon_inputs import ClassPolygons, align_polygon_layers, read_class_polygons
+from .storms import check_storm_names, read_storms
 
 __all__ = [
     "read_inputs",
@@ -50,9 +49,6 @@ __all__ = [
     "bounds_in",
 ]
 
-
-#: Longest storm name: its output files add a prefix and suffix, and file names stop at 255.
-MAX_STORM_NAME = 100
 
 
 def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
@@ -120,51 +116,6 @@ def no_cover_note(project: Project) -> str:
             f"{stands_for['cn_B']:.0f}/{stands_for['cn_C']:.0f}/{stands_for['cn_D']:.0f} for "
             f"groups A-D) with {storage_mm:g} mm depression storage; add a [cover] table "
             f"with a land-cover raster so roofs, roads and other covers are priced as such")
-
-
-def read_storms(project: Project, subcatchments: gpd.GeoDataFrame | None = None
-                ) -> tuple[Hyetograph, ...]:
-    """Build every storm of the project; areal rain (``config.areal``) needs ``subcatchments``.
-
-    Raises
-    ------
-    StormError
-        A storm cannot be built, or two storms would write the same layer.
-    """
-    where = f"{project.path.name}:[[storms]]"
-    storms = tuple(storms_from_config(list(project.storms), base_dir=project.base_dir,
-                                      units=project.units, where=where,
-                                      subcatchments=subcatchments))
-    check_storm_names([h.name for h in storms], where)
-    for i, h in enumerate(storms, start=1):  # before anything is resampled onto the run's step
-        check_step_count(float(h.time_s[-1]), project.time_step_s, f"{where} {i} ({h.name})",
-                         "shorten the storm or lengthen "
-                         f"{project.where('project', 'time_step_min')}")
-    return storms
-
-
-def check_storm_names(names: list[str], where: str) -> None:
-    """Stop when two storm names give the same output layer or file name.
-
-    Raises
-    ------
-    StormError
-        Naming both storms.
-    """
-    for name in names:  # file names of maps and rasters are built from it; most systems
-        if len(layer_name(name)) > MAX_STORM_NAME:  # stop file names at 255 bytes
-            raise StormError(where, f"storm name {name[:40]!r}... is {len(name)} characters "
-                             "long, too long for the file names of its outputs",
-                             f"give it a name of at most {MAX_STORM_NAME} characters")
-    for naming in (storm_layer_name, layer_name):
-        seen: dict[str, str] = {}
-        for name in names:
-            key = naming(name)
-            if key in seen:
-                raise StormError(where, f"storms {seen[key]!r} and {name!r} would both be "
-                                 f"written as {key!r}", "give the storms names that differ "
-                                 "in letters or digits")
-            seen[key] = name
 
 
 def read_overrides(project: Project) -> pd.DataFrame | None:
