@@ -197,6 +197,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
     _check_class_labels(file, project)
     check_impervious_combination(project.impervious, combine=project.combine,
                                  compare_composite=project.compare_composite,
+                                 uncertainty=project.uncertainty is not None,
                                  where=method.where())
     return project
 

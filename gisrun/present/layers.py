@@ -44,6 +44,7 @@ from __future__ import annotations
 from collections.abc import Callable
 
 import geopandas as gpd
+import numpy as np
 import pandas as pd
 
 from .._version import __version__
@@ -188,8 +189,13 @@ def lumped_parameters_layer(result: RunResult) -> pd.DataFrame:
 
 
 def series_layer(series: pd.DataFrame, storm_name: str, system: UnitSystem) -> pd.DataFrame:
-    """One storm's excess-rainfall series as written: storm first, output units."""
-    return _storm_first(present_frame(series, system).assign(storm=storm_name))
+    """One storm's excess-rainfall series as written: storm first, output units.
+
+    ``storm`` is a categorical of one name (no column of millions of copies of it).
+    """
+    storm = pd.Categorical.from_codes(np.zeros(len(series), dtype=np.int8),
+                                      categories=[storm_name])
+    return _storm_first(present_frame(series, system).assign(storm=storm))
 
 
 def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:

@@ -33,6 +33,7 @@ from ..storm import Hyetograph
 from ..uncertainty import ChunkParts
 from .bands import chunk_uncertainty
 from .cells import slim_unit_results
+from .disconnection import add_connected_comparison, runon_target
 from .steps import (
     add_composite_comparison,
     lumped_parameter_table,
@@ -192,8 +193,7 @@ class ChunkTask:
     cells: bool = False
     #: (units, coverage, notes) of this chunk from the overlay cache; None to overlay.
     overlay: tuple[pd.DataFrame, pd.DataFrame, list[str]] | None = None
-    #: The impervious-share grid, if the project names one.
-    impervious: ClassGrid | None = None
+    impervious: ClassGrid | None = None  # the impervious-share grid, if the project names one
 
 
 @dataclass
@@ -245,6 +245,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         results = _run_storms(project, inputs, params, task.rains, sub_ids)
         if project.compare_composite and project.combine == "units":
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
+        results = add_connected_comparison(project, inputs, units, results, sub_ids)
         lumped = lumped_parameter_table(project, inputs, params, results, sub_ids)
         cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
         bands = chunk_uncertainty(project, inputs, params, results, sub_ids)
@@ -280,7 +281,7 @@ def _run_storms(project: Project, inputs: Inputs, params: pd.DataFrame,
                 ) -> list[StormResult]:
     scale = rain_scale_for_units(project, inputs, params)
     return [run_storm(params, h, project.time_step_s, sub_ids=sub_ids, rain_scale=scale,
-                      rain_per_step_m=rain)
+                      rain_per_step_m=rain, runon_to=runon_target(project))
             for h, rain in zip(inputs.storms, rains, strict=True)]
 
 

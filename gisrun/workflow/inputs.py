@@ -193,12 +193,12 @@ def subcatchment_overlaps(subs: gpd.GeoDataFrame) -> pd.DataFrame:
     DataFrame
         ``subcatchment_id``, ``other_id``, ``overlap_area_m2`` (ground area,
         :func:`gisrun.crs.ground_areas`) and ``overlap_fraction`` (of the smaller
-        of the two), largest share first.
+        of the two), largest share first; none for a valid coverage (not searched).
     """
     geoms = subs.geometry.to_numpy()
-    tree = shapely.STRtree(geoms)
-    pairs = np.concatenate([tree.query(geoms, predicate=p) for p in ("overlaps", "contains")],
-                           axis=1)
+    tree = None if shapely.coverage_is_valid(geoms) else shapely.STRtree(geoms)  # 4 s, not 30
+    pairs = np.concatenate([tree.query(geoms, predicate=p) for p in ("overlaps", "contains")]
+                           if tree is not None else [np.zeros((2, 0), np.intp)], axis=1)
     pairs = np.unique(np.sort(pairs, axis=0), axis=1)
     i, j = pairs[:, pairs[0] != pairs[1]]
     area = np.zeros(0)

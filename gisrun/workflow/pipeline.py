@@ -43,6 +43,7 @@ from .chunks import (
     split_overlay,
 )
 from .inputs import check_inputs_codes, read_inputs
+from .disconnection import runon_target
 from .rain import chunk_rain, run_rains
 from .steps import compact_sources, overlay_inputs
 
@@ -170,10 +171,14 @@ def _lumping_for_size(project: Project, n_subcatchments: int) -> tuple[Project, 
     The equivalent and fitted sets take root searches per subcatchment and storm and a table
     kept for the whole run; a large run makes them only when the project asks (``"solve"``).
     """
+    notes = [] if runon_target(project) is None or project.lumped_parameters == "off" else [
+        "lumped parameters describe each subcatchment with every impervious area connected (a "
+        "lumped model has no run-on): the equivalent and fitted sets fold the disconnection "
+        "into the pervious parameter, the area-weighted set leaves it out"]
     if project.lumped_parameters != "auto":
-        return project, []
+        return project, notes
     if n_subcatchments < KEEP_STEP_ARRAYS_BELOW:
-        return dataclasses.replace(project, lumped_parameters="solve"), []
+        return dataclasses.replace(project, lumped_parameters="solve"), notes
     return dataclasses.replace(project, lumped_parameters="off"), [
         f"lumped parameters not made for {n_subcatchments} subcatchments (automatic above "
         f"{KEEP_STEP_ARRAYS_BELOW - 1}); set [method] lumped_parameters = \"area_weighted\" or "
@@ -230,6 +235,9 @@ def _chunk_size(project: Project, inputs: Inputs, n_steps: int, cached: Overlay 
     areal = sum(h.areal is not None for h in inputs.storms)
 
     def size(load: ChunkLoad) -> int:
+        if runon_target(project) is not None:  # run-on: a second engine pass and two more
+            load = dataclasses.replace(  # step arrays; counted as twice the units (not measured)
+                load, units_per_subcatchment=2.0 * load.units_per_subcatchment)
         return chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms), load,
                                      areal_storms=areal)
 
