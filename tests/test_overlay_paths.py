@@ -54,7 +54,7 @@ def in_grid(geoms, grid):
     b = shapely.bounds(px)
     box_ = np.column_stack([np.floor(b[:, 1]), np.ceil(b[:, 3]), np.floor(b[:, 0]),
                             np.ceil(b[:, 2])]).astype(np.int64)
-    return px, box_, shapely.area(px)
+    return px, box_, shapely.area(px), shapely.length(px) + shapely.get_num_coordinates(px)
 
 
 def test_unit_areas_of_both_paths_equal_shapely_intersections(soil):
@@ -72,11 +72,13 @@ def test_unit_areas_of_both_paths_equal_shapely_intersections(soil):
 def test_thin_diagonal_takes_the_sparse_path_and_compact_shapes_the_dense_one(soil):
     _, raster = soil
     grid = FineGrid.build(raster, None, SOIL, None, [])
-    _, box_, area = in_grid(shapes(), grid)
-    assert dense_eligible(area, box_, chunk_cells=4_000_000).tolist() == [
+    _, box_, area, edges = in_grid(shapes(), grid)
+    assert dense_eligible(area, box_, 4_000_000, edges).tolist() == [
         True, True, False, False, True, True]  # the two parts' box is mostly empty, too
     # no block above the budget: only the one-cell polygon's 2 x 3 block fits in 60 cells
-    assert dense_eligible(area, box_, chunk_cells=60).tolist() == [False] * 5 + [True]
+    assert dense_eligible(area, box_, 60, edges).tolist() == [False] * 5 + [True]
+    # with few edges for its area (here: counted as none) a compact polygon takes the sparse path
+    assert not dense_eligible(area, box_, 4_000_000, 0 * edges).any()
 
 
 @pytest.mark.parametrize("chunk_cells", [4_000_000, 900])
@@ -84,7 +86,7 @@ def test_thin_diagonal_takes_the_sparse_path_and_compact_shapes_the_dense_one(so
 def test_dense_and_sparse_sums_agree(soil, chunk_cells, exterior_cw):
     _, raster = soil
     grid = FineGrid.build(raster, None, SOIL, None, [])
-    px, box_, _ = in_grid(shapes(), grid)
+    px, box_, _, _ = in_grid(shapes(), grid)
     t = grid.t
     world = shapely.orient_polygons(np.asarray(shapes(), dtype=object), exterior_cw=exterior_cw)
     dense = dense_chunk_sums(world, box_, grid, chunk_cells, to_grid=(t.c, t.a, t.f, t.e))

@@ -167,7 +167,8 @@ def _class_sums(geoms: NDArray[Any], grid: _Grid, chunk_cells: int) -> tuple[NDA
     xs, ys = (b[:, [0, 2]] - t.c) / t.a, (b[:, [1, 3]] - t.f) / t.e  # each exact per vertex
     box = np.column_stack([np.floor(ys.min(axis=1)), np.ceil(ys.max(axis=1)),
                            np.floor(xs.min(axis=1)), np.ceil(xs.max(axis=1))]).astype(np.int64)
-    dense = dense_eligible(shapely.area(geoms) / abs(t.a * t.e), box, chunk_cells)
+    edges = shapely.length(geoms) / abs(t.a * t.e) ** 0.5 + shapely.get_num_coordinates(geoms)
+    dense = dense_eligible(shapely.area(geoms) / abs(t.a * t.e), box, chunk_cells, edges)
     to_grid = (t.c, t.a, t.f, t.e)
     centres = _grid_coords(shapely.centroid(geoms), t)
     out: list[tuple[NDArray[Any], ...]] = []
