@@ -41,7 +41,7 @@ from make_inputs import (
 from rasterio.features import shapes
 
 from gisrun.grid.overlay import compute_unit_areas
-from gisrun.grid.polygons import class_polygons, polygon_unit_areas
+from gisrun.grid.polygons import MAX_VERTICES, class_polygons, polygon_unit_areas
 from gisrun.io.raster import read_class_raster
 from gisrun.io.vector import read_subcatchments
 
@@ -92,6 +92,10 @@ def main() -> None:
     print(f"{args.cells} x {args.cells} cells, {len(subs)} subcatchments; soil traced into "
           f"{len(soil_polygons.labels)} polygons ({vertices} vertices), cover into "
           f"{len(cover_polygons.labels)}; best of {args.repeat}, interleaved")
+    start = time.perf_counter()  # done once per run by the workflow (align_polygon_layers)
+    soil_polygons, cover_polygons = soil_polygons.subdivide(), cover_polygons.subdivide()
+    print(f"cutting both layers into pieces of at most {MAX_VERTICES} vertices, once per run: "
+          f"{time.perf_counter() - start:.2f} s (ClassPolygons.subdivide())")
     options = {"nodata_rule": "dominant", "max_nodata_fraction": 1.0}
     cases = [
         ("soil polygons + cover raster",

@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import subprocess
 import sys
 import time
@@ -44,7 +45,8 @@ from make_inputs import make_inputs  # noqa: E402
 # Peak memory is the child's own high-water mark (VmHWM). ru_maxrss is not used: on Linux it
 # keeps the RSS of the parent image the child was forked from.
 MEASURE = """
-import sys, time
+import os, sys, time
+clock = time.process_time if os.environ.get('BENCH_CLOCK') == 'cpu' else time.perf_counter
 import gisrun.io.geopackage as output
 import gisrun.io.series_file as series_file
 import gisrun.workflow.steps as steps
@@ -54,41 +56,43 @@ spent = {"engine": 0.0, "append": 0.0}
 
 def timed(fn, key):
     def wrapper(*args, **kwargs):
-        start = time.perf_counter()
+        start = clock()
         try:
             return fn(*args, **kwargs)
         finally:
-            spent[key] += time.perf_counter() - start
+            spent[key] += clock() - start
     return wrapper
 
 steps.run_losses = timed(steps.run_losses, "engine")  # the loss engine, every chunk
 output.append_table = timed(output.append_table, "append")  # rows streamed into the output
 series_file.SeriesFile.write = timed(series_file.SeriesFile.write, "append")  # and the series
-t = time.perf_counter()
+t, cpu = clock(), time.process_time()
 code = main(sys.argv[1:])
-wall = time.perf_counter() - t
+wall, cpu = clock() - t, time.process_time() - cpu
 with open("/proc/self/status") as status:
     peak_mb = next(int(l.split()[1]) for l in status if l.startswith("VmHWM")) / 1024
-print("MEASURED", code, wall, peak_mb, spent["engine"], spent["append"])
+print("MEASURED", code, wall, peak_mb, spent["engine"], spent["append"], cpu)
 """
 
 FLOOR_WRITE = """
-import sys, time, pathlib, pyogrio, pyarrow.parquet as pq
+import os, sys, time, pathlib, pyogrio, pyarrow.parquet as pq
+clock = time.process_time if os.environ.get('BENCH_CLOCK') == 'cpu' else time.perf_counter
 source, target = sys.argv[1:3]
 layers = [(n, pyogrio.read_dataframe(source, layer=n)) for n, _ in pyogrio.list_layers(source)]
 series = pathlib.Path(source).with_suffix(".series.parquet")
 table = pq.read_table(series) if series.exists() else None
-start = time.perf_counter()
+start, cpu = clock(), time.process_time()
 for name, frame in layers:
-    begin = time.perf_counter()
+    begin = clock()
     pyogrio.write_dataframe(frame, target, layer=name, driver="GPKG", use_arrow=True)
-    print("LAYER", name, time.perf_counter() - begin)
+    print("LAYER", name, clock() - begin)
 if table is not None:  # the run's encoding (gisrun.io.series_file), in one call
-    begin = time.perf_counter()
+    begin = clock()
     pq.write_table(table, target + ".series.parquet", compression="zstd", compression_level=3,
                    use_dictionary=["storm", "subcatchment_id", "time_end_min"])
-    print("LAYER excess_series", time.perf_counter() - begin)
-print("FLOOR", time.perf_counter() - start)
+    print("LAYER excess_series", clock() - begin)
+print("FLOORCPU", time.process_time() - cpu)
+print("FLOOR", clock() - start)
 """
 
 #: The layers a storm adds rows to (its series, in the GeoPackage or the Parquet file, its unit
@@ -97,19 +101,25 @@ STORM_ROW_LAYERS = ("excess_series", "unit_results", "ponding_rank_units",
                     "subcatchment_results", "ponding_rank_subcatchments")
 
 
-def read_rasters_once(paths: list[Path]) -> float:
-    start = time.perf_counter()
+def clock() -> float:
+    """Wall time, or this process's CPU time with ``--clock cpu`` (steadier on a shared machine)."""
+    return time.process_time() if os.environ.get("BENCH_CLOCK") == "cpu" else time.perf_counter()
+
+
+def read_rasters_once(paths: list[Path]) -> tuple[float, float]:
+    """Time and CPU time of reading the rasters once, block by block."""
+    start, cpu = clock(), time.process_time()
     for path in paths:
         with rasterio.open(path) as src:
             for _, window in src.block_windows(1):
                 src.read(1, window=window)
-    return time.perf_counter() - start
+    return clock() - start, time.process_time() - cpu
 
 
-def write_geopackage_once(source: Path, target: Path) -> tuple[float, dict[str, float]]:
+def write_geopackage_once(source: Path, target: Path) -> tuple[float, dict[str, float], float]:
     """Time writing the run's layers once (read back first, untimed), in a child process.
 
-    Returns the total and the time of each layer.
+    Returns the total, the time of each layer and the total CPU time.
     """
     target.unlink(missing_ok=True)
     proc = subprocess.run([sys.executable, "-c", FLOOR_WRITE, str(source), str(target)],
@@ -118,7 +128,9 @@ def write_geopackage_once(source: Path, target: Path) -> tuple[float, dict[str, 
     Path(f"{target}.series.parquet").unlink(missing_ok=True)
     layers = {ln.split()[1]: float(ln.split()[2]) for ln in proc.stdout.splitlines()
               if ln.startswith("LAYER")}
-    return float(proc.stdout.split()[-1]), layers
+    cpu = next(float(ln.split()[1]) for ln in proc.stdout.splitlines()
+               if ln.startswith("FLOORCPU"))
+    return float(proc.stdout.split()[-1]), layers, cpu
 
 
 def measured_run(project: Path, output: Path, extra: list[str] | None = None) -> dict:
@@ -129,11 +141,11 @@ def measured_run(project: Path, output: Path, extra: list[str] | None = None) ->
     line = [ln for ln in proc.stdout.splitlines() if ln.startswith("MEASURED")]
     if proc.returncode != 0 or not line:
         raise SystemExit(f"gisrun run failed:\n{proc.stdout}\n{proc.stderr}")
-    _, code, wall, peak, engine, append = line[-1].split()
+    _, code, wall, peak, engine, append, cpu = line[-1].split()
     if int(code) != 0:
         raise SystemExit(f"gisrun run exited {code}:\n{proc.stderr}")
     return {"wall_s": float(wall), "peak_mb": float(peak), "engine_s": float(engine),
-            "append_s": float(append)}
+            "append_s": float(append), "cpu_s": float(cpu)}
 
 
 def with_second_storm(project: Path) -> Path:
@@ -166,13 +178,15 @@ def bench(n_cells: int, n_polygons: int) -> dict:
     out_dir = Path(paths.project).parent
     output = out_dir / "bench_output.gpkg"
     run = measured_run(Path(paths.project), output)
-    read_s = read_rasters_once([Path(paths.soil), Path(paths.cover)])
-    write_s, layer_s = write_geopackage_once(output, out_dir / "floor_copy.gpkg")
+    read_s, read_cpu = read_rasters_once([Path(paths.soil), Path(paths.cover)])
+    write_s, layer_s, write_cpu = write_geopackage_once(output, out_dir / "floor_copy.gpkg")
     two = measured_run(with_second_storm(Path(paths.project)), out_dir / "bench_output2.gpkg")
     floor = read_s + write_s
     rows_floor = storm_rows_floor(layer_s)
     return {
         "series_bytes_per_value": bytes_per_value(output),
+        "run_cpu_s": run["cpu_s"], "io_floor_cpu_s": read_cpu + write_cpu,
+        "cpu_ratio_to_io_floor": run["cpu_s"] / (read_cpu + write_cpu),
         "cells": n_cells, "polygons": n_polygons, "run_s": run["wall_s"],
         "peak_mb": run["peak_mb"], "read_floor_s": read_s, "write_floor_s": write_s,
         "io_floor_s": floor, "ratio_to_io_floor": run["wall_s"] / floor,
@@ -194,7 +208,8 @@ def second_storm(n_cells: int, n_polygons: int, rounds: int) -> dict:
     for _ in range(rounds):  # interleaved, so a busy spell on a shared machine hits both
         ones.append(measured_run(project, out_dir / "bench_output.gpkg"))
         twos.append(measured_run(twin, out_dir / "bench_output2.gpkg"))
-    _, layer_s = write_geopackage_once(out_dir / "bench_output.gpkg", out_dir / "floor_copy.gpkg")
+    _, layer_s, _ = write_geopackage_once(out_dir / "bench_output.gpkg",
+                                          out_dir / "floor_copy.gpkg")
     one, two = (min(runs, key=lambda r: r["wall_s"]) for runs in (ones, twos))
     added = two["wall_s"] - one["wall_s"]
     engine = two["engine_s"] - one["engine_s"]
@@ -229,7 +244,11 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--second-storm", action="store_true",
                         help="measure only what a second storm costs (see above)")
     parser.add_argument("--rounds", type=int, default=1, help="rounds of --second-storm")
+    parser.add_argument("--clock", choices=["wall", "cpu"], default="wall",
+                        help="time everything by wall clock or by each process's CPU time")
     args = parser.parse_args(argv)
+    os.environ["BENCH_CLOCK"] = args.clock  # read by the child processes too
+    print(f"times are {'CPU' if args.clock == 'cpu' else 'wall-clock'} seconds")
     if args.second_storm:
         found = [second_storm(n, args.polygons, args.rounds) for n in args.cells]
         for r in found:
@@ -250,6 +269,8 @@ def main(argv: list[str] | None = None) -> None:
               f"{r['engine_s_per_storm']:>9.1f} {r['second_storm_rows_s']:>11.1f} "
               f"{r['storm_rows_floor_s']:>13.1f} {r['second_storm_beyond_rows_floor_s']:>11.1f}")
     for r in rows:
+        print(f"{r['cells']} cells: CPU time of the run {r['run_cpu_s']:.1f} s, of the floor "
+              f"{r['io_floor_cpu_s']:.1f} s, ratio {r['cpu_ratio_to_io_floor']:.2f}")
         if r["series_bytes_per_value"] is not None:
             print(f"{r['cells']} cells: series file {r['series_bytes_per_value']:.2f} bytes per "
                   "value (target <= 10)")

@@ -13,7 +13,11 @@ It writes, next to itself:
 - ``soil_groups.tif``: 10 m hydrologic soil group codes (uint8, 255 = nodata).
 - ``land_cover.tif``: 5 m cover codes on the same extent (2 x 2 cover cells = 1 soil cell).
 - ``storms/observed_event.csv``: an observed-style 5-minute hyetograph.
+- ``storms/gauges.gpkg``, ``storms/gauge_records.csv``: three invented rain gauges and their
+  5-minute records of another event (the ``gauged_event`` storm).
 - ``gisrun.toml``: the project file that ties them together.
+- ``impervious_percent.tif`` and ``disconnected_roofs.toml``: an impervious-percent grid and a
+  second project file where most house roofs spill onto lawns (``make_impervious.py``).
 - ``soil_map.gpkg`` (layer ``soil_map``): the soil raster as polygons (each connected patch of
   one code, traced along the cell edges), field ``soil_group``; unsurveyed patches have none.
 - ``gisrun_soil_polygons.toml``: the same project with the soil map as polygons.
@@ -39,6 +43,7 @@ from rasterio.features import rasterize, shapes
 from rasterio.transform import from_origin
 from scipy.ndimage import gaussian_filter
 
+from make_impervious import impervious_percent, write_impervious, write_scenario  # noqa: E402
 from map_units import write_map_units  # noqa: E402  (beside this script)
 
 HERE = Path(__file__).resolve().parent
@@ -327,6 +332,40 @@ def observed_event_csv(rng: np.random.Generator) -> str:
     return "time_min,intensity_mm_per_h\n" + "\n".join(rows) + "\n"
 
 
+#: Three invented rain gauges of the town (id, x, y in the demo CRS) for the gauged event.
+GAUGES = (("mill", 537600.0, 4381300.0), ("school", 539000.0, 4381900.0),
+          ("farm", 540050.0, 4380450.0))
+#: How each gauge saw the observed burst: a factor on the depths and a lag in 5-minute steps.
+GAUGE_SHAPES = {"mill": (0.8, 0), "school": (1.0, 1), "farm": (1.3, 2)}
+
+
+def gauge_layer() -> gpd.GeoDataFrame:
+    """The three invented gauges as points."""
+    return gpd.GeoDataFrame({"gauge_id": [g for g, _, _ in GAUGES]}, crs=CRS,
+                            geometry=[shapely.Point(x, y) for _, x, y in GAUGES])
+
+
+def gauge_records_csv() -> str:
+    """One CSV, a column per gauge: 5-minute depths (mm), each row's time the END of its step.
+
+    Each gauge sees the observed burst scaled and a few steps late (invented, no randomness).
+    """
+    base = np.array(OBSERVED_MM_PER_H) * 5.0 / 60.0  # mm in each 5-minute step
+    n = base.size + 3
+    columns = {}
+    for gauge, (factor, lag) in GAUGE_SHAPES.items():
+        depth = np.zeros(n)
+        depth[lag:lag + base.size] = base * factor
+        columns[gauge] = np.round(depth, 2)
+    rows = [f"2026-05-14T14:{5 * (k + 1):02d}" if 5 * (k + 1) < 60 else
+            f"2026-05-14T{14 + 5 * (k + 1) // 60}:{5 * (k + 1) % 60:02d}" for k in range(n)]
+    lines = ["time," + ",".join(columns)]
+    lines += [f"{t}," + ",".join(f"{columns[g][k]:.2f}" for g in columns)
+              for k, t in enumerate(rows)]
+    return "# invented records of three rain gauges of the invented town Kestlow Vale\n" + \
+        "\n".join(lines) + "\n"
+
+
 # --- writing ---
 
 def write_raster(path: Path, data: NDArray[np.uint8], frame: tuple, cell_m: float, *,
@@ -464,6 +503,18 @@ combine = "units"
 # for the invented town (a 2-, 10- and 100-year 24-hour depth); use your agency's values.
 {design_storms}
 
+# An observed event seen by three rain gauges: each subcatchment gets its own areal rain
+# (Thiessen polygons, exact polygon intersection); weighting = "inverse_distance" (with
+# power = 2) weighs each polygon's centroid instead; fill_gaps = true fills a gap in one gauge's
+# record from the others.
+[[storms]]
+name = "gauged_event"
+kind = "gauges"
+gauges = "storms/gauges.gpkg"
+id_field = "gauge_id"
+records = "storms/gauge_records.csv"
+weighting = "thiessen"
+
 # An observed-style event: 5-minute intensities, each row's time marks the end of its interval.
 [[storms]]
 name = "observed_event"
@@ -493,6 +544,10 @@ def main() -> None:
     cover = make_cover(rng, shape, frame_cover)
     (HERE / "storms").mkdir(exist_ok=True)
     (HERE / "storms" / "observed_event.csv").write_text(observed_event_csv(rng), newline="\n")
+    (HERE / "storms" / "gauge_records.csv").write_text(gauge_records_csv(), newline="\n")
+    (HERE / "storms" / "gauges.gpkg").unlink(missing_ok=True)
+    gauge_layer().to_file(HERE / "storms" / "gauges.gpkg", layer="gauges", driver="GPKG",
+                          engine="pyogrio")
     write_raster(HERE / "soil_groups.tif", soil, frame_soil, SOIL_CELL_M, nodata=SOIL_NODATA,
                  codes=SOIL_CODES, colours=SOIL_COLOURS)
     write_raster(HERE / "land_cover.tif", cover, frame_cover, COVER_CELL_M, nodata=COVER_NODATA,
@@ -502,6 +557,9 @@ def main() -> None:
     pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": GPKG_DATE})
     subs.to_file(gpkg, layer="subcatchments", driver="GPKG", engine="pyogrio")
     write_project_file(HERE / "gisrun.toml")
+    write_impervious(HERE / "impervious_percent.tif", impervious_percent(cover, COVER_NODATA),
+                     frame_cover, COVER_CELL_M, CRS)
+    write_scenario(HERE / "gisrun.toml", HERE / "disconnected_roofs.toml")
     write_soil_polygons(HERE / "soil_map.gpkg", soil, frame_soil)
     (HERE / "gisrun_soil_polygons.toml").write_text(
         polygon_project_text((HERE / "gisrun.toml").read_text(encoding="utf-8")),

@@ -89,7 +89,8 @@ def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataF
         ``params``' identifying columns plus ``rain_depth_m``, ``infiltration_depth_m``,
         ``runoff_depth_m``, ``storage_depth_m``, ``runoff_volume_m3``,
         ``runoff_coefficient``, ``time_to_ponding_s`` (NaN for impervious parts),
-        ``peak_excess_intensity_m_per_s``.
+        ``peak_excess_intensity_m_per_s``; with run-on (:mod:`gisrun.runon`) also
+        ``runon_depth_m`` (received) and ``routed_depth_m`` (sent onto pervious ground).
     """
     keep = [c for c in ("subcatchment_id", "soil_class", "cover_class", "surface", "area_m2",
                         "loss_method") if c in params.columns]
@@ -106,6 +107,9 @@ def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataF
         ponding[(params["surface"] == "impervious").to_numpy()] = np.nan
     out["time_to_ponding_s"] = ponding
     out["peak_excess_intensity_m_per_s"] = loss.excess_m.max(axis=0, initial=0.0) / dt_s
+    if getattr(loss, "runon_m", None) is not None:  # disconnected impervious area (runon.py)
+        out["runon_depth_m"] = loss.runon_m.sum(axis=0)
+        out["routed_depth_m"] = loss.routed_m.sum(axis=0)
     return out
 
 
@@ -143,7 +147,9 @@ def summarize_subcatchments(
         ``rain_depth_m``, ``infiltration_depth_m``, ``runoff_depth_m``,
         ``storage_depth_m``, ``runoff_volume_m3``, ``runoff_coefficient``,
         ``time_to_ponding_s``, ``runoff_start_s``, ``peak_excess_intensity_m_per_s``,
-        ``impervious_fraction``, ``mass_balance_error_m``.
+        ``impervious_fraction``, ``mass_balance_error_m``; with run-on
+        (:mod:`gisrun.runon`) also ``runon_depth_m``: the runoff of disconnected
+        impervious area run onto pervious ground, as a depth over the subcatchment.
 
     Raises
     ------
@@ -183,6 +189,8 @@ def summarize_subcatchments(
     out["peak_excess_intensity_m_per_s"] = excess_by_sub.max(axis=1, initial=0.0) / dt_s
     impervious_area = np.asarray(weights @ (~pervious).astype(float)).ravel()
     out["impervious_fraction"] = impervious_area
+    if getattr(loss, "routed_m", None) is not None:  # water moved onto pervious ground
+        out["runon_depth_m"] = weights @ loss.routed_m.sum(axis=0)
     out["mass_balance_error_m"] = rain - (
         out["infiltration_depth_m"] + out["runoff_depth_m"] + out["storage_depth_m"]
     ).to_numpy()
@@ -203,7 +211,8 @@ def subcatchment_series(
     Returns
     -------
     DataFrame
-        ``subcatchment_id``, ``time_end_s`` (end of the step), ``rain_m``,
+        ``subcatchment_id`` (a categorical of ``sub_ids``: a run's series has millions of
+        rows and few ids), ``time_end_s`` (end of the step), ``rain_m``,
         ``infiltration_m``, ``excess_m`` (area-weighted depths in the step).
     """
     sub_ids = np.asarray(sub_ids, dtype=object)
@@ -215,8 +224,9 @@ def subcatchment_series(
         for name, arr in (("rain_m", loss.rain_m), ("infiltration_m", loss.infil_m),
                           ("excess_m", loss.excess_m))
     }
+    codes = np.repeat(np.arange(len(sub_ids), dtype=np.int32), n_steps)
     return pd.DataFrame({
-        "subcatchment_id": np.repeat(sub_ids, n_steps),
+        "subcatchment_id": pd.Categorical.from_codes(codes, categories=pd.Index(sub_ids)),
         "time_end_s": np.tile(np.arange(1, n_steps + 1) * dt_s, len(sub_ids)),
         **frames,
     })

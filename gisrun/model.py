@@ -91,7 +91,8 @@ class StormResult:
     """Results of one storm: per subcatchment, per unit, and the step series (SI columns)."""
 
     hyetograph: Hyetograph
-    #: Rain depth per run step (the storm resampled once onto the run's step), m.
+    #: Rain depth per run step (the storm resampled once onto the run's step), m: ``(steps,)``,
+    #: or for a storm with areal rain ``(steps, subcatchments)`` in the layer's order.
     rain_per_step_m: NDArray[np.float64]
     #: The storm's polygon layer in the GeoPackage (``runoff_<storm>``), unique in the run.
     layer_name: str

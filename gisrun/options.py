@@ -34,7 +34,7 @@ from .units import SYSTEMS
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
            "LUMPED_PARAMETER_SETS", "SERIES_STORES", "IMPERVIOUS_SCALES", "RUNON_TARGETS",
-           "RAIN_GRID_FORMATS", "RAIN_TIME_MARKS", "RAIN_VALUES", "CHOICES"]
+           "RAIN_GRID_FORMATS", "RAIN_TIME_MARKS", "RAIN_VALUES", "GAUGE_WEIGHTINGS", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -127,6 +127,10 @@ RAIN_TIME_MARKS = Choices(("end", "start"), what="time mark", default="end")
 #: What a rain grid's values are (``[[storms]] rain_is``; inferred from the unit when not given).
 RAIN_VALUES = Choices(("depth", "intensity"), what="kind of rain value", default="depth")
 
+#: How rain gauges are weighted over a subcatchment (``[[storms]] weighting`` of ``gauges``).
+GAUGE_WEIGHTINGS = Choices(("thiessen", "inverse_distance"), what="gauge weighting",
+                           default="thiessen")
+
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
@@ -135,7 +139,7 @@ CHOICES: dict[str, Choices] = {
     "unlisted_keys": UNLISTED_KEY_RULES,
     "impervious_scale": IMPERVIOUS_SCALES, "runon_to": RUNON_TARGETS,
     "rain_grid_format": RAIN_GRID_FORMATS, "time_marks": RAIN_TIME_MARKS,
-    "rain_is": RAIN_VALUES,
+    "rain_is": RAIN_VALUES, "weighting": GAUGE_WEIGHTINGS,
 }
 
 

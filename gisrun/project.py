@@ -187,6 +187,8 @@ class Project:
     initial_abstraction_ratio: float = 0.2
     antecedent_condition: int = 2
     overlay_cache: Path | None = None
+    #: ``[[storms]]`` keys whose value names an input file or folder (from the storm kinds).
+    storm_file_keys: tuple[str, ...] = ("path", "idf_table")
     #: Where the excess series go: ``"auto"``, ``"geopackage"`` or ``"parquet"``.
     series: str = "auto"
     #: The ``[impervious]`` table; None when the project has none.
@@ -217,8 +219,11 @@ class Project:
             files["parameter override file"] = self.overrides
         if self.impervious is not None and self.impervious.path is not None:
             files["impervious raster"] = self.impervious.path
-        for i, spec in enumerate(self.storms, start=1):
-            for key in ("path", "idf_table"):
-                if isinstance(spec.get(key), str):
-                    files[f"[[storms]] {i}.{key}"] = self.base_dir / spec[key]
+        files.update(self.storm_files())
         return files
+
+    def storm_files(self) -> dict[str, Path]:
+        """Every file or folder the ``[[storms]]`` tables name, by table and key."""
+        return {f"[[storms]] {i}.{key}": self.base_dir / spec[key]
+                for i, spec in enumerate(self.storms, start=1)
+                for key in self.storm_file_keys if isinstance(spec.get(key), str)}

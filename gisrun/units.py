@@ -187,6 +187,11 @@ def _unit_of(system: UnitSystem, kind: str) -> str:
     return kind.strip("()") if kind.startswith("(") else getattr(system, kind)
 
 
+with np.errstate(over="ignore"):  # 10 ** k as numpy computes it (inf above 1e308)
+    #: 10 ** k for k = 0 ... 400, the powers :func:`round_significant` scales by.
+    _POWERS_OF_TEN = 10.0 ** np.arange(0, 401, dtype=np.int64)
+
+
 def round_significant(values: ArrayLike, digits: int = SIGNIFICANT_DIGITS
                       ) -> NDArray[np.float64]:
     """Round to ``digits`` significant digits; NaN, inf and 0 stay as they are.
@@ -202,12 +207,21 @@ def round_significant(values: ArrayLike, digits: int = SIGNIFICANT_DIGITS
     keep = np.isfinite(x) & (x != 0.0)
     if not keep.any():
         return x
-    v = x[keep]
-    shift = digits - 1 - np.floor(np.log10(np.abs(v))).astype(np.int64)
+    whole = bool(keep.all())
+    v = x if whole else x[keep]
+    work = np.abs(v)
+    np.floor(np.log10(work, out=work), out=work)
+    shift = (digits - 1) - work.astype(np.int64)
     up = shift >= 0  # multiply by an exact power of ten, round, divide: the nearest double
-    out = np.empty_like(v)
-    out[up] = np.round(v[up] * 10.0 ** shift[up]) / 10.0 ** shift[up]
-    out[~up] = np.round(v[~up] / 10.0 ** -shift[~up]) * 10.0 ** -shift[~up]
+    with np.errstate(over="ignore", invalid="ignore"):
+        if up.all():  # values below 10 ** digits: one branch, in place
+            scale = _POWERS_OF_TEN.take(shift)  # 10 ** shift, looked up, not recomputed
+            out = np.divide(np.round(np.multiply(v, scale, out=work), out=work), scale, out=work)
+        else:
+            scale = _POWERS_OF_TEN.take(np.abs(shift))
+            out = np.where(up, np.round(v * scale) / scale, np.round(v / scale) * scale)
+    if whole:
+        return out
     x[keep] = out
     return x
 

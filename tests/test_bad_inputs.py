@@ -18,11 +18,13 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
+import geopandas as gpd
 import numpy as np
 import pyogrio
 import pytest
 from affine import Affine
 from bad_inputs_helpers import (
+    CRS,
     X0,
     Y0,
     assert_one_clear_error,
@@ -36,7 +38,7 @@ from bad_inputs_helpers import (
     write_subcatchments,
 )
 from polygon_helpers import soil_layer
-from shapely.geometry import LineString, Polygon
+from shapely.geometry import LineString, Point, Polygon
 
 BOTH = ("check", "run")
 
@@ -155,6 +157,37 @@ _UNKNOWN_CODE = soil_codes()
 _UNKNOWN_CODE[2, 2] = 7
 _ROTATED = Affine(10.0, 2.0, X0, 0.0, -10.0, Y0 + 100.0)
 _FAR_AWAY = Affine(10.0, 0.0, X0 + 50_000.0, 0.0, -10.0, Y0 + 100.0)
+
+_GAUGE_STORM = ('[[storms]]\nname = "observed"\nkind = "gauges"\ngauges = "gauges.gpkg"\n'
+                'id_field = "gauge_id"\nrecords = "{records}"\n')
+
+
+def _gauge_records(depth: dict[str, list[float | None]], step_min: int = 5) -> str:
+    lines = ["time," + ",".join(depth)]
+    for k in range(len(next(iter(depth.values())))):
+        minutes = 360 + (k + 1) * step_min
+        cells = ["" if v[k] is None else f"{v[k]:g}" for v in depth.values()]
+        lines.append(f"2026-05-14T{minutes // 60:02d}:{minutes % 60:02d}," + ",".join(cells))
+    return "\n".join(lines) + "\n"
+
+
+def _gauges(records: dict[str, str]) -> Callable[[Path], None]:
+    """Two invented gauges over the tiny project, the records files given, a gauge storm."""
+    def write(d: Path) -> None:
+        points = gpd.GeoDataFrame({"gauge_id": ["G1", "G2"]}, crs=CRS, geometry=[
+            Point(X0 + 25, Y0 + 50), Point(X0 + 75, Y0 + 50)])
+        pyogrio.write_dataframe(points, d / "gauges.gpkg", layer="gauges")
+        for name, text in records.items():
+            (d / name).parent.mkdir(exist_ok=True)
+            (d / name).write_text(text)
+        target = "records" if len(records) > 1 else next(iter(records))
+        edit_toml(d / "gisrun.toml", 'name = "steady"\nkind = "file"\npath = "storm.csv"\n',
+                  _GAUGE_STORM.format(records=target)[len('[[storms]]\n'):])
+    return write
+
+
+_TWO_GAUGES = {"G1": [1.0, 2.0, 0.0], "G2": [0.5, 1.0, 0.0]}
+
 
 CASES: dict[str, Case] = {
     # --- missing and unreadable files --------------------------------------------------------
@@ -410,8 +443,44 @@ CASES: dict[str, Case] = {
                         nodata=-9.0),
               _append('[impervious]\npath = "imp.tif"\nscale = "percent"\n')),
         re.compile(r"imp\.tif.*subcatchments S1 \(80\.0%\) above \[nodata\] max_fraction")),
+    "disconnected share above one": Case(
+        _append("[impervious]\ndisconnected_fraction = 1.5\n"),
+        re.compile(r"\[impervious\]\.disconnected_fraction: is 1\.5, outside \[0, 1\]")),
+    "disconnected share by an unknown cover": Case(
+        _append("[impervious.disconnected_by_cover]\nopen_spcae_good = 0.5\n"),
+        re.compile(r"disconnected_by_cover\.open_spcae_good.*did you mean 'open_space_good'")),
+    "run-on target misspelt": Case(
+        _append('[impervious]\ndisconnected_fraction = 0.5\nrunon_to = "subcatchmnt"\n'),
+        re.compile(r"\[impervious\]\.runon_to.*did you mean 'subcatchment'")),
+    "disconnection with composite parameters": Case(
+        _both(_toml('name = "green_ampt"', 'name = "green_ampt"\ncombine = "composite"'),
+              _append("[impervious]\ndisconnected_fraction = 0.5\n")),
+        re.compile(r"\[method\]\.combine: is 'composite'.*use combine = \"units\"")),
+    "disconnection with uncertainty bands": Case(
+        _append("[impervious]\ndisconnected_fraction = 0.5\n[uncertainty]\nsamples = 20\n"),
+        re.compile(r"gisrun\.toml:\[uncertainty\]: runs each soil x cover part on its own")),
+    "disconnected share in the layer not a number": Case(
+        _both(_polygons(_TWO, roofs=["lots", "0.2"]),
+              _append('[impervious]\ndisconnected_field = "roofs"\n')),
+        re.compile(r"sub\.gpkg:roofs:id=S1: disconnected share 'lots' is not a number")),
+    "disconnected share field missing": Case(
+        _append('[impervious]\ndisconnected_field = "roof"\n'), re.compile(r"roof")),
     "empty impervious table": Case(_append('[impervious]\nrunon_to = "unit"\n'),
                                    re.compile(r"\[impervious\]: names neither")),
+    # --- rain gauges --------------------------------------------------------------------------
+    "gauge record missing": Case(
+        _gauges({"records.csv": _gauge_records({"G1": [1.0, 2.0, 0.0]})}),
+        re.compile(r"records.*has no record for gauge 'G2'")),
+    "unknown gauge id": Case(
+        _gauges({"records.csv": _gauge_records({**_TWO_GAUGES, "G9": [1.0, 1.0, 1.0]})}),
+        re.compile(r"gauge id 'G9' is not in gauges\.gpkg")),
+    "gauge record gap without fill_gaps": Case(
+        _gauges({"records.csv": _gauge_records({"G1": [1.0, None, 0.0], "G2": [1, 1, 0]})}),
+        re.compile(r"records\.csv:G1: has no value at 2026-05-14T06:10.*fill_gaps = true")),
+    "gauge records of mismatched step": Case(
+        _gauges({"records/G1.csv": _gauge_records({"G1": [1.0, 2.0, 0.0]}),
+                 "records/G2.csv": _gauge_records({"G2": [1.0, 2.0, 0.0]}, step_min=10)}),
+        re.compile(r"G2\.csv: has a 10-min step.*mismatched step")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),

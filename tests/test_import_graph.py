@@ -23,7 +23,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "gisrun"
 #: Layers that compute (or describe results) and may not reach files, by any chain of imports.
 COMPUTE = ("gisrun.engine", "gisrun.parameters", "gisrun.storm", "gisrun.grid",
            "gisrun.aggregate", "gisrun.present", "gisrun.model", "gisrun.units", "gisrun.crs",
-           "gisrun.errors", "gisrun.options", "gisrun.uncertainty")
+           "gisrun.errors", "gisrun.options", "gisrun.uncertainty", "gisrun.runon")
 #: What compute may not reach: gisrun's own I/O and orchestration layers, and I/O libraries.
 FORBIDDEN_PACKAGES = ("gisrun.io", "gisrun.workflow", "gisrun.write", "gisrun.config",
                       "gisrun.cli")

@@ -3,6 +3,8 @@ share the project sets (``[subcatchments] max_overlap_fraction``)."""
 
 from __future__ import annotations
 
+import itertools
+
 import geopandas as gpd
 import pyogrio
 import pytest
@@ -48,3 +50,31 @@ def test_the_project_sets_the_share_and_the_pair_is_in_run_info(tmp_path, capsys
     rows = [v for v in info.loc[info["key"] == "warning", "value"] if "overlap" in v]
     assert rows == ["sub.gpkg: subcatchments S1 and S2 overlap by 1000 m2 (20.00% of the "
                     "smaller); the rain on that area is counted in both"]
+
+
+def _pairwise_by_shapely(geoms):
+    """Every pair whose intersection has area, by brute force with shapely (the reference)."""
+    return sorted((a, b) for a, b in itertools.combinations(range(len(geoms)), 2)
+                  if geoms[a].intersection(geoms[b]).area > 0)
+
+
+@pytest.mark.parametrize("extra", [
+    [],  # a tiling with matched edges: a valid coverage, no pair
+    [square(0, 0, 100, 100)],  # a duplicate of the first square
+    [square(20, 20, 40, 40)],  # one inside the first square
+    [square(0, 0, 50, 100)],  # inside the first square, sharing three of its edges
+    [square(95, 0, 195, 100)],  # a sliver over the first two
+])
+def test_a_tiling_with_and_without_an_overlap_matches_brute_force(extra):
+    # 3 x 3 squares sharing edges vertex for vertex, then one more polygon on top
+    tiles = [square(100 * c, 100 * r, 100 * c + 100, 100 * r + 100)
+             for r in range(3) for c in range(3)]
+    geoms = tiles + extra
+    subs = gpd.GeoDataFrame({"subcatchment_id": [f"s{k}" for k in range(len(geoms))]},
+                            geometry=geoms, crs=CRS)
+    found = subcatchment_overlaps(subs)
+    index = {f"s{k}": k for k in range(len(geoms))}
+    got = sorted(tuple(sorted((index[a], index[b])))
+                 for a, b in zip(found["subcatchment_id"], found["other_id"], strict=True))
+    assert got == _pairwise_by_shapely(geoms)
+    assert (len(got) > 0) == bool(extra)

@@ -16,7 +16,12 @@ from rasterio.transform import from_origin
 from shapely.geometry import Polygon, box
 
 from gisrun.grid.overlay import compute_unit_areas
-from gisrun.grid.polygons import class_polygons, layer_overlaps, polygon_unit_areas
+from gisrun.grid.polygons import (
+    MAX_VERTICES,
+    class_polygons,
+    layer_overlaps,
+    polygon_unit_areas,
+)
 from gisrun.io.raster import read_class_raster
 
 #: A transverse Mercator with scale 1 on its central meridian: near its origin planar areas
@@ -223,3 +228,23 @@ def test_overlaps_are_found_with_their_area():
     # 8-10 x 0-10 shared by features 1 and 2; the 1e-6 wide sliver at x = 30 is noise
     assert found[["feature_id", "other_id"]].values.tolist() == [[1, 2]]
     assert found["overlap_area_m2"].iloc[0] == pytest.approx(20.0, rel=1e-12)
+
+
+def test_large_polygons_are_cut_into_small_pieces_with_the_same_ground():
+    """A 4097-vertex disc and a 2049-vertex ring: pieces of at most MAX_VERTICES vertices that
+    tile each polygon (areas to 1e-12), and the units equal shapely's intersections."""
+    disc = shapely.Point(X0, Y0).buffer(80.0, quad_segs=1024)
+    ring = shapely.Point(X0, Y0).buffer(120.0, quad_segs=512).difference(disc)
+    big = layer([disc, ring], ["B", "D"])
+    pieces = big.subdivide()
+    assert shapely.get_num_coordinates(pieces.geometry).max() <= MAX_VERTICES
+    assert pieces.geometry.size > 2 * 4097 / MAX_VERTICES
+    for fid, whole in zip((1, 2), (disc, ring), strict=True):
+        mine = pieces.geometry[pieces.feature_ids == fid]
+        assert shapely.area(mine).sum() == pytest.approx(shapely.area(whole), rel=1e-12)
+        assert shapely.area(shapely.union_all(mine).symmetric_difference(whole)) < 1e-6
+    units, _, _ = polygon_unit_areas(frame(SUBS), big, nodata_rule="omit",
+                                     max_nodata_fraction=1.0)
+    ref = shapely_reference(SUBS, ([disc, ring], ["B", "D"]))
+    got = {(sid, s, c): a for sid in ("S0", "S1") for (s, c), a in units_dict(units, sid).items()}
+    assert got == pytest.approx(ref, rel=1e-9)

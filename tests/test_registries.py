@@ -22,6 +22,7 @@ from bad_inputs_helpers import edit_toml, make_project, write_subcatchments
 from gisrun import engine, options
 from gisrun.cli.main import cli
 from gisrun.config import project as project_file
+from gisrun.config.areal import AREAL_KINDS
 from gisrun.config.project import load_project
 from gisrun.config.storms import FILE_KIND, STORM_KINDS, storm_from_config
 from gisrun.engine import ENGINES, PARAMETERS, method_name, run_losses
@@ -81,7 +82,7 @@ def test_lists_are_the_registries():
     assert set(composite.PERVIOUS_AREA_WEIGHTED) == {
         c for c in overrides.PARAMETER_COLUMNS if PARAMETERS[c].composite == "pervious_area"}
     assert tuple(project_file.SOIL_CLASSIFICATIONS) == tuple(CLASSIFICATIONS)
-    assert STORM_KINDS == (*KINDS, FILE_KIND)
+    assert STORM_KINDS == (*KINDS, FILE_KIND, *AREAL_KINDS)
 
 
 def test_every_method_module_declares_what_the_registry_needs():

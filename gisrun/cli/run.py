@@ -18,7 +18,7 @@ from ..io.commit import OutputSet
 from ..io.files import refuse_inputs_among
 from ..model import CAUTION, RunResult
 from ..options import check_geopackage_name
-from ..workflow.chunks import require_dask
+from ..workflow.dask_need import require_dask
 from ..workflow.inputs import read_subcatchment_layer
 from ..workflow.stream import run_and_write
 from ..write.extras import Deliverables, ExtrasOptions, check_plot_ids, extras_folder, write_extras

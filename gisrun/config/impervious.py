@@ -81,7 +81,8 @@ def _by_cover(table: TableReader) -> dict[str, float]:
 
 
 def check_impervious_combination(source: ImperviousSource | None, *, combine: str,
-                                 compare_composite: bool, where: str) -> None:
+                                 compare_composite: bool, where: str,
+                                 uncertainty: bool = False) -> None:
     """Stop on run options that cannot carry run-on from disconnected impervious area.
 
     A composite run averages each subcatchment into one parameter set, which has no
@@ -90,10 +91,16 @@ def check_impervious_combination(source: ImperviousSource | None, *, combine: st
     Raises
     ------
     ProjectFileError
-        ``combine = "composite"`` or ``compare_composite = true`` with a disconnected share.
+        ``combine = "composite"``, ``compare_composite = true`` or an ``[uncertainty]``
+        table (whose samples run each soil x cover part on its own) with a disconnected share.
     """
     if source is None or not source.disconnects:
         return
+    if uncertainty:
+        at = where.rsplit(":", 1)[0]
+        raise ProjectFileError(f"{at}:[uncertainty]", "runs each soil x cover part on its own "
+                               "and so cannot carry run-on from disconnected impervious area",
+                               "remove [uncertainty] or the disconnected share for this run")
     if combine == "composite":
         raise ProjectFileError(f"{where}.combine", "is 'composite', which runs one averaged "
                                "part per subcatchment and so cannot route disconnected "

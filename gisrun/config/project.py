@@ -56,9 +56,11 @@ from ..options import (
 from ..parameters.soils import CLASSIFICATIONS, check_cover_labels, check_soil_labels
 from ..project import CoverSource, Project, SoilSource, SubcatchmentSource
 from ..units import unit_system
+from .areal import AREAL_KINDS
 from .attributes import ATTRIBUTE_KEYS, KeyedSource, keyed_source
 from .impervious import IMPERVIOUS_KEYS, check_impervious_combination, read_impervious
 from .reader import TableReader
+from .storms import STORM_FILE_KEYS
 from .uncertainty import UNCERTAINTY_KEYS, uncertainty_settings
 
 __all__ = [
@@ -185,6 +187,8 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
         initial_abstraction_ratio=_declared(method, "initial_abstraction_ratio"),
         antecedent_condition=int(_declared(method, "antecedent_condition")),
         overlay_cache=top.path("overlay_cache", required=False),
+        storm_file_keys=tuple(dict.fromkeys(
+            [*STORM_FILE_KEYS, *(k for kind in AREAL_KINDS.values() for k in kind.file_keys)])),
         series=top.choice("series", SERIES_STORES),
         impervious=read_impervious(read["impervious"], present="impervious" in raw),
         uncertainty=uncertainty_settings(read["uncertainty"], present="uncertainty" in raw,
@@ -193,6 +197,7 @@ def _build(file: Path, raw: dict[str, Any]) -> Project:
     _check_class_labels(file, project)
     check_impervious_combination(project.impervious, combine=project.combine,
                                  compare_composite=project.compare_composite,
+                                 uncertainty=project.uncertainty is not None,
                                  where=method.where())
     return project
 

@@ -1,7 +1,9 @@
 """Build storms from the project file's ``[[storms]]`` tables.
 
 Each table names a ``kind``: a design storm of :data:`gisrun.storm.KINDS` (its
-builder and keys are declared there) or ``file`` (a hyetograph CSV). Depths and
+builder and keys are declared there), ``file`` (a hyetograph CSV), or a kind of rain that
+differs between subcatchments, :data:`gisrun.config.areal.AREAL_KINDS` (built once the
+subcatchments are read). Depths and
 intensities are in the project's unit system and converted to SI here. The
 tables are read by the project file's :class:`~gisrun.config.reader.TableReader`;
 errors name the table (``project.toml:[[storms]] 2``) and the key, and are
@@ -17,6 +19,8 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+import geopandas as gpd
+
 from ..errors import StormError
 from ..io.storm_csv import read_hyetograph_csv, read_idf_table_csv, warn_if_implausible
 from ..options import did_you_mean
@@ -30,23 +34,43 @@ from ..storm import (
     check_step_count,
 )
 from ..units import UnitSystem, to_si
+from .areal import AREAL_KINDS, build_areal_storm
 from .reader import StormTableError, TableReader
 
-__all__ = ["storm_from_config", "storms_from_config", "STORM_KINDS", "FILE_KIND"]
+__all__ = ["storm_from_config", "storms_from_config", "STORM_KINDS", "FILE_KIND",
+           "STORM_FILE_KEYS", "storm_kinds"]
 
 #: The kind that reads a hyetograph CSV (the other kinds are :data:`gisrun.storm.KINDS`).
 FILE_KIND = "file"
-#: Every ``kind`` a ``[[storms]]`` table may name (the registry is read again at each call).
-STORM_KINDS: tuple[str, ...] = (*KINDS, FILE_KIND)
+#: Every ``kind`` a ``[[storms]]`` table may name (the registries are read again at each call).
+STORM_KINDS: tuple[str, ...] = (*KINDS, FILE_KIND, *AREAL_KINDS)
+#: Keys of the design and file kinds that name an input file (areal kinds declare their own).
+STORM_FILE_KEYS = ("path", "idf_table")
 _COMMON = ("name", "kind")
 
 
+def storm_kinds() -> list[str]:
+    """Every kind a ``[[storms]]`` table may name, from the registries as they are now."""
+    return [*KINDS, FILE_KIND, *AREAL_KINDS]
+
+
 def _all_keys() -> list[str]:
-    return sorted({k.name for kind in KINDS.values() for k in kind.keys} | {"path", *_COMMON})
+    return sorted({k.name for kind in KINDS.values() for k in kind.keys}
+                  | {k for kind in AREAL_KINDS.values() for k in kind.keys} | {"path", *_COMMON})
+
+
+def _kind_keys(kind: str) -> tuple[tuple[str, ...], tuple[str, ...]]:
+    """(keys, required keys) of a kind, besides name and kind."""
+    if kind == FILE_KIND:
+        return ("path",), ("path",)
+    if kind in AREAL_KINDS:
+        return AREAL_KINDS[kind].keys, AREAL_KINDS[kind].required
+    return tuple(k.name for k in KINDS[kind].keys), tuple(k.name for k in KINDS[kind].required)
 
 
 def storm_from_config(
-    spec: Mapping[str, Any], *, base_dir: Path, units: UnitSystem, where: str
+    spec: Mapping[str, Any], *, base_dir: Path, units: UnitSystem, where: str,
+    subcatchments: gpd.GeoDataFrame | None = None,
 ) -> Hyetograph:
     """Build one storm from a ``[[storms]]`` table of the project file.
 
@@ -64,27 +88,36 @@ def storm_from_config(
         The project's unit system.
     where : str
         Location for messages, e.g. ``"project.toml:[[storms]] 1"``.
+    subcatchments : GeoDataFrame, optional
+        The subcatchment layer as read; needed by the kinds of areal rain
+        (:data:`gisrun.config.areal.AREAL_KINDS`).
 
     Raises
     ------
     StormTableError
-        For an unknown kind or key (suggesting the nearest), a missing key, or a bad value.
+        For an unknown kind or key (suggesting the nearest), a missing key, or a bad value,
+        or an areal kind without ``subcatchments``.
     """
     if not isinstance(spec, Mapping):
         raise StormTableError(where, "is not a table", "write it as a [[storms]] table of keys")
     table = TableReader(spec, where, base_dir, error=StormTableError)
     kind = _kind(table)
-    keys = ("path",) if kind == FILE_KIND else tuple(k.name for k in KINDS[kind].keys)
+    keys, required = _kind_keys(kind)
     table.check_keys((*_COMMON, *keys), elsewhere=_all_keys(),
                      elsewhere_problem=f"does not apply to kind {kind!r}",
                      elsewhere_fix=f"remove it; keys for {kind!r} are {sorted((*_COMMON, *keys))}")
-    for key in keys if kind == FILE_KIND else (k.name for k in KINDS[kind].required):
+    for key in required:
         if key not in spec:
             table.fail(None, f"kind {kind!r} needs key {key!r}", f"add {key} = ...")
     name = spec.get("name")
     if name is not None and (not isinstance(name, str) or not name.strip()):
         table.fail("name", f"{name!r} is not a name", "give a non-empty text name")
-    if kind == FILE_KIND:
+    if kind in AREAL_KINDS:
+        if subcatchments is None:
+            table.fail(None, f"kind {kind!r} is rain per subcatchment and needs the "
+                       "subcatchment layer", "build it within a project (gisrun run or check)")
+        h = build_areal_storm(AREAL_KINDS[kind], table, subcatchments, units, name)
+    elif kind == FILE_KIND:
         h = read_hyetograph_csv(_file_path(table, "path"), units=units, name=name)
     else:
         h = _design_storm(KINDS[kind], table, units, name)
@@ -93,9 +126,10 @@ def storm_from_config(
 
 
 def storms_from_config(
-    specs: Sequence[Mapping[str, Any]], *, base_dir: Path, units: UnitSystem, where: str
+    specs: Sequence[Mapping[str, Any]], *, base_dir: Path, units: UnitSystem, where: str,
+    subcatchments: gpd.GeoDataFrame | None = None,
 ) -> list[Hyetograph]:
-    """Build every ``[[storms]]`` table; names must be unique.
+    """Build every ``[[storms]]`` table; names must be unique (``subcatchments``: as above).
 
     Raises
     ------
@@ -106,7 +140,8 @@ def storms_from_config(
         raise StormTableError(where, "has no [[storms]]", "add at least one [[storms]] table")
     storms, seen = [], {}
     for i, spec in enumerate(specs, start=1):
-        h = storm_from_config(spec, base_dir=base_dir, units=units, where=f"{where} {i}")
+        h = storm_from_config(spec, base_dir=base_dir, units=units, where=f"{where} {i}",
+                              subcatchments=subcatchments)
         if h.name in seen:
             raise StormTableError(f"{where} {i}",
                                   f"name {h.name!r} is also used by storm {seen[h.name]}",
@@ -118,7 +153,7 @@ def storms_from_config(
 
 def _kind(table: TableReader) -> str:
     kind = table.data.get("kind")
-    kinds = [*KINDS, FILE_KIND]
+    kinds = storm_kinds()
     if kind is None:
         table.fail(None, "has no kind", f"add kind = one of {kinds}")
     if not isinstance(kind, str) or kind.strip().lower() not in kinds:

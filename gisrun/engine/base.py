@@ -81,12 +81,16 @@ class LossResult:
         The fixed time step, s.
     methods : tuple of str
         The loss method of each unit.
+    runon_m, routed_m : ndarray, shape (n_steps, n_units), or None
+        With disconnected impervious area (:mod:`gisrun.runon`): run-on received
+        from impervious parts, and the depth a part sent onto pervious ground
+        (taken out of its ``excess_m``); None when the run routes nothing.
 
     Notes
     -----
     Arrays are made read-only. Per unit,
-    ``rain_m.sum(0) == infil_m.sum(0) + excess_m.sum(0) + storage_m`` to
-    rounding (see :meth:`mass_balance_error_m`).
+    ``rain_m.sum(0) + runon == infil_m.sum(0) + excess_m.sum(0) + routed + storage_m``
+    to rounding (see :meth:`mass_balance_error_m`).
     """
 
     rain_m: FloatArray
@@ -97,12 +101,15 @@ class LossResult:
     time_to_ponding_s: FloatArray
     dt_s: float
     methods: tuple[str, ...] = field(default=())
+    runon_m: FloatArray | None = None
+    routed_m: FloatArray | None = None
 
     def __post_init__(self) -> None:
         shape = np.shape(self.rain_m)
         if len(shape) != 2:
             raise ValueError(f"LossResult.rain_m must be 2-D (n_steps, n_units), got {shape}")
-        for name in ("infil_m", "excess_m", "capacity_m_per_s"):
+        routing = [n for n in ("runon_m", "routed_m") if getattr(self, n) is not None]
+        for name in ("infil_m", "excess_m", "capacity_m_per_s", *routing):
             if np.shape(getattr(self, name)) != shape:
                 raise ValueError(f"LossResult.{name} has shape {np.shape(getattr(self, name))}, "
                                  f"expected {shape}")
@@ -138,8 +145,13 @@ class LossResult:
         return self.excess_m.sum(axis=0)
 
     def mass_balance_error_m(self) -> FloatArray:
-        """Rain minus (infiltration + excess + storage left) per unit, m."""
-        return self.rain_m.sum(0) - (self.infil_m.sum(0) + self.excess_m.sum(0) + self.storage_m)
+        """Rain and run-on minus (infiltration + excess + routed + storage left) per unit, m."""
+        error = self.rain_m.sum(0) - (self.infil_m.sum(0) + self.excess_m.sum(0) + self.storage_m)
+        if self.runon_m is not None:
+            error += self.runon_m.sum(0)
+        if self.routed_m is not None:
+            error -= self.routed_m.sum(0)
+        return error
 
 
 def take_params(params: P, index: NDArray[np.intp]) -> P:

@@ -54,9 +54,10 @@ from .overlay import (
     _Grid,
     _to_grid_crs,
 )
+from .polygon_pieces import MAX_VERTICES, halved, intersections, polygonal
 
 __all__ = ["ClassPolygons", "class_polygons", "polygon_unit_areas", "layer_overlaps",
-           "layer_gaps", "OVERLAP_NOISE"]
+           "layer_gaps", "OVERLAP_NOISE", "MAX_VERTICES"]
 
 #: Overlaps smaller than this share of the smaller of two polygons are digitising noise
 #: (slivers where neighbouring polygons' shared edges were snapped), not two classes
@@ -89,6 +90,8 @@ class ClassPolygons:
     crs: CRS
     where: str
     bounds: NDArray[np.float64] = field(repr=False, default_factory=lambda: np.zeros((0, 4)))
+    #: True once large polygons are cut into pieces of at most :data:`MAX_VERTICES` vertices.
+    subdivided: bool = False
 
     @property
     def classes(self) -> list[str]:
@@ -100,16 +103,32 @@ class ClassPolygons:
         if CRS.from_user_input(crs).equals(self.crs):
             return self
         moved = gpd.GeoSeries(self.geometry, crs=self.crs).to_crs(crs).to_numpy()
-        return class_polygons(moved, self.labels, self.feature_ids, crs, self.where)
+        return class_polygons(moved, self.labels, self.feature_ids, crs, self.where,
+                              subdivided=self.subdivided)
+
+    def subdivide(self) -> ClassPolygons:
+        """The same ground in pieces of at most :data:`MAX_VERTICES` vertices (same classes).
+
+        A polygon of many vertices (a soil map unit traced along cell edges, a long valley
+        floor) is cut in halves across its longer side, again and again, until every piece
+        is small: each subcatchment is then intersected with a few small pieces instead of
+        the whole outline (the cost of an intersection grows with both polygons' vertices).
+        The pieces tile the polygon, so every area is unchanged to rounding.
+        """
+        if self.subdivided:
+            return self
+        geoms, owner = halved(self.geometry)
+        return class_polygons(geoms, self.labels[owner], self.feature_ids[owner], self.crs,
+                              self.where, subdivided=True)
 
 
-def class_polygons(geometry: Any, labels: Any, feature_ids: Any, crs: Any, where: str
-                   ) -> ClassPolygons:
+def class_polygons(geometry: Any, labels: Any, feature_ids: Any, crs: Any, where: str, *,
+                   subdivided: bool = False) -> ClassPolygons:
     """Build a :class:`ClassPolygons` (polygons made valid first: see the reader)."""
     geoms = np.asarray(geometry, dtype=object)
     return ClassPolygons(geoms, np.asarray(labels, dtype=object),
                          np.asarray(feature_ids, dtype=np.int64), CRS.from_user_input(crs),
-                         where, shapely.bounds(geoms).reshape(-1, 4))
+                         where, shapely.bounds(geoms).reshape(-1, 4), subdivided)
 
 
 def polygon_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid | ClassPolygons,
@@ -138,6 +157,7 @@ def polygon_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid | ClassP
     if subcatchments.crs is None:
         raise CRSError("subcatchments", "have no CRS", "state the layer's CRS in the project file")
     notes: list[str] = []
+    soil, cover = (x.subdivide() if isinstance(x, ClassPolygons) else x for x in (soil, cover))
     ids = subcatchments["subcatchment_id"].astype(str).to_numpy()
     ground = ground_areas(subcatchments.geometry)
     soil_labels = _labels(soil, soil_codes)
@@ -223,22 +243,9 @@ def _pieces(geoms: NDArray[np.object_], layer: ClassPolygons
                           & (layer.bounds[:, 1] <= hi[1]) & (layer.bounds[:, 3] >= lo[1]))
     tree = shapely.STRtree(layer.geometry[near])
     g, f = tree.query(geoms, predicate="intersects")
-    cut = _polygonal(shapely.intersection(geoms[g], layer.geometry[near][f]))
+    cut = intersections(geoms[g], layer.geometry[near][f])
     keep = ~shapely.is_empty(cut) & (shapely.area(cut) > 0)
     return g[keep], near[f[keep]], cut[keep]
-
-
-def _polygonal(geoms: NDArray[np.object_]) -> NDArray[np.object_]:
-    """Only the polygonal part of each intersection (shared edges and corners dropped)."""
-    mixed = np.flatnonzero(shapely.get_type_id(geoms) == 7)  # GeometryCollection
-    if mixed.size:
-        parts, index = shapely.get_parts(geoms[mixed], return_index=True)
-        areal = np.isin(shapely.get_type_id(parts), [3, 6])
-        geoms = geoms.copy()
-        for k, i in enumerate(mixed):
-            keep = parts[areal & (index == k)]
-            geoms[i] = shapely.union_all(keep) if keep.size else shapely.Polygon()
-    return geoms
 
 
 def _measure(geoms: NDArray[np.object_], crs: CRS) -> NDArray[np.float64]:
@@ -345,7 +352,7 @@ def layer_overlaps(layer: ClassPolygons) -> pd.DataFrame:
     i, j = tree.query(geoms, predicate="intersects")
     keep = i < j
     i, j = i[keep], j[keep]
-    shared = _polygonal(shapely.intersection(geoms[i], geoms[j]))
+    shared = polygonal(shapely.intersection(geoms[i], geoms[j]))
     area = _measure(shared, layer.crs) if i.size else np.zeros(0)
     own = _measure(geoms, layer.crs)
     smaller = np.minimum(own[i], own[j])

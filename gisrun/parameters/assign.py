@@ -51,7 +51,7 @@ from ..engine import PARAMETERS, method_name
 from ..errors import GisrunWarning, ParameterError
 from ..options import DUAL_GROUP_CONDITIONS, choose
 from .class_keys import KeyedClasses
-from .defaults import ASSIGNED_COLUMNS, RunSettings, shipped_values
+from .defaults import ASSIGNED_COLUMNS, RunSettings, bare_cover_warnings, shipped_values
 from .keyed import apply_keyed_values, mark_base_classes, resolve_keyed_soils
 from .overrides import PARAMETER_COLUMNS
 from .precedence import (
@@ -173,6 +173,7 @@ def assign_parameters(
                                 dual_group_condition, warnings)
     check_cover_labels(units["cover_class"].unique(), "unit table: cover_class")
     all_rows = _expand(units, soils)
+    warnings += bare_cover_warnings(all_rows)
     mark_base_classes(all_rows, soil_keys)
     layers = override_layers(overrides, classification)
     attributes = attribute_table(subcatchment_attributes)

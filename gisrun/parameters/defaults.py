@@ -36,7 +36,7 @@ import numpy as np
 import pandas as pd
 
 from ..engine import PARAMETERS
-from ..errors import ParameterError
+from ..errors import GisrunWarning, ParameterError
 from .overrides import ALIASES, PARAMETER_COLUMNS, SOIL_PROPERTIES
 from .soils import SoilInfo
 from .tables import (
@@ -53,7 +53,8 @@ from .tables import (
     read_shipped_table,
 )
 
-__all__ = ["RULES", "IMPERVIOUS_RULES", "rule", "ASSIGNED_COLUMNS", "RunSettings", "shipped_values"]
+__all__ = ["RULES", "IMPERVIOUS_RULES", "rule", "ASSIGNED_COLUMNS", "RunSettings", "shipped_values",
+           "covers_without_pervious_part", "bare_cover_warnings"]
 
 #: Every column a part gets a value and a source for: parameters, soil properties, method.
 ASSIGNED_COLUMNS: tuple[str, ...] = (*PARAMETER_COLUMNS, *SOIL_PROPERTIES, "loss_method")
@@ -68,6 +69,29 @@ class RunSettings:
     initial_abstraction_ratio: float
 
 
+def covers_without_pervious_part(covers: pd.Series) -> np.ndarray:
+    """Rows whose cover class the table gives no pervious part (``impervious``, paved streets).
+
+    Such a cover can still have pervious area when an impervious grid measures less than
+    100 %; that area is priced as :data:`UNSPECIFIED_COVER_STANDS_FOR`, the pervious part
+    TR-55's urban composites assume (TR-55 1986, Table 2-2a footnote).
+    """
+    bare = cover_table()["pervious_depression_storage_m"].isna()
+    return covers.map(bare).fillna(False).to_numpy(dtype=bool)
+
+
+def bare_cover_warnings(rows: pd.DataFrame) -> list[GisrunWarning]:
+    """A warning when pervious parts have a cover the table gives no pervious part."""
+    bare = covers_without_pervious_part(rows["cover_class"]) & (
+        rows["surface"] == "pervious").to_numpy()
+    if not bare.any():
+        return []
+    return [GisrunWarning(
+        f"cover class(es) {sorted(set(rows.loc[bare, 'cover_class']))} have no pervious part in "
+        "the cover table, but the impervious shares leave them some: that part is priced as "
+        f"{UNSPECIFIED_COVER_STANDS_FOR} (TR-55 1986 Table 2-2a footnote)")]
+
+
 class _Parts:
     """Pervious parts with their soil and cover looked up once (vectorized over rows)."""
 
@@ -76,7 +100,8 @@ class _Parts:
         self.group = pd.Index([s.group for s in self.info])
         self.run = run
         self.unspecified = (rows["cover_class"] == UNSPECIFIED_COVER).to_numpy()
-        self.cover_key = np.where(self.unspecified, UNSPECIFIED_COVER_STANDS_FOR,
+        self.bare = covers_without_pervious_part(rows["cover_class"])
+        self.cover_key = np.where(self.unspecified | self.bare, UNSPECIFIED_COVER_STANDS_FOR,
                                   rows["cover_class"])
 
     @cached_property
@@ -127,10 +152,13 @@ def _cover_curve_number(parts: _Parts, column: str) -> Value:
     cover, groups = parts.cover, list(HYDROLOGIC_SOIL_GROUPS)
     by_group = cover[[f"pervious_cn_{g}" for g in groups]].to_numpy(float)
     cn = by_group[np.arange(len(parts.group)), [groups.index(g) for g in parts.group]]
-    return cn, [f"TR-55 (1986) Table {t}, pervious part of {k}"
-                f"{' (cover unspecified)' if u else ''}, group {s.group} ({s.group_source})"
-                for t, k, u, s in zip(cover["tr55_table"], parts.cover_key, parts.unspecified,
-                                      parts.info, strict=True)]
+    said = np.where(parts.unspecified, " (cover unspecified)", "")
+    said = np.where(parts.bare, " (standing in for a cover the table gives no pervious part)",
+                    said)
+    return cn, [f"TR-55 (1986) Table {t}, pervious part of {k}{w}, group {s.group} "
+                f"({s.group_source})"
+                for t, k, w, s in zip(cover["tr55_table"], parts.cover_key, said, parts.info,
+                                      strict=True)]
 
 
 def _initial_loss(parts: _Parts, column: str) -> Value:

@@ -80,8 +80,9 @@ _LARGEST_RATE_M_PER_S = 1.0
 class StormRunoff:
     """One storm as the lumped parameters need it (SI).
 
-    ``runoff_depth_m`` is gisrun's per-unit runoff depth of each subcatchment, in
-    the order of the ``sub_ids`` given to :func:`lumped_parameters`.
+    ``rain_per_step_m`` is ``(steps,)``, or ``(steps, subcatchments)`` for areal rain;
+    ``runoff_depth_m`` is gisrun's per-unit runoff depth of each subcatchment; subcatchments
+    in the order of the ``sub_ids`` given to :func:`lumped_parameters`.
     """
 
     name: str
@@ -136,8 +137,10 @@ def lumped_parameters(params: pd.DataFrame, sub_ids: Any, storms: Sequence[Storm
     frames = []
     for method in (m for m in ENGINES if m in set(units.method)):
         which = np.flatnonzero(units.method == method)
-        runner = LumpedRunner(units.take(which), method, [s.rain_per_step_m for s in storms],
-                              dt_s, None if scale is None else scale[which])
+        rains = [s.rain_per_step_m if np.ndim(s.rain_per_step_m) == 1
+                 else s.rain_per_step_m[:, units.rows[which]] for s in storms]
+        runner = LumpedRunner(units.take(which), method, rains, dt_s,
+                              None if scale is None else scale[which])
         targets = np.stack([s.runoff_depth_m[units.rows[which]] for s in storms])
         frames += _method_sets(runner, targets, [s.name for s in storms], solve=solve)
     if not frames:

@@ -178,8 +178,10 @@ class LumpedRunner:
     method : str
         Their loss method.
     rains : sequence of ndarray
-        Each storm's rain per run step, m (storms of different lengths are padded
-        with dry steps at the end, which change no runoff).
+        Each storm's rain per run step, m: ``(steps,)`` for every subcatchment alike, or
+        ``(steps, subcatchments)`` (areal rain, one column per subcatchment of ``units``).
+        Storms of different lengths are padded with dry steps at the end, which change no
+        runoff.
     dt_s : float
         The run's time step, s.
     rain_scale : ndarray, optional
@@ -190,12 +192,25 @@ class LumpedRunner:
                  rain_scale: FloatArray | None = None) -> None:
         self.units, self.method, self.dt_s = units, method, float(dt_s)
         steps = max(len(r) for r in rains)
-        self.rain = np.zeros((steps, len(rains)))
-        for k, r in enumerate(rains):
-            self.rain[: len(r), k] = r
         n = len(units.sub_ids)
+        self.rain = np.zeros((steps, len(rains)))
+        #: Areal storms: their (steps, subcatchments) rain, padded to ``steps``.
+        self.areal: dict[int, FloatArray] = {}
+        for k, r in enumerate(rains):
+            if np.ndim(r) == 2:
+                self.areal[k] = np.zeros((steps, n))
+                self.areal[k][: len(r)] = r
+            else:
+                self.rain[: len(r), k] = r
         self.scale = np.ones(n) if rain_scale is None else np.asarray(rain_scale, float)
-        self.rain_total = self.rain.sum(axis=0)[:, None] * self.scale[None, :]  # (storms, subs)
+        totals = np.repeat(self.rain.sum(axis=0)[:, None], n, axis=1)
+        for k, matrix in self.areal.items():  # summed in the order numpy sums self.rain (one
+            # column: pairwise; several: row by row), so a column of areal rain equal to a
+            # storm's series gives the same total to the last bit
+            rows_first = self.rain.shape[1] > 1
+            totals[k] = (np.cumsum(matrix, axis=0)[-1] if rows_first
+                         else matrix.T.copy().sum(axis=1))
+        self.rain_total = totals * self.scale[None, :]  # (storms, subs)
         every = np.repeat(np.arange(n), len(rains))
         storms = np.tile(np.arange(len(rains)), n)
         depth = self.run(units.impervious.iloc[every], every, storms)
@@ -206,11 +221,20 @@ class LumpedRunner:
         out = np.empty(len(subs))
         for start in range(0, len(subs), ENGINE_BATCH):
             part = slice(start, start + ENGINE_BATCH)
-            rain = self.rain[:, storms[part]] * self.scale[subs[part]][None, :]
+            rain = self._rain(subs[part], storms[part])
             loss = run_losses(frame.iloc[part], rain, self.dt_s, method=self.method,
                               deduplicate=False)
             out[part] = loss.excess_m.sum(axis=0)
         return out
+
+    def _rain(self, subs: IntArray, storms: IntArray) -> FloatArray:
+        """Rain per step (steps, rows) of subcatchments ``subs`` under storms ``storms``."""
+        rain = self.rain[:, storms] * self.scale[subs][None, :]
+        for k, matrix in self.areal.items():
+            cols = np.flatnonzero(storms == k)
+            if cols.size:
+                rain[:, cols] = matrix[:, subs[cols]] * self.scale[subs[cols]][None, :]
+        return rain
 
     def pervious_depth(self, column: str, values: FloatArray, subs: IntArray,
                        storms: IntArray, *, extra: tuple[str, FloatArray] | None = None

@@ -22,7 +22,7 @@ from __future__ import annotations
 import geopandas as gpd
 import pandas as pd
 
-from ..model import BAND_CAUTION, RunResult
+from ..model import BAND_CAUTION, RunResult, StormResult
 from ..uncertainty.spread import SPREADS
 from ..units import present_frame
 from .display import display_frame, header
@@ -85,8 +85,9 @@ def bands_section(result: RunResult, images: list[tuple[str, bytes]], top: int) 
         f"<p>{s.samples} parameter sets drawn by Latin hypercube (seed {s.seed}) from the "
         "ranges below and run through the same engine; each subcatchment's figures are the "
         f"{esc(pct)}th percentiles over the sets. Read a band as: with the loss parameters "
-        "anywhere in their published spread, the runoff falls between its low and high "
-        "percentiles in that share of the sets. The probability of ponding is the share of "
+        f"anywhere in their published spread, the runoff lies between the p{s.percentiles[0]:g} "
+        f"and p{s.percentiles[-1]:g} figures in {s.percentiles[-1] - s.percentiles[0]:g} % of "
+        "the sets. The probability of ponding is the share of "
         f"sets in which the subcatchment ponds; the first-to-pond share is how often it is "
         f"among the first {s.top_k} to pond.</p>",
         "<h3>What was sampled</h3>",
@@ -94,6 +95,11 @@ def bands_section(result: RunResult, images: list[tuple[str, bytes]], top: int) 
     ]
     for storm in result.storms:
         parts.append(f"<h3>{esc(storm.name)}</h3>")
+        parts.append(f"<p>The run's first {s.top_k} to pond, and how often each stays among "
+                     f"the first {s.top_k} over the parameter sets:</p>")
+        parts.append(table(_first_rows(result, storm, s.top_k), left=1,
+                           empty="No subcatchment ponds in the run."))
+        parts.append(f"<p>The {top} widest bands:</p>")
         parts.append(table(_storm_rows(result, storm.name, top), left=1))
     parts += [image(png, caption) for caption, png in images]
     return "\n".join(parts)
@@ -107,6 +113,22 @@ def _draws(result: RunResult) -> pd.DataFrame:
         "distribution": draws["distribution"].to_numpy(),
         "range from": draws["range_source"].to_numpy(),
     })
+
+
+def _first_rows(result: RunResult, storm: StormResult, k: int) -> pd.DataFrame:
+    """The run's own first ``k`` to pond, with ponding probability and first-to-pond share."""
+    subs = storm.subcatchments.dropna(subset=["time_to_ponding_s"]).sort_values(
+        "time_to_ponding_s", kind="stable").head(k)
+    bands = result.uncertainty.bands
+    bands = bands[bands["storm"] == storm.name].set_index("subcatchment_id")
+    ids = subs["subcatchment_id"].to_numpy(dtype=object)
+    frame = pd.DataFrame({
+        "subcatchment_id": ids,
+        "time_to_ponding_s": subs["time_to_ponding_s"].to_numpy(),
+        "ponding_probability": bands["ponding_probability"].reindex(ids).to_numpy(),
+        "first_to_pond_share": bands["first_to_pond_share"].reindex(ids).to_numpy(),
+    })
+    return display_frame(frame, result.project.units)
 
 
 def _storm_rows(result: RunResult, storm: str, top: int) -> pd.DataFrame:

@@ -164,12 +164,15 @@ class RunClasses:
     runoff_depth: Classes
     time_to_ponding: Classes
     cell_runoff_depth: Classes | None
+    #: Rain depth of the storms whose rain differs between subcatchments; None without one.
+    rain_depth: Classes | None = None
 
 
 def run_classes(result: RunResult) -> RunClasses:
     """Classes of runoff depth (display unit), time to ponding (min) and cell runoff depth.
 
-    Every storm's values count, so one colour means the same range on every map.
+    Every storm's values count, so one colour means the same range on every map; the rain
+    depth maps of storms with areal rain share theirs.
     Times to ponding are classed in doubling steps (15, 30, 60 ... min), so storms of
     very different durations still spread over several classes.
     """
@@ -182,8 +185,11 @@ def run_classes(result: RunResult) -> RunClasses:
         cells = shared_classes((from_si(_finite_range(a), depth)
                                 for a in result.cells.runoff_depth_m), n_classes=7,
                                cmap="viridis")
+    rain = [from_si(s.subcatchments["rain_depth_m"].to_numpy(float), depth)
+            for s in result.storms if s.hyetograph.areal is not None]
     return RunClasses(shared_classes(runoff),
-                      shared_classes(ponding, cmap="viridis", doubling=True), cells)
+                      shared_classes(ponding, cmap="viridis", doubling=True), cells,
+                      shared_classes(rain, cmap="Blues") if rain else None)
 
 
 def _finite_range(values: NDArray[np.float64]) -> NDArray[np.float64]:

@@ -26,6 +26,10 @@ Layers of the output GeoPackage:
     runoff they give and the difference from gisrun's runoff
     (:func:`gisrun.present.model_inputs.lumped_layer`); left out when the run
     made none.
+``rain_weights``
+    For storms whose rain differs between subcatchments (gauges, a rain grid): each source's
+    weight in each subcatchment's areal rain (storm, source id, subcatchment id, weight);
+    left out when no storm has such rain.
 ``runoff_bands``, ``parameter_sensitivity``, ``uncertainty_ranges``
     With ``[uncertainty]``: percentiles of each subcatchment's figures over the
     parameter sets, the one-at-a-time sensitivity and what was sampled
@@ -40,11 +44,13 @@ from __future__ import annotations
 from collections.abc import Callable
 
 import geopandas as gpd
+import numpy as np
 import pandas as pd
 
 from .._version import __version__
 from ..aggregate import soil_shares
 from ..model import BAND_CAUTION, CAUTION, RunResult, StormResult
+from ..storm.areal import WEIGHT_COLUMNS
 from ..units import UnitSystem, present_frame
 from .bands import band_builders
 from .display import human
@@ -53,6 +59,7 @@ from .model_inputs import lumped_layer
 __all__ = [
     "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
     "lumped_parameters_layer", "ponding_ranking", "subcatchment_table", "UNIT_LAYERS",
+    "rain_weights_layer",
 ]
 
 
@@ -122,9 +129,12 @@ def layer_builders(result: RunResult, *, skip: tuple[str, ...] = ()
         "ponding_rank_subcatchments": lambda: ranking(0),
         "ponding_rank_units": lambda: ranking(1),
         "lumped_parameters": lambda: lumped_parameters_layer(result),
+        "rain_weights": lambda: rain_weights_layer(result),
         **band_builders(result),
         "run_info": lambda: run_info(result),
     })
+    if all(storm.hyetograph.areal is None for storm in result.storms):
+        skip = (*skip, "rain_weights")
     if result.parameters is None:  # the unit rows were streamed into the output by the run
         skip = (*skip, *UNIT_LAYERS)
     if result.series_file is not None:  # the series went to a Parquet file beside it
@@ -159,6 +169,16 @@ def _all_storms(result: RunResult, kind: str) -> pd.DataFrame:
     return _storm_first(pd.concat(frames, ignore_index=True))
 
 
+def rain_weights_layer(result: RunResult) -> pd.DataFrame:
+    """Each rain source's weight in each subcatchment's areal rain, storm first."""
+    frames = [storm.hyetograph.areal.weights.assign(storm=storm.name)
+              for storm in result.storms if storm.hyetograph.areal is not None]
+    columns = ["storm", *WEIGHT_COLUMNS]
+    if not frames:
+        return pd.DataFrame({c: [] for c in columns})
+    return pd.concat(frames, ignore_index=True)[columns]
+
+
 def lumped_parameters_layer(result: RunResult) -> pd.DataFrame:
     """The lumped parameter table in the project's units (long form, the canonical one).
 
@@ -169,8 +189,13 @@ def lumped_parameters_layer(result: RunResult) -> pd.DataFrame:
 
 
 def series_layer(series: pd.DataFrame, storm_name: str, system: UnitSystem) -> pd.DataFrame:
-    """One storm's excess-rainfall series as written: storm first, output units."""
-    return _storm_first(present_frame(series, system).assign(storm=storm_name))
+    """One storm's excess-rainfall series as written: storm first, output units.
+
+    ``storm`` is a categorical of one name (no column of millions of copies of it).
+    """
+    storm = pd.Categorical.from_codes(np.zeros(len(series), dtype=np.int8),
+                                      categories=[storm_name])
+    return _storm_first(present_frame(series, system).assign(storm=storm))
 
 
 def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -288,6 +313,10 @@ def run_info(result: RunResult) -> pd.DataFrame:
         depth = present_frame(pd.DataFrame({"d_m": [h.total_depth_m]}), project.units).iloc[0, 0]
         rows.append(("storm", f"{h.name}: {human(depth)} {depth_unit} over "
                               f"{human(h.duration_s / 60)} min"))
+        if h.areal is not None:
+            start = f", from {h.areal.start}" if h.areal.start else ""
+            rows.append(("areal_rain", f"{h.name}: {h.areal.source}{start} (basin mean above; "
+                                       "each subcatchment its own rain)"))
     for name, digest in result.checksums.items():
         rows.append((f"sha256:{name}", digest))
     if "source" in result.parameter_sources.columns:

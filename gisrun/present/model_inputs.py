@@ -145,8 +145,10 @@ def excess_series_table(storms: Any, system: UnitSystem) -> pd.DataFrame:
 
     The same columns as the GeoPackage's ``excess_series`` table: ``storm``,
     ``subcatchment_id``, ``time_end_min``, ``rain_<depth>``, ``infiltration_<depth>``,
-    ``excess_<depth>`` (depth in the step) and the same as ``_intensity_<rate>``.
+    ``excess_<depth>`` (depth in the step) and the same as ``_intensity_<rate>``; ids
+    as plain text, as the table holds them (a run keeps them as a categorical).
     """
     frames = [present_frame(storm.series, system).assign(storm=storm.name) for storm in storms]
     frame = pd.concat(frames, ignore_index=True)
+    frame["subcatchment_id"] = frame["subcatchment_id"].astype(str)
     return frame[["storm", *[c for c in frame.columns if c != "storm"]]]

@@ -8,6 +8,7 @@ mailed as one attachment (no external script, tile, font or link). Sections
 [``storms``], summary table with the runoff coefficient [``summary``], the
 interactive subcatchment map [``explore``], maps and plots [``maps``],
 ponding-first rankings overall and within each method [``ranking``], the
+impervious shares and what disconnected impervious area did [``impervious``], the
 runoff bands from the parameter ranges [``bands``], the lumping difference per
 subcatchment [``lumping``], mass balance [``mass-balance``], warnings
 [``warnings``] and the run's provenance [``provenance``].
@@ -29,6 +30,7 @@ from .bands import bands_section
 from .explore import explore_section
 from .html import anchor, esc, image, section
 from .layers import REPORT_TOP
+from .disconnection import disconnection_section
 from .lumping import lumping_section
 from .parameter_sheet import parameter_sheet
 from .report_tables import (
@@ -46,7 +48,8 @@ __all__ = ["SECTIONS", "ReportFigures", "SubcatchmentPlot", "build_report", "REP
 
 #: Section ids in report order.
 SECTIONS = ("caution", "inputs", "method", "parameters", "storms", "summary", "explore", "maps",
-            "ranking", "bands", "lumping", "mass-balance", "warnings", "provenance")
+            "ranking", "impervious", "bands", "lumping", "mass-balance", "warnings",
+            "provenance")
 
 _TITLES = {"mass-balance": "mass balance", "explore": "map", "parameters": "parameter sheet",
            "bands": "how sure"}
@@ -151,6 +154,7 @@ def build_report(result: RunResult, figures: ReportFigures, *, ranking: tuple[pd
         "explore": explore_section(result, plots),
         "maps": _maps(figures),
         "ranking": ranking_section(result, (subs, units), top),
+        "impervious": disconnection_section(result, top),
         "bands": bands_section(result, figures.uncertainty, top),
         "lumping": lumping_section(result, top),
         "mass-balance": mass_balance_section(result),
@@ -161,6 +165,7 @@ def build_report(result: RunResult, figures: ReportFigures, *, ranking: tuple[pd
               "parameters": "Parameter sheet: the values used", "storms": "Storms",
               "summary": "Summary per storm", "explore": "Subcatchment map (interactive)",
               "maps": "Maps and plots", "ranking": "Which subcatchments pond first",
+              "impervious": "Impervious area and disconnection",
               "bands": "How sure: runoff bands from the parameter ranges",
               "lumping": "Lumping difference per subcatchment", "mass-balance": "Mass balance",
               "warnings": "Warnings", "provenance": "Provenance"}

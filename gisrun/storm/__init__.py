@@ -5,6 +5,7 @@ Reads only its own packaged table of the NRCS 24-hour distributions
 storm kinds.
 """
 
+from .areal import ArealRain, weighted_mean
 from .design import (
     KINDS,
     NRCS_DISTRIBUTIONS,
@@ -16,11 +17,20 @@ from .design import (
     nrcs_24h_table,
     uniform,
 )
-from .hyetograph import MAX_STEPS, Hyetograph, check_step_count, max_depth_in_window_m
+from .hyetograph import (
+    MAX_STEPS,
+    Hyetograph,
+    areal_storm,
+    check_step_count,
+    max_depth_in_window_m,
+)
 from .idf import IdfFormula, IdfTable
 from .resampling import peak_window_s, resampling_note
 
 __all__ = [
+    "ArealRain",
+    "areal_storm",
+    "weighted_mean",
     "MAX_STEPS",
     "check_step_count",
     "KINDS",

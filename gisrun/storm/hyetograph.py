@@ -21,14 +21,15 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from numpy.typing import ArrayLike, NDArray
+from numpy.typing import ArrayLike
 
 from ..errors import StormError
+from .areal import ArealRain, weighted_mean
+from .timing import REL_TOL, FloatArray, check_positive, frozen_array, step_edges
 
-__all__ = ["Hyetograph", "MAX_STEPS", "check_step_count", "max_depth_in_window_m",
+__all__ = ["Hyetograph", "areal_storm", "MAX_STEPS", "check_step_count", "max_depth_in_window_m",
            "step_edges", "check_positive", "frozen_array", "REL_TOL", "FloatArray"]
 
-FloatArray = NDArray[np.float64]
 #: Most time steps a storm may have on the run's step: 2 million is 3.8 years of 1-minute steps
 #: (a rain array of 16 MB per unit); more is a typing slip (a time in seconds written as
 #: minutes) that would otherwise try to allocate terabytes before anything is checked.
@@ -49,9 +50,6 @@ def check_step_count(duration_s: float, step_s: float, where: str, fix: str) -> 
                          f"{step_s / 60:g} minutes (at most {MAX_STEPS:,} are allowed)", fix)
 
 
-REL_TOL = 1e-9  # relative tolerance for "the duration is a whole number of steps"
-
-
 @dataclass(frozen=True, eq=False)
 class Hyetograph:
     """Rain depth per interval of a storm.
@@ -65,6 +63,10 @@ class Hyetograph:
         at least two edges.
     depth_m : array_like
         Rain depth in metres in each interval, ``len(time_s) - 1`` finite values >= 0.
+    areal : ArealRain, optional
+        Rain that differs between subcatchments (:mod:`gisrun.storm.areal`); the storm's own
+        times and depths are then its basin mean (made by :func:`gisrun.storm.areal_storm`),
+        and the run gives each subcatchment its own column.
 
     Raises
     ------
@@ -75,6 +77,7 @@ class Hyetograph:
     name: str
     time_s: FloatArray
     depth_m: FloatArray
+    areal: ArealRain | None = None
 
     def __post_init__(self) -> None:
         where = f"storm {self.name!r}"
@@ -149,14 +152,8 @@ class Hyetograph:
             raise StormError(
                 f"storm {self.name!r}", f"scale factor {factor!r} is not >= 0", "use a factor >= 0"
             )
-        return Hyetograph(name or self.name, self.time_s, self.depth_m * factor)
-
-
-def frozen_array(values: ArrayLike) -> FloatArray:
-    """A read-only float64 copy of ``values``."""
-    arr = np.array(values, dtype=np.float64, copy=True)
-    arr.setflags(write=False)
-    return arr
+        areal = None if self.areal is None else self.areal.scaled(factor)
+        return Hyetograph(name or self.name, self.time_s, self.depth_m * factor, areal=areal)
 
 
 def _check_times(time_s: FloatArray, where: str) -> None:
@@ -179,21 +176,6 @@ def _check_depths(depth_m: FloatArray, n: int, where: str) -> None:
         raise StormError(where, f"interval {i + 1} has rain {depth_m[i]!r}", "use depths >= 0")
 
 
-def step_edges(duration_s: float, step_s: float, where: str, *, pad: bool) -> FloatArray:
-    """Edges ``0, dt, 2 dt, ...``; the last is ``n dt`` when ``pad``, else the duration."""
-    if not (math.isfinite(step_s) and step_s > 0):
-        raise StormError(where, f"step {step_s!r} s is not positive", "use a step > 0")
-    if not (math.isfinite(duration_s) and duration_s > 0):
-        raise StormError(where, f"duration {duration_s!r} s is not positive", "use a duration > 0")
-    ratio = duration_s / step_s
-    n = round(ratio) if abs(ratio - round(ratio)) <= REL_TOL * ratio else math.ceil(ratio)
-    n = max(n, 1)
-    edges = np.arange(n + 1, dtype=np.float64) * step_s
-    if not pad:
-        edges[-1] = duration_s
-    return edges
-
-
 def max_depth_in_window_m(h: Hyetograph, window_s: float) -> float:
     """Largest rain depth (m) falling in any window of ``window_s`` seconds.
 
@@ -205,8 +187,26 @@ def max_depth_in_window_m(h: Hyetograph, window_s: float) -> float:
     return float(depth.max())
 
 
-def check_positive(value: float, what: str, where: str) -> None:
-    """Raise :class:`StormError` unless ``value`` is a finite number > 0."""
-    if not (isinstance(value, (int, float, np.floating)) and math.isfinite(value) and value > 0):
-        raise StormError(where, f"{what} {value!r} is not a positive number", f"give a {what} > 0")
+def areal_storm(name: str, rain: ArealRain, area_m2: ArrayLike) -> Hyetograph:
+    """A storm carrying ``rain``; its own hyetograph is the area-weighted basin mean.
 
+    Parameters
+    ----------
+    name : str
+        Storm name.
+    rain : ArealRain
+        The rain per subcatchment.
+    area_m2 : array_like
+        Ground area of each of ``rain.subcatchment_ids``, m2 (weights of the basin mean).
+
+    Raises
+    ------
+    StormError
+        If the areas do not match the rain's subcatchments or are all zero.
+    """
+    area = np.asarray(area_m2, dtype=np.float64)
+    if area.shape != (len(rain.subcatchment_ids),) or not np.all(area >= 0) or area.sum() <= 0:
+        raise StormError(f"storm {name!r}", "subcatchment areas do not match its areal rain",
+                         "give one ground area >= 0 per subcatchment of the rain")
+    basin = weighted_mean(rain.depth_m, (area / area.sum())[None, :])[:, 0]
+    return Hyetograph(name, rain.time_s, basin, areal=rain)

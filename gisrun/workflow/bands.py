@@ -88,13 +88,22 @@ def _chunk_inputs(project: Project, inputs: Inputs, params: pd.DataFrame,
 def check_named_ids(project: Project, inputs: Inputs) -> None:
     """Stop before any work on a tornado subcatchment id the layer does not have.
 
+    Also stops on a storm whose rain differs between subcatchments (areal rain): the sampled
+    parts are shared across subcatchments, which such rain would not allow.
+
     Raises
     ------
     InputError
-        Naming ``[uncertainty] sensitivity_subcatchments`` and the first unknown id.
+        Naming ``[uncertainty] sensitivity_subcatchments`` and the first unknown id, or the
+        first storm of areal rain.
     """
     if project.uncertainty is None:
         return
+    areal = [h.name for h in inputs.storms if h.areal is not None]
+    if areal:
+        raise InputError(project.where("uncertainty"), f"cannot sample storm {areal[0]!r}, whose "
+                         "rain differs between subcatchments", "run the uncertainty bands in a "
+                         "project without that storm (remove [uncertainty] to run it)")
     known = set(inputs.subcatchments["subcatchment_id"].astype(str))
     for name in project.uncertainty.sensitivity_subcatchments:
         if name not in known:

@@ -91,7 +91,7 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str],
     subs = _attempt(problems, read_subcatchment_layer, project)
     soil = _attempt(problems, read_soil, project)
     cover = _attempt(problems, read_cover, project)
-    storms = _attempt(problems, read_storms, project)
+    storms = _attempt(problems, read_storms, project, subs)
     overrides = _attempt(problems, read_overrides, project)
     impervious = _attempt(problems, read_impervious_grid, project)
     if subs is not None and storms is not None:

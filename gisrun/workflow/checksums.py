@@ -50,10 +50,9 @@ def input_checksums(project: Project,
     for source in (project.soil, project.cover):  # attribute tables of keyed rasters
         if source is not None and source.attributes is not None:
             paths.append(Path(source.attributes))
-    for spec in project.storms:
-        for key in ("path", "idf_table"):
-            if isinstance(spec.get(key), str):
-                paths.append((project.base_dir / spec[key]).resolve())
+    for named in project.storm_files().values():  # a folder of records: each file in it
+        named = named.resolve()
+        paths += sorted(p for p in named.iterdir()) if named.is_dir() else [named]
     out = {}
     for path in paths:
         if path.is_file():

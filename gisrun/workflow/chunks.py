@@ -14,7 +14,6 @@ and are put back in the layer's row order.
 from __future__ import annotations
 
 import dataclasses
-import importlib.util
 import warnings
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
@@ -25,7 +24,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from ..engine import LossResult
-from ..errors import GisrunWarning, InputError
+from ..errors import GisrunWarning
 from ..grid.classes import ClassGrid
 from ..grid.polygons import ClassPolygons
 from ..model import Inputs, StormResult
@@ -34,6 +33,7 @@ from ..storm import Hyetograph
 from ..uncertainty import ChunkParts
 from .bands import chunk_uncertainty
 from .cells import slim_unit_results
+from .disconnection import add_connected_comparison, runon_target
 from .steps import (
     add_composite_comparison,
     lumped_parameter_table,
@@ -73,6 +73,9 @@ _BYTES_PER_UNIT_ROW = 400
 _BYTES_PER_CELL = 16
 #: Bytes per subcatchment besides (polygon geometry and per-polygon tables; measured ~27 kB).
 _BYTES_PER_SUBCATCHMENT = 32_000
+#: Areal rain: bytes per subcatchment, step and storm (the chunk's columns) and per unit and step
+#: of the storm being run (its rain per unit, the engine's copy, the deduplication's frame).
+_BYTES_PER_AREAL_VALUE, _BYTES_PER_AREAL_UNIT_STEP = 8, 24
 
 
 @dataclass(frozen=True)
@@ -122,12 +125,13 @@ def plan_chunks(geoms: gpd.GeoSeries, max_per_chunk: int) -> list[np.ndarray]:
 
 
 def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int,
-                          load: ChunkLoad = ChunkLoad()) -> int:
+                          load: ChunkLoad = ChunkLoad(), *, areal_storms: int = 0) -> int:
     """Subcatchments per chunk whose working set stays within a third of the budget.
 
     A chunk's working set is its overlay window, one storm's engine arrays at a time and
     every storm's results until the chunk is written; with the load measured on the inputs
     the peak memory is set by the budget rather than by the raster or catchment size.
+    ``areal_storms`` storms of areal rain add their columns and, while one runs, rain per unit.
 
     Examples
     --------
@@ -142,6 +146,9 @@ def chunk_size_for_budget(budget_mb: float, n_steps: int, n_storms: int,
     per_sub = (units * steps * _BYTES_PER_UNIT_STEP
                + storms * (steps * _BYTES_PER_SERIES_ROW + units * _BYTES_PER_UNIT_ROW)
                + load.cells_per_subcatchment * _BYTES_PER_CELL + _BYTES_PER_SUBCATCHMENT)
+    if areal_storms:
+        per_sub += steps * (areal_storms * _BYTES_PER_AREAL_VALUE
+                            + units * _BYTES_PER_AREAL_UNIT_STEP)
     return int(np.clip(budget_mb * 1e6 * _CHUNK_SHARE // per_sub, 16, 50_000))
 
 
@@ -177,7 +184,8 @@ class ChunkTask:
     soil: ClassGrid | ClassPolygons
     cover: ClassGrid | ClassPolygons | None
     storms: tuple[Hyetograph, ...]
-    #: Each storm's rain per run step (resampled once for the whole run), m.
+    #: Each storm's rain per run step (resampled once), m: ``(steps,)``, or (areal rain) this
+    #: chunk's columns ``(steps, subcatchments)``.
     rains: tuple[NDArray[np.float64], ...]
     overrides: pd.DataFrame | None = None
     keep_loss: bool = True
@@ -185,8 +193,7 @@ class ChunkTask:
     cells: bool = False
     #: (units, coverage, notes) of this chunk from the overlay cache; None to overlay.
     overlay: tuple[pd.DataFrame, pd.DataFrame, list[str]] | None = None
-    #: The impervious-share grid, if the project names one.
-    impervious: ClassGrid | None = None
+    impervious: ClassGrid | None = None  # the impervious-share grid, if the project names one
 
 
 @dataclass
@@ -238,6 +245,7 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         results = _run_storms(project, inputs, params, task.rains, sub_ids)
         if project.compare_composite and project.combine == "units":
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
+        results = add_connected_comparison(project, inputs, units, results, sub_ids)
         lumped = lumped_parameter_table(project, inputs, params, results, sub_ids)
         cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
         bands = chunk_uncertainty(project, inputs, params, results, sub_ids)
@@ -273,7 +281,7 @@ def _run_storms(project: Project, inputs: Inputs, params: pd.DataFrame,
                 ) -> list[StormResult]:
     scale = rain_scale_for_units(project, inputs, params)
     return [run_storm(params, h, project.time_step_s, sub_ids=sub_ids, rain_scale=scale,
-                      rain_per_step_m=rain)
+                      rain_per_step_m=rain, runon_to=runon_target(project))
             for h, rain in zip(inputs.storms, rains, strict=True)]
 
 
@@ -311,25 +319,6 @@ def split_overlay(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],
         out.append((units.iloc[u].reset_index(drop=True), coverage.iloc[c].reset_index(drop=True),
                     notes if k == 0 else []))
     return out
-
-
-def require_dask(workers: int | None, scheduler: str | None) -> None:
-    """Stop before any work when ``--workers`` or ``--scheduler`` asks for dask and it is absent.
-
-    Raises
-    ------
-    InputError
-        Naming the option and the extra to install.
-    """
-    if not workers and not scheduler:
-        return
-    local = scheduler in ("synchronous", "threads", "sync", "processes") and not workers
-    needed = ("dask",) if local else ("dask", "distributed")
-    missing = [name for name in needed if importlib.util.find_spec(name) is None]
-    if missing:
-        option = "--workers" if workers else "--scheduler"
-        raise InputError(option, f"needs {' and '.join(missing)}, which is not installed",
-                         'install the extra: pip install "gisrun[dask]", or run without it')
 
 
 def execute(

@@ -18,19 +18,18 @@ import pandas as pd
 import shapely
 from pyproj import CRS, Transformer
 
-from ..config.storms import storms_from_config
 from ..crs import ground_areas, is_web_mercator
-from ..errors import GisrunWarning, RasterError, StormError, VectorError
+from ..errors import GisrunWarning, RasterError, VectorError
 from ..io.raster import ClassRaster, read_class_raster, read_value_raster
 from ..io.storm_csv import warn_if_implausible
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
 from ..model import Inputs
 from ..parameters.tables import UNSPECIFIED_COVER_STANDS_FOR, cover_table
-from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
-from ..storm import Hyetograph, check_step_count
+from ..storm import Hyetograph
 from .polygon_inputs import ClassPolygons, align_polygon_layers, read_class_polygons
+from .storms import check_storm_names, read_storms
 
 __all__ = [
     "read_inputs",
@@ -50,9 +49,6 @@ __all__ = [
     "bounds_in",
 ]
 
-
-#: Longest storm name: its output files add a prefix and suffix, and file names stop at 255.
-MAX_STORM_NAME = 100
 
 
 def read_subcatchment_layer(project: Project) -> gpd.GeoDataFrame:
@@ -122,49 +118,6 @@ def no_cover_note(project: Project) -> str:
             f"with a land-cover raster so roofs, roads and other covers are priced as such")
 
 
-def read_storms(project: Project) -> tuple[Hyetograph, ...]:
-    """Build every storm of the project (design storms and hyetograph files).
-
-    Raises
-    ------
-    StormError
-        A storm cannot be built, or two storms would write the same layer.
-    """
-    where = f"{project.path.name}:[[storms]]"
-    storms = tuple(storms_from_config(list(project.storms), base_dir=project.base_dir,
-                                      units=project.units, where=where))
-    check_storm_names([h.name for h in storms], where)
-    for i, h in enumerate(storms, start=1):  # before anything is resampled onto the run's step
-        check_step_count(float(h.time_s[-1]), project.time_step_s, f"{where} {i} ({h.name})",
-                         "shorten the storm or lengthen "
-                         f"{project.where('project', 'time_step_min')}")
-    return storms
-
-
-def check_storm_names(names: list[str], where: str) -> None:
-    """Stop when two storm names give the same output layer or file name.
-
-    Raises
-    ------
-    StormError
-        Naming both storms.
-    """
-    for name in names:  # file names of maps and rasters are built from it; most systems
-        if len(layer_name(name)) > MAX_STORM_NAME:  # stop file names at 255 bytes
-            raise StormError(where, f"storm name {name[:40]!r}... is {len(name)} characters "
-                             "long, too long for the file names of its outputs",
-                             f"give it a name of at most {MAX_STORM_NAME} characters")
-    for naming in (storm_layer_name, layer_name):
-        seen: dict[str, str] = {}
-        for name in names:
-            key = naming(name)
-            if key in seen:
-                raise StormError(where, f"storms {seen[key]!r} and {name!r} would both be "
-                                 f"written as {key!r}", "give the storms names that differ "
-                                 "in letters or digits")
-            seen[key] = name
-
-
 def read_overrides(project: Project) -> pd.DataFrame | None:
     """Read the user's parameter override table, if any."""
     return read_parameter_overrides(project.overrides) if project.overrides else None
@@ -182,11 +135,12 @@ def read_inputs(project: Project) -> Inputs:
     """
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GisrunWarning)
+        subcatchments = read_subcatchment_layer(project)
         inputs = align_polygon_layers(project, Inputs(
-            subcatchments=read_subcatchment_layer(project),
+            subcatchments=subcatchments,
             soil=read_soil(project),
             cover=read_cover(project),
-            storms=read_storms(project),
+            storms=read_storms(project, subcatchments),
             overrides=read_overrides(project),
             impervious=read_impervious_grid(project),
         ))
@@ -239,12 +193,12 @@ def subcatchment_overlaps(subs: gpd.GeoDataFrame) -> pd.DataFrame:
     DataFrame
         ``subcatchment_id``, ``other_id``, ``overlap_area_m2`` (ground area,
         :func:`gisrun.crs.ground_areas`) and ``overlap_fraction`` (of the smaller
-        of the two), largest share first.
+        of the two), largest share first; none for a valid coverage (not searched).
     """
     geoms = subs.geometry.to_numpy()
-    tree = shapely.STRtree(geoms)
-    pairs = np.concatenate([tree.query(geoms, predicate=p) for p in ("overlaps", "contains")],
-                           axis=1)
+    tree = None if shapely.coverage_is_valid(geoms) else shapely.STRtree(geoms)  # 4 s, not 30
+    pairs = np.concatenate([tree.query(geoms, predicate=p) for p in ("overlaps", "contains")]
+                           if tree is not None else [np.zeros((2, 0), np.intp)], axis=1)
     pairs = np.unique(np.sort(pairs, axis=0), axis=1)
     i, j = pairs[:, pairs[0] != pairs[1]]
     area = np.zeros(0)

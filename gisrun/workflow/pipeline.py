@@ -28,7 +28,7 @@ from ..io.overlay_cache import load_overlay, overlay_key, save_overlay
 from ..model import CellRasters, Inputs, RunResult, StormResult
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
-from ..storm import Hyetograph, resampling_note
+from ..storm import Hyetograph
 from .bands import check_named_ids, combine_uncertainty
 from .cells import compute_cells
 from .checksums import dataset_files, file_sha256, input_checksums
@@ -43,6 +43,8 @@ from .chunks import (
     split_overlay,
 )
 from .inputs import check_inputs_codes, read_inputs
+from .disconnection import runon_target
+from .rain import chunk_rain, run_rains
 from .steps import compact_sources, overlay_inputs
 
 __all__ = ["KEEP_STEP_ARRAYS_BELOW", "Progress", "SeriesSink", "UnitSink", "run"]
@@ -132,9 +134,7 @@ def run(
     cells, cells_note = _cells_possible(inputs, cells)
     if keep_loss:  # a run small enough to keep its step arrays keeps its unit rows too
         unit_sink = None
-    rains = tuple(h.resample(project.time_step_s) for h in inputs.storms)
-    resampled = [note for h, rain in zip(inputs.storms, rains, strict=True)
-                 if (note := resampling_note(h, project.time_step_s, rain, project.units))]
+    rains, resampled = run_rains(project, inputs)
     datasets = dataset_files(project)
     checksums = input_checksums(project, datasets)
     with warnings.catch_warnings(record=True) as refused:
@@ -171,10 +171,14 @@ def _lumping_for_size(project: Project, n_subcatchments: int) -> tuple[Project, 
     The equivalent and fitted sets take root searches per subcatchment and storm and a table
     kept for the whole run; a large run makes them only when the project asks (``"solve"``).
     """
+    notes = [] if runon_target(project) is None or project.lumped_parameters == "off" else [
+        "lumped parameters describe each subcatchment with every impervious area connected (a "
+        "lumped model has no run-on): the equivalent and fitted sets fold the disconnection "
+        "into the pervious parameter, the area-weighted set leaves it out"]
     if project.lumped_parameters != "auto":
-        return project, []
+        return project, notes
     if n_subcatchments < KEEP_STEP_ARRAYS_BELOW:
-        return dataclasses.replace(project, lumped_parameters="solve"), []
+        return dataclasses.replace(project, lumped_parameters="solve"), notes
     return dataclasses.replace(project, lumped_parameters="off"), [
         f"lumped parameters not made for {n_subcatchments} subcatchments (automatic above "
         f"{KEEP_STEP_ARRAYS_BELOW - 1}); set [method] lumped_parameters = \"area_weighted\" or "
@@ -198,8 +202,9 @@ def _tasks(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64], .
     overlays = (split_overlay(cached, inputs.subcatchments, chunks) if cached is not None
                 else [None] * len(chunks))
     return [ChunkTask(i, project, inputs.subcatchments.iloc[rows], inputs.soil, inputs.cover,
-                      inputs.storms, rains, inputs.overrides, keep_loss=keep_loss, cells=cells,
-                      overlay=overlay, impervious=inputs.impervious)
+                      inputs.storms, tuple(chunk_rain(r, rows) for r in rains),
+                      inputs.overrides, keep_loss=keep_loss, cells=cells, overlay=overlay,
+                      impervious=inputs.impervious)
             for i, (rows, overlay) in enumerate(zip(chunks, overlays, strict=True))]
 
 
@@ -227,8 +232,14 @@ def _chunk_size(project: Project, inputs: Inputs, n_steps: int, cached: Overlay 
     """
     subs = inputs.subcatchments
 
+    areal = sum(h.areal is not None for h in inputs.storms)
+
     def size(load: ChunkLoad) -> int:
-        return chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms), load)
+        if runon_target(project) is not None:  # run-on: a second engine pass and two more
+            load = dataclasses.replace(  # step arrays; counted as twice the units (not measured)
+                load, units_per_subcatchment=2.0 * load.units_per_subcatchment)
+        return chunk_size_for_budget(project.memory_budget_mb, n_steps, len(inputs.storms), load,
+                                     areal_storms=areal)
 
     cells = _cells_per_subcatchment(inputs)
     if cached is not None:

@@ -152,7 +152,7 @@ def align_polygon_layers(project: Project, inputs: Inputs) -> Inputs:
         if not layer.crs.equals(target):
             warnings.warn(f"{layer.where}: polygons transformed from {layer.crs.name} to "
                           f"{target.name} for the overlay", GisrunWarning, stacklevel=2)
-        moved[key] = near.to_crs(target)
+        moved[key] = near.to_crs(target).subdivide()  # once, not in every chunk
     return dataclasses.replace(inputs, **moved)
 
 
@@ -189,9 +189,10 @@ def check_layer_overlaps(layer: ClassPolygons) -> None:
 
 def describe_polygon_layer(layer: ClassPolygons, subs: gpd.GeoDataFrame | None = None) -> str:
     """One line for ``gisrun check``: features, classes, overlaps, gaps under the subcatchments."""
-    counts = pd.Series([str(v) if v is not None else "(no class)" for v in layer.labels])
+    _, first = np.unique(layer.feature_ids, return_index=True)  # features, not their pieces
+    counts = pd.Series([str(v) if v is not None else "(no class)" for v in layer.labels[first]])
     classes = ", ".join(f"{k} ({n})" for k, n in counts.value_counts().sort_index().items())
-    text = (f"{layer.where}: {len(layer.labels)} polygon(s) near the subcatchments; classes "
+    text = (f"{layer.where}: {first.size} polygon(s) near the subcatchments; classes "
             f"{classes}; no overlapping polygons")
     if subs is not None and len(subs):
         gap = layer_gaps(subs, layer)

@@ -29,13 +29,16 @@ from ..grid.overlay import compute_unit_areas
 from ..grid.polygons import ClassPolygons, polygon_unit_areas
 from ..model import Inputs, StormResult
 from ..parameters import assign_parameters, composite_parameters
+from ..parameters.disconnection import Disconnection, assign_disconnection, merge_sources
 from ..parameters.equivalent import LUMPED_COLUMNS, StormRunoff, lumped_parameters
 from ..parameters.keyed import table_impervious_shares
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
+from ..runon import run_with_runon
 from ..storm import Hyetograph
 from .inputs import check_inputs_codes
 from .polygon_inputs import class_layer_sources
+from .rain import run_rain, unit_rain
 
 __all__ = [
     "overlay_inputs",
@@ -45,6 +48,7 @@ __all__ = [
     "add_composite_comparison",
     "rain_scale_for_units",
     "lumped_parameter_table",
+    "disconnection_spec",
     "subcatchment_attributes",
 ]
 
@@ -105,8 +109,13 @@ def prepare_parameters(
         cover_keys=project.cover.keys if project.cover else None,
     )
     sources = pd.DataFrame(sources)
+    notes = list(notes)
     if "impervious_fraction" in units.columns and project.impervious is not None:
         sources = pd.concat([sources, _share_sources(units, project)], ignore_index=True)
+    if project.impervious is not None and project.impervious.disconnects:
+        params, more, said = assign_disconnection(
+            params, disconnection_spec(project, inputs.subcatchments))
+        sources, notes = merge_sources(sources, more), [*notes, *said]
     if table_shares is not None:
         sources = pd.concat([sources, table_shares], ignore_index=True)
     layers = class_layer_sources(project, params)
@@ -114,7 +123,36 @@ def prepare_parameters(
         sources = pd.concat([sources, layers], ignore_index=True)
     if project.combine == "composite":
         params = composite_parameters(params)
-    return params.reset_index(drop=True), compact_sources(sources), list(notes)
+    return params.reset_index(drop=True), compact_sources(sources), notes
+
+
+def disconnection_spec(project: Project, subs: gpd.GeoDataFrame) -> Disconnection:
+    """The project's disconnected shares, the subcatchment field read and checked.
+
+    Raises
+    ------
+    ParameterError
+        Naming the first subcatchment whose share is neither blank nor a number 0-1.
+    """
+    source = project.impervious
+    by_sub, where = None, ""
+    if source.disconnected_field:
+        where = f"{project.subcatchments.path.name}:{source.disconnected_field}"
+        raw = subs[source.disconnected_field]
+        blank = raw.isna() | (raw.astype(str).str.strip() == "")
+        values = pd.to_numeric(raw.where(~blank), errors="coerce")
+        bad = ~blank & ~((values >= 0) & (values <= 1))
+        if bad.any():
+            i = int(np.flatnonzero(bad.to_numpy())[0])
+            raise ParameterError(f"{where}:id={subs['subcatchment_id'].iloc[i]}",
+                                 f"disconnected share {raw.iloc[i]!r} is not a number from 0 "
+                                 "to 1", "give the share of impervious area draining onto "
+                                 "pervious ground, or leave it blank for the cover's share")
+        by_sub = pd.Series(values.to_numpy(dtype=np.float64),
+                           index=subs["subcatchment_id"].astype(str).to_numpy())
+    return Disconnection(by_cover=source.disconnected_by_cover,
+                         project_wide=source.disconnected_fraction, by_subcatchment=by_sub,
+                         field_where=where, runon_to=source.runon_to)
 
 
 def _share_sources(units: pd.DataFrame, project: Project) -> pd.DataFrame:
@@ -194,15 +232,25 @@ def run_storm(
     sub_ids: NDArray[np.object_],
     rain_scale: NDArray[np.float64] | None = None,
     rain_per_step_m: NDArray[np.float64] | None = None,
+    runon_to: str | None = None,
 ) -> StormResult:
     """Run every unit through one storm and aggregate to subcatchments (all SI).
 
     ``rain_per_step_m`` is the storm already resampled onto ``dt_s`` (resampled
-    here when not given).
+    here when not given): ``(steps,)``, or ``(steps, len(sub_ids))`` for a storm with areal
+    rain (:func:`gisrun.workflow.rain.run_rain`), each unit then taking its subcatchment's
+    column. ``rain_scale`` is a factor per unit (row of ``params``). ``runon_to``
+    (``"unit"`` or ``"subcatchment"``) routes the ``disconnected_fraction`` of impervious
+    runoff onto pervious parts (:func:`gisrun.runon.run_with_runon`); None runs every part
+    on its rain alone.
     """
-    rain = hyetograph.resample(dt_s) if rain_per_step_m is None else rain_per_step_m
-    rain_units = rain if rain_scale is None else rain[:, None] * rain_scale[None, :]
-    loss = run_losses(params, rain_units, dt_s)
+    rain = (run_rain(hyetograph, dt_s, sub_ids) if rain_per_step_m is None
+            else rain_per_step_m)
+    rain_units = unit_rain(rain, params["subcatchment_id"], sub_ids, rain_scale)
+    if runon_to is None:
+        loss = run_losses(params, rain_units, dt_s)
+    else:
+        loss = run_with_runon(params, rain_units, dt_s, runon_to=runon_to)
     units = summarize_units(loss, params, dt_s)
     weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
     series = subcatchment_series(loss, params, sub_ids, dt_s, weights=weights)

@@ -17,7 +17,7 @@ from ..model import CAUTION, RunResult, StormResult
 from ..present import band_figures, maps, plots
 from ..present.bands import band_width_label
 from ..present.canvas import figure_png
-from ..present.classes import RunClasses, run_classes
+from ..present.classes import Classes, RunClasses, run_classes
 from ..present.display import method_name
 from ..present.layers import layer_name, ponding_ranking
 from ..present.report import REPORT_TOP, ReportFigures, SubcatchmentPlot, build_report
@@ -64,6 +64,8 @@ def write_figures(result: RunResult, folder: Path, *, plot_ids: list[str], cell_
     for k, storm in enumerate(result.storms):
         progress("maps and plots", k, total)
         images = _subcatchment_maps(result, storm, classes, folder, out)
+        if storm.hyetograph.areal is not None and classes.rain_depth is not None:
+            images.insert(0, _rain_map(result, storm, classes.rain_depth, folder, out))
         if cell_maps and result.cells is not None:
             images.append(_cell_map(result, k, classes, folder, out))
         out.report.per_storm[storm.name] = images
@@ -147,6 +149,24 @@ def _subcatchment_maps(result: RunResult, storm: StormResult, classes: RunClasse
                out.save(figure_png(fig), folder / f"time_to_ponding_{stem}.png",
                         f"time_to_ponding_{stem}"))
     return [runoff, ponding]
+
+
+def _rain_map(result: RunResult, storm: StormResult, classes: Classes, folder: Path,
+              out: Figures) -> tuple[str, bytes]:
+    """Rain depth per subcatchment of a storm whose rain differs between subcatchments."""
+    system, stem = result.project.units, storm.file_stem
+    gdf = result.subcatchments[["subcatchment_id", "geometry"]].merge(
+        storm.subcatchments[["subcatchment_id", "rain_depth_m"]], on="subcatchment_id",
+        how="left")
+    gdf["rain"] = from_si(gdf["rain_depth_m"].to_numpy(float), system.depth)
+    fig = maps.subcatchment_map(gdf, "rain", title=f"Rain depth per subcatchment, {storm.name}",
+                                label=f"rain depth ({system.depth})", classes=classes,
+                                crs=result.subcatchments.crs, id_column="subcatchment_id",
+                                distance_unit=distance_unit(system))
+    source = storm.hyetograph.areal.source if storm.hyetograph.areal is not None else ""
+    return (f"Rain depth per subcatchment ({system.depth}), {storm.name}: {source}; the "
+            "weights are in the rain_weights layer",
+            out.save(figure_png(fig), folder / f"rain_depth_{stem}.png", f"rain_depth_{stem}"))
 
 
 def distance_unit(system: UnitSystem) -> str:

@@ -69,6 +69,8 @@ def test_bands_layers_report_and_figures(tmp_path, capsys):
     section = report[report.index('id="bands"'):report.index('id="lumping"')]
     assert "parameter spread" in section or BAND_CAUTION[:60] in section
     assert "Latin hypercube" in section and "data:image/png" in section
+    assert "how often each stays among the first 1" in section
+    assert "between the p5 and p95 figures in 90 % of the sets" in section
     assert "Planning-level estimates only" in report
     maps = files / "maps"
     assert (maps / "runoff_band_width_steady.png").stat().st_size > 10_000

@@ -1,0 +1,207 @@
+"""Rain that differs between subcatchments: :class:`ArealRain` and its weighted means (all SI).
+
+An observed event seen by several gauges, or a gridded rainfall product, gives every
+subcatchment its own areal rain: a depth per step and subcatchment, the area-weighted mean of
+the sources (gauges or grid cells) over the polygon. :class:`ArealRain` holds that matrix on a
+fixed step with the weights it came from. A storm carries it in
+:attr:`gisrun.storm.Hyetograph.areal` (:func:`gisrun.storm.areal_storm`); the storm's own
+hyetograph is then the basin's area-weighted mean, which the storm tables and plots show,
+while the run gives each unit the column of its subcatchment, resampled onto the run's step
+by :meth:`ArealRain.resample` exactly as ``Hyetograph.resample`` does a single series (same
+operations, so a matrix of identical columns gives bit for bit the hyetograph's steps).
+
+:func:`weighted_mean` takes a weighted mean as ``min + W (x - min)`` with the smallest source
+value of each step, so identical sources give exactly their common value, whatever the
+rounding of the weights (a gauge set with identical records reproduces the uniform storm
+exactly), and the result is never below the smallest source.
+
+Rainfall feeds planning-level runoff estimates only; defer to local codes, agency methods and a
+licensed engineer.
+
+Examples
+--------
+>>> rain = ArealRain(np.array([[1.0, 2.0], [3.0, 0.0]]) / 1000, 600.0, ("S1", "S2"),
+...                  "two columns")
+>>> rain.total_depth_m.tolist()
+[0.004, 0.002]
+>>> (rain.resample(300.0) * 1000).round(6).tolist()
+[[0.5, 1.0], [0.5, 1.0], [1.5, 0.0], [1.5, 0.0]]
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from numpy.typing import ArrayLike, NDArray
+
+from ..errors import StormError
+from .timing import FloatArray, check_positive, frozen_array, step_edges
+
+__all__ = ["ArealRain", "WEIGHT_COLUMNS", "weighted_mean", "interpolate_columns"]
+
+#: Columns of :attr:`ArealRain.weights`: the source (a gauge id, or a grid cell id), the
+#: subcatchment, and the source's share of the subcatchment's areal rain.
+WEIGHT_COLUMNS = ("source_id", "subcatchment_id", "weight")
+
+
+@dataclass(frozen=True, eq=False)
+class ArealRain:
+    """Rain depth per step and subcatchment on a fixed step (SI).
+
+    Parameters
+    ----------
+    depth_m : array_like, shape (steps, subcatchments)
+        Rain depth in metres in each step for each subcatchment, finite and >= 0.
+    step_s : float
+        The step, s (> 0); step ``k`` covers ``[k step_s, (k + 1) step_s)`` from the start.
+    subcatchment_ids : sequence of str
+        The subcatchment of each column, unique.
+    source : str
+        What the rain comes from, in words (``"3 gauges, Thiessen weights"``), for the report.
+    weights : DataFrame, optional
+        :data:`WEIGHT_COLUMNS`: which source gives what share of each subcatchment's rain (the
+        output's weights layer); empty when not given.
+    start : str, optional
+        Date and time of the first step's start as written in the source (ISO 8601), if known.
+
+    Raises
+    ------
+    StormError
+        If the matrix, step or ids do not hold the above.
+    """
+
+    depth_m: FloatArray
+    step_s: float
+    subcatchment_ids: tuple[str, ...]
+    source: str
+    weights: pd.DataFrame = dataclasses.field(
+        default_factory=lambda: pd.DataFrame({c: [] for c in WEIGHT_COLUMNS}))
+    start: str | None = None
+
+    def __post_init__(self) -> None:
+        where = f"areal rain ({self.source})"
+        check_positive(self.step_s, "step", where)
+        depth = frozen_array(self.depth_m)
+        ids = tuple(str(i) for i in self.subcatchment_ids)
+        if depth.ndim != 2 or depth.shape[0] == 0 or depth.shape[1] != len(ids):
+            raise StormError(where, f"has a depth matrix of shape {depth.shape} for "
+                             f"{len(ids)} subcatchments", "give shape (steps, subcatchments)")
+        bad = ~np.isfinite(depth) | (depth < 0)
+        if np.any(bad):
+            k, j = (int(v) for v in np.argwhere(bad)[0])
+            raise StormError(where, f"step {k + 1} of subcatchment {ids[j]!r} has rain "
+                             f"{depth[k, j]!r}", "give depths >= 0")
+        if len(set(ids)) != len(ids):
+            raise StormError(where, "names a subcatchment twice", "give each subcatchment once")
+        missing = [c for c in WEIGHT_COLUMNS if c not in self.weights.columns]
+        if missing:
+            raise StormError(where, f"weights table lacks {missing}",
+                             f"give the columns {list(WEIGHT_COLUMNS)}")
+        object.__setattr__(self, "depth_m", depth)
+        object.__setattr__(self, "step_s", float(self.step_s))
+        object.__setattr__(self, "subcatchment_ids", ids)
+        object.__setattr__(self, "weights", self.weights[list(WEIGHT_COLUMNS)].copy())
+
+    @property
+    def steps(self) -> int:
+        """Number of steps."""
+        return int(self.depth_m.shape[0])
+
+    @property
+    def duration_s(self) -> float:
+        """Steps times the step, s."""
+        return self.steps * self.step_s
+
+    @property
+    def time_s(self) -> FloatArray:
+        """Step edges from 0, s."""
+        return np.arange(self.steps + 1, dtype=np.float64) * self.step_s
+
+    @property
+    def total_depth_m(self) -> FloatArray:
+        """Storm depth of each subcatchment, m."""
+        return self.depth_m.sum(axis=0)
+
+    def resample(self, dt_s: float, columns: NDArray[np.intp] | None = None) -> FloatArray:
+        """Rain depth per run step of ``dt_s`` seconds, shape ``(steps, len(columns))``.
+
+        The same operations as ``Hyetograph.resample`` on every column: the cumulative
+        depth interpolated to the run's step edges and differenced, so each subcatchment's
+        depth is conserved and a column equals its own hyetograph's resampling bit for bit.
+
+        Parameters
+        ----------
+        dt_s : float
+            The run's step, s (> 0).
+        columns : ndarray of int, optional
+            Columns to resample, in the order wanted (default all).
+        """
+        depth = self.depth_m if columns is None else self.depth_m[:, columns]
+        edges = step_edges(self.duration_s, dt_s, f"areal rain ({self.source})", pad=True)
+        cum = np.concatenate([np.zeros((1, depth.shape[1])), np.cumsum(depth, axis=0)])
+        return np.maximum(np.diff(interpolate_columns(edges, self.time_s, cum), axis=0), 0.0)
+
+    def scaled(self, factor: float) -> ArealRain:
+        """The same rain times ``factor`` (>= 0) in every step and subcatchment."""
+        return dataclasses.replace(self, depth_m=self.depth_m * factor)
+
+    def positions(self, ids: ArrayLike, where: str) -> NDArray[np.intp]:
+        """Column of each of ``ids``.
+
+        Raises
+        ------
+        StormError
+            Naming the first id this rain has no column for.
+        """
+        index = pd.Index(self.subcatchment_ids)
+        wanted = pd.Index(np.asarray(ids, dtype=object).astype(str))
+        pos = index.get_indexer(wanted)
+        if np.any(pos < 0):
+            first = wanted[int(np.argmax(pos < 0))]
+            raise StormError(where, f"has no rain for subcatchment {first!r}",
+                             "give rain for every subcatchment of the layer")
+        return pos.astype(np.intp)
+
+
+def interpolate_columns(x: FloatArray, xp: FloatArray, fp: FloatArray) -> FloatArray:
+    """``np.interp(x, xp, fp[:, c])`` for every column ``c`` at once, bit for bit.
+
+    ``xp`` increasing; ``x`` beyond its ends takes the end values, as ``np.interp`` does. The
+    arithmetic is numpy's own (slope times offset plus the left value; a knot's own value on a
+    knot), so a run of areal rain and of a single hyetograph agree exactly.
+    """
+    j = np.clip(np.searchsorted(xp, x, side="right") - 1, 0, len(xp) - 2)
+    slope = (fp[j + 1] - fp[j]) / (xp[j + 1] - xp[j])[:, None]
+    out = slope * (x - xp[j])[:, None] + fp[j]
+    on_knot = x == xp[j]
+    out[on_knot] = fp[j[on_knot]]
+    out[x >= xp[-1]] = fp[-1]
+    out[x < xp[0]] = fp[0]
+    return out
+
+
+def weighted_mean(values: FloatArray, weights: Any) -> FloatArray:
+    """Weighted means of the columns of ``values``: ``min + (x - min) @ weights.T`` per row.
+
+    Parameters
+    ----------
+    values : ndarray, shape (steps, sources)
+        A value per step and source (a gauge's depth, a grid cell's depth).
+    weights : ndarray or scipy sparse matrix, shape (targets, sources)
+        Each target's weights of the sources, rows adding up to 1.
+
+    Returns
+    -------
+    ndarray, shape (steps, targets)
+        With ``min`` the smallest source value of each step: identical sources give exactly
+        their value, and no mean falls below the smallest source.
+    """
+    values = np.asarray(values, dtype=np.float64)
+    low = values.min(axis=1, keepdims=True)
+    spread = weights @ (values - low).T  # (targets, steps); works for dense and sparse
+    return low + np.asarray(spread).T
+
