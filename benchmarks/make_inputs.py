@@ -184,8 +184,9 @@ def make_rasters(out_dir: str | Path, *, n_cells: int = 8000, cell_m: float = CE
     """Write ``soil_groups.tif`` and ``land_cover.tif`` (N x N cells) into ``out_dir``.
 
     Soil codes 1-6 are A, B, C, D, B/D, C/D with 255 as nodata (``nodata_share`` of the cells,
-    0.4 % by default, in small blobs); cover codes 1-8 are the cover classes in ``COVER_CLASSES``. Both rasters share one
-    grid. Written in strips of ``BLOCK`` rows, so memory does not grow with ``n_cells``.
+    0.4 % by default, in small blobs); cover codes 1-8 are the cover classes in
+    ``COVER_CLASSES``. Both rasters share one grid. Written in strips of ``BLOCK`` rows, so
+    memory does not grow with ``n_cells``.
 
     Returns
     -------

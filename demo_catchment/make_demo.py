@@ -13,6 +13,9 @@ It writes, next to itself:
 - ``soil_groups.tif``: 10 m hydrologic soil group codes (uint8, 255 = nodata).
 - ``land_cover.tif``: 5 m cover codes on the same extent (2 x 2 cover cells = 1 soil cell).
 - ``storms/observed_event.csv``: an observed-style 5-minute hyetograph.
+- ``storms/radar_event.nc``: an invented radar-style rain grid (CF NetCDF, 0.005 degree
+  longitude-latitude cells, 5-minute rain rates): the observed event with a storm cell
+  crossing the valley.
 - ``storms/gauges.gpkg``, ``storms/gauge_records.csv``: three invented rain gauges and their
   5-minute records of another event (the ``gauged_event`` storm).
 - ``gisrun.toml``: the project file that ties them together.
@@ -38,6 +41,7 @@ import numpy as np
 import pyogrio
 import rasterio
 import shapely
+import xarray as xr
 from numpy.typing import NDArray
 from rasterio.features import rasterize, shapes
 from rasterio.transform import from_origin
@@ -332,6 +336,53 @@ def observed_event_csv(rng: np.random.Generator) -> str:
     return "time_min,intensity_mm_per_h\n" + "\n".join(rows) + "\n"
 
 
+# --- rain grid ---
+
+RAIN_GRID_DEG = 0.005  # cell size of the invented rain grid, degrees of longitude and latitude
+RAIN_GRID_STATE = RNG_STATE + 19  # its own generator: the other files stay as they were
+RAIN_GRID_START = "2026-07-14 15:00:00"  # invented
+
+
+def rain_grid_dataset(subs: gpd.GeoDataFrame) -> xr.Dataset:
+    """An invented radar-style rain grid (CF NetCDF, longitude-latitude, 5-minute steps).
+
+    The observed event's intensities, with a storm cell crossing the valley from west to east:
+    up to 1.6 times the event under the cell, 0.5 times far from it, and +-10 % noise per cell.
+    Each time marks the end of its step (CF time bounds say so).
+    """
+    rng = np.random.default_rng(RAIN_GRID_STATE)
+    d = RAIN_GRID_DEG
+    west, south, east, north = subs.to_crs("EPSG:4326").total_bounds
+    x0, y0 = np.floor(west / d) * d - 2 * d, np.floor(south / d) * d - 2 * d
+    lon = np.round(x0 + d * (np.arange(int(np.ceil((east - x0) / d)) + 2) + 0.5), 6)
+    lat = np.round(y0 + d * (np.arange(int(np.ceil((north - y0) / d)) + 2) + 0.5), 6)
+    glon, glat = np.meshgrid(lon, lat)
+    base = np.array(OBSERVED_MM_PER_H)
+    track = np.linspace(west - 0.01, east + 0.01, base.size)
+    frames = []
+    for k, level in enumerate(base):
+        dist2 = ((glon - track[k]) / 0.012) ** 2 + ((glat - (south + north) / 2) / 0.008) ** 2
+        field = level * (0.5 + 1.1 * np.exp(-dist2 / 2)) * rng.uniform(0.9, 1.1, glon.shape)
+        frames.append(np.round(field, 1))
+    minutes = 5.0 * np.arange(1, base.size + 1)
+    ds = xr.Dataset(
+        {"rain_rate": (("time", "lat", "lon"), np.array(frames, dtype=np.float32),
+                       {"units": "mm h-1", "long_name": f"rain rate, invented for {TOWN}"}),
+         "time_bnds": (("time", "nv"), np.column_stack([minutes - 5.0, minutes]))},
+        coords={"time": ("time", minutes, {"units": f"minutes since {RAIN_GRID_START}",
+                                           "standard_name": "time", "bounds": "time_bnds"}),
+                "lat": ("lat", lat, {"units": "degrees_north", "standard_name": "latitude"}),
+                "lon": ("lon", lon, {"units": "degrees_east", "standard_name": "longitude"})},
+        attrs={"Conventions": "CF-1.8",
+               "title": f"invented demo rain grid for {TOWN}; not real data"})
+    return ds
+
+
+def write_rain_grid(path: Path, ds: xr.Dataset) -> None:
+    """The rain grid as NetCDF-4 (deflated), written to a temporary and moved into place."""
+    partial = path.with_name(f".{path.name}.partial")
+    ds.to_netcdf(partial, encoding={"rain_rate": {"zlib": True, "complevel": 4}})
+    partial.replace(path)
 #: Three invented rain gauges of the town (id, x, y in the demo CRS) for the gauged event.
 GAUGES = (("mill", 537600.0, 4381300.0), ("school", 539000.0, 4381900.0),
           ("farm", 540050.0, 4380450.0))
@@ -503,6 +554,14 @@ combine = "units"
 # for the invented town (a 2-, 10- and 100-year 24-hour depth); use your agency's values.
 {design_storms}
 
+# A rain grid: an invented radar-style NetCDF (CF conventions, longitude-latitude cells of
+# 0.005 degrees, 5-minute rain rates in mm/h, times read from the file). Each subcatchment
+# gets the exact area-weighted mean of the cells over it (layer rain_weights).
+[[storms]]
+name = "radar_event"
+kind = "rain_grid"
+path = "storms/radar_event.nc"
+variable = "rain_rate"
 # An observed event seen by three rain gauges: each subcatchment gets its own areal rain
 # (Thiessen polygons, exact polygon intersection); weighting = "inverse_distance" (with
 # power = 2) weighs each polygon's centroid instead; fill_gaps = true fills a gap in one gauge's
@@ -544,6 +603,7 @@ def main() -> None:
     cover = make_cover(rng, shape, frame_cover)
     (HERE / "storms").mkdir(exist_ok=True)
     (HERE / "storms" / "observed_event.csv").write_text(observed_event_csv(rng), newline="\n")
+    write_rain_grid(HERE / "storms" / "radar_event.nc", rain_grid_dataset(subs))
     (HERE / "storms" / "gauge_records.csv").write_text(gauge_records_csv(), newline="\n")
     (HERE / "storms" / "gauges.gpkg").unlink(missing_ok=True)
     gauge_layer().to_file(HERE / "storms" / "gauges.gpkg", layer="gauges", driver="GPKG",

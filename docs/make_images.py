@@ -21,7 +21,8 @@ IMAGES = ROOT / "docs" / "images"
 STORM = "nrcs_ii_24h_10yr_90mm"
 COPIES = {f"runoff_depth_{STORM}.png": "demo_runoff_depth_map.png",
           f"cell_runoff_depth_{STORM}.png": "demo_cell_runoff_depth.png",
-          "infiltration_observed_event_kv_055.png": "demo_infiltration_plot.png"}
+          "infiltration_observed_event_kv_055.png": "demo_infiltration_plot.png",
+          "rain_depth_gauged_event.png": "demo_rain_depth_map.png"}
 CHROMIUM = ("/usr/bin/chromium", "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
             "--disable-background-networking", "--disable-component-update", "--disable-sync",
             "--proxy-server=http://127.0.0.1:9", "--host-resolver-rules=MAP * ~NOTFOUND")

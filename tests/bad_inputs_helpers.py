@@ -14,12 +14,15 @@ from typing import Any
 import geopandas as gpd
 import numpy as np
 import rasterio
+import xarray as xr
+from pyproj import CRS as _CRS
 from rasterio.transform import from_origin
 from shapely.geometry import box
 
 from gisrun.cli.main import main
 
 CRS = "EPSG:32617"
+CRS_CF = _CRS(CRS).to_cf()
 #: South-west corner of the tiny grid (UTM 17N, on the central meridian; invented location).
 X0, Y0 = 500_000.0, 4_000_000.0
 
@@ -76,6 +79,27 @@ def write_raster(path: Path, codes: np.ndarray, *, crs: str | None = CRS,
         profile["crs"] = crs
     with rasterio.open(path, "w", **profile) as dst:
         dst.write(codes, 1)
+    return path
+
+
+def write_rain_grid(path: Path, *, width_m: float = 100.0, minutes: list[float] | None = None,
+                    time_units: str = "minutes since 2026-07-01 00:00:00",
+                    units: str = "mm h-1", nodata_at: tuple[int, int, int] | None = None
+                    ) -> Path:
+    """A CF NetCDF rain grid (xarray) of 25 m cells over the tiny project, ``width_m`` wide."""
+    minutes = [5.0, 10.0, 15.0] if minutes is None else minutes
+    x = X0 + 12.5 + 25.0 * np.arange(int(width_m // 25))
+    y = Y0 + 100.0 - 12.5 - 25.0 * np.arange(4)
+    values = np.full((len(minutes), y.size, x.size), 10.0)
+    if nodata_at is not None:
+        values[nodata_at] = np.nan
+    ds = xr.Dataset(
+        {"precip": (("time", "y", "x"), values, {"units": units, "grid_mapping": "crs"})},
+        coords={"time": ("time", np.array(minutes), {"units": time_units}),
+                "y": ("y", y, {"standard_name": "projection_y_coordinate"}),
+                "x": ("x", x, {"standard_name": "projection_x_coordinate"})})
+    ds["crs"] = ((), 0, CRS_CF)
+    ds.to_netcdf(path)
     return path
 
 

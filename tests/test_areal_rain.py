@@ -6,6 +6,7 @@ uniform storm's results exactly (issue acceptance: exact equality of the GeoPack
 """
 
 import dataclasses
+import re
 from pathlib import Path
 from types import SimpleNamespace
 
@@ -193,7 +194,10 @@ def test_areal_storm_gets_a_rain_map_and_weights_in_run_info(demo, tmp_path):
     made = write_extras(result, gpkg, options=ExtrasOptions(rasters=False))
     key = f"rain_depth_{result.storms[0].file_stem}"
     assert made.maps[key].is_file() and made.maps[key].stat().st_size > 10_000
-    assert "Rain depth per subcatchment" in made.report.read_text(encoding="utf-8")
+    report = made.report.read_text(encoding="utf-8")
+    assert "Rain depth per subcatchment" in report
+    # the sources table: the one invented gauge carries the whole basin (share 1)
+    assert re.search(r"<td>g1</td><td[^>]*>85</td><td[^>]*>1</td>", report), report[:0]
     info = pyogrio.read_dataframe(gpkg, layer="run_info")
     assert "one invented gauge" in info.loc[info["key"] == "areal_rain", "value"].iloc[0]
 

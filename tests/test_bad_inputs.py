@@ -34,6 +34,7 @@ from bad_inputs_helpers import (
     soil_codes,
     square,
     warning_lines,
+    write_rain_grid,
     write_raster,
     write_subcatchments,
 )
@@ -115,6 +116,16 @@ def _add_storm(name: str) -> Callable[[Path], None]:
         with open(d / "gisrun.toml", "a") as handle:
             handle.write(f'\n[[storms]]\nname = "{name}"\nkind = "uniform"\ndepth = 5\n'
                          'duration_min = 60\n')
+    return add
+
+
+def _rain_grid(toml: str = "", **kw: object) -> Callable[[Path], None]:
+    """A second storm from a rain grid ``rain.nc`` written with ``write_rain_grid(**kw)``."""
+    def add(d: Path) -> None:
+        write_rain_grid(d / "rain.nc", **kw)
+        with open(d / "gisrun.toml", "a") as handle:
+            handle.write(f'\n[[storms]]\nname = "radar"\nkind = "rain_grid"\npath = "rain.nc"\n'
+                         f"{toml}")
     return add
 
 
@@ -298,6 +309,26 @@ CASES: dict[str, Case] = {
     "storm names that differ only in punctuation": Case(
         _add_storm("steady!"),
         re.compile(r"\[\[storms\]\].*'steady' and 'steady!'.*'runoff_steady'")),
+    "rain grid not covering a subcatchment": Case(
+        _rain_grid(width_m=50.0), re.compile(r"rain\.nc:precip: does not cover subcatchment "
+                                             r"'S2' \(100\.0% of 'S2'")),
+    "rain grid with an unknown time unit": Case(
+        _rain_grid(time_units="fortnights since 2026-07-01"),
+        re.compile(r"rain\.nc:time: time units 'fortnights since 2026-07-01' are not "
+                   r"understood")),
+    "rain grid step not the stated one": Case(
+        _rain_grid("step_min = 10\n"),
+        re.compile(r"rain\.nc:precip: has a step of 5 min but the project file says "
+                   r"step_min = 10")),
+    "rain grid with an irregular step": Case(
+        _rain_grid(minutes=[5.0, 10.0, 20.0]),
+        re.compile(r"rain\.nc:precip: has an irregular time step: 5 min at first, 10 min")),
+    "rain grid with nodata over a subcatchment": Case(
+        _rain_grid(nodata_at=(1, 2, 3)),
+        re.compile(r"rain\.nc:precip: has no rain value \(nodata\) at time "
+                   r"2026-07-01T00:10:00 in cell r2_c3 used by subcatchment 'S2'")),
+    "rain grid in an unknown unit": Case(
+        _rain_grid(units="furlongs"), re.compile(r"rain\.nc:precip: rain unit 'furlongs'")),
     # --- parameter overrides ------------------------------------------------------------------
     "zero conductivity": Case(_with_overrides("soil_class,ks_mm_per_h\nA,0\n"),
                               re.compile(r"over\.csv:line 2:ks_mm_per_h")),

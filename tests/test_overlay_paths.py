@@ -14,7 +14,7 @@ import shapely
 from numpy.testing import assert_allclose
 from shapely.geometry import MultiPolygon, Polygon, box
 
-from gisrun.grid.coverage import cell_coverage
+from gisrun.grid.coverage import _running_sums, cell_coverage, cell_increments
 from gisrun.grid.dense_sums import dense_chunk_sums, dense_eligible
 from gisrun.grid.fine_grid import FineGrid
 from gisrun.grid.overlay import compute_unit_areas
@@ -47,14 +47,14 @@ def soil(geotiff):
 
 
 def in_grid(geoms, grid):
+    """The polygons in grid coordinates, their boxes (r0, r1, c0, c1) and areas in cells."""
     t = grid.t
     px = shapely.transform(np.asarray(geoms, dtype=object), lambda xy: np.column_stack(
         ((xy[:, 0] - t.c) / t.a, (xy[:, 1] - t.f) / t.e)))
-    px = shapely.orient_polygons(px)
     b = shapely.bounds(px)
     box_ = np.column_stack([np.floor(b[:, 1]), np.ceil(b[:, 3]), np.floor(b[:, 0]),
                             np.ceil(b[:, 2])]).astype(np.int64)
-    return px, box_
+    return px, box_, shapely.area(px), shapely.length(px) + shapely.get_num_coordinates(px)
 
 
 def test_unit_areas_of_both_paths_equal_shapely_intersections(soil):
@@ -72,19 +72,25 @@ def test_unit_areas_of_both_paths_equal_shapely_intersections(soil):
 def test_thin_diagonal_takes_the_sparse_path_and_compact_shapes_the_dense_one(soil):
     _, raster = soil
     grid = FineGrid.build(raster, None, SOIL, None, [])
-    px, box_ = in_grid(shapes(), grid)
-    assert dense_eligible(px, box_, chunk_cells=4_000_000).tolist() == [
+    _, box_, area, edges = in_grid(shapes(), grid)
+    assert dense_eligible(area, box_, 4_000_000, edges).tolist() == [
         True, True, False, False, True, True]  # the two parts' box is mostly empty, too
     # no block above the budget: only the one-cell polygon's 2 x 3 block fits in 60 cells
-    assert dense_eligible(px, box_, chunk_cells=60).tolist() == [False] * 5 + [True]
+    assert dense_eligible(area, box_, 60, edges).tolist() == [False] * 5 + [True]
+    # with few edges for its area (here: counted as none) a compact polygon takes the sparse path
+    assert not dense_eligible(area, box_, 4_000_000, 0 * edges).any()
 
 
 @pytest.mark.parametrize("chunk_cells", [4_000_000, 900])
-def test_dense_and_sparse_sums_agree(soil, chunk_cells):
+@pytest.mark.parametrize("exterior_cw", [True, False])
+def test_dense_and_sparse_sums_agree(soil, chunk_cells, exterior_cw):
     _, raster = soil
     grid = FineGrid.build(raster, None, SOIL, None, [])
-    px, box_ = in_grid(shapes(), grid)
-    dense = dense_chunk_sums(px, box_, grid, chunk_cells)
+    px, box_, _, _ = in_grid(shapes(), grid)
+    t = grid.t
+    world = shapely.orient_polygons(np.asarray(shapes(), dtype=object), exterior_cw=exterior_cw)
+    dense = dense_chunk_sums(world, box_, grid, chunk_cells, to_grid=(t.c, t.a, t.f, t.e))
+    assert_allclose(dense_chunk_sums(px, box_, grid, chunk_cells), dense, rtol=1e-12, atol=1e-12)
     r0, r1, c0, c1 = box_[:, 0].min(), box_[:, 1].max(), box_[:, 2].min(), box_[:, 3].max()
     cov = cell_coverage(px, origin=(float(c0), float(r0)))
     sparse = sparse_chunk_sums(cov, grid, len(px), (int(r0), int(r1), int(c0), int(c1)),
@@ -92,3 +98,21 @@ def test_dense_and_sparse_sums_agree(soil, chunk_cells):
     assert dense.shape == sparse.shape
     assert_allclose(dense, sparse, rtol=1e-12, atol=1e-12)
     assert dense[:, 0].sum() > 0  # the overhanging polygon has cells outside the raster
+
+
+@pytest.mark.parametrize("e", [-CELL, CELL])  # north-up and south-up grids
+@pytest.mark.parametrize("exterior_cw", [True, False])
+def test_increments_read_in_map_coordinates_give_the_grid_coordinates_coverage(e, exterior_cw):
+    world = shapely.orient_polygons(np.asarray(shapes(), dtype=object), exterior_cw=exterior_cw)
+    to_grid = (X0, CELL, Y0, e)
+    px = shapely.transform(world, lambda xy: np.column_stack(
+        ((xy[:, 0] - X0) / CELL, (xy[:, 1] - Y0) / e)))
+    ref = cell_coverage(px)
+    got = _running_sums(*cell_increments(world, to_grid=to_grid), n_poly=len(px))
+    for name in ("poly", "row", "col", "run_poly", "run_row", "run_start", "run_stop"):
+        assert np.array_equal(getattr(got, name), getattr(ref, name)), name
+    assert_allclose(got.fraction, ref.fraction, rtol=0, atol=1e-12)
+    assert_allclose(got.run_weight, ref.run_weight, rtol=0, atol=1e-12)
+    areas = np.bincount(got.poly, got.fraction, minlength=len(px)) + np.bincount(
+        got.run_poly, got.run_weight * (got.run_stop - got.run_start), minlength=len(px))
+    assert_allclose(areas, shapely.area(px), rtol=1e-12)  # shapely, the reference library

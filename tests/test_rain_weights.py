@@ -14,12 +14,15 @@ import geopandas as gpd
 import numpy as np
 import pytest
 import shapely
+import xarray as xr
 from affine import Affine
 from pyproj import CRS, Geod, Transformer
 from shapely.geometry import box
 
 from gisrun.errors import GisrunError
 from gisrun.grid.rain_weights import authalic_q, rain_grid_weights, row_cell_areas_m2
+from gisrun.io.rain_grid import RainGridSettings, open_rain_grid
+from gisrun.storm import weighted_mean
 from gisrun.storm.gridded import grid_areal_depth
 
 UTM = "EPSG:32617"
@@ -85,6 +88,8 @@ def test_areal_depth_is_the_weighted_mean_and_exact_for_a_uniform_grid():
     assert depth[0, 0] == pytest.approx(37500 / 15000, rel=1e-12)
     assert depth[0, 1] == pytest.approx(5.0, rel=1e-12)  # the plain mean of 1..9
     assert np.all(depth[1] == 0.0007)
+    # block by block, the same numbers as the areal-rain plumbing's weighted mean
+    assert np.array_equal(depth, weighted_mean(values.reshape(2, -1)[:, w.cells], w.matrix))
 
 
 def test_a_subcatchment_beyond_the_grid_is_an_error_naming_it():
@@ -108,8 +113,8 @@ def test_nodata_in_a_used_cell_is_an_error_naming_the_subcatchment_and_time():
 
 
 def test_authalic_q_matches_pyproj_cylindrical_equal_area():
-    # Snyder (1987) eq. 10-15: the ellipsoidal cylindrical equal-area northing is a q / 2
-    # (k0 = 1); pyproj's "cea" computes it independently.
+    # Snyder (1987), ch. 10 (eq. 10-15, number from memory): the ellipsoidal cylindrical
+    # equal-area northing is a q / 2 (k0 = 1); pyproj's "cea" computes it independently.
     lat = np.array([-89.0, -45.0, 0.0, 12.5, 45.0, 60.0, 89.9])
     cea = Transformer.from_crs(WGS84, CRS("+proj=cea +ellps=WGS84 +lat_ts=0"), always_xy=True)
     _, y = cea.transform(np.zeros_like(lat), lat)
@@ -184,10 +189,29 @@ def lonlat_case() -> tuple[gpd.GeoSeries, ArrayGrid, np.ndarray]:
     return geoms, grid, brute_force_means(geoms, grid)
 
 
-def test_lonlat_grid_means_match_brute_force_intersections(lonlat_case):
+def write_cf_netcdf(path, grid: ArrayGrid) -> None:
+    """The grid as a CF NetCDF written with xarray: lat/lon cell centres, CF time, mm."""
+    t = grid.transform
+    lon = t.c + t.a * (np.arange(grid.width) + 0.5)
+    lat = t.f + t.e * (np.arange(grid.height) + 0.5)  # ascending: rows run south-up
+    ds = xr.Dataset(
+        {"rain": (("time", "lat", "lon"), grid.values * 1000.0, {"units": "mm"})},
+        coords={"lat": ("lat", lat, {"units": "degrees_north", "standard_name": "latitude"}),
+                "lon": ("lon", lon, {"units": "degrees_east", "standard_name": "longitude"})})
+    ds["time"] = ("time", [30.0, 60.0], {"units": "minutes since 2026-07-14 15:00:00"})
+    ds.to_netcdf(path)
+
+
+def test_lonlat_netcdf_means_match_brute_force_intersections(lonlat_case, tmp_path):
+    # Issue 19 acceptance: a NetCDF written here with xarray (CF time, lat/lon grid), read by
+    # gisrun, gives per-subcatchment areal means within 1e-6 of the brute force.
     geoms, grid, expected = lonlat_case
-    w = rain_grid_weights(geoms, ["A", "B", "C"], grid)
-    got = grid_areal_depth(w, grid)
+    write_cf_netcdf(tmp_path / "rain.nc", grid)
+    stack = open_rain_grid(RainGridSettings(tmp_path / "rain.nc"))
+    assert stack.crs.equals(WGS84) and stack.step_s == 1800.0
+    np.testing.assert_allclose(stack.transform.to_gdal(), grid.transform.to_gdal(), atol=1e-12)
+    w = rain_grid_weights(geoms, ["A", "B", "C"], stack)
+    got = grid_areal_depth(w, stack)
     np.testing.assert_allclose(got, expected, rtol=1e-6)
 
 

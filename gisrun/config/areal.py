@@ -27,6 +27,7 @@ from ..crs import ground_areas
 from ..storm import ArealRain, Hyetograph, areal_storm
 from ..units import UnitSystem
 from .gauges import GAUGE_FILE_KEYS, GAUGE_KEYS, GAUGE_REQUIRED, build_gauges
+from .rain_grid import RAIN_GRID_KEYS, build_rain_grid
 from .reader import TableReader
 
 __all__ = ["ArealKind", "AREAL_KINDS", "build_areal_storm", "ArealBuilder"]
@@ -53,6 +54,8 @@ class ArealKind:
 
 #: Kinds of areal rain, by the ``kind`` a ``[[storms]]`` table names.
 AREAL_KINDS: dict[str, ArealKind] = {
+    "rain_grid": ArealKind(keys=RAIN_GRID_KEYS, required=("path",), file_keys=("path",),
+                           build=build_rain_grid, default_name="rain_grid"),
     "gauges": ArealKind(GAUGE_KEYS, GAUGE_REQUIRED, GAUGE_FILE_KEYS, build_gauges,
                         default_name="gauges"),
 }

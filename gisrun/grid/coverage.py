@@ -83,9 +83,20 @@ def cell_coverage(geoms: NDArray[Any], origin: tuple[float, float] = (0.0, 0.0))
     return _running_sums(p, r, c, acc, n_poly=len(geoms))
 
 
-def cell_increments(geoms: NDArray[Any], origin: tuple[float, float] = (0.0, 0.0)
+def cell_increments(geoms: NDArray[Any], origin: tuple[float, float] = (0.0, 0.0), *,
+                    to_grid: tuple[float, float, float, float] | None = None
                     ) -> tuple[NDArray[Any], ...]:
     """The increments of :func:`cell_coverage` before they are summed (grid coordinates).
+
+    Parameters
+    ----------
+    geoms, origin
+        As for :func:`cell_coverage`.
+    to_grid : (c, a, f, e), optional
+        When given, ``geoms`` are in map coordinates and each vertex goes to grid
+        coordinates ``((x - c) / a, (y - f) / e)`` here (no moved copy of the
+        polygons is made), and rings may come in either orientation: each
+        ring's is read (``shapely.is_ccw``) and its edges turned when needed.
 
     Returns
     -------
@@ -96,20 +107,43 @@ def cell_increments(geoms: NDArray[Any], origin: tuple[float, float] = (0.0, 0.0
         Added up per cell in the order given, then run along each row of each
         polygon, they give the covered share of every cell of the row.
     """
-    x0, y0, x1, y1, poly = _edges(geoms, origin)
+    x0, y0, x1, y1, poly = _edges(geoms, origin, to_grid)
     return _cell_increments(*_row_pieces(x0, y0, x1, y1, poly))
 
 
-def _edges(geoms: NDArray[Any], origin: tuple[float, float]) -> tuple[NDArray[Any], ...]:
-    geoms = shapely.orient_polygons(np.asarray(geoms, dtype=object), exterior_cw=True)
+def _edges(geoms: NDArray[Any], origin: tuple[float, float],
+           to_grid: tuple[float, float, float, float] | None = None) -> tuple[NDArray[Any], ...]:
+    geoms = np.asarray(geoms, dtype=object)
+    if to_grid is None:
+        geoms = shapely.orient_polygons(geoms, exterior_cw=True)
     parts, part_poly = shapely.get_parts(geoms, return_index=True)
     rings, ring_part = shapely.get_rings(parts, return_index=True)
     xy, ring_of = shapely.get_coordinates(rings, return_index=True)
+    if to_grid is not None:
+        c, a, f, e = to_grid
+        xy = np.column_stack(((xy[:, 0] - c) / a, (xy[:, 1] - f) / e))
     xy = xy - np.asarray(origin, dtype=np.float64)
     same = ring_of[1:] == ring_of[:-1]
     a, b = xy[:-1][same], xy[1:][same]
-    poly = part_poly[ring_part[ring_of[:-1][same]]]
+    ring = ring_of[:-1][same]
+    if to_grid is not None:
+        turn = _turned_rings(rings, ring_part, flips=to_grid[1] * to_grid[3] < 0)[ring]
+        if turn.any():
+            a, b = np.where(turn[:, None], b, a), np.where(turn[:, None], a, b)
+    poly = part_poly[ring_part[ring]]
     return a[:, 0], a[:, 1], b[:, 0], b[:, 1], poly.astype(np.int64)
+
+
+def _turned_rings(rings: NDArray[Any], ring_part: NDArray[Any], flips: bool
+                  ) -> NDArray[np.bool_]:
+    """Rings that run the wrong way in grid coordinates (exteriors must run clockwise).
+
+    ``flips``: the map-to-grid transform mirrors the plane (one axis reversed),
+    which turns every ring's direction.
+    """
+    ccw = shapely.is_ccw(rings) != flips
+    exterior = np.r_[True, ring_part[1:] != ring_part[:-1]]  # the first ring of each part
+    return np.where(exterior, ccw, ~ccw)
 
 
 def _row_pieces(x0: NDArray[Any], y0: NDArray[Any], x1: NDArray[Any], y1: NDArray[Any],

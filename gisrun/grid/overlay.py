@@ -125,7 +125,7 @@ def compute_unit_areas(subcatchments: gpd.GeoDataFrame, soil: ClassGrid,
     grid = _Grid.build(soil, cover, soil_codes, cover_codes, notes)
     ids = subcatchments["subcatchment_id"].astype(str).to_numpy()
     ground = ground_areas(subcatchments.geometry)
-    geoms = _to_grid_crs(subcatchments.geometry, grid.crs, notes)
+    geoms = _in_grid_crs(subcatchments.geometry, grid.crs, notes)
     sums = _class_sums(geoms, grid, chunk_cells)  # (poly, class, cell units) triples
     units, coverage = _finish(ids, ground.area_m2, sums, grid, nodata_rule,
                               max_nodata_fraction, notes)
@@ -141,6 +141,11 @@ def _check_options(rule: str, fraction: float) -> None:
 
 
 def _to_grid_crs(geoms: gpd.GeoSeries, crs: CRS, notes: list[str]) -> NDArray[Any]:
+    return shapely.orient_polygons(_in_grid_crs(geoms, crs, notes))
+
+
+def _in_grid_crs(geoms: gpd.GeoSeries, crs: CRS, notes: list[str]) -> NDArray[Any]:
+    """The polygons in the grid's CRS (the same objects when it is theirs already)."""
     if geoms.crs is None:
         raise CRSError("subcatchments", "have no CRS", "state the layer's CRS in the project file")
     if not CRS.from_user_input(geoms.crs).equals(crs):
@@ -148,29 +153,43 @@ def _to_grid_crs(geoms: gpd.GeoSeries, crs: CRS, notes: list[str]) -> NDArray[An
                      f"to the raster CRS {crs.name} for the overlay; unit areas scaled so each "
                      "subcatchment keeps its ground area")
         geoms = geoms.to_crs(crs)
-    return shapely.orient_polygons(geoms.to_numpy())
+    return geoms.to_numpy()
 
 
 def _class_sums(geoms: NDArray[Any], grid: _Grid, chunk_cells: int) -> tuple[NDArray[Any], ...]:
-    """(polygon, class, area in cell units or m2) for every non-zero pair."""
+    """(polygon, class, area in cell units or m2) for every non-zero pair.
+
+    ``geoms`` are in the grid's CRS, rings in any orientation; they go to grid
+    coordinates vertex by vertex as they are summed, with no moved copy kept.
+    """
     t = grid.t
-    px = shapely.transform(geoms, lambda xy: np.column_stack(((xy[:, 0] - t.c) / t.a,
-                                                               (xy[:, 1] - t.f) / t.e)))
-    b = shapely.bounds(px)
-    box = np.column_stack([np.floor(b[:, 1]), np.ceil(b[:, 3]), np.floor(b[:, 0]),
-                           np.ceil(b[:, 2])]).astype(np.int64)  # r0, r1, c0, c1
-    dense = dense_eligible(px, box, chunk_cells)
+    b = shapely.bounds(geoms)
+    xs, ys = (b[:, [0, 2]] - t.c) / t.a, (b[:, [1, 3]] - t.f) / t.e  # each exact per vertex
+    box = np.column_stack([np.floor(ys.min(axis=1)), np.ceil(ys.max(axis=1)),
+                           np.floor(xs.min(axis=1)), np.ceil(xs.max(axis=1))]).astype(np.int64)
+    edges = shapely.length(geoms) / abs(t.a * t.e) ** 0.5 + shapely.get_num_coordinates(geoms)
+    dense = dense_eligible(shapely.area(geoms) / abs(t.a * t.e), box, chunk_cells, edges)
+    to_grid = (t.c, t.a, t.f, t.e)
+    centres = _grid_coords(shapely.centroid(geoms), t)
     out: list[tuple[NDArray[Any], ...]] = []
-    for idx in _compact_chunks(px, box, chunk_cells):
+    for idx in _compact_chunks(centres, box, chunk_cells):
         local = np.zeros((idx.size, grid.n_classes))
         on, off = np.flatnonzero(dense[idx]), np.flatnonzero(~dense[idx])
         if on.size:
-            local[on] = dense_chunk_sums(px[idx[on]], box[idx[on]], grid, chunk_cells)
+            local[on] = dense_chunk_sums(geoms[idx[on]], box[idx[on]], grid, chunk_cells,
+                                         to_grid=to_grid)
         if off.size:
-            local[off] = _sparse_sums(px[idx[off]], box[idx[off]], grid, chunk_cells)
+            local[off] = _sparse_sums(_grid_coords(geoms[idx[off]], t), box[idx[off]], grid,
+                                      chunk_cells)
         poly, cls = np.nonzero(local)
         out.append((idx[poly], cls, local[poly, cls]))
     return tuple(np.concatenate(parts) for parts in zip(*out, strict=True))
+
+
+def _grid_coords(geoms: NDArray[Any], t: Any) -> NDArray[Any]:
+    """Geometries moved to grid coordinates (column, row) of the transform ``t``."""
+    return shapely.transform(geoms, lambda xy: np.column_stack(((xy[:, 0] - t.c) / t.a,
+                                                                 (xy[:, 1] - t.f) / t.e)))
 
 
 def _sparse_sums(px: NDArray[Any], box: NDArray[np.int64], grid: _Grid, chunk_cells: int

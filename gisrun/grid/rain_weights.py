@@ -25,8 +25,10 @@ with an error naming it.
 References
 ----------
 Snyder, J. P. (1987). Map Projections: A Working Manual. USGS Professional Paper 1395,
-eq. 3-12 (the authalic function ``q``) and eq. 10-15 (cylindrical equal-area, ``y = a k0 q /
-2``).
+eq. 3-12, p. 16 (the authalic function ``q``; equation number and page confirmed in public
+copies that cite it), and ch. 10, the ellipsoidal cylindrical equal-area projection ``y = a k0
+q / 2`` (equation number from memory: eq. 10-15); the tests check ``q`` against pyproj's
+``cea`` projection.
 """
 
 from __future__ import annotations
@@ -155,7 +157,7 @@ def polygons_on_grid(geoms: gpd.GeoSeries, grid: RainGridGeometry) -> NDArray[An
         raise CRSError(grid.where, "has a rotated grid", "give a grid whose rows run east-west")
     shapes = np.asarray(geoms, dtype=object)
     src = CRS.from_user_input(geoms.crs)
-    if not src.equals(grid.crs):
+    if not src.equals(grid.crs) or grid.crs.is_geographic:  # edges curve in (lon, q) too
         shapes = _reprojected(shapes, src, grid.crs)
     if not grid.crs.is_geographic:
         return shapely.transform(shapes, lambda xy: np.column_stack(

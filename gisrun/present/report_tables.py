@@ -77,7 +77,38 @@ def storms_table(result: RunResult) -> str:
              "total_depth_m": s.hyetograph.total_depth_m,
              "peak_intensity_m_per_s": s.hyetograph.peak_intensity_m_per_s}
             for s in result.storms]
-    return table(display_frame(pd.DataFrame(rows), result.project.units))
+    return (table(display_frame(pd.DataFrame(rows), result.project.units))
+            + rain_sources(result))
+
+
+def rain_sources(result: RunResult) -> str:
+    """For storms of areal rain: each source's subcatchments and share of the basin's rain.
+
+    The share is the source's weight averaged over the subcatchments by area; every weight is
+    in the ``rain_weights`` layer.
+    """
+    area = result.coverage.set_index("subcatchment_id")["area_m2"]
+    frames = []
+    for storm in result.storms:
+        areal = storm.hyetograph.areal
+        if areal is None:
+            continue
+        w = areal.weights.assign(area=area.reindex(areal.weights["subcatchment_id"]).to_numpy())
+        w = w[w["weight"] > 0]
+        frames.append(pd.DataFrame({
+            "storm": storm.name,
+            "source": w.groupby("source_id", sort=True).size().index,
+            "subcatchments": w.groupby("source_id", sort=True).size().to_numpy(),
+            "share_of_basin": (w["weight"] * w["area"]).groupby(w["source_id"], sort=True)
+            .sum().to_numpy() / float(area.sum())}))
+    if not frames:
+        return ""
+    sources = "; ".join(f"{s.name}: {s.hyetograph.areal.source}" for s in result.storms
+                        if s.hyetograph.areal is not None)
+    return (f"<p>Rain per subcatchment ({esc(sources)}): each source's subcatchments and its "
+            "area-weighted share of the basin's rain (every weight is in the "
+            "<code>rain_weights</code> layer).</p>"
+            + table(display_frame(pd.concat(frames, ignore_index=True), result.project.units)))
 
 
 def catchment_rows(result: RunResult) -> pd.DataFrame:

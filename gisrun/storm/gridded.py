@@ -7,9 +7,10 @@ steps, so memory holds one block, and gives each subcatchment the area-weighted 
 cells over its polygon: one sparse product per block with the weights of
 :func:`gisrun.grid.rain_weights.rain_grid_weights`.
 
-The mean of a block is taken as ``min + W (x - min)`` with the smallest value of the cells
-used in each step, so a grid whose cells all hold the same depth gives exactly that depth to
-every subcatchment, whatever the rounding of the weights.
+The mean of a block is :func:`gisrun.storm.areal.weighted_mean`'s, ``min + W (x - min)`` with
+the smallest value of the cells used in each step (computed here in the sparse product's own
+layout, subcatchments x steps, to spare a transpose): a grid whose cells all hold the same depth
+gives exactly that depth to every subcatchment, whatever the rounding of the weights.
 
 Rainfall feeds planning-level runoff estimates only; defer to local codes, agency methods and a
 licensed engineer.
@@ -17,7 +18,7 @@ licensed engineer.
 
 from __future__ import annotations
 
-from typing import Any, Protocol
+from typing import Protocol
 
 import numpy as np
 from numpy.typing import NDArray
@@ -96,20 +97,6 @@ def _block_means(weights: RainGridWeights, grid: RainGrid, first: int, stop: int
     means = np.asarray(weights.matrix @ cells_by_step)
     means += low
     return means
-
-
-def weighted_means(values: NDArray[np.float64], matrix: Any) -> NDArray[np.float64]:
-    """``min + (x - min) @ W.T`` per step: exact for identical cells, never below the least.
-
-    Examples
-    --------
-    >>> from scipy import sparse
-    >>> w = sparse.csr_array(np.array([[0.1, 0.2, 0.7], [1 / 3, 1 / 3, 1 / 3]]))
-    >>> weighted_means(np.full((1, 3), 0.3), w).tolist()  # 0.3 * (0.1 + 0.2 + 0.7) != 0.3
-    [[0.3, 0.3]]
-    """
-    low = values.min(axis=1, keepdims=True)
-    return low + np.asarray(matrix @ (values - low).T).T
 
 
 def _check_values(values: NDArray[np.float64], weights: RainGridWeights, grid: RainGrid,

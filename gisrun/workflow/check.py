@@ -96,6 +96,8 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str],
     impervious = _attempt(problems, read_impervious_grid, project)
     if subs is not None and storms is not None:
         outputs += output_lines(project, len(subs), storms)
+        outputs += [f"storm {h.name!r}: rain per subcatchment from {h.areal.source}"
+                    for h in storms if h.areal is not None]
     if subs is not None:
         _attempt(problems, check_overlaps, project, subs)
         if storms is not None:

@@ -1,0 +1,98 @@
+"""A storm from a rain grid (``kind = "rain_grid"``), run through the whole program.
+
+Acceptance (issue 19): a uniform grid gives exactly the uniform storm's results (every output
+table equal, bit for bit); the grid's weights reach the output's weights layer.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyogrio
+import pytest
+import xarray as xr
+from bad_inputs_helpers import make_project, run_cli, write_rain_grid
+
+from gisrun import load_project, read_inputs, run, write_outputs
+from gisrun.config.storms import storm_from_config
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
+
+
+def write_uniform_grid(path: Path, depth_m: np.ndarray, bounds: tuple[float, ...]) -> Path:
+    """A lon/lat CF NetCDF whose cells all hold ``depth_m[k]`` (m per 5-minute step)."""
+    west, south, east, north = bounds
+    lon = np.arange(west - 0.01, east + 0.01, 0.004)
+    lat = np.arange(south - 0.01, north + 0.01, 0.003)
+    values = np.broadcast_to(depth_m[:, None, None], (depth_m.size, lat.size, lon.size))
+    ds = xr.Dataset({"rain": (("time", "lat", "lon"), np.array(values), {"units": "m"})},
+                    coords={"lat": ("lat", lat, {"units": "degrees_north"}),
+                            "lon": ("lon", lon, {"units": "degrees_east"})})
+    ds["time"] = ("time", 5.0 * np.arange(1, depth_m.size + 1),
+                  {"units": "minutes since 2026-07-14 15:00:00"})
+    ds.to_netcdf(path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def demo():
+    loaded = load_project(DEMO)
+    project = dataclasses.replace(loaded, storms=tuple(  # the short observed event
+        s for s in loaded.storms if s["name"] == "observed_event"))
+    return project, read_inputs(project)
+
+
+def _layers(path: Path) -> dict[str, pd.DataFrame]:
+    return {name: pyogrio.read_dataframe(path, layer=name)
+            for name, _ in pyogrio.list_layers(path)}
+
+
+def test_a_uniform_grid_gives_exactly_the_uniform_storm(demo, tmp_path):
+    project, inputs = demo
+    h = inputs.storms[0]
+    assert np.all(np.diff(h.time_s) == 300.0)
+    bounds = tuple(inputs.subcatchments.to_crs("EPSG:4326").total_bounds)
+    write_uniform_grid(tmp_path / "uniform.nc", h.depth_m, bounds)
+    storm = storm_from_config({"name": h.name, "kind": "rain_grid", "path": "uniform.nc"},
+                              base_dir=tmp_path, units=project.units, where="t",
+                              subcatchments=inputs.subcatchments)
+    assert storm.areal is not None and np.array_equal(storm.depth_m, h.depth_m)
+    small = dataclasses.replace(project, memory_budget_mb=2.0)  # many chunks
+    plain = write_outputs(run(small, inputs=inputs), output=tmp_path / "plain.gpkg")
+    gridded = write_outputs(run(small, inputs=dataclasses.replace(inputs, storms=(storm,))),
+                            output=tmp_path / "grid.gpkg")
+    before, after = _layers(plain), _layers(gridded)
+    assert set(after) == set(before) | {"rain_weights"}
+    for name, frame in before.items():
+        if name != "run_info":
+            pd.testing.assert_frame_equal(after[name], frame, check_exact=True, obj=name)
+    weights = after["rain_weights"]
+    sums = weights.groupby("subcatchment_id")["weight"].sum()
+    assert len(sums) == len(inputs.subcatchments)
+    np.testing.assert_allclose(sums, 1.0, rtol=1e-9)
+    assert weights["source_id"].str.fullmatch(r"r\d+_c\d+").all()
+
+
+def test_check_names_the_grid_and_run_writes_its_weights(tmp_path, capsys):
+    # The tiny project: S1 and S2 are 50 x 100 m side by side; the grid has 25 m cells, so
+    # each subcatchment covers 2 x 4 whole cells, each weighing 1/8 (by hand).
+    folder = tmp_path / "p"
+    make_project(folder)
+    write_rain_grid(folder / "rain.nc")
+    with open(folder / "gisrun.toml", "a") as handle:
+        handle.write('\n[[storms]]\nname = "radar"\nkind = "rain_grid"\npath = "rain.nc"\n')
+    code, out, err = run_cli(capsys, ["check", str(folder)])
+    assert code == 0, err
+    assert ("storm 'radar': rain per subcatchment from rain grid rain.nc:precip (4 x 4 cells "
+            "of 25 x 25 metre, WGS 84 / UTM zone 17N; 3 steps of 5 min from "
+            "2026-07-01T00:00:00") in out
+    code, out, err = run_cli(capsys, ["run", str(folder), "--no-extras", "--quiet"])
+    assert code == 0, err
+    weights = pyogrio.read_dataframe(folder / "out" / "result.gpkg", layer="rain_weights")
+    assert sorted(weights.groupby("subcatchment_id").size().tolist()) == [8, 8]
+    np.testing.assert_allclose(weights["weight"], 1 / 8, rtol=1e-12)
+    west = set(weights.loc[weights["subcatchment_id"] == "S1", "source_id"])
+    assert west == {f"r{r}_c{c}" for r in range(4) for c in (0, 1)}
