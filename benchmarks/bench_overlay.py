@@ -42,9 +42,8 @@ import sys
 import time
 from pathlib import Path
 
-import numpy as np
-
 import make_inputs as mi
+import numpy as np
 
 HERE = Path(__file__).resolve().parent
 SETS = {  # name -> make_inputs arguments and the folder the files live in

@@ -230,7 +230,8 @@ def print_second_storm(r: dict) -> None:
           f"(fastest of {', '.join(f'{t:.1f}' for t in r['one_storm_s'])} / "
           f"{', '.join(f'{t:.1f}' for t in r['two_storms_s'])})")
     layers = ", ".join(f"{k} {v:.1f}" for k, v in r["storm_rows_floor_by_layer_s"].items())
-    print(f"second storm {r['second_storm_s']:.1f} s; its engine {r['second_storm_engine_s']:.1f} s;"
+    print(f"second storm {r['second_storm_s']:.1f} s; "
+          f"its engine {r['second_storm_engine_s']:.1f} s;"
           f" writing its rows at the floor {r['storm_rows_floor_s']:.1f} s ({layers}); its rows "
           f"in the run {r['second_storm_rows_s']:.1f} s")
     print(f"second storm / (engine + rows floor) = {r['ratio']:.2f} (target <= 1.2)")

@@ -42,13 +42,12 @@ import pyogrio
 import rasterio
 import shapely
 import xarray as xr
+from make_impervious import impervious_percent, write_impervious, write_scenario  # noqa: E402
+from map_units import write_map_units  # noqa: E402  (beside this script)
 from numpy.typing import NDArray
 from rasterio.features import rasterize, shapes
 from rasterio.transform import from_origin
 from scipy.ndimage import gaussian_filter
-
-from make_impervious import impervious_percent, write_impervious, write_scenario  # noqa: E402
-from map_units import write_map_units  # noqa: E402  (beside this script)
 
 HERE = Path(__file__).resolve().parent
 RNG_STATE = 20240611  # fixed state of the random-number generator: same files every run

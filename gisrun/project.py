@@ -69,8 +69,10 @@ class SoilSource:
 
 @dataclass(frozen=True)
 class CoverSource:
-    """The land-cover raster or polygon layer and its code table (or attribute table, as for
-    the soil; see :class:`SoilSource`)."""
+    """The land-cover raster or polygon layer and its code table.
+
+    Or attribute table, as for the soil; see :class:`SoilSource`.
+    """
 
     path: Path
     codes: dict[int, str]

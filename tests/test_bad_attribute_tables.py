@@ -14,8 +14,13 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from bad_inputs_helpers import assert_one_clear_error, edit_toml, make_project, run_cli, \
-    write_raster
+from bad_inputs_helpers import (
+    assert_one_clear_error,
+    edit_toml,
+    make_project,
+    run_cli,
+    write_raster,
+)
 
 GOOD_CSV = "key,hydrologic_soil_group,ks_mm_per_h\n101,A,\n202,B,5.0\n"
 

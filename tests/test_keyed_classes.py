@@ -23,11 +23,11 @@ from bad_inputs_helpers import CRS, X0, Y0, edit_toml, make_project, run_cli  # 
 from conftest import write_geotiff, write_polygons  # noqa: E402
 
 from gisrun import CAUTION, GisrunError, run  # noqa: E402
-from gisrun.present.layers import ponding_ranking  # noqa: E402
-from gisrun.present.report import ReportFigures, build_report  # noqa: E402
 from gisrun.config.project import load_project  # noqa: E402
 from gisrun.io.attribute_tables import read_attribute_table  # noqa: E402
 from gisrun.parameters.class_keys import keyed_classes  # noqa: E402
+from gisrun.present.layers import ponding_ranking  # noqa: E402
+from gisrun.present.report import ReportFigures, build_report  # noqa: E402
 
 GROUPS = {1: "A", 2: "B", 3: "C", 4: "D", 5: "B/D", 6: "C/D"}
 N_KEYS = 2000

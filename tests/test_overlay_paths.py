@@ -13,6 +13,7 @@ import pytest
 import shapely
 from numpy.testing import assert_allclose
 from shapely.geometry import MultiPolygon, Polygon, box
+from test_overlay import SOIL, X0, Y0, by_class, frame, patchy_codes, reference_areas
 
 from gisrun.grid.coverage import _running_sums, cell_coverage, cell_increments
 from gisrun.grid.dense_sums import dense_chunk_sums, dense_eligible
@@ -20,8 +21,6 @@ from gisrun.grid.fine_grid import FineGrid
 from gisrun.grid.overlay import compute_unit_areas
 from gisrun.grid.sparse_sums import sparse_chunk_sums
 from gisrun.io.raster import read_class_raster
-
-from test_overlay import SOIL, X0, Y0, by_class, frame, patchy_codes, reference_areas
 
 CELL = 10.0
 

@@ -31,7 +31,7 @@ import geopandas as gpd
 
 from ..grid.rain_weights import rain_grid_weights
 from ..io.rain_grid import RainGridSettings, RainStack, open_rain_grid
-from ..options import RAIN_GRID_FORMATS, Choices, RAIN_TIME_MARKS, RAIN_VALUES
+from ..options import RAIN_GRID_FORMATS, RAIN_TIME_MARKS, RAIN_VALUES, Choices
 from ..storm import ArealRain
 from ..storm.gridded import grid_areal_depth
 from ..units import UnitSystem

@@ -130,9 +130,12 @@ class CodeLookup:
 
     @cached_property
     def _dense(self) -> tuple[int, NDArray[np.int32]] | None:
-        """(lowest code - 1, table over lowest - 1 .. highest + 1) when the codes span at
-        most :data:`DENSE_TABLE_MAX` values: one gather per cell, however many codes (map-unit
-        keys run to thousands; a binary search would cost a step per doubling)."""
+        """Dense code table, when the codes span at most :data:`DENSE_TABLE_MAX` values.
+
+        (lowest code - 1, table over lowest - 1 .. highest + 1): one gather per cell, however
+        many codes (map-unit keys run to thousands; a binary search would cost a step per
+        doubling).
+        """
         if not self.codes.size:
             return None
         low, high = int(self.codes[0]), int(self.codes[-1])

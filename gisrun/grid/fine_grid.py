@@ -42,6 +42,7 @@ class FineGrid:
     @classmethod
     def build(cls, soil: ClassGrid, cover: ClassGrid | None, soil_codes: Mapping[int, str],
               cover_codes: Mapping[int, str] | None, notes: list[str]) -> FineGrid:
+        """The finer of the soil and cover grids, with both code tables."""
         soil_lut = lookup_classes(soil_codes, soil.nodata)
         if cover is None:
             labels = [(s, UNSPECIFIED_COVER) for s in soil_lut.labels]
@@ -83,6 +84,7 @@ class FineGrid:
 
     @property
     def cell_area_m2(self) -> float:
+        """Ground area of one cell in m2 (1 on a geographic grid, whose row weights carry it)."""
         if self.crs.is_geographic:
             return 1.0  # row weights carry the area
         return abs(self.t.a * self.t.e) * linear_unit_m(self.crs) ** 2
@@ -112,6 +114,7 @@ def combined_table(fine: CodeLookup, coarse: CodeLookup, fine_is_soil: bool
 
 
 def note_alignment(fine: ClassGrid, coarse: ClassGrid, notes: list[str]) -> None:
+    """Add a note when the coarse grid's cells do not nest in the fine grid's."""
     ft, ct = fine.transform, coarse.transform
     if nesting(ft, ct) is not None:
         return

@@ -46,8 +46,11 @@ def halved(geoms: NDArray[np.object_]) -> tuple[NDArray[np.object_], NDArray[np.
 
 
 def intersections(a: NDArray[np.object_], b: NDArray[np.object_]) -> NDArray[np.object_]:
-    """Polygonal part of ``a & b`` pair by pair; a piece wholly inside the other is taken as
-    it is (a cheap prepared test instead of an overlay of both outlines)."""
+    """Polygonal part of ``a & b``, pair by pair.
+
+    A piece wholly inside the other is taken as it is (a cheap prepared test instead of an
+    overlay of both outlines).
+    """
     shapely.prepare(a)
     inside = shapely.contains(a, b)
     cut = b.copy()

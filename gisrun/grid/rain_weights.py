@@ -94,8 +94,11 @@ class RainGridWeights:
     grid_width: int
 
     def table(self) -> pd.DataFrame:
-        """Long table: ``source_id`` (the cell, ``"r<row>_c<column>"`` of the grid as stored),
-        ``subcatchment_id``, ``weight``, ``cell_row``, ``cell_column``."""
+        """The weights as a long table.
+
+        Columns ``source_id`` (the cell, ``"r<row>_c<column>"`` of the grid as stored),
+        ``subcatchment_id``, ``weight``, ``cell_row``, ``cell_column``.
+        """
         coo = self.matrix.tocoo()
         width = self.grid_width
         cell = self.cells[coo.col]

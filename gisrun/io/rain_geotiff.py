@@ -23,8 +23,8 @@ from rasterio.errors import RasterioIOError
 
 from ..crs import checked_crs
 from ..errors import StormError
-from .raster import RASTER_CACHE_MB
 from .rain_sources import FoundStack, RainGridSettings
+from .raster import RASTER_CACHE_MB
 
 __all__ = ["describe_stack", "describe_folder", "read_bands", "SUFFIXES"]
 

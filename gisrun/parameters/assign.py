@@ -4,9 +4,9 @@ Each unit of the unit table is split into a pervious and an impervious part by
 its cover's impervious fraction (TR-55 1986, Tables 2-2a-c), or by the unit's own
 ``impervious_fraction`` column when the unit table has one (measured on an
 impervious-share grid, :mod:`gisrun.grid.impervious`; the cover class still sets
-the pervious part's parameters); parts with zero area are dropped. A cover of ``"unspecified"`` (no cover raster) is fully
-pervious and takes the curve numbers of open space in good condition. Soil
-labels ``"water"`` and ``"rock"`` take no water: their whole area is impervious.
+the pervious part's parameters); parts with zero area are dropped. Cover ``"unspecified"``
+(no cover raster) is fully pervious, with the curve numbers of open space in good condition.
+Soil labels ``"water"`` and ``"rock"`` take no water: their whole area is impervious.
 
 Pervious part
     Green-Ampt from Rawls, Brakensiek and Miller (1983) for the texture (with

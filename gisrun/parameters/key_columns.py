@@ -34,6 +34,7 @@ PROPERTIES = {"ks_least_transmissive": _RATE_UNITS, "restrictive_layer_depth": _
 
 
 def property_of(col: str) -> tuple[str, float] | None:
+    """(property, factor to SI) of an attribute column named ``<property>_<unit>``, or None."""
     for stem, units in PROPERTIES.items():
         unit = col.removeprefix(f"{stem}_")
         if col.startswith(f"{stem}_") and unit in units:
@@ -42,6 +43,7 @@ def property_of(col: str) -> tuple[str, float] | None:
 
 
 def property_names() -> list[str]:
+    """Every attribute column name a table may use for a soil property."""
     return [f"{stem}_{u}" for stem, units in PROPERTIES.items() for u in units]
 
 
@@ -158,6 +160,7 @@ def impervious_shares(frame: pd.DataFrame, where: str, names: list[str]) -> list
 
 
 def cover_classes(frame: pd.DataFrame, where: str, names: list[str]) -> list[str]:
+    """The ``cover_class`` column of a cover attribute table (required, no blanks)."""
     labels = _required(_cells(frame, "cover_class"), "cover_class", where, names)
     for i, label in enumerate(labels):
         check_cover_labels([label], f"{where}:{names[i]}:cover_class")

@@ -82,8 +82,11 @@ def _with_table(info: SoilInfo, group: str | None, texture: str | None, source: 
 
 
 def mark_base_classes(rows: pd.DataFrame, soil_keys: KeyedClasses | None) -> None:
-    """Add ``soil_base_class`` (the class a keyed class is a variant of), so that an override
-    row keyed by a soil class also matches its variants (:func:`.precedence.apply_layer`)."""
+    """Add ``soil_base_class``, the class a keyed class is a variant of.
+
+    So an override row keyed by a soil class also matches its variants
+    (:func:`.precedence.apply_layer`).
+    """
     if soil_keys is not None:
         bases = soil_keys.base_classes()
         rows["soil_base_class"] = rows["soil_class"].map(lambda s: bases.get(s, s))

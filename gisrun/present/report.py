@@ -27,10 +27,10 @@ import pandas as pd
 
 from ..model import RunResult
 from .bands import bands_section
+from .disconnection import disconnection_section
 from .explore import explore_section
 from .html import anchor, esc, image, section
 from .layers import REPORT_TOP
-from .disconnection import disconnection_section
 from .lumping import lumping_section
 from .parameter_sheet import parameter_sheet
 from .report_tables import (

@@ -105,7 +105,8 @@ def _check_values(values: NDArray[np.float64], weights: RainGridWeights, grid: R
     if bad.any():
         step, col = (int(v) for v in np.argwhere(bad)[0])
         sub = weights.subcatchment_ids[_first_user(weights, col)]
-        raise StormError(grid.where, f"has no rain value (nodata) at {grid.step_label(first + step)}"
+        raise StormError(grid.where,
+                         f"has no rain value (nodata) at {grid.step_label(first + step)}"
                          f" in cell {_cell_name(weights, col)} used by subcatchment {sub!r}",
                          "fill the gap in the rain grid, or give a grid without nodata over the "
                          "subcatchments")

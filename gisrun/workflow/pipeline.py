@@ -42,8 +42,8 @@ from .chunks import (
     sample_rows,
     split_overlay,
 )
-from .inputs import check_inputs_codes, read_inputs
 from .disconnection import runon_target
+from .inputs import check_inputs_codes, read_inputs
 from .rain import chunk_rain, run_rains
 from .steps import compact_sources, overlay_inputs
 
@@ -146,8 +146,8 @@ def run(
     say(f"overlay, parameters and {len(inputs.storms)} storm(s) in {len(tasks)} chunk(s)")
     outputs = list(_stream(execute(tasks, workers=workers, scheduler=scheduler), inputs,
                            series_sink, unit_sink))
-    notes = [*inputs.notes, *lumping_note, *cells_note, *(str(w.message) for w in [*caught, *refused]
-                              if issubclass(w.category, GisrunWarning)), *resampled]
+    warned = [str(w.message) for w in [*caught, *refused] if issubclass(w.category, GisrunWarning)]
+    notes = [*inputs.notes, *lumping_note, *cells_note, *warned, *resampled]
     notes += [n for out in outputs for n in out.notes]
     cell_rasters = None
     if cells:

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import dataclasses
 import warnings
+
 import geopandas as gpd
 import numpy as np
 import pandas as pd

@@ -1,4 +1,4 @@
-"""Disconnected shares per part, and TR-55's composite curve number for unconnected impervious area."""
+"""Disconnected shares per part; TR-55's composite curve number for unconnected impervious area."""
 
 from __future__ import annotations
 
