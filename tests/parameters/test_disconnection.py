@@ -20,7 +20,7 @@ def test_tr55_formula_against_its_published_form():
     """TR-55 (1986), ch. 2, "Unconnected impervious areas" (p. 2-4) and Figure 2-4:
     CNc = CNp + (Pimp/100)(98 - CNp)(1 - 0.5R), Pimp in percent, R = unconnected / total
     impervious. Its worked example (p. 2-4, from memory; the public copy of chapter 2 found,
-    a transcript at vdocuments.site, did not show that page): a 1/2-acre lot, 20 % impervious,
+    a text copy at vdocuments.site, did not show that page): a 1/2-acre lot, 20 % impervious,
     75 % of it unconnected, pervious CN 61 -> composite CN 66 from Figure 2-4, and 68 from
     Figure 2-3 if all of it were connected."""
     def published(cnp, pimp_percent, r):
