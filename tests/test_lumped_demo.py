@@ -52,13 +52,17 @@ def _rerun(result, basis: str) -> pd.DataFrame:
     out = []
     for k, storm in enumerate(result.storms):
         rows = table[table["storm"].astype(str) == storm.name]
+        # areal rain is (steps, subcatchments) in the layer's order: take this one's column
+        order = {sid: j for j, sid in enumerate(storm.subcatchments["subcatchment_id"])}
         for sid, one in rows.groupby("subcatchment_id", sort=False):
+            rain = storm.rain_per_step_m
+            rain = rain if rain.ndim == 1 else rain[:, order[sid]]
             method = str(one["loss_method"].iloc[0])
             share = float(one.loc[one["parameter"] == "impervious_fraction", "value"].iloc[0])
             perv = one[one["surface"] == "pervious"]
             parts = [(s, w) for s, w in (("pervious", 1 - share), ("impervious", share)) if w > 0]
             units = pd.DataFrame([_unit(one, s, perv) for s, _ in parts])
-            depth = run_losses(units, storm.rain_per_step_m, result.project.time_step_s,
+            depth = run_losses(units, rain, result.project.time_step_s,
                                method=method).runoff_depth_m
             lumped = sum(w * d for (_, w), d in zip(parts, depth, strict=True))
             out.append((sid, k, method, lumped))

@@ -7,6 +7,7 @@ that failed are skipped.
 
 from __future__ import annotations
 
+import dataclasses
 import warnings
 from collections.abc import Callable
 from pathlib import Path
@@ -14,6 +15,7 @@ from typing import Any, TypeVar
 
 import geopandas as gpd
 
+from ..config.areal import AREAL_KINDS
 from ..config.project import load_project
 from ..errors import GisrunError, GisrunWarning, OutputError
 from ..grid.polygons import ClassPolygons
@@ -91,7 +93,7 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str],
     subs = _attempt(problems, read_subcatchment_layer, project)
     soil = _attempt(problems, read_soil, project)
     cover = _attempt(problems, read_cover, project)
-    storms = _attempt(problems, read_storms, project, subs)
+    storms = _attempt(problems, read_storms, _storms_checkable(project, subs), subs)
     overrides = _attempt(problems, read_overrides, project)
     impervious = _attempt(problems, read_impervious_grid, project)
     if subs is not None and storms is not None:
@@ -130,6 +132,18 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str],
         _attempt(problems, check_uncertainty_ranges, project, inputs, prepared[0])
     notes = [*overlaid[2], *(prepared[2] if prepared is not None else [])]
     return [*storm_notes, *(str(note) for note in notes)]
+
+
+def _storms_checkable(project: Project, subs: gpd.GeoDataFrame | None) -> Project:
+    """The project, less its areal storms when the subcatchment layer could not be read.
+
+    Those storms need the layer, whose own problem is already reported; the others are
+    still checked.
+    """
+    if subs is not None:
+        return project
+    kept = tuple(s for s in project.storms if s.get("kind") not in AREAL_KINDS)
+    return dataclasses.replace(project, storms=kept)
 
 
 def output_lines(project: Project, n_subcatchments: int,
