@@ -34,7 +34,8 @@ from .units import SYSTEMS
 __all__ = ["check_geopackage_name", "normalize_name", "did_you_mean", "choose", "Choices",
            "NODATA_RULES", "COMBINE_RULES", "DUAL_GROUP_CONDITIONS", "UNIT_SYSTEMS",
            "LUMPED_PARAMETER_SETS", "SERIES_STORES", "IMPERVIOUS_SCALES", "RUNON_TARGETS",
-           "RAIN_GRID_FORMATS", "RAIN_TIME_MARKS", "RAIN_VALUES", "GAUGE_WEIGHTINGS", "CHOICES"]
+           "RAIN_GRID_FORMATS", "RAIN_TIME_MARKS", "RAIN_VALUES", "GAUGE_WEIGHTINGS",
+           "REDUCTION_SCOPES", "CHOICES"]
 
 
 def normalize_name(text: object) -> str:
@@ -131,6 +132,11 @@ RAIN_VALUES = Choices(("depth", "intensity"), what="kind of rain value", default
 GAUGE_WEIGHTINGS = Choices(("thiessen", "inverse_distance"), what="gauge weighting",
                            default="thiessen")
 
+#: Whose area a design storm's areal reduction factor is taken at (``[[storms]]
+#: areal_reduction.over``): each subcatchment's own, or the whole subcatchment layer's.
+REDUCTION_SCOPES = Choices(("subcatchment", "basin"), what="areal reduction scope",
+                           default="subcatchment")
+
 #: Every fixed choice above by the name it is known under.
 CHOICES: dict[str, Choices] = {
     "nodata_rule": NODATA_RULES, "combine": COMBINE_RULES,
@@ -139,7 +145,7 @@ CHOICES: dict[str, Choices] = {
     "unlisted_keys": UNLISTED_KEY_RULES,
     "impervious_scale": IMPERVIOUS_SCALES, "runon_to": RUNON_TARGETS,
     "rain_grid_format": RAIN_GRID_FORMATS, "time_marks": RAIN_TIME_MARKS,
-    "rain_is": RAIN_VALUES, "weighting": GAUGE_WEIGHTINGS,
+    "rain_is": RAIN_VALUES, "weighting": GAUGE_WEIGHTINGS, "over": REDUCTION_SCOPES,
 }
 
 

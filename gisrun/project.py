@@ -225,7 +225,15 @@ class Project:
         return files
 
     def storm_files(self) -> dict[str, Path]:
-        """Every file or folder the ``[[storms]]`` tables name, by table and key."""
-        return {f"[[storms]] {i}.{key}": self.base_dir / spec[key]
-                for i, spec in enumerate(self.storms, start=1)
-                for key in self.storm_file_keys if isinstance(spec.get(key), str)}
+        """Every file or folder the ``[[storms]]`` tables name, by table and key.
+
+        A design storm's ``areal_reduction.table`` (a factor table) is one of them.
+        """
+        files = {f"[[storms]] {i}.{key}": self.base_dir / spec[key]
+                 for i, spec in enumerate(self.storms, start=1)
+                 for key in self.storm_file_keys if isinstance(spec.get(key), str)}
+        for i, spec in enumerate(self.storms, start=1):
+            reduction = spec.get("areal_reduction")
+            if isinstance(reduction, dict) and isinstance(reduction.get("table"), str):
+                files[f"[[storms]] {i}.areal_reduction.table"] = self.base_dir / reduction["table"]
+        return files

@@ -49,7 +49,7 @@ __all__ = [
 
 #: Multiply a value in the named unit by this factor to get SI.
 #: Exact by definition: 1 in = 0.0254 m, 1 ft = 0.3048 m (international yard
-#: and pound agreement, 1959); 1 acre = 43,560 ft^2.
+#: and pound agreement, 1959); 1 acre = 43,560 ft^2; 1 mile = 5,280 ft.
 FACTORS_TO_SI: dict[str, float] = {
     # length / depth -> m
     "m": 1.0,
@@ -77,6 +77,7 @@ FACTORS_TO_SI: dict[str, float] = {
     "m2": 1.0,
     "ha": 1e4,
     "km2": 1e6,
+    "mi2": (5280 * 0.3048) ** 2,
     "ft2": 0.3048**2,
     "acre": 43560.0 * 0.3048**2,
     # volume -> m3

@@ -200,6 +200,12 @@ def _gauges(records: dict[str, str]) -> Callable[[Path], None]:
 _TWO_GAUGES = {"G1": [1.0, 2.0, 0.0], "G2": [0.5, 1.0, 0.0]}
 
 
+def _reduced(table: str) -> Callable[[Path], None]:
+    """The tiny project's storm as a 5 mm uniform design storm with an areal reduction table."""
+    return _toml('kind = "file"\npath = "storm.csv"', 'kind = "uniform"\ndepth = 5\n'
+                 f'duration_min = 60\nareal_reduction = {table}')
+
+
 CASES: dict[str, Case] = {
     # --- missing and unreadable files --------------------------------------------------------
     "project file missing": Case(lambda d: None, "nothing.toml", target="nothing.toml"),
@@ -431,6 +437,30 @@ CASES: dict[str, Case] = {
     "uniform storm of 1e9 minutes": Case(
         _toml('kind = "file"\npath = "storm.csv"', 'kind = "uniform"\ndepth = 5\n'
               "duration_min = 1e9"), re.compile(r"\[\[storms\]\] 1\.duration_min.*2e\+08 steps")),
+    "areal reduction on a storm file": Case(
+        _toml('path = "storm.csv"\n', 'path = "storm.csv"\n'
+              'areal_reduction = { relation = "fixed_factor", factor = 0.9 }\n'),
+        re.compile(r"\[\[storms\]\] 1\.areal_reduction: does not apply to kind 'file': "
+                   r"areal reduction applies to point design depths")),
+    "unknown areal reduction relation": Case(
+        _reduced('{ relation = "arr2020", over = "basin" }'),
+        re.compile(r"areal_reduction\.relation: unknown areal reduction relation 'arr2020'")),
+    "areal reduction without its AEP": Case(
+        _reduced('{ relation = "arr2019_short_duration", over = "basin" }'),
+        re.compile(r"areal_reduction\.annual_exceedance_probability: relation "
+                   r"'arr2019_short_duration' needs it")),
+    "areal reduction over an unknown area": Case(
+        _reduced('{ relation = "factor_table", table = "f.csv", over = "town" }'),
+        re.compile(r"areal_reduction\.over: unknown areal reduction scope 'town'")),
+    "areal reduction factor table missing": Case(
+        _reduced('{ relation = "factor_table", table = "f.csv", over = "basin" }'),
+        re.compile(r"areal_reduction\.table: .*f\.csv: cannot be read: it does not exist")),
+    "subcatchment outside the areal reduction table": Case(
+        _both(_reduced('{ relation = "factor_table", table = "f.csv", over = "subcatchment" }'),
+              _write("f.csv", "area_km2,duration_min,factor\n1,30,0.9\n10,30,0.8\n"
+                     "1,120,0.95\n10,120,0.85\n")),
+        re.compile(r"storm 'steady', subcatchment 'S1' \(0\.005 km2, 60 min\): "
+                   r"factor_table: f\.csv: has areas 1-10 km2")),
     "250-character storm name": Case(_toml('name = "steady"', f'name = "{"s" * 250}"'),
                                      re.compile(r"\[\[storms\]\].*250 characters")),
     "output named .shp": Case(_toml('output = "out/result.gpkg"', 'output = "out/result.shp"'),

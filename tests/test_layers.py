@@ -17,7 +17,8 @@ def test_subcatchment_table_adds_coverage_and_area_weighted_soil_shares():
     coverage = pd.DataFrame({"subcatchment_id": ["a", "b"], "area_m2": [40.0, 6.0],
                              "nodata_fraction": [0.0, 1 / 6]})
     storm = SimpleNamespace(subcatchments=pd.DataFrame(
-        {"subcatchment_id": ["b", "a"], "area_m2": [5.0, 40.0], "runoff_depth_m": [0.01, 0.02]}))
+        {"subcatchment_id": ["b", "a"], "area_m2": [5.0, 40.0], "runoff_depth_m": [0.01, 0.02]}),
+        hyetograph=SimpleNamespace(reduction=None))
     result = SimpleNamespace(units=units, coverage=coverage)
     table = subcatchment_table(result, storm).set_index("subcatchment_id")
     # hand-computed: a is 30 of 40 m2 soil A and 10 of 40 m2 B/D; b is all A

@@ -35,6 +35,7 @@ from ..storm import (
 )
 from ..units import UnitSystem, to_si
 from .areal import AREAL_KINDS, build_areal_storm
+from .areal_reduction import REDUCTION_KEY, ReductionSpec, apply_reduction, read_reduction
 from .reader import StormTableError, TableReader
 
 __all__ = ["storm_from_config", "storms_from_config", "STORM_KINDS", "FILE_KIND",
@@ -56,7 +57,8 @@ def storm_kinds() -> list[str]:
 
 def _all_keys() -> list[str]:
     return sorted({k.name for kind in KINDS.values() for k in kind.keys}
-                  | {k for kind in AREAL_KINDS.values() for k in kind.keys} | {"path", *_COMMON})
+                  | {k for kind in AREAL_KINDS.values() for k in kind.keys}
+                  | {"path", REDUCTION_KEY, *_COMMON})
 
 
 def _kind_keys(kind: str) -> tuple[tuple[str, ...], tuple[str, ...]]:
@@ -65,12 +67,13 @@ def _kind_keys(kind: str) -> tuple[tuple[str, ...], tuple[str, ...]]:
         return ("path",), ("path",)
     if kind in AREAL_KINDS:
         return AREAL_KINDS[kind].keys, AREAL_KINDS[kind].required
-    return tuple(k.name for k in KINDS[kind].keys), tuple(k.name for k in KINDS[kind].required)
+    return ((*(k.name for k in KINDS[kind].keys), REDUCTION_KEY),
+            tuple(k.name for k in KINDS[kind].required))
 
 
 def storm_from_config(
     spec: Mapping[str, Any], *, base_dir: Path, units: UnitSystem, where: str,
-    subcatchments: gpd.GeoDataFrame | None = None,
+    subcatchments: gpd.GeoDataFrame | None = None, step_s: float | None = None,
 ) -> Hyetograph:
     """Build one storm from a ``[[storms]]`` table of the project file.
 
@@ -90,18 +93,25 @@ def storm_from_config(
         Location for messages, e.g. ``"project.toml:[[storms]] 1"``.
     subcatchments : GeoDataFrame, optional
         The subcatchment layer as read; needed by the kinds of areal rain
-        (:data:`gisrun.config.areal.AREAL_KINDS`).
+        (:data:`gisrun.config.areal.AREAL_KINDS`) and by a design storm's ``areal_reduction``
+        (:mod:`gisrun.config.areal_reduction`).
+    step_s : float, optional
+        The run's step (for ``areal_reduction`` factors that differ between subcatchments).
 
     Raises
     ------
     StormTableError
         For an unknown kind or key (suggesting the nearest), a missing key, or a bad value,
-        or an areal kind without ``subcatchments``.
+        or an areal kind or areal reduction without ``subcatchments``.
     """
     if not isinstance(spec, Mapping):
         raise StormTableError(where, "is not a table", "write it as a [[storms]] table of keys")
     table = TableReader(spec, where, base_dir, error=StormTableError)
     kind = _kind(table)
+    if REDUCTION_KEY in table.data and kind not in KINDS:
+        table.fail(REDUCTION_KEY, f"does not apply to kind {kind!r}: areal reduction applies to "
+                   "point design depths", "remove it (rain from gauges, a grid or a file is "
+                   "taken as it fell; give reduced depths in the file if they need reducing)")
     keys, required = _kind_keys(kind)
     table.check_keys((*_COMMON, *keys), elsewhere=_all_keys(),
                      elsewhere_problem=f"does not apply to kind {kind!r}",
@@ -112,6 +122,7 @@ def storm_from_config(
     name = spec.get("name")
     if name is not None and (not isinstance(name, str) or not name.strip()):
         table.fail("name", f"{name!r} is not a name", "give a non-empty text name")
+    reduction = _reduction(table, kind, subcatchments, step_s)
     if kind in AREAL_KINDS:
         if subcatchments is None:
             table.fail(None, f"kind {kind!r} is rain per subcatchment and needs the "
@@ -122,14 +133,29 @@ def storm_from_config(
     else:
         h = _design_storm(KINDS[kind], table, units, name)
     warn_if_implausible(h, where)
+    if reduction is not None:
+        h = apply_reduction(h, reduction, subcatchments, step_s)
     return h
+
+
+def _reduction(table: TableReader, kind: str, subcatchments: gpd.GeoDataFrame | None,
+               step_s: float | None) -> ReductionSpec | None:
+    """The storm's ``areal_reduction`` table as read, or None (design kinds only)."""
+    if REDUCTION_KEY not in table.data or kind not in KINDS:
+        return None
+    if subcatchments is None or step_s is None:
+        table.fail(REDUCTION_KEY, "needs the subcatchment layer's areas",
+                   "build the storm within a project (gisrun run or check)")
+    return read_reduction(table.sub(REDUCTION_KEY))
 
 
 def storms_from_config(
     specs: Sequence[Mapping[str, Any]], *, base_dir: Path, units: UnitSystem, where: str,
-    subcatchments: gpd.GeoDataFrame | None = None,
+    subcatchments: gpd.GeoDataFrame | None = None, step_s: float | None = None,
 ) -> list[Hyetograph]:
-    """Build every ``[[storms]]`` table; names must be unique (``subcatchments``: as above).
+    """Build every ``[[storms]]`` table; names must be unique.
+
+    ``subcatchments`` and ``step_s`` are as for :func:`storm_from_config`.
 
     Raises
     ------
@@ -141,7 +167,7 @@ def storms_from_config(
     storms, seen = [], {}
     for i, spec in enumerate(specs, start=1):
         h = storm_from_config(spec, base_dir=base_dir, units=units, where=f"{where} {i}",
-                              subcatchments=subcatchments)
+                              subcatchments=subcatchments, step_s=step_s)
         if h.name in seen:
             raise StormTableError(f"{where} {i}",
                                   f"name {h.name!r} is also used by storm {seen[h.name]}",

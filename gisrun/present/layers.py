@@ -55,6 +55,7 @@ from ..units import UnitSystem, present_frame
 from .bands import band_builders
 from .display import human
 from .model_inputs import lumped_layer
+from .reduction import FACTOR_COLUMN, reduction_column, reduction_line
 
 __all__ = [
     "build_layers", "layer_builders", "run_info", "storm_layer_name", "layer_name", "series_layer",
@@ -89,10 +90,17 @@ def storm_layer_name(storm_name: str) -> str:
 
 
 def subcatchment_table(result: RunResult, storm: StormResult) -> pd.DataFrame:
-    """Subcatchment results of one storm with polygon area and soil shares (SI columns)."""
+    """Subcatchment results of one storm with polygon area and soil shares (SI columns).
+
+    A storm reduced for area (``[[storms]] areal_reduction``) also gets each subcatchment's
+    factor (:data:`gisrun.present.reduction.FACTOR_COLUMN`).
+    """
     subs = storm.subcatchments.merge(
         result.coverage, on="subcatchment_id", how="left", suffixes=("", "_coverage")
     )
+    factor = reduction_column(storm.hyetograph.reduction, subs["subcatchment_id"])
+    if factor is not None:
+        subs.insert(1, FACTOR_COLUMN, factor)
     shares = soil_shares(result.units, subs["subcatchment_id"])
     return subs.merge(shares, on="subcatchment_id", how="left")
 
@@ -313,6 +321,8 @@ def run_info(result: RunResult) -> pd.DataFrame:
         depth = present_frame(pd.DataFrame({"d_m": [h.total_depth_m]}), project.units).iloc[0, 0]
         rows.append(("storm", f"{h.name}: {human(depth)} {depth_unit} over "
                               f"{human(h.duration_s / 60)} min"))
+        if h.reduction is not None:
+            rows.append(("areal_reduction", reduction_line(h.name, h.reduction, project.units)))
         if h.areal is not None:
             start = f", from {h.areal.start}" if h.areal.start else ""
             rows.append(("areal_rain", f"{h.name}: {h.areal.source}{start} (basin mean above; "

@@ -2,10 +2,11 @@
 
 Reads only its own packaged table of the NRCS 24-hour distributions
 (through :mod:`importlib.resources`). :data:`KINDS` is the registry of design
-storm kinds.
+storm kinds; :data:`RELATIONS` the registry of areal reduction relations.
 """
 
 from .areal import ArealRain, weighted_mean
+from .areal_reduction import RELATIONS, AppliedReduction, FactorTable, ReductionInputs
 from .design import (
     KINDS,
     NRCS_DISTRIBUTIONS,
@@ -23,12 +24,18 @@ from .hyetograph import (
     areal_storm,
     check_step_count,
     max_depth_in_window_m,
+    reduced_storm,
 )
 from .idf import IdfFormula, IdfTable
 from .resampling import peak_window_s, resampling_note
 
 __all__ = [
     "ArealRain",
+    "AppliedReduction",
+    "FactorTable",
+    "RELATIONS",
+    "ReductionInputs",
+    "reduced_storm",
     "areal_storm",
     "weighted_mean",
     "MAX_STEPS",

@@ -17,6 +17,7 @@ Examples
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -25,10 +26,12 @@ from numpy.typing import ArrayLike
 
 from ..errors import StormError
 from .areal import ArealRain, weighted_mean
+from .areal_reduction import AppliedReduction
 from .timing import REL_TOL, FloatArray, check_positive, frozen_array, step_edges
 
-__all__ = ["Hyetograph", "areal_storm", "MAX_STEPS", "check_step_count", "max_depth_in_window_m",
-           "step_edges", "check_positive", "frozen_array", "REL_TOL", "FloatArray"]
+__all__ = ["Hyetograph", "areal_storm", "reduced_storm", "MAX_STEPS", "check_step_count",
+           "max_depth_in_window_m", "step_edges", "check_positive", "frozen_array", "REL_TOL",
+           "FloatArray"]
 
 #: Most time steps a storm may have on the run's step: 2 million is 3.8 years of 1-minute steps
 #: (a rain array of 16 MB per unit); more is a typing slip (a time in seconds written as
@@ -67,6 +70,9 @@ class Hyetograph:
         Rain that differs between subcatchments (:mod:`gisrun.storm.areal`); the storm's own
         times and depths are then its basin mean (made by :func:`gisrun.storm.areal_storm`),
         and the run gives each subcatchment its own column.
+    reduction : AppliedReduction, optional
+        The areal reduction applied to the storm's point design depths (made by
+        :func:`reduced_storm`), recorded for the outputs.
 
     Raises
     ------
@@ -78,6 +84,7 @@ class Hyetograph:
     time_s: FloatArray
     depth_m: FloatArray
     areal: ArealRain | None = None
+    reduction: AppliedReduction | None = None
 
     def __post_init__(self) -> None:
         where = f"storm {self.name!r}"
@@ -210,3 +217,24 @@ def areal_storm(name: str, rain: ArealRain, area_m2: ArrayLike) -> Hyetograph:
                          "give one ground area >= 0 per subcatchment of the rain")
     basin = weighted_mean(rain.depth_m, (area / area.sum())[None, :])[:, 0]
     return Hyetograph(name, rain.time_s, basin, areal=rain)
+
+
+def reduced_storm(h: Hyetograph, applied: AppliedReduction, step_s: float,
+                  area_m2: ArrayLike) -> Hyetograph:
+    """The storm ``h`` (point design depths) times its areal reduction factors.
+
+    One factor for all (``over = "basin"``, or equal factors) scales the storm
+    (:meth:`Hyetograph.scaled`), so a factor of 1 gives the storm unchanged. Factors that
+    differ make areal rain (:func:`areal_storm`): each subcatchment's column is the storm on the
+    run's step ``step_s`` times its factor, and the storm's own series is the basin mean
+    weighted by ``area_m2`` (each subcatchment's ground area, in ``applied``'s order).
+    """
+    factor = applied.factor
+    if factor.size == 0 or np.all(factor == factor[0]):
+        one = float(factor[0]) if factor.size else 1.0
+        return dataclasses.replace(h.scaled(one), reduction=applied)
+    point = h.resample(step_s)
+    rain = ArealRain(point[:, None] * factor[None, :], step_s, applied.subcatchment_ids,
+                     f"point design depths times each subcatchment's areal reduction factor "
+                     f"({applied.relation})")
+    return dataclasses.replace(areal_storm(h.name, rain, area_m2), reduction=applied)

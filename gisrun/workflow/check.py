@@ -16,6 +16,7 @@ from typing import Any, TypeVar
 import geopandas as gpd
 
 from ..config.areal import AREAL_KINDS
+from ..config.areal_reduction import REDUCTION_KEY
 from ..config.project import load_project
 from ..errors import GisrunError, GisrunWarning, OutputError
 from ..grid.polygons import ClassPolygons
@@ -23,6 +24,7 @@ from ..io.files import refuse_inputs_among
 from ..io.raster import ClassRaster
 from ..io.series_file import series_path, series_store
 from ..model import Inputs
+from ..present.reduction import reduction_line
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
 from .bands import check_named_ids, check_uncertainty_ranges
@@ -99,7 +101,10 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str],
     if subs is not None and storms is not None:
         outputs += output_lines(project, len(subs), storms)
         outputs += [f"storm {h.name!r}: rain per subcatchment from {h.areal.source}"
-                    for h in storms if h.areal is not None]
+                    for h in storms if h.areal is not None and h.reduction is None]
+        outputs += ["storm " + reduction_line(repr(h.name), h.reduction, project.units,
+                                              source=False)
+                    for h in storms if h.reduction is not None]
     if subs is not None:
         _attempt(problems, check_overlaps, project, subs)
         if storms is not None:
@@ -137,12 +142,13 @@ def _check_inputs(project: Project, problems: list[str], outputs: list[str],
 def _storms_checkable(project: Project, subs: gpd.GeoDataFrame | None) -> Project:
     """The project, less its areal storms when the subcatchment layer could not be read.
 
-    Those storms need the layer, whose own problem is already reported; the others are
-    still checked.
+    Those storms (and design storms reduced for area) need the layer, whose own problem is
+    already reported; the others are still checked.
     """
     if subs is not None:
         return project
-    kept = tuple(s for s in project.storms if s.get("kind") not in AREAL_KINDS)
+    kept = tuple(s for s in project.storms
+                 if s.get("kind") not in AREAL_KINDS and REDUCTION_KEY not in s)
     return dataclasses.replace(project, storms=kept)
 
 
