@@ -15,8 +15,15 @@ It prints the ratio the target is stated in: uncertainty time / the plain run's 
 (target <= 20 for 100 samples), and peak memory / ``[project] memory_budget_mb`` (target <= 1).
 ``--repeat`` interleaves plain and uncertainty runs and prints each pair's ratio.
 
+``--areal`` gives the storm an areal reduction per subcatchment (an invented factor table,
+linear in log area from 1 at 0.0001 km2 to 0.5 at 10,000 km2), so every subcatchment of a
+different area gets a rain series of its own: the storm is then areal rain, and the bands run
+one row per (part, rain column), the case with the least sharing. The plain run then runs the
+same areal storm, so the ratio is against that run's engine time.
+
     python benchmarks/bench_uncertainty.py                        # 8000 cells, 100,000 polygons
     python benchmarks/bench_uncertainty.py --polygons 10000 --samples 100   # a quicker look
+    python benchmarks/bench_uncertainty.py --polygons 10000 --areal         # rain per subcatchment
 """
 
 from __future__ import annotations
@@ -76,9 +83,27 @@ def measured(project: Path) -> dict[str, float]:
 
 def with_uncertainty(project: Path, samples: int) -> Path:
     """A copy of the project file beside it that asks for ``samples`` uncertainty samples."""
-    target = project.with_name(f"gisrun_uncertainty_{samples}.toml")
+    target = project.with_name(f"{project.stem}_uncertainty_{samples}.toml")
     text = project.read_text()
     target.write_text(text + f"\n[uncertainty]\nsamples = {samples}\nseed = 20261203\n")
+    return target
+
+
+#: The invented factor table of ``--areal`` (area, duration, factor; linear in log area).
+FACTORS = "".join(f"{10.0 ** e:g},{d},{1.0 - 0.0625 * (e + 4):g}\n"
+                  for e in range(-4, 5) for d in (1, 2000))
+
+
+def with_areal_reduction(project: Path) -> Path:
+    """A copy of the project file whose storm takes a factor per subcatchment (by its area)."""
+    table = project.with_name("bench_area_factors.csv")
+    table.write_text("area_km2,duration_min,factor\n" + FACTORS)
+    target = project.with_name("gisrun_areal.toml")
+    text = project.read_text()
+    assert "depth = 90\n" in text, "the benchmark storm changed: update with_areal_reduction"
+    target.write_text(text.replace("depth = 90\n", 'depth = 90\nareal_reduction = { relation = '
+                                   '"factor_table", table = "bench_area_factors.csv", '
+                                   'over = "subcatchment" }\n'))
     return target
 
 
@@ -88,16 +113,20 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--polygons", type=int, default=100_000)
     parser.add_argument("--samples", type=int, default=100)
     parser.add_argument("--repeat", type=int, default=1)
+    parser.add_argument("--areal", action="store_true",
+                        help="an areal reduction per subcatchment: rain per subcatchment")
     args = parser.parse_args(argv)
     paths = make_inputs(default_out_dir(args.cells, args.polygons), n_cells=args.cells,
                         n_polygons=args.polygons)
-    banded = with_uncertainty(paths.project, args.samples)
+    project = with_areal_reduction(paths.project) if args.areal else paths.project
+    banded = with_uncertainty(project, args.samples)
     print(f"called as: python benchmarks/bench_uncertainty.py --cells {args.cells} "
-          f"--polygons {args.polygons} --samples {args.samples} --repeat {args.repeat}")
+          f"--polygons {args.polygons} --samples {args.samples} --repeat {args.repeat}"
+          + (" --areal" if args.areal else ""))
     print(f"{'run':>12} {'wall s':>8} {'peak MB':>8} {'engine s':>9} {'bands s':>8} "
           f"{'bands/engine':>13} {'peak/budget':>12}")
     for _ in range(args.repeat):
-        plain = measured(paths.project)
+        plain = measured(project)
         unc = measured(banded)
         for name, r in (("plain", plain), (f"{args.samples} samples", unc)):
             ratio = r["bands_s"] / plain["engine_s"] if plain["engine_s"] else float("nan")
