@@ -12,19 +12,21 @@ therefore distinct per (distinct part, distinct rain column) (:func:`column_rows
 different subcatchments share a row only when their columns are equal bit for bit (a
 subcatchment wholly inside one gauge's Thiessen polygon gets that gauge's record, as its
 neighbours do). Like the other table it is gathered from every chunk into one table in key
-order (the key: the part's key and the column's place among the storm's distinct columns,
-which depend on the rain alone), so every engine call, and every figure, is the same however
-the run was chunked. Each row's rain is its column of the run's rain matrix, taken for one
-engine call at a time, times the part's rain factor: the product the run itself makes
+order (the key: the place along the ground of the column's first subcatchment, the part's key,
+and the column's place among the storm's distinct columns, all of which depend on the inputs
+alone), so every engine call, and every figure, is the same however the run was chunked. Each
+row's rain is its column of the run's rain matrix, taken for one engine call at a time, times
+the part's rain factor: the product the run itself makes
 (:func:`gisrun.workflow.rain.unit_rain`).
 
-:func:`storm_runs` gives the storms in turn; an areal storm's table and sample totals
-(samples x rows x 16 bytes) are made when the storm is reached and dropped after it.
+:func:`storm_runs` gives the storms in turn; an areal storm's table is run in blocks as its
+chunks are served (:mod:`gisrun.uncertainty.blocks`), so its sample totals are held for a few
+chunks at a time.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -32,6 +34,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from ..project import UncertaintySettings
+from .blocks import chunk_runs
 from .rowsets import RowTable, SampledRows, gather_rows, pick_rows, run_samples
 from .spread import SPREADS
 
@@ -57,6 +60,9 @@ class BandStorms:
     #: Per chunk, the column of each of its subcatchments in the areal rains; None: the
     #: columns are the chunk's subcatchments in order (one chunk).
     columns: tuple[NDArray[np.intp], ...] | None = None
+    #: Per column of the areal rains, its subcatchment's place along the ground (a Hilbert
+    #: curve, as the chunks are cut); an areal storm's table is in this order (None: columns').
+    place: FloatArray | None = None
 
 
 @dataclass(frozen=True)
@@ -76,12 +82,13 @@ def uniform_rains(rains: Sequence[FloatArray]) -> list[FloatArray]:
 
 
 def storm_runs(parts: Sequence[object], settings: UncertaintySettings, storms: BandStorms
-               ) -> Iterator[list[StormRows]]:
-    """Per storm, in order, one :class:`StormRows` per chunk.
+               ) -> Iterator[Iterable[StormRows]]:
+    """Per storm, in order, one :class:`StormRows` per chunk (in the order of ``parts``).
 
     ``parts`` are the chunks' :class:`~gisrun.uncertainty.analysis.ChunkParts`. The storms
     of one series run first, together, over the run-wide table of parts; a storm of areal
-    rain runs its own table when it is reached.
+    rain runs its own table when it is reached, block by block as its chunks are served
+    (:func:`gisrun.uncertainty.blocks.chunk_runs`).
     """
     shared = run_samples(gather_rows(parts), uniform_rains(storms.rains), storms.dt_s,
                          settings, saturation=storms.saturation)
@@ -93,9 +100,9 @@ def storm_runs(parts: Sequence[object], settings: UncertaintySettings, storms: B
             yield [StormRows(shared, uniform, rows) for rows in unit_rows]
             uniform += 1
             continue
-        table, own_rows = column_rows(parts, columns, rain)
-        rows = run_samples(table, [rain], storms.dt_s, settings, saturation=storms.saturation)
-        yield [StormRows(rows, 0, unit_row) for unit_row in own_rows]
+        table, own_rows = column_rows(parts, columns, rain, storms.place)
+        yield (StormRows(rows, 0, unit_row) for rows, unit_row in chunk_runs(
+            table, own_rows, rain, storms.dt_s, settings, saturation=storms.saturation))
 
 
 def _shared_rows(part: object, rows: SampledRows) -> NDArray[np.intp]:
@@ -121,8 +128,8 @@ def column_groups(rain: FloatArray) -> tuple[NDArray[np.intp], NDArray[np.intp]]
     return first.astype(np.intp), group
 
 
-def column_rows(parts: Sequence[object], columns: Sequence[NDArray[np.intp]], rain: FloatArray
-                ) -> tuple[RowTable, list[NDArray[np.intp]]]:
+def column_rows(parts: Sequence[object], columns: Sequence[NDArray[np.intp]], rain: FloatArray,
+                place: FloatArray | None = None) -> tuple[RowTable, list[NDArray[np.intp]]]:
     """One areal storm's table, one row per (sampled part, distinct column), and unit rows.
 
     Parameters
@@ -133,42 +140,69 @@ def column_rows(parts: Sequence[object], columns: Sequence[NDArray[np.intp]], ra
         Per chunk, the column of ``rain`` of each of its subcatchments (``part.sub_ids``).
     rain : ndarray, shape (steps, columns)
         The storm's rain per step, m.
+    place : ndarray, optional
+        Each column's place along the ground; rows go by their column's place (the least
+        of a shared column's), then part key, then column group (default: column order).
 
     Returns
     -------
     table : RowTable
-        The rows in key order, with ``rain_columns`` (each row's column of ``rain``).
+        The rows in key order, with ``rain_columns`` (each row's column of ``rain``); its
+        ``index`` is empty (the rows are found through ``unit_rows``).
     unit_rows : list of ndarray of int
         Per chunk, each unit's row (-1 where its part has no range).
     """
     first, group = column_groups(rain)
-    chosen: dict[tuple, tuple[int, int, int]] = {}
-    found = []
-    for c, (part, cols) in enumerate(zip(parts, columns, strict=True)):
+    place = np.arange(rain.shape[1], dtype=np.float64) if place is None else place
+    at = np.full(len(first), np.inf)
+    np.minimum.at(at, group, place)
+    found, entries = [], []
+    for c, (part, cols, rank) in enumerate(zip(parts, columns, _part_ranks(parts), strict=True)):
         units, pairs, inverse = _unit_pairs(part, cols, group)
-        keys = [(part.parts.keys[r], g) for r, g in pairs.tolist()]
-        for key, (r, g) in zip(keys, pairs.tolist(), strict=True):
-            chosen.setdefault(key, (c, r, g))
-        found.append((units, keys, inverse))
-    order = sorted(chosen)
-    index = {k: i for i, k in enumerate(order)}
-    picks = np.array([chosen[k] for k in order], dtype=np.intp).reshape(-1, 3)
-    frame, ranges, scale = pick_rows(parts, picks[:, 0], picks[:, 1])
-    unit_rows = []
-    for part, (units, keys, inverse) in zip(parts, found, strict=True):
+        found.append((units, inverse, len(pairs)))
+        entries.append(np.column_stack([rank[pairs[:, 0]], pairs[:, 1],
+                                        np.full(len(pairs), c), pairs[:, 0]]))
+    entries = np.concatenate(entries).astype(np.intp).reshape(-1, 4)
+    order = np.lexsort((entries[:, 1], entries[:, 0], at[entries[:, 1]]))
+    ranked = entries[order]  # by place, part key, column group: (part rank, group) is the key
+    new = np.ones(len(ranked), dtype=bool)
+    new[1:] = (ranked[1:, :2] != ranked[:-1, :2]).any(axis=1)
+    row_of = np.empty(len(ranked), dtype=np.intp)
+    row_of[order] = np.cumsum(new) - 1
+    picks = ranked[new]
+    frame, ranges, scale = pick_rows(parts, picks[:, 2], picks[:, 3])
+    unit_rows, start = [], 0
+    for part, (units, inverse, n_pairs) in zip(parts, found, strict=True):
         unit_row = np.full(len(part.parts.inverse), -1, dtype=np.intp)
-        unit_row[units] = np.array([index[k] for k in keys], dtype=np.intp)[inverse]
+        unit_row[units] = row_of[start:start + n_pairs][inverse]
         unit_rows.append(unit_row)
-    table = RowTable(frame, ranges, scale, index, rain_columns=first[picks[:, 2]])
+        start += n_pairs
+    table = RowTable(frame, ranges, scale, {}, rain_columns=first[picks[:, 1]])
     return table, unit_rows
+
+
+def _sampled(part: object) -> NDArray[np.bool_]:
+    """The chunk's distinct parts that have a range for any sampled column."""
+    sampled = np.zeros(len(part.parts.keys), dtype=bool)
+    for column in SPREADS:
+        sampled |= part.ranges.sampled(column)
+    return sampled
+
+
+def _part_ranks(parts: Sequence[object]) -> list[NDArray[np.intp]]:
+    """Per chunk, each distinct part's place among every chunk's sampled part keys, sorted."""
+    sampled = [_sampled(part) for part in parts]
+    keys = sorted({k for part, on in zip(parts, sampled, strict=True)
+                   for k, yes in zip(part.parts.keys, on, strict=True) if yes})
+    rank = {k: i for i, k in enumerate(keys)}
+    return [np.array([rank.get(k, -1) for k in part.parts.keys], dtype=np.intp)
+            for part in parts]
 
 
 def _unit_pairs(part: object, cols: NDArray[np.intp], group: NDArray[np.intp]
                 ) -> tuple[NDArray[np.intp], NDArray[np.intp], NDArray[np.intp]]:
     """A chunk's sampled units, their distinct (part row, column group) pairs, each's pair."""
-    sampled = np.zeros(len(part.parts.keys), dtype=bool)
-    for column in SPREADS:
-        sampled |= part.ranges.sampled(column)
+    sampled = _sampled(part)
     unit_part = part.parts.inverse
     units = np.flatnonzero(sampled[unit_part]) if len(unit_part) else np.zeros(0, np.intp)
     own = np.asarray(cols, dtype=np.intp)[pd.Index(part.sub_ids).get_indexer(part.unit_sub_ids)]

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 
+import geopandas as gpd
 import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
@@ -119,7 +120,8 @@ def combine_uncertainty(project: Project, inputs: Inputs, chunk_parts: list[Chun
     storms = BandStorms(tuple(h.name for h in inputs.storms), tuple(rains),
                         project.time_step_s, project.soil.initial_saturation,
                         columns=tuple(position.reindex(p.sub_ids).to_numpy(dtype=np.intp)
-                                      for p in chunk_parts))
+                                      for p in chunk_parts),
+                        place=_places(inputs) if any(r.ndim == 2 for r in rains) else None)
     parts = chunk_bands(chunk_parts, settings, storms)
     bands = []
     for k, storm in enumerate(inputs.storms):
@@ -135,6 +137,14 @@ def combine_uncertainty(project: Project, inputs: Inputs, chunk_parts: list[Chun
         ["draw", "range_source"]).sort_values("draw", kind="stable").reset_index(drop=True)
     return UncertaintyResult(settings, table, sensitivity, draws,
                              _tornado_ids(settings.sensitivity_subcatchments, coverage))
+
+
+def _places(inputs: Inputs) -> NDArray[np.float64]:
+    """Each subcatchment's place along a Hilbert curve through the centroids (as chunks go)."""
+    geoms = inputs.subcatchments.geometry
+    centroids = gpd.GeoSeries(geoms.centroid.values, crs=None)
+    return np.asarray(centroids.hilbert_distance(total_bounds=geoms.total_bounds),
+                      dtype=np.float64)
 
 
 def _first_share(parts: list[ChunkUncertainty], position: pd.Series, storm: int, k: int,

@@ -21,6 +21,7 @@ from gisrun.uncertainty import (
     ChunkInputs,
     RangeSettings,
     analyse_chunk,
+    blocks,
     chunk_bands,
     prepare_parts,
     sampling,
@@ -184,22 +185,27 @@ def test_rows_are_distinct_per_part_and_rain_column():
 
 @pytest.mark.parametrize("method", METHODS)
 def test_engine_calls_of_any_size_give_the_same_bands(monkeypatch, method):
-    # a table longer than an engine call is run in blocks of rows; the totals do not change
+    # a table longer than an engine call is run in blocks of rows (and an areal storm's table in
+    # blocks served chunk by chunk); the totals do not change
     params = _params(method=method)
     columns = np.column_stack([RAIN, 0.4 * RAIN, np.roll(RAIN, 3)])
     rains = {"uniform": RAIN, "areal": columns}
     whole = _analyse(params, rains, _scale(params))
     monkeypatch.setattr(sampling, "BATCH_ROWS", 3)
-    blocks = _analyse(params, rains, _scale(params))
-    for a, b in zip(whole.bands, blocks.bands, strict=True):
+    monkeypatch.setattr(blocks, "BLOCK_ROWS", 4)
+    cut = _analyse(params, rains, _scale(params))
+    for a, b in zip(whole.bands, cut.bands, strict=True):
         _same(a, b, method)
-    _same(whole.sensitivity, blocks.sensitivity, method)
+    _same(whole.sensitivity, cut.sensitivity, method)
 
 
-def test_bands_do_not_depend_on_how_the_subcatchments_are_chunked():
+@pytest.mark.parametrize("block_rows", [blocks.BLOCK_ROWS, 2])
+def test_bands_do_not_depend_on_how_the_subcatchments_are_chunked(monkeypatch, block_rows):
     # the same units in one chunk and in two: the areal storm's table is gathered from every
-    # chunk in key order, so every engine call, and every band, is the same (exactly, even for
-    # Green-Ampt, whose last bits depend on the other rows of a call)
+    # chunk in key order and cut into blocks by the table alone, so every engine call, and
+    # every band, is the same (exactly, even for Green-Ampt, whose last bits depend on the
+    # other rows of a call); blocks of 2 rows make chunks share blocks and blocks serve chunks
+    monkeypatch.setattr(blocks, "BLOCK_ROWS", block_rows)
     params = _params()
     scale = _scale(params)
     columns = np.column_stack([RAIN, 0.4 * RAIN, RAIN])  # S1 and S3 on one gauge
@@ -227,3 +233,28 @@ def test_bands_do_not_depend_on_how_the_subcatchments_are_chunked():
     one, two = bands([list(SUBS)]), bands([["S3", "S1"], ["S2"]])
     for a, b in zip(one, two, strict=True):
         pd.testing.assert_frame_equal(a, b, check_exact=True)
+
+
+def test_each_block_of_an_areal_table_is_run_once(monkeypatch):
+    # three chunks of one subcatchment each under three different columns, blocks of 2 rows:
+    # a block is run when its first chunk comes and kept for the others, never run again
+    params = _params()
+    columns = np.column_stack([RAIN, 0.4 * RAIN, 1.5 * RAIN])
+    units = [run_storm(params, STORM, DT, sub_ids=SUBS, rain_per_step_m=columns).units]
+    parts = []
+    for sid in SUBS:
+        at = (params["subcatchment_id"] == sid).to_numpy()
+        chunk = ChunkInputs(np.array([sid], dtype=object), ("areal",), (columns,), DT, RANGES)
+        parts.append(prepare_parts(params[at], chunk, [units[0][at]]))
+    runs, real = [], blocks.run_samples
+
+    def counted(table, *args, **kwargs):
+        runs.append(len(table.frame))
+        return real(table, *args, **kwargs)
+
+    monkeypatch.setattr(blocks, "run_samples", counted)
+    monkeypatch.setattr(blocks, "BLOCK_ROWS", 2)
+    storms = BandStorms(("areal",), (columns,), DT, 0.3, tuple(np.array([i]) for i in range(3)))
+    chunk_bands(parts, SETTINGS, storms)
+    table, _ = column_rows(parts, storms.columns, columns)
+    assert sum(runs) == len(table.frame) > 2 and max(runs) <= 2
