@@ -84,13 +84,13 @@ def write_raster(path: Path, codes: np.ndarray, *, crs: str | None = CRS,
 
 def write_rain_grid(path: Path, *, width_m: float = 100.0, minutes: list[float] | None = None,
                     time_units: str = "minutes since 2026-07-01 00:00:00",
-                    units: str = "mm h-1", nodata_at: tuple[int, int, int] | None = None
-                    ) -> Path:
+                    units: str = "mm h-1", nodata_at: tuple[int, int, int] | None = None,
+                    value: float = 10.0) -> Path:
     """A CF NetCDF rain grid (xarray) of 25 m cells over the tiny project, ``width_m`` wide."""
     minutes = [5.0, 10.0, 15.0] if minutes is None else minutes
     x = X0 + 12.5 + 25.0 * np.arange(int(width_m // 25))
     y = Y0 + 100.0 - 12.5 - 25.0 * np.arange(4)
-    values = np.full((len(minutes), y.size, x.size), 10.0)
+    values = np.full((len(minutes), y.size, x.size), value)
     if nodata_at is not None:
         values[nodata_at] = np.nan
     ds = xr.Dataset(

@@ -202,11 +202,13 @@ def test_areal_storm_gets_a_rain_map_and_weights_in_run_info(demo, tmp_path):
     assert "one invented gauge" in info.loc[info["key"] == "areal_rain", "value"].iloc[0]
 
 
-def test_uncertainty_bands_refuse_an_areal_storm(demo):
+def test_uncertainty_bands_take_an_areal_storm_and_still_check_tornado_ids(demo):
+    # bands are made for a storm of areal rain too (tests/uncertainty/test_uncertainty_areal.py)
     project, inputs = demo
     storm = _uniform_areal(inputs, lambda _: inputs.storms[0].depth_m)
     ranges = SimpleNamespace(sensitivity_subcatchments=())  # any [uncertainty] table
-    sampled = dataclasses.replace(project, uncertainty=ranges)
-    with pytest.raises(InputError, match="cannot sample storm 'observed_event'"):
-        check_named_ids(sampled, dataclasses.replace(inputs, storms=(storm,)))
-    check_named_ids(sampled, inputs)  # a storm of one series is sampled as before
+    areal = dataclasses.replace(inputs, storms=(storm,))
+    check_named_ids(dataclasses.replace(project, uncertainty=ranges), areal)
+    unknown = SimpleNamespace(sensitivity_subcatchments=("no_such_id",))
+    with pytest.raises(InputError, match="names subcatchment 'no_such_id'"):
+        check_named_ids(dataclasses.replace(project, uncertainty=unknown), areal)

@@ -117,7 +117,8 @@ def test_never_ponding_is_null_in_the_file(demo_output):
 
 def test_cli_prints_summary_caution_and_json(tmp_path, capsys):
     out = tmp_path / "a.gpkg"
-    assert main(["run", str(DEMO), "--output", str(out)]) == 0
+    # the maps and report are not what this checks: --no-extras keeps it quick
+    assert main(["run", str(DEMO), "--output", str(out), "--no-extras"]) == 0
     text = capsys.readouterr()
     assert "licensed engineer" in text.out and str(out) in text.out
     # a second run without --overwrite stops and keeps the file
@@ -125,7 +126,8 @@ def test_cli_prints_summary_caution_and_json(tmp_path, capsys):
     assert main(["run", str(DEMO), "--output", str(out)]) == 2
     assert "already exists" in capsys.readouterr().err
     assert out.read_bytes() == before
-    assert main(["run", str(DEMO), "--output", str(out), "--overwrite", "--json"]) == 0
+    assert main(["run", str(DEMO), "--output", str(out), "--overwrite", "--json",
+                 "--no-extras"]) == 0
     summary = json.loads(capsys.readouterr().out)
     assert summary["subcatchments"] == len(gpd.read_file(DEMO / "subcatchments.gpkg"))
     assert summary["caution"]

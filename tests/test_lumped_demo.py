@@ -78,11 +78,14 @@ def test_equivalent_parameters_rerun_lumped_reproduce_gisrun_runoff(demo_run):
     assert len(check) == 85 * len(result.storms)  # every subcatchment and storm
     miss = np.abs(check["lumped_m"] - check["runoff_depth_m"])
     allowed = np.maximum(TOLERANCE * check["runoff_depth_m"], ZERO_M)
-    worst = check.assign(miss=miss / allowed).sort_values("miss").tail(3)
-    assert (miss <= allowed).all(), worst
+    # only the rows that miss, with how many times the tolerance they miss by
+    over = check.assign(times_allowed=miss / allowed)[miss > allowed]
+    assert over.empty, over.to_string()
     assert set(check["method"]) >= {method}
+    # every row reproduced, so no note may say that no value gives the runoff (or that it
+    # jumps past it); the rows lowered in turn are among those re-run above
     notes = result.lumped_parameters["note"].astype(str)
-    assert not notes.str.contains("any value").any()
+    assert not notes.str.contains("any value|jumps past").any()
 
 
 def test_fitted_set_beats_the_area_weighted_set(demo_run):

@@ -96,3 +96,28 @@ def test_check_names_the_grid_and_run_writes_its_weights(tmp_path, capsys):
     np.testing.assert_allclose(weights["weight"], 1 / 8, rtol=1e-12)
     west = set(weights.loc[weights["subcatchment_id"] == "S1", "source_id"])
     assert west == {f"r{r}_c{c}" for r in range(4) for c in (0, 1)}
+
+
+def test_check_and_run_make_runoff_bands_for_a_rain_grid_storm(tmp_path, capsys):
+    # [uncertainty] with a storm of areal rain: check raises nothing, and the run's bands of a
+    # uniform grid are those of the same rain given as one series (the exact comparison is in
+    # tests/uncertainty/test_uncertainty_areal.py; here both go through the 6-digit output)
+    folder = tmp_path / "p"
+    make_project(folder)
+    write_rain_grid(folder / "rain.nc", minutes=[5.0 * k for k in range(1, 13)], value=60.0)
+    (folder / "storm.csv").write_text("time_min,intensity_mm_per_h\n0,0\n"
+                                      + "".join(f"{5 * k},60\n" for k in range(1, 13)))
+    with open(folder / "gisrun.toml", "a") as handle:
+        handle.write('\n[[storms]]\nname = "radar"\nkind = "rain_grid"\npath = "rain.nc"\n'
+                     "\n[uncertainty]\nsamples = 8\nseed = 5\n")
+    code, out, err = run_cli(capsys, ["check", str(folder)])
+    assert code == 0, err + out
+    code, out, err = run_cli(capsys, ["run", str(folder), "--no-extras", "--quiet"])
+    assert code == 0, err
+    bands = pyogrio.read_dataframe(folder / "out" / "result.gpkg", layer="runoff_bands")
+    steady, radar = (bands[bands["storm"] == s].set_index("subcatchment_id").sort_index()
+                     for s in ("steady", "radar"))
+    assert list(radar.index) == ["S1", "S2"]
+    columns = [c for c in bands.columns if c.startswith(("runoff_depth_p", "runoff_volume_p"))]
+    assert (radar["runoff_depth_p90_mm"] > radar["runoff_depth_p10_mm"]).all()
+    np.testing.assert_allclose(radar[columns], steady[columns], rtol=1e-5)

@@ -91,6 +91,16 @@ def test_every_method_module_declares_what_the_registry_needs():
         columns = {p.column for p in module.PARAMETERS}
         for p in module.PARAMETERS:  # a bound names another parameter of the method
             assert p.at_most is None or p.at_most in columns
+        declared = {p.column: p for p in module.PARAMETERS}
+        # lowering in turn: another parameter of the method, no loop, and only depths and
+        # rates (lowering them gives more runoff; the search looks below the mean value)
+        for p in module.PARAMETERS:
+            seen = {p.column}
+            while p.then_lower is not None:
+                assert p.then_lower in declared and p.then_lower not in seen
+                p = declared[p.then_lower]
+                seen.add(p.column)
+                assert p.unit in ("m/s", "m") and p.in_frame and not p.allowed
         for p in module.PARAMETERS:  # every default names a rule that exists
             assert p.default in RULES or p.default.startswith(("run_antecedent", "table:"))
             assert not isinstance(p.impervious, str) or p.impervious in IMPERVIOUS_RULES

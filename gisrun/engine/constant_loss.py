@@ -59,8 +59,10 @@ ORDER = 40
 #: Parameters (declarations; see :mod:`gisrun.engine.declare`).
 PARAMETERS: tuple[Parameter, ...] = (
     Parameter("initial_loss_m", "m", default="initial_loss",
-              impervious="impervious_storage_as_initial_loss"),
-    Parameter("constant_loss_m_per_s", "m/s", default="group_min_infiltration", equivalent=True),
+              impervious="impervious_storage_as_initial_loss",
+              then_lower=DEPRESSION_STORAGE.column),
+    Parameter("constant_loss_m_per_s", "m/s", default="group_min_infiltration", equivalent=True,
+              then_lower="initial_loss_m"),
     DEPRESSION_STORAGE,
 )
 

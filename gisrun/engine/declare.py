@@ -73,7 +73,14 @@ class Parameter:
         value); the method's other parameters keep their area-weighted values.
     at_most : str, optional
         Column of the same unit whose value bounds this one from above (Horton
-        ``fc <= f0``); the search for an equivalent value stays below it.
+        ``fc <= f0``); the search for an equivalent value stays below it, and
+        a search of that column stays above this one's value.
+    then_lower : str, optional
+        Column of the same method lowered next when no value of this one gives a
+        lumped set enough runoff (at its lowest it still gives too little, or the
+        runoff jumps past the target at a value): this one is held where its
+        runoff falls short and the next is searched below its area-weighted
+        value (constant loss: rate, then initial loss, then depression storage).
     """
 
     column: str
@@ -91,6 +98,7 @@ class Parameter:
     overridable: bool = True
     equivalent: bool = False
     at_most: str | None = None
+    then_lower: str | None = None
 
     def read(self, frame: pd.DataFrame) -> FloatArray:
         """The column from the unit parameter frame as float64, range-checked.

@@ -99,7 +99,7 @@ ORDER = 10
 #: Parameters (declarations; see :mod:`gisrun.engine.declare`).
 PARAMETERS: tuple[Parameter, ...] = (
     Parameter("ks_m_per_s", "m/s", default="texture_green_ampt", positive_when_pervious=True,
-              equivalent=True),
+              equivalent=True, then_lower=DEPRESSION_STORAGE.column),
     Parameter("suction_head_m", "m", default="texture_green_ampt", composite="pervious_area"),
     Parameter("moisture_deficit", "-", default="moisture_deficit", high=1.0,
               composite="pervious_area"),

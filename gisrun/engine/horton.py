@@ -84,9 +84,10 @@ ORDER = 20
 #: Parameters (declarations; see :mod:`gisrun.engine.declare`).
 PARAMETERS: tuple[Parameter, ...] = (
     DEPRESSION_STORAGE,
-    Parameter("horton_f0_m_per_s", "m/s", default="group_horton"),
+    Parameter("horton_f0_m_per_s", "m/s", default="group_horton",
+              then_lower=DEPRESSION_STORAGE.column),
     Parameter("horton_fc_m_per_s", "m/s", default="group_horton", equivalent=True,
-              at_most="horton_f0_m_per_s"),
+              at_most="horton_f0_m_per_s", then_lower="horton_f0_m_per_s"),
     Parameter("horton_decay_per_s", "1/s", default="group_horton", composite="pervious_area"),
     Parameter("horton_recovery_per_s", "1/s", default="group_horton_recovery", missing=0.0,
               composite="pervious_area"),

@@ -64,7 +64,8 @@ ORDER = 50
 
 #: Parameters (declarations; see :mod:`gisrun.engine.declare`).
 PARAMETERS: tuple[Parameter, ...] = (
-    Parameter("phi_index_m_per_s", "m/s", default="group_min_infiltration", equivalent=True),
+    Parameter("phi_index_m_per_s", "m/s", default="group_min_infiltration", equivalent=True,
+              then_lower=DEPRESSION_STORAGE.column),
     DEPRESSION_STORAGE,
 )
 

@@ -18,8 +18,11 @@ per-unit runoff:
     area-weighted. The curve number uses the closed-form inverse of the runoff
     equation (Hawkins 1993, :func:`gisrun.engine.curve_number.equivalent_for_runoff`);
     the rates a bracketed root search (:func:`gisrun.parameters.inverse.solve_for_depth`).
-    Where no value reproduces the runoff, the nearest bound is given and the note
-    says so; the difference column holds the residual.
+    Where no value of it gives enough runoff, the parameters it declares next
+    (``Parameter.then_lower``) are lowered in turn
+    (:mod:`gisrun.parameters.storm_equivalent`); where nothing reproduces the
+    runoff, the value coming nearest is given and the note says why; the
+    difference column holds the residual.
 ``fitted``
     One value of the equivalent parameter for all storms of the run, fitted by
     least squares on runoff depth (:func:`gisrun.parameters.inverse.fit_least_squares`),
@@ -39,21 +42,13 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from ..engine import ENGINES, PARAMETERS, Parameter
-from .inverse import (
-    ABOVE_REACH,
-    BELOW_REACH,
-    DEPTH_TOLERANCE_M,
-    NO_RAIN,
-    REPRODUCED,
-    Search,
-    fit_least_squares,
-    solve_for_depth,
-)
+from ..engine import ENGINES, Parameter
+from .inverse import REPRODUCED, fit_least_squares
 from .lumping import LumpedRunner, LumpedUnits, lump_units
+from .storm_equivalent import LOWERED, equivalent_values, search_bounds
 
-__all__ = ["BASES", "ALL_STORMS", "IMPERVIOUS_FRACTION", "NO_PERVIOUS_AREA", "StormRunoff",
-           "table_parameters", "lumped_parameters", "LUMPED_COLUMNS"]
+__all__ = ["BASES", "ALL_STORMS", "IMPERVIOUS_FRACTION", "NO_PERVIOUS_AREA", "LOWERED",
+           "StormRunoff", "table_parameters", "lumped_parameters", "LUMPED_COLUMNS"]
 
 FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.intp]
@@ -65,15 +60,10 @@ ALL_STORMS = "all storms"
 #: The parameter row giving the impervious share of the modelled area.
 IMPERVIOUS_FRACTION = "impervious_fraction"
 NO_PERVIOUS_AREA = "no pervious area: nothing to solve for"
-#: Note of an equivalent set whose bounding parameter was lowered too (see :func:`_equivalent`).
-LOWERED = "lowest value gives too little runoff: its upper bound lowered too"
 #: Columns of the lumped parameter table (SI), in order.
 LUMPED_COLUMNS = ("subcatchment_id", "loss_method", "basis", "storm", "surface", "parameter",
                   "value", "runoff_depth_m", "lumped_runoff_depth_m", "lumped_difference_m",
                   "note")
-#: Rate columns searched up to this many times their area-weighted value, then further.
-_HIGH_FACTOR = 1e3
-_LARGEST_RATE_M_PER_S = 1.0
 
 
 @dataclass(frozen=True)
@@ -160,7 +150,7 @@ def _method_sets(runner: LumpedRunner, targets: FloatArray, names: list[str], *,
     sets: list[tuple[str, dict[str, FloatArray], NDArray[np.object_]]] = [
         ("area_weighted", {}, none)]
     if solve and solved is not None:
-        eq, notes = _equivalent(runner, solved, targets)
+        eq, notes = equivalent_values(runner, solved, targets)
         fit = _fitted(runner, solved, targets, eq[solved.column])
         sets += [("equivalent", eq, notes),
                  ("fitted", {solved.column: np.broadcast_to(fit, (n_storms, n))}, none)]
@@ -200,95 +190,6 @@ def _lumped_depth(runner: LumpedRunner, sets: list[dict[str, FloatArray]], n_sto
     return runner.whole_depth(depth, subs, storms).reshape(len(sets), n_storms, n)
 
 
-def _search(runner: LumpedRunner, solved: Parameter, subs: IntArray) -> Search:
-    """Bounds of the equivalent value of subcatchments ``subs``."""
-    u = runner.units
-    rate = solved.unit == "m/s"
-    low = solved.low + (1e-6 if solved.low_open else 0.0)
-    cap = min(solved.high, _LARGEST_RATE_M_PER_S) if rate else solved.high
-    aw = u.pervious[solved.column].to_numpy(float)[subs]
-    high = np.minimum(np.maximum(aw, 1e-6) * _HIGH_FACTOR, cap) if rate else np.full(
-        len(subs), cap if np.isfinite(cap) else _HIGH_FACTOR * max(np.max(aw), 1.0))
-    if solved.at_most is not None:
-        high = np.minimum(high, u.pervious[solved.at_most].to_numpy(float)[subs])
-    return Search(np.full(len(subs), low), np.maximum(high, low), log=rate)
-
-
-def _pervious_targets(runner: LumpedRunner, targets: FloatArray) -> FloatArray:
-    """The pervious unit's runoff (storms, subs) that makes the lumped runoff gisrun's."""
-    u = runner.units
-    perv = u.pervious_area_m2
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return (u.area_m2 * targets - u.impervious_area_m2 * runner.impervious_depth) / perv
-
-
-def _equivalent(runner: LumpedRunner, solved: Parameter, targets: FloatArray
-                ) -> tuple[dict[str, FloatArray], NDArray[np.object_]]:
-    """Per storm and subcatchment, the equivalent value(s) and a note.
-
-    Where even the solved parameter's lowest value gives too little runoff and it
-    is bounded by another parameter (``at_most``: Horton ``fc <= f0``), that one is
-    lowered too, with the solved one at its lowest (:data:`LOWERED`).
-    """
-    u = runner.units
-    n_storms, n = targets.shape
-    goal = _pervious_targets(runner, targets)
-    values = {solved.column: np.full((n_storms, n), np.nan)}
-    notes = np.full((n_storms, n), REPRODUCED, dtype=object)
-    notes[runner.rain_total <= 0] = NO_RAIN
-    storms, subs = np.nonzero((runner.rain_total > 0) & (u.pervious_area_m2 > 0)[None, :])
-    if not subs.size:
-        return values, notes
-    inverse = getattr(ENGINES[runner.method], "equivalent_for_runoff", None)
-    if inverse is not None:
-        found, said = _closed_form(inverse, runner, goal[storms, subs], subs, storms)
-    else:
-        found, said = _searched(runner, solved, goal[storms, subs], subs, storms)
-    values[solved.column][storms, subs] = found
-    notes[storms, subs] = said
-    above = np.flatnonzero(np.asarray(said, dtype=object) == ABOVE_REACH)
-    if solved.at_most is not None and above.size:
-        bound = PARAMETERS[solved.at_most]
-        s, k = subs[above], storms[above]
-        lowered, said = _searched(runner, bound, goal[k, s], s, k,
-                                  fixed=(solved.column, found[above]))
-        values[bound.column] = np.full((n_storms, n), np.nan)
-        values[bound.column][k, s] = lowered
-        notes[k, s] = [LOWERED if note == REPRODUCED else note for note in said]
-    return values, notes
-
-
-def _closed_form(inverse: Any, runner: LumpedRunner, goal: FloatArray, subs: IntArray,
-                 storms: IntArray) -> tuple[FloatArray, list[str]]:
-    rain = runner.rain_total[storms, subs]
-    frame = runner.units.pervious.iloc[subs].reset_index(drop=True)
-    notes = np.where(goal > rain + DEPTH_TOLERANCE_M, ABOVE_REACH,
-                     np.where(goal < -DEPTH_TOLERANCE_M, BELOW_REACH, REPRODUCED))
-    return inverse(frame, rain, goal), list(notes)
-
-
-def _searched(runner: LumpedRunner, solved: Parameter, goal: FloatArray, subs: IntArray,
-              storms: IntArray, fixed: tuple[str, FloatArray] | None = None
-              ) -> tuple[FloatArray, list[str]]:
-    """Root search of ``solved`` for each (subcatchment, storm) problem.
-
-    ``fixed`` (column, values per problem) holds another column at given values
-    while ``solved`` is searched below its area-weighted value.
-    """
-    search = _search(runner, solved, subs)
-    if fixed is not None:  # lowering a bound: search below its area-weighted value only
-        aw = runner.units.pervious[solved.column].to_numpy(float)[subs]
-        search = Search(search.low, np.maximum(aw, search.low), log=search.log)
-
-    def depth(values: FloatArray, which: IntArray) -> FloatArray:
-        extra = None if fixed is None else (fixed[0], fixed[1][which])
-        return runner.pervious_depth(solved.column, values, subs[which], storms[which],
-                                     extra=extra)
-
-    values, notes = solve_for_depth(depth, goal, search)
-    return values, notes
-
-
 def _fitted(runner: LumpedRunner, solved: Parameter, targets: FloatArray, eq: FloatArray
             ) -> FloatArray:
     """One value per subcatchment for all storms, least squares on the subcatchment runoff."""
@@ -298,7 +199,7 @@ def _fitted(runner: LumpedRunner, solved: Parameter, targets: FloatArray, eq: Fl
     subs = np.flatnonzero((u.pervious_area_m2 > 0) & np.isfinite(eq).any(axis=0))
     if not subs.size:
         return out
-    search = _search(runner, solved, subs)
+    search = search_bounds(runner, solved, subs)
     span = (np.nanmin(eq[:, subs], axis=0), np.nanmax(eq[:, subs], axis=0))
 
     def depths(values: FloatArray, which: IntArray) -> FloatArray:

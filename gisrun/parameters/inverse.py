@@ -15,7 +15,13 @@ Root search
     threshold is found by sectioning (a kink there defeats interpolation) and the
     value given is the smallest found that gives the target exactly. A target
     outside what any value in the bounds gives is reported as such, with the
-    bound that comes nearest.
+    bound that comes nearest. Every value found is checked against its target
+    relative to the target (:data:`REPRODUCE_RTOL`): a search that stopped on
+    its bracket width short of that is bisected on to the resolution of floats;
+    a depth that still misses jumps past the target there (a step function of
+    the value: Horton's capacity recovers only in steps without supply, so the
+    step in which depression storage runs dry switches a whole step of recovery
+    on or off), which is reported as such, with the value just short of it.
 Least-squares fit
     :func:`fit_least_squares` finds one value per problem that minimizes the sum
     of squared depth differences over several storms: a grid over the range the
@@ -34,13 +40,14 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 from scipy.optimize import elementwise
 
-__all__ = ["REPRODUCED", "ABOVE_REACH", "BELOW_REACH", "NO_RAIN", "Search", "solve_for_depth",
-           "fit_least_squares"]
+__all__ = ["REPRODUCED", "ABOVE_REACH", "BELOW_REACH", "JUMPS_PAST", "NO_RAIN", "SHORT",
+           "REPRODUCE_RTOL", "Search", "solve_for_depth", "reproduces", "fit_least_squares"]
 
 FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.intp]
@@ -53,10 +60,21 @@ StormsFunction = Callable[[FloatArray, IntArray], FloatArray]
 REPRODUCED = ""
 ABOVE_REACH = "runoff above what any value gives: value at its bound"
 BELOW_REACH = "runoff below what any value gives: value at its bound"
+JUMPS_PAST = "runoff jumps past gisrun's at this value: the value just short of it"
 NO_RAIN = "no rain: every value gives the same runoff"
+#: Outcomes whose value gives less runoff than the target (more is only had from another
+#: parameter).
+SHORT = (ABOVE_REACH, JUMPS_PAST)
 
 #: Depth (m) within which a bound is taken to give the target itself.
 DEPTH_TOLERANCE_M = 1e-12
+#: Share of the target depth within which a value found gives the target: far inside what
+#: the depths are wanted to, on the smallest runoff as on the largest.
+REPRODUCE_RTOL = 1e-6
+#: ...down to this depth (m), some ten thousand times the rounding of a depth of rain.
+_REPRODUCE_FLOOR_M = 1e-15
+#: Most halvings of a bracket after the root search: from its width to float resolution.
+_MOST_HALVINGS = 200
 #: Sections per round and rounds of the threshold search: 16**5, about 1e6 times narrower.
 _SECTIONS = 16
 _SECTION_ROUNDS = 5
@@ -94,6 +112,15 @@ class Search:
         return np.clip(values, self.low[problems], self.high[problems])
 
 
+def reproduces(depth: FloatArray, target: FloatArray) -> NDArray[np.bool_]:
+    """Whether each depth gives its target: within :data:`REPRODUCE_RTOL` of it (m)."""
+    return np.abs(depth - target) <= _tolerance(target)
+
+
+def _tolerance(target: FloatArray) -> FloatArray:
+    return np.maximum(_REPRODUCE_FLOOR_M, REPRODUCE_RTOL * np.abs(target))
+
+
 def solve_for_depth(depth: DepthFunction, target: FloatArray, search: Search
                     ) -> tuple[FloatArray, list[str]]:
     """The value giving each problem's target depth, and a note per problem.
@@ -111,8 +138,10 @@ def solve_for_depth(depth: DepthFunction, target: FloatArray, search: Search
     -------
     values : ndarray, shape (n,)
     notes : list of str
-        :data:`REPRODUCED`, or :data:`ABOVE_REACH` / :data:`BELOW_REACH` with the
-        value at the bound that comes nearest.
+        :data:`REPRODUCED` (the value's depth :func:`reproduces` the target),
+        :data:`ABOVE_REACH` / :data:`BELOW_REACH` with the value at the bound that
+        comes nearest, or :data:`JUMPS_PAST` with the value whose depth falls just
+        short of the target.
     """
     n = target.size
     every = np.arange(n)
@@ -126,38 +155,99 @@ def solve_for_depth(depth: DepthFunction, target: FloatArray, search: Search
     for i in np.flatnonzero(target < bottom - DEPTH_TOLERANCE_M):
         notes[i] = BELOW_REACH
     between = (target <= top + DEPTH_TOLERANCE_M) & (target >= bottom - DEPTH_TOLERANCE_M)
-    high_is_near = (miss_high <= DEPTH_TOLERANCE_M) & (at_high != target)
-    todo = np.flatnonzero(between & (miss_low > DEPTH_TOLERANCE_M) & ~high_is_near)
+    # a bound within DEPTH_TOLERANCE_M gives the target, if within its share of a tiny one too
+    low_is_near = (miss_low <= DEPTH_TOLERANCE_M) & reproduces(at_low, target)
+    high_is_near = ((miss_high <= DEPTH_TOLERANCE_M) & (at_high != target)
+                    & reproduces(at_high, target))
+    todo = np.flatnonzero(between & ~low_is_near & ~high_is_near)
     if todo.size:
-        values[todo] = _inside(depth, target, search, todo, at_high[todo] - target[todo])
+        values[todo], jumped = _inside(depth, target, search, todo,
+                                       (at_low[todo] - target[todo], at_high[todo] - target[todo]))
+        for i in todo[jumped]:
+            notes[i] = JUMPS_PAST
     return values, notes
 
 
 def _inside(depth: DepthFunction, target: FloatArray, search: Search, problems: IntArray,
-            g_hi: FloatArray) -> FloatArray:
-    """Values of problems whose target lies between the depths at their bounds.
+            g_ends: tuple[FloatArray, FloatArray]) -> tuple[FloatArray, NDArray[np.bool_]]:
+    """Values of problems whose target lies between the depths at their bounds, and jumps.
 
-    ``g_hi`` is the depth at the upper bound minus the target; 0 means the depth
-    is flat at the target up to the upper bound (no runoff for any larger rate),
-    and the value sought is where the flat part begins (:func:`_threshold`).
+    ``g_ends`` are the depths at the lower and upper bound minus the target; 0 at
+    the upper bound means the depth is flat at the target up to it (no runoff for
+    any larger rate), and the value sought is where the flat part begins
+    (:func:`_threshold`). A target reached only below the inner low of a log
+    scale is bisected for between the lower bound and the inner low.
     """
+    g_low, g_hi = g_ends
     lo_s = search.to_scale(search.inner_low()[problems])
     hi_s = search.to_scale(search.high[problems])
     g_lo = depth(search.from_scale(lo_s, problems), problems) - target[problems]
-    # g_lo == 0: the inner low gives the target; same signs: only values below it do (0)
+    # g_lo == 0: the inner low gives the target; same signs: only values below it do
     out = np.where(g_lo == 0.0, search.from_scale(lo_s, problems), search.low[problems])
+    jumped = np.zeros(problems.size, dtype=bool)
     flat = (g_hi == 0.0) & (g_lo != 0.0)
     root = (g_hi != 0.0) & (g_lo != 0.0) & (np.sign(g_lo) != np.sign(g_hi))
+    below = ~flat & ~root & (g_lo != 0.0) & ~reproduces(g_low + target[problems],
+                                                        target[problems])
     if root.any():
         def g(x: FloatArray, which: IntArray) -> FloatArray:
             return depth(search.from_scale(x, which), which) - target[which]
 
         res = elementwise.find_root(g, (lo_s[root], hi_s[root]), args=(problems[root],),
                                     tolerances=_TOLERANCES)
-        out[root] = search.from_scale(res.x, problems[root])
+        x, jumped[root] = _closer(g, res, problems[root], target)
+        out[root] = search.from_scale(x, problems[root])
     if flat.any():
         out[flat] = _threshold(depth, target, search, problems[flat], lo_s[flat], hi_s[flat])
-    return out
+    if below.any():
+        ends = (search.low[problems[below]], search.inner_low()[problems[below]])
+        out[below], jumped[below] = _bisect(
+            lambda v, which: depth(v, which) - target[which], ends,
+            (g_low[below], g_lo[below]), problems[below], target)
+    return out, jumped
+
+
+def _closer(g: DepthFunction, res: Any, problems: IntArray, target: FloatArray
+            ) -> tuple[FloatArray, NDArray[np.bool_]]:
+    """The roots found, bisected on where they stopped short of :func:`reproduces`."""
+    x, jumped = np.array(res.x, dtype=np.float64), np.zeros(problems.size, dtype=bool)
+    open_ = ~reproduces(res.f_x + target[problems], target[problems])
+    if open_.any():  # stopped on the bracket width: halve on to float resolution
+        ends = (res.bracket[0][open_], res.bracket[1][open_])
+        misses = (res.f_bracket[0][open_], res.f_bracket[1][open_])
+        x[open_], jumped[open_] = _bisect(g, ends, misses, problems[open_], target)
+    return x, jumped
+
+
+def _bisect(g: DepthFunction, ends: tuple[FloatArray, FloatArray],
+            misses: tuple[FloatArray, FloatArray], problems: IntArray, target: FloatArray
+            ) -> tuple[FloatArray, NDArray[np.bool_]]:
+    """Halve brackets until a midpoint gives the target or no float lies between the ends.
+
+    The misses ``g`` at the ends of each bracket have opposite signs. Where no float is
+    left between them, the depth jumps past the target there, and the end whose depth
+    falls short is given (second result True).
+    """
+    a, b = (np.array(e, dtype=np.float64) for e in ends)
+    g_a, g_b = (np.array(m, dtype=np.float64) for m in misses)
+    tol = _tolerance(target[problems])
+    found = np.full(a.size, np.nan)
+    live = np.arange(a.size)
+    for _ in range(_MOST_HALVINGS):
+        mid = a[live] + (b[live] - a[live]) / 2.0
+        split = (mid > np.minimum(a[live], b[live])) & (mid < np.maximum(a[live], b[live]))
+        live, mid = live[split], mid[split]
+        if not live.size:
+            break
+        g_mid = g(mid, problems[live])
+        hit = np.abs(g_mid) <= tol[live]
+        found[live[hit]] = mid[hit]
+        left = np.sign(g_mid) == np.sign(g_a[live])  # the root is between mid and b
+        a[live], g_a[live] = np.where(left, mid, a[live]), np.where(left, g_mid, g_a[live])
+        b[live], g_b[live] = np.where(left, b[live], mid), np.where(left, g_b[live], g_mid)
+        live = live[~hit]
+    jumped = np.isnan(found)
+    return np.where(jumped, np.where(g_a < 0, a, b), found), jumped
 
 
 def _threshold(depth: DepthFunction, target: FloatArray, search: Search, problems: IntArray,

@@ -20,6 +20,7 @@ other surface's values; its area is 0, so it adds nothing.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -237,15 +238,15 @@ class LumpedRunner:
         return rain
 
     def pervious_depth(self, column: str, values: FloatArray, subs: IntArray,
-                       storms: IntArray, *, extra: tuple[str, FloatArray] | None = None
+                       storms: IntArray, *, held: Mapping[str, FloatArray] | None = None
                        ) -> FloatArray:
         """Runoff depth (m) of the pervious units ``subs`` with ``column`` set to ``values``.
 
-        ``extra`` (column, values) sets one more column.
+        ``held`` (column -> values, one per row) sets more columns.
         """
         frame = self.units.pervious.iloc[subs].reset_index(drop=True)
-        if extra is not None:
-            frame[extra[0]] = extra[1]
+        for other, given in (held or {}).items():
+            frame[other] = given
         frame[column] = values
         return self.run(frame, subs, storms)
 

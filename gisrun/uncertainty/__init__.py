@@ -4,7 +4,9 @@ Every parameter gisrun assigns is a typical value for a class; the publications
 give its spread. This package samples the parameters within those ranges (Latin
 hypercube, :mod:`.sampler`; distributions stated in :mod:`.spread`; ranges and
 their sources in :mod:`.ranges`), runs every sample through the same engine once
-per distinct unit part of the whole run (:mod:`.sampling`, :mod:`.rowsets`), puts
+per distinct unit part of the whole run (:mod:`.sampling`, :mod:`.rowsets`; for a storm
+whose rain differs between subcatchments, once per distinct part and rain column,
+:mod:`.storm_rows`), puts
 the results back on each chunk's units (:mod:`.analysis`) and summarizes: percentiles of runoff
 depth, volume and time to ponding, the probability that a subcatchment ponds, how
 often it is among the first ``k`` to pond (:mod:`.summary`), and which parameter
@@ -30,10 +32,12 @@ from .ranges import RangeSettings, parameter_ranges
 from .rowsets import SampledRows, gather_rows, run_samples
 from .sampler import draw_columns
 from .spread import SPREADS, Spread, values_from_uniform
+from .storm_rows import BandStorms, uniform_rains
 from .summary import band_table, first_k_share, merge_first_k, percentile_label
 
 __all__ = [
     "SPREADS",
+    "BandStorms",
     "ChunkInputs",
     "ChunkParts",
     "ChunkUncertainty",
@@ -51,5 +55,6 @@ __all__ = [
     "prepare_parts",
     "run_samples",
     "percentile_label",
+    "uniform_rains",
     "values_from_uniform",
 ]

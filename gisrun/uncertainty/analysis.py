@@ -6,12 +6,13 @@ sample (:mod:`gisrun.uncertainty.rowsets`):
 1. :func:`prepare_parts` (in each chunk, after its storms): the distinct unit parts
    with their keys and ranges, and what the chunk's bands are made from (each unit's
    subcatchment and area, and the run's own per-unit runoff and ponding time);
-2. :func:`~gisrun.uncertainty.rowsets.gather_rows` and
-   :func:`~gisrun.uncertainty.rowsets.run_samples` (once for the run);
-3. :func:`chunk_bands` (per chunk): each sample's unit totals (the sample's where
-   the unit's part has a range, the run's own elsewhere) area-weighted to the
-   subcatchments with the run's weights, then percentiles, ponding probability,
-   each sample's first ``k`` to pond and the one-at-a-time table.
+2. the run-wide tables and their sample runs, storm by storm
+   (:func:`gisrun.uncertainty.storm_rows.storm_runs`: one table of parts for the storms
+   of one series, one of parts x rain columns per storm of areal rain);
+3. per chunk and storm (:func:`chunk_bands` does 2 and 3): each sample's unit totals
+   (the sample's where the unit's part has a range, the run's own elsewhere)
+   area-weighted to the subcatchments with the run's weights, then percentiles,
+   ponding probability, each sample's first ``k`` to pond and the one-at-a-time table.
 
 With no range anywhere every unit keeps the run's own totals, so the band is the
 run's result exactly, however the run was chunked. :func:`analyse_chunk` does all
@@ -31,10 +32,10 @@ from ..aggregate import area_weights
 from ..parameters.precedence import attribute_table, override_layers
 from ..project import UncertaintySettings
 from .ranges import Ranges, RangeSettings, parameter_ranges
-from .rowsets import SampledRows, gather_rows, run_samples
 from .sampling import DistinctParts, distinct_parts
-from .sensitivity import one_at_a_time
+from .sensitivity import ranked_swings, storm_swings
 from .spread import SPREADS
+from .storm_rows import BandStorms, StormRows, storm_runs
 from .summary import band_table, first_k
 
 __all__ = ["ChunkInputs", "ChunkParts", "ChunkUncertainty", "Aggregator", "analyse_chunk",
@@ -49,6 +50,7 @@ class ChunkInputs:
 
     sub_ids: NDArray[np.object_]
     storm_names: tuple[str, ...]
+    #: Per storm, ``(steps,)`` or ``(steps, subcatchments)`` in the order of ``sub_ids``.
     rains: tuple[FloatArray, ...]
     dt_s: float
     ranges: RangeSettings
@@ -166,49 +168,59 @@ class Aggregator:
         return out
 
 
-def unit_figures(part: ChunkParts, rows: SampledRows, storm: int, n_samples: int
+def unit_figures(part: ChunkParts, run: StormRows, storm: int, n_samples: int
                  ) -> tuple[FloatArray, FloatArray]:
-    """Every sample's unit runoff and ponding time: the sample's where ranged, else the run's."""
-    unit_row = _table_rows(part, rows)
-    ranged = unit_row >= 0
+    """Every sample's unit runoff and ponding time: the sample's where ranged, else the run's.
+
+    ``run`` is the storm's :class:`~gisrun.uncertainty.storm_rows.StormRows`, ``storm`` its
+    position among the chunk's storms.
+    """
+    ranged = run.unit_row >= 0
     runoff = np.repeat(part.run_runoff_m[storm][None, :], n_samples, axis=0)
     ponding = np.repeat(part.run_ponding_s[storm][None, :], n_samples, axis=0)
-    if ranged.any() and rows.samples:
-        runoff[:, ranged] = rows.samples[storm].runoff_depth_m[:, unit_row[ranged]]
-        ponding[:, ranged] = rows.samples[storm].time_to_ponding_s[:, unit_row[ranged]]
+    if ranged.any() and run.rows.samples:
+        figures = run.rows.samples[run.storm]
+        runoff[:, ranged] = figures.runoff_depth_m[:, run.unit_row[ranged]]
+        ponding[:, ranged] = figures.time_to_ponding_s[:, run.unit_row[ranged]]
     return runoff, ponding
 
 
-def _table_rows(part: ChunkParts, rows: SampledRows) -> NDArray[np.intp]:
-    """Each unit's row in the run-wide table, -1 where its part has no range."""
-    of_part = np.array([rows.index.get(k, -1) for k in part.parts.keys], dtype=np.intp)
-    return of_part[part.parts.inverse] if len(of_part) else np.full(0, -1, dtype=np.intp)
+def chunk_bands(parts: Sequence[ChunkParts], settings: UncertaintySettings,
+                storms: BandStorms) -> list[ChunkUncertainty]:
+    """Steps 2 and 3: the sample runs, then every chunk's bands, first-to-pond lists, sensitivity.
 
-
-def chunk_bands(part: ChunkParts, rows: SampledRows, settings: UncertaintySettings,
-                storm_names: Sequence[str]) -> ChunkUncertainty:
-    """Step 3: the chunk's bands, first-to-pond lists and sensitivity."""
-    agg = Aggregator(part)
-    unit_row = _table_rows(part, rows)
-    sensitivity = one_at_a_time(part, rows, agg, unit_row, storm_names)
-    bands, first = [], []
-    positions = np.arange(len(part.sub_ids))
-    for k, name in enumerate(storm_names):
-        runoff, ponding = unit_figures(part, rows, k, settings.samples)
-        depth, ponds = agg.depth(runoff), agg.ponding(ponding)
-        table = band_table(part.sub_ids, agg.area_m2, depth, ponds, settings.percentiles)
-        bands.append(_with_leader(table, sensitivity, name))
-        first.append(first_k(ponds, positions, settings.top_k))
-    return ChunkUncertainty(bands, first, sensitivity, draw_table(part.ranges), part.sub_ids)
+    Storm by storm (:func:`gisrun.uncertainty.storm_rows.storm_runs`), so a storm of areal
+    rain's sample totals are held only while its bands are made.
+    """
+    aggs = [Aggregator(part) for part in parts]
+    pieces: list[tuple[list, list, dict]] = [([], [], {}) for _ in parts]
+    for k, runs in enumerate(storm_runs(parts, settings, storms)):
+        for part, agg, run, (tables, first, swings) in zip(parts, aggs, runs, pieces,
+                                                            strict=True):
+            runoff, ponding = unit_figures(part, run, k, settings.samples)
+            depth, ponds = agg.depth(runoff), agg.ponding(ponding)
+            tables.append(band_table(part.sub_ids, agg.area_m2, depth, ponds,
+                                     settings.percentiles))
+            first.append(first_k(ponds, np.arange(len(part.sub_ids)), settings.top_k))
+            for column, frame in storm_swings(part, run, agg, k, storms.names[k]).items():
+                swings[column, k] = frame
+    out = []
+    for part, (tables, first, swings) in zip(parts, pieces, strict=True):
+        sensitivity = ranked_swings(swings)
+        bands = [_with_leader(t, sensitivity, name) for t, name in zip(tables, storms.names,
+                                                                       strict=True)]
+        out.append(ChunkUncertainty(bands, first, sensitivity, draw_table(part.ranges),
+                                    part.sub_ids))
+    return out
 
 
 def analyse_chunk(params: pd.DataFrame, chunk: ChunkInputs, settings: UncertaintySettings,
                   unit_results: Sequence[pd.DataFrame]) -> ChunkUncertainty:
     """All three steps for one chunk on its own (a run of one chunk, or a notebook)."""
     part = prepare_parts(params, chunk, unit_results)
-    rows = run_samples(gather_rows([part]), chunk.rains, chunk.dt_s, settings,
-                       saturation=chunk.ranges.initial_saturation)
-    return chunk_bands(part, rows, settings, chunk.storm_names)
+    storms = BandStorms(tuple(chunk.storm_names), tuple(chunk.rains), chunk.dt_s,
+                        chunk.ranges.initial_saturation)
+    return chunk_bands([part], settings, storms)[0]
 
 
 def _with_leader(bands: pd.DataFrame, sensitivity: pd.DataFrame, storm: str) -> pd.DataFrame:

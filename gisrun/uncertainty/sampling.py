@@ -14,7 +14,7 @@ a chunk. Rows without a range keep the run's own results.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -26,7 +26,7 @@ from .ranges import Ranges
 from .spread import SPREADS, values_from_uniform
 
 __all__ = ["DistinctParts", "distinct_parts", "sampled_values", "apply_values",
-           "run_row_sets", "RowFigures", "BATCH_ROWS"]
+           "run_row_sets", "RowFigures", "BATCH_ROWS", "LazySets"]
 
 FloatArray = NDArray[np.float64]
 _KEYS = ("soil_class", "cover_class", "surface", "hydrologic_soil_group", "loss_method")
@@ -138,29 +138,73 @@ class RowFigures:
     time_to_ponding_s: FloatArray
 
 
+class LazySets(Sequence):
+    """Parameter sets made when an engine call takes them (``make(i)`` gives set ``i``).
+
+    A table of many rows (rain that differs between subcatchments) would not fit in
+    memory as every sample's frame at once; the last set made is kept for a second look.
+    """
+
+    def __init__(self, count: int, make: Callable[[int], pd.DataFrame]) -> None:
+        self._count, self._make, self._last = count, make, (-1, None)
+
+    def __len__(self) -> int:
+        return self._count
+
+    def __getitem__(self, i: int) -> pd.DataFrame:
+        if self._last[0] != i:
+            self._last = (i, self._make(i))
+        return self._last[1]
+
+
 def run_row_sets(frames: Sequence[pd.DataFrame], rains: Sequence[FloatArray], dt_s: float, *,
-                 rain_scale: FloatArray | None = None) -> list[RowFigures]:
+                 rain_scale: FloatArray | None = None,
+                 rain_columns: NDArray[np.intp] | None = None) -> list[RowFigures]:
     """Run parameter sets of the same rows through every storm; per storm, each row's totals.
 
-    The sets are concatenated into engine calls of up to :data:`BATCH_ROWS` rows: the
-    engine's time loop costs per step, so one call over many sets costs little more
-    than one over one set. Ponding times of impervious rows are NaN (as in the unit
-    results: ponding describes pervious ground).
+    A storm's rain is one series for every row ``(steps,)``, or a matrix ``(steps,
+    columns)`` of which row ``i`` takes column ``rain_columns[i]`` (rain that differs
+    between subcatchments); ``rain_scale`` multiplies each row's rain as the run does
+    (:func:`gisrun.workflow.rain.unit_rain`). The sets are concatenated into engine calls
+    of up to :data:`BATCH_ROWS` rows: the engine's time loop costs per step, so one call
+    over many sets costs little more than one over one set; a table of more rows than that
+    runs each set in blocks of rows. Every call is fixed by the table alone, so a row's
+    totals are the same however the run was chunked. Ponding times of impervious rows are
+    NaN (as in the unit results: ponding describes pervious ground).
     """
-    n_rows = len(frames[0]) if frames else 0
-    per_call = max(1, BATCH_ROWS // max(n_rows, 1))
+    n_rows = len(frames[0]) if len(frames) else 0
     runoff = [np.empty((len(frames), n_rows)) for _ in rains]
     ponding = [np.empty((len(frames), n_rows)) for _ in rains]
+    per_call = max(1, BATCH_ROWS // max(n_rows, 1))
     for start in range(0, len(frames), per_call):
-        batch = list(frames[start:start + per_call])
+        sets = slice(start, min(start + per_call, len(frames)))
+        batch = [frames[s] for s in range(sets.start, sets.stop)]
         joined = pd.concat(batch, ignore_index=True) if len(batch) > 1 else batch[0]
-        impervious = (joined["surface"] == "impervious").to_numpy()
-        for k, rain in enumerate(rains):
-            if rain_scale is not None:
-                rain = rain[:, None] * np.tile(rain_scale, len(batch))[None, :]
-            loss = run_losses(joined, rain, dt_s)
-            done = slice(start, start + len(batch))
-            runoff[k][done] = loss.excess_m.sum(axis=0).reshape(len(batch), n_rows)
-            ponded = np.where(impervious, np.nan, loss.time_to_ponding_s)
-            ponding[k][done] = ponded.reshape(len(batch), n_rows)
+        for rows in _row_blocks(n_rows):
+            part = joined if rows.stop - rows.start == n_rows else joined.iloc[rows]
+            impervious = (part["surface"] == "impervious").to_numpy()
+            shape = (len(batch), rows.stop - rows.start)
+            for k, rain in enumerate(rains):
+                call_rain = _call_rain(rain, rain_scale, rain_columns, rows, len(batch))
+                loss = run_losses(part, call_rain, dt_s)
+                runoff[k][sets, rows] = loss.excess_m.sum(axis=0).reshape(shape)
+                ponded = np.where(impervious, np.nan, loss.time_to_ponding_s)
+                ponding[k][sets, rows] = ponded.reshape(shape)
     return [RowFigures(r, p) for r, p in zip(runoff, ponding, strict=True)]
+
+
+def _row_blocks(n_rows: int) -> Iterator[slice]:
+    """The rows of each engine call of one set: all of them, or blocks of :data:`BATCH_ROWS`."""
+    for start in range(0, max(n_rows, 1), BATCH_ROWS):
+        yield slice(start, min(start + BATCH_ROWS, n_rows))
+
+
+def _call_rain(rain: FloatArray, scale: FloatArray | None, columns: NDArray[np.intp] | None,
+               rows: slice, n_sets: int) -> FloatArray:
+    """Rain of one engine call: the given rows of ``n_sets`` sets, each row's rain scaled."""
+    if rain.ndim == 1:
+        return rain if scale is None else rain[:, None] * np.tile(scale[rows], n_sets)[None, :]
+    own = np.take(rain, columns[rows], axis=1)
+    if scale is not None:
+        own = own * scale[rows][None, :]
+    return own if n_sets == 1 else np.tile(own, (1, n_sets))

@@ -4,8 +4,9 @@ For every sampled parameter, the distinct unit parts that have a range for it ar
 set to the range's low end, then to its high end (one standard deviation, the
 10th/90th percentile for the curve number, the interval's ends for a uniform),
 every other parameter at the run's value, and each subcatchment's runoff depth is
-recorded (the run-wide runs are :func:`gisrun.uncertainty.rowsets.run_samples`;
-units whose part has no range for the parameter keep the run's own totals). The
+recorded (the runs are :func:`gisrun.uncertainty.rowsets.run_samples`, over the run-wide
+table or, for a storm of areal rain, the chunk's own rows; units whose part has no range for
+the parameter keep the run's own totals). The
 *swing* ``|high - low|`` ranks the parameters per subcatchment and storm: rank 1
 moves its runoff most. Draws of the same parameter move together (all textures at
 their low end at once), so the swing is the parameter's, not a texture's.
@@ -13,16 +14,14 @@ their low end at once), so the swing is the parameter's, not a texture's.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-
 import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from .rowsets import SampledRows
 from .spread import SPREADS
+from .storm_rows import StormRows
 
-__all__ = ["one_at_a_time", "SENSITIVITY_COLUMNS"]
+__all__ = ["storm_swings", "ranked_swings", "SENSITIVITY_COLUMNS"]
 
 #: Columns of the sensitivity table (SI).
 SENSITIVITY_COLUMNS = ("storm", "subcatchment_id", "parameter", "runoff_depth_m",
@@ -30,34 +29,43 @@ SENSITIVITY_COLUMNS = ("storm", "subcatchment_id", "parameter", "runoff_depth_m"
                        "runoff_depth_swing_m", "sensitivity_rank")
 
 
-def one_at_a_time(part: object, rows: SampledRows, agg: object, unit_row: NDArray[np.intp],
-                  storm_names: Sequence[str]) -> pd.DataFrame:
-    """Long table: per storm, subcatchment and sampled parameter, runoff at each range end.
+def storm_swings(part: object, run: StormRows, agg: object, storm: int, name: str
+                 ) -> dict[str, pd.DataFrame]:
+    """One storm's rows of the table, per sampled parameter: runoff at each range end.
 
     ``part`` is the chunk's :class:`~gisrun.uncertainty.analysis.ChunkParts`, ``agg`` its
-    :class:`~gisrun.uncertainty.analysis.Aggregator` and ``unit_row`` each unit's row in
-    the run-wide table (-1 where its part has no range). Only subcatchments with a part
+    :class:`~gisrun.uncertainty.analysis.Aggregator`, ``run`` where the storm's totals are
+    and ``storm`` its position among the chunk's storms. Only subcatchments with a part
     that has a range for the parameter get a row.
     """
-    frames = []
+    out = {}
     for column in SPREADS:
-        if column not in rows.at_low:
+        if column not in run.rows.at_low:
             continue
-        on = part.ranges.sampled(column)[part.parts.inverse] & (unit_row >= 0)
+        on = part.ranges.sampled(column)[part.parts.inverse] & (run.unit_row >= 0)
         if not on.any():
             continue
         has = np.asarray(agg.weights @ on.astype(float)).ravel() > 0
-        for k, storm in enumerate(storm_names):
-            run = part.run_runoff_m[k]
-            ends = []
-            for figures in (rows.at_low[column][k], rows.at_high[column][k]):
-                runoff = run.copy()
-                runoff[on] = figures.runoff_depth_m[0, unit_row[on]]
-                ends.append(agg.depth(runoff)[0])
-            frames.append(_rows(storm, column, part.sub_ids, has, agg.depth(run)[0], *ends))
-    if not frames:
+        own = part.run_runoff_m[storm]
+        ends = []
+        for figures in (run.rows.at_low[column][run.storm], run.rows.at_high[column][run.storm]):
+            runoff = own.copy()
+            runoff[on] = figures.runoff_depth_m[0, run.unit_row[on]]
+            ends.append(agg.depth(runoff)[0])
+        out[column] = _rows(name, column, part.sub_ids, has, agg.depth(own)[0], *ends)
+    return out
+
+
+def ranked_swings(swings: dict[tuple[str, int], pd.DataFrame]) -> pd.DataFrame:
+    """The long table from ``(parameter, storm position) -> rows``, ranked per storm and id.
+
+    Rows go parameter by parameter (in the order of ``SPREADS``), storm by storm.
+    """
+    if not swings:
         return pd.DataFrame({c: [] for c in SENSITIVITY_COLUMNS})
-    table = pd.concat(frames, ignore_index=True)
+    order = list(SPREADS)
+    keys = sorted(swings, key=lambda key: (order.index(key[0]), key[1]))
+    table = pd.concat([swings[key] for key in keys], ignore_index=True)
     rank = table.groupby(["storm", "subcatchment_id"], sort=False)["runoff_depth_swing_m"].rank(
         method="first", ascending=False)
     return table.assign(sensitivity_rank=rank.astype(np.int64))[list(SENSITIVITY_COLUMNS)]

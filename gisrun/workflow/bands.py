@@ -5,10 +5,10 @@ and the parameter work are the run's own) to distinct parts with their ranges an
 keeps the run's unit totals (:func:`chunk_uncertainty`,
 :func:`gisrun.uncertainty.prepare_parts`). After the last chunk,
 :func:`combine_uncertainty` runs every sample once over the sampled parts of the
-whole run (:func:`gisrun.uncertainty.run_samples`), makes each chunk's bands
-(:func:`gisrun.uncertainty.chunk_bands`), puts them in the layer's order, merges
-each sample's first-to-pond lists over the chunks and picks the subcatchments drawn
-as tornado figures.
+whole run (per distinct part and rain column for a storm of areal rain) and makes each
+chunk's bands (:func:`gisrun.uncertainty.chunk_bands`), puts them in the layer's order,
+merges each sample's first-to-pond lists over the chunks and picks the subcatchments
+drawn as tornado figures.
 """
 
 from __future__ import annotations
@@ -23,17 +23,16 @@ from ..errors import InputError
 from ..model import Inputs, StormResult, UncertaintyResult
 from ..project import Project
 from ..uncertainty import (
+    BandStorms,
     ChunkInputs,
     ChunkParts,
     ChunkUncertainty,
     RangeSettings,
     chunk_bands,
     first_k_share,
-    gather_rows,
     merge_first_k,
     parameter_ranges,
     prepare_parts,
-    run_samples,
 )
 from .steps import rain_scale_for_units, subcatchment_attributes
 
@@ -88,22 +87,13 @@ def _chunk_inputs(project: Project, inputs: Inputs, params: pd.DataFrame,
 def check_named_ids(project: Project, inputs: Inputs) -> None:
     """Stop before any work on a tornado subcatchment id the layer does not have.
 
-    Also stops on a storm whose rain differs between subcatchments (areal rain): the sampled
-    parts are shared across subcatchments, which such rain would not allow.
-
     Raises
     ------
     InputError
-        Naming ``[uncertainty] sensitivity_subcatchments`` and the first unknown id, or the
-        first storm of areal rain.
+        Naming ``[uncertainty] sensitivity_subcatchments`` and the first unknown id.
     """
     if project.uncertainty is None:
         return
-    areal = [h.name for h in inputs.storms if h.areal is not None]
-    if areal:
-        raise InputError(project.where("uncertainty"), f"cannot sample storm {areal[0]!r}, whose "
-                         "rain differs between subcatchments", "run the uncertainty bands in a "
-                         "project without that storm (remove [uncertainty] to run it)")
     known = set(inputs.subcatchments["subcatchment_id"].astype(str))
     for name in project.uncertainty.sensitivity_subcatchments:
         if name not in known:
@@ -124,12 +114,13 @@ def combine_uncertainty(project: Project, inputs: Inputs, chunk_parts: list[Chun
     settings = project.uncertainty
     if settings is None or not chunk_parts or any(p is None for p in chunk_parts):
         return None
-    rows = run_samples(gather_rows(chunk_parts), rains, project.time_step_s, settings,
-                       saturation=project.soil.initial_saturation)
-    names = [h.name for h in inputs.storms]
-    parts = [chunk_bands(p, rows, settings, names) for p in chunk_parts]
     ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
     position = pd.Series(np.arange(len(ids)), index=ids)
+    storms = BandStorms(tuple(h.name for h in inputs.storms), tuple(rains),
+                        project.time_step_s, project.soil.initial_saturation,
+                        columns=tuple(position.reindex(p.sub_ids).to_numpy(dtype=np.intp)
+                                      for p in chunk_parts))
+    parts = chunk_bands(chunk_parts, settings, storms)
     bands = []
     for k, storm in enumerate(inputs.storms):
         frame = ordered([p.bands[k] for p in parts])

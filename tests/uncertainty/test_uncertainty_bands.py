@@ -15,7 +15,7 @@ from gisrun.project import UncertaintySettings
 from gisrun.storm import Hyetograph
 from gisrun.uncertainty import ChunkInputs, RangeSettings, analyse_chunk
 from gisrun.uncertainty.analysis import Aggregator, prepare_parts, unit_figures
-from gisrun.uncertainty.rowsets import gather_rows, run_samples
+from gisrun.uncertainty.storm_rows import BandStorms, storm_runs
 from gisrun.uncertainty.summary import band_table
 from gisrun.workflow.steps import run_storm
 
@@ -58,12 +58,13 @@ def _part(params, storms=(STORM,)):
 def _figures(params, n=40, seed=1, storms=(STORM,), part=None):
     """Per storm, every sample's (runoff depth, time to ponding), (samples x subcatchments)."""
     part = part or _part(params, storms)
-    rows = run_samples(gather_rows([part]), [h.resample(DT) for h in storms], DT,
-                       UncertaintySettings(samples=n, seed=seed), saturation=0.3)
+    settings = UncertaintySettings(samples=n, seed=seed)
+    rains = tuple(h.resample(DT) for h in storms)
     agg = Aggregator(part)
     out = []
-    for k in range(len(storms)):
-        runoff, ponding = unit_figures(part, rows, k, n)
+    chunk = BandStorms(tuple(h.name for h in storms), rains, DT, 0.3)
+    for k, (run,) in enumerate(storm_runs([part], settings, chunk)):
+        runoff, ponding = unit_figures(part, run, k, n)
         out.append((agg.depth(runoff), agg.ponding(ponding)))
     return out
 
