@@ -20,12 +20,14 @@ import pytest
 
 from gisrun.errors import StormError
 from gisrun.io.factor_table import read_factor_table_csv
+from gisrun.present.reduction import reduction_line
 from gisrun.storm import AppliedReduction, FactorTable, reduced_storm, uniform
 from gisrun.storm.areal_reduction import (
     ReductionRangeError,
     arr2019_short_duration_equation,
     arr2019_short_duration_factor,
 )
+from gisrun.units import SI, US
 
 KM2, MI2_KM2 = 1e6, 2.589988110336  # 1 mi2 = (5280 x 0.3048 m)^2, exact by definition
 
@@ -174,3 +176,14 @@ def test_reduced_storm_gives_each_subcatchment_its_factor_times_the_point_rain(d
     assert reduced.total_depth_m == pytest.approx(0.012 * 3.4 / 4, rel=1e-12)
     one = reduced_storm(h, dataclasses.replace(applied, factor=np.ones(3)), 60.0, np.ones(3))
     assert one.areal is None and np.array_equal(one.depth_m, h.depth_m)
+
+
+def test_the_reduction_line_shows_areas_in_the_projects_units():
+    applied = AppliedReduction("arr2019_short_duration", "ARR 2019", "basin", 7200.0, 0.01,
+                               ("a", "b"), np.full(2, 5 * MI2_KM2 * KM2), np.full(2, 0.95))
+    us = reduction_line("s", applied, US)
+    assert "areal reduction factor 0.95 (arr2019_short_duration, at the whole" in us
+    assert ", 5 mi2, AEP 0.01, duration 120 min); source: ARR 2019" in us
+    assert f", {5 * MI2_KM2:.4g} km2," in reduction_line("s", applied, SI)
+    fixed = dataclasses.replace(applied, relation="fixed_factor")
+    assert "(fixed_factor, the same everywhere, AEP" in reduction_line("s", fixed, SI)
