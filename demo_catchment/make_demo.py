@@ -27,6 +27,9 @@ It writes, next to itself:
 - ``soil_map_units.tif``, ``soil_map_units.csv``, ``gisrun_map_units.toml``: the soil map as
   map-unit keys with an attribute table, and the project file that reads them
   (``map_units.py``).
+- ``areal_reduction.toml`` and ``storms/invented_area_factors.csv``: design storms reduced for
+  area (ARR 2019's short-duration relation, a fixed factor, and a factor table invented for the
+  demo; ``areal_storms.py``).
 
 The data exist to show the program working; they are never a test reference.
 """
@@ -42,6 +45,7 @@ import pyogrio
 import rasterio
 import shapely
 import xarray as xr
+from areal_storms import write_areal_reduction  # noqa: E402  (beside this script)
 from make_impervious import impervious_percent, write_impervious, write_scenario  # noqa: E402
 from map_units import write_map_units  # noqa: E402  (beside this script)
 from numpy.typing import NDArray
@@ -624,6 +628,8 @@ def main() -> None:
         polygon_project_text((HERE / "gisrun.toml").read_text(encoding="utf-8")),
         encoding="utf-8", newline="\n")
     write_map_units(HERE, SOIL_CODES)
+    write_areal_reduction(HERE / "gisrun.toml", HERE / "areal_reduction.toml",
+                          HERE / "storms" / "invented_area_factors.csv")
     print(f"{TOWN}: {len(subs)} subcatchments, {subs.area.sum() / 1e6:.2f} km2; "
           f"soil {soil.shape[1]}x{soil.shape[0]} @ {SOIL_CELL_M:g} m, "
           f"cover {cover.shape[1]}x{cover.shape[0]} @ {COVER_CELL_M:g} m; written to {HERE}")

@@ -12,6 +12,7 @@ ARF = 1 - 0.6614 (1 - ARF_10km2) (A^0.4 - 1), is from memory (no public copy fou
 continuity at 1 and 10 km2 is checked, which a typo in either constant would break.
 """
 
+import dataclasses
 import math
 
 import numpy as np
@@ -19,12 +20,14 @@ import pytest
 
 from gisrun.errors import StormError
 from gisrun.io.factor_table import read_factor_table_csv
-from gisrun.storm import FactorTable
+from gisrun.present.reduction import reduction_line
+from gisrun.storm import AppliedReduction, FactorTable, reduced_storm, uniform
 from gisrun.storm.areal_reduction import (
     ReductionRangeError,
     arr2019_short_duration_equation,
     arr2019_short_duration_factor,
 )
+from gisrun.units import SI, US
 
 KM2, MI2_KM2 = 1e6, 2.589988110336  # 1 mi2 = (5280 x 0.3048 m)^2, exact by definition
 
@@ -155,3 +158,32 @@ def test_a_bad_factor_table_is_named(tmp_path, text, match):
     with pytest.raises(StormError, match=match) as err:
         read_factor_table_csv(path)
     assert "f.csv" in str(err.value) and "\n" not in str(err.value)
+
+
+@pytest.mark.parametrize("duration_min", [60.0, 62.0])  # 62: a last step of 2 min
+def test_reduced_storm_gives_each_subcatchment_its_factor_times_the_point_rain(duration_min):
+    h = uniform(0.012, duration_min * 60, 300.0)
+    factor = np.array([1.0, 0.9, 0.75])
+    applied = AppliedReduction("fixed_factor", "test", "subcatchment", h.duration_s, None,
+                               ("a", "b", "c"), np.full(3, 2e6), factor)
+    reduced = reduced_storm(h, applied, 60.0, np.array([1.0, 1.0, 2.0]))
+    assert reduced.reduction is applied and reduced.name == h.name
+    point = h.resample(60.0)  # what a run sees of the unreduced storm, per step
+    got = reduced.areal.resample(60.0)
+    np.testing.assert_allclose(got, point[:, None] * factor[None, :], rtol=1e-12, atol=1e-18)
+    np.testing.assert_allclose(got.sum(axis=0), 0.012 * factor, rtol=1e-12)
+    # the storm's own series: the basin mean by area, (1 + 0.9 + 2 x 0.75) / 4 of the depth
+    assert reduced.total_depth_m == pytest.approx(0.012 * 3.4 / 4, rel=1e-12)
+    one = reduced_storm(h, dataclasses.replace(applied, factor=np.ones(3)), 60.0, np.ones(3))
+    assert one.areal is None and np.array_equal(one.depth_m, h.depth_m)
+
+
+def test_the_reduction_line_shows_areas_in_the_projects_units():
+    applied = AppliedReduction("arr2019_short_duration", "ARR 2019", "basin", 7200.0, 0.01,
+                               ("a", "b"), np.full(2, 5 * MI2_KM2 * KM2), np.full(2, 0.95))
+    us = reduction_line("s", applied, US)
+    assert "areal reduction factor 0.95 (arr2019_short_duration, at the whole" in us
+    assert ", 5 mi2, AEP 0.01, duration 120 min); source: ARR 2019" in us
+    assert f", {5 * MI2_KM2:.4g} km2," in reduction_line("s", applied, SI)
+    fixed = dataclasses.replace(applied, relation="fixed_factor")
+    assert "(fixed_factor, the same everywhere, AEP" in reduction_line("s", fixed, SI)

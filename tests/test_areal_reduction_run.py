@@ -19,6 +19,7 @@ from test_areal_reduction import printed_arr2019
 from gisrun import load_project, run, write_outputs
 from gisrun.config.storms import storm_from_config
 from gisrun.errors import StormError
+from gisrun.present.report_tables import storms_table
 from gisrun.units import SI
 
 UNIFORM = 'kind = "uniform"\ndepth = 10\nduration_min = 60\nstep_min = 5\n'
@@ -87,6 +88,9 @@ def test_each_subcatchment_rain_is_scaled_exactly_by_its_own_factor(tmp_path):
     info = pyogrio.read_dataframe(gpkg, layer="run_info", read_geometry=False)
     line = info.loc[info["key"] == "areal_reduction", "value"].iloc[0]
     assert "factor_table" in line and "factors.csv" in line and "duration 60 min" in line
+    shown = storms_table(result)  # the report's storms section names it too
+    assert "areal reduction factor" in shown and "factors.csv" in shown
+    assert "Rain per subcatchment" not in shown  # factors are no rain sources
 
 
 def test_basin_mode_gives_one_factor_from_the_whole_layer(tmp_path):

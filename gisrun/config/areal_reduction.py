@@ -101,8 +101,8 @@ def apply_reduction(h: Hyetograph, spec: ReductionSpec, subcatchments: gpd.GeoDa
                     step_s: float) -> Hyetograph:
     """The storm ``h`` reduced as ``spec`` says, for the subcatchments of the layer as read.
 
-    ``step_s`` is the run's step (factors that differ between subcatchments make areal rain
-    on it, :func:`gisrun.storm.reduced_storm`).
+    ``step_s`` is the run's step (factors that differ between subcatchments make areal rain on
+    it when the storm's own steps are not all one length, :func:`gisrun.storm.reduced_storm`).
 
     Raises
     ------

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import pandas as pd
 
-from ..storm import AppliedReduction
+from ..storm import RELATIONS, AppliedReduction
 from ..units import US, UnitSystem, from_si
 
 __all__ = ["reduction_line", "reduction_column", "FACTOR_COLUMN"]
@@ -32,11 +32,12 @@ def reduction_line(name: str, applied: AppliedReduction, system: UnitSystem,
     area = from_si(applied.area_m2, unit)
     whose = ("each subcatchment's own area" if applied.over == "subcatchment"
              else "the whole subcatchment layer's area")
+    where = (f"at {whose}, {_range(area.min(), area.max())} {unit}"
+             if RELATIONS[applied.relation].by_area else "the same everywhere")
     aep = ("" if applied.annual_exceedance_probability is None
            else f", AEP {applied.annual_exceedance_probability:g}")
     text = (f"{name}: areal reduction factor {_range(applied.factor.min(), applied.factor.max())} "
-            f"({applied.relation}, at {whose}, {_range(area.min(), area.max())} {unit}{aep}, "
-            f"duration {applied.duration_s / 60:g} min)")
+            f"({applied.relation}, {where}{aep}, duration {applied.duration_s / 60:g} min)")
     return f"{text}; source: {applied.source}" if source else text
 
 

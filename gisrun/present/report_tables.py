@@ -16,6 +16,7 @@ from ..project import CoverSource, SoilSource
 from .display import display_frame, human, method_name
 from .html import esc, table
 from .layers import run_info
+from .reduction import reduction_line
 
 __all__ = ["inputs_section", "storms_table", "summary_section", "ranking_section",
            "mass_balance_section", "provenance_section", "method_counts_section",
@@ -78,7 +79,18 @@ def storms_table(result: RunResult) -> str:
              "peak_intensity_m_per_s": s.hyetograph.peak_intensity_m_per_s}
             for s in result.storms]
     return (table(display_frame(pd.DataFrame(rows), result.project.units))
-            + rain_sources(result))
+            + reductions(result) + rain_sources(result))
+
+
+def reductions(result: RunResult) -> str:
+    """One line per storm reduced for area: the factors, relation, area, AEP and source."""
+    lines = [reduction_line(s.name, s.hyetograph.reduction, result.project.units)
+             for s in result.storms if s.hyetograph.reduction is not None]
+    if not lines:
+        return ""
+    return ("<p>Areal reduction of point design depths (each subcatchment's factor is in "
+            "<code>areal_reduction_factor</code>):</p><ul>"
+            + "".join(f"<li>{esc(line)}</li>" for line in lines) + "</ul>")
 
 
 def rain_sources(result: RunResult) -> str:
@@ -91,7 +103,7 @@ def rain_sources(result: RunResult) -> str:
     frames = []
     for storm in result.storms:
         areal = storm.hyetograph.areal
-        if areal is None:
+        if areal is None or areal.weights.empty:  # no sources (factors of an areal reduction)
             continue
         w = areal.weights.assign(area=area.reindex(areal.weights["subcatchment_id"]).to_numpy())
         w = w[w["weight"] > 0]
@@ -104,7 +116,7 @@ def rain_sources(result: RunResult) -> str:
     if not frames:
         return ""
     sources = "; ".join(f"{s.name}: {s.hyetograph.areal.source}" for s in result.storms
-                        if s.hyetograph.areal is not None)
+                        if s.hyetograph.areal is not None and not s.hyetograph.areal.weights.empty)
     return (f"<p>Rain per subcatchment ({esc(sources)}): each source's subcatchments and its "
             "area-weighted share of the basin's rain (every weight is in the "
             "<code>rain_weights</code> layer).</p>"

@@ -225,16 +225,21 @@ def reduced_storm(h: Hyetograph, applied: AppliedReduction, step_s: float,
 
     One factor for all (``over = "basin"``, or equal factors) scales the storm
     (:meth:`Hyetograph.scaled`), so a factor of 1 gives the storm unchanged. Factors that
-    differ make areal rain (:func:`areal_storm`): each subcatchment's column is the storm on the
-    run's step ``step_s`` times its factor, and the storm's own series is the basin mean
-    weighted by ``area_m2`` (each subcatchment's ground area, in ``applied``'s order).
+    differ make areal rain (:func:`areal_storm`): each subcatchment's column is the storm times
+    its factor, on the storm's own step when its steps are all one length (else on the run's
+    step ``step_s``), and the storm's own series is the basin mean weighted by ``area_m2``
+    (each subcatchment's ground area, in ``applied``'s order).
     """
     factor = applied.factor
     if factor.size == 0 or np.all(factor == factor[0]):
         one = float(factor[0]) if factor.size else 1.0
         return dataclasses.replace(h.scaled(one), reduction=applied)
-    point = h.resample(step_s)
-    rain = ArealRain(point[:, None] * factor[None, :], step_s, applied.subcatchment_ids,
+    steps = h.steps_s
+    if np.all(np.abs(steps - steps[0]) <= REL_TOL * steps[0]):
+        point, step = h.depth_m, float(steps[0])
+    else:  # a shorter last step: the storm as the run will see it
+        point, step = h.resample(step_s), step_s
+    rain = ArealRain(point[:, None] * factor[None, :], step, applied.subcatchment_ids,
                      f"point design depths times each subcatchment's areal reduction factor "
                      f"({applied.relation})")
     return dataclasses.replace(areal_storm(h.name, rain, area_m2), reduction=applied)
