@@ -5,11 +5,11 @@ form, typed separately below): Australian Rainfall and Runoff 2019 (Ball et al.,
 Chapter 4, section 4.3 (short-duration ARF equation) and Book 2 Table 2.4.1 (which relation
 applies by area and duration). Public copy used: A. Ladson, "ARR2019 - Areal Reduction Factors:
 interpolating between short and long duration ARFs" and "ARR2019 - Areal Reduction Factors",
-https://tonyladson.wordpress.com/ (equation 1; the list of Table 2.4.1's cases). No printed
-table of ARR 2019 factor values (worked example numbers) was found in a public copy, so the
-check is against the printed equation evaluated here. The 1-10 km2 interpolation,
-ARF = 1 - 0.6614 (1 - ARF_10km2) (A^0.4 - 1), is from memory (no public copy found); its
-continuity at 1 and 10 km2 is checked, which a typo in either constant would break.
+https://tonyladson.wordpress.com/page/2/ (equation 1) and .../category/r/ (the list of Table
+2.4.1's cases). No printed table of ARR 2019 factor values (worked example numbers) was found
+in a public copy, so the check is against the printed equation evaluated here. The 1-10 km2
+interpolation, ARF = 1 - 0.6614 (1 - ARF_10km2) (A^0.4 - 1), is from memory (no public copy
+found); its continuity at 1 and 10 km2 is checked, which a typo in either constant would break.
 """
 
 import dataclasses

@@ -17,9 +17,9 @@ Relations:
     Table 2.4.1 says (:func:`arr2019_short_duration_factor`). Public copy of the equation and of
     the table's cases used here: A. Ladson, "ARR2019 - Areal Reduction Factors" and "ARR2019 -
     Areal Reduction Factors: interpolating between short and long duration ARFs",
-    https://tonyladson.wordpress.com/ (equation 1 there). The long-duration equation (24 h and
-    longer) needs regional coefficients (ARR Table 2.4.2) of which no readable public copy was
-    found, so durations over 12 h are refused.
+    https://tonyladson.wordpress.com/page/2/ (equation 1 there). The long-duration equation
+    (24 h and longer) needs regional coefficients (ARR Table 2.4.2) of which no readable public
+    copy was found, so durations over 12 h are refused.
 ``factor_table``
     The project's own table of factors by area and duration (:class:`FactorTable`),
     interpolated linearly in log(area) and in duration.
@@ -98,7 +98,7 @@ def arr2019_short_duration_equation(area_km2: ArrayLike, duration_min: float,
     .. [1] Ball, J. et al. (eds.) (2019), Australian Rainfall and Runoff: A Guide to Flood
        Estimation, Book 2, Chapter 4, section 4.3 (short-duration ARF equation).
     .. [2] Ladson, A., "ARR2019 - Areal Reduction Factors: interpolating between short and
-       long duration ARFs", https://tonyladson.wordpress.com/ (equation 1; public copy).
+       long duration ARFs", https://tonyladson.wordpress.com/page/2/ (equation 1; public copy).
     """
     a = np.asarray(area_km2, dtype=np.float64)
     d, aep_term = float(duration_min), 0.3 + math.log10(aep)
