@@ -134,7 +134,12 @@ def step(params: Params, state: State, rain_m: FloatArray, dt_s: float) -> tuple
     initial = np.minimum(supply, state.initial_loss_left_m)
     after = supply - initial
     wet_after = after > 0
-    t0 = np.where(wet_after, initial / np.where(wet_after, rate, 1.0), dt_s)
+    # water so scarce that its rate underflows to 0 (a few subnormal metres held in storage)
+    # takes the same instant as the share of the step that the initial loss takes
+    tiny = wet_after & (rate <= 0)
+    timed = wet_after & ~tiny
+    t0 = np.where(timed, initial / np.where(timed, rate, 1.0), dt_s)
+    t0 = np.where(tiny, dt_s * (initial / np.where(tiny, supply, 1.0)), t0)
     continuing = np.minimum(after, c * (dt_s - t0))
     d_infil = initial + continuing
     left = state.initial_loss_left_m - initial

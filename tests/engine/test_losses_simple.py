@@ -32,6 +32,19 @@ def test_constant_loss_is_independent_of_the_step_for_uniform_rain():
     assert coarse.time_to_ponding_s[0] == pytest.approx(fine.time_to_ponding_s[0], rel=1e-12)
 
 
+def test_constant_loss_with_a_subnormal_depression_storage_stays_finite():
+    # found by the run-on property test: 5e-324 m held in storage, then a dry step, made the
+    # supply's rate underflow to 0 and the initial-loss instant 0/0. The water balance
+    # (rain = infiltration + runoff + storage) must still close, exactly as it does for 0.
+    units = unit_frame(2, initial_loss_m=0.0, constant_loss_m_per_s=0.0,
+                       depression_storage_m=np.array([5e-324, 0.0]))
+    res = run_losses(units, np.array([1e-3, 0.0]), 60.0, method="constant_loss")
+    for name in ("infil_m", "excess_m", "storage_m"):
+        assert np.isfinite(getattr(res, name)).all(), name
+    assert np.abs(res.mass_balance_error_m()).max() <= 1e-18
+    assert_allclose(res.excess_m.sum(axis=0), [1e-3, 1e-3], rtol=1e-12)
+
+
 def test_phi_index_by_hand():
     # phi = 5 mm/h, hourly rain 2, 12, 8, 4 mm: excess 0 + 7 + 3 + 0 = 10 mm.
     units = unit_frame(1, phi_index_m_per_s=5 * MM_PER_H)
