@@ -148,6 +148,9 @@ def test_the_arr_relation_per_subcatchment_in_a_storm():
     ([600.0, 600.0], {"over": "basin"}, r"the basin \(1,200 km2, 120 min\).*factor_table"),
     ([2.0, 3.0], {"over": "subcatchment", "duration_min": 1440},
      r"subcatchment 'a' \(2 km2, 1440 min\).*beyond the short-duration relation"),
+    # no one area is at fault: the line names the storm and duration, not a subcatchment
+    ([2.0, 3.0], {"over": "subcatchment", "annual_exceedance_probability": 0.9},
+     r"storm 'block' \(120 min\): arr2019_short_duration: annual exceedance probability 0.9"),
 ])
 def test_outside_the_arr_relation_the_storm_is_refused_in_one_line(areas, reduction, match):
     subs = _layer(areas, ["a", "b"])

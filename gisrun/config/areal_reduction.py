@@ -23,9 +23,11 @@ licensed engineer.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import geopandas as gpd
 import numpy as np
+from numpy.typing import NDArray
 
 from ..crs import ground_areas
 from ..errors import StormError
@@ -119,15 +121,21 @@ def apply_reduction(h: Hyetograph, spec: ReductionSpec, subcatchments: gpd.GeoDa
         factor = relation.factors(area if spec.over == "subcatchment" else area[:1], duration,
                                   spec.inputs)
     except ReductionRangeError as err:
-        k = err.index or 0
-        whose = ("the basin" if spec.over == "basin" or err.index is None
-                 else f"subcatchment {ids[k]!r}")
-        detail = f"{err.where}: {err.problem}" if err.where else err.problem
-        raise StormTableError(spec.where, f"storm {h.name!r}, {whose} ({area[k] / 1e6:,.6g} "
-                              f"km2, {duration / 60:g} min): {spec.relation}: {detail}",
+        raise StormTableError(spec.where, f"{_context(h, spec, err.index, ids, area, duration)}: "
+                              f"{spec.relation}: "
+                              f"{f'{err.where}: ' if err.where else ''}{err.problem}",
                               err.fix) from None
     factor = np.broadcast_to(factor, area.shape)
     applied = AppliedReduction(spec.relation, relation.source(spec.inputs), spec.over, duration,
                                spec.inputs.annual_exceedance_probability, tuple(ids), area,
                                factor)
     return reduced_storm(h, applied, step_s, own)
+
+
+def _context(h: Hyetograph, spec: ReductionSpec, index: int | None, ids: Any,
+             area: NDArray[np.float64], duration_s: float) -> str:
+    """Which storm, area and duration a range error is about (no area when none is at fault)."""
+    if index is None:  # e.g. the AEP: no one area is at fault
+        return f"storm {h.name!r} ({duration_s / 60:g} min)"
+    whose = "the basin" if spec.over == "basin" else f"subcatchment {ids[index]!r}"
+    return f"storm {h.name!r}, {whose} ({area[index] / 1e6:,.6g} km2, {duration_s / 60:g} min)"
