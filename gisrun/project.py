@@ -32,8 +32,24 @@ class SubcatchmentSource:
     max_overlap_fraction: float = 0.01
 
 
+class _ClassLayer:
+    """What the soil and the cover source share: a raster, or a polygon layer with a class field."""
+
+    class_field: str | None
+
+    @property
+    def is_polygons(self) -> bool:
+        """True for a polygon layer, False for a raster."""
+        return self.class_field is not None
+
+    @property
+    def kind(self) -> str:
+        """``"polygon layer"`` or ``"raster"``, for messages and listings."""
+        return "polygon layer" if self.is_polygons else "raster"
+
+
 @dataclass(frozen=True)
-class SoilSource:
+class SoilSource(_ClassLayer):
     """The soil raster or polygon layer, its code table and the soil choices of the run.
 
     With ``class_field`` the file is a polygon layer (``layer`` picks one) whose field
@@ -56,19 +72,9 @@ class SoilSource:
     layer: str | None = None
     class_field: str | None = None
 
-    @property
-    def is_polygons(self) -> bool:
-        """True for a polygon layer, False for a raster."""
-        return self.class_field is not None
-
-    @property
-    def kind(self) -> str:
-        """``"polygon layer"`` or ``"raster"``, for messages and listings."""
-        return "polygon layer" if self.is_polygons else "raster"
-
 
 @dataclass(frozen=True)
-class CoverSource:
+class CoverSource(_ClassLayer):
     """The land-cover raster or polygon layer and its code table.
 
     Or attribute table, as for the soil; see :class:`SoilSource`.
@@ -82,16 +88,6 @@ class CoverSource:
     unlisted_keys: str = "error"
     layer: str | None = None
     class_field: str | None = None
-
-    @property
-    def is_polygons(self) -> bool:
-        """True for a polygon layer, False for a raster."""
-        return self.class_field is not None
-
-    @property
-    def kind(self) -> str:
-        """``"polygon layer"`` or ``"raster"``, for messages and listings."""
-        return "polygon layer" if self.is_polygons else "raster"
 
 
 @dataclass(frozen=True)
