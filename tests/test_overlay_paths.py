@@ -226,18 +226,32 @@ def test_ring_arrays_read_holes_either_way_and_skip_empty_entries():
 @pytest.mark.parametrize(("dtype", "nodata", "codes"), [
     ("uint8", 255, {1: "A", 2: "B", 7: "C"}),
     ("int16", -9999, {-3: "A", 2: "B", 300: "C"}),
-    ("int32", None, {1: "A", 2: "B"}),  # not 8 or 16 bits: the class window itself
+    ("int32", -9999, {1: "A", 2: "B", 40_000: "C"}),  # keys: the dense table; nodata below it
+    ("uint32", 7, {3: "A", 6: "B", 7: "C"}),  # nodata among the codes, codes above the table
+    ("int32", None, {1: "A", 5_000_000: "B"}),  # too wide a span: the class window itself
     ("float32", -1.0, {1: "A", 2: "B"}),
 ])
 def test_class_source_gives_each_cell_the_class_that_classes_gives(geotiff, dtype, nodata, codes):
     rng = np.random.default_rng(11)
-    keys = np.array([*codes, 5, nodata if nodata is not None else 9])  # 5: not in the table
+    keys = np.array([*codes, 5, 70_000 if dtype.endswith("32") else 9,
+                     nodata if nodata is not None else 4])  # 5, 9, 70,000: not in the table
     raster = read_class_raster(geotiff(rng.choice(keys, (12, 17)).astype(dtype), nodata=nodata))
     grid = FineGrid.build(raster, None, codes, None, [])
     for win in [(0, 12, 0, 17), (-3, 5, 10, 21), (4, 9, -2, 3), (20, 25, 1, 4)]:
         source, table, (low, outside, r, c) = grid.class_source(*win)
         got = np.full((win[1] - win[0], win[3] - win[2]), outside, dtype=np.int32)
-        got[r:r + source.shape[0], c:c + source.shape[1]] = table[source.astype(np.int64) - low]
-        assert np.array_equal(got, grid.classes(*win))
-    table = grid.class_source(0, 12, 0, 17)[1]  # a table over every code of the type, or none
-    assert table.size == {"uint8": 256, "int16": 65536}.get(dtype, grid.n_classes)
+        at = np.clip(source.astype(np.int64) - low, 0, table.size - 1)  # ends: nodata
+        got[r:r + source.shape[0], c:c + source.shape[1]] = table[at]
+        expect = grid.classes(*win)
+        assert np.array_equal(got, expect)
+        # the kernel's own look-up: a polygon over the whole window gets every cell's class
+        whole = np.array([box(win[2], win[0], win[3], win[1])], dtype=object)
+        sums = polygon_class_sums(*ring_arrays(whole), (0.0, 1.0, 0.0, 1.0),
+                                  (win[2], win[0], win[1] - win[0], win[3] - win[2]),
+                                  (np.ascontiguousarray(source), table, (low, outside, r, c)),
+                                  np.zeros(0), grid.n_classes)
+        assert np.array_equal(sums[0], np.bincount(expect.ravel(), minlength=grid.n_classes))
+    table = grid.class_source(0, 12, 0, 17)[1]  # a table over the codes, or the identity
+    dense = {"uint8": 256, "int16": 65536, "int32": 40_002, "uint32": 7}
+    wide = len(codes) == 2 and dtype == "int32" or dtype == "float32"
+    assert table.size == (grid.n_classes if wide else dense[dtype])

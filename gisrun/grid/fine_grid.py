@@ -78,8 +78,8 @@ class FineGrid:
                      ) -> tuple[NDArray[np.integer], NDArray[np.int32], tuple[int, int, int, int]]:
         """Classes of rows r0:r1, cols c0:c1 as (codes, table, look) for the overlay kernel.
 
-        One raster of 8- or 16-bit integer codes: its codes as read (only the part inside
-        the raster) with the table of every code of their type to its class, ``look`` =
+        One raster of integer codes of up to 32 bits (with a dense table): its codes as read
+        (only the part inside the raster) with the table from code to class, ``look`` =
         (lowest code, outside class, window row and column of the codes' first cell):
         ``table[code - lowest]`` is what :meth:`classes` gives the cell, a quarter or half of
         its memory and no pass over the window. Otherwise :meth:`classes` itself, with the
@@ -89,15 +89,24 @@ class FineGrid:
         cc0, cc1 = max(c0, 0), min(c1, self.fine.width)
         if self.coarse is None and rr0 < rr1 and cc0 < cc1:
             codes, _ = self.fine.read_window(((rr0, rr1), (cc0, cc1)))
-            if (codes.dtype.kind in "iu" and codes.dtype.itemsize <= 2
-                    and not np.ma.is_masked(codes)):
-                low, table = self._code_table(codes.dtype)
+            found = self._code_table(codes.dtype)
+            if found is not None and not np.ma.is_masked(codes):
+                low, table = found
                 return np.asarray(codes), table, (low, OUTSIDE_CLASS, rr0 - r0, cc0 - c0)
         table = np.arange(self.n_classes, dtype=np.int32)
         return self.classes(r0, r1, c0, c1), table, (0, OUTSIDE_CLASS, 0, 0)
 
-    def _code_table(self, dtype: np.dtype) -> tuple[int, NDArray[np.int32]]:
-        """(lowest value, class of every value of an 8- or 16-bit integer type), kept."""
+    def _code_table(self, dtype: np.dtype) -> tuple[int, NDArray[np.int32]] | None:
+        """(lowest code, class of every code from it on) for codes of this type, or None.
+
+        8 and 16 bits: every value of the type (built once). 32 bits: the look-up's dense table
+        (its ends are nodata, and the kernel holds codes beyond them to the ends, as
+        :meth:`CodeLookup.index` does). Otherwise None.
+        """
+        if dtype.kind not in "iu" or dtype.itemsize > 4:
+            return None
+        if dtype.itemsize == 4:
+            return self.fine_lut.dense_table()
         if dtype.str not in self._tables:
             info = np.iinfo(dtype)
             every = np.arange(int(info.min), int(info.max) + 1).astype(dtype)

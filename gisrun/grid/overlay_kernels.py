@@ -129,7 +129,9 @@ def _sum_rows(p: int, n_rows: int, buf: NDArray[np.float64], touched: NDArray[np
             wc = c_base + c
             if abs(share) > 1e-12 and 0 <= wr < height and 0 <= wc < n_col:
                 i, j = wr - r_in, wc - c_in
-                k = table[codes[i, j] - low] if 0 <= i < n_r and 0 <= j < n_c else outside
+                k = outside
+                if 0 <= i < n_r and 0 <= j < n_c:  # codes beyond the table: its end entries
+                    k = table[min(max(codes[i, j] - low, 0), table.size - 1)]
                 sums[p, k] += share * row_area[wr] if weighted else share
         lo[r] = width
         hi[r] = -1
@@ -166,8 +168,9 @@ def polygon_class_sums(xy: NDArray[np.float64], ring_start: NDArray[np.int64],
         The window's first grid cell and size; cells beyond it add nothing.
     classes : (codes, table, look)
         The class of window cell (wr, wc) is ``table[codes[wr - r, wc - c] - lowest]`` where
-        ``look`` = (lowest, outside, r, c); cells of the window beyond ``codes`` are class
-        ``outside``. (Class indices themselves: ``table`` = 0, 1, ...; ``lowest`` 0.)
+        ``look`` = (lowest, outside, r, c), an index beyond the table held to its ends; cells
+        of the window beyond ``codes`` are class ``outside``. (Class indices themselves:
+        ``table`` = 0, 1, ...; ``lowest`` 0.)
     row_area : ndarray of float64
         Area of a cell of each window row, or empty for cell units.
     n_cls : int
