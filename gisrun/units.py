@@ -25,6 +25,8 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from .units_kernels import round_to_digits
+
 if TYPE_CHECKING:
     import pandas as pd
 
@@ -198,33 +200,15 @@ def round_significant(values: ArrayLike, digits: int = SIGNIFICANT_DIGITS
     """Round to ``digits`` significant digits; NaN, inf and 0 stay as they are.
 
     Float noise from unit conversion and summing goes (``0.19999999999999998`` -> ``0.2``).
+    One compiled pass (:func:`gisrun.units_kernels.round_to_digits`); returns a new array.
 
     Examples
     --------
     >>> round_significant([0.19999999999999998, 11.99891012472315, 48557.86650003627]).tolist()
     [0.2, 11.9989, 48557.9]
     """
-    x = np.array(values, dtype=np.float64)
-    keep = np.isfinite(x) & (x != 0.0)
-    if not keep.any():
-        return x
-    whole = bool(keep.all())
-    v = x if whole else x[keep]
-    work = np.abs(v)
-    np.floor(np.log10(work, out=work), out=work)
-    shift = (digits - 1) - work.astype(np.int64)
-    up = shift >= 0  # multiply by an exact power of ten, round, divide: the nearest double
-    with np.errstate(over="ignore", invalid="ignore"):
-        if up.all():  # values below 10 ** digits: one branch, in place
-            scale = _POWERS_OF_TEN.take(shift)  # 10 ** shift, looked up, not recomputed
-            out = np.divide(np.round(np.multiply(v, scale, out=work), out=work), scale, out=work)
-        else:
-            scale = _POWERS_OF_TEN.take(np.abs(shift))
-            out = np.where(up, np.round(v * scale) / scale, np.round(v / scale) * scale)
-    if whole:
-        return out
-    x[keep] = out
-    return x
+    x = np.ascontiguousarray(values, dtype=np.float64)
+    return round_to_digits(x.reshape(-1), digits, _POWERS_OF_TEN).reshape(x.shape)
 
 
 def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
