@@ -7,11 +7,14 @@ extent, every 5 minutes for 24 hours (288 steps, float32, intensity in mm/h).
 
 It measures, interleaved (``--repeat`` rounds, the fastest of each kept):
 
-- read: ``RainStack.read_steps`` over every block of steps, the way the areal rain reads them
-  (the floor: the stack read once), for the stack stored plain and deflated (zlib 4, shuffle,
-  one step per chunk, as rainfall products are usually shipped);
+- read: ``RainStack.read_steps`` over every block of steps, the way the areal rain reads them,
+  each block then summed by ``np.nansum`` so that every value is touched once (the floor: the
+  stack read once), for the stack stored plain and deflated (zlib 4, shuffle, one step per
+  chunk, as rainfall products are usually shipped);
 - areal: ``gisrun.storm.gridded.grid_areal_depth(weights, stack)``, the rain per subcatchment
-  for every step (reading included: one sparse product per block);
+  for every step (reading included; the compiled kernels of ``gisrun.storm.gridded_kernels``);
+  its first call in the process, which also loads the kernels from numba's cache (or compiles
+  them, in a fresh install), is timed apart before the rounds;
 - weights: ``gisrun.grid.rain_weights.rain_grid_weights`` (made once per run, shown apart).
 
 Target: areal within 2x read. Peak memory of the areal call by ``tracemalloc`` (numpy's
@@ -26,6 +29,7 @@ Command line::
 from __future__ import annotations
 
 import argparse
+import os
 import resource
 import sys
 import time
@@ -116,28 +120,37 @@ def main(argv: list[str] | None = None) -> int:
         for kind in ("plain", "deflate")}
     t_weights, weights = timed(rain_grid_weights, subs.geometry, subs["subcatchment_code"],
                                stacks["plain"])
+    t_first = timed(grid_areal_depth, weights, stacks["plain"])[0]
     times: dict[str, list[float]] = {}
+    load = [os.getloadavg()[0]]
     for _ in range(args.repeat):  # interleaved, the fastest of each kept
         for kind, stack in stacks.items():
             times.setdefault(f"read {kind}", []).append(timed(read_once, stack)[0])
             times.setdefault(f"areal {kind}", []).append(
                 timed(grid_areal_depth, weights, stack)[0])
+    load.append(os.getloadavg()[0])
     tracemalloc.start()
     depth = grid_areal_depth(weights, stacks["plain"])
     peak = tracemalloc.get_traced_memory()[1]
     tracemalloc.stop()
     best = {name: min(values) for name, values in times.items()}
-    _report(args, stacks["plain"], weights, depth, t_weights, best, peak)
+    _report(args, stacks["plain"], weights, depth, (t_weights, t_first), best, peak)
+    print(f"machine load (1-minute average, {os.cpu_count()} cores) before and after the rounds: "
+          f"{load[0]:.2f}, {load[1]:.2f}")
     return 0
 
 
-def _report(args, stack, weights, depth, t_weights, best, peak) -> None:
+def _report(args, stack, weights, depth, once, best, peak) -> None:
+    t_weights, t_first = once
     rows = [(f"{what}, {kind} NetCDF", best[f"{what.split()[0]} {kind}"], call)
             for kind in ("plain", "deflate")
-            for what, call in (("read the stack once", "RainStack.read_steps, every block"),
+            for what, call in (("read the stack once",
+                                "RainStack.read_steps, every block, np.nansum of each"),
                                ("areal rain, all steps", "grid_areal_depth(weights, stack)"))]
     rows.append(("weights (once per run)", t_weights,
                  "rain_grid_weights(subcatchments.geometry, ids, stack)"))
+    rows.append(("first areal call in the process, plain", t_first,
+                 "grid_areal_depth(weights, stack), kernels loaded from cache or compiled"))
     print(f"{args.polygons:,} subcatchments; rain grid {stack.width} x {stack.height} cells of "
           f"1 km, {stack.steps} steps of {stack.step_s / 60:g} min; {weights.matrix.nnz:,} "
           f"weights; block of {steps_per_block(stack)} steps")

@@ -3,13 +3,22 @@
 For each raster size it generates inputs (``make_inputs.py``), then measures in one go:
 
 - the I/O floor: reading both rasters once, block by block, plus writing the run's outputs
-  once: the GeoPackage's layers and, when the run wrote one, the Parquet series file (all read
-  back into memory first, untimed; the Parquet file written in one call with the run's
-  encoding);
+  once: the GeoPackage's layers (read back into memory first, untimed) and, when the run wrote
+  one, the Parquet series file with the run's encoding, one row group at a time as the run
+  writes it (each read back untimed before it is written), so the floor's memory does not grow
+  with the series;
 - ``gisrun run`` in a child process: wall time and peak resident memory, and the bytes per
   value of its series file;
 - the same run with a second storm, to show what one more storm costs, split into the loss
   engine's time per storm and the time spent writing that storm's rows to the outputs.
+
+``--workers N`` then runs the same project on a local dask cluster of N worker processes
+(``gisrun run --workers N``) and compares its outputs with the single process's, every
+GeoPackage layer and the series file, exactly (``compare_outputs.py``); it prints identical or
+the first difference, the wall-clock time, the CPU time of the process tree (the run process
+plus the workers it reaped) and the tree's peak memory (``process_tree.py``: the summed RSS of
+the tree sampled every 0.5 s, and the sum of each process's own high-water mark).
+``--no-second-storm`` leaves out the two-storm run.
 
 It prints the ratios the targets are stated in: run time / I/O floor (target <= 3), peak memory
 (target < 2 GB) and its growth from the smallest to the largest raster (target within 20 %).
@@ -22,6 +31,9 @@ the second storm's wall time over (its engine time + that floor) (target at most
     python benchmarks/bench_run.py                       # 8000 and 20000 cells, 100,000 polygons
     python benchmarks/bench_run.py --cells 2000 4000 --polygons 2000   # quick look
     python benchmarks/bench_run.py --second-storm --cells 8000 --rounds 2
+    # the million-subcatchment step (one command line):
+    python benchmarks/bench_run.py --cells 40000 --polygons 1000000 --clock cpu --workers 2
+        --no-second-storm
 """
 
 from __future__ import annotations
@@ -40,7 +52,9 @@ import rasterio
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 
+from compare_outputs import compare_outputs  # noqa: E402
 from make_inputs import make_inputs  # noqa: E402
+from process_tree import TreeSampler  # noqa: E402
 
 # Peak memory is the child's own high-water mark (VmHWM). ru_maxrss is not used: on Linux it
 # keeps the RSS of the parent image the child was forked from.
@@ -66,12 +80,15 @@ def timed(fn, key):
 steps.run_losses = timed(steps.run_losses, "engine")  # the loss engine, every chunk
 output.append_table = timed(output.append_table, "append")  # rows streamed into the output
 series_file.SeriesFile.write = timed(series_file.SeriesFile.write, "append")  # and the series
-t, cpu = clock(), time.process_time()
+t, cpu, true_wall, before = clock(), time.process_time(), time.perf_counter(), os.times()
 code = main(sys.argv[1:])
-wall, cpu = clock() - t, time.process_time() - cpu
+wall, cpu, true_wall = clock() - t, time.process_time() - cpu, time.perf_counter() - true_wall
+after = os.times()  # children: the dask worker processes, once they are reaped
+children = (after.children_user + after.children_system
+            - before.children_user - before.children_system)
 with open("/proc/self/status") as status:
     peak_mb = next(int(l.split()[1]) for l in status if l.startswith("VmHWM")) / 1024
-print("MEASURED", code, wall, peak_mb, spent["engine"], spent["append"], cpu)
+print("MEASURED", code, wall, peak_mb, spent["engine"], spent["append"], cpu, true_wall, children)
 """
 
 FLOOR_WRITE = """
@@ -80,19 +97,32 @@ clock = time.process_time if os.environ.get('BENCH_CLOCK') == 'cpu' else time.pe
 source, target = sys.argv[1:3]
 layers = [(n, pyogrio.read_dataframe(source, layer=n)) for n, _ in pyogrio.list_layers(source)]
 series = pathlib.Path(source).with_suffix(".series.parquet")
-table = pq.read_table(series) if series.exists() else None
-start, cpu = clock(), time.process_time()
+start, cpu, spent_cpu, spent = clock(), time.process_time(), 0.0, 0.0
 for name, frame in layers:
     begin = clock()
     pyogrio.write_dataframe(frame, target, layer=name, driver="GPKG", use_arrow=True)
     print("LAYER", name, clock() - begin)
-if table is not None:  # the run's encoding (gisrun.io.series_file), in one call
-    begin = clock()
-    pq.write_table(table, target + ".series.parquet", compression="zstd", compression_level=3,
-                   use_dictionary=["storm", "subcatchment_id", "time_end_min"])
-    print("LAYER excess_series", clock() - begin)
-print("FLOORCPU", time.process_time() - cpu)
-print("FLOOR", clock() - start)
+spent, spent_cpu = clock() - start, time.process_time() - cpu
+if series.exists():  # the run's encoding (gisrun.io.series_file), row group by row group
+    source_file, writer, begin = pq.ParquetFile(series), None, 0.0
+    for k in range(source_file.num_row_groups):
+        group = source_file.read_row_group(k)  # read back, untimed
+        start, cpu = clock(), time.process_time()
+        writer = writer or pq.ParquetWriter(
+            target + ".series.parquet", group.schema, compression="zstd", compression_level=3,
+            use_dictionary=["storm", "subcatchment_id", "time_end_min"])
+        writer.write_table(group, row_group_size=max(len(group), 1))  # as the run does
+        begin += clock() - start
+        spent_cpu += time.process_time() - cpu
+        del group
+    start, cpu = clock(), time.process_time()
+    writer.close()
+    begin += clock() - start
+    spent_cpu += time.process_time() - cpu
+    spent += begin
+    print("LAYER excess_series", begin)
+print("FLOORCPU", spent_cpu)
+print("FLOOR", spent)
 """
 
 #: The layers a storm adds rows to (its series, in the GeoPackage or the Parquet file, its unit
@@ -134,18 +164,30 @@ def write_geopackage_once(source: Path, target: Path) -> tuple[float, dict[str, 
 
 
 def measured_run(project: Path, output: Path, extra: list[str] | None = None) -> dict:
+    """Run ``gisrun run`` in a child process; its times, peak memory and its process tree's.
+
+    ``wall_s`` is by the chosen clock (the child's own CPU time with ``--clock cpu``);
+    ``tree_cpu_s`` adds the CPU time of the processes it started and reaped (dask workers);
+    ``tree_*`` figures come from sampling the child and its descendants (process_tree.py).
+    """
     args = ["run", str(project), "--output", str(output), "--overwrite", "--quiet", "--no-extras",
             *(extra or [])]
-    proc = subprocess.run([sys.executable, "-c", MEASURE, *args], capture_output=True, text=True,
-                          check=False)
-    line = [ln for ln in proc.stdout.splitlines() if ln.startswith("MEASURED")]
+    proc = subprocess.Popen([sys.executable, "-c", MEASURE, *args], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+    sampler = TreeSampler(proc.pid).start()
+    stdout, stderr = proc.communicate()
+    tree = sampler.stop()
+    line = [ln for ln in stdout.splitlines() if ln.startswith("MEASURED")]
     if proc.returncode != 0 or not line:
-        raise SystemExit(f"gisrun run failed:\n{proc.stdout}\n{proc.stderr}")
-    _, code, wall, peak, engine, append, cpu = line[-1].split()
+        raise SystemExit(f"gisrun run failed:\n{stdout}\n{stderr}")
+    _, code, wall, peak, engine, append, cpu, true_wall, children = line[-1].split()
     if int(code) != 0:
-        raise SystemExit(f"gisrun run exited {code}:\n{proc.stderr}")
+        raise SystemExit(f"gisrun run exited {code}:\n{stderr}")
     return {"wall_s": float(wall), "peak_mb": float(peak), "engine_s": float(engine),
-            "append_s": float(append), "cpu_s": float(cpu)}
+            "append_s": float(append), "cpu_s": float(cpu), "true_wall_s": float(true_wall),
+            "tree_cpu_s": float(cpu) + float(children), "sampled_tree_cpu_s": tree.cpu_s,
+            "tree_peak_rss_mb": tree.peak_rss_mb, "tree_sum_hwm_mb": tree.sum_hwm_mb,
+            "tree_processes": len(tree.processes)}
 
 
 def with_second_storm(project: Path) -> Path:
@@ -173,30 +215,66 @@ def bytes_per_value(output: Path) -> float | None:
     return series.stat().st_size / (meta.num_rows * values)
 
 
-def bench(n_cells: int, n_polygons: int) -> dict:
+def on_cluster(project: Path, output: Path, workers: int) -> dict:
+    """The same run on a local dask cluster of ``workers`` processes, compared with ``output``.
+
+    Its output goes to ``dask/`` beside ``output`` under the same file names, so that the
+    outputs can be equal byte for byte where they hold file names.
+    """
+    twin = output.parent / "dask" / output.name
+    twin.parent.mkdir(exist_ok=True)
+    run = measured_run(project, twin, ["--workers", str(workers)])
+    start = time.perf_counter()
+    compared, differences = compare_outputs(output, twin)
+    return {"workers": workers, **{f"dask_{k}": v for k, v in run.items()},
+            "dask_compared": compared, "dask_differences": differences,
+            "dask_identical": not differences, "compare_s": time.perf_counter() - start}
+
+
+def bench(n_cells: int, n_polygons: int, *, workers: int | None = None,
+          second_storm: bool = True) -> dict:
     paths = make_inputs(n_cells=n_cells, n_polygons=n_polygons)
     out_dir = Path(paths.project).parent
     output = out_dir / "bench_output.gpkg"
     run = measured_run(Path(paths.project), output)
+    print(f"{n_cells} cells: single process: {json.dumps(run)}", flush=True)
     read_s, read_cpu = read_rasters_once([Path(paths.soil), Path(paths.cover)])
     write_s, layer_s, write_cpu = write_geopackage_once(output, out_dir / "floor_copy.gpkg")
-    two = measured_run(with_second_storm(Path(paths.project)), out_dir / "bench_output2.gpkg")
+    print(f"{n_cells} cells: floor: read {read_s:.1f} s ({read_cpu:.1f} CPU s), write "
+          f"{write_s:.1f} s ({write_cpu:.1f} CPU s): {json.dumps(layer_s)}", flush=True)
+    cluster = on_cluster(Path(paths.project), output, workers) if workers else {}
+    if cluster:
+        print(f"{n_cells} cells: {workers} dask workers: {json.dumps(cluster)}", flush=True)
+    two = (measured_run(with_second_storm(Path(paths.project)), out_dir / "bench_output2.gpkg")
+           if second_storm else None)
     floor = read_s + write_s
     rows_floor = storm_rows_floor(layer_s)
-    return {
+    return {**cluster, "run_true_wall_s": run["true_wall_s"],
+            "run_tree_peak_rss_mb": run["tree_peak_rss_mb"], **_second_storm_figures(
+                run, two, rows_floor), 
         "series_bytes_per_value": bytes_per_value(output),
         "run_cpu_s": run["cpu_s"], "io_floor_cpu_s": read_cpu + write_cpu,
         "cpu_ratio_to_io_floor": run["cpu_s"] / (read_cpu + write_cpu),
         "cells": n_cells, "polygons": n_polygons, "run_s": run["wall_s"],
         "peak_mb": run["peak_mb"], "read_floor_s": read_s, "write_floor_s": write_s,
         "io_floor_s": floor, "ratio_to_io_floor": run["wall_s"] / floor,
-        "second_storm_s": two["wall_s"] - run["wall_s"],
-        "engine_s_per_storm": two["engine_s"] / 2,
-        "second_storm_rows_s": two["append_s"] - run["append_s"],
-        "storm_rows_floor_s": rows_floor,
-        "second_storm_beyond_rows_floor_s": two["wall_s"] - run["wall_s"] - rows_floor,
-        "peak_mb_two_storms": two["peak_mb"],
+        "read_floor_cpu_s": read_cpu, "write_floor_cpu_s": write_cpu,
     }
+
+
+def _second_storm_figures(run: dict, two: dict | None, rows_floor: float) -> dict:
+    """What the second storm added (NaN without the two-storm run)."""
+    nan = float("nan")
+    if two is None:
+        return {"second_storm_s": nan, "engine_s_per_storm": run["engine_s"],
+                "second_storm_rows_s": nan, "storm_rows_floor_s": rows_floor,
+                "second_storm_beyond_rows_floor_s": nan, "peak_mb_two_storms": nan}
+    return {"second_storm_s": two["wall_s"] - run["wall_s"],
+            "engine_s_per_storm": two["engine_s"] / 2,
+            "second_storm_rows_s": two["append_s"] - run["append_s"],
+            "storm_rows_floor_s": rows_floor,
+            "second_storm_beyond_rows_floor_s": two["wall_s"] - run["wall_s"] - rows_floor,
+            "peak_mb_two_storms": two["peak_mb"]}
 
 
 def second_storm(n_cells: int, n_polygons: int, rounds: int) -> dict:
@@ -237,6 +315,23 @@ def print_second_storm(r: dict) -> None:
     print(f"second storm / (engine + rows floor) = {r['ratio']:.2f} (target <= 1.2)")
 
 
+def print_cluster(r: dict) -> None:
+    """The dask run's figures beside the single process's."""
+    print(f"{r['cells']} cells, {r['workers']} dask workers: wall-clock {r['dask_true_wall_s']:.1f}"
+          f" s (single process {r['run_true_wall_s']:.1f} s); CPU time of the process tree "
+          f"{r['dask_tree_cpu_s']:.1f} s (the run process {r['dask_cpu_s']:.1f} s + the workers "
+          f"it reaped; sampled from /proc: {r['dask_sampled_tree_cpu_s']:.1f} s; single process "
+          f"{r['run_cpu_s']:.1f} s); peak memory of the tree ({r['dask_tree_processes']} "
+          f"processes): {r['dask_tree_peak_rss_mb']:.0f} MB summed RSS sampled every 0.5 s, "
+          f"{r['dask_tree_sum_hwm_mb']:.0f} MB sum of each process's own peak (VmHWM); the run "
+          f"process alone {r['dask_peak_mb']:.0f} MB (single process {r['peak_mb']:.0f} MB)")
+    verdict = ("identical" if r["dask_identical"]
+               else "DIFFERENT: " + "; ".join(r["dask_differences"]))
+    print(f"{r['cells']} cells: outputs of the dask run against the single process "
+          f"({len(r['dask_compared'])} layers and files, compared in {r['compare_s']:.0f} s): "
+          f"{verdict}")
+
+
 def main(argv: list[str] | None = None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--cells", type=int, nargs="+", default=[8000, 20000])
@@ -247,6 +342,12 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--rounds", type=int, default=1, help="rounds of --second-storm")
     parser.add_argument("--clock", choices=["wall", "cpu"], default="wall",
                         help="time everything by wall clock or by each process's CPU time")
+    parser.add_argument("--workers", type=int, default=None, metavar="N",
+                        help="after the single-process run, the same run on a local dask "
+                        "cluster of N workers (gisrun run --workers N), its outputs compared "
+                        "with the single process's exactly")
+    parser.add_argument("--no-second-storm", action="store_true",
+                        help="leave out the two-storm run (saves a whole run on large sets)")
     args = parser.parse_args(argv)
     os.environ["BENCH_CLOCK"] = args.clock  # read by the child processes too
     print(f"times are {'CPU' if args.clock == 'cpu' else 'wall-clock'} seconds")
@@ -257,7 +358,8 @@ def main(argv: list[str] | None = None) -> None:
             if not args.json:
                 print_second_storm(r)
         return
-    rows = [bench(n, args.polygons) for n in args.cells]
+    rows = [bench(n, args.polygons, workers=args.workers, second_storm=not args.no_second_storm)
+            for n in args.cells]
     if args.json:
         print(json.dumps(rows, indent=2))
         return
@@ -271,7 +373,11 @@ def main(argv: list[str] | None = None) -> None:
               f"{r['storm_rows_floor_s']:>13.1f} {r['second_storm_beyond_rows_floor_s']:>11.1f}")
     for r in rows:
         print(f"{r['cells']} cells: CPU time of the run {r['run_cpu_s']:.1f} s, of the floor "
-              f"{r['io_floor_cpu_s']:.1f} s, ratio {r['cpu_ratio_to_io_floor']:.2f}")
+              f"{r['io_floor_cpu_s']:.1f} s (reading {r['read_floor_cpu_s']:.1f}, writing "
+              f"{r['write_floor_cpu_s']:.1f}), ratio {r['cpu_ratio_to_io_floor']:.2f}; "
+              f"wall-clock time of the run {r['run_true_wall_s']:.1f} s")
+        if "workers" in r:
+            print_cluster(r)
         if r["series_bytes_per_value"] is not None:
             print(f"{r['cells']} cells: series file {r['series_bytes_per_value']:.2f} bytes per "
                   "value (target <= 10)")

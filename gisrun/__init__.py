@@ -7,8 +7,9 @@ The notebook API, step by step (see :mod:`gisrun.workflow.steps`)::
     result = gisrun.run(project)              # overlay, parameters, every storm
     gisrun.write_outputs(result, overwrite=True)
 
-``write_extras`` and ``ExtrasOptions`` (the maps, rasters and report) are loaded on
-first use, so importing gisrun for its computation does not load matplotlib.
+Every name here is loaded on first use (``_LAZY``), so importing gisrun, or one of
+its modules, loads only what is used: the overlay alone does not load the run's
+workflow, scipy.stats or matplotlib.
 
 Results are planning-level estimates: check them against local codes and agency
 methods and have them reviewed by a licensed engineer.
@@ -17,17 +18,20 @@ methods and have them reviewed by a licensed engineer.
 import importlib
 
 from ._version import __version__
-from .config.project import load_project
-from .engine import run_losses
 from .errors import GisrunError, GisrunWarning
-from .grid.overlay import compute_unit_areas
-from .io.vector import read_subcatchments
-from .model import CAUTION, Inputs, RunResult, StormResult
-from .workflow.inputs import read_inputs
-from .workflow.pipeline import run
-from .workflow.steps import overlay_inputs, prepare_parameters, run_storm
-from .workflow.stream import run_and_write
-from .write.geopackage import write_outputs
+
+#: Where each name of the notebook API lives; loaded on first use, so that importing one
+#: module (``gisrun.grid.overlay``) does not load the whole package.
+_LAZY = {
+    "load_project": ".config.project", "run_losses": ".engine",
+    "compute_unit_areas": ".grid.overlay", "read_subcatchments": ".io.vector",
+    "CAUTION": ".model", "Inputs": ".model", "RunResult": ".model", "StormResult": ".model",
+    "read_inputs": ".workflow.inputs", "run": ".workflow.pipeline",
+    "overlay_inputs": ".workflow.steps", "prepare_parameters": ".workflow.steps",
+    "run_storm": ".workflow.steps", "run_and_write": ".workflow.stream",
+    "write_outputs": ".write.geopackage", "ExtrasOptions": ".write.extras",
+    "write_extras": ".write.extras",
+}
 
 __all__ = [
     "CAUTION",
@@ -54,7 +58,7 @@ __all__ = [
 
 
 def __getattr__(name: str) -> object:
-    """Load the writers of the extras (and with them matplotlib) on first use."""
-    if name in ("ExtrasOptions", "write_extras"):
-        return getattr(importlib.import_module(".write.extras", __name__), name)
+    """Load a name of the notebook API (and what it needs) on first use."""
+    if name in _LAZY:
+        return getattr(importlib.import_module(_LAZY[name], __name__), name)
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

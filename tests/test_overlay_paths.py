@@ -1,9 +1,11 @@
-"""The overlay's two summing paths (dense spans, sparse runs) against shapely and each other.
+"""The overlay's two summing paths (compiled kernel, sparse runs) against shapely and each other.
 
-Compact polygons are summed on dense spans of cells (gisrun.grid.dense_sums), long thin or
-sprawling ones cell by cell with interior runs (gisrun.grid.sparse_sums). Both must give the
-exact covered area per class: checked against shapely intersections of the polygon with every
-cell square (a general-purpose reference library), and against each other.
+Polygons that share a class window are summed by the compiled kernel
+(gisrun.grid.overlay_kernels, through gisrun.grid.window_sums); a polygon larger than a chunk
+on its own cell by cell with interior runs (gisrun.grid.sparse_sums). Both must give the exact
+covered area per class: checked against shapely intersections of the polygon with every cell
+square (a general-purpose reference library), against each other, and the kernel cell by cell
+against the numpy computation it replaced (gisrun.grid.coverage.cell_coverage).
 """
 
 from __future__ import annotations
@@ -16,10 +18,11 @@ from shapely.geometry import MultiPolygon, Polygon, box
 from test_overlay import SOIL, X0, Y0, by_class, frame, patchy_codes, reference_areas
 
 from gisrun.grid.coverage import _running_sums, cell_coverage, cell_increments
-from gisrun.grid.dense_sums import dense_chunk_sums, dense_eligible
 from gisrun.grid.fine_grid import FineGrid
-from gisrun.grid.overlay import compute_unit_areas
+from gisrun.grid.overlay import _compact_chunks, compute_unit_areas
+from gisrun.grid.overlay_kernels import polygon_class_sums
 from gisrun.grid.sparse_sums import sparse_chunk_sums
+from gisrun.grid.window_sums import ring_arrays, window_sums
 from gisrun.io.raster import read_class_raster
 
 CELL = 10.0
@@ -46,21 +49,32 @@ def soil(geotiff):
 
 
 def in_grid(geoms, grid):
-    """The polygons in grid coordinates, their boxes (r0, r1, c0, c1) and areas in cells."""
+    """The polygons in grid coordinates and their boxes (r0, r1, c0, c1)."""
     t = grid.t
     px = shapely.transform(np.asarray(geoms, dtype=object), lambda xy: np.column_stack(
         ((xy[:, 0] - t.c) / t.a, (xy[:, 1] - t.f) / t.e)))
     b = shapely.bounds(px)
     box_ = np.column_stack([np.floor(b[:, 1]), np.ceil(b[:, 3]), np.floor(b[:, 0]),
                             np.ceil(b[:, 2])]).astype(np.int64)
-    return px, box_, shapely.area(px), shapely.length(px) + shapely.get_num_coordinates(px)
+    return px, box_
 
 
-def test_unit_areas_of_both_paths_equal_shapely_intersections(soil):
+def coverage_grid(cov, n_poly, shape):
+    """cell_coverage's shares laid out as (polygon, row, col) arrays (edge cells and runs)."""
+    out = np.zeros((n_poly, *shape))
+    np.add.at(out, (cov.poly, cov.row, cov.col), cov.fraction)
+    for p, r, a, b, w in zip(cov.run_poly, cov.run_row, cov.run_start, cov.run_stop,
+                             cov.run_weight, strict=True):
+        out[p, r, a:b] += w
+    return out
+
+
+@pytest.mark.parametrize("chunk_cells", [4_000_000, 900])  # 900: the large polygons go sparse
+def test_unit_areas_of_both_paths_equal_shapely_intersections(soil, chunk_cells):
     codes, raster = soil
     geoms = shapes()
     units, cov, _ = compute_unit_areas(frame(geoms), raster, soil_codes=SOIL,
-                                       max_nodata_fraction=1.0)
+                                       max_nodata_fraction=1.0, chunk_cells=chunk_cells)
     for i, g in enumerate(geoms):
         ref = {SOIL[k]: v for k, v in reference_areas(g, codes, X0, Y0, CELL).items() if v > 0}
         assert by_class(units, f"S{i}") == pytest.approx(ref, rel=1e-9)
@@ -68,35 +82,92 @@ def test_unit_areas_of_both_paths_equal_shapely_intersections(soil):
     assert_allclose(cov.covered_area_m2, shapely.area(inside), rtol=1e-12)
 
 
-def test_thin_diagonal_takes_the_sparse_path_and_compact_shapes_the_dense_one(soil):
-    _, raster = soil
-    grid = FineGrid.build(raster, None, SOIL, None, [])
-    _, box_, area, edges = in_grid(shapes(), grid)
-    assert dense_eligible(area, box_, 4_000_000, edges).tolist() == [
-        True, True, False, False, True, True]  # the two parts' box is mostly empty, too
-    # no block above the budget: only the one-cell polygon's 2 x 3 block fits in 60 cells
-    assert dense_eligible(area, box_, 60, edges).tolist() == [False] * 5 + [True]
-    # with few edges for its area (here: counted as none) a compact polygon takes the sparse path
-    assert not dense_eligible(area, box_, 4_000_000, 0 * edges).any()
+def _chunks_by_loop(order, box, chunk_cells):
+    """The grouping loop the compiled ``chunk_starts`` replaced, in plain Python."""
+    chunks, current = [], []
+    r0 = c0 = np.iinfo(np.int64).max
+    r1 = c1 = np.iinfo(np.int64).min
+    for i in order.tolist():
+        nr0, nr1 = min(r0, box[i, 0]), max(r1, box[i, 1])
+        nc0, nc1 = min(c0, box[i, 2]), max(c1, box[i, 3])
+        if current and (nr1 - nr0) * (nc1 - nc0) > chunk_cells:
+            chunks.append(current)
+            current, (nr0, nr1, nc0, nc1) = [], box[i]
+        current.append(i)
+        r0, r1, c0, c1 = nr0, nr1, nc0, nc1
+    return chunks + [current]
 
 
-@pytest.mark.parametrize("chunk_cells", [4_000_000, 900])
+@pytest.mark.parametrize("chunk_cells", [10**9, 5000, 900, 1])
+def test_compact_chunks_group_as_the_plain_loop_did(chunk_cells):
+    rng = np.random.default_rng(5)
+    lo = rng.integers(-50, 400, (300, 2))
+    box_ = np.column_stack([lo[:, 0], lo[:, 0] + rng.integers(1, 60, 300),
+                            lo[:, 1], lo[:, 1] + rng.integers(1, 60, 300)])
+    px = shapely.box(box_[:, 2], box_[:, 0], box_[:, 3], box_[:, 1])
+    got = _compact_chunks(px, box_, chunk_cells)
+    order = np.concatenate(got)
+    assert sorted(order.tolist()) == list(range(300))
+    assert [c.tolist() for c in got] == _chunks_by_loop(order, box_, chunk_cells)
+    if chunk_cells == 1:
+        assert all(c.size == 1 for c in got)  # every box is larger than a chunk on its own
+
+
 @pytest.mark.parametrize("exterior_cw", [True, False])
-def test_dense_and_sparse_sums_agree(soil, chunk_cells, exterior_cw):
+def test_kernel_and_sparse_sums_agree(soil, exterior_cw):
     _, raster = soil
     grid = FineGrid.build(raster, None, SOIL, None, [])
-    px, box_, _, _ = in_grid(shapes(), grid)
+    px, box_ = in_grid(shapes(), grid)
     t = grid.t
     world = shapely.orient_polygons(np.asarray(shapes(), dtype=object), exterior_cw=exterior_cw)
-    dense = dense_chunk_sums(world, box_, grid, chunk_cells, to_grid=(t.c, t.a, t.f, t.e))
-    assert_allclose(dense_chunk_sums(px, box_, grid, chunk_cells), dense, rtol=1e-12, atol=1e-12)
+    kernel = window_sums(world, box_, grid, (t.c, t.a, t.f, t.e))
+    assert_allclose(window_sums(px, box_, grid, (0.0, 1.0, 0.0, 1.0)), kernel,
+                    rtol=1e-12, atol=1e-12)  # the same polygons given in grid coordinates
     r0, r1, c0, c1 = box_[:, 0].min(), box_[:, 1].max(), box_[:, 2].min(), box_[:, 3].max()
     cov = cell_coverage(px, origin=(float(c0), float(r0)))
-    sparse = sparse_chunk_sums(cov, grid, len(px), (int(r0), int(r1), int(c0), int(c1)),
-                               chunk_cells)
-    assert dense.shape == sparse.shape
-    assert_allclose(dense, sparse, rtol=1e-12, atol=1e-12)
-    assert dense[:, 0].sum() > 0  # the overhanging polygon has cells outside the raster
+    sparse = sparse_chunk_sums(cov, grid, len(px), (int(r0), int(r1), int(c0), int(c1)), 900)
+    assert kernel.shape == sparse.shape
+    assert_allclose(kernel, sparse, rtol=1e-12, atol=1e-12)
+    assert kernel[:, 0].sum() > 0  # the overhanging polygon has cells outside the raster
+
+
+@pytest.mark.parametrize("e", [-CELL, CELL])  # north-up and south-up grids
+@pytest.mark.parametrize("exterior_cw", [True, False])
+def test_kernel_cell_by_cell_equals_cell_coverage_and_shapely(e, exterior_cw):
+    """Every cell its own class: the kernel's sums are its shares of single cells."""
+    world = shapely.orient_polygons(np.asarray(shapes(), dtype=object), exterior_cw=exterior_cw)
+    y_top = Y0 if e < 0 else Y0 - 300.0
+    px = shapely.transform(world, lambda xy: np.column_stack(
+        ((xy[:, 0] - X0) / CELL, (xy[:, 1] - y_top) / e)))
+    shape = (31, 45)  # the polygons' cells and the column right of each
+    cls = np.arange(shape[0] * shape[1], dtype=np.int32).reshape(shape)
+    xy, ring_start, exterior, poly_ring = ring_arrays(world)
+    row_area = 1.0 + np.arange(shape[0]) / 7.0  # weights as on a geographic grid
+    for weights in (np.zeros(0), row_area):
+        got = polygon_class_sums(xy, ring_start, exterior, poly_ring, (X0, CELL, y_top, e),
+                                 (0, 0), cls, weights, cls.size).reshape(-1, *shape)
+        ref = coverage_grid(cell_coverage(px), len(px), shape)  # the numpy computation
+        ref = ref * weights[None, :, None] if weights.size else ref
+        assert_allclose(got, ref, rtol=0, atol=1e-12)
+    cols, rows = np.meshgrid(np.arange(shape[1]), np.arange(shape[0]))
+    squares = shapely.box(cols, rows, cols + 1, rows + 1)  # cell (row, col) in grid coordinates
+    for i, g in enumerate(px):  # shapely's exact intersection of the polygon with each cell
+        got = polygon_class_sums(xy, ring_start, exterior, poly_ring, (X0, CELL, y_top, e),
+                                 (0, 0), cls, np.zeros(0), cls.size)[i].reshape(shape)
+        assert_allclose(got, shapely.area(shapely.intersection(squares, g)), rtol=0, atol=1e-9)
+
+
+def test_kernel_keeps_to_its_window_and_clears_its_buffer():
+    """Cells beyond the class window add nothing; a polygon after a larger one is unaffected."""
+    big, small = box(-3.5, -2.25, 9.75, 6.5), box(1.25, 1.5, 2.75, 3.0)
+    xy, ring_start, exterior, poly_ring = ring_arrays(np.array([big, small, big], dtype=object))
+    cls = np.zeros((4, 5), dtype=np.int32)  # rows 0-3, cols 0-4 only
+    cls[:, 2:] = 1
+    got = polygon_class_sums(xy, ring_start, exterior, poly_ring, (0.0, 1.0, 0.0, 1.0), (0, 0),
+                             cls, np.zeros(0), 2)
+    assert_allclose(got[0], [8.0, 12.0], rtol=0, atol=1e-12)  # the whole window, by class
+    assert_allclose(got[1], [0.75 * 1.5, 0.75 * 1.5], rtol=0, atol=1e-12)
+    assert_allclose(got[2], got[0], rtol=0, atol=0)
 
 
 @pytest.mark.parametrize("e", [-CELL, CELL])  # north-up and south-up grids
@@ -115,3 +186,31 @@ def test_increments_read_in_map_coordinates_give_the_grid_coordinates_coverage(e
     areas = np.bincount(got.poly, got.fraction, minlength=len(px)) + np.bincount(
         got.run_poly, got.run_weight * (got.run_stop - got.run_start), minlength=len(px))
     assert_allclose(areas, shapely.area(px), rtol=1e-12)  # shapely, the reference library
+
+
+def test_each_polygon_is_summed_alone_whatever_its_window_and_neighbours(soil):
+    """Bit for bit: a polygon's sums do not depend on which polygons share its window."""
+    _, raster = soil
+    grid = FineGrid.build(raster, None, SOIL, None, [])
+    t = grid.t
+    to_grid = (t.c, t.a, t.f, t.e)
+    world = np.asarray(shapes(), dtype=object)
+    _, box_ = in_grid(world, grid)
+    together = window_sums(world, box_, grid, to_grid)
+    for i in range(len(world)):
+        alone = window_sums(world[i:i + 1], box_[i:i + 1], grid, to_grid)
+        assert np.array_equal(alone[0], together[i])
+
+
+def test_ring_arrays_read_holes_either_way_and_skip_empty_entries():
+    shell = [(0.5, 0.5), (6.5, 0.5), (6.5, 5.5), (0.5, 5.5)]
+    hole = [(2.25, 1.75), (4.5, 1.75), (4.5, 3.5), (2.25, 3.5)]
+    same_way = Polygon(shell, [hole])  # the hole runs the way the shell does
+    other_way = Polygon(shell, [hole[::-1]])
+    expect = 30.0 - 2.25 * 1.75  # shell minus hole (cell units)
+    cls = np.zeros((8, 9), dtype=np.int32)
+    for geoms in ([same_way, other_way], [same_way, shapely.Polygon(), other_way],
+                  [same_way, None, other_way]):
+        arrays = ring_arrays(np.array(geoms, dtype=object))
+        got = polygon_class_sums(*arrays, (0.0, 1.0, 0.0, 1.0), (0, 0), cls, np.zeros(0), 1)
+        assert_allclose(got[:, 0], [expect] + [0.0] * (len(geoms) - 2) + [expect], rtol=1e-14)

@@ -12,18 +12,19 @@ piece adds to each cell it crosses the exact area between the piece and the
 cell's right side (x is linear in y, so this is a closed form), and adds its
 whole height to every cell further right. A running sum along the row then
 gives each cell's covered fraction exactly (the accumulation used by exact
-area-coverage scan converters). Compact polygons (bounding box at most about
-four times their area) run the sum over the span of cells each of their rows
-reaches, laid end to end, and add up share x cell by (polygon, class) in one
-pass, with no sort (:mod:`gisrun.grid.dense_sums`). Others (long thin or
-sprawling shapes) store only the cells an edge touches; between them the
-running sum is constant (0 outside, 1 inside), so interior cells are counted
-as runs read straight from the class raster (:mod:`gisrun.grid.sparse_sums`).
-The two give the same areas up to the order of float additions. Work grows
-with the number of boundary cells plus covered cells, and subcatchments are
-handled in spatially compact chunks, each reading only its own raster window
-(in row bands when one window would be large), so memory does not grow with
-the raster.
+area-coverage scan converters). Subcatchments are handled in spatially compact
+chunks (along a Hilbert curve), each reading only its own class window. In a
+chunk, a compiled kernel (:mod:`gisrun.grid.overlay_kernels`, through
+:mod:`gisrun.grid.window_sums`) takes one polygon at a time: it walks the
+rings' edges into a buffer the size of the polygon's bounding window, runs the
+sums along each row over the cells the edges reached, and adds share x cell to
+the polygon's sum of the cell's class; interior runs come out of the same sum.
+Work grows with the boundary cells plus covered cells, memory with the chunk's
+window and the largest polygon's. A polygon larger than a chunk on its own
+stores only the cells an edge touches and counts interior cells as runs read
+from the class raster in row bands (:mod:`gisrun.grid.sparse_sums`), so memory
+does not grow with the raster. The two give the same areas up to the order of
+float additions.
 
 Two rasters (soil and cover) on different grids: the computation runs on the
 finer grid (smaller cell); the coarser raster is sampled at each fine cell's
@@ -58,7 +59,6 @@ from ..errors import CRSError, InputError, RasterError
 from ..options import NODATA_RULES
 from .classes import ClassGrid
 from .coverage import cell_coverage
-from .dense_sums import dense_chunk_sums, dense_eligible
 from .fine_grid import NODATA_CLASS as _NODATA
 from .fine_grid import OUTSIDE_CLASS as _OUTSIDE
 from .fine_grid import UNSPECIFIED_COVER
@@ -66,9 +66,11 @@ from .fine_grid import FineGrid as _Grid
 from .fine_grid import combined_table as _combined_table  # noqa: F401 - kept importable here
 from .fine_grid import lookup_classes as _lookup  # noqa: F401 - kept importable here
 from .fine_grid import note_alignment as _note_alignment  # noqa: F401 - kept importable here
+from .overlay_kernels import chunk_starts
 from .sparse_sums import painted_counts as _painted_counts  # noqa: F401 - kept importable here
 from .sparse_sums import run_sums as _run_sums  # noqa: F401 - kept importable here
 from .sparse_sums import sparse_chunk_sums as _chunk_sums
+from .window_sums import window_sums
 
 __all__ = ["compute_unit_areas", "UNSPECIFIED_COVER"]
 
@@ -167,20 +169,16 @@ def _class_sums(geoms: NDArray[Any], grid: _Grid, chunk_cells: int) -> tuple[NDA
     xs, ys = (b[:, [0, 2]] - t.c) / t.a, (b[:, [1, 3]] - t.f) / t.e  # each exact per vertex
     box = np.column_stack([np.floor(ys.min(axis=1)), np.ceil(ys.max(axis=1)),
                            np.floor(xs.min(axis=1)), np.ceil(xs.max(axis=1))]).astype(np.int64)
-    edges = shapely.length(geoms) / abs(t.a * t.e) ** 0.5 + shapely.get_num_coordinates(geoms)
-    dense = dense_eligible(shapely.area(geoms) / abs(t.a * t.e), box, chunk_cells, edges)
     to_grid = (t.c, t.a, t.f, t.e)
-    centres = _grid_coords(shapely.centroid(geoms), t)
+    centres = shapely.points(xs.mean(axis=1), ys.mean(axis=1))  # box centres: the order only
     out: list[tuple[NDArray[Any], ...]] = []
     for idx in _compact_chunks(centres, box, chunk_cells):
-        local = np.zeros((idx.size, grid.n_classes))
-        on, off = np.flatnonzero(dense[idx]), np.flatnonzero(~dense[idx])
-        if on.size:
-            local[on] = dense_chunk_sums(geoms[idx[on]], box[idx[on]], grid, chunk_cells,
-                                         to_grid=to_grid)
-        if off.size:
-            local[off] = _sparse_sums(_grid_coords(geoms[idx[off]], t), box[idx[off]], grid,
-                                      chunk_cells)
+        if idx.size == 0:  # no polygons at all
+            local = np.zeros((0, grid.n_classes))
+        elif idx.size == 1 and np.prod(np.diff(box[idx[0]].reshape(2, 2))) > chunk_cells:
+            local = _sparse_sums(_grid_coords(geoms[idx], t), box[idx], grid, chunk_cells)
+        else:
+            local = window_sums(geoms[idx], box[idx], grid, to_grid)
         poly, cls = np.nonzero(local)
         out.append((idx[poly], cls, local[poly, cls]))
     return tuple(np.concatenate(parts) for parts in zip(*out, strict=True))
@@ -202,22 +200,15 @@ def _sparse_sums(px: NDArray[Any], box: NDArray[np.int64], grid: _Grid, chunk_ce
 
 def _compact_chunks(px: NDArray[Any], box: NDArray[np.int64],
                     chunk_cells: int) -> list[NDArray[Any]]:
-    """Polygons grouped along a Hilbert curve so that each group's window stays small."""
+    """Polygons grouped along a Hilbert curve so that each group's window stays small.
+
+    Consecutive polygons join a group while the group's joint window stays within
+    ``chunk_cells``; a polygon larger than that on its own is a group of one.
+    """
     hilbert = np.asarray(gpd.GeoSeries(shapely.centroid(px)).hilbert_distance())
     order = hilbert.argsort(kind="stable")
-    chunks, current = [], []
-    r0 = c0 = np.iinfo(np.int64).max
-    r1 = c1 = np.iinfo(np.int64).min
-    for i in order.tolist():
-        nr0, nr1 = min(r0, box[i, 0]), max(r1, box[i, 1])
-        nc0, nc1 = min(c0, box[i, 2]), max(c1, box[i, 3])
-        if current and (nr1 - nr0) * (nc1 - nc0) > chunk_cells:
-            chunks.append(np.array(current))
-            current, (nr0, nr1, nc0, nc1) = [], box[i]
-        current.append(i)
-        r0, r1, c0, c1 = nr0, nr1, nc0, nc1
-    chunks.append(np.array(current))
-    return chunks
+    return np.split(order, chunk_starts(np.ascontiguousarray(box[order], dtype=np.int64),
+                                        chunk_cells))
 
 
 def _finish(ids: NDArray[Any], own_m2: NDArray[np.float64], sums: tuple[NDArray[Any], ...],

@@ -4,13 +4,13 @@ A rain grid reaches this module as a :class:`RainGrid`: its georeferencing, its 
 ``read_steps`` method, the only door to the file (``gisrun.io.rain_grid.RainStack`` is the
 file-backed one; tests pass arrays). :func:`grid_areal_depth` reads the stack in blocks of
 steps, so memory holds one block, and gives each subcatchment the area-weighted mean of the
-cells over its polygon: one sparse product per block with the weights of
-:func:`gisrun.grid.rain_weights.rain_grid_weights`.
+cells over its polygon with the weights of :func:`gisrun.grid.rain_weights.rain_grid_weights`.
 
 The mean of a block is :func:`gisrun.storm.areal.weighted_mean`'s, ``min + W (x - min)`` with
-the smallest value of the cells used in each step (computed here in the sparse product's own
-layout, subcatchments x steps, to spare a transpose): a grid whose cells all hold the same depth
-gives exactly that depth to every subcatchment, whatever the rounding of the weights.
+the smallest value of the cells used in each step: a grid whose cells all hold the same depth
+gives exactly that depth to every subcatchment, whatever the rounding of the weights. The
+compiled kernels of :mod:`gisrun.storm.gridded_kernels` check the block and make the means
+straight into the result, to the bit what scipy's sparse product of the shifted block gives.
 
 Rainfall feeds planning-level runoff estimates only; defer to local codes, agency methods and a
 licensed engineer.
@@ -25,6 +25,8 @@ from numpy.typing import NDArray
 
 from ..errors import StormError
 from ..grid.rain_weights import RainGridGeometry, RainGridWeights
+from .gridded_kernels import (BLOCK_NODATA, BLOCK_OK, TILE_BYTES, plan_tiles, scan_block,
+                              tile_means)
 
 __all__ = ["RainGrid", "grid_areal_depth", "steps_per_block", "BLOCK_BYTES"]
 
@@ -61,14 +63,14 @@ def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
     grid : RainGrid
         The rain stack, read ``block_bytes`` at a time.
     block_bytes : int
-        Memory for one block of grid steps (the block's means per subcatchment come on top,
-        and, when the stack takes more than one block, are copied into the result).
+        Memory for one block of grid steps (the result and a tile buffer of
+        :data:`gisrun.storm.gridded_kernels.TILE_BYTES` come on top).
 
     Returns
     -------
     ndarray, shape (steps, subcatchments)
         In Fortran order: each subcatchment's steps lie together (a chunk of subcatchments
-        takes its columns cheaply, and a block's product is the result without a transpose).
+        takes its columns cheaply, and each block's means are written in place).
 
     Raises
     ------
@@ -76,45 +78,47 @@ def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
         If a cell a subcatchment uses is nodata or negative in some step.
     """
     k = steps_per_block(grid, block_bytes)
-    if k >= grid.steps:
-        return _block_means(weights, grid, 0, grid.steps).T
-    out = np.empty((grid.steps, len(weights.subcatchment_ids)), dtype=np.float64, order="F")
+    matrix = weights.matrix
+    order, tile_start, slot, cols_start, cols = plan_tiles(
+        matrix.indptr, matrix.indices, weights.cells.size,
+        max(1, TILE_BYTES // (8 * min(k, max(grid.steps, 1)))))
+    shape = (grid.steps, len(weights.subcatchment_ids))
+    out = np.empty(shape, dtype=np.float64, order="F") if grid.steps == 0 else None
     for first in range(0, grid.steps, k):
         stop = min(first + k, grid.steps)
-        out.T[:, first:stop] = _block_means(weights, grid, first, stop)
+        block, low = _checked_block(weights, grid, first, stop)
+        if out is None:  # made after the first read, whose own temporaries are then gone
+            out = np.empty(shape, dtype=np.float64, order="F")
+        tile_means(order, tile_start, cols_start, cols, matrix.indptr, slot, matrix.data,
+                   weights.cells, block, low, out.T[:, first:stop])
     return out
 
 
-def _block_means(weights: RainGridWeights, grid: RainGrid, first: int, stop: int
-                 ) -> NDArray[np.float64]:
-    """Means of steps ``first:stop``, ``(subcatchments, steps)``, as the sparse product makes it."""
-    block = grid.read_steps(first, stop)
-    cells_by_step = block.reshape(stop - first, -1).T[weights.cells]  # (cells, steps), C order
-    del block
-    _check_values(cells_by_step.T, weights, grid, first)
-    low = cells_by_step.min(axis=0)
-    cells_by_step -= low
-    means = np.asarray(weights.matrix @ cells_by_step)
-    means += low
-    return means
+def _checked_block(weights: RainGridWeights, grid: RainGrid, first: int, stop: int
+                   ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Steps ``first:stop`` as ``(steps, cells of the grid)`` and their smallest used values."""
+    block = np.ascontiguousarray(grid.read_steps(first, stop).reshape(stop - first, -1),
+                                 dtype=np.float64)
+    low = np.empty(stop - first, dtype=np.float64)
+    status, step, col = scan_block(block, weights.cells, low)
+    if status != BLOCK_OK:
+        _raise_bad_value(status, block[step, weights.cells[col]], weights, grid, first + step,
+                         col)
+    return block, low
 
 
-def _check_values(values: NDArray[np.float64], weights: RainGridWeights, grid: RainGrid,
-                  first: int) -> None:
-    bad = ~np.isfinite(values)
-    if bad.any():
-        step, col = (int(v) for v in np.argwhere(bad)[0])
+def _raise_bad_value(status: int, value: float, weights: RainGridWeights, grid: RainGrid,
+                     step: int, col: int) -> None:
+    if status == BLOCK_NODATA:
         sub = weights.subcatchment_ids[_first_user(weights, col)]
         raise StormError(grid.where,
-                         f"has no rain value (nodata) at {grid.step_label(first + step)}"
+                         f"has no rain value (nodata) at {grid.step_label(step)}"
                          f" in cell {_cell_name(weights, col)} used by subcatchment {sub!r}",
                          "fill the gap in the rain grid, or give a grid without nodata over the "
                          "subcatchments")
-    if (values < 0).any():
-        step, col = (int(v) for v in np.argwhere(values < 0)[0])
-        raise StormError(grid.where, f"has rain {values[step, col]:g} m < 0 at "
-                         f"{grid.step_label(first + step)} in cell {_cell_name(weights, col)}",
-                         "give rain depths or intensities >= 0")
+    raise StormError(grid.where, f"has rain {value:g} m < 0 at "
+                     f"{grid.step_label(step)} in cell {_cell_name(weights, col)}",
+                     "give rain depths or intensities >= 0")
 
 
 def _first_user(weights: RainGridWeights, col: int) -> int:

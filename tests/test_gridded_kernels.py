@@ -1,0 +1,219 @@
+"""The rain-grid kernels against the numpy/scipy computation they replace, to the bit.
+
+Reference (the plain computation of :func:`gisrun.storm.areal.weighted_mean`, as the areal rain
+was made before the kernels): gather the used cells, take each step's minimum with numpy,
+subtract it, multiply by the weights with scipy's CSR product, add the minimum back. The
+kernels must give the same float64 values bit for bit (``np.array_equal``), whatever the
+tiling, the block size, the order of the subcatchments and of the cells; and stop on the
+same value with the same message for nodata and negative rain.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pytest
+from scipy import sparse
+
+from gisrun.errors import StormError
+from gisrun.grid.rain_weights import RainGridWeights
+from gisrun.storm import weighted_mean
+from gisrun.storm.gridded import grid_areal_depth
+from gisrun.storm.gridded_kernels import (
+    BLOCK_NEGATIVE,
+    BLOCK_NODATA,
+    BLOCK_OK,
+    plan_tiles,
+    scan_block,
+    tile_means,
+)
+
+HEIGHT, WIDTH = 30, 40
+
+
+@dataclass(frozen=True)
+class StackInMemory:
+    """A rain stack held in memory (depth per step in m, ``(steps, height, width)``)."""
+
+    values: np.ndarray
+    where: str = "memory.nc:rain"
+    step_s: float = 300.0
+    crs: object = None
+    transform: object = None
+
+    @property
+    def steps(self) -> int:
+        return self.values.shape[0]
+
+    @property
+    def height(self) -> int:
+        return self.values.shape[1]
+
+    @property
+    def width(self) -> int:
+        return self.values.shape[2]
+
+    def read_steps(self, first: int, stop: int) -> np.ndarray:
+        return self.values[first:stop].astype(np.float64)
+
+    def step_label(self, step: int) -> str:
+        return f"2026-07-01 step {step + 1}"
+
+
+def random_weights(rng: np.random.Generator, n: int, m: int, *, empty_row: bool = False,
+                   sorted_indices: bool = True) -> RainGridWeights:
+    """``n`` subcatchments over ``m`` used cells (in random grid order), 1-9 cells each."""
+    cells = rng.choice(HEIGHT * WIDTH, size=m, replace=False).astype(np.int64)
+    counts = rng.integers(1, 10, size=n)
+    if empty_row:
+        counts[n // 2] = 0
+    indptr = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    indices = np.concatenate([rng.choice(m, size=c, replace=False) for c in counts])
+    if sorted_indices:
+        for s in range(n):
+            indices[indptr[s]:indptr[s + 1]].sort()
+    data = rng.uniform(0.01, 1.0, size=indices.size) ** 3  # weights spanning decades
+    data /= np.add.reduceat(data, indptr[:-1])[np.repeat(np.arange(n), counts)]
+    matrix = sparse.csr_array((data, indices.astype(np.int64), indptr), shape=(n, m))
+    ids = tuple(f"S{i}" for i in range(n))
+    return RainGridWeights(ids, cells, matrix, "memory.nc:rain", WIDTH)
+
+
+def random_rain(rng: np.random.Generator, steps: int) -> np.ndarray:
+    """Rain depths in m: a third of the cells dry, the rest from 1e-7 to 0.03 m."""
+    values = 10.0 ** rng.uniform(-7, np.log10(0.03), size=(steps, HEIGHT, WIDTH))
+    values[rng.uniform(size=values.shape) < 1 / 3] = 0.0
+    return values
+
+
+def scipy_means(values: np.ndarray, weights: RainGridWeights) -> np.ndarray:
+    """The computation replaced: numpy minimum, scipy CSR product, ``(steps, subcatchments)``."""
+    return weighted_mean(values.reshape(values.shape[0], -1)[:, weights.cells], weights.matrix)
+
+
+def kernel_means(values: np.ndarray, weights: RainGridWeights, tile_cells: int) -> np.ndarray:
+    block = values.reshape(values.shape[0], -1)
+    low = np.empty(block.shape[0])
+    assert scan_block(block, weights.cells, low)[0] == BLOCK_OK
+    m = weights.matrix
+    order, tile_start, slot, cols_start, cols = plan_tiles(m.indptr, m.indices,
+                                                           weights.cells.size, tile_cells)
+    out = np.empty((m.shape[0], block.shape[0]))
+    tile_means(order, tile_start, cols_start, cols, m.indptr, slot, m.data, weights.cells,
+               block, low, out)
+    return out.T
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_kernels_give_scipys_product_to_the_bit_whatever_the_tiles(seed):
+    rng = np.random.default_rng(seed)
+    weights = random_weights(rng, 300, 700, empty_row=True, sorted_indices=seed != 2)
+    values = random_rain(rng, 23)
+    expected = scipy_means(values, weights)
+    for tile_cells in (1, 7, 64, 10_000):  # one subcatchment a tile ... all in one tile
+        assert np.array_equal(kernel_means(values, weights, tile_cells), expected)
+
+
+def test_areal_depth_by_blocks_gives_scipys_product_to_the_bit():
+    rng = np.random.default_rng(4)
+    weights = random_weights(rng, 500, 900)
+    stack = StackInMemory(random_rain(rng, 37))
+    expected = scipy_means(stack.values, weights)
+    step_bytes = 8 * HEIGHT * WIDTH
+    for steps_a_block in (1, 5, 36, 37, 100):  # several blocks, a short last one, one block
+        got = grid_areal_depth(weights, stack, block_bytes=steps_a_block * step_bytes)
+        assert got.flags.f_contiguous and got.shape == (37, 500)
+        assert np.array_equal(got, expected)
+
+
+def test_plan_covers_every_subcatchment_once_and_keeps_tiles_within_their_cells():
+    rng = np.random.default_rng(5)
+    weights = random_weights(rng, 400, 600, empty_row=True)
+    m = weights.matrix
+    order, tile_start, slot, cols_start, cols = plan_tiles(m.indptr, m.indices, 600, 25)
+    assert np.array_equal(np.sort(order), np.arange(400))
+    for t in range(tile_start.size - 1):
+        tile_cols = cols[cols_start[t]:cols_start[t + 1]]
+        assert np.unique(tile_cols).size == tile_cols.size
+        rows = order[tile_start[t]:tile_start[t + 1]]
+        assert tile_cols.size <= 25 or rows.size == 1
+        for s in rows:  # each nonzero's slot names its own column in the tile's buffer
+            p = slice(m.indptr[s], m.indptr[s + 1])
+            assert np.array_equal(tile_cols[slot[p]], m.indices[p])
+
+
+def test_a_uniform_grid_gives_its_value_exactly():
+    # Exact by construction (common practice for a weighted mean): x - min is 0 in every cell,
+    # so the mean is min + 0, whatever the rounding of the weights.
+    rng = np.random.default_rng(6)
+    weights = random_weights(rng, 250, 800)
+    values = np.full((9, HEIGHT, WIDTH), 0.1)  # 0.1 m: not a binary fraction
+    values[3] = 7.3e-5
+    values[5] = 0.0
+    got = grid_areal_depth(weights, StackInMemory(values))
+    assert np.all(got == values[:, :1, 0])
+
+
+def test_scan_finds_numpys_minimum_and_accepts_minus_zero():
+    rng = np.random.default_rng(7)
+    weights = random_weights(rng, 50, 300)
+    values = random_rain(rng, 6)
+    values[2] += 0.001  # a step without a dry cell
+    values.reshape(6, -1)[4, weights.cells[17]] = -0.0  # passes ``>= 0``, as before
+    block = values.reshape(6, -1)
+    low = np.empty(6)
+    assert scan_block(block, weights.cells, low) == (BLOCK_OK, -1, -1)
+    assert np.array_equal(low, block[:, weights.cells].min(axis=1))
+    assert np.array_equal(kernel_means(values, weights, 40), scipy_means(values, weights))
+
+
+def numpy_first_bad(values: np.ndarray, weights: RainGridWeights) -> tuple[int, int, int]:
+    """The check replaced: any value not finite first (by step, then column), else negative."""
+    used = values.reshape(values.shape[0], -1)[:, weights.cells]
+    for status, bad in ((BLOCK_NODATA, ~np.isfinite(used)), (BLOCK_NEGATIVE, used < 0)):
+        if bad.any():
+            step, col = (int(v) for v in np.argwhere(bad)[0])
+            return status, step, col
+    return BLOCK_OK, -1, -1
+
+
+@pytest.mark.parametrize("bad", [
+    [(4, 9, np.nan)],
+    [(4, 9, np.inf), (4, 3, np.nan)],  # the first by column within a step
+    [(1, 2, -1e-6), (5, 0, np.nan)],  # nodata anywhere comes before a negative value
+    [(3, 8, -np.inf)],
+    [(2, 11, -2e-4), (2, 4, -3e-4), (6, 1, -1.0)],
+])
+def test_scan_stops_on_the_value_numpys_check_stops_on(bad):
+    rng = np.random.default_rng(8)
+    weights = random_weights(rng, 60, 200)
+    values = random_rain(rng, 8)
+    flat = values.reshape(8, -1)
+    for step, col, value in bad:
+        flat[step, weights.cells[col]] = value
+    flat[0, np.setdiff1d(np.arange(HEIGHT * WIDTH), weights.cells)[0]] = np.nan  # unused: no matter
+    low = np.empty(8)
+    assert scan_block(flat, weights.cells, low) == numpy_first_bad(values, weights)
+
+
+def test_nodata_and_negative_rain_stop_with_the_messages_of_before():
+    rng = np.random.default_rng(9)
+    weights = random_weights(rng, 40, 100)
+    values = random_rain(rng, 10)
+    col = int(weights.matrix.indices[50])  # a used cell
+    cell = int(weights.cells[col])
+    name = f"r{cell // WIDTH}_c{cell % WIDTH}"
+    first_user = weights.subcatchment_ids[int(np.flatnonzero(weights.matrix.toarray()[:, col])[0])]
+    values.reshape(10, -1)[7, cell] = -0.0025
+    with pytest.raises(StormError) as err:  # negative: value, time and cell, as before
+        grid_areal_depth(weights, StackInMemory(values), block_bytes=3 * 8 * HEIGHT * WIDTH)
+    assert str(err.value) == (f"memory.nc:rain: has rain -0.0025 m < 0 at 2026-07-01 step 8 "
+                              f"in cell {name}; give rain depths or intensities >= 0")
+    values.reshape(10, -1)[8, cell] = np.nan
+    with pytest.raises(StormError) as err:  # nodata in the same block comes first
+        grid_areal_depth(weights, StackInMemory(values), block_bytes=3 * 8 * HEIGHT * WIDTH)
+    assert str(err.value) == (
+        f"memory.nc:rain: has no rain value (nodata) at 2026-07-01 step 9 in cell {name} used "
+        f"by subcatchment {first_user!r}; fill the gap in the rain grid, or give a grid without "
+        "nodata over the subcatchments")
