@@ -20,17 +20,14 @@ from __future__ import annotations
 import re
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
+import pandas as pd
 from numpy.typing import ArrayLike, NDArray
 
-from .units_kernels import round_to_digits
-
-if TYPE_CHECKING:
-    import pandas as pd
-
 from .errors import InputError
+from .units_kernels import DECIMAL_EXPONENT_FLOOR, POWERS_AROUND, round_to_digits
 
 __all__ = [
     "FACTORS_TO_SI",
@@ -208,7 +205,8 @@ def round_significant(values: ArrayLike, digits: int = SIGNIFICANT_DIGITS
     [0.2, 11.9989, 48557.9]
     """
     x = np.ascontiguousarray(values, dtype=np.float64)
-    return round_to_digits(x.reshape(-1), digits, _POWERS_OF_TEN).reshape(x.shape)
+    return round_to_digits(x.reshape(-1), digits, _POWERS_OF_TEN, DECIMAL_EXPONENT_FLOOR,
+                           POWERS_AROUND).reshape(x.shape)
 
 
 def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
@@ -230,11 +228,22 @@ def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
     """
     endings = [(suffix, f"_{_unit_of(system, kind)}", _unit_of(system, kind))
                for suffix, kind in _SUFFIXES]
-    out = _convert_columns(frame, endings, from_si)
-    for name in out.columns:
-        if out[name].dtype == np.float64:
-            out[name] = round_significant(out[name].to_numpy())
-    return out
+    columns: dict[Any, Any] = {}
+    for name in frame.columns:
+        new_name, unit = _renamed(name, endings)
+        if unit is not None:
+            columns[new_name] = round_significant(
+                from_si(frame[name].to_numpy(dtype=np.float64), unit))
+        elif frame[name].dtype == np.float64:
+            columns[new_name] = round_significant(frame[name].to_numpy())
+        else:
+            columns[new_name] = frame[name]
+    if len(columns) < frame.shape[1]:  # two names became one: keep both, as renaming does
+        out = _convert_columns(frame, endings, from_si)
+        return out.assign(**{n: round_significant(out[n].to_numpy())
+                             for n in out.columns if out[n].dtype == np.float64})
+    # Each column made once and taken as it is (no copy of the frame, then of each column).
+    return pd.DataFrame(columns, index=frame.index, copy=False)
 
 
 def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
@@ -250,6 +259,14 @@ def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
     endings = sorted(((f"_{_unit_of(system, kind)}", suffix, _unit_of(system, kind))
                       for suffix, kind in _SUFFIXES), key=lambda t: -len(t[0]))
     return _convert_columns(frame, endings, to_si)
+
+
+def _renamed(name: object, endings: list[tuple[str, str, str]]) -> tuple[object, str | None]:
+    """(new name, unit) of a column by the first ending it matches; (name, None) if none."""
+    for ending, new_ending, unit in endings:
+        if isinstance(name, str) and name.endswith(ending):
+            return name[: -len(ending)] + new_ending, unit
+    return name, None
 
 
 def _convert_columns(frame: pd.DataFrame, endings: list[tuple[str, str, str]],

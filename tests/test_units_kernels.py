@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from gisrun.units import _POWERS_OF_TEN, round_significant
-from gisrun.units_kernels import round_to_digits
+from gisrun.units_kernels import DECIMAL_EXPONENT_FLOOR, POWERS_AROUND, round_to_digits
 
 
 def numpy_round_significant(values, digits=6):
@@ -49,8 +49,12 @@ def test_next_to_powers_of_ten_and_halves():
     for _ in range(4):
         below.append(np.nextafter(below[-1], 0.0))
     halves = np.arange(1, 200_000) * 0.5 * 10.0 ** -5  # exact ties at the 6th digit, and not
-    x = np.concatenate([p, *below, np.nextafter(p, np.inf), p * (1 - 5e-7), -p, halves,
-                        [123456.5, 1234565.0, 0.1234565]])
+    # the kernel reads the exponent from the bits: powers of two, their neighbours, subnormals
+    two = 2.0 ** np.arange(-1074, 1024)
+    bits = [two, np.nextafter(two, 0.0), np.nextafter(two, np.inf), 5e-324 * np.arange(1, 999)]
+    x = np.concatenate([p, *below, np.nextafter(p, np.inf), p * (1 - 5e-7), p * (1 + 1e-9),
+                        p * (1 - 1e-9), -p, halves, *bits, [123456.5, 1234565.0, 0.1234565]])
+    x = x[np.isfinite(x)]
     assert _same_bits(round_significant(x), numpy_round_significant(x))
 
 
@@ -58,6 +62,7 @@ def test_kernel_is_the_public_function_and_keeps_shape():
     x = np.linspace(-3.0, 7.0, 24).reshape(2, 3, 4) / 7.0
     out = round_significant(x)
     assert out.shape == (2, 3, 4)
-    assert _same_bits(out.ravel(), round_to_digits(x.ravel(), 6, _POWERS_OF_TEN))
+    assert _same_bits(out.ravel(), round_to_digits(x.ravel(), 6, _POWERS_OF_TEN,
+                                                    DECIMAL_EXPONENT_FLOOR, POWERS_AROUND))
     assert round_significant([2.5e-7, 0.19999999999999998])[1] == 0.2
     assert round_significant(1234565.0, 6) == 1234560.0  # a tie: half to even (numpy.round)
