@@ -95,14 +95,21 @@ FLOOR_WRITE = """
 import os, sys, time, pathlib, pyogrio, pyarrow.parquet as pq
 clock = time.process_time if os.environ.get('BENCH_CLOCK') == 'cpu' else time.perf_counter
 source, target = sys.argv[1:3]
-layers = [(n, pyogrio.read_dataframe(source, layer=n)) for n, _ in pyogrio.list_layers(source)]
+SLICE = 1_000_000  # rows read back (untimed) and written at a time: memory stays bounded
 series = pathlib.Path(source).with_suffix(".series.parquet")
-start, cpu, spent_cpu, spent = clock(), time.process_time(), 0.0, 0.0
-for name, frame in layers:
-    begin = clock()
-    pyogrio.write_dataframe(frame, target, layer=name, driver="GPKG", use_arrow=True)
-    print("LAYER", name, clock() - begin)
-spent, spent_cpu = clock() - start, time.process_time() - cpu
+spent_cpu, spent = 0.0, 0.0
+for name, _ in pyogrio.list_layers(source):
+    n, begin = pyogrio.read_info(source, layer=name)["features"], 0.0
+    for k in range(0, max(n, 1), SLICE):
+        frame = pyogrio.read_dataframe(source, layer=name, skip_features=k, max_features=SLICE)
+        start, cpu = clock(), time.process_time()
+        pyogrio.write_dataframe(frame, target, layer=name, driver="GPKG", use_arrow=True,
+                                append=k > 0)
+        begin += clock() - start
+        spent_cpu += time.process_time() - cpu
+        del frame
+    spent += begin
+    print("LAYER", name, begin)
 if series.exists():  # the run's encoding (gisrun.io.series_file), row group by row group
     source_file, writer, begin = pq.ParquetFile(series), None, 0.0
     for k in range(source_file.num_row_groups):
@@ -231,12 +238,29 @@ def on_cluster(project: Path, output: Path, workers: int) -> dict:
             "dask_identical": not differences, "compare_s": time.perf_counter() - start}
 
 
+def single_run(project: Path, output: Path, *, reuse: bool) -> dict:
+    """The single-process run, or with ``reuse`` the figures saved by an earlier one.
+
+    Every measured single-process run saves its figures in ``bench_single_run.json`` beside its
+    output, so that a long benchmark whose later part failed can resume without running it again.
+    """
+    saved = output.parent / "bench_single_run.json"
+    if reuse and saved.exists() and output.exists():
+        run = json.loads(saved.read_text())
+        print(f"single process: reusing the run measured earlier ({saved}) and its output",
+              flush=True)
+        return run
+    run = measured_run(project, output)
+    saved.write_text(json.dumps(run))
+    return run
+
+
 def bench(n_cells: int, n_polygons: int, *, workers: int | None = None,
-          second_storm: bool = True) -> dict:
+          second_storm: bool = True, reuse_single: bool = False) -> dict:
     paths = make_inputs(n_cells=n_cells, n_polygons=n_polygons)
     out_dir = Path(paths.project).parent
     output = out_dir / "bench_output.gpkg"
-    run = measured_run(Path(paths.project), output)
+    run = single_run(Path(paths.project), output, reuse=reuse_single)
     print(f"{n_cells} cells: single process: {json.dumps(run)}", flush=True)
     read_s, read_cpu = read_rasters_once([Path(paths.soil), Path(paths.cover)])
     write_s, layer_s, write_cpu = write_geopackage_once(output, out_dir / "floor_copy.gpkg")
@@ -348,6 +372,10 @@ def main(argv: list[str] | None = None) -> None:
                         "with the single process's exactly")
     parser.add_argument("--no-second-storm", action="store_true",
                         help="leave out the two-storm run (saves a whole run on large sets)")
+    parser.add_argument("--reuse-single", action="store_true",
+                        help="take the single-process run's figures and output from an earlier "
+                        "invocation (bench_single_run.json beside the output) instead of running "
+                        "it again: to resume a long benchmark whose later part failed")
     args = parser.parse_args(argv)
     os.environ["BENCH_CLOCK"] = args.clock  # read by the child processes too
     print(f"times are {'CPU' if args.clock == 'cpu' else 'wall-clock'} seconds")
@@ -358,8 +386,8 @@ def main(argv: list[str] | None = None) -> None:
             if not args.json:
                 print_second_storm(r)
         return
-    rows = [bench(n, args.polygons, workers=args.workers, second_storm=not args.no_second_storm)
-            for n in args.cells]
+    rows = [bench(n, args.polygons, workers=args.workers, second_storm=not args.no_second_storm,
+                  reuse_single=args.reuse_single) for n in args.cells]
     if args.json:
         print(json.dumps(rows, indent=2))
         return

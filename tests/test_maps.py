@@ -12,6 +12,8 @@ import matplotlib.image as mpimg
 import numpy as np
 import pandas as pd
 import pytest
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 from numpy.testing import assert_allclose
 from PIL import Image
 from report_helpers import methods_project
@@ -20,6 +22,7 @@ from shapely.geometry import box
 from gisrun import run
 from gisrun.engine import run_losses
 from gisrun.present import maps, plots
+from gisrun.present.canvas import FileCanvas, figure_png, new_figure
 from gisrun.write.figures import write_figures
 
 
@@ -92,7 +95,7 @@ def test_drawing_leaves_pyplot_figures_alone():
     fig = plots.hyetograph_plot([("a", np.array([0.0, 10, 20]), np.array([5.0, 10.0]))],
                                 rate_unit="mm/h")
     assert plt.get_fignums() == before
-    assert type(fig.canvas).__name__ == "FigureCanvasAgg"
+    assert isinstance(fig.canvas, FigureCanvasAgg)
     decoded(maps.figure_png(fig))
 
 
@@ -206,3 +209,26 @@ def test_every_map_of_a_run_shares_its_classes(tmp_path, monkeypatch):
     assert runoff[0][0] == "0"
     top = max(float(s.subcatchments["runoff_depth_m"].max()) * 1000 for s in result.storms)
     assert float(runoff[0][-1].split("–")[-1].replace(",", "")) >= top
+
+
+def test_maps_are_drawn_once_when_saved_not_per_layer(monkeypatch):
+    """geopandas asks the canvas to redraw after every layer it plots; on a file canvas that
+    must not draw the whole figure each time (it did, a fifth of a demo run), and the PNG must
+    be the one a plain Agg canvas gives."""
+    gdf = gpd.GeoDataFrame({"v": [1.0, 2.0]}, geometry=[box(0, 0, 1, 1), box(1, 0, 2, 1)])
+    draws = []
+    real_draw = Figure.draw
+    monkeypatch.setattr(Figure, "draw", lambda self, r: (draws.append(1), real_draw(self, r)))
+    fig = new_figure((4, 3))
+    assert isinstance(fig.canvas, FileCanvas)
+    ax = fig.add_subplot()
+    for _ in range(3):
+        gdf.plot(ax=ax, column="v")
+    assert draws == []
+    png = figure_png(fig)
+    plain = Figure(figsize=(4, 3), dpi=100)
+    FigureCanvasAgg(plain)
+    ax = plain.add_subplot()
+    for _ in range(3):
+        gdf.plot(ax=ax, column="v")
+    assert figure_png(plain) == png

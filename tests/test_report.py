@@ -18,7 +18,8 @@ from report_helpers import methods_project
 from test_cellgrid import tiny_project
 
 from gisrun import CAUTION, run
-from gisrun.present.display import human
+from gisrun.present.display import human, method_name
+from gisrun.present.explore import explore_section
 from gisrun.present.layers import ponding_ranking
 from gisrun.present.report import CONTENT_POLICY, SECTIONS, ReportFigures, build_report
 from gisrun.write.extras import ExtrasOptions, write_deliverables
@@ -296,3 +297,21 @@ def test_lumping_section_lists_subcatchments_largest_difference_first(report):
     section = text[text.index('id="lumping"'):text.index('id="mass-balance"')]
     order = [section.index(f"<td>{sid}</td>") for sid in diffs["subcatchment_id"]]
     assert order == sorted(order)
+
+
+def test_each_panel_holds_its_own_subcatchment_under_every_storm(report):
+    """The panels are built from the run's rows split once by subcatchment: each panel must
+    still show its own subcatchment's runoff depth under every storm, in storm order, and its
+    own method, never a neighbour's."""
+    result = report[0]
+    section = explore_section(result, {})
+    panels = re.findall(r'<template id="panel-(\d+)"><h3>([^<]+)</h3>(.*?)</template>', section)
+    assert len(panels) == len(result.subcatchments)
+    methods = result.subcatchment_methods.set_index("subcatchment_id")["loss_method"]
+    for k, sid, body in panels:
+        assert result.subcatchments["subcatchment_id"].astype(str).iloc[int(k)] == sid
+        depths = [human(s.subcatchments.set_index("subcatchment_id").loc[sid, "runoff_depth_m"]
+                        * 1000) for s in result.storms]
+        row = re.search(r"<td>runoff depth \(mm\)</td>(.*?)</tr>", body).group(1)
+        assert re.findall(r"<td[^>]*>([^<]*)</td>", row) == depths
+        assert f"({method_name(methods[sid])})" in body

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import json
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 
 import geopandas as gpd
 import numpy as np
@@ -165,50 +166,87 @@ def _columns_to_rows(frame: pd.DataFrame, name: str) -> pd.DataFrame:
     return out.rename_axis(name).reset_index()
 
 
-def _panel(result: RunResult, sid: str, k: int, plots: Mapping[str, Sequence[tuple[str, str]]]
-           ) -> str:
+_PANEL_COLUMNS = ["storm", "rain_depth_m", "infiltration_depth_m", "storage_depth_m",
+                  "runoff_depth_m", "runoff_volume_m3", "runoff_coefficient", "time_to_ponding_s",
+                  "peak_excess_intensity_m_per_s"]
+
+
+def _panel(result: RunResult, sid: str, k: int, plots: Mapping[str, Sequence[tuple[str, str]]],
+           rows: _PanelRows) -> str:
     system = result.project.units
-    rows = []
-    for storm in result.storms:
-        s = storm.subcatchments[storm.subcatchments["subcatchment_id"] == sid]
-        rows.append(s.drop(columns=["subcatchment_id", "mass_balance_error_m"], errors="ignore")
-                    .assign(storm=storm.name))
-    frame = pd.concat(rows, ignore_index=True)
-    cols = ["storm", "rain_depth_m", "infiltration_depth_m", "storage_depth_m",
-            "runoff_depth_m", "runoff_volume_m3", "runoff_coefficient", "time_to_ponding_s",
-            "peak_excess_intensity_m_per_s"]
-    shown = display_frame(frame[[c for c in cols if c in frame.columns]], system)
+    frame = rows.storms.get(sid, rows.no_storm)
+    shown = rows.shown.get(sid, rows.no_shown)
     numbers = table(_columns_to_rows(shown.set_index("storm"), "figure"))
     depth = pd.DataFrame({"storm": frame["storm"]}).assign(**{
         n: from_si(frame[c].to_numpy(float), system.depth) for n, c in (
             ("rain", "rain_depth_m"), ("infiltration", "infiltration_depth_m"),
             ("storage", "storage_depth_m"), ("runoff", "runoff_depth_m"))})
-    mi = _area_weighted_parameters(result, sid)
+    mi = rows.parameters.get(sid)
     links = "".join(f'<li><a href="#{esc(a)}">{esc(c)}</a></li>' for c, a in plots.get(sid, ()))
     return (f'<template id="panel-{k}"><h3>{esc(sid)}</h3>{numbers}'
             f"<p>What became of the rain ({esc(system.depth)}):</p>"
             f"{_split_figure(depth, system.depth)}"
             f"<p>Loss parameters, area-weighted over the subcatchment's units "
-            f"({esc(method_name(_method_of(result, sid)))}):</p>{table(mi) if len(mi) else ''}"
+            f"({esc(method_name(rows.methods.get(sid, result.project.method)))}):</p>"
+            f"{table(mi) if mi is not None else ''}"
             + (f"<p>Plots of this subcatchment:</p><ul>{links}</ul>" if links else "")
             + "</template>")
 
 
-def _method_of(result: RunResult, sid: str) -> str:
-    methods = result.subcatchment_methods.set_index("subcatchment_id")["loss_method"]
-    return str(methods.get(sid, result.project.method))
+@dataclass(frozen=True)
+class _PanelRows:
+    """The run's rows converted and split by subcatchment once; each panel looks its own up.
+
+    ``storms``: a subcatchment's rows under every storm, in storm order, with a ``storm``
+    column; ``shown``: the same rows' panel columns as display text; ``parameters``: its
+    area-weighted lumped parameters (one storm's rows) as display text; ``methods``: its loss
+    method. Filtering and
+    formatting the whole tables once per panel made the section quadratic in the number of
+    subcatchments; every step here works row by row, so the text is the same.
+    """
+
+    storms: dict[str, pd.DataFrame]
+    shown: dict[str, pd.DataFrame]
+    parameters: dict[str, pd.DataFrame]
+    methods: dict[str, str]
+    no_storm: pd.DataFrame
+    no_shown: pd.DataFrame
+
+    @classmethod
+    def of(cls, result: RunResult) -> _PanelRows:
+        """Convert and split ``result``'s storm rows and area-weighted parameter rows."""
+        whole = pd.concat([storm.subcatchments.drop(columns=["mass_balance_error_m"],
+                                                    errors="ignore").assign(storm=storm.name)
+                           for storm in result.storms], ignore_index=True)
+        key = whole.pop("subcatchment_id").astype(str).to_numpy()
+        shown = display_frame(whole[[c for c in _PANEL_COLUMNS if c in whole.columns]],
+                              result.project.units)
+        methods = result.subcatchment_methods
+        return cls(_split(whole, key), _split(shown, key), _area_weighted_parameters(result),
+                   {str(sid): str(m) for sid, m in zip(methods["subcatchment_id"],
+                                                       methods["loss_method"], strict=True)},
+                   whole.iloc[:0], shown.iloc[:0])
 
 
-def _area_weighted_parameters(result: RunResult, sid: str) -> pd.DataFrame:
-    """The subcatchment's area-weighted lumped parameters (one storm's rows), display units."""
+def _split(frame: pd.DataFrame, key: np.ndarray) -> dict[str, pd.DataFrame]:
+    """Rows of ``frame`` by ``key`` (row order kept), each with a fresh range index."""
+    return {str(sid): rows.reset_index(drop=True)
+            for sid, rows in frame.groupby(key, sort=False)}
+
+
+def _area_weighted_parameters(result: RunResult) -> dict[str, pd.DataFrame]:
+    """Each subcatchment's area-weighted lumped parameters (its first storm's rows), as text."""
     rows = result.lumped_parameters
-    rows = rows[(rows["subcatchment_id"] == sid) & (rows["basis"] == "area_weighted")]
+    rows = rows[rows["basis"] == "area_weighted"]
     if rows.empty:
-        return pd.DataFrame()
-    rows = rows[rows["storm"] == rows["storm"].iloc[0]]
+        return {}
+    key = rows["subcatchment_id"].astype(str).to_numpy()
+    first = rows.groupby(key, sort=False)["storm"].transform("first")
+    rows, key = rows[rows["storm"] == first], key[(rows["storm"] == first).to_numpy()]
     shown = lumped_layer(rows, result.project.units)
-    return shown[["surface", "parameter", "value", "unit"]].assign(
+    shown = shown[["surface", "parameter", "value", "unit"]].assign(
         value=[human(v) for v in shown["value"]])
+    return _split(shown, key)
 
 
 def _legend(result: RunResult) -> str:
@@ -258,7 +296,8 @@ def explore_section(result: RunResult, plots: Mapping[str, Sequence[tuple[str, s
            f'patternUnits="userSpaceOnUse" patternTransform="rotate(45)"><line x1="0" y1="0" '
            f'x2="0" y2="8" stroke="#222" stroke-width="1.2"/></pattern></defs>'
            f'{"".join(paths)}<g pointer-events="none">{"".join(hatch)}</g></svg>')
-    panels = "".join(_panel(result, sid, k, plots) for k, sid in enumerate(ids))
+    rows = _PanelRows.of(result)
+    panels = "".join(_panel(result, sid, k, plots, rows) for k, sid in enumerate(ids))
     payload = json.dumps(data, separators=(",", ":")).replace("</", "<\\/")
     return (f'<p>Hover over a subcatchment for its figures under the chosen storm; click it to '
             f'open its numbers, parameters and plots. Storm: <select id="explore-storm" '

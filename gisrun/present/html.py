@@ -32,7 +32,7 @@ _NUMBER = re.compile(r"^-?[\d,]+(\.\d+)?$|^-$|^(\d[\d,.]*)–(\d[\d,.]*)$")
 
 def _numeric(values: pd.Series) -> bool:
     """True when every cell reads as a number (or a range, or ``-``): aligned right."""
-    return bool(values.astype(str).str.match(_NUMBER).all())
+    return all(_NUMBER.match(str(v)) for v in values.astype(str).tolist())
 
 
 def table(frame: pd.DataFrame, *, empty: str = "", left: int = 1) -> str:
