@@ -52,8 +52,11 @@ FAR_FACTOR = 10.0
 
 
 def build_gauges(table: TableReader, subcatchments: gpd.GeoDataFrame,
-                 units: UnitSystem) -> ArealRain:
+                 units: UnitSystem, memory_budget_mb: float | None = None) -> ArealRain:
     """Rain per subcatchment from a ``kind = "gauges"`` table (see the module docstring).
+
+    ``memory_budget_mb`` is part of every areal builder's signature; gauge records are small
+    and are read whole.
 
     Raises
     ------
