@@ -149,8 +149,9 @@ def test_each_subcatchment_gets_its_own_column(demo):
     assert total.max() == pytest.approx(2 * total.min(), rel=1e-12)
 
 
-def _flat_rain(table, subcatchments, units):
+def _flat_rain(table, subcatchments, units, memory_budget_mb):
     """A kind for the test: ``depth_mm`` per step for 3 steps of 5 min, every subcatchment."""
+    assert memory_budget_mb == 1500.0  # the run's budget reaches the builder (the default)
     ids = subcatchments["subcatchment_id"].astype(str).tolist()
     depth = table.number("depth_mm", low=0.0) / 1000.0
     return ArealRain(np.full((3, len(ids)), depth), 300.0, ids, f"flat {table.data['label']}")

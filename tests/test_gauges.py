@@ -18,10 +18,13 @@ import pandas as pd
 import pyogrio
 import pytest
 import shapely
+from matplotlib.legend import Legend
+from pyproj import Transformer
 from scipy.spatial import cKDTree
 
 from gisrun import load_project, read_inputs, run, write_outputs
 from gisrun.errors import StormError
+from gisrun.present import maps
 from gisrun.storm.gauges import fill_gaps, inverse_distance_weights, thiessen_weights
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
@@ -202,3 +205,33 @@ def test_a_gap_is_filled_when_asked_and_said(tmp_path):
     gapped = dataclasses.replace(project, storms=({**project.storms[0], "fill_gaps": False},))
     with pytest.raises(StormError, match=r"records\.csv:G1: has no value at 2026-05-14T06:10"):
         read_inputs(gapped)
+
+
+def test_gauges_in_another_crs_are_placed_in_the_subcatchment_crs_for_the_rain_map(tmp_path):
+    """A gauge layer in geographic coordinates: the gauges the rain map draws are in the
+    subcatchment layer's CRS (UTM 17N), as pyproj (a reference library) transforms them, and
+    the rain map shows and names each one."""
+    to_lonlat = Transformer.from_crs("EPSG:32617", "EPSG:4326", always_xy=True)
+    lonlat = {g: to_lonlat.transform(*xy) for g, xy in GAUGES.items()}
+    gdf = gpd.GeoDataFrame({"gauge_id": list(lonlat)},
+                           geometry=[shapely.Point(*xy) for xy in lonlat.values()],
+                           crs="EPSG:4326")
+    pyogrio.write_dataframe(gdf, tmp_path / "gauges.gpkg", layer="gauges")
+    depth = {"G1": [1.0, 2.0, 0.0], "G2": [3.0, 0.0, 1.0], "G3": [0.0, 4.0, 2.0]}
+    (tmp_path / "records.csv").write_text(records_text(depth))
+    inputs = read_inputs(load_project(demo_project(tmp_path, _gauge_storm())))
+    points = inputs.storms[0].areal.points.set_index("source_id")
+    assert list(points.index) == list(GAUGES)
+    for g, (x, y) in GAUGES.items():
+        assert points.loc[g, "x"] == pytest.approx(x, abs=1e-6)
+        assert points.loc[g, "y"] == pytest.approx(y, abs=1e-6)
+    subs = inputs.subcatchments.assign(rain=np.arange(len(inputs.subcatchments), dtype=float))
+    fig = maps.subcatchment_map(subs, "rain", title="t", label="rain depth (mm)",
+                                crs=subs.crs, points=points.reset_index())
+    ax = fig.axes[0]
+    drawn = [line for line in ax.get_lines() if line.get_marker() == "^"]
+    assert len(drawn) == 1
+    np.testing.assert_allclose(drawn[0].get_xydata(), points[["x", "y"]].to_numpy())
+    assert {t.get_text() for t in ax.texts} >= set(GAUGES)
+    legend_labels = {t.get_text() for legend in ax.findobj(Legend) for t in legend.get_texts()}
+    assert "rain gauge" in legend_labels

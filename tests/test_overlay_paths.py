@@ -59,6 +59,11 @@ def in_grid(geoms, grid):
     return px, box_
 
 
+def identity(cls):
+    """A class window as the kernel's (codes, table, look): the classes, looked up as themselves."""
+    return cls, np.arange(int(cls.max()) + 1, dtype=np.int32), (0, 0, 0, 0)
+
+
 def coverage_grid(cov, n_poly, shape):
     """cell_coverage's shares laid out as (polygon, row, col) arrays (edge cells and runs)."""
     out = np.zeros((n_poly, *shape))
@@ -142,10 +147,11 @@ def test_kernel_cell_by_cell_equals_cell_coverage_and_shapely(e, exterior_cw):
     shape = (31, 45)  # the polygons' cells and the column right of each
     cls = np.arange(shape[0] * shape[1], dtype=np.int32).reshape(shape)
     xy, ring_start, exterior, poly_ring = ring_arrays(world)
+    window, classes = (0, 0, *shape), identity(cls)
     row_area = 1.0 + np.arange(shape[0]) / 7.0  # weights as on a geographic grid
     for weights in (np.zeros(0), row_area):
         got = polygon_class_sums(xy, ring_start, exterior, poly_ring, (X0, CELL, y_top, e),
-                                 (0, 0), cls, weights, cls.size).reshape(-1, *shape)
+                                 window, classes, weights, cls.size).reshape(-1, *shape)
         ref = coverage_grid(cell_coverage(px), len(px), shape)  # the numpy computation
         ref = ref * weights[None, :, None] if weights.size else ref
         assert_allclose(got, ref, rtol=0, atol=1e-12)
@@ -153,7 +159,7 @@ def test_kernel_cell_by_cell_equals_cell_coverage_and_shapely(e, exterior_cw):
     squares = shapely.box(cols, rows, cols + 1, rows + 1)  # cell (row, col) in grid coordinates
     for i, g in enumerate(px):  # shapely's exact intersection of the polygon with each cell
         got = polygon_class_sums(xy, ring_start, exterior, poly_ring, (X0, CELL, y_top, e),
-                                 (0, 0), cls, np.zeros(0), cls.size)[i].reshape(shape)
+                                 window, classes, np.zeros(0), cls.size)[i].reshape(shape)
         assert_allclose(got, shapely.area(shapely.intersection(squares, g)), rtol=0, atol=1e-9)
 
 
@@ -163,8 +169,8 @@ def test_kernel_keeps_to_its_window_and_clears_its_buffer():
     xy, ring_start, exterior, poly_ring = ring_arrays(np.array([big, small, big], dtype=object))
     cls = np.zeros((4, 5), dtype=np.int32)  # rows 0-3, cols 0-4 only
     cls[:, 2:] = 1
-    got = polygon_class_sums(xy, ring_start, exterior, poly_ring, (0.0, 1.0, 0.0, 1.0), (0, 0),
-                             cls, np.zeros(0), 2)
+    got = polygon_class_sums(xy, ring_start, exterior, poly_ring, (0.0, 1.0, 0.0, 1.0),
+                             (0, 0, 4, 5), identity(cls), np.zeros(0), 2)
     assert_allclose(got[0], [8.0, 12.0], rtol=0, atol=1e-12)  # the whole window, by class
     assert_allclose(got[1], [0.75 * 1.5, 0.75 * 1.5], rtol=0, atol=1e-12)
     assert_allclose(got[2], got[0], rtol=0, atol=0)
@@ -212,5 +218,40 @@ def test_ring_arrays_read_holes_either_way_and_skip_empty_entries():
     for geoms in ([same_way, other_way], [same_way, shapely.Polygon(), other_way],
                   [same_way, None, other_way]):
         arrays = ring_arrays(np.array(geoms, dtype=object))
-        got = polygon_class_sums(*arrays, (0.0, 1.0, 0.0, 1.0), (0, 0), cls, np.zeros(0), 1)
+        got = polygon_class_sums(*arrays, (0.0, 1.0, 0.0, 1.0), (0, 0, 8, 9), identity(cls),
+                                 np.zeros(0), 1)
         assert_allclose(got[:, 0], [expect] + [0.0] * (len(geoms) - 2) + [expect], rtol=1e-14)
+
+
+@pytest.mark.parametrize(("dtype", "nodata", "codes"), [
+    ("uint8", 255, {1: "A", 2: "B", 7: "C"}),
+    ("int16", -9999, {-3: "A", 2: "B", 300: "C"}),
+    ("int32", -9999, {1: "A", 2: "B", 40_000: "C"}),  # keys: the dense table; nodata below it
+    ("uint32", 7, {3: "A", 6: "B", 7: "C"}),  # nodata among the codes, codes above the table
+    ("int32", None, {1: "A", 5_000_000: "B"}),  # too wide a span: the class window itself
+    ("float32", -1.0, {1: "A", 2: "B"}),
+])
+def test_class_source_gives_each_cell_the_class_that_classes_gives(geotiff, dtype, nodata, codes):
+    rng = np.random.default_rng(11)
+    keys = np.array([*codes, 5, 70_000 if dtype.endswith("32") else 9,
+                     nodata if nodata is not None else 4])  # 5, 9, 70,000: not in the table
+    raster = read_class_raster(geotiff(rng.choice(keys, (12, 17)).astype(dtype), nodata=nodata))
+    grid = FineGrid.build(raster, None, codes, None, [])
+    for win in [(0, 12, 0, 17), (-3, 5, 10, 21), (4, 9, -2, 3), (20, 25, 1, 4)]:
+        source, table, (low, outside, r, c) = grid.class_source(*win)
+        got = np.full((win[1] - win[0], win[3] - win[2]), outside, dtype=np.int32)
+        at = np.clip(source.astype(np.int64) - low, 0, table.size - 1)  # ends: nodata
+        got[r:r + source.shape[0], c:c + source.shape[1]] = table[at]
+        expect = grid.classes(*win)
+        assert np.array_equal(got, expect)
+        # the kernel's own look-up: a polygon over the whole window gets every cell's class
+        whole = np.array([box(win[2], win[0], win[3], win[1])], dtype=object)
+        sums = polygon_class_sums(*ring_arrays(whole), (0.0, 1.0, 0.0, 1.0),
+                                  (win[2], win[0], win[1] - win[0], win[3] - win[2]),
+                                  (np.ascontiguousarray(source), table, (low, outside, r, c)),
+                                  np.zeros(0), grid.n_classes)
+        assert np.array_equal(sums[0], np.bincount(expect.ravel(), minlength=grid.n_classes))
+    table = grid.class_source(0, 12, 0, 17)[1]  # a table over the codes, or the identity
+    dense = {"uint8": 256, "int16": 65536, "int32": 40_002, "uint32": 7}
+    wide = len(codes) == 2 and dtype == "int32" or dtype == "float32"
+    assert table.size == (grid.n_classes if wide else dense[dtype])

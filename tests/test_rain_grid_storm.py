@@ -18,6 +18,8 @@ from bad_inputs_helpers import make_project, run_cli, write_rain_grid
 
 from gisrun import load_project, read_inputs, run, write_outputs
 from gisrun.config.storms import storm_from_config
+from gisrun.io.rain_grid import RainStack
+from gisrun.storm.gridded import BLOCK_SHARE
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
@@ -74,6 +76,40 @@ def test_a_uniform_grid_gives_exactly_the_uniform_storm(demo, tmp_path):
     assert len(sums) == len(inputs.subcatchments)
     np.testing.assert_allclose(sums, 1.0, rtol=1e-9)
     assert weights["source_id"].str.fullmatch(r"r\d+_c\d+").all()
+
+
+def test_the_grid_is_read_in_blocks_of_a_share_of_the_memory_budget(demo, tmp_path,
+                                                                  monkeypatch):
+    project, inputs = demo
+    west, south, east, north = inputs.subcatchments.to_crs("EPSG:4326").total_bounds
+    lon = np.arange(west - 0.01, east + 0.01, 0.004)
+    lat = np.arange(south - 0.01, north + 0.01, 0.003)
+    rain = np.random.default_rng(19).gamma(0.5, 2e-4, size=(20, lat.size, lon.size))
+    ds = xr.Dataset({"rain": (("time", "lat", "lon"), rain, {"units": "m"})},
+                    coords={"lat": ("lat", lat, {"units": "degrees_north"}),
+                            "lon": ("lon", lon, {"units": "degrees_east"})})
+    ds["time"] = ("time", 5.0 * np.arange(1, 21), {"units": "minutes since 2026-07-14 15:00:00"})
+    ds.to_netcdf(tmp_path / "random.nc")
+    reads: list[tuple[int, int]] = []
+    read_steps = RainStack.read_steps
+    monkeypatch.setattr(RainStack, "read_steps",
+                        lambda self, first, stop: reads.append((first, stop))
+                        or read_steps(self, first, stop))
+    spec = {"name": "random", "kind": "rain_grid", "path": "random.nc"}
+
+    def build(**budget):
+        reads.clear()
+        return storm_from_config(spec, base_dir=tmp_path, units=project.units, where="t",
+                                 subcatchments=inputs.subcatchments, **budget)
+
+    whole = build()  # no budget: blocks of 128 MB, the whole stack at once
+    assert reads == [(0, 20)]
+    step_mb = 8 * lat.size * lon.size / 2**20  # a block of 7 steps, then 7, then 6
+    small = build(memory_budget_mb=7.5 * step_mb / BLOCK_SHARE)
+    assert reads == [(0, 7), (7, 14), (14, 20)]
+    assert small.areal is not None and whole.areal is not None
+    assert np.array_equal(small.areal.depth_m, whole.areal.depth_m)  # block size: no matter
+    assert not np.all(whole.areal.depth_m == whole.areal.depth_m[:, :1])  # rain varies
 
 
 def test_check_names_the_grid_and_run_writes_its_weights(tmp_path, capsys):

@@ -8,8 +8,9 @@ storm reader (:mod:`gisrun.config.storms`) checks the keys and names, and
 :func:`build_areal_storm` turns the builder's :class:`~gisrun.storm.ArealRain` into a storm
 whose own hyetograph is the basin's area-weighted mean (:func:`gisrun.storm.areal_storm`).
 
-To add a kind: a builder ``build(table, subcatchments, units) -> ArealRain`` (reading with
-:mod:`gisrun.io`, weighing with compute code) and an entry in :data:`AREAL_KINDS`.
+To add a kind: a builder ``build(table, subcatchments, units, memory_budget_mb) -> ArealRain``
+(reading with :mod:`gisrun.io`, weighing with compute code; the run's memory budget in MB, or
+None, for a builder that reads in blocks) and an entry in :data:`AREAL_KINDS`.
 
 Rainfall feeds planning-level runoff estimates only; defer to local codes, agency methods and a
 licensed engineer.
@@ -32,9 +33,9 @@ from .reader import TableReader
 
 __all__ = ["ArealKind", "AREAL_KINDS", "build_areal_storm", "ArealBuilder"]
 
-#: ``build(table, subcatchments, units)``: the table's rain per subcatchment (every id of the
-#: layer, SI), its weights table and a description of its source.
-ArealBuilder = Callable[[TableReader, gpd.GeoDataFrame, UnitSystem], ArealRain]
+#: ``build(table, subcatchments, units, memory_budget_mb)``: the table's rain per subcatchment
+#: (every id of the layer, SI), its weights table and a description of its source.
+ArealBuilder = Callable[[TableReader, gpd.GeoDataFrame, UnitSystem, float | None], ArealRain]
 
 
 @dataclass(frozen=True)
@@ -62,18 +63,20 @@ AREAL_KINDS: dict[str, ArealKind] = {
 
 
 def build_areal_storm(kind: ArealKind, table: TableReader, subcatchments: gpd.GeoDataFrame,
-                      units: UnitSystem, name: str | None) -> Hyetograph:
+                      units: UnitSystem, name: str | None,
+                      memory_budget_mb: float | None = None) -> Hyetograph:
     """Build a storm of areal rain for ``subcatchments`` (a layer read by gisrun).
 
     The storm's own series is the mean of every subcatchment's rain weighted by ground area
-    (:func:`gisrun.crs.ground_areas`).
+    (:func:`gisrun.crs.ground_areas`). ``memory_budget_mb`` (the run's, if any) goes to the
+    builder.
 
     Raises
     ------
     GisrunError
         Whatever the builder finds wrong, naming the table's key or file.
     """
-    rain = kind.build(table, subcatchments, units)
+    rain = kind.build(table, subcatchments, units, memory_budget_mb)
     ids = subcatchments["subcatchment_id"].to_numpy(dtype=object)
     area = np.zeros(len(rain.subcatchment_ids))
     area[rain.positions(ids, table.at)] = ground_areas(subcatchments.geometry).area_m2

@@ -52,8 +52,11 @@ FAR_FACTOR = 10.0
 
 
 def build_gauges(table: TableReader, subcatchments: gpd.GeoDataFrame,
-                 units: UnitSystem) -> ArealRain:
+                 units: UnitSystem, memory_budget_mb: float | None = None) -> ArealRain:
     """Rain per subcatchment from a ``kind = "gauges"`` table (see the module docstring).
+
+    ``memory_budget_mb`` is part of every areal builder's signature; gauge records are small
+    and are read whole.
 
     Raises
     ------
@@ -82,7 +85,18 @@ def build_gauges(table: TableReader, subcatchments: gpd.GeoDataFrame,
            else f"inverse distance from each centroid, power {power:g}")
     return ArealRain(weighted_mean(depth, weights), records.step_s, sub_ids,
                      f"{len(ids)} rain gauges ({table.data['records']}), {how}",
-                     _weight_table(weights, ids, sub_ids), start=records.start)
+                     _weight_table(weights, ids, sub_ids), start=records.start,
+                     points=_point_table(points.set_index("gauge_id").loc[list(ids)],
+                                         subcatchments))
+
+
+def _point_table(points: gpd.GeoDataFrame, subcatchments: gpd.GeoDataFrame) -> pd.DataFrame:
+    """The gauges' coordinates in the subcatchment layer's CRS, for the rain map."""
+    geometry = points.geometry
+    if subcatchments.crs is not None and geometry.crs is not None:
+        geometry = geometry.to_crs(subcatchments.crs)
+    return pd.DataFrame({"source_id": [str(i) for i in points.index],
+                         "x": geometry.x.to_numpy(float), "y": geometry.y.to_numpy(float)})
 
 
 def _matched(points: gpd.GeoDataFrame, records: GaugeRecords, table: TableReader

@@ -33,7 +33,7 @@ from ..grid.rain_weights import rain_grid_weights
 from ..io.rain_grid import RainGridSettings, RainStack, open_rain_grid
 from ..options import RAIN_GRID_FORMATS, RAIN_TIME_MARKS, RAIN_VALUES, Choices
 from ..storm import ArealRain
-from ..storm.gridded import grid_areal_depth
+from ..storm.gridded import block_bytes_for_budget, grid_areal_depth
 from ..units import UnitSystem
 from .reader import TableReader
 
@@ -45,7 +45,7 @@ RAIN_GRID_KEYS = ("path", "format", "variable", "time_pattern", "rain_is", "unit
 
 
 def build_rain_grid(table: TableReader, subcatchments: gpd.GeoDataFrame,
-                    units: UnitSystem) -> ArealRain:
+                    units: UnitSystem, memory_budget_mb: float | None = None) -> ArealRain:
     """The rain per subcatchment and step of the stack a ``[[storms]]`` table names.
 
     Parameters
@@ -56,6 +56,10 @@ def build_rain_grid(table: TableReader, subcatchments: gpd.GeoDataFrame,
         The subcatchment layer as read (``subcatchment_id``, polygons with a CRS).
     units : UnitSystem
         The project's units (rain grids carry their own unit; not used).
+    memory_budget_mb : float, optional
+        The run's ``[project] memory_budget_mb``: the stack is read in blocks of
+        :data:`gisrun.storm.gridded.BLOCK_SHARE` of it (the result does not depend on the
+        block size); without it, blocks of :data:`gisrun.storm.gridded.BLOCK_BYTES`.
 
     Raises
     ------
@@ -66,7 +70,8 @@ def build_rain_grid(table: TableReader, subcatchments: gpd.GeoDataFrame,
     stack = open_rain_grid(rain_grid_settings(table))
     ids = subcatchments["subcatchment_id"].to_numpy(dtype=object)
     weights = rain_grid_weights(subcatchments.geometry, ids, stack)
-    depth = grid_areal_depth(weights, stack)
+    depth = grid_areal_depth(weights, stack,
+                             block_bytes=block_bytes_for_budget(memory_budget_mb))
     t = stack.transform
     source = (f"rain grid {stack.where} ({stack.width} x {stack.height} cells of "
               f"{abs(t.a):g} x {abs(t.e):g} {_axis_unit(stack)}, {stack.crs.name}; "

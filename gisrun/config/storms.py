@@ -74,6 +74,7 @@ def _kind_keys(kind: str) -> tuple[tuple[str, ...], tuple[str, ...]]:
 def storm_from_config(
     spec: Mapping[str, Any], *, base_dir: Path, units: UnitSystem, where: str,
     subcatchments: gpd.GeoDataFrame | None = None, step_s: float | None = None,
+    memory_budget_mb: float | None = None,
 ) -> Hyetograph:
     """Build one storm from a ``[[storms]]`` table of the project file.
 
@@ -97,6 +98,9 @@ def storm_from_config(
         (:mod:`gisrun.config.areal_reduction`).
     step_s : float, optional
         The run's step (for ``areal_reduction`` factors that differ between subcatchments).
+    memory_budget_mb : float, optional
+        The run's ``[project] memory_budget_mb``, for the kinds of areal rain that read in
+        blocks (a rain grid: :func:`gisrun.storm.gridded.block_bytes_for_budget`).
 
     Raises
     ------
@@ -127,7 +131,8 @@ def storm_from_config(
         if subcatchments is None:
             table.fail(None, f"kind {kind!r} is rain per subcatchment and needs the "
                        "subcatchment layer", "build it within a project (gisrun run or check)")
-        h = build_areal_storm(AREAL_KINDS[kind], table, subcatchments, units, name)
+        h = build_areal_storm(AREAL_KINDS[kind], table, subcatchments, units, name,
+                              memory_budget_mb)
     elif kind == FILE_KIND:
         h = read_hyetograph_csv(_file_path(table, "path"), units=units, name=name)
     else:
@@ -152,10 +157,12 @@ def _reduction(table: TableReader, kind: str, subcatchments: gpd.GeoDataFrame | 
 def storms_from_config(
     specs: Sequence[Mapping[str, Any]], *, base_dir: Path, units: UnitSystem, where: str,
     subcatchments: gpd.GeoDataFrame | None = None, step_s: float | None = None,
+    memory_budget_mb: float | None = None,
 ) -> list[Hyetograph]:
     """Build every ``[[storms]]`` table; names must be unique.
 
-    ``subcatchments`` and ``step_s`` are as for :func:`storm_from_config`.
+    ``subcatchments``, ``step_s`` and ``memory_budget_mb`` are as for
+    :func:`storm_from_config`.
 
     Raises
     ------
@@ -167,7 +174,8 @@ def storms_from_config(
     storms, seen = [], {}
     for i, spec in enumerate(specs, start=1):
         h = storm_from_config(spec, base_dir=base_dir, units=units, where=f"{where} {i}",
-                              subcatchments=subcatchments, step_s=step_s)
+                              subcatchments=subcatchments, step_s=step_s,
+                              memory_budget_mb=memory_budget_mb)
         if h.name in seen:
             raise StormTableError(f"{where} {i}",
                                   f"name {h.name!r} is also used by storm {seen[h.name]}",

@@ -128,6 +128,15 @@ class CodeLookup:
             out[mask] = self.outside_index
         return out
 
+    def dense_table(self) -> tuple[int, NDArray[np.int32]] | None:
+        """(lowest code - 1, class index of every code from it to the highest + 1), or None.
+
+        Integer codes outside that span are nodata, as at the table's two ends (what
+        :meth:`index` gives them); None when the codes span more than
+        :data:`DENSE_TABLE_MAX` values.
+        """
+        return self._dense
+
     @cached_property
     def _dense(self) -> tuple[int, NDArray[np.int32]] | None:
         """Dense code table, when the codes span at most :data:`DENSE_TABLE_MAX` values.

@@ -38,6 +38,7 @@ class FineGrid:
                                                                     coarse.transform)
         self._combined = None if coarse_lut is None else combined_table(
             fine_lut, coarse_lut, fine_is_soil)
+        self._tables: dict[str, tuple[int, NDArray[np.int32]]] = {}
 
     @classmethod
     def build(cls, soil: ClassGrid, cover: ClassGrid | None, soil_codes: Mapping[int, str],
@@ -72,6 +73,45 @@ class FineGrid:
         flat = fine * np.int32(len(self.coarse_lut.labels) + 2)
         flat += coarse
         return self._combined[flat]
+
+    def class_source(self, r0: int, r1: int, c0: int, c1: int
+                     ) -> tuple[NDArray[np.integer], NDArray[np.int32], tuple[int, int, int, int]]:
+        """Classes of rows r0:r1, cols c0:c1 as (codes, table, look) for the overlay kernel.
+
+        One raster of integer codes of up to 32 bits (with a dense table): its codes as read
+        (only the part inside the raster) with the table from code to class, ``look`` =
+        (lowest code, outside class, window row and column of the codes' first cell):
+        ``table[code - lowest]`` is what :meth:`classes` gives the cell, a quarter or half of
+        its memory and no pass over the window. Otherwise :meth:`classes` itself, with the
+        identity table.
+        """
+        rr0, rr1 = max(r0, 0), min(r1, self.fine.height)
+        cc0, cc1 = max(c0, 0), min(c1, self.fine.width)
+        if self.coarse is None and rr0 < rr1 and cc0 < cc1:
+            codes, _ = self.fine.read_window(((rr0, rr1), (cc0, cc1)))
+            found = self._code_table(codes.dtype)
+            if found is not None and not np.ma.is_masked(codes):
+                low, table = found
+                return np.asarray(codes), table, (low, OUTSIDE_CLASS, rr0 - r0, cc0 - c0)
+        table = np.arange(self.n_classes, dtype=np.int32)
+        return self.classes(r0, r1, c0, c1), table, (0, OUTSIDE_CLASS, 0, 0)
+
+    def _code_table(self, dtype: np.dtype) -> tuple[int, NDArray[np.int32]] | None:
+        """(lowest code, class of every code from it on) for codes of this type, or None.
+
+        8 and 16 bits: every value of the type (built once). 32 bits: the look-up's dense table
+        (its ends are nodata, and the kernel holds codes beyond them to the ends, as
+        :meth:`CodeLookup.index` does). Otherwise None.
+        """
+        if dtype.kind not in "iu" or dtype.itemsize > 4:
+            return None
+        if dtype.itemsize == 4:
+            return self.fine_lut.dense_table()
+        if dtype.str not in self._tables:
+            info = np.iinfo(dtype)
+            every = np.arange(int(info.min), int(info.max) + 1).astype(dtype)
+            self._tables[dtype.str] = (int(info.min), self.fine_lut.index(every))
+        return self._tables[dtype.str]
 
     def row_weights(self, r0: int, r1: int) -> NDArray[np.float64] | None:
         """Cell area per row in m2 for a geographic grid; None for a projected one."""

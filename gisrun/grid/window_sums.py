@@ -2,15 +2,17 @@
 
 The overlay's path for every chunk of polygons whose joint window fits in a chunk (all but a
 polygon larger than a chunk on its own, which :mod:`gisrun.grid.sparse_sums` reads in row
-bands). The window's classes are read once; the rings' vertices go to
-:func:`gisrun.grid.overlay_kernels.polygon_class_sums` as one coordinate array with ring and
-polygon offsets, and each polygon is summed in a buffer the size of its own bounding window,
-so nothing is held per edge or per cell.
+bands). The window is read once: for one raster of 8- or 16-bit codes, its codes and the table
+from code to class (``FineGrid.class_source``), so no class window is made; otherwise the
+classes. The rings' vertices go to :func:`gisrun.grid.overlay_kernels.polygon_class_sums` as
+one coordinate array with ring and polygon offsets, and each polygon is summed in a buffer the
+size of its own bounding window, so nothing is held per edge or per cell.
 
-The shares are :func:`gisrun.grid.coverage.cell_coverage`'s: the increments are made with the
-same floating-point operations, and only the running sum (here one per polygon row, there one
-over many polygons' rows laid end to end) adds them in a different grouping, so a share may
-differ in its last bits (measured: unit areas equal to 1e-12 relative).
+The shares are :func:`gisrun.grid.coverage.cell_coverage`'s, made with the same formulas; each
+polygon is measured from the corner of its own cells and its rows are summed one by one (there:
+from the window's corner, many polygons' rows in one running sum), so a share may differ in its
+last bits: unit areas move by at most about 1e-15 of their subcatchment's area (measured on the
+demo and the benchmark sets), and no longer depend on which polygons are summed together.
 """
 
 from __future__ import annotations
@@ -48,11 +50,12 @@ def window_sums(geoms: NDArray[Any], box: NDArray[np.int64], grid: FineGrid,
     """
     r0, r1 = int(box[:, 0].min()), int(box[:, 1].max())
     c0, c1 = int(box[:, 2].min()), int(box[:, 3].max())
-    cls = np.ascontiguousarray(grid.classes(r0, r1, c0, c1), dtype=np.int32)
+    codes, table, look = grid.class_source(r0, r1, c0, c1)
     area = grid.row_weights(r0, r1)
     xy, ring_start, exterior, poly_ring = ring_arrays(geoms)
     return polygon_class_sums(xy, ring_start, exterior, poly_ring,
-                              tuple(float(v) for v in to_grid), (c0, r0), cls,
+                              tuple(float(v) for v in to_grid), (c0, r0, r1 - r0, c1 - c0),
+                              (np.ascontiguousarray(codes), table, look),
                               np.zeros(0) if area is None else np.asarray(area, np.float64),
                               grid.n_classes)
 

@@ -23,6 +23,7 @@ from matplotlib import patheffects
 from matplotlib.axes import Axes
 from matplotlib.colors import ListedColormap
 from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, Rectangle
 from matplotlib.transforms import blended_transform_factory
 from numpy.typing import NDArray
@@ -52,7 +53,9 @@ _LABEL_PT = 7.0
 def subcatchment_map(gdf: gpd.GeoDataFrame, column: str, *, title: str, label: str,
                      crs: CRSLike, classes: Classes | None = None, id_column: str | None = None,
                      method_column: str | None = None, distance_unit: str = "m",
-                     cmap: str = "cividis", missing_label: str = "no value") -> Figure:
+                     cmap: str = "cividis", missing_label: str = "no value",
+                     points: pd.DataFrame | None = None, points_label: str = "rain gauge"
+                     ) -> Figure:
     """Choropleth of one column per subcatchment with a classed legend.
 
     Parameters
@@ -72,6 +75,9 @@ def subcatchment_map(gdf: gpd.GeoDataFrame, column: str, *, title: str, label: s
         Label polygons with this id where it fits; hatch by this loss method column.
     distance_unit : ``"m"`` or ``"ft"``
         Unit of the scale bar (the run's unit system).
+    points : DataFrame, optional
+        Point sources to draw and name (columns ``source_id``, ``x``, ``y`` in ``crs``), listed
+        in the legend as ``points_label``: the gauges on a rain map.
     """
     values = pd.to_numeric(gdf[column], errors="coerce").to_numpy(dtype=np.float64)
     classes = classes or shared_classes([values], cmap=cmap)
@@ -89,6 +95,8 @@ def subcatchment_map(gdf: gpd.GeoDataFrame, column: str, *, title: str, label: s
     handles = [Patch(facecolor=c, label=t) for c, t in zip(colours, classes.labels(), strict=True)]
     if (~have).any():
         handles.append(Patch(facecolor=MISSING_COLOUR, hatch="//", label=missing_label))
+    if points is not None and len(points):
+        handles.append(_draw_points(ax, points, points_label))
     legend = ax.legend(handles=handles, title=label, loc="upper left", bbox_to_anchor=(1.01, 1.0),
                        frameon=False, fontsize=10, title_fontsize=11)
     if method_column is not None:
@@ -97,6 +105,19 @@ def subcatchment_map(gdf: gpd.GeoDataFrame, column: str, *, title: str, label: s
     if id_column is not None:
         _label_ids(ax, gdf, id_column)
     return fig
+
+
+def _draw_points(ax: Axes, points: pd.DataFrame, label: str) -> Line2D:
+    """Draw each point as a black triangle with its id beside it; the legend's handle."""
+    x, y = points["x"].to_numpy(float), points["y"].to_numpy(float)
+    ax.plot(x, y, linestyle="none", marker="^", markersize=9, markerfacecolor="black",
+            markeredgecolor="white", zorder=5)
+    outline = [patheffects.withStroke(linewidth=2.5, foreground="white")]
+    for name, px, py in zip(points["source_id"].astype(str), x, y, strict=True):
+        ax.annotate(name, (px, py), xytext=(6, 4), textcoords="offset points", fontsize=9,
+                    fontweight="bold", zorder=6, path_effects=outline)
+    return Line2D([], [], linestyle="none", marker="^", markersize=9, markerfacecolor="black",
+                  markeredgecolor="white", label=label)
 
 
 def _method_hatching(ax: Axes, gdf: gpd.GeoDataFrame, column: str, first_legend: object) -> None:

@@ -41,11 +41,13 @@ from numpy.typing import ArrayLike, NDArray
 from ..errors import StormError
 from .timing import FloatArray, check_positive, frozen_array, step_edges
 
-__all__ = ["ArealRain", "WEIGHT_COLUMNS", "weighted_mean", "interpolate_columns"]
+__all__ = ["ArealRain", "WEIGHT_COLUMNS", "POINT_COLUMNS", "weighted_mean", "interpolate_columns"]
 
 #: Columns of :attr:`ArealRain.weights`: the source (a gauge id, or a grid cell id), the
 #: subcatchment, and the source's share of the subcatchment's areal rain.
 WEIGHT_COLUMNS = ("source_id", "subcatchment_id", "weight")
+#: Columns of :attr:`ArealRain.points`: where each point source (a gauge) lies.
+POINT_COLUMNS = ("source_id", "x", "y")
 
 
 @dataclass(frozen=True, eq=False)
@@ -67,6 +69,9 @@ class ArealRain:
         output's weights layer); empty when not given.
     start : str, optional
         Date and time of the first step's start as written in the source (ISO 8601), if known.
+    points : DataFrame, optional
+        :data:`POINT_COLUMNS`: where each gauge lies, in the subcatchment layer's CRS (drawn on
+        the rain map); empty for a rain grid or a table.
 
     Raises
     ------
@@ -81,6 +86,8 @@ class ArealRain:
     weights: pd.DataFrame = dataclasses.field(
         default_factory=lambda: pd.DataFrame({c: [] for c in WEIGHT_COLUMNS}))
     start: str | None = None
+    points: pd.DataFrame = dataclasses.field(
+        default_factory=lambda: pd.DataFrame({c: [] for c in POINT_COLUMNS}))
 
     def __post_init__(self) -> None:
         where = f"areal rain ({self.source})"
@@ -97,14 +104,17 @@ class ArealRain:
                              f"{depth[k, j]!r}", "give depths >= 0")
         if len(set(ids)) != len(ids):
             raise StormError(where, "names a subcatchment twice", "give each subcatchment once")
-        missing = [c for c in WEIGHT_COLUMNS if c not in self.weights.columns]
-        if missing:
-            raise StormError(where, f"weights table lacks {missing}",
-                             f"give the columns {list(WEIGHT_COLUMNS)}")
+        for name, table, columns in (("weights", self.weights, WEIGHT_COLUMNS),
+                                     ("points", self.points, POINT_COLUMNS)):
+            missing = [c for c in columns if c not in table.columns]
+            if missing:
+                raise StormError(where, f"{name} table lacks {missing}",
+                                 f"give the columns {list(columns)}")
         object.__setattr__(self, "depth_m", depth)
         object.__setattr__(self, "step_s", float(self.step_s))
         object.__setattr__(self, "subcatchment_ids", ids)
         object.__setattr__(self, "weights", self.weights[list(WEIGHT_COLUMNS)].copy())
+        object.__setattr__(self, "points", self.points[list(POINT_COLUMNS)].copy())
 
     @property
     def steps(self) -> int:

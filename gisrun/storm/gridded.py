@@ -28,10 +28,16 @@ from ..grid.rain_weights import RainGridGeometry, RainGridWeights
 from .gridded_kernels import (BLOCK_NODATA, BLOCK_OK, TILE_BYTES, plan_tiles, scan_block,
                               tile_means)
 
-__all__ = ["RainGrid", "grid_areal_depth", "steps_per_block", "BLOCK_BYTES"]
+__all__ = ["RainGrid", "grid_areal_depth", "steps_per_block", "block_bytes_for_budget",
+           "BLOCK_BYTES", "BLOCK_SHARE"]
 
-#: Bytes of one block of grid steps held in memory while the areal rain is made (128 MB).
+#: Bytes of one block of grid steps held in memory while the areal rain is made, when no
+#: memory budget is given (128 MB).
 BLOCK_BYTES = 128 * 2**20
+#: Share of the run's memory budget (``[project] memory_budget_mb``) given to one block of grid
+#: steps: a tenth (150 MB of the default 1500 MB), leaving the rest to the result (subcatchments
+#: x steps, 8 bytes each, which no block size changes) and to what the run holds besides.
+BLOCK_SHARE = 0.1
 
 
 class RainGrid(RainGridGeometry, Protocol):
@@ -50,6 +56,13 @@ class RainGrid(RainGridGeometry, Protocol):
 def steps_per_block(grid: RainGrid, block_bytes: int = BLOCK_BYTES) -> int:
     """Steps of ``grid`` that fit in ``block_bytes`` as float64 (at least one)."""
     return max(1, int(block_bytes // max(8 * grid.width * grid.height, 1)))
+
+
+def block_bytes_for_budget(memory_budget_mb: float | None) -> int:
+    """Bytes of one block of grid steps: :data:`BLOCK_SHARE` of the budget (MB), if any."""
+    if memory_budget_mb is None:
+        return BLOCK_BYTES
+    return int(BLOCK_SHARE * memory_budget_mb * 2**20)
 
 
 def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,

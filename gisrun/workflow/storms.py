@@ -33,7 +33,8 @@ def read_storms(project: Project, subcatchments: gpd.GeoDataFrame | None = None
     storms = tuple(storms_from_config(list(project.storms), base_dir=project.base_dir,
                                       units=project.units, where=where,
                                       subcatchments=subcatchments,
-                                      step_s=project.time_step_s))
+                                      step_s=project.time_step_s,
+                                      memory_budget_mb=project.memory_budget_mb))
     check_storm_names([h.name for h in storms], where)
     for i, h in enumerate(storms, start=1):  # before anything is resampled onto the run's step
         check_step_count(float(h.time_s[-1]), project.time_step_s, f"{where} {i} ({h.name})",

@@ -159,12 +159,15 @@ def _rain_map(result: RunResult, storm: StormResult, classes: Classes, folder: P
         storm.subcatchments[["subcatchment_id", "rain_depth_m"]], on="subcatchment_id",
         how="left")
     gdf["rain"] = from_si(gdf["rain_depth_m"].to_numpy(float), system.depth)
+    areal = storm.hyetograph.areal
+    points = areal.points if areal is not None else None
     fig = maps.subcatchment_map(gdf, "rain", title=f"Rain depth per subcatchment, {storm.name}",
                                 label=f"rain depth ({system.depth})", classes=classes,
                                 crs=result.subcatchments.crs, id_column="subcatchment_id",
-                                distance_unit=distance_unit(system))
-    source = storm.hyetograph.areal.source if storm.hyetograph.areal is not None else ""
-    return (f"Rain depth per subcatchment ({system.depth}), {storm.name}: {source}; the "
+                                distance_unit=distance_unit(system), points=points)
+    source = areal.source if areal is not None else ""
+    drawn = "; the gauges are drawn as triangles" if points is not None and len(points) else ""
+    return (f"Rain depth per subcatchment ({system.depth}), {storm.name}: {source}{drawn}; the "
             "weights are in the rain_weights layer",
             out.save(figure_png(fig), folder / f"rain_depth_{stem}.png", f"rain_depth_{stem}"))
 
