@@ -16,14 +16,20 @@ is reported separately (``runoff_start_s``).
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 from numpy.typing import NDArray
 
+from .aggregate_kernels import series_and_first_steps
+
 __all__ = [
     "MASS_BALANCE_TOLERANCE",
+    "StepTotals",
     "area_weights",
+    "step_totals",
     "summarize_subcatchments",
     "summarize_units",
     "subcatchment_series",
@@ -60,6 +66,15 @@ def area_weights(
     array([[0.25, 0.75, 0.  ],
            [0.  , 0.  , 1.  ]])
     """
+    rows, share = _unit_shares(unit_sub_ids, unit_area_m2, sub_ids)
+    cols = np.arange(len(share))
+    return sp.csr_matrix((share, (rows, cols)), shape=(len(sub_ids), len(share)))
+
+
+def _unit_shares(unit_sub_ids: NDArray[np.object_] | pd.Series, unit_area_m2: NDArray[np.float64],
+                 sub_ids: NDArray[np.object_] | pd.Series
+                 ) -> tuple[NDArray[np.intp], NDArray[np.float64]]:
+    """Each unit's subcatchment (position in ``sub_ids``) and share of its area."""
     index = pd.Index(np.asarray(sub_ids, dtype=object))
     rows = index.get_indexer(np.asarray(unit_sub_ids, dtype=object))
     if np.any(rows < 0):
@@ -67,11 +82,47 @@ def area_weights(
     area = np.asarray(unit_area_m2, dtype=np.float64)
     totals = np.bincount(rows, weights=area, minlength=len(index))
     share = np.divide(area, totals[rows], out=np.zeros_like(area), where=totals[rows] > 0)
-    cols = np.arange(len(area))
-    return sp.csr_matrix((share, (rows, cols)), shape=(len(index), len(area)))
+    return rows, share
 
 
-def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataFrame:
+@dataclass(frozen=True)
+class StepTotals:
+    """What the tables need from a storm's step arrays, read once (:func:`step_totals`).
+
+    ``unit_*_m``: each unit's total rain, infiltration and excess, m; ``unit_peak_excess_m``:
+    its largest excess in a step (at least 0); ``unit_first_excess_step``: its first step with
+    excess (-1: none); ``series``: (3, subcatchments, steps) area-weighted rain, infiltration
+    and excess per step, m (``weights @ depth.T`` of :func:`area_weights`, to the last bit).
+    """
+
+    unit_rain_m: NDArray[np.float64]
+    unit_infil_m: NDArray[np.float64]
+    unit_excess_m: NDArray[np.float64]
+    unit_peak_excess_m: NDArray[np.float64]
+    unit_first_excess_step: NDArray[np.int64]
+    series: NDArray[np.float64]
+
+
+def step_totals(loss: object, params: pd.DataFrame,
+                sub_ids: NDArray[np.object_] | pd.Series) -> StepTotals:
+    """Per-unit totals and per-subcatchment series of a storm (``loss``, steps x units).
+
+    One compiled pass over the three step arrays (:mod:`gisrun.aggregate_kernels`) instead
+    of a sparse product per array (each copying its array into unit-major order) and two
+    passes for the start of runoff; the unit totals and peaks are numpy's, as before, made
+    once for the unit and the subcatchment tables.
+    """
+    rows, share = _unit_shares(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    series, first = series_and_first_steps(loss.rain_m, loss.infil_m, loss.excess_m,
+                                           rows.astype(np.int64), share, len(sub_ids))
+    return StepTotals(unit_rain_m=loss.rain_m.sum(axis=0), unit_infil_m=loss.infil_m.sum(axis=0),
+                      unit_excess_m=loss.excess_m.sum(axis=0),
+                      unit_peak_excess_m=loss.excess_m.max(axis=0, initial=0.0),
+                      unit_first_excess_step=first, series=series)
+
+
+def summarize_units(loss: object, params: pd.DataFrame, dt_s: float, *,
+                    totals: StepTotals | None = None) -> pd.DataFrame:
     """Per-unit totals in SI: rain, infiltration, runoff, storage, ponding time, peak excess.
 
     Parameters
@@ -82,6 +133,8 @@ def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataF
         The unit parameter frame the loss was computed for (same row order).
     dt_s : float
         The run's time step, seconds.
+    totals : StepTotals, optional
+        :func:`step_totals` of ``loss``, when already computed.
 
     Returns
     -------
@@ -95,10 +148,10 @@ def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataF
     keep = [c for c in ("subcatchment_id", "soil_class", "cover_class", "surface", "area_m2",
                         "loss_method") if c in params.columns]
     out = params[keep].reset_index(drop=True).copy()
-    rain = loss.rain_m.sum(axis=0)
+    rain, infil, excess = _unit_sums(loss, totals)
     out["rain_depth_m"] = rain
-    out["infiltration_depth_m"] = loss.infil_m.sum(axis=0)
-    out["runoff_depth_m"] = loss.excess_m.sum(axis=0)
+    out["infiltration_depth_m"] = infil
+    out["runoff_depth_m"] = excess
     out["storage_depth_m"] = loss.storage_m
     out["runoff_volume_m3"] = out["runoff_depth_m"] * out["area_m2"]
     out["runoff_coefficient"] = _share(out["runoff_depth_m"].to_numpy(), rain)
@@ -106,7 +159,9 @@ def summarize_units(loss: object, params: pd.DataFrame, dt_s: float) -> pd.DataF
     if "surface" in params.columns:  # pervious ground only (see the module docstring)
         ponding[(params["surface"] == "impervious").to_numpy()] = np.nan
     out["time_to_ponding_s"] = ponding
-    out["peak_excess_intensity_m_per_s"] = loss.excess_m.max(axis=0, initial=0.0) / dt_s
+    peak = (loss.excess_m.max(axis=0, initial=0.0) if totals is None
+            else totals.unit_peak_excess_m)
+    out["peak_excess_intensity_m_per_s"] = peak / dt_s
     if getattr(loss, "runon_m", None) is not None:  # disconnected impervious area (runon.py)
         out["runon_depth_m"] = loss.runon_m.sum(axis=0)
         out["routed_depth_m"] = loss.routed_m.sum(axis=0)
@@ -121,6 +176,7 @@ def summarize_subcatchments(
     *,
     weights: sp.csr_matrix | None = None,
     excess_by_subcatchment: NDArray[np.float64] | None = None,
+    totals: StepTotals | None = None,
 ) -> pd.DataFrame:
     """Area-weighted subcatchment results in SI, with a checked mass balance.
 
@@ -139,6 +195,9 @@ def summarize_subcatchments(
     excess_by_subcatchment : ndarray, optional
         ``weights @ loss.excess_m.T`` (subcatchments x steps), when already
         computed (the excess column of :func:`subcatchment_series`).
+    totals : StepTotals, optional
+        :func:`step_totals` of ``loss`` for ``sub_ids``, when already computed (then
+        ``excess_by_subcatchment`` is not needed).
 
     Returns
     -------
@@ -164,10 +223,11 @@ def summarize_subcatchments(
         pd.Index(sub_ids).get_indexer(params["subcatchment_id"]),
         weights=params["area_m2"].to_numpy(), minlength=len(sub_ids),
     )
+    rain, infil, excess = _unit_sums(loss, totals)
     depth = {
-        "rain_depth_m": weights @ loss.rain_m.sum(axis=0),
-        "infiltration_depth_m": weights @ loss.infil_m.sum(axis=0),
-        "runoff_depth_m": weights @ loss.excess_m.sum(axis=0),
+        "rain_depth_m": weights @ rain,
+        "infiltration_depth_m": weights @ infil,
+        "runoff_depth_m": weights @ excess,
         "storage_depth_m": weights @ loss.storage_m,
     }
     out = pd.DataFrame({"subcatchment_id": sub_ids, "modelled_area_m2": area, **depth})
@@ -176,10 +236,16 @@ def summarize_subcatchments(
     out["runoff_coefficient"] = _share(out["runoff_depth_m"].to_numpy(), rain)
     pervious = (params["surface"] != "impervious").to_numpy()
     out["time_to_ponding_s"] = _group_min(loss.time_to_ponding_s, weights, pervious)
-    started = loss.excess_m > 0
-    first_step = np.where(started.any(axis=0), started.argmax(axis=0) * dt_s, np.nan)
+    if totals is None:
+        started = loss.excess_m > 0
+        first_step = np.where(started.any(axis=0), started.argmax(axis=0) * dt_s, np.nan)
+    else:
+        first = totals.unit_first_excess_step
+        first_step = np.where(first >= 0, first * dt_s, np.nan)
     out["runoff_start_s"] = _group_min(first_step, weights, np.ones_like(pervious))
-    if excess_by_subcatchment is None:
+    if totals is not None:
+        excess_by_sub = totals.series[2]
+    elif excess_by_subcatchment is None:
         excess_by_sub = np.asarray(weights @ loss.excess_m.T)  # (subcatchments x steps)
     elif excess_by_subcatchment.shape == (len(sub_ids), loss.excess_m.shape[0]):
         excess_by_sub = excess_by_subcatchment
@@ -204,9 +270,12 @@ def subcatchment_series(
     sub_ids: NDArray[np.object_] | pd.Series,
     dt_s: float,
     *,
-    weights: sp.csr_matrix | None = None,
+    totals: StepTotals | None = None,
 ) -> pd.DataFrame:
     """Long-format series per subcatchment and step: rain, infiltration and excess depths.
+
+    ``totals`` (:func:`step_totals` of ``loss`` for ``sub_ids``) holds the sums already;
+    without it they are made here.
 
     Returns
     -------
@@ -216,20 +285,25 @@ def subcatchment_series(
         ``infiltration_m``, ``excess_m`` (area-weighted depths in the step).
     """
     sub_ids = np.asarray(sub_ids, dtype=object)
-    if weights is None:
-        weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    if totals is None:
+        totals = step_totals(loss, params, sub_ids)
     n_steps = loss.rain_m.shape[0]
-    frames = {
-        name: np.asarray(weights @ arr.T).ravel()  # (subs x steps) flattened, sub-major
-        for name, arr in (("rain_m", loss.rain_m), ("infiltration_m", loss.infil_m),
-                          ("excess_m", loss.excess_m))
-    }
+    frames = {name: totals.series[k].ravel()  # (subs x steps) flattened, sub-major
+              for k, name in enumerate(("rain_m", "infiltration_m", "excess_m"))}
     codes = np.repeat(np.arange(len(sub_ids), dtype=np.int32), n_steps)
     return pd.DataFrame({
         "subcatchment_id": pd.Categorical.from_codes(codes, categories=pd.Index(sub_ids)),
         "time_end_s": np.tile(np.arange(1, n_steps + 1) * dt_s, len(sub_ids)),
         **frames,
     })
+
+
+def _unit_sums(loss: object, totals: StepTotals | None
+               ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    """Each unit's total rain, infiltration and excess over the storm."""
+    if totals is not None:
+        return totals.unit_rain_m, totals.unit_infil_m, totals.unit_excess_m
+    return loss.rain_m.sum(axis=0), loss.infil_m.sum(axis=0), loss.excess_m.sum(axis=0)
 
 
 def soil_shares(units: pd.DataFrame, sub_ids: NDArray[np.object_] | pd.Series) -> pd.DataFrame:

@@ -20,15 +20,14 @@ from __future__ import annotations
 import re
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
+import pandas as pd
 from numpy.typing import ArrayLike, NDArray
 
-if TYPE_CHECKING:
-    import pandas as pd
-
 from .errors import InputError
+from .units_kernels import DECIMAL_EXPONENT_FLOOR, POWERS_AROUND, round_to_digits
 
 __all__ = [
     "FACTORS_TO_SI",
@@ -198,33 +197,16 @@ def round_significant(values: ArrayLike, digits: int = SIGNIFICANT_DIGITS
     """Round to ``digits`` significant digits; NaN, inf and 0 stay as they are.
 
     Float noise from unit conversion and summing goes (``0.19999999999999998`` -> ``0.2``).
+    One compiled pass (:func:`gisrun.units_kernels.round_to_digits`); returns a new array.
 
     Examples
     --------
     >>> round_significant([0.19999999999999998, 11.99891012472315, 48557.86650003627]).tolist()
     [0.2, 11.9989, 48557.9]
     """
-    x = np.array(values, dtype=np.float64)
-    keep = np.isfinite(x) & (x != 0.0)
-    if not keep.any():
-        return x
-    whole = bool(keep.all())
-    v = x if whole else x[keep]
-    work = np.abs(v)
-    np.floor(np.log10(work, out=work), out=work)
-    shift = (digits - 1) - work.astype(np.int64)
-    up = shift >= 0  # multiply by an exact power of ten, round, divide: the nearest double
-    with np.errstate(over="ignore", invalid="ignore"):
-        if up.all():  # values below 10 ** digits: one branch, in place
-            scale = _POWERS_OF_TEN.take(shift)  # 10 ** shift, looked up, not recomputed
-            out = np.divide(np.round(np.multiply(v, scale, out=work), out=work), scale, out=work)
-        else:
-            scale = _POWERS_OF_TEN.take(np.abs(shift))
-            out = np.where(up, np.round(v * scale) / scale, np.round(v / scale) * scale)
-    if whole:
-        return out
-    x[keep] = out
-    return x
+    x = np.ascontiguousarray(values, dtype=np.float64)
+    return round_to_digits(x.reshape(-1), digits, _POWERS_OF_TEN, DECIMAL_EXPONENT_FLOOR,
+                           POWERS_AROUND).reshape(x.shape)
 
 
 def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
@@ -246,11 +228,22 @@ def present_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
     """
     endings = [(suffix, f"_{_unit_of(system, kind)}", _unit_of(system, kind))
                for suffix, kind in _SUFFIXES]
-    out = _convert_columns(frame, endings, from_si)
-    for name in out.columns:
-        if out[name].dtype == np.float64:
-            out[name] = round_significant(out[name].to_numpy())
-    return out
+    columns: dict[Any, Any] = {}
+    for name in frame.columns:
+        new_name, unit = _renamed(name, endings)
+        if unit is not None:
+            columns[new_name] = round_significant(
+                from_si(frame[name].to_numpy(dtype=np.float64), unit))
+        elif frame[name].dtype == np.float64:
+            columns[new_name] = round_significant(frame[name].to_numpy())
+        else:
+            columns[new_name] = frame[name]
+    if len(columns) < frame.shape[1]:  # two names became one: keep both, as renaming does
+        out = _convert_columns(frame, endings, from_si)
+        return out.assign(**{n: round_significant(out[n].to_numpy())
+                             for n in out.columns if out[n].dtype == np.float64})
+    # Each column made once and taken as it is (no copy of the frame, then of each column).
+    return pd.DataFrame(columns, index=frame.index, copy=False)
 
 
 def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
@@ -266,6 +259,14 @@ def si_frame(frame: pd.DataFrame, system: UnitSystem) -> pd.DataFrame:
     endings = sorted(((f"_{_unit_of(system, kind)}", suffix, _unit_of(system, kind))
                       for suffix, kind in _SUFFIXES), key=lambda t: -len(t[0]))
     return _convert_columns(frame, endings, to_si)
+
+
+def _renamed(name: object, endings: list[tuple[str, str, str]]) -> tuple[object, str | None]:
+    """(new name, unit) of a column by the first ending it matches; (name, None) if none."""
+    for ending, new_ending, unit in endings:
+        if isinstance(name, str) and name.endswith(ending):
+            return name[: -len(ending)] + new_ending, unit
+    return name, None
 
 
 def _convert_columns(frame: pd.DataFrame, endings: list[tuple[str, str, str]],

@@ -22,8 +22,9 @@ PACKAGE = Path(__file__).resolve().parents[1] / "gisrun"
 
 #: Layers that compute (or describe results) and may not reach files, by any chain of imports.
 COMPUTE = ("gisrun.engine", "gisrun.parameters", "gisrun.storm", "gisrun.grid",
-           "gisrun.aggregate", "gisrun.present", "gisrun.model", "gisrun.units", "gisrun.crs",
-           "gisrun.errors", "gisrun.options", "gisrun.uncertainty", "gisrun.runon")
+           "gisrun.aggregate", "gisrun.aggregate_kernels", "gisrun.present", "gisrun.model",
+           "gisrun.units", "gisrun.units_kernels", "gisrun.crs", "gisrun.errors",
+           "gisrun.options", "gisrun.uncertainty", "gisrun.runon")
 #: What compute may not reach: gisrun's own I/O and orchestration layers, and I/O libraries.
 FORBIDDEN_PACKAGES = ("gisrun.io", "gisrun.workflow", "gisrun.write", "gisrun.config",
                       "gisrun.cli")

@@ -203,7 +203,11 @@ def series_layer(series: pd.DataFrame, storm_name: str, system: UnitSystem) -> p
     """
     storm = pd.Categorical.from_codes(np.zeros(len(series), dtype=np.int8),
                                       categories=[storm_name])
-    return _storm_first(present_frame(series, system).assign(storm=storm))
+    presented = present_frame(series, system)
+    if "storm" in presented.columns:
+        return _storm_first(presented.assign(storm=storm))
+    presented.insert(0, "storm", storm)  # a frame of its own: no copy of the values
+    return presented
 
 
 def ponding_ranking(result: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
