@@ -11,7 +11,8 @@ Root search
     bracketing method: inverse quadratic interpolation safeguarded by bisection,
     the vectorized relative of Brent's method, guaranteed to converge inside a
     valid bracket. Rates are searched on a logarithmic scale. Where the depth is
-    flat at the target (no runoff for every value above a threshold), the
+    flat at the target (no runoff for every value above a threshold, or only the
+    impervious part's, to rounding, up to the upper bound), the
     threshold is found by sectioning (a kink there defeats interpolation) and the
     value given is the smallest found that gives the target exactly. A target
     outside what any value in the bounds gives is reported as such, with the
@@ -27,7 +28,9 @@ Least-squares fit
     of squared depth differences over several storms: a grid over the range the
     per-storm values span (outside it every difference grows), then
     :func:`scipy.optimize.elementwise.find_minimum` (Chandrupatla's minimizer)
-    inside the best grid point's bracket.
+    inside the best grid point's bracket; where the best grid point is an end of
+    the span, narrowing grids in the end interval instead (the minimum can lie
+    just inside an end, and the minimizer needs a lower middle point).
 
 References
 ----------
@@ -82,6 +85,8 @@ _TOLERANCES = {"xatol": 1e-10, "xrtol": 0.0, "fatol": 1e-12, "frtol": 0.0}
 #: The fit's tolerance on the search scale (log10 of a rate: 2e-5 relative; curve number 1e-5).
 _FIT_TOLERANCES = {"xatol": 1e-5, "xrtol": 0.0}
 _GRID = 9
+#: Rounds of grids narrowing on a minimum at an end of the fit's first grid (to about 1/8 x 1/4^5 of the span).
+_NARROWING_ROUNDS = 5
 
 
 @dataclass(frozen=True)
@@ -159,6 +164,9 @@ def solve_for_depth(depth: DepthFunction, target: FloatArray, search: Search
     low_is_near = (miss_low <= DEPTH_TOLERANCE_M) & reproduces(at_low, target)
     high_is_near = ((miss_high <= DEPTH_TOLERANCE_M) & (at_high != target)
                     & reproduces(at_high, target))
+    near = np.flatnonzero(high_is_near & ~low_is_near)
+    if near.size:  # the smallest value that gives the target, not the bound that happens to
+        values[near] = _smallest_reproducing(depth, target, search, near)
     todo = np.flatnonzero(between & ~low_is_near & ~high_is_near)
     if todo.size:
         values[todo], jumped = _inside(depth, target, search, todo,
@@ -250,13 +258,41 @@ def _bisect(g: DepthFunction, ends: tuple[FloatArray, FloatArray],
     return np.where(jumped, np.where(g_a < 0, a, b), found), jumped
 
 
+def _smallest_reproducing(depth: DepthFunction, target: FloatArray, search: Search,
+                          problems: IntArray) -> FloatArray:
+    """The smallest value on the target's plateau, where the upper bound is on it.
+
+    A depth that is flat at the target above some value (only the impervious part runs off
+    once the soil takes all the rain) gives the target at every larger value, to rounding:
+    the upper bound is one answer of many, and which one a search stops on would follow the
+    last bits of the depths. The lowest is given instead: the threshold, found by sections.
+    """
+    lo_s = search.to_scale(search.inner_low()[problems])
+    hi_s = search.to_scale(search.high[problems])
+    at_inner = depth(search.from_scale(lo_s, problems), problems)
+    out = search.from_scale(lo_s, problems)
+    rest = ~_on_plateau(at_inner, target[problems])
+    if rest.any():
+        out[rest] = _threshold(depth, target, search, problems[rest], lo_s[rest], hi_s[rest],
+                               flat_if=_on_plateau)
+    return out
+
+
+def _on_plateau(depth: FloatArray, target: FloatArray) -> NDArray[np.bool_]:
+    """Within :data:`DEPTH_TOLERANCE_M` of the target and :func:`reproduces` it (as a bound)."""
+    return (np.abs(depth - target) <= DEPTH_TOLERANCE_M) & reproduces(depth, target)
+
+
 def _threshold(depth: DepthFunction, target: FloatArray, search: Search, problems: IntArray,
-               a: FloatArray, b: FloatArray) -> FloatArray:
+               a: FloatArray, b: FloatArray,
+               flat_if: Callable[[FloatArray, FloatArray], NDArray[np.bool_]] = np.equal
+               ) -> FloatArray:
     """Where the depth becomes flat at the target, between ``a`` (not flat) and ``b`` (flat).
 
     Each round evaluates :data:`_SECTIONS` - 1 points inside every bracket in one
     call and keeps the section where the flat part begins; the value returned is
-    on the flat part (its depth is the target exactly), within the final section.
+    on the flat part (its depth is the target exactly, or as ``flat_if`` says), within the
+    final section.
     A depth with a kink at the threshold defeats interpolating root searches,
     which is why sections are used here.
     """
@@ -265,8 +301,8 @@ def _threshold(depth: DepthFunction, target: FloatArray, search: Search, problem
     for _ in range(_SECTION_ROUNDS):
         xs = a[None, :] + (b - a)[None, :] * inner[:, None]  # (points, problems)
         which = np.tile(problems, inner.size)
-        flat = (depth(search.from_scale(xs.reshape(-1), which), which)
-                == target[which]).reshape(inner.size, m)
+        flat = flat_if(depth(search.from_scale(xs.reshape(-1), which), which),
+                       target[which]).reshape(inner.size, m)
         first = np.where(flat.any(axis=0), np.argmax(flat, axis=0), inner.size)
         cols = np.arange(m)
         b = np.where(first < inner.size, xs[np.minimum(first, inner.size - 1), cols], b)
@@ -311,4 +347,33 @@ def fit_least_squares(depths: StormsFunction, targets: FloatArray, span: tuple[F
         res = elementwise.find_minimum(cost, init, args=(inner,), tolerances=_FIT_TOLERANCES)
         better = res.f_x <= costs[b, inner]
         out[inner] = np.where(better, res.x, out[inner])
+    end = np.flatnonzero(((best == 0) | (best == _GRID - 1)) & (hi > lo))
+    if end.size:  # the minimum may lie in the end interval: narrow it down there too
+        b, inside = best[end], np.where(best[end] == 0, 1, _GRID - 2)
+        out[end] = _narrowed(cost, (grid[np.minimum(b, inside), end],
+                                    grid[np.maximum(b, inside), end]),
+                             end, out[end], costs[b, end])
     return search.from_scale(out, every)
+
+
+def _narrowed(cost: DepthFunction, bracket: tuple[FloatArray, FloatArray], which: IntArray,
+              best_x: FloatArray, best_f: FloatArray) -> FloatArray:
+    """The lowest-cost point of :data:`_NARROWING_ROUNDS` grids, each around the last's best.
+
+    For a minimum the first grid put at one end of the span: Chandrupatla's minimizer
+    needs a middle point lower than both ends, which an end of the grid does not give.
+    Each round keeps the two grid intervals beside its best point (a quarter of the
+    last); the best point seen is returned, never worse than ``best_x``.
+    """
+    a, b = bracket
+    cols = np.arange(which.size)
+    steps = np.linspace(0.0, 1.0, _GRID)[:, None]
+    for _ in range(_NARROWING_ROUNDS):
+        xs = a[None, :] + (b - a)[None, :] * steps
+        f = cost(xs.reshape(-1), np.tile(which, _GRID)).reshape(_GRID, which.size)
+        k = np.argmin(f, axis=0)
+        take = f[k, cols] < best_f
+        best_x = np.where(take, xs[k, cols], best_x)
+        best_f = np.where(take, f[k, cols], best_f)
+        a, b = xs[np.maximum(k - 1, 0), cols], xs[np.minimum(k + 1, _GRID - 1), cols]
+    return best_x

@@ -13,6 +13,7 @@ from gisrun.parameters.inverse import (
     JUMPS_PAST,
     REPRODUCED,
     Search,
+    fit_least_squares,
     reproduces,
     solve_for_depth,
 )
@@ -70,3 +71,40 @@ def test_a_target_reached_below_the_inner_low_of_a_log_scale_is_bisected_for():
     assert notes == [REPRODUCED]
     assert reproduces(depth(values, np.arange(1)), target).all()
     assert 0.0 < values[0] < 1e-10 * high
+
+
+def test_a_plateau_that_reaches_the_upper_bound_gives_where_it_starts_not_the_bound():
+    """Runoff that stops falling above a conductivity (the soil takes all the rain, only the
+    impervious part runs off) gives the target at every larger value, to rounding. With the
+    depth at the upper bound a rounding (1e-16 m) off the target, the search gave the upper
+    bound itself; the value given must be where the plateau starts (exactly 2 here), whatever
+    the last bits at the bound."""
+    plateau = 0.08e-3  # m, the impervious part's runoff
+
+    def depth(values, problems):
+        out = plateau + np.maximum(2.0 - values, 0.0) * 1e-3
+        noise = np.where(values > 50.0, 1e-16, 0.0)  # rounding at large values only
+        return out + noise * np.where(problems % 2 == 0, 1.0, -1.0)
+
+    target = np.full(2, plateau)
+    values, notes = solve_for_depth(depth, target, Search(np.zeros(2), np.full(2, 100.0),
+                                                          log=True))
+    assert notes == [REPRODUCED, REPRODUCED]
+    # on the plateau, within the sections' resolution: 10 decades searched / 16^5 sections
+    assert (values >= 2.0).all()
+    np.testing.assert_allclose(values, 2.0, rtol=5e-5)
+    assert reproduces(depth(values, np.arange(2)), target).all()
+
+
+def test_a_least_squares_minimum_in_the_last_grid_interval_is_found_not_the_end():
+    """Two storms whose depths are straight lines in the value, reproduced at 1 and at 100:
+    the sum of squares (v - 1)^2 + 25 (v - 100)^2 is least at v = (1 + 2500) / 26 = 96.19
+    (set its derivative to 0), inside the last interval of a 9-point grid over [1, 100],
+    whose end 100 beats every other grid point. The end was given before."""
+    def depths(values, problems):
+        return np.stack([(values - 1.0) * 1e-3, 5.0 * (values - 100.0) * 1e-3])
+
+    targets = np.zeros((2, 1))
+    value = fit_least_squares(depths, targets, (np.array([1.0]), np.array([100.0])),
+                              Search(np.zeros(1), np.full(1, 1000.0), log=False))
+    assert value[0] == pytest.approx(2501.0 / 26.0, rel=1e-3)
