@@ -97,11 +97,10 @@ def kernel_means(values: np.ndarray, weights: RainGridWeights, tile_cells: int) 
     low = np.empty(block.shape[0])
     assert scan_block(block, weights.cells, low)[0] == BLOCK_OK
     m = weights.matrix
-    order, tile_start, slot, cols_start, cols = plan_tiles(m.indptr, m.indices,
-                                                           weights.cells.size, tile_cells)
+    order, tile_start, slot, cols_start, cols = plan_tiles(m.indptr, m.indices, weights.cells,
+                                                           tile_cells)
     out = np.empty((m.shape[0], block.shape[0]))
-    tile_means(order, tile_start, cols_start, cols, m.indptr, slot, m.data, weights.cells,
-               block, low, out)
+    tile_means(order, tile_start, cols_start, cols, m.indptr, slot, m.data, block, low, out)
     return out.T
 
 
@@ -131,7 +130,7 @@ def test_plan_covers_every_subcatchment_once_and_keeps_tiles_within_their_cells(
     rng = np.random.default_rng(5)
     weights = random_weights(rng, 400, 600, empty_row=True)
     m = weights.matrix
-    order, tile_start, slot, cols_start, cols = plan_tiles(m.indptr, m.indices, 600, 25)
+    order, tile_start, slot, cols_start, cols = plan_tiles(m.indptr, m.indices, weights.cells, 25)
     assert np.array_equal(np.sort(order), np.arange(400))
     for t in range(tile_start.size - 1):
         tile_cols = cols[cols_start[t]:cols_start[t + 1]]
@@ -140,7 +139,7 @@ def test_plan_covers_every_subcatchment_once_and_keeps_tiles_within_their_cells(
         assert tile_cols.size <= 25 or rows.size == 1
         for s in rows:  # each nonzero's slot names its own column in the tile's buffer
             p = slice(m.indptr[s], m.indptr[s + 1])
-            assert np.array_equal(tile_cols[slot[p]], m.indices[p])
+            assert np.array_equal(tile_cols[slot[p]], weights.cells[m.indices[p]])
 
 
 def test_a_uniform_grid_gives_its_value_exactly():

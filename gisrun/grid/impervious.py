@@ -183,7 +183,7 @@ def _weighted_sums(geoms: NDArray[Any], calc: _ShareGrid, chunk_cells: int
     box = np.column_stack([np.floor(b[:, 1]), np.ceil(b[:, 3]), np.floor(b[:, 0]),
                            np.ceil(b[:, 2])]).astype(np.int64)
     out = np.zeros((3, len(geoms) * n_cls))
-    for idx in _compact_chunks(px, box, chunk_cells):
+    for idx in _compact_chunks(shapely.centroid(px), box, chunk_cells):
         r0, r1 = int(box[idx, 0].min()), int(box[idx, 1].max())
         c0, c1 = int(box[idx, 2].min()), int(box[idx, 3].max())
         cov = cell_coverage(px[idx], origin=(float(c0), float(r0)))

@@ -198,14 +198,16 @@ def _sparse_sums(px: NDArray[Any], box: NDArray[np.int64], grid: _Grid, chunk_ce
     return _chunk_sums(cov, grid, len(px), (int(r0), int(r1), int(c0), int(c1)), chunk_cells)
 
 
-def _compact_chunks(px: NDArray[Any], box: NDArray[np.int64],
+def _compact_chunks(centres: NDArray[Any], box: NDArray[np.int64],
                     chunk_cells: int) -> list[NDArray[Any]]:
     """Polygons grouped along a Hilbert curve so that each group's window stays small.
 
-    Consecutive polygons join a group while the group's joint window stays within
-    ``chunk_cells``; a polygon larger than that on its own is a group of one.
+    ``centres``: a point per polygon (its centroid, or its box's centre), in grid
+    coordinates; ``box``: its (r0, r1, c0, c1). Consecutive polygons join a group while
+    the group's joint window stays within ``chunk_cells``; a polygon larger than that on
+    its own is a group of one.
     """
-    hilbert = np.asarray(gpd.GeoSeries(shapely.centroid(px)).hilbert_distance())
+    hilbert = np.asarray(gpd.GeoSeries(centres).hilbert_distance())
     order = hilbert.argsort(kind="stable")
     return np.split(order, chunk_starts(np.ascontiguousarray(box[order], dtype=np.int64),
                                         chunk_cells))

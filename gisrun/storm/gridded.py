@@ -93,7 +93,7 @@ def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
     k = steps_per_block(grid, block_bytes)
     matrix = weights.matrix
     order, tile_start, slot, cols_start, cols = plan_tiles(
-        matrix.indptr, matrix.indices, weights.cells.size,
+        matrix.indptr, matrix.indices, weights.cells,
         max(1, TILE_BYTES // (8 * min(k, max(grid.steps, 1)))))
     shape = (grid.steps, len(weights.subcatchment_ids))
     out = np.empty(shape, dtype=np.float64, order="F") if grid.steps == 0 else None
@@ -102,8 +102,8 @@ def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
         block, low = _checked_block(weights, grid, first, stop)
         if out is None:  # made after the first read, whose own temporaries are then gone
             out = np.empty(shape, dtype=np.float64, order="F")
-        tile_means(order, tile_start, cols_start, cols, matrix.indptr, slot, matrix.data,
-                   weights.cells, block, low, out.T[:, first:stop])
+        tile_means(order, tile_start, cols_start, cols, matrix.indptr, slot, matrix.data, block,
+                   low, out.T[:, first:stop])
     return out
 
 

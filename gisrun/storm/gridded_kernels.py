@@ -105,16 +105,16 @@ def _scan_exact(block: NDArray[np.float64], cells: NDArray[np.int64], low: NDArr
 
 
 @numba.njit(cache=True, nogil=True)
-def plan_tiles(indptr: NDArray[np.int64], indices: NDArray[np.int64], n_cells: int,
+def plan_tiles(indptr: NDArray[np.int64], indices: NDArray[np.int64], cells: NDArray[np.int64],
                tile_cells: int) -> tuple[NDArray[np.int64], ...]:
     """Tiles of subcatchments with at most ``tile_cells`` cells each (or one subcatchment).
 
     Parameters
     ----------
     indptr, indices : ndarray
-        The CSR weights' structure (subcatchments x ``n_cells`` used cells).
-    n_cells : int
-        Columns of the weights.
+        The CSR weights' structure (subcatchments x used cells).
+    cells : ndarray of int64
+        The block column (grid cell) of each column of the weights.
     tile_cells : int
         Most cells a tile may hold (a subcatchment with more makes a tile of its own).
 
@@ -128,9 +128,10 @@ def plan_tiles(indptr: NDArray[np.int64], indices: NDArray[np.int64], n_cells: i
         Each nonzero's row in its tile's buffer.
     cols_start : ndarray, (tiles + 1,)
     cols : ndarray
-        Tile ``t``'s columns, buffer row by buffer row: ``cols[cols_start[t]:cols_start[t+1]]``.
+        Tile ``t``'s block columns, buffer row by buffer row:
+        ``cols[cols_start[t]:cols_start[t + 1]]``.
     """
-    n = indptr.size - 1
+    n, n_cells = indptr.size - 1, cells.size
     order = _by_first_column(indptr, indices, n_cells)
     owner = np.full(n_cells, -1, dtype=np.int64)  # the tile holding each column, if any
     row_of = np.empty(n_cells, dtype=np.int64)  # its place in ``cols``
@@ -156,7 +157,7 @@ def plan_tiles(indptr: NDArray[np.int64], indices: NDArray[np.int64], n_cells: i
             i += 1
         tiles += 1
     tile_start[tiles], cols_start[tiles] = n, used
-    return order, tile_start[:tiles + 1], slot, cols_start[:tiles + 1], cols[:used]
+    return order, tile_start[:tiles + 1], slot, cols_start[:tiles + 1], cells[cols[:used]]
 
 
 @numba.njit(cache=True, nogil=True)
@@ -196,9 +197,8 @@ def _by_first_column(indptr: NDArray[np.int64], indices: NDArray[np.int64], n_ce
 @numba.njit(cache=True, nogil=True)
 def tile_means(order: NDArray[np.int64], tile_start: NDArray[np.int64],
                cols_start: NDArray[np.int64], cols: NDArray[np.int64], indptr: NDArray[np.int64],
-               slot: NDArray[np.int64], weight: NDArray[np.float64], cells: NDArray[np.int64],
-               block: NDArray[np.float64], low: NDArray[np.float64], out: NDArray[np.float64]
-               ) -> None:
+               slot: NDArray[np.int64], weight: NDArray[np.float64], block: NDArray[np.float64],
+               low: NDArray[np.float64], out: NDArray[np.float64]) -> None:
     """Each subcatchment's mean ``low + sum w (x - low)`` of each step, into ``out``.
 
     Parameters
@@ -207,8 +207,6 @@ def tile_means(order: NDArray[np.int64], tile_start: NDArray[np.int64],
         The tiles of :func:`plan_tiles`.
     indptr, weight : ndarray
         The CSR weights' row pointers and nonzeros.
-    cells : ndarray of int64
-        Column of ``block`` of each weights column.
     block : ndarray, shape (steps, height * width)
         Rain of a block of steps, C order, checked by :func:`scan_block`.
     low : ndarray, shape (steps,)
@@ -223,7 +221,7 @@ def tile_means(order: NDArray[np.int64], tile_start: NDArray[np.int64],
     buf = np.empty((widest, k))
     acc = np.empty(k)
     for t in range(tile_start.size - 1):
-        _fill(block, cells, cols[cols_start[t]:cols_start[t + 1]], low, buf)
+        _fill(block, cols[cols_start[t]:cols_start[t + 1]], low, buf)
         for i in range(tile_start[t], tile_start[t + 1]):
             s = order[i]
             acc[:] = 0.0
@@ -237,11 +235,11 @@ def tile_means(order: NDArray[np.int64], tile_start: NDArray[np.int64],
 
 
 @numba.njit(cache=True, nogil=True)
-def _fill(block: NDArray[np.float64], cells: NDArray[np.int64], cols: NDArray[np.int64],
-          low: NDArray[np.float64], buf: NDArray[np.float64]) -> None:
-    """``buf[r, j] = block[j, cells[cols[r]]] - low[j]``, one row of the block at a time."""
+def _fill(block: NDArray[np.float64], cols: NDArray[np.int64], low: NDArray[np.float64],
+          buf: NDArray[np.float64]) -> None:
+    """``buf[r, j] = block[j, cols[r]] - low[j]``, one row of the block at a time."""
     for j in range(block.shape[0]):
         row = block[j]
         lo = low[j]
         for r in range(cols.size):
-            buf[r, j] = row[cells[cols[r]]] - lo
+            buf[r, j] = row[cols[r]] - lo
