@@ -19,8 +19,8 @@ It measures, interleaved (``--repeat`` rounds, the fastest of each kept):
 
 Target: areal within 2x read. ``--clock cpu`` times both by the process's CPU time instead of
 the wall clock (both sides run on one thread): steadier on a shared machine, where the wall
-clock of a fraction of a second depends on who else runs. Peak memory of the areal call by ``tracemalloc`` (numpy's
-arrays included), and the process's peak resident size.
+clock of a fraction of a second depends on who else runs. Peak memory of the areal call by
+``tracemalloc`` (numpy's arrays included), and the process's peak resident size.
 
 Command line::
 

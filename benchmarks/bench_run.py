@@ -275,7 +275,7 @@ def bench(n_cells: int, n_polygons: int, *, workers: int | None = None,
     rows_floor = storm_rows_floor(layer_s)
     return {**cluster, "run_true_wall_s": run["true_wall_s"],
             "run_tree_peak_rss_mb": run["tree_peak_rss_mb"], **_second_storm_figures(
-                run, two, rows_floor), 
+                run, two, rows_floor),
         "series_bytes_per_value": bytes_per_value(output),
         "run_cpu_s": run["cpu_s"], "io_floor_cpu_s": read_cpu + write_cpu,
         "cpu_ratio_to_io_floor": run["cpu_s"] / (read_cpu + write_cpu),

@@ -85,7 +85,8 @@ _TOLERANCES = {"xatol": 1e-10, "xrtol": 0.0, "fatol": 1e-12, "frtol": 0.0}
 #: The fit's tolerance on the search scale (log10 of a rate: 2e-5 relative; curve number 1e-5).
 _FIT_TOLERANCES = {"xatol": 1e-5, "xrtol": 0.0}
 _GRID = 9
-#: Rounds of grids narrowing on a minimum at an end of the fit's first grid (to about 1/8 x 1/4^5 of the span).
+#: Rounds of grids narrowing on a minimum at an end of the fit's first grid (to about
+#: 1/8 x 1/4^5 of the span).
 _NARROWING_ROUNDS = 5
 
 

@@ -25,8 +25,7 @@ from numpy.typing import NDArray
 
 from ..errors import StormError
 from ..grid.rain_weights import RainGridGeometry, RainGridWeights
-from .gridded_kernels import (BLOCK_NODATA, BLOCK_OK, TILE_BYTES, plan_tiles, scan_block,
-                              tile_means)
+from .gridded_kernels import BLOCK_NODATA, BLOCK_OK, TILE_BYTES, plan_tiles, scan_block, tile_means
 
 __all__ = ["RainGrid", "grid_areal_depth", "steps_per_block", "block_bytes_for_budget",
            "BLOCK_BYTES", "BLOCK_SHARE"]
