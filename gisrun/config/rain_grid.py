@@ -19,7 +19,8 @@ folder of GeoTIFFs) and what the stack does not say itself::
 :func:`build_rain_grid` reads the stack's description (:func:`gisrun.io.rain_grid.open_rain_grid`),
 weighs its cells over the subcatchments
 (:func:`gisrun.grid.rain_weights.rain_grid_weights`) and makes the rain per subcatchment and
-step (:func:`gisrun.storm.gridded.grid_areal_depth`).
+step (:func:`gisrun.storm.gridded.grid_rain_mix`: the used cells' depths, each
+subcatchment's means made when its chunk runs).
 
 Rainfall feeds planning-level runoff estimates only; defer to local codes, agency methods and a
 licensed engineer.
@@ -33,7 +34,7 @@ from ..grid.rain_weights import rain_grid_weights
 from ..io.rain_grid import RainGridSettings, RainStack, open_rain_grid
 from ..options import RAIN_GRID_FORMATS, RAIN_TIME_MARKS, RAIN_VALUES, Choices
 from ..storm import ArealRain
-from ..storm.gridded import block_bytes_for_budget, grid_areal_depth
+from ..storm.gridded import block_bytes_for_budget, grid_rain_mix
 from ..units import UnitSystem
 from .reader import TableReader
 
@@ -70,14 +71,13 @@ def build_rain_grid(table: TableReader, subcatchments: gpd.GeoDataFrame,
     stack = open_rain_grid(rain_grid_settings(table))
     ids = subcatchments["subcatchment_id"].to_numpy(dtype=object)
     weights = rain_grid_weights(subcatchments.geometry, ids, stack)
-    depth = grid_areal_depth(weights, stack,
-                             block_bytes=block_bytes_for_budget(memory_budget_mb))
+    mix = grid_rain_mix(weights, stack, block_bytes=block_bytes_for_budget(memory_budget_mb))
     t = stack.transform
     source = (f"rain grid {stack.where} ({stack.width} x {stack.height} cells of "
               f"{abs(t.a):g} x {abs(t.e):g} {_axis_unit(stack)}, {stack.crs.name}; "
               f"{stack.steps} steps of {stack.step_s / 60:g} min from {stack.start}; "
               "exact area weights)")
-    return ArealRain(depth, stack.step_s, weights.subcatchment_ids, source,
+    return ArealRain(mix, stack.step_s, weights.subcatchment_ids, source,
                      weights=weights.table(), start=stack.start)
 
 
