@@ -112,7 +112,7 @@ def read_once(stack) -> int:
 
 def areal_by_chunks(weights, stack, chunks) -> int:
     """The areal rain as a run makes it: the mix, then each chunk's columns; values made."""
-    mix, made = grid_rain_mix(weights, stack), 0
+    mix, made = grid_rain_mix(weights, stack)[0], 0
     for rows in chunks:
         made += mix.subset(rows).columns().size
     return made
@@ -150,7 +150,7 @@ def main(argv: list[str] | None = None) -> int:
     chunks = plan_chunks(subs.geometry, size)
     t_first = timed(areal_by_chunks, weights, stacks["plain"], chunks)[0]
     whole = grid_areal_depth(weights, stacks["plain"])
-    mix = grid_rain_mix(weights, stacks["plain"])
+    mix = grid_rain_mix(weights, stacks["plain"])[0]
     same = all(np.array_equal(mix.subset(rows).columns(), whole[:, rows]) for rows in chunks)
     del whole, mix
     times: dict[str, list[float]] = {}

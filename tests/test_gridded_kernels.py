@@ -89,7 +89,7 @@ def scipy_means(values: np.ndarray, weights: RainGridWeights) -> np.ndarray:
 
 def kernel_means(values: np.ndarray, weights: RainGridWeights, rows: np.ndarray) -> np.ndarray:
     """The kernels' means of the subcatchments ``rows``, ``(steps, len(rows))``."""
-    return grid_rain_mix(weights, StackInMemory(values)).columns(rows)
+    return grid_rain_mix(weights, StackInMemory(values))[0].columns(rows)
 
 
 @pytest.mark.parametrize("seed", [1, 2, 3])
@@ -206,3 +206,47 @@ def test_nodata_and_negative_rain_stop_with_the_messages_of_before():
         f"memory.nc:rain: has no rain value (nodata) at 2026-07-01 step 9 in cell {name} used "
         f"by subcatchment {first_user!r}; fill the gap in the rain grid, or give a grid without "
         "nodata over the subcatchments")
+
+
+def test_fill_gaps_takes_the_mean_of_the_neighbours_that_have_a_value():
+    # By hand: values on a 1/1024 grid, so each neighbour sum is exact and the mean is one
+    # rounding, whatever the order of summation. Cell (5, 7) in step 2: eight neighbours, one
+    # of them nodata too (counted out); cell (0, 0) in step 4: a corner, three neighbours.
+    rng = np.random.default_rng(11)
+    values = rng.integers(0, 50, size=(6, HEIGHT, WIDTH)) / 1024.0
+    cells = np.array([5 * WIDTH + 7, 0, 5 * WIDTH + 8, 1], dtype=np.int64)
+    matrix = sparse.csr_array(np.array([[0.5, 0.5, 0.0, 0.0], [0.0, 0.0, 0.25, 0.75]]))
+    weights = RainGridWeights(("A", "B"), cells, matrix, "memory.nc:rain", WIDTH)
+    gappy = values.copy()
+    gappy[2, 5, 7] = gappy[2, 4, 6] = gappy[4, 0, 0] = np.nan
+    by_hand = gappy.copy()
+    around = [gappy[2, r, c] for r in (4, 5, 6) for c in (6, 7, 8)
+              if (r, c) != (5, 7) and np.isfinite(gappy[2, r, c])]
+    by_hand[2, 5, 7] = sum(around) / 7
+    by_hand[4, 0, 0] = (gappy[4, 0, 1] + gappy[4, 1, 0] + gappy[4, 1, 1]) / 3
+    mix, notes = grid_rain_mix(weights, StackInMemory(gappy), fill_gaps=True)
+    assert np.array_equal(mix.columns(), scipy_means(by_hand, weights))
+    assert notes == ("2 missing value(s) of the rain grid in cells the subcatchments use were "
+                     "filled with the mean of the cells around them (fill_gaps = true), the "
+                     "first at 2026-07-01 step 3 in cell r5_c7",)
+    with pytest.raises(StormError, match="has no rain value"):  # not asked to fill
+        grid_rain_mix(weights, StackInMemory(gappy))
+    assert grid_rain_mix(weights, StackInMemory(values), fill_gaps=True)[1] == ()
+
+
+def test_fill_gaps_leaves_negative_rain_and_lonely_gaps_as_errors():
+    rng = np.random.default_rng(12)
+    weights = random_weights(rng, 40, 100)
+    values = random_rain(rng, 5)
+    cell = int(weights.cells[weights.matrix.indices[0]])
+    r, c = divmod(cell, WIDTH)
+    lonely = values.copy()
+    lonely[3, max(r - 1, 0):r + 2, max(c - 1, 0):c + 2] = np.nan  # the cell and all around it
+    with pytest.raises(StormError, match=r"step 4 in cell r\d+_c\d+ used by subcatchment "
+                                         r"'S\d+', nor any of the cells around it"):
+        grid_rain_mix(weights, StackInMemory(lonely), fill_gaps=True)
+    negative = values.copy()
+    negative[1, r, c] = -0.001
+    negative[2, r, c] = np.nan
+    with pytest.raises(StormError, match="has rain -0.001 m < 0"):
+        grid_rain_mix(weights, StackInMemory(negative), fill_gaps=True)

@@ -24,6 +24,7 @@ from typing import Protocol
 
 import numpy as np
 from numpy.typing import NDArray
+from scipy import ndimage
 
 from ..errors import StormError
 from ..grid.rain_weights import RainGridGeometry, RainGridWeights
@@ -31,8 +32,8 @@ from .gridded_kernels import BLOCK_NODATA, scan_block
 from .mix import SourceMix
 from .mix_kernels import gather_block
 
-__all__ = ["RainGrid", "grid_rain_mix", "grid_areal_depth", "steps_per_block",
-           "block_bytes_for_budget", "BLOCK_BYTES", "BLOCK_SHARE"]
+__all__ = ["RainGrid", "grid_rain_mix", "grid_areal_depth", "fill_block_gaps", "steps_per_block",
+           "block_bytes_for_budget", "BLOCK_BYTES", "BLOCK_SHARE", "KEPT_SHARE"]
 
 #: Bytes of one block of grid steps held in memory while the areal rain is made, when no
 #: memory budget is given (128 MB).
@@ -41,6 +42,12 @@ BLOCK_BYTES = 128 * 2**20
 #: steps: a tenth (150 MB of the default 1500 MB), leaving the rest to the kept cells (used
 #: cells x steps, 8 bytes each, which no block size changes) and to what the run holds besides.
 BLOCK_SHARE = 0.1
+#: Share of the run's memory budget the kept cells (used cells x steps, 8 bytes each) may take
+#: before the run says it may overrun its budget (common practice: half, leaving the rest to
+#: the chunks).
+KEPT_SHARE = 0.5
+#: The eight cells around a cell (:func:`fill_block_gaps`).
+_NEIGHBOURS = np.array([[1.0, 1.0, 1.0], [1.0, 0.0, 1.0], [1.0, 1.0, 1.0]])
 
 
 class RainGrid(RainGridGeometry, Protocol):
@@ -68,8 +75,8 @@ def block_bytes_for_budget(memory_budget_mb: float | None) -> int:
     return int(BLOCK_SHARE * memory_budget_mb * 2**20)
 
 
-def grid_rain_mix(weights: RainGridWeights, grid: RainGrid, *,
-                  block_bytes: int = BLOCK_BYTES) -> SourceMix:
+def grid_rain_mix(weights: RainGridWeights, grid: RainGrid, *, block_bytes: int = BLOCK_BYTES,
+                  fill_gaps: bool = False) -> tuple[SourceMix, tuple[str, ...]]:
     """The grid's rain as a :class:`~gisrun.storm.mix.SourceMix` over its used cells.
 
     Reads the stack ``block_bytes`` at a time and, in one pass over each block
@@ -87,23 +94,85 @@ def grid_rain_mix(weights: RainGridWeights, grid: RainGrid, *,
         The rain stack.
     block_bytes : int
         Memory for one block of grid steps while reading.
+    fill_gaps : bool
+        Fill a used cell without a value (nodata) in a step with the mean of the cells around
+        it that have one in that step (:func:`fill_block_gaps`); otherwise it is an error.
+
+    Returns
+    -------
+    (SourceMix, notes)
+        The mix, and what was filled, in words (empty when nothing was).
 
     Raises
     ------
     StormError
-        If a cell a subcatchment uses is nodata or negative in some step.
+        If a cell a subcatchment uses is negative in some step, or nodata (without
+        ``fill_gaps``, or with none of the cells around it holding a value).
     """
     k = steps_per_block(grid, block_bytes)
+    filled: list[tuple[int, str]] = []
     kept = np.empty((weights.cells.size, grid.steps), dtype=np.float64)
     low = np.zeros(grid.steps, dtype=np.float64)
     for first in range(0, grid.steps, k):
         stop = min(first + k, grid.steps)
         block = np.ascontiguousarray(grid.read_steps(first, stop).reshape(stop - first, -1),
                                      dtype=np.float64)
-        if not gather_block(block, weights.cells, first, kept, low[first:stop]):
-            _raise_first_bad(block, weights, grid, first)
+        if gather_block(block, weights.cells, first, kept, low[first:stop]):
+            continue
+        if fill_gaps:
+            filled.append(fill_block_gaps(block, weights, grid, first))
+            if gather_block(block, weights.cells, first, kept, low[first:stop]):
+                continue
+        _raise_first_bad(block, weights, grid, first)
     low[np.isinf(low)] = 0.0  # no cell used: nothing subtracted
-    return SourceMix(kept, weights.matrix, low)
+    count = sum(n for n, _ in filled)
+    notes = (f"{count} missing value(s) of the rain grid in cells the subcatchments use were "
+             f"filled with the mean of the cells around them (fill_gaps = true), the first at "
+             f"{filled[0][1]}",) if count else ()
+    return SourceMix(kept, weights.matrix, low), notes
+
+
+def fill_block_gaps(block: NDArray[np.float64], weights: RainGridWeights, grid: RainGrid,
+                    first: int) -> tuple[int, str]:
+    """Fill each used cell without a value (NaN) with the mean of its neighbours', in place.
+
+    The neighbours are the (up to) eight cells around it on the grid that hold a value
+    (finite, >= 0) in the same step, each counting once (common practice for isolated gaps
+    in a radar product; filled values are not used to fill others).
+
+    Returns
+    -------
+    (count, where)
+        How many values were filled, and the first's time and cell, in words.
+
+    Raises
+    ------
+    StormError
+        Naming the first gap (by step, then cell) none of whose neighbours has a value.
+    """
+    gap = np.isnan(block[:, weights.cells])
+    count, where = 0, ""
+    for j in np.flatnonzero(gap.any(axis=1)):
+        plane = block[j].reshape(grid.height, grid.width)
+        ok = np.isfinite(plane) & (plane >= 0)
+        total = ndimage.convolve(np.where(ok, plane, 0.0), _NEIGHBOURS, mode="constant")
+        around = ndimage.convolve(ok.astype(np.float64), _NEIGHBOURS, mode="constant")
+        cols = np.flatnonzero(gap[j])
+        cells = weights.cells[cols]
+        lonely = np.flatnonzero(around.flat[cells] == 0)
+        if lonely.size:
+            col = int(cols[lonely[0]])
+            sub = weights.subcatchment_ids[_first_user(weights, col)]
+            raise StormError(grid.where, f"has no rain value (nodata) at "
+                             f"{grid.step_label(first + j)} in cell {_cell_name(weights, col)} "
+                             f"used by subcatchment {sub!r}, nor any of the cells around it "
+                             "(fill_gaps fills a gap from its neighbours)",
+                             "fill the gap in the rain grid, or give a grid with values over "
+                             "the subcatchments")
+        block[j, cells] = total.flat[cells] / around.flat[cells]
+        where = where or f"{grid.step_label(first + j)} in cell {_cell_name(weights, int(cols[0]))}"
+        count += cells.size
+    return count, where
 
 
 def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
@@ -119,7 +188,7 @@ def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
     StormError
         If a cell a subcatchment uses is nodata or negative in some step.
     """
-    return grid_rain_mix(weights, grid, block_bytes=block_bytes).columns()
+    return grid_rain_mix(weights, grid, block_bytes=block_bytes)[0].columns()
 
 
 def _raise_first_bad(block: NDArray[np.float64], weights: RainGridWeights, grid: RainGrid,
