@@ -138,3 +138,25 @@ def test_write_outputs_refuses_a_run_without_its_unit_rows(two_ways, tmp_path):
     with pytest.raises(ValueError, match="streamed its rows"):
         write_outputs(streamed, output=tmp_path / "x.gpkg")
     assert not (tmp_path / "x.gpkg").exists()
+
+
+def test_ranked_table_counts_its_rows_and_keeps_the_count_trigger(tmp_path):
+    # The ranking inserts its rows with GDAL's per-row count trigger set aside: the layer's
+    # count in gpkg_ogr_contents must still be its rows (GDAL reports it without counting),
+    # and the trigger must be back, counting rows added later.
+    frame = pd.DataFrame({"storm": ["a"] * 5 + ["b"] * 3, "subcatchment_id": list("pqrstuvw"),
+                          "time_to_ponding_s": [3.0, 1.0, np.nan, 1.0, 2.0, 5.0, 4.0, 4.0]})
+    path = tmp_path / "t.gpkg"
+    pyogrio.write_dataframe(frame, path, layer="rows", driver="GPKG")
+    write_ranked_table(path, source="rows", target="ranked", group="storm",
+                       group_order=["b", "a"], value="time_to_ponding_s",
+                       keys=["subcatchment_id"], columns=["subcatchment_id", "time_to_ponding_s"],
+                       rank="ponding_rank")
+    assert pyogrio.read_info(path, layer="ranked")["features"] == 8
+    got = layer(path, "ranked")
+    assert got["ponding_rank"].tolist()[:3] == [1, 1, 3]  # storm b first: 4.0 and 4.0 tie
+    with closing(sqlite3.connect(path)) as db, db:
+        count = "SELECT feature_count FROM gpkg_ogr_contents WHERE table_name = 'ranked'"
+        assert db.execute(count).fetchone() == (8,)
+        db.execute("INSERT INTO ranked (storm) VALUES ('c')")
+        assert db.execute(count).fetchone() == (9,)
