@@ -43,6 +43,9 @@ from .pipeline import KEEP_STEP_ARRAYS_BELOW, Progress, run
 
 __all__ = ["run_and_write", "series_rows", "Extras"]
 
+#: Share of the memory budget SQLite may use for its page cache and, as much again, its sort
+#: while ranking the streamed units (the chunks' working sets are gone by then).
+RANKING_SHARE = 1.0 / 12.0
 #: ``extras(result, gpkg_being_built, outputs)``: stage more outputs to move in with the GeoPackage.
 Extras = Callable[[RunResult, Path, OutputSet], object]
 
@@ -224,7 +227,8 @@ def _rank_units_in_file(path: Path, result: RunResult) -> pd.DataFrame:
     geopackage.write_ranked_table(
         path, source="unit_results", target="ponding_rank_units", group="storm",
         group_order=[s.name for s in result.storms], value=value, keys=keys, columns=columns,
-        rank="ponding_rank", exclude=("surface", "impervious"))
+        rank="ponding_rank", exclude=("surface", "impervious"),
+        cache_mb=result.project.memory_budget_mb * RANKING_SHARE)
     frames = []
     for storm in result.storms:
         quoted = storm.name.replace("'", "''")
