@@ -11,15 +11,22 @@ It measures, interleaved (``--repeat`` rounds, the fastest of each kept):
   (decoded to float64 metres; nothing else done with the values: the floor is the stack read
   once), for the stack stored plain and deflated (zlib 4, shuffle, one step per
   chunk, as rainfall products are usually shipped);
-- areal: ``gisrun.storm.gridded.grid_areal_depth(weights, stack)``, the rain per subcatchment
-  for every step (reading included; the compiled kernels of ``gisrun.storm.gridded_kernels``);
-  its first call in the process, which also loads the kernels from numba's cache (or compiles
-  them, in a fresh install), is timed apart before the rounds;
+- areal: the rain per subcatchment for every step, the way a run makes it: the stack read,
+  checked and its used cells kept once (``gisrun.storm.gridded.grid_rain_mix``), then each
+  chunk's columns (``mix.subset(rows).columns()``) for the chunks a run of these subcatchments
+  is cut into (``plan_chunks`` with ``chunk_size_for_budget`` of the default 1500 MB budget,
+  one storm of areal rain), each dropped once made, as a run drops it once the chunk has run
+  (reading included; the compiled kernels of ``gisrun.storm.mix_kernels``); its first call in
+  the process, which also loads the kernels from numba's cache (or compiles them, in a fresh
+  install), is timed apart before the rounds;
+- whole: ``grid_areal_depth(weights, stack)``, every column at once (the whole matrix, as the
+  areal rain was made before it was made by chunks), for comparison;
 - weights: ``gisrun.grid.rain_weights.rain_grid_weights`` (made once per run, shown apart).
 
-Target: areal within 2x read. ``--clock cpu`` times both by the process's CPU time instead of
-the wall clock (both sides run on one thread): steadier on a shared machine, where the wall
-clock of a fraction of a second depends on who else runs. Peak memory of the areal call by
+Target: areal within 2x read; memory bounded by the run's budget (the areal call's peak traced
+memory is printed beside the whole matrix's). ``--clock cpu`` times both by the process's CPU
+time instead of the wall clock (both sides run on one thread): steadier on a shared machine,
+where the wall clock of a fraction of a second depends on who else runs. Peak memory by
 ``tracemalloc`` (numpy's arrays included), and the process's peak resident size.
 
 Command line::
@@ -53,7 +60,8 @@ from make_inputs import NORTH_M, WEST_M, make_subcatchments  # noqa: E402
 
 from gisrun.grid.rain_weights import rain_grid_weights  # noqa: E402
 from gisrun.io.rain_grid import RainGridSettings, open_rain_grid  # noqa: E402
-from gisrun.storm.gridded import grid_areal_depth, steps_per_block  # noqa: E402
+from gisrun.storm.gridded import grid_areal_depth, grid_rain_mix, steps_per_block  # noqa: E402
+from gisrun.workflow.chunks import chunk_size_for_budget, plan_chunks  # noqa: E402
 
 EXTENT_CELLS, CELL_M = 20_000, 10.0  # the large benchmark set's extent: 200 km
 RAIN_CELL_M, STEP_MIN, HOURS = 1000.0, 5, 24
@@ -95,11 +103,19 @@ def write_rain(path: Path, *, deflate: bool) -> Path:
 
 
 def read_once(stack) -> int:
-    """Read every block of the stack, as grid_areal_depth does; returns the values read."""
+    """Read every block of the stack, as grid_rain_mix does; returns the values read."""
     k, values = steps_per_block(stack), 0
     for first in range(0, stack.steps, k):
         values += stack.read_steps(first, min(first + k, stack.steps)).size
     return values
+
+
+def areal_by_chunks(weights, stack, chunks) -> int:
+    """The areal rain as a run makes it: the mix, then each chunk's columns; values made."""
+    mix, made = grid_rain_mix(weights, stack)[0], 0
+    for rows in chunks:
+        made += mix.subset(rows).columns().size
+    return made
 
 
 CLOCKS = {"wall": time.perf_counter, "cpu": time.process_time}
@@ -130,37 +146,51 @@ def main(argv: list[str] | None = None) -> int:
         for kind in ("plain", "deflate")}
     t_weights, weights = timed(rain_grid_weights, subs.geometry, subs["subcatchment_code"],
                                stacks["plain"])
-    t_first = timed(grid_areal_depth, weights, stacks["plain"])[0]
+    size = chunk_size_for_budget(1500, stacks["plain"].steps, 1, areal_storms=1)
+    chunks = plan_chunks(subs.geometry, size)
+    t_first = timed(areal_by_chunks, weights, stacks["plain"], chunks)[0]
+    whole = grid_areal_depth(weights, stacks["plain"])
+    mix = grid_rain_mix(weights, stacks["plain"])[0]
+    same = all(np.array_equal(mix.subset(rows).columns(), whole[:, rows]) for rows in chunks)
+    del whole, mix
     times: dict[str, list[float]] = {}
     load = [os.getloadavg()[0]]
     for _ in range(args.repeat):  # interleaved, the fastest of each kept
         for kind, stack in stacks.items():
             times.setdefault(f"read {kind}", []).append(timed(read_once, stack)[0])
             times.setdefault(f"areal {kind}", []).append(
+                timed(areal_by_chunks, weights, stack, chunks)[0])
+            times.setdefault(f"whole {kind}", []).append(
                 timed(grid_areal_depth, weights, stack)[0])
     load.append(os.getloadavg()[0])
-    tracemalloc.start()
-    depth = grid_areal_depth(weights, stacks["plain"])
-    peak = tracemalloc.get_traced_memory()[1]
-    tracemalloc.stop()
+    peak = {}
+    for name, call in (("areal", lambda: areal_by_chunks(weights, stacks["plain"], chunks)),
+                       ("whole", lambda: grid_areal_depth(weights, stacks["plain"]))):
+        tracemalloc.start()
+        call()
+        peak[name] = tracemalloc.get_traced_memory()[1]
+        tracemalloc.stop()
+    print(f"chunks: {len(chunks)} of up to {size} subcatchments; each chunk's columns equal the "
+          f"whole matrix's, to the bit: {same}")
     best = {name: min(values) for name, values in times.items()}
-    _report(args, stacks["plain"], weights, depth, (t_weights, t_first), best, peak)
+    _report(args, stacks["plain"], weights, (t_weights, t_first), best, peak)
     print(f"machine load (1-minute average, {os.cpu_count()} cores) before and after the rounds: "
           f"{load[0]:.2f}, {load[1]:.2f}")
     return 0
 
 
-def _report(args, stack, weights, depth, once, best, peak) -> None:
+def _report(args, stack, weights, once, best, peak) -> None:
     t_weights, t_first = once
     rows = [(f"{what}, {kind} NetCDF", best[f"{what.split()[0]} {kind}"], call)
             for kind in ("plain", "deflate")
-            for what, call in (("read the stack once",
-                                "RainStack.read_steps, every block"),
-                               ("areal rain, all steps", "grid_areal_depth(weights, stack)"))]
+            for what, call in (("read the stack once", "RainStack.read_steps, every block"),
+                               ("areal rain, all steps, by chunks",
+                                "grid_rain_mix, then mix.subset(rows).columns() per chunk"),
+                               ("whole matrix at once", "grid_areal_depth(weights, stack)"))]
     rows.append(("weights (once per run)", t_weights,
                  "rain_grid_weights(subcatchments.geometry, ids, stack)"))
     rows.append(("first areal call in the process, plain", t_first,
-                 "grid_areal_depth(weights, stack), kernels loaded from cache or compiled"))
+                 "as areal, kernels loaded from numba's cache or compiled"))
     print(f"times: {args.clock} clock, fastest of {args.repeat} interleaved rounds")
     print(f"{args.polygons:,} subcatchments; rain grid {stack.width} x {stack.height} cells of "
           f"1 km, {stack.steps} steps of {stack.step_s / 60:g} min; {weights.matrix.nnz:,} "
@@ -169,9 +199,12 @@ def _report(args, stack, weights, depth, once, best, peak) -> None:
     for kind in ("plain", "deflate"):
         read, areal = best[f"read {kind}"], best[f"areal {kind}"]
         print(f"{kind} NetCDF: areal rain / read once {areal / read:.2f} (target <= 2); "
+              f"whole matrix / read once {best[f'whole {kind}'] / read:.2f}; "
               f"(weights + areal rain) / read once {(t_weights + areal) / read:.2f}")
-    print(f"peak traced memory of the areal call: {peak / 2**20:.0f} MB (result alone "
-          f"{depth.nbytes / 2**20:.0f} MB); process peak resident "
+    result_mb = 8 * stack.steps * weights.matrix.shape[0] / 2**20
+    print(f"peak traced memory: areal by chunks {peak['areal'] / 2**20:.0f} MB, whole matrix "
+          f"{peak['whole'] / 2**20:.0f} MB (the matrix alone {result_mb:.0f} MB; the default "
+          f"budget 1500 MB); process peak resident "
           f"{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
 
 

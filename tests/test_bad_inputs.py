@@ -333,6 +333,11 @@ CASES: dict[str, Case] = {
         _rain_grid(nodata_at=(1, 2, 3)),
         re.compile(r"rain\.nc:precip: has no rain value \(nodata\) at time "
                    r"2026-07-01T00:10:00 in cell r2_c3 used by subcatchment 'S2'")),
+    "rain grid with a whole step of nodata, fill_gaps on": Case(
+        _rain_grid("fill_gaps = true\n", nodata_at=(1, slice(None), slice(None))),
+        re.compile(r"rain\.nc:precip: has no rain value \(nodata\) at time "
+                   r"2026-07-01T00:10:00 in cell r0_c0 used by subcatchment 'S1', nor any of "
+                   r"the cells around it")),
     "rain grid in an unknown unit": Case(
         _rain_grid(units="furlongs"), re.compile(r"rain\.nc:precip: rain unit 'furlongs'")),
     # --- parameter overrides ------------------------------------------------------------------

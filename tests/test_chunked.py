@@ -58,6 +58,19 @@ def assert_identical(a, b):
     pd.testing.assert_frame_equal(a.units, b.units, check_exact=True)
 
 
+def assert_same_values(a, b):
+    """:func:`assert_identical` but for the id column's dtype (one chunk keeps it categorical)."""
+    def plain(frame):
+        return frame.astype({"subcatchment_id": str})
+
+    for sa, sb in zip(a.storms, b.storms, strict=True):
+        pd.testing.assert_frame_equal(plain(sa.subcatchments), plain(sb.subcatchments),
+                                      check_exact=True)
+        pd.testing.assert_frame_equal(plain(sa.series), plain(sb.series), check_exact=True)
+        assert np.array_equal(sa.rain_per_step_m, sb.rain_per_step_m)
+    pd.testing.assert_frame_equal(plain(a.units), plain(b.units), check_exact=True)
+
+
 def test_serial_run_keeps_layer_order(serial, small_chunk_project):
     n_steps = len(serial.storms[0].rain_per_step_m)
     assert chunk_size_for_budget(small_chunk_project.memory_budget_mb, n_steps, 1) < 40
@@ -79,6 +92,27 @@ def test_local_cluster_two_workers_equals_serial(small_chunk_project, serial):
         future = pool.submit(run, small_chunk_project, workers=2)
         result = future.result(timeout=240)
     assert_identical(serial, result)
+
+
+def test_areal_storms_by_chunks_and_on_dask_workers_equal_one_chunk():
+    # A chunk makes its own columns of a rain grid and of a gauge set (sent to a dask worker
+    # with only the cells and gauges it uses); a column does not depend on the chunk it is
+    # made in, so several chunks, here or on workers, give one chunk's results exactly.
+    pytest.importorskip("dask.distributed")
+    import concurrent.futures
+
+    project = load_project(DEMO)
+    areal = tuple(s for s in project.storms if s["name"] in ("radar_event", "gauged_event"))
+    one = dataclasses.replace(project, storms=areal, memory_budget_mb=5000.0)
+    small = dataclasses.replace(one, memory_budget_mb=5.0)
+    whole = run(one)
+    assert_same_values(whole, run(small))
+    with concurrent.futures.ThreadPoolExecutor(1) as pool:
+        on_workers = pool.submit(run, small, workers=2).result(timeout=300)
+    assert_same_values(whole, on_workers)
+    for storm in on_workers.storms:  # the run's result still has every column, in layer order
+        assert storm.rain_per_step_m.shape[1] == len(whole.subcatchments)
+        assert storm.hyetograph.areal is not None
 
 
 def test_series_sink_streams_without_keeping(small_chunk_project, serial):

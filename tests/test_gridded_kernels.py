@@ -3,9 +3,10 @@
 Reference (the plain computation of :func:`gisrun.storm.areal.weighted_mean`, as the areal rain
 was made before the kernels): gather the used cells, take each step's minimum with numpy,
 subtract it, multiply by the weights with scipy's CSR product, add the minimum back. The
-kernels must give the same float64 values bit for bit (``np.array_equal``), whatever the
-tiling, the block size, the order of the subcatchments and of the cells; and stop on the
-same value with the same message for nodata and negative rain.
+kernels (:mod:`gisrun.storm.mix_kernels`, :mod:`gisrun.storm.gridded_kernels`) must give the
+same float64 values bit for bit (``np.array_equal``), whatever the block size, the rows asked
+for and their order, the order of the cells; and stop on the same value with the same message
+for nodata and negative rain.
 """
 
 from __future__ import annotations
@@ -19,15 +20,9 @@ from scipy import sparse
 from gisrun.errors import StormError
 from gisrun.grid.rain_weights import RainGridWeights
 from gisrun.storm import weighted_mean
-from gisrun.storm.gridded import grid_areal_depth
-from gisrun.storm.gridded_kernels import (
-    BLOCK_NEGATIVE,
-    BLOCK_NODATA,
-    BLOCK_OK,
-    plan_tiles,
-    scan_block,
-    tile_means,
-)
+from gisrun.storm.gridded import grid_areal_depth, grid_rain_mix
+from gisrun.storm.gridded_kernels import BLOCK_NEGATIVE, BLOCK_NODATA, BLOCK_OK, scan_block
+from gisrun.storm.mix_kernels import gather_block
 
 HEIGHT, WIDTH = 30, 40
 
@@ -92,26 +87,36 @@ def scipy_means(values: np.ndarray, weights: RainGridWeights) -> np.ndarray:
     return weighted_mean(values.reshape(values.shape[0], -1)[:, weights.cells], weights.matrix)
 
 
-def kernel_means(values: np.ndarray, weights: RainGridWeights, tile_cells: int) -> np.ndarray:
-    block = values.reshape(values.shape[0], -1)
-    low = np.empty(block.shape[0])
-    assert scan_block(block, weights.cells, low)[0] == BLOCK_OK
-    m = weights.matrix
-    order, tile_start, slot, cols_start, cols = plan_tiles(m.indptr, m.indices, weights.cells,
-                                                           tile_cells)
-    out = np.empty((m.shape[0], block.shape[0]))
-    tile_means(order, tile_start, cols_start, cols, m.indptr, slot, m.data, block, low, out)
-    return out.T
+def kernel_means(values: np.ndarray, weights: RainGridWeights, rows: np.ndarray) -> np.ndarray:
+    """The kernels' means of the subcatchments ``rows``, ``(steps, len(rows))``."""
+    return grid_rain_mix(weights, StackInMemory(values))[0].columns(rows)
 
 
 @pytest.mark.parametrize("seed", [1, 2, 3])
-def test_kernels_give_scipys_product_to_the_bit_whatever_the_tiles(seed):
+def test_kernels_give_scipys_product_to_the_bit_whatever_the_rows(seed):
+    # Rows of 0 to 9 cells: the kernel's own loops for 1 to 4 cells and the general one.
     rng = np.random.default_rng(seed)
     weights = random_weights(rng, 300, 700, empty_row=True, sorted_indices=seed != 2)
     values = random_rain(rng, 23)
     expected = scipy_means(values, weights)
-    for tile_cells in (1, 7, 64, 10_000):  # one subcatchment a tile ... all in one tile
-        assert np.array_equal(kernel_means(values, weights, tile_cells), expected)
+    for rows in (np.arange(300), rng.permutation(300)[:57], np.array([150]), np.arange(0)):
+        assert np.array_equal(kernel_means(values, weights, rows), expected[:, rows])
+
+
+def test_gather_keeps_the_used_cells_by_series_and_finds_numpys_minimum():
+    rng = np.random.default_rng(10)
+    weights = random_weights(rng, 80, 333)
+    block = random_rain(rng, 11).reshape(11, -1)
+    kept = np.full((weights.cells.size, 20), np.nan)
+    low = np.empty(11)
+    assert gather_block(block, weights.cells, 4, kept, low)
+    assert np.array_equal(kept[:, 4:15], block[:, weights.cells].T)
+    assert np.isnan(kept[:, :4]).all() and np.isnan(kept[:, 15:]).all()  # other steps left
+    assert np.array_equal(low, block[:, weights.cells].min(axis=1))
+    for bad in (np.nan, -1e-9, np.inf):  # any bad used value is seen
+        spoiled = block.copy()
+        spoiled[7, weights.cells[200]] = bad
+        assert not gather_block(spoiled, weights.cells, 4, kept, low)
 
 
 def test_areal_depth_by_blocks_gives_scipys_product_to_the_bit():
@@ -124,22 +129,6 @@ def test_areal_depth_by_blocks_gives_scipys_product_to_the_bit():
         got = grid_areal_depth(weights, stack, block_bytes=steps_a_block * step_bytes)
         assert got.flags.f_contiguous and got.shape == (37, 500)
         assert np.array_equal(got, expected)
-
-
-def test_plan_covers_every_subcatchment_once_and_keeps_tiles_within_their_cells():
-    rng = np.random.default_rng(5)
-    weights = random_weights(rng, 400, 600, empty_row=True)
-    m = weights.matrix
-    order, tile_start, slot, cols_start, cols = plan_tiles(m.indptr, m.indices, weights.cells, 25)
-    assert np.array_equal(np.sort(order), np.arange(400))
-    for t in range(tile_start.size - 1):
-        tile_cols = cols[cols_start[t]:cols_start[t + 1]]
-        assert np.unique(tile_cols).size == tile_cols.size
-        rows = order[tile_start[t]:tile_start[t + 1]]
-        assert tile_cols.size <= 25 or rows.size == 1
-        for s in rows:  # each nonzero's slot names its own column in the tile's buffer
-            p = slice(m.indptr[s], m.indptr[s + 1])
-            assert np.array_equal(tile_cols[slot[p]], weights.cells[m.indices[p]])
 
 
 def test_a_uniform_grid_gives_its_value_exactly():
@@ -164,7 +153,8 @@ def test_scan_finds_numpys_minimum_and_accepts_minus_zero():
     low = np.empty(6)
     assert scan_block(block, weights.cells, low) == (BLOCK_OK, -1, -1)
     assert np.array_equal(low, block[:, weights.cells].min(axis=1))
-    assert np.array_equal(kernel_means(values, weights, 40), scipy_means(values, weights))
+    assert np.array_equal(kernel_means(values, weights, np.arange(50)),
+                          scipy_means(values, weights))
 
 
 def numpy_first_bad(values: np.ndarray, weights: RainGridWeights) -> tuple[int, int, int]:
@@ -216,3 +206,47 @@ def test_nodata_and_negative_rain_stop_with_the_messages_of_before():
         f"memory.nc:rain: has no rain value (nodata) at 2026-07-01 step 9 in cell {name} used "
         f"by subcatchment {first_user!r}; fill the gap in the rain grid, or give a grid without "
         "nodata over the subcatchments")
+
+
+def test_fill_gaps_takes_the_mean_of_the_neighbours_that_have_a_value():
+    # By hand: values on a 1/1024 grid, so each neighbour sum is exact and the mean is one
+    # rounding, whatever the order of summation. Cell (5, 7) in step 2: eight neighbours, one
+    # of them nodata too (counted out); cell (0, 0) in step 4: a corner, three neighbours.
+    rng = np.random.default_rng(11)
+    values = rng.integers(0, 50, size=(6, HEIGHT, WIDTH)) / 1024.0
+    cells = np.array([5 * WIDTH + 7, 0, 5 * WIDTH + 8, 1], dtype=np.int64)
+    matrix = sparse.csr_array(np.array([[0.5, 0.5, 0.0, 0.0], [0.0, 0.0, 0.25, 0.75]]))
+    weights = RainGridWeights(("A", "B"), cells, matrix, "memory.nc:rain", WIDTH)
+    gappy = values.copy()
+    gappy[2, 5, 7] = gappy[2, 4, 6] = gappy[4, 0, 0] = np.nan
+    by_hand = gappy.copy()
+    around = [gappy[2, r, c] for r in (4, 5, 6) for c in (6, 7, 8)
+              if (r, c) != (5, 7) and np.isfinite(gappy[2, r, c])]
+    by_hand[2, 5, 7] = sum(around) / 7
+    by_hand[4, 0, 0] = (gappy[4, 0, 1] + gappy[4, 1, 0] + gappy[4, 1, 1]) / 3
+    mix, notes = grid_rain_mix(weights, StackInMemory(gappy), fill_gaps=True)
+    assert np.array_equal(mix.columns(), scipy_means(by_hand, weights))
+    assert notes == ("2 missing value(s) of the rain grid in cells the subcatchments use were "
+                     "filled with the mean of the cells around them (fill_gaps = true), the "
+                     "first at 2026-07-01 step 3 in cell r5_c7",)
+    with pytest.raises(StormError, match="has no rain value"):  # not asked to fill
+        grid_rain_mix(weights, StackInMemory(gappy))
+    assert grid_rain_mix(weights, StackInMemory(values), fill_gaps=True)[1] == ()
+
+
+def test_fill_gaps_leaves_negative_rain_and_lonely_gaps_as_errors():
+    rng = np.random.default_rng(12)
+    weights = random_weights(rng, 40, 100)
+    values = random_rain(rng, 5)
+    cell = int(weights.cells[weights.matrix.indices[0]])
+    r, c = divmod(cell, WIDTH)
+    lonely = values.copy()
+    lonely[3, max(r - 1, 0):r + 2, max(c - 1, 0):c + 2] = np.nan  # the cell and all around it
+    with pytest.raises(StormError, match=r"step 4 in cell r\d+_c\d+ used by subcatchment "
+                                         r"'S\d+', nor any of the cells around it"):
+        grid_rain_mix(weights, StackInMemory(lonely), fill_gaps=True)
+    negative = values.copy()
+    negative[1, r, c] = -0.001
+    negative[2, r, c] = np.nan
+    with pytest.raises(StormError, match="has rain -0.001 m < 0"):
+        grid_rain_mix(weights, StackInMemory(negative), fill_gaps=True)

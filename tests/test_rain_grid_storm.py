@@ -7,6 +7,7 @@ table equal, bit for bit); the grid's weights reach the output's weights layer.
 from __future__ import annotations
 
 import dataclasses
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -18,6 +19,7 @@ from bad_inputs_helpers import make_project, run_cli, write_rain_grid
 
 from gisrun import load_project, read_inputs, run, write_outputs
 from gisrun.config.storms import storm_from_config
+from gisrun.errors import GisrunWarning
 from gisrun.io.rain_grid import RainStack
 from gisrun.storm.gridded import BLOCK_SHARE
 
@@ -105,8 +107,13 @@ def test_the_grid_is_read_in_blocks_of_a_share_of_the_memory_budget(demo, tmp_pa
     whole = build()  # no budget: blocks of 128 MB, the whole stack at once
     assert reads == [(0, 20)]
     step_mb = 8 * lat.size * lon.size / 2**20  # a block of 7 steps, then 7, then 6
-    small = build(memory_budget_mb=7.5 * step_mb / BLOCK_SHARE)
+    with warnings.catch_warnings():  # the kept cells (20 steps at most) fit the budget
+        warnings.simplefilter("error", GisrunWarning)
+        small = build(memory_budget_mb=7.5 * step_mb / BLOCK_SHARE)
     assert reads == [(0, 7), (7, 14), (14, 20)]
+    with pytest.warns(GisrunWarning, match=r"more than 50% of memory_budget_mb .* so the run "
+                                           r"may use more memory than its budget"):
+        build(memory_budget_mb=step_mb)  # 20 steps of the used cells: over half of it
     assert small.areal is not None and whole.areal is not None
     assert np.array_equal(small.areal.depth_m, whole.areal.depth_m)  # block size: no matter
     assert not np.all(whole.areal.depth_m == whole.areal.depth_m[:, :1])  # rain varies
@@ -132,6 +139,30 @@ def test_check_names_the_grid_and_run_writes_its_weights(tmp_path, capsys):
     np.testing.assert_allclose(weights["weight"], 1 / 8, rtol=1e-12)
     west = set(weights.loc[weights["subcatchment_id"] == "S1", "source_id"])
     assert west == {f"r{r}_c{c}" for r in range(4) for c in (0, 1)}
+
+
+def test_fill_gaps_fills_a_nodata_cell_from_the_cells_around_it(tmp_path, capsys):
+    # A uniform grid (10 mm/h) with one cell without a value in one step: its eight neighbours
+    # all hold 10 mm/h, so the filled value is exactly 10 mm/h (by hand) and every output equals
+    # the grid without the gap; the run says what it filled. Without fill_gaps: an error.
+    results = {}
+    for name, nodata, fill in (("whole", None, ""), ("gap", (1, 2, 2), "fill_gaps = true\n")):
+        folder = tmp_path / name
+        make_project(folder)
+        write_rain_grid(folder / "rain.nc", nodata_at=nodata)
+        with open(folder / "gisrun.toml", "a") as handle:
+            handle.write('\n[[storms]]\nname = "radar"\nkind = "rain_grid"\npath = "rain.nc"\n'
+                         + fill)
+        code, out, err = run_cli(capsys, ["run", str(folder), "--no-extras", "--quiet"])
+        assert code == 0, err
+        results[name] = _layers(folder / "out" / "result.gpkg")
+    for layer, frame in results["whole"].items():
+        if layer != "run_info":
+            pd.testing.assert_frame_equal(results["gap"][layer], frame, check_exact=True)
+    warnings = results["gap"]["run_info"].to_string()
+    assert ("1 missing value(s) of the rain grid in cells the subcatchments use were filled "
+            "with the mean of the cells around them (fill_gaps = true), the first at time "
+            "2026-07-01T00:10:00 in cell r2_c2") in warnings
 
 
 def test_check_and_run_make_runoff_bands_for_a_rain_grid_storm(tmp_path, capsys):

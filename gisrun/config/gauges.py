@@ -35,7 +35,7 @@ import shapely
 from ..errors import GisrunWarning, StormError
 from ..io.gauges import GaugeRecords, read_gauge_points, read_gauge_records
 from ..options import GAUGE_WEIGHTINGS, RAIN_TIME_MARKS, RAIN_VALUES
-from ..storm import ArealRain, weighted_mean
+from ..storm import ArealRain, gauge_mix
 from ..storm.gauges import fill_gaps, gauge_weights
 from ..units import UnitSystem
 from .reader import TableReader
@@ -83,7 +83,7 @@ def build_gauges(table: TableReader, subcatchments: gpd.GeoDataFrame,
     sub_ids = subcatchments["subcatchment_id"].astype(str).tolist()
     how = ("Thiessen polygons" if weighting == "thiessen"
            else f"inverse distance from each centroid, power {power:g}")
-    return ArealRain(weighted_mean(depth, weights), records.step_s, sub_ids,
+    return ArealRain(gauge_mix(depth, weights), records.step_s, sub_ids,
                      f"{len(ids)} rain gauges ({table.data['records']}), {how}",
                      _weight_table(weights, ids, sub_ids), start=records.start,
                      points=_point_table(points.set_index("gauge_id").loc[list(ids)],

@@ -15,11 +15,14 @@ folder of GeoTIFFs) and what the stack does not say itself::
     # start = "2026-07-01T00:00"    # GeoTIFF without band times: the first step's start
     # step_min = 5                  # the step (checked against the stack's own times)
     # time_marks = "end"            # a time marks the end of its step (or "start")
+    # fill_gaps = false             # true: a nodata cell over a subcatchment takes the mean of
+    #                               # the cells around it in that step
 
 :func:`build_rain_grid` reads the stack's description (:func:`gisrun.io.rain_grid.open_rain_grid`),
 weighs its cells over the subcatchments
 (:func:`gisrun.grid.rain_weights.rain_grid_weights`) and makes the rain per subcatchment and
-step (:func:`gisrun.storm.gridded.grid_areal_depth`).
+step (:func:`gisrun.storm.gridded.grid_rain_mix`: the used cells' depths, each
+subcatchment's means made when its chunk runs).
 
 Rainfall feeds planning-level runoff estimates only; defer to local codes, agency methods and a
 licensed engineer.
@@ -27,13 +30,16 @@ licensed engineer.
 
 from __future__ import annotations
 
+import warnings
+
 import geopandas as gpd
 
+from ..errors import GisrunWarning
 from ..grid.rain_weights import rain_grid_weights
 from ..io.rain_grid import RainGridSettings, RainStack, open_rain_grid
 from ..options import RAIN_GRID_FORMATS, RAIN_TIME_MARKS, RAIN_VALUES, Choices
 from ..storm import ArealRain
-from ..storm.gridded import block_bytes_for_budget, grid_areal_depth
+from ..storm.gridded import KEPT_SHARE, block_bytes_for_budget, grid_rain_mix
 from ..units import UnitSystem
 from .reader import TableReader
 
@@ -41,7 +47,7 @@ __all__ = ["RAIN_GRID_KEYS", "build_rain_grid"]
 
 #: Keys of a ``kind = "rain_grid"`` table besides ``name`` and ``kind``.
 RAIN_GRID_KEYS = ("path", "format", "variable", "time_pattern", "rain_is", "unit", "crs",
-                  "start", "step_min", "time_marks")
+                  "start", "step_min", "time_marks", "fill_gaps")
 
 
 def build_rain_grid(table: TableReader, subcatchments: gpd.GeoDataFrame,
@@ -70,14 +76,23 @@ def build_rain_grid(table: TableReader, subcatchments: gpd.GeoDataFrame,
     stack = open_rain_grid(rain_grid_settings(table))
     ids = subcatchments["subcatchment_id"].to_numpy(dtype=object)
     weights = rain_grid_weights(subcatchments.geometry, ids, stack)
-    depth = grid_areal_depth(weights, stack,
-                             block_bytes=block_bytes_for_budget(memory_budget_mb))
+    mix, notes = grid_rain_mix(weights, stack, block_bytes=block_bytes_for_budget(memory_budget_mb),
+                               fill_gaps=table.flag("fill_gaps", default=False))
+    for note in notes:
+        warnings.warn(f"{table.at}: {note}", GisrunWarning, stacklevel=3)
+    kept_mb = mix.values_m.nbytes / 2**20
+    if memory_budget_mb is not None and kept_mb > KEPT_SHARE * memory_budget_mb:
+        warnings.warn(f"{table.at}: the rain grid's {mix.values_m.shape[0]:,} cells over the "
+                      f"subcatchments take {kept_mb:,.0f} MB for {mix.steps:,} steps, more than "
+                      f"{KEPT_SHARE:.0%} of memory_budget_mb ({memory_budget_mb:g} MB), so the run "
+                      "may use more memory than its budget; raise memory_budget_mb, or give a "
+                      "shorter event or a coarser step", GisrunWarning, stacklevel=3)
     t = stack.transform
     source = (f"rain grid {stack.where} ({stack.width} x {stack.height} cells of "
               f"{abs(t.a):g} x {abs(t.e):g} {_axis_unit(stack)}, {stack.crs.name}; "
               f"{stack.steps} steps of {stack.step_s / 60:g} min from {stack.start}; "
               "exact area weights)")
-    return ArealRain(depth, stack.step_s, weights.subcatchment_ids, source,
+    return ArealRain(mix, stack.step_s, weights.subcatchment_ids, source,
                      weights=weights.table(), start=stack.start)
 
 

@@ -27,6 +27,7 @@ from .hyetograph import (
     reduced_storm,
 )
 from .idf import IdfFormula, IdfTable
+from .mix import SourceMix, gauge_mix, identity_mix, scaling_mix
 from .resampling import peak_window_s, resampling_note
 
 __all__ = [
@@ -38,6 +39,10 @@ __all__ = [
     "reduced_storm",
     "areal_storm",
     "weighted_mean",
+    "SourceMix",
+    "gauge_mix",
+    "identity_mix",
+    "scaling_mix",
     "MAX_STEPS",
     "check_step_count",
     "KINDS",

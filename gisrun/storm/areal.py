@@ -39,7 +39,8 @@ import pandas as pd
 from numpy.typing import ArrayLike, NDArray
 
 from ..errors import StormError
-from .timing import FloatArray, check_positive, frozen_array, step_edges
+from .mix import COLUMN_BLOCK, SourceMix, identity_mix
+from .timing import FloatArray, check_positive, step_edges
 
 __all__ = ["ArealRain", "WEIGHT_COLUMNS", "POINT_COLUMNS", "weighted_mean", "interpolate_columns"]
 
@@ -56,8 +57,10 @@ class ArealRain:
 
     Parameters
     ----------
-    depth_m : array_like, shape (steps, subcatchments)
-        Rain depth in metres in each step for each subcatchment, finite and >= 0.
+    mix : SourceMix or array_like
+        Each subcatchment's rain: a :class:`~gisrun.storm.mix.SourceMix` (weighted sources,
+        whose columns are made when asked for), or the depth matrix in metres, shape
+        ``(steps, subcatchments)``, finite and >= 0 (held as :func:`identity_mix`).
     step_s : float
         The step, s (> 0); step ``k`` covers ``[k step_s, (k + 1) step_s)`` from the start.
     subcatchment_ids : sequence of str
@@ -79,7 +82,7 @@ class ArealRain:
         If the matrix, step or ids do not hold the above.
     """
 
-    depth_m: FloatArray
+    mix: SourceMix
     step_s: float
     subcatchment_ids: tuple[str, ...]
     source: str
@@ -92,16 +95,12 @@ class ArealRain:
     def __post_init__(self) -> None:
         where = f"areal rain ({self.source})"
         check_positive(self.step_s, "step", where)
-        depth = frozen_array(self.depth_m)
         ids = tuple(str(i) for i in self.subcatchment_ids)
-        if depth.ndim != 2 or depth.shape[0] == 0 or depth.shape[1] != len(ids):
-            raise StormError(where, f"has a depth matrix of shape {depth.shape} for "
+        mix = self.mix if isinstance(self.mix, SourceMix) else _checked_matrix(self.mix, ids,
+                                                                                 where)
+        if mix.steps == 0 or mix.size != len(ids):
+            raise StormError(where, f"has rain of {mix.steps} steps for {mix.size} columns and "
                              f"{len(ids)} subcatchments", "give shape (steps, subcatchments)")
-        bad = ~np.isfinite(depth) | (depth < 0)
-        if np.any(bad):
-            k, j = (int(v) for v in np.argwhere(bad)[0])
-            raise StormError(where, f"step {k + 1} of subcatchment {ids[j]!r} has rain "
-                             f"{depth[k, j]!r}", "give depths >= 0")
         if len(set(ids)) != len(ids):
             raise StormError(where, "names a subcatchment twice", "give each subcatchment once")
         for name, table, columns in (("weights", self.weights, WEIGHT_COLUMNS),
@@ -110,7 +109,7 @@ class ArealRain:
             if missing:
                 raise StormError(where, f"{name} table lacks {missing}",
                                  f"give the columns {list(columns)}")
-        object.__setattr__(self, "depth_m", depth)
+        object.__setattr__(self, "mix", mix)
         object.__setattr__(self, "step_s", float(self.step_s))
         object.__setattr__(self, "subcatchment_ids", ids)
         object.__setattr__(self, "weights", self.weights[list(WEIGHT_COLUMNS)].copy())
@@ -119,7 +118,16 @@ class ArealRain:
     @property
     def steps(self) -> int:
         """Number of steps."""
-        return int(self.depth_m.shape[0])
+        return self.mix.steps
+
+    @property
+    def depth_m(self) -> FloatArray:
+        """Rain depth per step and subcatchment, m, ``(steps, subcatchments)``, made whole.
+
+        Every column at once (8 bytes per step and subcatchment): for a look in a notebook or
+        a test; a run makes a chunk's columns at a time (:meth:`resample` with ``columns``).
+        """
+        return self.mix.columns()
 
     @property
     def duration_s(self) -> float:
@@ -134,7 +142,11 @@ class ArealRain:
     @property
     def total_depth_m(self) -> FloatArray:
         """Storm depth of each subcatchment, m."""
-        return self.depth_m.sum(axis=0)
+        return self.mix.column_sums()
+
+    def resample_steps(self, dt_s: float) -> int:
+        """Number of steps :meth:`resample` gives on the step ``dt_s``."""
+        return len(step_edges(self.duration_s, dt_s, f"areal rain ({self.source})", pad=True)) - 1
 
     def resample(self, dt_s: float, columns: NDArray[np.intp] | None = None) -> FloatArray:
         """Rain depth per run step of ``dt_s`` seconds, shape ``(steps, len(columns))``.
@@ -150,14 +162,31 @@ class ArealRain:
         columns : ndarray of int, optional
             Columns to resample, in the order wanted (default all).
         """
-        depth = self.depth_m if columns is None else self.depth_m[:, columns]
         edges = step_edges(self.duration_s, dt_s, f"areal rain ({self.source})", pad=True)
-        cum = np.concatenate([np.zeros((1, depth.shape[1])), np.cumsum(depth, axis=0)])
-        return np.maximum(np.diff(interpolate_columns(edges, self.time_s, cum), axis=0), 0.0)
+        rows = np.arange(self.mix.size) if columns is None else np.asarray(columns)
+        out = np.empty((len(edges) - 1, rows.size), dtype=np.float64, order="F")
+        for start in range(0, rows.size, COLUMN_BLOCK):  # bounds the temporaries
+            block = slice(start, min(start + COLUMN_BLOCK, rows.size))
+            depth = self.mix.columns(rows[block])
+            cum = np.concatenate([np.zeros((1, depth.shape[1])), np.cumsum(depth, axis=0)])
+            out[:, block] = np.maximum(np.diff(interpolate_columns(edges, self.time_s, cum),
+                                               axis=0), 0.0)
+        return out
 
     def scaled(self, factor: float) -> ArealRain:
         """The same rain times ``factor`` (>= 0) in every step and subcatchment."""
-        return dataclasses.replace(self, depth_m=self.depth_m * factor)
+        return dataclasses.replace(self, mix=self.mix.scaled(factor))
+
+    def subset(self, columns: NDArray[np.intp]) -> ArealRain:
+        """The rain of the subcatchments ``columns`` only (a run's chunk), to the bit.
+
+        Holds only the sources they use; the weights and points tables (outputs of the whole
+        run) are left out.
+        """
+        columns = np.asarray(columns, dtype=np.intp)
+        return ArealRain(self.mix.subset(columns), self.step_s,
+                         tuple(self.subcatchment_ids[i] for i in columns), self.source,
+                         start=self.start)
 
     def positions(self, ids: ArrayLike, where: str) -> NDArray[np.intp]:
         """Column of each of ``ids``.
@@ -215,3 +244,17 @@ def weighted_mean(values: FloatArray, weights: Any) -> FloatArray:
     spread = weights @ (values - low).T  # (targets, steps); works for dense and sparse
     return low + np.asarray(spread).T
 
+
+
+def _checked_matrix(depth_m: ArrayLike, ids: tuple[str, ...], where: str) -> SourceMix:
+    """A depth matrix ``(steps, subcatchments)``, checked, as :func:`identity_mix`."""
+    depth = np.asarray(depth_m, dtype=np.float64)
+    if depth.ndim != 2 or depth.shape[0] == 0 or depth.shape[1] != len(ids):
+        raise StormError(where, f"has a depth matrix of shape {depth.shape} for "
+                         f"{len(ids)} subcatchments", "give shape (steps, subcatchments)")
+    bad = ~np.isfinite(depth) | (depth < 0)
+    if np.any(bad):
+        k, j = (int(v) for v in np.argwhere(bad)[0])
+        raise StormError(where, f"step {k + 1} of subcatchment {ids[j]!r} has rain "
+                         f"{depth[k, j]!r}", "give depths >= 0")
+    return identity_mix(depth)

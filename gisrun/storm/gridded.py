@@ -2,15 +2,17 @@
 
 A rain grid reaches this module as a :class:`RainGrid`: its georeferencing, its steps and a
 ``read_steps`` method, the only door to the file (``gisrun.io.rain_grid.RainStack`` is the
-file-backed one; tests pass arrays). :func:`grid_areal_depth` reads the stack in blocks of
-steps, so memory holds one block, and gives each subcatchment the area-weighted mean of the
-cells over its polygon with the weights of :func:`gisrun.grid.rain_weights.rain_grid_weights`.
+file-backed one; tests pass arrays). :func:`grid_rain_mix` reads the stack once, in blocks of
+steps, checks it and keeps the depths of the cells the subcatchments use, each cell's series
+together; each subcatchment's area-weighted mean of the cells over its polygon (the weights
+of :func:`gisrun.grid.rain_weights.rain_grid_weights`) is then made when a chunk of
+subcatchments runs (:class:`gisrun.storm.mix.SourceMix`), never for all of them at once.
 
-The mean of a block is :func:`gisrun.storm.areal.weighted_mean`'s, ``min + W (x - min)`` with
-the smallest value of the cells used in each step: a grid whose cells all hold the same depth
+The mean is :func:`gisrun.storm.areal.weighted_mean`'s, ``min + W (x - min)`` with the
+smallest value of the cells used in each step: a grid whose cells all hold the same depth
 gives exactly that depth to every subcatchment, whatever the rounding of the weights. The
-compiled kernels of :mod:`gisrun.storm.gridded_kernels` check the block and make the means
-straight into the result, to the bit what scipy's sparse product of the shifted block gives.
+compiled kernels (:mod:`gisrun.storm.mix_kernels`) give, to the bit, what scipy's sparse
+product of the shifted block gives.
 
 Rainfall feeds planning-level runoff estimates only; defer to local codes, agency methods and a
 licensed engineer.
@@ -22,21 +24,30 @@ from typing import Protocol
 
 import numpy as np
 from numpy.typing import NDArray
+from scipy import ndimage
 
 from ..errors import StormError
 from ..grid.rain_weights import RainGridGeometry, RainGridWeights
-from .gridded_kernels import BLOCK_NODATA, BLOCK_OK, TILE_BYTES, plan_tiles, scan_block, tile_means
+from .gridded_kernels import BLOCK_NODATA, scan_block
+from .mix import SourceMix
+from .mix_kernels import gather_block
 
-__all__ = ["RainGrid", "grid_areal_depth", "steps_per_block", "block_bytes_for_budget",
-           "BLOCK_BYTES", "BLOCK_SHARE"]
+__all__ = ["RainGrid", "grid_rain_mix", "grid_areal_depth", "fill_block_gaps", "steps_per_block",
+           "block_bytes_for_budget", "BLOCK_BYTES", "BLOCK_SHARE", "KEPT_SHARE"]
 
 #: Bytes of one block of grid steps held in memory while the areal rain is made, when no
 #: memory budget is given (128 MB).
 BLOCK_BYTES = 128 * 2**20
 #: Share of the run's memory budget (``[project] memory_budget_mb``) given to one block of grid
-#: steps: a tenth (150 MB of the default 1500 MB), leaving the rest to the result (subcatchments
-#: x steps, 8 bytes each, which no block size changes) and to what the run holds besides.
+#: steps: a tenth (150 MB of the default 1500 MB), leaving the rest to the kept cells (used
+#: cells x steps, 8 bytes each, which no block size changes) and to what the run holds besides.
 BLOCK_SHARE = 0.1
+#: Share of the run's memory budget the kept cells (used cells x steps, 8 bytes each) may take
+#: before the run says it may overrun its budget (common practice: half, leaving the rest to
+#: the chunks).
+KEPT_SHARE = 0.5
+#: The eight cells around a cell (:func:`fill_block_gaps`).
+_NEIGHBOURS = np.array([[1.0, 1.0, 1.0], [1.0, 0.0, 1.0], [1.0, 1.0, 1.0]])
 
 
 class RainGrid(RainGridGeometry, Protocol):
@@ -64,59 +75,127 @@ def block_bytes_for_budget(memory_budget_mb: float | None) -> int:
     return int(BLOCK_SHARE * memory_budget_mb * 2**20)
 
 
-def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
-                     block_bytes: int = BLOCK_BYTES) -> NDArray[np.float64]:
-    """Rain depth per step and subcatchment: the weighted mean of the cells, in m.
+def grid_rain_mix(weights: RainGridWeights, grid: RainGrid, *, block_bytes: int = BLOCK_BYTES,
+                  fill_gaps: bool = False) -> tuple[SourceMix, tuple[str, ...]]:
+    """The grid's rain as a :class:`~gisrun.storm.mix.SourceMix` over its used cells.
+
+    Reads the stack ``block_bytes`` at a time and, in one pass over each block
+    (:func:`gisrun.storm.mix_kernels.gather_block`), checks every used cell of every step,
+    takes each step's smallest used value and keeps the used cells' depths, a cell's series
+    together (used cells x steps, 8 bytes each: at most the stack's own size as float64).
+    Each subcatchment's means are then made when asked for (:meth:`SourceMix.columns`), a
+    chunk of subcatchments at a time in a run.
 
     Parameters
     ----------
     weights : RainGridWeights
         The cells' weights per subcatchment on ``grid``.
     grid : RainGrid
-        The rain stack, read ``block_bytes`` at a time.
+        The rain stack.
     block_bytes : int
-        Memory for one block of grid steps (the result and a tile buffer of
-        :data:`gisrun.storm.gridded_kernels.TILE_BYTES` come on top).
+        Memory for one block of grid steps while reading.
+    fill_gaps : bool
+        Fill a used cell without a value (nodata) in a step with the mean of the cells around
+        it that have one in that step (:func:`fill_block_gaps`); otherwise it is an error.
 
     Returns
     -------
-    ndarray, shape (steps, subcatchments)
-        In Fortran order: each subcatchment's steps lie together (a chunk of subcatchments
-        takes its columns cheaply, and each block's means are written in place).
+    (SourceMix, notes)
+        The mix, and what was filled, in words (empty when nothing was).
+
+    Raises
+    ------
+    StormError
+        If a cell a subcatchment uses is negative in some step, or nodata (without
+        ``fill_gaps``, or with none of the cells around it holding a value).
+    """
+    k = steps_per_block(grid, block_bytes)
+    filled: list[tuple[int, str]] = []
+    kept = np.empty((weights.cells.size, grid.steps), dtype=np.float64)
+    low = np.zeros(grid.steps, dtype=np.float64)
+    for first in range(0, grid.steps, k):
+        stop = min(first + k, grid.steps)
+        block = np.ascontiguousarray(grid.read_steps(first, stop).reshape(stop - first, -1),
+                                     dtype=np.float64)
+        if gather_block(block, weights.cells, first, kept, low[first:stop]):
+            continue
+        if fill_gaps:
+            filled.append(fill_block_gaps(block, weights, grid, first))
+            if gather_block(block, weights.cells, first, kept, low[first:stop]):
+                continue
+        _raise_first_bad(block, weights, grid, first)
+    low[np.isinf(low)] = 0.0  # no cell used: nothing subtracted
+    count = sum(n for n, _ in filled)
+    notes = (f"{count} missing value(s) of the rain grid in cells the subcatchments use were "
+             f"filled with the mean of the cells around them (fill_gaps = true), the first at "
+             f"{filled[0][1]}",) if count else ()
+    return SourceMix(kept, weights.matrix, low), notes
+
+
+def fill_block_gaps(block: NDArray[np.float64], weights: RainGridWeights, grid: RainGrid,
+                    first: int) -> tuple[int, str]:
+    """Fill each used cell without a value (NaN) with the mean of its neighbours', in place.
+
+    The neighbours are the (up to) eight cells around it on the grid that hold a value
+    (finite, >= 0) in the same step, each counting once (common practice for isolated gaps
+    in a radar product; filled values are not used to fill others).
+
+    Returns
+    -------
+    (count, where)
+        How many values were filled, and the first's time and cell, in words.
+
+    Raises
+    ------
+    StormError
+        Naming the first gap (by step, then cell) none of whose neighbours has a value.
+    """
+    gap = np.isnan(block[:, weights.cells])
+    count, where = 0, ""
+    for j in np.flatnonzero(gap.any(axis=1)):
+        plane = block[j].reshape(grid.height, grid.width)
+        ok = np.isfinite(plane) & (plane >= 0)
+        total = ndimage.convolve(np.where(ok, plane, 0.0), _NEIGHBOURS, mode="constant")
+        around = ndimage.convolve(ok.astype(np.float64), _NEIGHBOURS, mode="constant")
+        cols = np.flatnonzero(gap[j])
+        cells = weights.cells[cols]
+        lonely = np.flatnonzero(around.flat[cells] == 0)
+        if lonely.size:
+            col = int(cols[lonely[0]])
+            sub = weights.subcatchment_ids[_first_user(weights, col)]
+            raise StormError(grid.where, f"has no rain value (nodata) at "
+                             f"{grid.step_label(first + j)} in cell {_cell_name(weights, col)} "
+                             f"used by subcatchment {sub!r}, nor any of the cells around it "
+                             "(fill_gaps fills a gap from its neighbours)",
+                             "fill the gap in the rain grid, or give a grid with values over "
+                             "the subcatchments")
+        block[j, cells] = total.flat[cells] / around.flat[cells]
+        where = where or f"{grid.step_label(first + j)} in cell {_cell_name(weights, int(cols[0]))}"
+        count += cells.size
+    return count, where
+
+
+def grid_areal_depth(weights: RainGridWeights, grid: RainGrid, *,
+                     block_bytes: int = BLOCK_BYTES) -> NDArray[np.float64]:
+    """Rain depth per step and subcatchment, every one at once, in m.
+
+    :func:`grid_rain_mix`'s columns, made whole: ``(steps, subcatchments)``, Fortran order.
+    A run does not make it (each chunk makes its own columns); it is here for a notebook and
+    for the tests, which check it to the bit against scipy's sparse product.
 
     Raises
     ------
     StormError
         If a cell a subcatchment uses is nodata or negative in some step.
     """
-    k = steps_per_block(grid, block_bytes)
-    matrix = weights.matrix
-    order, tile_start, slot, cols_start, cols = plan_tiles(
-        matrix.indptr, matrix.indices, weights.cells,
-        max(1, TILE_BYTES // (8 * min(k, max(grid.steps, 1)))))
-    shape = (grid.steps, len(weights.subcatchment_ids))
-    out = np.empty(shape, dtype=np.float64, order="F") if grid.steps == 0 else None
-    for first in range(0, grid.steps, k):
-        stop = min(first + k, grid.steps)
-        block, low = _checked_block(weights, grid, first, stop)
-        if out is None:  # made after the first read, whose own temporaries are then gone
-            out = np.empty(shape, dtype=np.float64, order="F")
-        tile_means(order, tile_start, cols_start, cols, matrix.indptr, slot, matrix.data, block,
-                   low, out.T[:, first:stop])
-    return out
+    return grid_rain_mix(weights, grid, block_bytes=block_bytes)[0].columns()
 
 
-def _checked_block(weights: RainGridWeights, grid: RainGrid, first: int, stop: int
-                   ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """Steps ``first:stop`` as ``(steps, cells of the grid)`` and their smallest used values."""
-    block = np.ascontiguousarray(grid.read_steps(first, stop).reshape(stop - first, -1),
-                                 dtype=np.float64)
-    low = np.empty(stop - first, dtype=np.float64)
-    status, step, col = scan_block(block, weights.cells, low)
-    if status != BLOCK_OK:
-        _raise_bad_value(status, block[step, weights.cells[col]], weights, grid, first + step,
-                         col)
-    return block, low
+def _raise_first_bad(block: NDArray[np.float64], weights: RainGridWeights, grid: RainGrid,
+                     first: int) -> None:
+    """Name the first bad used value of a block (by step, then by column), as a StormError."""
+    status, step, col = scan_block(block, weights.cells, np.empty(block.shape[0]))
+    _raise_bad_value(status, block[step, weights.cells[col]], weights, grid, first + step, col)
 
 
 def _raise_bad_value(status: int, value: float, weights: RainGridWeights, grid: RainGrid,

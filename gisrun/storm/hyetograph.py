@@ -25,8 +25,9 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ..errors import StormError
-from .areal import ArealRain, weighted_mean
+from .areal import ArealRain
 from .areal_reduction import AppliedReduction
+from .mix import scaling_mix
 from .timing import REL_TOL, FloatArray, check_positive, frozen_array, step_edges
 
 __all__ = ["Hyetograph", "areal_storm", "reduced_storm", "MAX_STEPS", "check_step_count",
@@ -215,7 +216,7 @@ def areal_storm(name: str, rain: ArealRain, area_m2: ArrayLike) -> Hyetograph:
     if area.shape != (len(rain.subcatchment_ids),) or not np.all(area >= 0) or area.sum() <= 0:
         raise StormError(f"storm {name!r}", "subcatchment areas do not match its areal rain",
                          "give one ground area >= 0 per subcatchment of the rain")
-    basin = weighted_mean(rain.depth_m, (area / area.sum())[None, :])[:, 0]
+    basin = rain.mix.mean_over(area / area.sum())
     return Hyetograph(name, rain.time_s, basin, areal=rain)
 
 
@@ -239,7 +240,7 @@ def reduced_storm(h: Hyetograph, applied: AppliedReduction, step_s: float,
         point, step = h.depth_m, float(steps[0])
     else:  # a shorter last step: the storm as the run will see it
         point, step = h.resample(step_s), step_s
-    rain = ArealRain(point[:, None] * factor[None, :], step, applied.subcatchment_ids,
+    rain = ArealRain(scaling_mix(point, factor), step, applied.subcatchment_ids,
                      f"point design depths times each subcatchment's areal reduction factor "
                      f"({applied.relation})")
     return dataclasses.replace(areal_storm(h.name, rain, area_m2), reduction=applied)

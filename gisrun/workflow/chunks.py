@@ -34,6 +34,7 @@ from ..uncertainty import ChunkParts
 from .bands import chunk_uncertainty
 from .cells import slim_unit_results
 from .disconnection import add_connected_comparison, runon_target
+from .rain import chunk_rains
 from .steps import (
     add_composite_comparison,
     lumped_parameter_table,
@@ -183,10 +184,12 @@ class ChunkTask:
     subcatchments: gpd.GeoDataFrame
     soil: ClassGrid | ClassPolygons
     cover: ClassGrid | ClassPolygons | None
+    #: The storms as this chunk needs them (:func:`gisrun.workflow.rain.chunk_storms`: areal
+    #: rain of this chunk's subcatchments only).
     storms: tuple[Hyetograph, ...]
-    #: Each storm's rain per run step (resampled once), m: ``(steps,)``, or (areal rain) this
-    #: chunk's columns ``(steps, subcatchments)``.
-    rains: tuple[NDArray[np.float64], ...]
+    #: Each plain storm's rain per run step (resampled once for the run), m, ``(steps,)``; None
+    #: for areal rain, whose columns the chunk makes when it runs.
+    rains: tuple[NDArray[np.float64] | None, ...]
     overrides: pd.DataFrame | None = None
     keep_loss: bool = True
     #: Also give the unit-level results the cell rasters are made from.
@@ -242,12 +245,14 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
             units, coverage, notes_overlay = overlay_inputs(project, inputs, check_codes=False)
         params, sources, notes_params = prepare_parameters(project, inputs, units)
         sub_ids = task.subcatchments["subcatchment_id"].to_numpy(dtype=object)
-        results = _run_storms(project, inputs, params, task.rains, sub_ids)
+        rains = chunk_rains(task.storms, task.rains, project.time_step_s, sub_ids)
+        results = _run_storms(project, inputs, params, rains, sub_ids)
         if project.compare_composite and project.combine == "units":
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
         results = add_connected_comparison(project, inputs, units, results, sub_ids)
         lumped = lumped_parameter_table(project, inputs, params, results, sub_ids)
-        cell_units = _cell_units(task, inputs, units, results, sub_ids) if task.cells else []
+        cell_units = (_cell_units(task, inputs, units, results, sub_ids, rains) if task.cells
+                      else [])
         bands = chunk_uncertainty(project, inputs, params, results, sub_ids)
     notes = [str(n) for n in (*notes_overlay, *notes_params)]
     notes += [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
@@ -286,7 +291,8 @@ def _run_storms(project: Project, inputs: Inputs, params: pd.DataFrame,
 
 
 def _cell_units(task: ChunkTask, inputs: Inputs, units: pd.DataFrame,
-                results: list[StormResult], sub_ids: NDArray[np.object_]) -> list[pd.DataFrame]:
+                results: list[StormResult], sub_ids: NDArray[np.object_],
+                rains: Sequence[NDArray[np.float64]]) -> list[pd.DataFrame]:
     """Unit-level results for the cell rasters.
 
     The run's own, or, when the run combines parameters per subcatchment, the units
@@ -297,7 +303,7 @@ def _cell_units(task: ChunkTask, inputs: Inputs, units: pd.DataFrame,
     by_unit = dataclasses.replace(task.project, combine="units")
     params, _, _ = prepare_parameters(by_unit, inputs, units)
     return [slim_unit_results(r.units)
-            for r in _run_storms(by_unit, inputs, params, task.rains, sub_ids)]
+            for r in _run_storms(by_unit, inputs, params, rains, sub_ids)]
 
 
 def split_overlay(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],

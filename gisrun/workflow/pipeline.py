@@ -44,7 +44,7 @@ from .chunks import (
 )
 from .disconnection import runon_target
 from .inputs import check_inputs_codes, read_inputs
-from .rain import chunk_rain, run_rains
+from .rain import chunk_storms, run_rains, run_steps, whole_rains
 from .steps import compact_sources, overlay_inputs
 
 __all__ = ["KEEP_STEP_ARRAYS_BELOW", "Progress", "SeriesSink", "UnitSink", "run"]
@@ -156,8 +156,8 @@ def run(
             pd.concat([o.cell_units[k] for o in outputs], ignore_index=True)
             for k in range(len(inputs.storms))])
         notes += list(cell_rasters.notes)
-    result = _combine(project, inputs, rains, outputs, started, notes, checksums=checksums,
-                      cells=cell_rasters)
+    result = _combine(project, inputs, whole_rains(project, inputs, rains), outputs, started,
+                      notes, checksums=checksums, cells=cell_rasters)
     if cache_key is not None and cached is None:
         overlay_notes = list(dict.fromkeys(n for out in outputs for n in out.overlay_notes))
         save_overlay(project.overlay_cache, cache_key, result.units, result.coverage,
@@ -195,14 +195,15 @@ def _cells_possible(inputs: Inputs, cells: bool) -> tuple[bool, list[str]]:
                    "results are complete)"]
 
 
-def _tasks(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64], ...],
+def _tasks(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64] | None, ...],
            cached: Overlay | None, *, keep_loss: bool, cells: bool) -> list[ChunkTask]:
-    size = _chunk_size(project, inputs, max(len(r) for r in rains), cached)
+    size = _chunk_size(project, inputs, run_steps(inputs.storms, project.time_step_s), cached)
     chunks = plan_chunks(inputs.subcatchments.geometry, size)
     overlays = (split_overlay(cached, inputs.subcatchments, chunks) if cached is not None
                 else [None] * len(chunks))
+    ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
     return [ChunkTask(i, project, inputs.subcatchments.iloc[rows], inputs.soil, inputs.cover,
-                      inputs.storms, tuple(chunk_rain(r, rows) for r in rains),
+                      chunk_storms(inputs.storms, ids[rows]), rains,
                       inputs.overrides, keep_loss=keep_loss, cells=cells, overlay=overlay,
                       impervious=inputs.impervious)
             for i, (rows, overlay) in enumerate(zip(chunks, overlays, strict=True))]

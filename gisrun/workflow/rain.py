@@ -1,14 +1,19 @@
 """Rain on the run's step for every unit: one series for all, or areal rain per subcatchment.
 
-A storm is resampled once for the whole run (:func:`run_rain`): a plain hyetograph gives one
-series ``(steps,)``, a storm carrying :class:`gisrun.storm.ArealRain` gives a matrix ``(steps,
-subcatchments)`` in the subcatchment layer's order. A chunk takes its own columns
-(:func:`chunk_rain`), and a storm run gives every unit its subcatchment's column
-(:func:`unit_rain`), times the per-subcatchment rain factor if the project has one. The engine
-takes either shape (``run_losses``: ``(steps,)`` or ``(steps, units)``).
+A plain hyetograph is resampled once for the whole run (:func:`run_rains`): one series
+``(steps,)`` that every chunk shares. A storm carrying :class:`gisrun.storm.ArealRain` is not
+made whole: each chunk carries the rain of its own subcatchments (:func:`chunk_storms`, the
+sources they use and their weights) and makes its columns ``(steps, subcatchments)`` when it
+runs (:func:`chunk_rains`, :func:`run_rain`), so memory holds a chunk's columns at a time. A
+storm run gives every unit its subcatchment's column (:func:`unit_rain`), times the
+per-subcatchment rain factor if the project has one. The engine takes either shape
+(``run_losses``: ``(steps,)`` or ``(steps, units)``).
 """
 
 from __future__ import annotations
+
+import dataclasses
+from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
@@ -18,7 +23,8 @@ from ..model import Inputs
 from ..project import Project
 from ..storm import Hyetograph, resampling_note
 
-__all__ = ["run_rain", "run_rains", "chunk_rain", "unit_rain"]
+__all__ = ["run_rain", "run_rains", "run_steps", "chunk_storms", "chunk_rains", "whole_rains",
+           "unit_rain"]
 
 FloatArray = NDArray[np.float64]
 
@@ -37,24 +43,63 @@ def run_rain(h: Hyetograph, dt_s: float, sub_ids: ArrayLike) -> FloatArray:
     return h.areal.resample(dt_s, columns)
 
 
-def run_rains(project: Project, inputs: Inputs) -> tuple[tuple[FloatArray, ...], list[str]]:
-    """Every storm's rain on the run's step (:func:`run_rain`), and what resampling did to them.
+def run_rains(project: Project, inputs: Inputs
+              ) -> tuple[tuple[FloatArray | None, ...], list[str]]:
+    """Each plain storm's rain on the run's step, None for a storm of areal rain, and notes.
 
-    The notes (:func:`gisrun.storm.resampling_note`) are about each storm's own hyetograph, for
-    areal rain the basin mean.
+    The notes (:func:`gisrun.storm.resampling_note`) say what resampling did to each storm's
+    own hyetograph, for areal rain the basin mean. Areal rain is made chunk by chunk
+    (:func:`chunk_rains`).
     """
     dt_s = project.time_step_s
-    sub_ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
-    rains = tuple(run_rain(h, dt_s, sub_ids) for h in inputs.storms)
+    rains = tuple(h.resample(dt_s) if h.areal is None else None for h in inputs.storms)
     notes = [note for h, rain in zip(inputs.storms, rains, strict=True)
-             if (note := resampling_note(h, dt_s, rain if rain.ndim == 1 else None,
-                                         project.units))]
+             if (note := resampling_note(h, dt_s, rain, project.units))]
     return rains, notes
 
 
-def chunk_rain(rain: FloatArray, rows: NDArray[np.intp]) -> FloatArray:
-    """A chunk's part of a run's rain: all of a single series, its columns of areal rain."""
-    return rain if rain.ndim == 1 else np.ascontiguousarray(rain[:, rows])
+def run_steps(storms: Sequence[Hyetograph], dt_s: float) -> int:
+    """The most run steps of any of ``storms`` on the step ``dt_s``."""
+    return max((h.areal.resample_steps(dt_s) if h.areal is not None else len(h.resample(dt_s))
+                for h in storms), default=0)
+
+
+def chunk_storms(storms: Sequence[Hyetograph], sub_ids: ArrayLike) -> tuple[Hyetograph, ...]:
+    """The storms as a chunk of subcatchments (``sub_ids``) needs them.
+
+    A storm of areal rain keeps only the rain of those subcatchments, in their order
+    (:meth:`gisrun.storm.ArealRain.subset`); a plain storm is shared.
+
+    Raises
+    ------
+    StormError
+        If a storm's areal rain has no column for one of ``sub_ids``.
+    """
+    return tuple(h if h.areal is None else dataclasses.replace(
+        h, areal=h.areal.subset(h.areal.positions(sub_ids, f"storm {h.name!r}")))
+        for h in storms)
+
+
+def chunk_rains(storms: Sequence[Hyetograph], rains: Sequence[FloatArray | None], dt_s: float,
+                sub_ids: ArrayLike) -> tuple[FloatArray, ...]:
+    """Each storm's rain for a chunk: the shared series, or the chunk's areal columns.
+
+    ``rains`` are :func:`run_rains`' (None for areal rain, made here from the storm's own
+    areal rain for ``sub_ids``).
+    """
+    return tuple(rain if rain is not None else run_rain(h, dt_s, sub_ids)
+                 for h, rain in zip(storms, rains, strict=True))
+
+
+def whole_rains(project: Project, inputs: Inputs, rains: Sequence[FloatArray | None]
+                ) -> tuple[FloatArray, ...]:
+    """:func:`chunk_rains` for every subcatchment of the layer, in its order (the run's result).
+
+    A storm of areal rain is made whole here, once, a block of columns at a time
+    (:meth:`gisrun.storm.ArealRain.resample`): ``(steps, subcatchments)``.
+    """
+    sub_ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
+    return chunk_rains(inputs.storms, rains, project.time_step_s, sub_ids)
 
 
 def unit_rain(rain: FloatArray, unit_sub_ids: ArrayLike, sub_ids: ArrayLike,
