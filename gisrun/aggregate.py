@@ -66,15 +66,18 @@ def area_weights(
     array([[0.25, 0.75, 0.  ],
            [0.  , 0.  , 1.  ]])
     """
-    rows, share = _unit_shares(unit_sub_ids, unit_area_m2, sub_ids)
-    cols = np.arange(len(share))
-    return sp.csr_matrix((share, (rows, cols)), shape=(len(sub_ids), len(share)))
+    rows, share, _ = _unit_shares(unit_sub_ids, unit_area_m2, sub_ids)
+    return _weights(rows, share, len(sub_ids))
+
+
+def _weights(rows: NDArray[np.intp], share: NDArray[np.float64], n_subs: int) -> sp.csr_matrix:
+    return sp.csr_matrix((share, (rows, np.arange(len(share)))), shape=(n_subs, len(share)))
 
 
 def _unit_shares(unit_sub_ids: NDArray[np.object_] | pd.Series, unit_area_m2: NDArray[np.float64],
                  sub_ids: NDArray[np.object_] | pd.Series
-                 ) -> tuple[NDArray[np.intp], NDArray[np.float64]]:
-    """Each unit's subcatchment (position in ``sub_ids``) and share of its area."""
+                 ) -> tuple[NDArray[np.intp], NDArray[np.float64], NDArray[np.float64]]:
+    """Each unit's subcatchment (position in ``sub_ids``), share of its area, and the areas."""
     index = pd.Index(np.asarray(sub_ids, dtype=object))
     rows = index.get_indexer(np.asarray(unit_sub_ids, dtype=object))
     if np.any(rows < 0):
@@ -82,7 +85,7 @@ def _unit_shares(unit_sub_ids: NDArray[np.object_] | pd.Series, unit_area_m2: ND
     area = np.asarray(unit_area_m2, dtype=np.float64)
     totals = np.bincount(rows, weights=area, minlength=len(index))
     share = np.divide(area, totals[rows], out=np.zeros_like(area), where=totals[rows] > 0)
-    return rows, share
+    return rows, share, totals
 
 
 @dataclass(frozen=True)
@@ -92,7 +95,9 @@ class StepTotals:
     ``unit_*_m``: each unit's total rain, infiltration and excess, m; ``unit_peak_excess_m``:
     its largest excess in a step (at least 0); ``unit_first_excess_step``: its first step with
     excess (-1: none); ``series``: (3, subcatchments, steps) area-weighted rain, infiltration
-    and excess per step, m (``weights @ depth.T`` of :func:`area_weights`, to the last bit).
+    and excess per step, m (``weights @ depth.T`` of :func:`area_weights`, to the last bit);
+    ``weights``: that :func:`area_weights` matrix; ``modelled_area_m2``: each subcatchment's
+    units' area (both made once here for the tables).
     """
 
     unit_rain_m: NDArray[np.float64]
@@ -101,6 +106,8 @@ class StepTotals:
     unit_peak_excess_m: NDArray[np.float64]
     unit_first_excess_step: NDArray[np.int64]
     series: NDArray[np.float64]
+    weights: sp.csr_matrix
+    modelled_area_m2: NDArray[np.float64]
 
 
 def step_totals(loss: object, params: pd.DataFrame,
@@ -112,13 +119,15 @@ def step_totals(loss: object, params: pd.DataFrame,
     passes for the start of runoff; the unit totals and peaks are numpy's, as before, made
     once for the unit and the subcatchment tables.
     """
-    rows, share = _unit_shares(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
+    rows, share, area = _unit_shares(params["subcatchment_id"], params["area_m2"].to_numpy(),
+                                     sub_ids)
     series, first = series_and_first_steps(loss.rain_m, loss.infil_m, loss.excess_m,
                                            rows.astype(np.int64), share, len(sub_ids))
     return StepTotals(unit_rain_m=loss.rain_m.sum(axis=0), unit_infil_m=loss.infil_m.sum(axis=0),
                       unit_excess_m=loss.excess_m.sum(axis=0),
                       unit_peak_excess_m=loss.excess_m.max(axis=0, initial=0.0),
-                      unit_first_excess_step=first, series=series)
+                      unit_first_excess_step=first, series=series,
+                      weights=_weights(rows, share, len(sub_ids)), modelled_area_m2=area)
 
 
 def summarize_units(loss: object, params: pd.DataFrame, dt_s: float, *,
@@ -217,9 +226,11 @@ def summarize_subcatchments(
         :data:`MASS_BALANCE_TOLERANCE` (relative) in any subcatchment.
     """
     sub_ids = np.asarray(sub_ids, dtype=object)
+    if weights is None and totals is not None:
+        weights = totals.weights
     if weights is None:
         weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
-    area = np.bincount(
+    area = totals.modelled_area_m2 if totals is not None else np.bincount(
         pd.Index(sub_ids).get_indexer(params["subcatchment_id"]),
         weights=params["area_m2"].to_numpy(), minlength=len(sub_ids),
     )

@@ -83,6 +83,11 @@ def test_tables_with_totals_equal_tables_without():
     pd.testing.assert_frame_equal(
         summarize_subcatchments(loss, params, sub_ids, DT, weights=weights, totals=totals),
         plain, check_exact=True)
+    # the totals' own weights and modelled areas (made once for a storm's tables) are the same
+    assert (totals.weights != weights).nnz == 0
+    pd.testing.assert_frame_equal(summarize_subcatchments(loss, params, sub_ids, DT,
+                                                          totals=totals),
+                                  plain, check_exact=True)
     assert np.isnan(plain.set_index("subcatchment_id").loc["S022", "runoff_start_s"])  # no units
     series = subcatchment_series(loss, params, sub_ids, DT, totals=totals)
     assert np.array_equal(series["excess_m"].to_numpy(), excess.ravel())

@@ -85,11 +85,12 @@ def test_streamed_extras_read_the_unit_rows_back(two_ways):
     assert f"<td>{first['subcatchment_id']}</td>" in report  # top of the unit ranking shown
 
 
-def test_ranking_inside_the_file_matches_pandas(tmp_path):
+@pytest.mark.parametrize(("n", "cache_mb"), [(400, None), (400, 64.0), (30_000, 0.01)])
+def test_ranking_inside_the_file_matches_pandas(tmp_path, n, cache_mb):
     # The same rule as the in-memory ranking: per storm (in the given order), by value with
     # empty values last, then by the keys, then by row order; ties share the smallest rank.
+    # With a page cache of 10 kB, SQLite's sort of 30,000 rows spills to temporary files.
     rng = np.random.default_rng(5)
-    n = 400
     storms = np.array(["late's storm", "early", "mid"])[rng.integers(0, 3, n)]
     values = rng.choice([np.nan, 60.0, 120.0, 180.0, 240.5], n)
     frame = pd.DataFrame({
@@ -108,7 +109,7 @@ def test_ranking_inside_the_file_matches_pandas(tmp_path):
     write_ranked_table(path, source="rows", target="ranked", group="storm", group_order=order,
                        value="time_to_ponding_s", keys=keys,
                        columns=[*keys, "time_to_ponding_s", "area_m2"], rank="ponding_rank",
-                       exclude=("surface", "impervious"))
+                       exclude=("surface", "impervious"), cache_mb=cache_mb)
     got = layer(path, "ranked")
     pervious = frame[frame["surface"] != "impervious"]
     want = pd.concat([_ranked(pervious[pervious["storm"] == s][[*keys, "time_to_ponding_s",
@@ -138,3 +139,25 @@ def test_write_outputs_refuses_a_run_without_its_unit_rows(two_ways, tmp_path):
     with pytest.raises(ValueError, match="streamed its rows"):
         write_outputs(streamed, output=tmp_path / "x.gpkg")
     assert not (tmp_path / "x.gpkg").exists()
+
+
+def test_ranked_table_counts_its_rows_and_keeps_the_count_trigger(tmp_path):
+    # The ranking inserts its rows with GDAL's per-row count trigger set aside: the layer's
+    # count in gpkg_ogr_contents must still be its rows (GDAL reports it without counting),
+    # and the trigger must be back, counting rows added later.
+    frame = pd.DataFrame({"storm": ["a"] * 5 + ["b"] * 3, "subcatchment_id": list("pqrstuvw"),
+                          "time_to_ponding_s": [3.0, 1.0, np.nan, 1.0, 2.0, 5.0, 4.0, 4.0]})
+    path = tmp_path / "t.gpkg"
+    pyogrio.write_dataframe(frame, path, layer="rows", driver="GPKG")
+    write_ranked_table(path, source="rows", target="ranked", group="storm",
+                       group_order=["b", "a"], value="time_to_ponding_s",
+                       keys=["subcatchment_id"], columns=["subcatchment_id", "time_to_ponding_s"],
+                       rank="ponding_rank")
+    assert pyogrio.read_info(path, layer="ranked")["features"] == 8
+    got = layer(path, "ranked")
+    assert got["ponding_rank"].tolist()[:3] == [1, 1, 3]  # storm b first: 4.0 and 4.0 tie
+    with closing(sqlite3.connect(path)) as db, db:
+        count = "SELECT feature_count FROM gpkg_ogr_contents WHERE table_name = 'ranked'"
+        assert db.execute(count).fetchone() == (8,)
+        db.execute("INSERT INTO ranked (storm) VALUES ('c')")
+        assert db.execute(count).fetchone() == (9,)

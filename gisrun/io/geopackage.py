@@ -130,7 +130,8 @@ def append_table(path: str | Path, name: str, frame: pd.DataFrame, *,
 
 def write_ranked_table(path: str | Path, *, source: str, target: str, group: str,
                        group_order: list[str], value: str, keys: list[str], columns: list[str],
-                       rank: str, exclude: tuple[str, str] | None = None) -> None:
+                       rank: str, exclude: tuple[str, str] | None = None,
+                       cache_mb: float | None = None) -> None:
     """Rank the rows of a GeoPackage table inside the file, without loading it.
 
     Writes table ``target`` with ``group``, ``rank`` and ``columns``: per
@@ -143,6 +144,10 @@ def write_ranked_table(path: str | Path, *, source: str, target: str, group: str
     ----------
     exclude : (column, text), optional
         Leave out the rows where ``column`` equals ``text``.
+    cache_mb : float, optional
+        SQLite's page cache for this, which also sets how much of the sort stays in memory
+        before it spills to temporary files (SQLite's default: 2 MB; each of the two may take
+        up to this much). On the benchmark's 700,000 units, 128 MB sorted in 0.8 the time.
     """
     path = Path(path)
     names = [group, rank, *[c for c in columns if c not in (group, rank)]]
@@ -166,8 +171,34 @@ def write_ranked_table(path: str | Path, *, source: str, target: str, group: str
            f"{', '.join(q(c) for c in names[2:])} FROM {q(source)} {where} "
            f"ORDER BY {order_group}, {q(value)} IS NULL, {q(value)}, "
            f"{', '.join(q(k) for k in keys)}, fid")
-    with closing(sqlite3.connect(path)) as db, db:
-        db.execute(sql, [*([exclude[1]] if exclude else []), *group_args])
+    with closing(sqlite3.connect(path)) as db, db:  # one transaction
+        if cache_mb:
+            db.execute(f"PRAGMA cache_size = {-max(int(cache_mb * 1024), 1)}")  # KiB
+        _insert_counted_once(db, target, sql, [*([exclude[1]] if exclude else []), *group_args])
+
+
+def _insert_counted_once(db: sqlite3.Connection, table: str, sql: str, args: list) -> None:
+    """Run an ``INSERT`` into ``table``, counting its rows once instead of by its trigger.
+
+    GDAL keeps a layer's row count in ``gpkg_ogr_contents`` with a trigger that updates it
+    after every inserted row (a scan of that table per row: about half the time of ranking a
+    storm's units). As GDAL does for its own bulk writes, the trigger is dropped while the
+    rows go in, the count raised by the rows inserted, and the trigger made again, all in the
+    caller's transaction.
+    """
+    name = f"trigger_insert_feature_count_{table}"
+    found = db.execute("SELECT sql FROM sqlite_master WHERE type = 'trigger' AND name = ? "
+                       "AND tbl_name = ?", (name, table)).fetchone()
+    if found is None:
+        db.execute(sql, args)
+        return
+    if not db.in_transaction:  # DDL would otherwise be committed on its own
+        db.execute("BEGIN")
+    db.execute(f"DROP TRIGGER {_quoted(name)}")
+    inserted = db.execute(sql, args).rowcount
+    db.execute("UPDATE gpkg_ogr_contents SET feature_count = feature_count + ? "
+               "WHERE lower(table_name) = lower(?)", (inserted, table))
+    db.execute(found[0])
 
 
 def _quoted(name: str) -> str:

@@ -25,6 +25,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
@@ -33,8 +34,8 @@ from .._version import __version__
 from ..model import CAUTION
 from ..project import Project
 
-__all__ = ["SERIES_IN_GEOPACKAGE_BELOW", "SERIES_SUFFIX", "SeriesFile", "series_path",
-           "series_metadata", "series_store"]
+__all__ = ["SERIES_IN_GEOPACKAGE_BELOW", "SERIES_SUFFIX", "SeriesFile", "arrow_table",
+           "series_path", "series_metadata", "series_store"]
 
 #: ``[project] series = "auto"`` keeps the series in the GeoPackage below this many rows
 #: (subcatchments x steps, summed over the storms; about 90 MB of GeoPackage at 90 bytes a row)
@@ -97,7 +98,7 @@ class SeriesFile:
 
     def write(self, frame: pd.DataFrame) -> None:
         """Append ``frame`` as one row group."""
-        table = pa.Table.from_pandas(frame, preserve_index=False)
+        table = arrow_table(frame)
         if self._schema is None:
             self._schema = _schema(table.schema, self.metadata)
             self._writer = _open(self.path, self._schema)
@@ -122,6 +123,32 @@ class SeriesFile:
             self.close()
         elif self._writer is not None:  # the caller removes the unfinished temporary
             self._writer.close()
+
+
+def arrow_table(frame: pd.DataFrame) -> pa.Table:
+    """``frame`` as an Arrow table: ``pa.Table.from_pandas``'s columns, without its metadata.
+
+    Column by column without pandas' conversion machinery, which took about three quarters of
+    the time of handing a storm's series rows to the writer: numbers as they are (their
+    buffers shared; NaN as null, as pandas' conversion does, only where a column has one),
+    categoricals as dictionaries of their codes and categories, other columns through Arrow's
+    pandas conversion of that column.
+    """
+    columns = {}
+    for name in frame.columns:
+        column = frame[name]
+        if isinstance(column.dtype, pd.CategoricalDtype):
+            codes = column.cat.codes.to_numpy()
+            missing = codes < 0
+            columns[name] = pa.DictionaryArray.from_arrays(
+                codes, pa.array(column.cat.categories, from_pandas=True),
+                mask=missing if missing.any() else None, ordered=column.cat.ordered)
+            continue
+        values = column.to_numpy()
+        plain = values.dtype.kind in "iub" or (values.dtype.kind == "f"
+                                                and not np.isnan(values).any())
+        columns[name] = pa.array(values) if plain else pa.array(column, from_pandas=True)
+    return pa.table(columns)
 
 
 def _schema(found: pa.Schema, metadata: Mapping[str, str]) -> pa.Schema:

@@ -22,7 +22,6 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from ..aggregate import (
-    area_weights,
     step_totals,
     subcatchment_series,
     summarize_subcatchments,
@@ -259,9 +258,8 @@ def run_storm(
         loss = run_with_runon(params, rain_units, dt_s, runon_to=runon_to)
     totals = step_totals(loss, params, sub_ids)  # the step arrays read once
     units = summarize_units(loss, params, dt_s, totals=totals)
-    weights = area_weights(params["subcatchment_id"], params["area_m2"].to_numpy(), sub_ids)
     series = subcatchment_series(loss, params, sub_ids, dt_s, totals=totals)
-    subs = summarize_subcatchments(loss, params, sub_ids, dt_s, weights=weights, totals=totals)
+    subs = summarize_subcatchments(loss, params, sub_ids, dt_s, totals=totals)
     for name in ("rain", "infiltration", "excess"):
         series[f"{name}_intensity_m_per_s"] = series[f"{name}_m"] / dt_s
     return StormResult(hyetograph=hyetograph, rain_per_step_m=rain,

@@ -43,6 +43,9 @@ from .pipeline import KEEP_STEP_ARRAYS_BELOW, Progress, run
 
 __all__ = ["run_and_write", "series_rows", "Extras"]
 
+#: Share of the memory budget SQLite may use for its page cache and, as much again, its sort
+#: while ranking the streamed units (the chunks' working sets are gone by then).
+RANKING_SHARE = 1.0 / 12.0
 #: ``extras(result, gpkg_being_built, outputs)``: stage more outputs to move in with the GeoPackage.
 Extras = Callable[[RunResult, Path, OutputSet], object]
 
@@ -201,8 +204,10 @@ class _Sinks:
 
     def units(self, params: pd.DataFrame, units: list[tuple[str, pd.DataFrame]]) -> None:
         self._append("unit_parameters", present_frame(params, self.system))
-        for name, frame in units:
-            self._append("unit_results", series_layer(frame, name, self.system))
+        frames = [series_layer(frame, name, self.system) for name, frame in units]
+        if frames:  # every storm's rows in one write: a write has a fixed cost (opening the
+            self._append("unit_results",  # file, the layer), about 30 ms a chunk here
+                         frames[0] if len(frames) == 1 else pd.concat(frames, ignore_index=True))
 
 
 def _rank_units_in_file(path: Path, result: RunResult) -> pd.DataFrame:
@@ -222,7 +227,8 @@ def _rank_units_in_file(path: Path, result: RunResult) -> pd.DataFrame:
     geopackage.write_ranked_table(
         path, source="unit_results", target="ponding_rank_units", group="storm",
         group_order=[s.name for s in result.storms], value=value, keys=keys, columns=columns,
-        rank="ponding_rank", exclude=("surface", "impervious"))
+        rank="ponding_rank", exclude=("surface", "impervious"),
+        cache_mb=result.project.memory_budget_mb * RANKING_SHARE)
     frames = []
     for storm in result.storms:
         quoted = storm.name.replace("'", "''")
