@@ -228,3 +228,74 @@ def test_weighting_cells_by_degree_fractions_would_fail_the_same_check(lonlat_ca
         total = sum(a for *_, a in cells)
         naive[:, i] = sum(a * grid.values[:, r, c] for r, c, a in cells) / total
     assert np.max(np.abs(naive / expected - 1)) > 1e-5
+
+
+def _across_the_antimeridian() -> gpd.GeoSeries:
+    # Invented subcatchments in UTM 60S around 179.88 E - 179.9 W, 16.9-17.1 S (Fiji): one
+    # across the 180th meridian, one wholly east of it (west longitudes), one wholly west.
+    # About 20 km across, so that gisrun's densification (64 pieces a side) follows the image
+    # of their straight UTM edges as closely as the brute force's 50 m pieces (1e-6).
+    to_utm = Transformer.from_crs(WGS84, "EPSG:32760", always_xy=True)
+
+    def quad(lons, lats):
+        return shapely.Polygon(np.column_stack(to_utm.transform(lons, lats)))
+
+    return gpd.GeoSeries([quad([179.9, -179.93, -179.95, 179.92], [-17.1, -17.07, -16.9, -16.93]),
+                          quad([-179.8, -179.72, -179.74], [-17.0, -17.04, -16.93]),
+                          quad([179.7, 179.78, 179.74], [-17.0, -17.04, -16.93])],
+                         crs="EPSG:32760")
+
+
+def _seam_weights_by_brute_force(geoms: gpd.GeoSeries, west: float, cell: float, width: int,
+                                 north: float) -> list[dict[str, float]]:
+    """Each subcatchment's share in each cell, by shapely intersections in an equal-area
+    projection centred on the 180th meridian (pyproj), cells named as the grid stores them."""
+    laea = CRS("+proj=laea +lat_0=-17 +lon_0=180 +ellps=WGS84")
+    to_laea = Transformer.from_crs(WGS84, laea, always_xy=True)
+    polys = gpd.GeoSeries(shapely.segmentize(np.asarray(geoms), 50.0), crs=geoms.crs).to_crs(laea)
+    out = []
+    for poly in polys:
+        shares = {}
+        for r in range(int(round((north + 17.5) / cell))):
+            for c in range(width):
+                lon0 = west + c * cell
+                if min(abs((lon0 - 180.0 + 180.0) % 360.0 - 180.0),
+                       abs((lon0 + cell - 180.0 + 180.0) % 360.0 - 180.0)) > 0.5:
+                    continue  # far from the polygons
+                rect = shapely.segmentize(box(lon0, north - (r + 1) * cell, lon0 + cell,
+                                              north - r * cell), 0.001)
+                xy = np.array(rect.exterior.coords)
+                part = shapely.Polygon(np.column_stack(to_laea.transform(xy[:, 0], xy[:, 1])))
+                area = part.intersection(poly).area
+                if area > 0:
+                    shares[f"r{r}_c{c}"] = area
+        total = sum(shares.values())
+        out.append({k: v / total for k, v in shares.items() if v / total > 1e-9})
+    return out
+
+
+@pytest.mark.parametrize("west, width", [(-180.0, 7200), (0.0, 7200), (170.0, 400)])
+def test_a_subcatchment_across_the_180th_meridian_takes_cells_at_both_edges(west, width):
+    # A grid round the globe written from -180 or from 0, and a regional one from 170 E to
+    # 170 W: the same shares of the same ground cells, within 1e-6 of the brute force.
+    geoms = _across_the_antimeridian()
+    grid = ArrayGrid(WGS84, Affine(0.05, 0, west, 0, -0.05, -16.5), np.zeros((1, 20, width)))
+    got = rain_grid_weights(geoms, ["X", "E", "W"], grid).table()
+    expected = _seam_weights_by_brute_force(geoms, west, 0.05, width, -16.5)
+    for sub, want in zip("XEW", expected, strict=True):
+        have = got[got["subcatchment_id"] == sub].set_index("source_id")["weight"]
+        have = have[have > 1e-9]  # cells a polygon only grazes: slivers of a square metre
+        assert set(have.index) == set(want), sub
+        np.testing.assert_allclose([have[k] for k in want], list(want.values()), rtol=1e-6)
+    across = got[got["subcatchment_id"] == "X"]["cell_column"]
+    if width == 7200:  # the crossing one sits at both edges of a grid round the globe
+        assert across.min() == 0 if west == -180.0 else across.min() > 0
+        assert across.max() == width - 1 if west == -180.0 else True
+
+
+def test_a_regional_grid_on_one_side_of_the_180th_meridian_does_not_cover_across_it():
+    geoms = _across_the_antimeridian()[:1]
+    grid = ArrayGrid(WGS84, Affine(0.05, 0, -180.0, 0, -0.05, -16.5), np.zeros((1, 20, 200)))
+    with pytest.raises(GisrunError, match=r"does not cover subcatchment 'X' \(\d+\.\d% of 'X' "
+                                          r"lies beyond the grid"):
+        rain_grid_weights(geoms, ["X"], grid)

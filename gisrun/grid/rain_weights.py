@@ -40,6 +40,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 import shapely
+import shapely.affinity
 from numpy.typing import NDArray
 from pyproj import CRS, Transformer
 from scipy import sparse
@@ -166,10 +167,55 @@ def polygons_on_grid(geoms: gpd.GeoSeries, grid: RainGridGeometry) -> NDArray[An
         return shapely.transform(shapes, lambda xy: np.column_stack(
             ((xy[:, 0] - t.c) / t.a, (xy[:, 1] - t.f) / t.e)))
     q_edges = _row_edges_q(grid)
-    east = max(t.c, t.c + t.a * grid.width)
-    return shapely.transform(shapes, lambda xy: np.column_stack(
-        ((_unwrapped_lon(xy[:, 0], east) - t.c) / t.a,
-         _row_of_q(authalic_q(xy[:, 1], grid.crs), q_edges))))
+    west, east = sorted((t.c, t.c + t.a * grid.width))
+    coords, index = shapely.get_coordinates(shapes, return_index=True)
+    lon = _over_the_grid(coords[:, 0], index, len(shapes), west, east)
+    on_grid = np.column_stack(((lon - t.c) / t.a,
+                               _row_of_q(authalic_q(coords[:, 1], grid.crs), q_edges)))
+    shapes = shapely.set_coordinates(shapes.copy(), on_grid)
+    if abs(east - west - 360.0) <= 1e-9 * 360.0:  # a grid round the globe: its edges meet
+        shapes = _wrapped(shapes, grid.width)
+    return shapes
+
+
+def _over_the_grid(lon: NDArray[np.float64], index: NDArray[np.intp], n: int, west: float,
+                   east: float) -> NDArray[np.float64]:
+    """Each polygon's longitudes in one piece, moved by whole turns to lie over the grid.
+
+    A polygon written across the 180th meridian (179.9 and -179.9) spans more than half the
+    globe as numbers; its western longitudes go one turn east. Then each polygon goes by the
+    whole turns that bring the middle of its longitudes nearest the middle of the grid's
+    (a grid from 0 to 360 takes polygons written from -180 to 180, and the other way round).
+    """
+    low, high = _spans(lon, index, n)
+    lon = np.where((high - low > 180.0)[index] & (lon < 0.0), lon + 360.0, lon)
+    low, high = _spans(lon, index, n)
+    turns = np.round(((west + east) / 2.0 - (low + high) / 2.0) / 360.0)
+    return lon + 360.0 * turns[index]
+
+
+def _spans(lon: NDArray[np.float64], index: NDArray[np.intp], n: int
+           ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    low, high = np.full(n, np.inf), np.full(n, -np.inf)
+    np.minimum.at(low, index, lon)
+    np.maximum.at(high, index, lon)
+    return np.where(np.isfinite(low), low, 0.0), np.where(np.isfinite(high), high, 0.0)
+
+
+def _wrapped(shapes: NDArray[Any], width: int) -> NDArray[Any]:
+    """Parts of polygons beyond a round-the-globe grid's east or west edge, brought round.
+
+    In grid columns a turn is ``width``: the part past the east edge goes ``width`` west (and
+    the other way), so a polygon across the grid's seam covers cells at both edges.
+    """
+    b = shapely.bounds(shapes)
+    for i in np.flatnonzero((b[:, 0] < 0) | (b[:, 2] > width)):
+        pieces = [shapely.affinity.translate(
+            shapely.intersection(shapes[i], shapely.box(k * width, b[i, 1] - 1, (k + 1) * width,
+                                                        b[i, 3] + 1)), -k * width)
+            for k in (-1, 0, 1)]
+        shapes[i] = shapely.union_all(pieces)
+    return shapes
 
 
 def _reprojected(shapes: NDArray[Any], src: CRS, dst: CRS) -> NDArray[Any]:
@@ -180,11 +226,6 @@ def _reprojected(shapes: NDArray[Any], src: CRS, dst: CRS) -> NDArray[Any]:
     move = Transformer.from_crs(src, dst, always_xy=True)
     return shapely.transform(dense, lambda xy: np.column_stack(move.transform(xy[:, 0],
                                                                               xy[:, 1])))
-
-
-def _unwrapped_lon(lon: NDArray[np.float64], east: float) -> NDArray[np.float64]:
-    """Longitudes west of ``east - 360`` moved one turn east, for grids reaching past 180 E."""
-    return np.where(lon < east - 360.0, lon + 360.0, lon) if east > 180.0 else lon
 
 
 def authalic_q(lat_deg: NDArray[np.float64], crs: CRS) -> NDArray[np.float64]:
