@@ -33,8 +33,8 @@ IO_LIBRARIES = {"rasterio", "pyogrio", "fiona", "sqlite3", "tomllib"}
 #: The only imports allowed inside functions: optional dependencies and heavy plotting,
 #: as (importing module, imported module) pairs. Everything else is imported at the top.
 NESTED_ALLOWED = {
-    ("gisrun.workflow.chunks", "dask"),
-    ("gisrun.workflow.chunks", "dask.distributed"),
+    ("gisrun.workflow.execution", "dask"),
+    ("gisrun.workflow.execution", "dask.distributed"),
 }
 
 

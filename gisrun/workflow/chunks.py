@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import dataclasses
 import warnings
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import geopandas as gpd
@@ -54,7 +54,6 @@ __all__ = [
     "sample_rows",
     "process_chunk",
     "split_overlay",
-    "execute",
 ]
 
 #: Default memory budget of a run, MB (``[project] memory_budget_mb``).
@@ -325,70 +324,3 @@ def split_overlay(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],
         out.append((units.iloc[u].reset_index(drop=True), coverage.iloc[c].reset_index(drop=True),
                     notes if k == 0 else []))
     return out
-
-
-def execute(
-    tasks: Sequence[ChunkTask],
-    *,
-    workers: int | None = None,
-    scheduler: str | None = None,
-    on_done: Callable[[int], None] | None = None,
-) -> Iterator[ChunkOutput]:
-    """Run chunk tasks and yield their outputs in task order.
-
-    Parameters
-    ----------
-    tasks : sequence of ChunkTask
-    workers : int, optional
-        Run on a local dask cluster of this many worker processes.
-    scheduler : str, optional
-        ``"synchronous"`` or ``"threads"`` (dask's local schedulers), or the
-        address of an existing dask scheduler (``tcp://host:8786``).
-    on_done : callable, optional
-        Called with the number of chunks finished so far.
-    """
-    done = 0
-    if not workers and not scheduler:
-        for task in tasks:
-            out = process_chunk(task)
-            done += 1
-            if on_done:
-                on_done(done)
-            yield out
-        return
-    if scheduler in ("synchronous", "threads", "sync", "processes") and not workers:
-        import dask
-
-        for task in tasks:  # one at a time keeps memory flat and the order fixed
-            (out,) = dask.compute(dask.delayed(process_chunk)(task), scheduler=scheduler)
-            done += 1
-            if on_done:
-                on_done(done)
-            yield out
-        return
-    yield from _distributed(tasks, workers=workers, address=scheduler, on_done=on_done)
-
-
-def _distributed(tasks: Sequence[ChunkTask], *, workers: int | None, address: str | None,
-                 on_done: Callable[[int], None] | None) -> Iterator[ChunkOutput]:
-    from dask.distributed import Client, LocalCluster
-
-    cluster = None
-    if address:
-        client = Client(address)
-    else:
-        cluster = LocalCluster(n_workers=int(workers or 1), threads_per_worker=1,
-                               processes=True, dashboard_address=None)
-        client = Client(cluster)
-    try:
-        futures = client.map(process_chunk, list(tasks), pure=False)
-        for done, future in enumerate(futures, start=1):
-            out = future.result()
-            future.release()
-            if on_done:
-                on_done(done)
-            yield out
-    finally:
-        client.close()
-        if cluster is not None:
-            cluster.close()

@@ -37,12 +37,12 @@ from .chunks import (
     ChunkOutput,
     ChunkTask,
     chunk_size_for_budget,
-    execute,
     plan_chunks,
     sample_rows,
     split_overlay,
 )
 from .disconnection import runon_target
+from .execution import execute
 from .inputs import check_inputs_codes, read_inputs
 from .rain import chunk_storms, run_rains, run_steps, whole_rains
 from .steps import compact_sources, overlay_inputs
