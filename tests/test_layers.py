@@ -2,12 +2,19 @@
 
 from __future__ import annotations
 
+import dataclasses
+from pathlib import Path
 from types import SimpleNamespace
 
 import pandas as pd
 from numpy.testing import assert_allclose
 
+import gisrun.present.layers as layers
+from gisrun import load_project, run
+from gisrun.aggregate import soil_shares
 from gisrun.present.layers import layer_name, storm_layer_name, subcatchment_table
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
 
 def test_subcatchment_table_adds_coverage_and_area_weighted_soil_shares():
@@ -31,3 +38,20 @@ def test_subcatchment_table_adds_coverage_and_area_weighted_soil_shares():
 def test_layer_names_are_geopackage_safe():
     assert storm_layer_name("10-yr / 24 h") == "runoff_10_yr_24_h"
     assert layer_name("2yr") == "l_2yr"  # an SQL name needs no quoting (common practice)
+
+
+def test_the_soil_shares_are_made_once_for_every_storm_layer(monkeypatch):
+    # Every storm's polygon layer and the subcatchment_results table carry the same soil shares
+    # (they do not depend on the storm): made once per run's layers, not once per table.
+    project = load_project(DEMO)
+    result = run(dataclasses.replace(project, storms=project.storms[:2]))
+    made = []
+    monkeypatch.setattr(layers, "soil_shares", lambda *a: made.append(1) or soil_shares(*a))
+    built = layers.build_layers(result)
+    assert len(made) == 1
+    for storm in result.storms:
+        got = built[storm.layer_name].set_index("subcatchment_id")
+        alone = layers.present_frame(subcatchment_table(result, storm), project.units)
+        alone = alone.set_index("subcatchment_id").loc[got.index]
+        assert got["soil_A_fraction"].tolist() == alone["soil_A_fraction"].tolist()
+    assert len(made) == 3  # each table on its own (the calls above) makes its own

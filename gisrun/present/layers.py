@@ -89,11 +89,13 @@ def storm_layer_name(storm_name: str) -> str:
     return layer_name(f"runoff_{storm_name}")
 
 
-def subcatchment_table(result: RunResult, storm: StormResult) -> pd.DataFrame:
+def subcatchment_table(result: RunResult, storm: StormResult,
+                       shares: pd.DataFrame | None = None) -> pd.DataFrame:
     """Subcatchment results of one storm with polygon area and soil shares (SI columns).
 
     A storm reduced for area (``[[storms]] areal_reduction``) also gets each subcatchment's
-    factor (:data:`gisrun.present.reduction.FACTOR_COLUMN`).
+    factor (:data:`gisrun.present.reduction.FACTOR_COLUMN`). ``shares``: the run's
+    :func:`gisrun.aggregate.soil_shares` when the caller has them (the same for every storm).
     """
     subs = storm.subcatchments.merge(
         result.coverage, on="subcatchment_id", how="left", suffixes=("", "_coverage")
@@ -101,7 +103,8 @@ def subcatchment_table(result: RunResult, storm: StormResult) -> pd.DataFrame:
     factor = reduction_column(storm.hyetograph.reduction, subs["subcatchment_id"])
     if factor is not None:
         subs.insert(1, FACTOR_COLUMN, factor)
-    shares = soil_shares(result.units, subs["subcatchment_id"])
+    if shares is None:
+        shares = soil_shares(result.units, subs["subcatchment_id"])
     return subs.merge(shares, on="subcatchment_id", how="left")
 
 
@@ -119,16 +122,22 @@ def layer_builders(result: RunResult, *, skip: tuple[str, ...] = ()
     """
     system = result.project.units
     rankings: list[tuple[pd.DataFrame, pd.DataFrame]] = []
+    made_shares: list[pd.DataFrame] = []
 
     def ranking(which: int) -> pd.DataFrame:
         if not rankings:
             rankings.append(ponding_ranking(result))
         return present_frame(rankings[0][which], system)
 
+    def shares() -> pd.DataFrame:  # the soil shares, made once for every storm's table
+        if not made_shares:
+            made_shares.append(soil_shares(result.units, result.subcatchments["subcatchment_id"]))
+        return made_shares[0]
+
     builders: dict[str, Callable[[], pd.DataFrame]] = {
-        storm.layer_name: _storm_layer(result, storm) for storm in result.storms}
+        storm.layer_name: _storm_layer(result, storm, shares) for storm in result.storms}
     builders.update({
-        "subcatchment_results": lambda: _all_storms(result, "subcatchments"),
+        "subcatchment_results": lambda: _all_storms(result, "subcatchments", shares()),
         "excess_series": lambda: _all_storms(result, "series"),
         "unit_results": lambda: _all_storms(result, "units"),
         "unit_parameters": lambda: present_frame(result.parameters, system),
@@ -152,23 +161,26 @@ def layer_builders(result: RunResult, *, skip: tuple[str, ...] = ()
     return {name: make for name, make in builders.items() if name not in skip}
 
 
-def _storm_layer(result: RunResult, storm: StormResult) -> Callable[[], pd.DataFrame]:
+def _storm_layer(result: RunResult, storm: StormResult, shares: Callable[[], pd.DataFrame]
+                 ) -> Callable[[], pd.DataFrame]:
     """A function building one storm's polygon layer (one feature per subcatchment)."""
     def make() -> pd.DataFrame:
         geoms = result.subcatchments[["subcatchment_id", "geometry"]]
-        table = present_frame(subcatchment_table(result, storm), result.project.units)
+        table = present_frame(subcatchment_table(result, storm, shares()),
+                              result.project.units)
         layer = geoms.merge(table, on="subcatchment_id", how="left")
         return gpd.GeoDataFrame(layer, geometry="geometry", crs=result.subcatchments.crs)
     return make
 
 
-def _all_storms(result: RunResult, kind: str) -> pd.DataFrame:
+def _all_storms(result: RunResult, kind: str, shares: pd.DataFrame | None = None
+                ) -> pd.DataFrame:
     """Every storm's subcatchment results, series or unit results in one table, storm first."""
     system = result.project.units
     frames = []
     for storm in result.storms:
         if kind == "subcatchments":
-            frames.append(present_frame(subcatchment_table(result, storm), system)
+            frames.append(present_frame(subcatchment_table(result, storm, shares), system)
                           .assign(storm=storm.name))
         elif kind == "series":
             frames.append(series_layer(storm.series, storm.name, system))
