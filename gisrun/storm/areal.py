@@ -2,8 +2,9 @@
 
 An observed event seen by several gauges, or a gridded rainfall product, gives every
 subcatchment its own areal rain: a depth per step and subcatchment, the area-weighted mean of
-the sources (gauges or grid cells) over the polygon. :class:`ArealRain` holds that matrix on a
-fixed step with the weights it came from. A storm carries it in
+the sources (gauges or grid cells) over the polygon. :class:`ArealRain` holds that rain on a
+fixed step as a :class:`gisrun.storm.mix.SourceMix` (the sources' series and their weights,
+whose columns are made when asked for) with the weights table it came from. A storm carries it in
 :attr:`gisrun.storm.Hyetograph.areal` (:func:`gisrun.storm.areal_storm`); the storm's own
 hyetograph is then the basin's area-weighted mean, which the storm tables and plots show,
 while the run gives each unit the column of its subcatchment, resampled onto the run's step
@@ -163,11 +164,11 @@ class ArealRain:
             Columns to resample, in the order wanted (default all).
         """
         edges = step_edges(self.duration_s, dt_s, f"areal rain ({self.source})", pad=True)
-        rows = np.arange(self.mix.size) if columns is None else np.asarray(columns)
-        out = np.empty((len(edges) - 1, rows.size), dtype=np.float64, order="F")
-        for start in range(0, rows.size, COLUMN_BLOCK):  # bounds the temporaries
-            block = slice(start, min(start + COLUMN_BLOCK, rows.size))
-            depth = self.mix.columns(rows[block])
+        n = self.mix.size if columns is None else len(columns)
+        out = np.empty((len(edges) - 1, n), dtype=np.float64, order="F")
+        for start in range(0, n, COLUMN_BLOCK):  # bounds the temporaries
+            block = slice(start, min(start + COLUMN_BLOCK, n))
+            depth = self.mix.columns(block if columns is None else np.asarray(columns)[block])
             cum = np.concatenate([np.zeros((1, depth.shape[1])), np.cumsum(depth, axis=0)])
             out[:, block] = np.maximum(np.diff(interpolate_columns(edges, self.time_s, cum),
                                                axis=0), 0.0)
@@ -180,8 +181,9 @@ class ArealRain:
     def subset(self, columns: NDArray[np.intp]) -> ArealRain:
         """The rain of the subcatchments ``columns`` only (a run's chunk), to the bit.
 
-        Holds only the sources they use; the weights and points tables (outputs of the whole
-        run) are left out.
+        Shares this rain's source values (pickled, it takes only the sources those
+        subcatchments use: :meth:`SourceMix.subset`); the weights and points tables (outputs of
+        the whole run) are left out.
         """
         columns = np.asarray(columns, dtype=np.intp)
         return ArealRain(self.mix.subset(columns), self.step_s,
