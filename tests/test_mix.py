@@ -62,13 +62,49 @@ def test_a_mean_mix_is_scipys_weighted_mean_to_the_bit_in_any_rows():
     assert np.array_equal(mix.subset(rows).columns(), expected[:, rows])
 
 
+def test_a_subset_picks_rows_as_numpy_indexes_them():
+    # Reference: numpy's own indexing of the whole matrix's columns (positions, negatives,
+    # slices, boolean masks), and a subset of a subset is the subset of the composed rows.
+    rng = np.random.default_rng(10)
+    values, weights = random_depth(rng, 9, 30), random_mean_weights(rng, 50, 30)
+    mix = SourceMix(np.ascontiguousarray(values.T), weights, values.min(axis=1))
+    whole = mix.columns()
+    mask = rng.uniform(size=50) < 0.4
+    for rows in (np.array([49, -1, 0, -50, 7, 7]), slice(3, 40, 4), slice(None, None, -3), mask,
+                 np.array([], dtype=np.intp)):
+        assert np.array_equal(mix.columns(rows), whole[:, rows])
+    part = mix.subset(np.array([40, 2, 17, 33, 9]))
+    assert part.size == 5 and np.array_equal(part.columns(), whole[:, [40, 2, 17, 33, 9]])
+    assert np.array_equal(part.subset(np.array([4, 0, -2])).columns(), whole[:, [9, 40, 33]])
+    assert np.array_equal(part.columns(slice(1, 3)), whole[:, [2, 17]])
+    assert np.array_equal(part.scaled(0.5).columns(), whole[:, [40, 2, 17, 33, 9]] * 0.5)
+
+
+@pytest.mark.parametrize("rows", [np.array([50]), np.array([-51]), np.array([0, 3, 99]),
+                                  np.ones(49, dtype=bool)])
+def test_a_row_out_of_range_is_refused_before_the_kernel_reads_it(rows):
+    # The kernel does not check its indices: an index past the weights would read memory
+    # that is not theirs. numpy's rule (IndexError) is kept.
+    rng = np.random.default_rng(11)
+    values, weights = random_depth(rng, 5, 20), random_mean_weights(rng, 50, 20)
+    mix = SourceMix(np.ascontiguousarray(values.T), weights, values.min(axis=1))
+    with pytest.raises(IndexError):
+        mix.columns(rows)
+    with pytest.raises(IndexError):
+        mix.subset(rows)
+    with pytest.raises(StormError, match="names rows"):
+        SourceMix(mix.values_m, weights, mix.low_m, rows=np.array([0, 50]))
+
+
 def test_a_subset_pickles_only_the_sources_it_uses():
     rng = np.random.default_rng(4)
     values, weights = random_depth(rng, 12, 500), random_mean_weights(rng, 300, 500)
     mix = SourceMix(np.ascontiguousarray(values.T), weights, values.min(axis=1))
     rows = np.array([5, 6])
     sub = mix.subset(rows)
+    assert sub.values_m is not None and np.shares_memory(sub.values_m, mix.values_m)
     back = pickle.loads(pickle.dumps(sub))
+    assert back.rows is None and back.matrix.shape == (2, back.values_m.shape[0])
     assert back.values_m.shape[0] == np.unique(weights[rows].indices).size <= 14
     assert np.array_equal(back.columns(), mix.columns(rows))
     assert len(pickle.dumps(sub)) < len(pickle.dumps(mix)) / 20

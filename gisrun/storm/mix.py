@@ -9,8 +9,9 @@ subcatchments x sources) and ``low``, and makes the columns of any subcatchments
 (:meth:`SourceMix.columns`) with the compiled kernels of :mod:`gisrun.storm.mix_kernels`.
 The matrix of every subcatchment and step (28.8 million values for 100,000 subcatchments x
 288 steps, 2.5 times the bytes of a 1 km grid over them) is never needed whole: a run makes
-each chunk's columns when the chunk runs (:meth:`SourceMix.subset` gives a chunk the sources
-it uses and nothing more).
+each chunk's columns when the chunk runs (:meth:`SourceMix.subset`: in one process a chunk's
+mix shares the run's sources and weights and names its rows; sent to another, it takes its own
+weights and the sources they use, and nothing more).
 
 Two more mixes hold what is not a mean, with ``low = 0``, to the bit:
 
@@ -56,31 +57,38 @@ class SourceMix:
     values_m : ndarray, shape (sources, steps)
         Each source's rain depth in each step, m, a source's series together (C order;
         checked by whoever makes the mix: finite and >= 0 wherever a weight uses it).
-    matrix : scipy.sparse.csr_array, shape (subcatchments, sources)
-        Each subcatchment's weights of the sources (finite, >= 0); a row of a mean adds up to 1.
+    matrix : scipy.sparse.csr_array, shape (rows, sources)
+        Weights of the sources (finite, >= 0), a row per subcatchment; a row of a mean adds up
+        to 1.
     low_m : ndarray, shape (steps,)
         Taken off each used source value before weighting and added back after, m (>= 0 and
         at most each step's smallest used value; 0 for a mix that is not a mean).
     factors : tuple of float
         Multiplied into every column, in order, after the mean (:meth:`scaled`).
+    rows : ndarray of int, optional
+        The rows of ``matrix`` that are this mix's subcatchments, in order (default: every
+        row). A chunk's mix (:meth:`subset`) shares its run's sources and weights and names
+        its rows.
 
     Raises
     ------
     StormError
-        If the shapes disagree or a weight or ``low_m`` is not a finite number >= 0.
+        If the shapes disagree, a row is out of range, or a weight or ``low_m`` is not a
+        finite number >= 0.
     """
 
     values_m: FloatArray
     matrix: sparse.csr_array
     low_m: FloatArray
     factors: tuple[float, ...] = ()
+    rows: NDArray[np.int64] | None = None
 
     def __post_init__(self) -> None:
-        values = np.ascontiguousarray(self.values_m, dtype=np.float64).view()
+        values = np.ascontiguousarray(self.values_m, dtype=np.float64)
         matrix = sparse.csr_array(self.matrix)
         matrix.indices = matrix.indices.astype(np.int64, copy=False)
         matrix.indptr = matrix.indptr.astype(np.int64, copy=False)
-        low = np.ascontiguousarray(self.low_m, dtype=np.float64).view()
+        low = np.ascontiguousarray(self.low_m, dtype=np.float64)
         if values.ndim != 2 or low.shape != (values.shape[1],) or \
                 matrix.shape[1] != values.shape[0]:
             raise StormError("areal rain", f"has sources of shape {values.shape}, weights of "
@@ -91,12 +99,24 @@ class SourceMix:
             if np.any(bad):
                 raise StormError("areal rain", f"has {what} of {float(data[np.argmax(bad)])!r}",
                                  "give finite values >= 0")
-        values.setflags(write=False)  # frozen (a view: the array handed in keeps its own flags)
-        low.setflags(write=False)
-        object.__setattr__(self, "values_m", values)
-        object.__setattr__(self, "matrix", matrix)
-        object.__setattr__(self, "low_m", low)
-        object.__setattr__(self, "factors", tuple(float(f) for f in self.factors))
+        rows = None if self.rows is None else np.array(self.rows, dtype=np.int64).reshape(-1)
+        if rows is not None and rows.size and not 0 <= rows.min() <= rows.max() < \
+                matrix.shape[0]:
+            raise StormError("areal rain", f"names rows {rows.min()} to {rows.max()} of "
+                             f"weights of {matrix.shape[0]} rows", "give rows in range")
+        self._set(values, matrix, low, tuple(float(f) for f in self.factors), rows)
+
+    def _set(self, values: FloatArray, matrix: sparse.csr_array, low: FloatArray,
+             factors: tuple[float, ...], rows: NDArray[np.int64] | None) -> None:
+        """Fill the fields of a checked mix; arrays as read-only views (what was handed in
+        keeps its own flags)."""
+        views = [None if a is None else a.view() for a in (values, low, rows)]
+        for view in views:
+            if view is not None:
+                view.setflags(write=False)
+        for name, value in (("values_m", views[0]), ("matrix", matrix), ("low_m", views[1]),
+                            ("factors", factors), ("rows", views[2])):
+            object.__setattr__(self, name, value)
 
     @property
     def steps(self) -> int:
@@ -106,7 +126,7 @@ class SourceMix:
     @property
     def size(self) -> int:
         """Number of subcatchments (columns)."""
-        return int(self.matrix.shape[0])
+        return int(self.matrix.shape[0] if self.rows is None else self.rows.size)
 
     def columns(self, rows: Rows = None) -> FloatArray:
         """Rain depth per step of the subcatchments ``rows`` (default all), m.
@@ -116,11 +136,12 @@ class SourceMix:
         ndarray, shape (steps, len(rows))
             Fortran order: each subcatchment's steps lie together.
         """
-        m = self._rows(rows)
-        out = np.empty((self.steps, m.shape[0]), dtype=np.float64, order="F")
+        picked = self._picked(rows)
+        out = np.empty((self.steps, picked.size), dtype=np.float64, order="F")
         if out.size == 0:
             return out
-        mix_columns(m.indptr, m.indices, m.data, self.values_m, self.low_m, out.T)
+        m = self.matrix
+        mix_columns(picked, m.indptr, m.indices, m.data, self.values_m, self.low_m, out.T)
         for factor in self.factors:
             out *= factor
         return out
@@ -128,16 +149,19 @@ class SourceMix:
     def subset(self, rows: NDArray[np.intp]) -> SourceMix:
         """The mix of the subcatchments ``rows`` only; its columns are theirs here, to the bit.
 
-        Shares this mix's source values (no copy); pickled (a chunk sent to another
-        process), it takes only the sources its rows use.
+        Shares this mix's sources and weights (no copy, nothing checked again); pickled (a
+        chunk sent to another process), it takes only its own weights and the sources they use.
         """
-        return SourceMix(self.values_m, self._rows(np.asarray(rows, dtype=np.intp)), self.low_m,
-                         self.factors)
+        mix = object.__new__(SourceMix)
+        mix._set(self.values_m, self.matrix, self.low_m, self.factors,
+                 self._picked(np.asarray(rows)))
+        return mix
 
     def __reduce__(self) -> tuple[type[SourceMix], tuple[object, ...]]:
-        """Pickle the sources the weights use, and nothing more (same columns, to the bit)."""
-        used = np.unique(self.matrix.indices)
-        m = self.matrix
+        """Pickle its own weights and the sources they use, and nothing more (same columns,
+        to the bit)."""
+        m = self.matrix if self.rows is None else self.matrix[self.rows]
+        used = np.unique(m.indices)
         kept = sparse.csr_array((m.data, np.searchsorted(used, m.indices), m.indptr),
                                 shape=(m.shape[0], used.size))
         return SourceMix, (self.values_m[used], kept, self.low_m, self.factors)
@@ -177,13 +201,29 @@ class SourceMix:
             spread += share[None, block] @ (self.columns(block) - low).T
         return (low + spread.T)[:, 0]
 
-    def _rows(self, rows: Rows) -> sparse.csr_array:
+    def _picked(self, rows: Rows) -> NDArray[np.int64]:
+        """The rows of :attr:`matrix` of this mix's subcatchments ``rows`` (default all).
+
+        ``rows`` as numpy indexes them (positions, negative from the end, a slice or a
+        boolean mask); a position out of range is an IndexError (the kernel reads what it is
+        given unchecked).
+        """
+        n = self.size
         if rows is None:
-            return self.matrix
-        m = self.matrix[rows]
-        m.indices = m.indices.astype(np.int64, copy=False)
-        m.indptr = m.indptr.astype(np.int64, copy=False)
-        return m
+            return np.arange(n, dtype=np.int64) if self.rows is None else self.rows
+        if isinstance(rows, slice):
+            local = np.arange(*rows.indices(n), dtype=np.int64)
+        else:
+            local = np.asarray(rows)
+            if local.dtype == np.bool_ and local.shape != (n,):
+                raise IndexError(f"a mask of shape {local.shape} for {n} subcatchments")
+            local = np.flatnonzero(local) if local.dtype == np.bool_ else \
+                local.astype(np.int64, copy=False).reshape(-1)
+            if local.size and not -n <= local.min() <= local.max() < n:
+                raise IndexError(f"a position of {local.min()} to {local.max()} is out of "
+                                 f"range for {n} subcatchments")
+            local = np.where(local < 0, local + n, local)
+        return local if self.rows is None else self.rows[local]
 
 
 def identity_mix(depth_m: ArrayLike) -> SourceMix:

@@ -6,9 +6,11 @@ low)``, which runs over contiguous memory, step after step, and vectorises. Two 
 
 - :func:`gather_block`: a block of a rain stack as it is read, ``(steps, height * width)``,
   into the kept sources (its used cells, by series), taking each step's smallest used value and
-  telling whether every used value is finite and >= 0, in one pass over the block;
-- :func:`mix_columns`: the columns of some subcatchments, each straight into its row of the
-  result (a subcatchment of one to four sources has its own loop without an accumulator).
+  telling whether every used value is finite and >= 0;
+- :func:`mix_columns`: the columns of some subcatchments (rows of the weights, picked by
+  position: a chunk's subcatchments need no weights of their own), each straight into its row
+  of the result (a subcatchment of one to four sources has its own loop without an
+  accumulator).
 
 Same bits as scipy: for each subcatchment and step the sum runs over its CSR row in storage
 order, starting from 0, ``acc = acc + w * (x - low)`` with one rounding for the difference,
@@ -25,10 +27,10 @@ from numpy.typing import NDArray
 
 __all__ = ["gather_block", "mix_columns"]
 
-#: Cells of the stack moved per pass over a block's steps in :func:`gather_block`: 32 cells of
-#: a kept row are 32 lines being written while the block's rows are read (common practice for
-#: a cache-blocked transpose; 16 to 128 measured alike here).
-_CELLS_AT_ONCE = 32
+#: Cells of the stack moved together in :func:`gather_block`: each cell's steps are copied in
+#: turn, and the next cells' values sit in the lines the first cell's reads brought into cache
+#: (16 cells: two lines of a row; 4 to 32 measured alike here, whole 8 x 8 tiles slower).
+_CELLS_AT_ONCE = 16
 
 
 @numba.njit(cache=True, nogil=True)
@@ -54,35 +56,46 @@ def gather_block(block: NDArray[np.float64], cells: NDArray[np.int64], first: in
     bool
         Whether every used value is finite and >= 0 (``low`` is meaningful only then; the
         caller names the first bad value with :func:`gisrun.storm.gridded_kernels.scan_block`).
+
+    Notes
+    -----
+    Two passes: the copy, each kept row written in order; then the check and the minima over
+    the kept rows just written, step by step across a row (no NaN can reach a minimum
+    unnoticed: a NaN fails the check).
     """
     k = block.shape[0]
     n = cells.size
-    low[:] = np.inf
-    good = True
     for c0 in range(0, n, _CELLS_AT_ONCE):
-        c1 = min(n, c0 + _CELLS_AT_ONCE)
+        for c in range(c0, min(n, c0 + _CELLS_AT_ONCE)):
+            cell = cells[c]
+            row = kept[c]
+            for j in range(k):
+                row[first + j] = block[j, cell]
+    low[:] = np.inf
+    bad = np.zeros(k, dtype=np.bool_)
+    for c in range(n):
+        row = kept[c]
         for j in range(k):
-            row = block[j]
-            lo = low[j]
-            for c in range(c0, c1):
-                v = row[cells[c]]
-                kept[c, first + j] = v
-                good &= v >= 0.0 and v < np.inf
-                lo = min(lo, v)
-            low[j] = lo
-    return good
+            v = row[first + j]
+            low[j] = v if v < low[j] else low[j]
+            bad[j] |= ~((v >= 0.0) & (v < np.inf))
+    return not bad.any()
 
 
 @numba.njit(cache=True, nogil=True)
-def mix_columns(indptr: NDArray[np.int64], indices: NDArray[np.int64],
-                weight: NDArray[np.float64], kept: NDArray[np.float64],
-                low: NDArray[np.float64], out: NDArray[np.float64]) -> None:
-    """``out[s, j] = low[j] + sum_p weight[p] (kept[indices[p], j] - low[j])`` per CSR row ``s``.
+def mix_columns(rows: NDArray[np.int64], indptr: NDArray[np.int64],
+                indices: NDArray[np.int64], weight: NDArray[np.float64],
+                kept: NDArray[np.float64], low: NDArray[np.float64],
+                out: NDArray[np.float64]) -> None:
+    """``out[s, j] = low[j] + sum_p weight[p] (kept[indices[p], j] - low[j])`` over CSR row
+    ``rows[s]``.
 
     Parameters
     ----------
+    rows : ndarray of int64
+        The CSR rows (subcatchments) wanted, in the order of ``out``'s rows.
     indptr, indices, weight : ndarray
-        The rows' CSR weights (subcatchments x sources).
+        The CSR weights (subcatchments x sources).
     kept : ndarray, shape (sources, steps)
         Each source's series, C order.
     low : ndarray, shape (steps,)
@@ -91,8 +104,8 @@ def mix_columns(indptr: NDArray[np.int64], indices: NDArray[np.int64],
     """
     k = kept.shape[1]
     acc = np.empty(k)
-    for s in range(indptr.size - 1):
-        p, stop = indptr[s], indptr[s + 1]
+    for s in range(rows.size):
+        p, stop = indptr[rows[s]], indptr[rows[s] + 1]
         o = out[s]
         if stop - p == 1:
             w0, x0 = weight[p], kept[indices[p]]
