@@ -24,7 +24,7 @@ from .engine import LossResult
 from .grid.classes import ClassGrid
 from .grid.polygons import ClassPolygons
 from .project import Project, UncertaintySettings
-from .storm import Hyetograph
+from .storm import Hyetograph, StepRain
 
 __all__ = ["CAUTION", "BAND_CAUTION", "GridSpec", "CellRasters", "Inputs", "StormResult",
            "UncertaintyResult", "RunResult"]
@@ -91,9 +91,10 @@ class StormResult:
     """Results of one storm: per subcatchment, per unit, and the step series (SI columns)."""
 
     hyetograph: Hyetograph
-    #: Rain depth per run step (the storm resampled once onto the run's step), m: ``(steps,)``,
-    #: or for a storm with areal rain ``(steps, subcatchments)`` in the layer's order.
-    rain_per_step_m: NDArray[np.float64]
+    #: The storm on the run's step (resampled once), m: ``(steps,)``, or for a storm with areal
+    #: rain ``(steps, subcatchments)`` in the layer's order, which a whole run's result makes
+    #: only when asked (:class:`gisrun.storm.StepRain`; see :attr:`rain_per_step_m`).
+    step_rain: StepRain
     #: The storm's polygon layer in the GeoPackage (``runoff_<storm>``), unique in the run.
     layer_name: str
     #: The storm's part of raster, map and plot file names, unique in the run.
@@ -105,6 +106,19 @@ class StormResult:
     units: pd.DataFrame | None
     #: Per-unit step arrays, kept for plots by runs small enough; None otherwise.
     loss: LossResult | None
+
+    @property
+    def rain_per_step_m(self) -> NDArray[np.float64]:
+        """Rain depth per run step, m: ``(steps,)``, or ``(steps, subcatchments)``.
+
+        Areal rain is made whole when asked (8 bytes per step and subcatchment).
+        """
+        return self.step_rain.whole()
+
+    @property
+    def steps(self) -> int:
+        """Number of run steps."""
+        return self.step_rain.steps
 
     @property
     def name(self) -> str:

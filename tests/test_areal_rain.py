@@ -145,6 +145,14 @@ def test_each_subcatchment_gets_its_own_column(demo):
                        "time_to_ponding_s"):
             np.testing.assert_allclose(got.loc[chosen, column], want[column], rtol=1e-12)
     assert areal.rain_per_step_m.shape == (len(h.depth_m), len(ids))
+    # The run's result holds no (steps, subcatchments) matrix; made when asked, it is each
+    # subcatchment's own series, in the layer's order (built above from the hyetograph).
+    assert areal.step_rain.values_m is None and areal.steps == len(h.depth_m)
+    for i, sub in enumerate(ids):
+        np.testing.assert_allclose(areal.rain_per_step_m[:, i],
+                                   h.depth_m * (2.0 if sub in doubled else 1.0), rtol=1e-12)
+    assert np.array_equal(areal.step_rain.columns(np.array([3, 0])),
+                          areal.rain_per_step_m[:, [3, 0]])
     total = got["rain_depth_m"].to_numpy()
     assert total.max() == pytest.approx(2 * total.min(), rel=1e-12)
 

@@ -29,6 +29,7 @@ from .hyetograph import (
 from .idf import IdfFormula, IdfTable
 from .mix import SourceMix, gauge_mix, identity_mix, scaling_mix
 from .resampling import peak_window_s, resampling_note
+from .step_rain import StepRain
 
 __all__ = [
     "ArealRain",
@@ -40,6 +41,7 @@ __all__ = [
     "areal_storm",
     "weighted_mean",
     "SourceMix",
+    "StepRain",
     "gauge_mix",
     "identity_mix",
     "scaling_mix",

@@ -108,8 +108,10 @@ class SourceMix:
 
     def _set(self, values: FloatArray, matrix: sparse.csr_array, low: FloatArray,
              factors: tuple[float, ...], rows: NDArray[np.int64] | None) -> None:
-        """Fill the fields of a checked mix; arrays as read-only views (what was handed in
-        keeps its own flags)."""
+        """Fill the fields of a checked mix.
+
+        Arrays as read-only views: what was handed in keeps its own flags.
+        """
         views = [None if a is None else a.view() for a in (values, low, rows)]
         for view in views:
             if view is not None:
@@ -158,8 +160,10 @@ class SourceMix:
         return mix
 
     def __reduce__(self) -> tuple[type[SourceMix], tuple[object, ...]]:
-        """Pickle its own weights and the sources they use, and nothing more (same columns,
-        to the bit)."""
+        """Pickle its own weights and the sources they use, and nothing more.
+
+        The columns made after are the same, to the bit.
+        """
         m = self.matrix if self.rows is None else self.matrix[self.rows]
         used = np.unique(m.indices)
         kept = sparse.csr_array((m.data, np.searchsorted(used, m.indices), m.indptr),

@@ -87,8 +87,9 @@ def mix_columns(rows: NDArray[np.int64], indptr: NDArray[np.int64],
                 indices: NDArray[np.int64], weight: NDArray[np.float64],
                 kept: NDArray[np.float64], low: NDArray[np.float64],
                 out: NDArray[np.float64]) -> None:
-    """``out[s, j] = low[j] + sum_p weight[p] (kept[indices[p], j] - low[j])`` over CSR row
-    ``rows[s]``.
+    """``out[s, j] = low[j] + sum_p weight[p] (kept[indices[p], j] - low[j])``, row ``rows[s]``.
+
+    The sum runs over CSR row ``rows[s]`` of the weights.
 
     Parameters
     ----------

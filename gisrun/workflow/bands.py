@@ -23,6 +23,7 @@ from numpy.typing import NDArray
 from ..errors import InputError
 from ..model import Inputs, StormResult, UncertaintyResult
 from ..project import Project
+from ..storm import StepRain
 from ..uncertainty import (
     BandStorms,
     ChunkInputs,
@@ -104,17 +105,20 @@ def check_named_ids(project: Project, inputs: Inputs) -> None:
 
 
 def combine_uncertainty(project: Project, inputs: Inputs, chunk_parts: list[ChunkParts | None],
-                        rains: Sequence[NDArray[np.float64]],
+                        step_rains: Sequence[StepRain],
                         ordered: Callable[[list[pd.DataFrame]], pd.DataFrame],
                         coverage: pd.DataFrame) -> UncertaintyResult | None:
     """The run's uncertainty result: the run-wide sample runs, then each chunk's bands.
 
     ``coverage`` is the run's coverage table (its ``area_m2`` picks the largest
-    subcatchments for the tornado figures when the project names none).
+    subcatchments for the tornado figures when the project names none). A storm of areal
+    rain is made whole here (``(steps, subcatchments)``), and only for a run with
+    ``[uncertainty]``.
     """
     settings = project.uncertainty
     if settings is None or not chunk_parts or any(p is None for p in chunk_parts):
         return None
+    rains = [r.whole() for r in step_rains]
     ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
     position = pd.Series(np.arange(len(ids)), index=ids)
     storms = BandStorms(tuple(h.name for h in inputs.storms), tuple(rains),

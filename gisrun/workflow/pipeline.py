@@ -28,7 +28,7 @@ from ..io.overlay_cache import load_overlay, overlay_key, save_overlay
 from ..model import CellRasters, Inputs, RunResult, StormResult
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
-from ..storm import Hyetograph
+from ..storm import Hyetograph, StepRain
 from .bands import check_named_ids, combine_uncertainty
 from .cells import compute_cells
 from .checksums import dataset_files, file_sha256, input_checksums
@@ -300,7 +300,7 @@ def _cached_overlay(project: Project, datasets: dict[Path, list[Path] | None],
     return key, load_overlay(project.overlay_cache, key)
 
 
-def _combine(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64], ...],
+def _combine(project: Project, inputs: Inputs, rains: tuple[StepRain, ...],
              outputs: list[ChunkOutput], started: str, notes: list[str], *,
              checksums: dict[str, str], cells: CellRasters | None) -> RunResult:
     """Put chunk outputs together in the subcatchment layer's row order."""
@@ -336,13 +336,13 @@ def _combine(project: Project, inputs: Inputs, rains: tuple[NDArray[np.float64],
     )
 
 
-def _storm(k: int, hyetograph: Hyetograph, rain: NDArray[np.float64], outputs: list[ChunkOutput],
+def _storm(k: int, hyetograph: Hyetograph, rain: StepRain, outputs: list[ChunkOutput],
            ordered: Callable[[list[pd.DataFrame]], pd.DataFrame], kept_units: bool
            ) -> StormResult:
     kept_series = all(o.storm_series for o in outputs)
     return StormResult(
         hyetograph=hyetograph,
-        rain_per_step_m=rain,
+        step_rain=rain,
         layer_name=storm_layer_name(hyetograph.name),
         file_stem=layer_name(hyetograph.name),
         subcatchments=ordered([o.storm_subcatchments[k] for o in outputs]),

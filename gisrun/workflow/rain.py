@@ -21,7 +21,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from ..model import Inputs
 from ..project import Project
-from ..storm import Hyetograph, resampling_note
+from ..storm import Hyetograph, StepRain, resampling_note
 
 __all__ = ["run_rain", "run_rains", "run_steps", "chunk_storms", "chunk_rains", "whole_rains",
            "unit_rain"]
@@ -92,14 +92,18 @@ def chunk_rains(storms: Sequence[Hyetograph], rains: Sequence[FloatArray | None]
 
 
 def whole_rains(project: Project, inputs: Inputs, rains: Sequence[FloatArray | None]
-                ) -> tuple[FloatArray, ...]:
-    """:func:`chunk_rains` for every subcatchment of the layer, in its order (the run's result).
+                ) -> tuple[StepRain, ...]:
+    """Each storm's rain on the run's step for every subcatchment of the layer, in its order.
 
-    A storm of areal rain is made whole here, once, a block of columns at a time
-    (:meth:`gisrun.storm.ArealRain.resample`): ``(steps, subcatchments)``.
+    A plain storm's series is held (:func:`run_rains`' own); a storm of areal rain is not
+    made here: its :class:`gisrun.storm.StepRain` makes the columns, in the layer's order,
+    when something asks (they are ``(steps, subcatchments)``, more than a large run's memory
+    budget; the chunks made theirs while they ran).
     """
     sub_ids = inputs.subcatchments["subcatchment_id"].to_numpy(dtype=object)
-    return chunk_rains(inputs.storms, rains, project.time_step_s, sub_ids)
+    return tuple(StepRain.held(rain) if rain is not None else StepRain.of_areal(
+        h.areal, h.areal.positions(sub_ids, f"storm {h.name!r}"), project.time_step_s)
+        for h, rain in zip(inputs.storms, rains, strict=True))
 
 
 def unit_rain(rain: FloatArray, unit_sub_ids: ArrayLike, sub_ids: ArrayLike,

@@ -40,7 +40,7 @@ from ..parameters.keyed import table_impervious_shares
 from ..present.layers import layer_name, storm_layer_name
 from ..project import Project
 from ..runon import run_with_runon
-from ..storm import Hyetograph
+from ..storm import Hyetograph, StepRain
 from .inputs import check_inputs_codes
 from .polygon_inputs import class_layer_sources
 from .rain import run_rain, unit_rain
@@ -262,7 +262,7 @@ def run_storm(
     subs = summarize_subcatchments(loss, params, sub_ids, dt_s, totals=totals)
     for name in ("rain", "infiltration", "excess"):
         series[f"{name}_intensity_m_per_s"] = series[f"{name}_m"] / dt_s
-    return StormResult(hyetograph=hyetograph, rain_per_step_m=rain,
+    return StormResult(hyetograph=hyetograph, step_rain=StepRain.held(rain),
                        layer_name=storm_layer_name(hyetograph.name),
                        file_stem=layer_name(hyetograph.name), subcatchments=subs,
                        series=series, units=units, loss=loss)

@@ -50,7 +50,7 @@ def write_outputs(
                          "them; write large runs with run_and_write")
     target = Path(output) if output else result.project.output
     refuse_inputs_among([target], result.project.input_files())
-    rows = len(result.subcatchments) * sum(len(s.rain_per_step_m) for s in result.storms)
+    rows = len(result.subcatchments) * sum(s.steps for s in result.storms)
     if series_store(result.project.series, rows) == "geopackage":
         return write_geopackage(target, build_layers(result), overwrite=overwrite)
     final = series_path(target)
