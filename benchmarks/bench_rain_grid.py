@@ -21,6 +21,9 @@ It measures, interleaved (``--repeat`` rounds, the fastest of each kept):
   install), is timed apart before the rounds;
 - whole: ``grid_areal_depth(weights, stack)``, every column at once (the whole matrix, as the
   areal rain was made before it was made by chunks), for comparison;
+- the areal rain's two parts, to show where its time goes: keep, ``grid_rain_mix`` alone (the
+  stack read, checked and its used cells kept by series), and columns, the chunks' columns
+  from a mix made before the round (``mix.subset(rows).columns()`` per chunk);
 - weights: ``gisrun.grid.rain_weights.rain_grid_weights`` (made once per run, shown apart).
 
 Target: areal within 2x read; memory bounded by the run's budget (the areal call's peak traced
@@ -112,7 +115,12 @@ def read_once(stack) -> int:
 
 def areal_by_chunks(weights, stack, chunks) -> int:
     """The areal rain as a run makes it: the mix, then each chunk's columns; values made."""
-    mix, made = grid_rain_mix(weights, stack)[0], 0
+    return chunk_columns(grid_rain_mix(weights, stack)[0], chunks)
+
+
+def chunk_columns(mix, chunks) -> int:
+    """Each chunk's columns of ``mix``, each dropped once made; values made."""
+    made = 0
     for rows in chunks:
         made += mix.subset(rows).columns().size
     return made
@@ -152,7 +160,7 @@ def main(argv: list[str] | None = None) -> int:
     whole = grid_areal_depth(weights, stacks["plain"])
     mix = grid_rain_mix(weights, stacks["plain"])[0]
     same = all(np.array_equal(mix.subset(rows).columns(), whole[:, rows]) for rows in chunks)
-    del whole, mix
+    del whole
     times: dict[str, list[float]] = {}
     load = [os.getloadavg()[0]]
     for _ in range(args.repeat):  # interleaved, the fastest of each kept
@@ -162,6 +170,10 @@ def main(argv: list[str] | None = None) -> int:
                 timed(areal_by_chunks, weights, stack, chunks)[0])
             times.setdefault(f"whole {kind}", []).append(
                 timed(grid_areal_depth, weights, stack)[0])
+            times.setdefault(f"keep {kind}", []).append(
+                timed(grid_rain_mix, weights, stack)[0])
+        times.setdefault("columns", []).append(timed(chunk_columns, mix, chunks)[0])
+    del mix
     load.append(os.getloadavg()[0])
     peak = {}
     for name, call in (("areal", lambda: areal_by_chunks(weights, stacks["plain"], chunks)),
@@ -187,6 +199,11 @@ def _report(args, stack, weights, once, best, peak) -> None:
                                ("areal rain, all steps, by chunks",
                                 "grid_rain_mix, then mix.subset(rows).columns() per chunk"),
                                ("whole matrix at once", "grid_areal_depth(weights, stack)"))]
+    rows += [(f"  of which keep, {kind} NetCDF", best[f"keep {kind}"],
+              "grid_rain_mix(weights, stack): read, check, keep used cells by series")
+             for kind in ("plain", "deflate")]
+    rows.append(("  of which columns, every chunk", best["columns"],
+                 "mix.subset(rows).columns() per chunk, from a mix made before"))
     rows.append(("weights (once per run)", t_weights,
                  "rain_grid_weights(subcatchments.geometry, ids, stack)"))
     rows.append(("first areal call in the process, plain", t_first,
