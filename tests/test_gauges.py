@@ -10,6 +10,7 @@ uniform storm's GeoPackage tables exactly (issue acceptance).
 from __future__ import annotations
 
 import dataclasses
+from fractions import Fraction
 from pathlib import Path
 
 import geopandas as gpd
@@ -96,6 +97,31 @@ def test_fill_gaps_by_the_same_weighting():
     with pytest.raises(StormError, match="no gauge has rain in step 2"):
         fill_gaps(np.array([[1.0, 1.0], [np.nan, np.nan]]), gauges[:2], ["a", "b"],
                   "thiessen", 2.0)
+
+
+def test_inverse_distance_with_a_large_power_on_far_gauges_by_exact_arithmetic():
+    # d = 1000 and 3000 m, power 400: d^-p underflows to 0 in floating point for both, which
+    # gave 0 / 0 weights; Shepard's d^-p / sum d^-p in exact rational arithmetic (fractions)
+    # is the reference
+    from_fractions = Fraction(1000) ** -400 / (Fraction(1000) ** -400 + Fraction(3000) ** -400)
+    gauges = _points((0, 0), (4000, 0))
+    polygons = np.array([shapely.box(0, -1000, 2000, 1000)], dtype=object)  # centroid (1000, 0)
+    got = inverse_distance_weights(gauges, polygons, 400.0)
+    np.testing.assert_allclose(got[0], [float(from_fractions), float(1 - from_fractions)],
+                               rtol=1e-15, atol=1e-300)
+    filled, _ = fill_gaps(np.array([[np.nan, 2.0, 4.0]]), _points((1000, 0), (0, 0), (4000, 0)),
+                          ["a", "b", "c"], "inverse_distance", 400.0)
+    assert filled[0, 0] == pytest.approx(2.0 * float(from_fractions) + 4.0 * float(
+        1 - from_fractions), rel=1e-15)
+
+
+def test_inverse_distance_fill_takes_a_gauge_at_the_same_place_whole():
+    # Shepard (1968): at a data point the interpolant is that point's value; b stands where a
+    # does, so a's gap takes b's value (it was 0 * inf = nan)
+    gauges = _points((0, 0), (0, 0), (3, 0))
+    depth = np.array([[1.0, 2.0, 4.0], [np.nan, 2.5, 4.0]])
+    filled, _ = fill_gaps(depth, gauges, ["a", "b", "c"], "inverse_distance", 2.0)
+    np.testing.assert_array_equal(filled[1], [2.5, 2.5, 4.0])
 
 
 def test_two_gauges_at_one_place_are_refused():

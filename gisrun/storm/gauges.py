@@ -143,9 +143,8 @@ def fill_gaps(depth_m: FloatArray, gauges: Geometries, ids: Sequence[str], weigh
             filled[steps, g] = depth_m[steps, np.argmin(near, axis=1)]
             how = "the nearest gauge with data (Thiessen)"
         else:
-            with np.errstate(divide="ignore"):  # the gauge itself (d = 0) is not among them
-                w = np.where(have, dist[g][None, :] ** -power, 0.0)
-            filled[steps, g] = (w * np.nan_to_num(depth_m[steps])).sum(axis=1) / w.sum(axis=1)
+            w = _idw(np.where(have, dist[g][None, :], np.inf), power)
+            filled[steps, g] = (w * np.nan_to_num(depth_m[steps])).sum(axis=1)
             how = f"the inverse-distance mean of the others (power {power:g})"
         notes.append(f"gauge {ids[g]!r}: {steps.size} missing step(s) filled from {how}")
     return filled, notes
@@ -156,9 +155,16 @@ def _distances(a: FloatArray, b: FloatArray) -> FloatArray:
 
 
 def _idw(dist: FloatArray, power: float) -> FloatArray:
+    """Shepard weights per row of distances (inf: left out); a gauge at d = 0 takes it all.
+
+    Distances are divided by the row's nearest before the power, so the weights cannot all
+    underflow to zero (metres to the power 400, or km to the power 100, would) nor overflow:
+    the nearest gauge weighs 1 and the others less, the same ratios as ``d^-p``.
+    """
     on = dist == 0.0
-    with np.errstate(divide="ignore"):
-        w = np.where(on, 0.0, dist ** -power)
+    near = dist.min(axis=1, keepdims=True)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = np.where(on, 0.0, (dist / near) ** -power)
     w = np.where(on.any(axis=1, keepdims=True), on.astype(float), w)
     return w / w.sum(axis=1, keepdims=True)
 
