@@ -22,6 +22,7 @@ import geopandas as gpd
 import numpy as np
 import pyogrio
 import pytest
+import rasterio
 from affine import Affine
 from bad_inputs_helpers import (
     CRS,
@@ -125,6 +126,23 @@ def _rain_grid(toml: str = "", **kw: object) -> Callable[[Path], None]:
         write_rain_grid(d / "rain.nc", **kw)
         with open(d / "gisrun.toml", "a") as handle:
             handle.write(f'\n[[storms]]\nname = "radar"\nkind = "rain_grid"\npath = "rain.nc"\n'
+                         f"{toml}")
+    return add
+
+
+def _rain_tif(descriptions: list[str], toml: str = 'unit = "mm/h"\n') -> Callable[[Path], None]:
+    """A second storm from a multi-band GeoTIFF ``rain.tif`` (25 m cells, 10 mm/h), each band
+    described by the time given."""
+    def add(d: Path) -> None:
+        values = np.full((len(descriptions), 4, 4), 10.0, dtype=np.float32)
+        with rasterio.open(d / "rain.tif", "w", driver="GTiff", height=4, width=4,
+                           count=len(descriptions), dtype="float32", crs=CRS,
+                           transform=Affine(25.0, 0.0, X0, 0.0, -25.0, Y0 + 100.0)) as dst:
+            dst.write(values)
+            for band, text in enumerate(descriptions, start=1):
+                dst.set_band_description(band, text)
+        with open(d / "gisrun.toml", "a") as handle:
+            handle.write(f'\n[[storms]]\nname = "radar"\nkind = "rain_grid"\npath = "rain.tif"\n'
                          f"{toml}")
     return add
 
@@ -338,6 +356,14 @@ CASES: dict[str, Case] = {
         re.compile(r"rain\.nc:precip: has no rain value \(nodata\) at time "
                    r"2026-07-01T00:10:00 in cell r0_c0 used by subcatchment 'S1', nor any of "
                    r"the cells around it")),
+    "rain grid times going back after the second step": Case(
+        _rain_grid(minutes=[5.0, 10.0, 5.0]),  # was "irregular time step: ... -5 min"
+        re.compile(r"rain\.nc:precip: times do not increase \(2026-07-01T00:10:00, then "
+                   r"2026-07-01T00:05:00\)")),
+    "rain grid band times with and without a UTC offset": Case(  # was an internal TypeError
+        _rain_tif(["2026-07-01T00:05:00Z", "2026-07-01T00:10:00", "2026-07-01T00:15:00"]),
+        re.compile(r"rain\.tif: has times with and without a UTC offset \(2026-07-01T00:05:00"
+                   r"\+00:00, step 2 2026-07-01T00:10:00\)")),
     "rain grid in an unknown unit": Case(
         _rain_grid(units="furlongs"), re.compile(r"rain\.nc:precip: rain unit 'furlongs'")),
     # --- parameter overrides ------------------------------------------------------------------

@@ -160,6 +160,7 @@ def _steps(found: Any, settings: RainGridSettings) -> tuple[float, str, tuple[st
     where = found.where
     if not times:
         raise StormError(where, "has no time steps", "give a stack with at least one step")
+    _one_kind_of_time(times, where)
     if found.step_s is not None:  # the source's own step (CF time bounds)
         step = found.step_s
     elif len(times) > 1:
@@ -180,13 +181,25 @@ def _steps(found: Any, settings: RainGridSettings) -> tuple[float, str, tuple[st
     return step, _iso(start), tuple(_iso(t) for t in times)
 
 
+def _one_kind_of_time(times: list[Any], where: str) -> None:
+    """Refuse times some of which carry a UTC offset and some not (they cannot be compared)."""
+    aware = [getattr(t, "utcoffset", lambda: None)() is not None for t in times]
+    if any(aware) and not all(aware):
+        k = aware.index(not aware[0])
+        raise StormError(where, f"has times with and without a UTC offset ({_iso(times[0])}, "
+                         f"step {k + 1} {_iso(times[k])})",
+                         "write every time with its offset (e.g. 'Z' or '+02:00'), or none")
+
+
 def _regular_step(times: list[datetime], where: str) -> float:
     seconds = np.array([(t - times[0]).total_seconds() for t in times])
     steps = np.diff(seconds)
     step = float(steps[0])
-    if step <= 0:
-        raise StormError(where, f"times do not increase ({_iso(times[0])}, then "
-                         f"{_iso(times[1])})", "give the steps in time order")
+    back = np.flatnonzero(steps <= 0)
+    if back.size:
+        k = int(back[0])
+        raise StormError(where, f"times do not increase ({_iso(times[k])}, then "
+                         f"{_iso(times[k + 1])})", "give the steps in time order, each once")
     bad = np.flatnonzero(np.abs(steps - step) > STEP_TOLERANCE * step)
     if bad.size:
         k = int(bad[0])
