@@ -49,7 +49,8 @@ def describe(settings: RainGridSettings) -> FoundStack:
         name = _variable(ds, settings.variable, path)
         var = ds[name]
         where = f"{path.name}:{name}"
-        tdim, ydim, xdim = _dims(var, where)
+        tdim, ydim, xdim, _ = _dims(var, where)
+        _placed(ds, (xdim, ydim), where)
         times = _times(ds[tdim], f"{path.name}:{tdim}")
         step_s, start = _bounds(ds, tdim, times, f"{path.name}:{tdim}")
         x = np.asarray(ds[xdim].values, dtype=np.float64)
@@ -66,8 +67,9 @@ def read_steps(path: str, variable: str, first: int, stop: int, where: str
     """Values of ``variable`` at time steps ``first:stop``, ``(k, y, x)``; NaN where missing."""
     with _open(Path(path), decode_times=False) as ds:
         var = ds[variable]
-        tdim, ydim, xdim = _dims(var, where)
-        block = var.isel({tdim: slice(first, stop)}).transpose(tdim, ydim, xdim)
+        tdim, ydim, xdim, extra = _dims(var, where)
+        block = var.isel({tdim: slice(first, stop), **{d: 0 for d in extra}})
+        block = block.transpose(tdim, ydim, xdim)
         return np.array(block.values, dtype=np.float64)
 
 
@@ -95,7 +97,10 @@ def _time_error(path: Path, err: Exception) -> StormError:
 
 
 def _variable(ds: xr.Dataset, wanted: str | None, path: Path) -> str:
-    candidates = [str(n) for n, v in ds.data_vars.items() if v.ndim == 3]
+    candidates = [str(n) for n, v in ds.data_vars.items()
+                  if v.ndim >= 3 and sum(size > 1 for size in v.shape) <= 3]
+    if not candidates:  # one variable of more dimensions: its own dimensions are the message
+        candidates = [str(n) for n, v in ds.data_vars.items() if v.ndim >= 3]
     if wanted is not None:
         if wanted not in ds.data_vars:
             raise StormError(str(path), f"has no variable {wanted!r}",
@@ -107,17 +112,47 @@ def _variable(ds: xr.Dataset, wanted: str | None, path: Path) -> str:
     return candidates[0]
 
 
-def _dims(var: xr.DataArray, where: str) -> tuple[str, str, str]:
+def _dims(var: xr.DataArray, where: str) -> tuple[str, str, str, tuple[str, ...]]:
+    """The time, y and x dimensions, and any others (each of length 1, read at index 0)."""
     dims = [str(d) for d in var.dims]
-    if len(dims) != 3:
+    if len(dims) < 3:
         raise StormError(where, f"has dimensions {dims}", "give a variable on (time, y, x)")
     x = _axis(var, dims, "X", _X_NAMES)
     y = _axis(var, dims, "Y", _Y_NAMES)
     rest = [d for d in dims if d not in (x, y)]
-    if x is None or y is None or len(rest) != 1:
+    if x is None or y is None or not rest:
         raise StormError(where, f"has no recognisable x, y and time dimensions among {dims}",
                          "give the coordinates CF attributes (axis = 'X' / 'Y' / 'T')")
-    return rest[0], y, x
+    timed = [d for d in rest if _is_time(var, d)] if len(rest) > 1 else rest
+    extra = tuple(d for d in rest if d not in timed)
+    if len(timed) != 1 or any(var.sizes[d] != 1 for d in extra):
+        sizes = ", ".join(f"{d}: {var.sizes[d]}" for d in dims)
+        raise StormError(where, f"has dimensions ({sizes}), not (time, y, x)",
+                         "give a variable on (time, y, x) and a CF time coordinate (any other "
+                         "dimension must have length 1)")
+    return timed[0], y, x, extra
+
+
+def _is_time(var: xr.DataArray, dim: str) -> bool:
+    """Whether a dimension's coordinate is CF time (decoded or not)."""
+    if dim not in var.coords:
+        return dim.lower() == "time"
+    coord = var[dim]
+    units = str(coord.attrs.get("units") or coord.encoding.get("units") or "")
+    return (coord.dtype.kind == "M" or str(coord.attrs.get("axis", "")).upper() == "T"
+            or str(coord.attrs.get("standard_name", "")).lower() == "time"
+            or " since " in units or dim.lower() == "time")
+
+
+def _placed(ds: xr.Dataset, dims: tuple[str, str], where: str) -> None:
+    """Refuse a grid whose x or y dimension has no coordinate values (a curvilinear grid)."""
+    for dim in dims:
+        if dim not in ds.variables:
+            two_d = [str(n) for n, v in ds.variables.items() if v.ndim == 2 and dim in v.dims]
+            found = f" (only 2-D {', '.join(two_d)}: a curvilinear grid)" if two_d else ""
+            raise StormError(where, f"has no coordinate values along dimension {dim!r}{found}",
+                             "regrid the stack onto a regular grid with 1-D x and y (or "
+                             "longitude and latitude) coordinates")
 
 
 def _axis(var: xr.DataArray, dims: list[str], axis: str, names: dict[str, tuple[str, ...]]

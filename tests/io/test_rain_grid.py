@@ -76,6 +76,50 @@ def test_netcdf_grid_mapping_gives_the_crs(tmp_path):
     assert (stack.transform.c, stack.transform.f) == (500_000.0, 4_480_500.0)
 
 
+@pytest.mark.parametrize("dims", [("time", "level", "lat", "lon"), ("member", "time", "lat", "lon")])
+def test_netcdf_extra_dimension_of_length_one_reads_as_the_plain_stack(tmp_path, dims):
+    # (time, 1, y, x) as some products write it: the same values as the (time, y, x) variable
+    # (it stopped with "has 0 gridded variables []")
+    values = RNG.uniform(0, 30, (4, 3, 5))
+    plain = open_rain_grid(RainGridSettings(write_netcdf(tmp_path / "plain.nc", values)))
+    ds = xr.open_dataset(tmp_path / "plain.nc", decode_times=False).load()
+    extra = next(d for d in dims if d not in ("time", "lat", "lon"))
+    ds["precip"] = ds["precip"].expand_dims(extra).transpose(*dims)
+    ds.to_netcdf(tmp_path / "extra.nc")
+    stack = open_rain_grid(RainGridSettings(tmp_path / "extra.nc"))
+    assert (stack.labels, stack.step_s, stack.transform) == (plain.labels, plain.step_s,
+                                                             plain.transform)
+    np.testing.assert_array_equal(stack.read_steps(1, 4), plain.read_steps(1, 4))
+    np.testing.assert_allclose(stack.read_steps(0, 4), values * 5 / 60 / 1000, rtol=1e-12)
+
+
+def test_netcdf_extra_dimension_longer_than_one_is_a_one_line_error(tmp_path):
+    ds = xr.open_dataset(write_netcdf(tmp_path / "plain.nc", np.ones((4, 3, 5))),
+                         decode_times=False).load()
+    ds["precip"] = ds["precip"].expand_dims(member=3).transpose("time", "member", "lat", "lon")
+    ds.to_netcdf(tmp_path / "members.nc")
+    with pytest.raises(GisrunError, match=r"members\.nc:precip: has dimensions \(time: 4, "
+                       r"member: 3, lat: 3, lon: 5\), not \(time, y, x\)"):
+        open_rain_grid(RainGridSettings(tmp_path / "members.nc"))
+
+
+def test_netcdf_curvilinear_grid_is_refused_not_read_by_cell_index(tmp_path):
+    # x and y dimensions without coordinate values, the cells placed by 2-D lat and lon only:
+    # read as a grid of cells 1 unit wide at 0, 1, 2 ... (the run then said the grid did not
+    # cover the subcatchments)
+    lon, lat = np.meshgrid(-80.0 + 0.1 * np.arange(5), 40.0 + 0.1 * np.arange(3))
+    ds = xr.Dataset({"precip": (("time", "y", "x"), np.ones((2, 3, 5)),
+                                {"units": "mm h-1", "coordinates": "lat lon"})},
+                    coords={"time": ("time", [5.0, 10.0],
+                                     {"units": "minutes since 2026-07-01"}),
+                            "lat": (("y", "x"), lat, {"units": "degrees_north"}),
+                            "lon": (("y", "x"), lon, {"units": "degrees_east"})})
+    ds.to_netcdf(tmp_path / "curved.nc")
+    with pytest.raises(GisrunError, match=r"curved\.nc:precip: has no coordinate values along "
+                       r"dimension 'x' \(only 2-D lat, lon: a curvilinear grid\); regrid"):
+        open_rain_grid(RainGridSettings(tmp_path / "curved.nc", crs="EPSG:4326"))
+
+
 @pytest.mark.parametrize("case, message", [
     ("fortnights", r"r\.nc:time: time units 'fortnights since 2026-07-01' are not understood"),
     ("no_since", r"r\.nc:time: has no CF time units"),
