@@ -76,7 +76,8 @@ def test_netcdf_grid_mapping_gives_the_crs(tmp_path):
     assert (stack.transform.c, stack.transform.f) == (500_000.0, 4_480_500.0)
 
 
-@pytest.mark.parametrize("dims", [("time", "level", "lat", "lon"), ("member", "time", "lat", "lon")])
+@pytest.mark.parametrize("dims", [("time", "level", "lat", "lon"),
+                                  ("member", "time", "lat", "lon")])
 def test_netcdf_extra_dimension_of_length_one_reads_as_the_plain_stack(tmp_path, dims):
     # (time, 1, y, x) as some products write it: the same values as the (time, y, x) variable
     # (it stopped with "has 0 gridded variables []")
