@@ -14,6 +14,7 @@ import os
 import re
 import subprocess
 import sys
+import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -41,6 +42,8 @@ from bad_inputs_helpers import (
 )
 from polygon_helpers import soil_layer
 from shapely.geometry import LineString, Point, Polygon
+
+from gisrun.errors import GisrunWarning
 
 BOTH = ("check", "run")
 
@@ -709,6 +712,11 @@ def _override_for_absent_class(d: Path) -> None:
 
 
 WARNING_CASES = {
+    # the run's summary printed "gisrun.toml:[] 2" (rich read "[[storms]]" as markup)
+    "rain grid gap filled from the cells around it": (
+        _rain_grid("fill_gaps = true\n", nodata_at=(1, 2, 3)),
+        re.compile(r"gisrun\.toml:\[\[storms\]\] 2: 1 missing value\(s\) of the rain grid .* "
+                   r"the first at time 2026-07-01T00:10:00 in cell r2_c3")),
     "self-intersecting polygon is repaired": (_bowtie_s2, re.compile(r"sub\.gpkg.*repaired.*S2")),
     "invalid ring with a spike is repaired": (_ring_with_spike_s1,
                                               re.compile(r"sub\.gpkg.*repaired.*S1")),
@@ -746,9 +754,14 @@ def test_warning_lets_the_run_finish_and_is_recorded(tmp_path, capsys, name):
     assert code == 0, err
     assert any(pattern.search(line) for line in warning_lines(err)), err
     target = tmp_path / "result.gpkg"
-    code, out, err = run_cli(capsys, ["run", str(folder), "--output", str(target), "--no-extras"])
+    with warnings.catch_warnings(record=True) as shown:
+        warnings.simplefilter("always")
+        code, out, err = run_cli(capsys, ["run", str(folder), "--output", str(target),
+                                          "--no-extras"])
     assert code == 0, err
     assert "Traceback" not in err + out
+    # the summary prints it; Python did too, with gisrun's file, line and source line
+    assert not [w for w in shown if issubclass(w.category, GisrunWarning)]
     assert pattern.search(" ".join(out.split())), out  # the summary shows it too
     info = pyogrio.read_dataframe(target, layer="run_info")
     noted = info.loc[info["key"] == "warning", "value"].tolist()

@@ -8,12 +8,13 @@ from __future__ import annotations
 
 import dataclasses
 import json
+import warnings
 from pathlib import Path
 
 import click
 
 from ..config.project import load_project
-from ..errors import OutputExistsError
+from ..errors import GisrunWarning, OutputExistsError
 from ..io.commit import OutputSet
 from ..io.files import refuse_inputs_among
 from ..model import CAUTION, RunResult
@@ -80,14 +81,16 @@ def run(project: Path, output: Path | None, into: Path | None, overwrite: bool, 
                                      progress=show.advance, outputs=outputs,
                                      final_gpkg=target))
 
-        result, written = run_and_write(loaded, output=None if into else target,
-                                        into=into, overwrite=overwrite,
-                                        progress=show.step, workers=workers,
-                                        scheduler=scheduler,
-                                        cells=not (no_rasters or no_extras),
-                                        extras=None if no_extras else stage_extras)
+        with warnings.catch_warnings(record=True) as caught:  # shown in the summary, once
+            warnings.simplefilter("always", GisrunWarning)
+            result, written = run_and_write(loaded, output=None if into else target,
+                                            into=into, overwrite=overwrite,
+                                            progress=show.step, workers=workers,
+                                            scheduler=scheduler,
+                                            cells=not (no_rasters or no_extras),
+                                            extras=None if no_extras else stage_extras)
     extras = made[0] if made else None
-    result = _with_notes(result, extras)
+    result = _with_notes(result, extras, _passed_on(caught))
     if as_json:
         _echo_json(result, written, extras)
     elif not quiet:
@@ -103,15 +106,26 @@ def _refuse_existing(target: Path, *, into: Path | None, extras: bool, overwrite
                                     "pass --overwrite or choose another output path")
 
 
-def _with_notes(result: RunResult, extras: Deliverables | None) -> RunResult:
-    """The result with the notes of writing the extras added to its warnings (once each)."""
-    if extras is None:
-        return result
-    warnings = list(result.warnings)
-    for note in extras.notes:
-        if note not in warnings:
-            warnings.append(note)
-    return dataclasses.replace(result, warnings=tuple(warnings))
+def _passed_on(caught: list[warnings.WarningMessage]) -> list[str]:
+    """The text of the run's own warnings; other warnings go on to Python's display.
+
+    The run's own (``GisrunWarning``, such as the input readers pass on) are printed by the
+    summary, one line each, not by Python with a source file and line of gisrun.
+    """
+    for w in caught:
+        if not issubclass(w.category, GisrunWarning):
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    return [str(w.message) for w in caught if issubclass(w.category, GisrunWarning)]
+
+
+def _with_notes(result: RunResult, extras: Deliverables | None,
+                raised: list[str] | None = None) -> RunResult:
+    """The result with the extras' notes and the run's raised warnings added (once each)."""
+    notes = list(result.warnings)
+    for note in [*(extras.notes if extras is not None else ()), *(raised or ())]:
+        if note not in notes:
+            notes.append(note)
+    return dataclasses.replace(result, warnings=tuple(notes))
 
 
 def _echo_json(result: RunResult, written: Path, extras: Deliverables | None) -> None:

@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from ..model import BAND_CAUTION, CAUTION, RunResult, StormResult
@@ -76,8 +77,8 @@ def print_summary(result: RunResult, written: Path) -> None:
     """Print a table of catchment-wide figures per storm and where the output went."""
     console = Console(width=max(Console().width, 132))
     rows = _storm_rows(result)
-    table = Table(title=f"{result.project.name}: {len(result.subcatchments)} subcatchments, "
-                        f"{result.unit_count} soil x cover units, "
+    table = Table(title=f"{escape(result.project.name)}: {len(result.subcatchments)} "
+                        f"subcatchments, {result.unit_count} soil x cover units, "
                         f"method {result.project.method}")
     longest = max(len(str(r["storm"])) for r in rows)
     for key in rows[0]:
@@ -89,11 +90,12 @@ def print_summary(result: RunResult, written: Path) -> None:
         table.add_row(*[_fmt(v) for v in row.values()])
     console.print(table)
     for note in result.warnings:
-        console.print(f"[yellow]warning:[/yellow] {note}", highlight=False)
-    console.print(f"Output written to {written}", highlight=False)
+        console.print(f"[yellow]warning:[/yellow] {escape(note)}", highlight=False)
+    console.print(f"Output written to {escape(str(written))}", highlight=False)
     if result.series_file is not None:
-        console.print(f"Excess series in {written.with_name(result.series_file)} (Parquet; "
-                      f"pandas.read_parquet reads it)", highlight=False)
+        series = escape(str(written.with_name(result.series_file)))
+        console.print(f"Excess series in {series} (Parquet; pandas.read_parquet reads it)",
+                      highlight=False)
     bands = _bands(result)
     if bands is not None:
         pct = "/".join(f"p{p:g}" for p in bands["percentiles"])
