@@ -245,7 +245,8 @@ def process_chunk(task: ChunkTask) -> ChunkOutput:
         params, sources, notes_params = prepare_parameters(project, inputs, units)
         sub_ids = task.subcatchments["subcatchment_id"].to_numpy(dtype=object)
         rains = chunk_rains(task.storms, task.rains, project.time_step_s, sub_ids)
-        results = _run_storms(project, inputs, params, rains, sub_ids)
+        results = _run_storms(project, inputs, params, rains, sub_ids,
+                              keep_loss=task.keep_loss)
         if project.compare_composite and project.combine == "units":
             results = add_composite_comparison(project, inputs, params, results, sub_ids)
         results = add_connected_comparison(project, inputs, units, results, sub_ids)
@@ -281,12 +282,24 @@ def _subcatchment_methods(params: pd.DataFrame, sub_ids: NDArray[np.object_], de
 
 
 def _run_storms(project: Project, inputs: Inputs, params: pd.DataFrame,
-                rains: Sequence[NDArray[np.float64]], sub_ids: NDArray[np.object_]
-                ) -> list[StormResult]:
+                rains: Sequence[NDArray[np.float64]], sub_ids: NDArray[np.object_], *,
+                keep_loss: bool) -> list[StormResult]:
+    """Every storm through the chunk's units, one after the other.
+
+    Without ``keep_loss`` each storm's step arrays (its ``LossResult``: four or six
+    ``(steps, units)`` arrays) are let go as soon as its tables are made, so the chunk holds one
+    storm's at a time, as :func:`chunk_size_for_budget` counts them, not every storm's until
+    the chunk ends.
+    """
     scale = rain_scale_for_units(project, inputs, params)
-    return [run_storm(params, h, project.time_step_s, sub_ids=sub_ids, rain_scale=scale,
-                      rain_per_step_m=rain, runon_to=runon_target(project))
-            for h, rain in zip(inputs.storms, rains, strict=True)]
+    results = []
+    for h, rain in zip(inputs.storms, rains, strict=True):
+        result = run_storm(params, h, project.time_step_s, sub_ids=sub_ids, rain_scale=scale,
+                           rain_per_step_m=rain, runon_to=runon_target(project))
+        if not keep_loss:  # (rebinds ``result`` too: it must not hold them through the next)
+            result = dataclasses.replace(result, loss=None)
+        results.append(result)
+    return results
 
 
 def _cell_units(task: ChunkTask, inputs: Inputs, units: pd.DataFrame,
@@ -302,7 +315,7 @@ def _cell_units(task: ChunkTask, inputs: Inputs, units: pd.DataFrame,
     by_unit = dataclasses.replace(task.project, combine="units")
     params, _, _ = prepare_parameters(by_unit, inputs, units)
     return [slim_unit_results(r.units)
-            for r in _run_storms(by_unit, inputs, params, rains, sub_ids)]
+            for r in _run_storms(by_unit, inputs, params, rains, sub_ids, keep_loss=False)]
 
 
 def split_overlay(cached: tuple[pd.DataFrame, pd.DataFrame, list[str]],
