@@ -20,6 +20,7 @@ import pytest
 
 from gisrun.errors import StormError
 from gisrun.io.factor_table import read_factor_table_csv
+from gisrun.present import plots
 from gisrun.present.reduction import reduction_line
 from gisrun.storm import AppliedReduction, FactorTable, reduced_storm, uniform
 from gisrun.storm.areal_reduction import (
@@ -187,3 +188,26 @@ def test_the_reduction_line_shows_areas_in_the_projects_units():
     assert f", {5 * MI2_KM2:.4g} km2," in reduction_line("s", applied, SI)
     fixed = dataclasses.replace(applied, relation="fixed_factor")
     assert "(fixed_factor, the same everywhere, AEP" in reduction_line("s", fixed, SI)
+
+
+def test_the_hyetograph_panels_say_which_series_they_show():
+    # A reviewer reads a panel of areal rain as that storm's one hyetograph unless told it is
+    # the area-weighted basin mean (the reduced storm's own series, checked above against
+    # (1 + 0.9 + 2 x 0.75) / 4 of the depth), and a reduced storm as the point storm unless
+    # told its factor.
+    h = uniform(0.012, 3600.0, 300.0)
+    applied = AppliedReduction("fixed_factor", "test", "subcatchment", h.duration_s, None,
+                               ("a", "b", "c"), np.full(3, 2e6), np.array([1.0, 0.9, 0.75]))
+    mixed = reduced_storm(h, applied, 60.0, np.array([1.0, 1.0, 2.0]))
+    same = reduced_storm(h, dataclasses.replace(applied, factor=np.full(3, 0.95)), 60.0,
+                         np.ones(3))
+    titles = [plots.hyetograph_title(s) for s in (h, mixed, same)]
+    assert titles[0] == h.name
+    assert titles[1] == (f"{h.name}: area-weighted mean over the subcatchments of point design "
+                         "depths times each subcatchment's areal reduction factor")
+    assert titles[2] == f"{h.name}: point depths x areal reduction factor 0.95 (fixed_factor)"
+    fig = plots.hyetograph_plot([(t, s.time_s / 60.0, s.intensity_m_per_s * 3.6e6)
+                                 for t, s in zip(titles, (h, mixed, same), strict=True)],
+                                rate_unit="mm/h", title="Rain intensity of each storm")
+    assert fig.get_suptitle() == "Rain intensity of each storm"
+    assert [ax.get_title(loc="left") for ax in fig.axes] == titles

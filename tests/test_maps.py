@@ -232,3 +232,18 @@ def test_maps_are_drawn_once_when_saved_not_per_layer(monkeypatch):
     for _ in range(3):
         gdf.plot(ax=ax, column="v")
     assert figure_png(plain) == png
+
+
+def test_a_figure_title_over_the_panels_is_kept_in_the_png():
+    # The PNG is trimmed to what is drawn; a title over several panels (a figure text, not an
+    # axes') was trimmed away with the margin before.
+    storms = [("a", np.array([0.0, 10, 20]), np.array([5.0, 10.0]))]
+    plain = Image.open(io.BytesIO(maps.figure_png(plots.hyetograph_plot(storms,
+                                                                          rate_unit="mm/h"))))
+    titled = Image.open(io.BytesIO(maps.figure_png(plots.hyetograph_plot(
+        storms, rate_unit="mm/h", title="Rain intensity of each storm"))))
+    assert plain.width == titled.width
+    extra_px = titled.height - plain.height
+    assert 0.2 * 150 <= extra_px <= 0.5 * 150  # the title's band, about 0.3 in at 150 dpi
+    top = np.asarray(titled.convert("L"))[: extra_px // 2]
+    assert (top < 128).any()  # dark pixels (the title's letters) in the band

@@ -41,8 +41,11 @@ def figure_png(fig: Figure, *, dpi: int = PRINT_DPI) -> bytes:
     if not isinstance(fig.canvas, FigureCanvasAgg):
         FileCanvas(fig)
     buffer = io.BytesIO()
-    # legends, labels and scale bars outside the frame count for the trimmed box too
+    # legends, labels and scale bars outside the frame count for the trimmed box too, and so
+    # do the figure's own texts (a title over several panels): given extra artists, matplotlib
+    # trims to the axes and those artists only
     extra = [c for ax in fig.axes for c in ax.get_children()
              if isinstance(c, Legend) or (isinstance(c, (Text, Patch)) and not c.get_clip_on())]
+    extra += [t for t in fig.texts if t.get_text()]
     fig.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight", bbox_extra_artists=extra)
     return buffer.getvalue()

@@ -22,11 +22,12 @@ from matplotlib.figure import Figure
 from numpy.typing import NDArray
 
 from ..engine import LossResult
+from ..storm import Hyetograph
 from .canvas import new_figure
 from .display import human, method_name
 
 __all__ = ["PerviousSeries", "pervious_series", "infiltration_plot", "hyetograph_plot",
-           "BAND_COLOURS"]
+           "hyetograph_title", "BAND_COLOURS"]
 
 #: Colours of the stacked bands (colour-blind safe, Okabe-Ito).
 BAND_COLOURS = {"infiltration": "#e69f00", "storage": "#999999", "excess": "#56b4e9"}
@@ -182,11 +183,28 @@ def _ponding_mark(ax: object, series: PerviousSeries, t: NDArray[np.float64],
     ax.axvline(tp, color="#d55e00", linewidth=0.8, linestyle=":")
 
 
+def hyetograph_title(h: Hyetograph) -> str:
+    """What a storm's hyetograph panel shows, in words (its name first).
+
+    A storm of areal rain plots its basin mean (the area-weighted mean of the subcatchments'
+    columns, :func:`gisrun.storm.areal_storm`), not any one subcatchment's rain; a storm
+    reduced by one areal reduction factor plots the reduced depths.
+    """
+    if h.areal is not None:
+        return (f"{h.name}: area-weighted mean over the subcatchments of "
+                f"{h.areal.source.split(' (')[0]}")
+    if h.reduction is not None and h.reduction.factor.size:
+        return (f"{h.name}: point depths x areal reduction factor "
+                f"{float(h.reduction.factor[0]):.3g} ({h.reduction.relation})")
+    return h.name
+
+
 def hyetograph_plot(storms: Sequence[tuple[str, NDArray[np.float64], NDArray[np.float64]]], *,
-                    rate_unit: str) -> Figure:
-    """Each storm's intensity through time: (name, interval edges in min, intensity) tuples."""
+                    rate_unit: str, title: str | None = None) -> Figure:
+    """Each storm's intensity through time: (panel title, interval edges in min, intensity)."""
     n = max(1, len(storms))
-    fig = new_figure((10, 1.9 * n + 0.6))
+    height = 1.9 * n + 0.6 + (0.3 if title else 0.0)
+    fig = new_figure((10, height))
     axes = fig.subplots(n, 1, squeeze=False)
     colours = colormaps["viridis"].resampled(n + 1)
     for ax, (k, (name, edges, intensity)) in zip(axes[:, 0], enumerate(storms), strict=False):
@@ -195,5 +213,8 @@ def hyetograph_plot(storms: Sequence[tuple[str, NDArray[np.float64], NDArray[np.
         ax.set_ylabel(rate_unit, fontsize=8)
         ax.tick_params(labelsize=7)
     axes[-1, 0].set_xlabel("time from storm start (min)")
-    fig.tight_layout()
+    # The title gets a band of its own above the panels (0.3 in).
+    fig.tight_layout(rect=(0.0, 0.0, 1.0, 1.0 - (0.3 / height if title else 0.0)))
+    if title:
+        fig.suptitle(title, fontsize=10, y=1.0 - 0.08 / height, va="top")
     return fig

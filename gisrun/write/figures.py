@@ -54,9 +54,9 @@ def write_figures(result: RunResult, folder: Path, *, plot_ids: list[str], cell_
     folder.mkdir(parents=True, exist_ok=True)
     out = Figures()
     hyeto = plots.hyetograph_plot(
-        [(s.name, s.hyetograph.time_s / 60.0, from_si(s.hyetograph.intensity_m_per_s,
-                                                      system.rate)) for s in result.storms],
-        rate_unit=rate_label(system))
+        [(plots.hyetograph_title(s.hyetograph), s.hyetograph.time_s / 60.0,
+          from_si(s.hyetograph.intensity_m_per_s, system.rate)) for s in result.storms],
+        rate_unit=rate_label(system), title="Rain intensity of each storm (hyetograph)")
     out.report.hyetograph = out.save(figure_png(hyeto), folder / "hyetographs.png",
                                      "hyetographs")
     classes = run_classes(result)
