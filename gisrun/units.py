@@ -42,6 +42,8 @@ __all__ = [
     "si_frame",
     "round_significant",
     "SIGNIFICANT_DIGITS",
+    "COORDINATE_LENGTHS_M",
+    "coordinate_length_m",
     "RainUnit",
     "rain_unit",
 ]
@@ -352,3 +354,23 @@ def rain_unit(text: str, where: str) -> RainUnit:
         return RainUnit(str(text), "depth" if time == 0 else "intensity", factor)
     raise InputError(where, f"rain unit {text!r} is neither a depth nor a depth per time",
                      "write a depth such as 'mm' or an intensity such as 'mm/h'")
+
+
+#: Metres in one unit of a projected coordinate as CF/UDUNITS files write it (the US survey
+#: foot is 1200/3937 m by its definition; the international foot 0.3048 m).
+COORDINATE_LENGTHS_M: dict[str, float] = {
+    **dict.fromkeys(("m", "meter", "meters", "metre", "metres"), 1.0),
+    **dict.fromkeys(("km", "kilometer", "kilometers", "kilometre", "kilometres"), 1000.0),
+    **dict.fromkeys(("ft", "foot", "feet", "international_foot"), 0.3048),
+    **dict.fromkeys(("us_survey_foot", "us_survey_feet", "us survey foot", "ftus", "ft_us"),
+                    1200.0 / 3937.0),
+}
+
+
+def coordinate_length_m(text: object) -> float | None:
+    """Metres in one unit of a projected coordinate written ``text`` (``"km"``), or None.
+
+    >>> coordinate_length_m("km"), coordinate_length_m("degrees_east")
+    (1000.0, None)
+    """
+    return COORDINATE_LENGTHS_M.get(str(text).strip().lower()) if text is not None else None

@@ -23,10 +23,14 @@ from pyproj.exceptions import CRSError as _PyprojCRSError
 
 from ..crs import checked_crs
 from ..errors import StormError
+from ..units import coordinate_length_m
 from .rain_sources import FoundStack, RainGridSettings, affine_from_centres
 
 __all__ = ["describe", "read_steps"]
 
+#: Coordinate units within this share of the CRS's own unit are taken to be it (the
+#: international and the US survey foot differ by 2 in a million).
+SAME_UNIT = 1e-3
 _X_NAMES = {"standard_name": ("projection_x_coordinate", "longitude", "grid_longitude"),
             "units": ("degrees_east", "degree_east", "degree_e", "degrees_e"),
             "name": ("x", "lon", "longitude", "easting")}
@@ -53,10 +57,10 @@ def describe(settings: RainGridSettings) -> FoundStack:
         _placed(ds, (xdim, ydim), where)
         times = _times(ds[tdim], f"{path.name}:{tdim}")
         step_s, start = _bounds(ds, tdim, times, f"{path.name}:{tdim}")
-        x = np.asarray(ds[xdim].values, dtype=np.float64)
-        y = np.asarray(ds[ydim].values, dtype=np.float64)
-        transform = affine_from_centres(x, y, where)
         crs = _crs(ds, var, _is_lonlat(ds[xdim], ds[ydim]), settings.crs, where)
+        x = _in_crs_units(ds[xdim], crs)
+        y = _in_crs_units(ds[ydim], crs)
+        transform = affine_from_centres(x, y, where)
         unit = var.attrs.get("units")
         return FoundStack(crs, transform, x.size, y.size, times, _text(unit), where,
                           step_s=step_s, start=start, variable=name)
@@ -194,6 +198,21 @@ def _bounds(ds: xr.Dataset, tdim: str, times: tuple[Any, ...], where: str
                          "step)", "give bounds of one fixed step, each starting where the last "
                          "ended")
     return step, lo[0]
+
+
+def _in_crs_units(coord: xr.DataArray, crs: CRS) -> NDArray[np.float64]:
+    """A projected coordinate's values in its CRS's unit.
+
+    CF allows ``units = "km"`` on a grid mapping in metres. Values of a unit not known as a
+    length are taken as they are, and so are feet of either kind on a CRS in feet (files write
+    "ft" for the US survey foot too: within :data:`SAME_UNIT` the CRS's own unit is meant).
+    """
+    values = np.asarray(coord.values, dtype=np.float64)
+    length = coordinate_length_m(coord.attrs.get("units"))
+    if crs.is_geographic or length is None or not crs.axis_info:
+        return values
+    own = float(crs.axis_info[0].unit_conversion_factor)
+    return values if abs(length / own - 1.0) <= SAME_UNIT else values * (length / own)
 
 
 def _is_lonlat(x: xr.DataArray, y: xr.DataArray) -> bool:

@@ -76,6 +76,23 @@ def test_netcdf_grid_mapping_gives_the_crs(tmp_path):
     assert (stack.transform.c, stack.transform.f) == (500_000.0, 4_480_500.0)
 
 
+def test_netcdf_projected_coordinates_in_km_are_read_in_the_crs_metres(tmp_path):
+    # CF: a projection_x_coordinate may carry any length unit ("km" is common in radar
+    # products); the grid mapping's CRS is in metres. The km file must place its cells where
+    # the metre file does (it was read 1000 times too small, and the run said the grid did
+    # not cover the subcatchments)
+    metres = open_rain_grid(RainGridSettings(write_netcdf(tmp_path / "m.nc", np.ones((2, 3, 4)),
+                                                          projected=True)))
+    ds = xr.open_dataset(tmp_path / "m.nc", decode_times=False).load()
+    for axis in ("x", "y"):
+        ds[axis] = (axis, ds[axis].values / 1000.0, {**ds[axis].attrs, "units": "km"})
+    ds.to_netcdf(tmp_path / "km.nc")
+    km = open_rain_grid(RainGridSettings(tmp_path / "km.nc"))
+    assert km.crs.equals(metres.crs)
+    np.testing.assert_allclose(tuple(km.transform), tuple(metres.transform), rtol=1e-12)
+    assert (metres.transform.a, metres.transform.c) == (1000.0, 500_000.0)
+
+
 @pytest.mark.parametrize("dims", [("time", "level", "lat", "lon"),
                                   ("member", "time", "lat", "lon")])
 def test_netcdf_extra_dimension_of_length_one_reads_as_the_plain_stack(tmp_path, dims):
