@@ -133,11 +133,14 @@ def _rain_grid(toml: str = "", **kw: object) -> Callable[[Path], None]:
     return add
 
 
-def _rain_tif(descriptions: list[str], toml: str = 'unit = "mm/h"\n') -> Callable[[Path], None]:
+def _rain_tif(descriptions: list[str], toml: str = 'unit = "mm/h"\n',
+              missing_at: tuple[int, int, int] | None = None) -> Callable[[Path], None]:
     """A second storm from a multi-band GeoTIFF ``rain.tif`` (25 m cells, 10 mm/h), each band
-    described by the time given."""
+    described by the time given; -9999 (no nodata declared) at ``missing_at``."""
     def add(d: Path) -> None:
         values = np.full((len(descriptions), 4, 4), 10.0, dtype=np.float32)
+        if missing_at is not None:
+            values[missing_at] = -9999.0
         with rasterio.open(d / "rain.tif", "w", driver="GTiff", height=4, width=4,
                            count=len(descriptions), dtype="float32", crs=CRS,
                            transform=Affine(25.0, 0.0, X0, 0.0, -25.0, Y0 + 100.0)) as dst:
@@ -367,6 +370,11 @@ CASES: dict[str, Case] = {
         _rain_tif(["2026-07-01T00:05:00Z", "2026-07-01T00:10:00", "2026-07-01T00:15:00"]),
         re.compile(r"rain\.tif: has times with and without a UTC offset \(2026-07-01T00:05:00"
                    r"\+00:00, step 2 2026-07-01T00:10:00\)")),
+    "rain grid with -9999 for missing data, no nodata declared": Case(  # said only "-0.83325 m"
+        _rain_tif(["2026-07-01T00:05:00", "2026-07-01T00:10:00"], missing_at=(1, 2, 3)),
+        re.compile(r"rain\.tif: has rain -0\.83325 m < 0 \(stored value -9999\) at time "
+                   r"2026-07-01T00:10:00 in cell r2_c3; .* declare a value that marks missing "
+                   r"data as the file's nodata")),
     "rain grid in an unknown unit": Case(
         _rain_grid(units="furlongs"), re.compile(r"rain\.nc:precip: rain unit 'furlongs'")),
     # --- parameter overrides ------------------------------------------------------------------

@@ -207,9 +207,16 @@ def _raise_bad_value(status: int, value: float, weights: RainGridWeights, grid: 
                          f" in cell {_cell_name(weights, col)} used by subcatchment {sub!r}",
                          "fill the gap in the rain grid, or give a grid without nodata over the "
                          "subcatchments")
-    raise StormError(grid.where, f"has rain {value:g} m < 0 at "
-                     f"{grid.step_label(step)} in cell {_cell_name(weights, col)}",
-                     "give rain depths or intensities >= 0")
+    to_depth = getattr(grid, "to_depth_m", None)  # a file's stack: what the file holds
+    if to_depth is None:
+        raise StormError(grid.where, f"has rain {value:g} m < 0 at "
+                         f"{grid.step_label(step)} in cell {_cell_name(weights, col)}",
+                         "give rain depths or intensities >= 0")
+    raise StormError(grid.where, f"has rain {value:g} m < 0 (stored value {value / to_depth:g}) "
+                     f"at {grid.step_label(step)} in cell {_cell_name(weights, col)}",
+                     "give rain depths or intensities >= 0, or declare a value that marks "
+                     "missing data as the file's nodata (NetCDF _FillValue or missing_value, "
+                     "the GeoTIFF's nodata)")
 
 
 def _first_user(weights: RainGridWeights, col: int) -> int:
