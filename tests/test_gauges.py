@@ -10,6 +10,7 @@ uniform storm's GeoPackage tables exactly (issue acceptance).
 from __future__ import annotations
 
 import dataclasses
+from datetime import UTC, datetime
 from fractions import Fraction
 from pathlib import Path
 
@@ -25,8 +26,10 @@ from scipy.spatial import cKDTree
 
 from gisrun import load_project, read_inputs, run, write_outputs
 from gisrun.errors import StormError
+from gisrun.io.gauges import read_gauge_records
 from gisrun.present import maps
 from gisrun.storm.gauges import fill_gaps, inverse_distance_weights, thiessen_weights
+from gisrun.units import unit_system
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_catchment"
 
@@ -122,6 +125,30 @@ def test_inverse_distance_fill_takes_a_gauge_at_the_same_place_whole():
     depth = np.array([[1.0, 2.0, 4.0], [np.nan, 2.5, 4.0]])
     filled, _ = fill_gaps(depth, gauges, ["a", "b", "c"], "inverse_distance", 2.0)
     np.testing.assert_array_equal(filled[1], [2.5, 2.5, 4.0])
+
+
+def test_records_folder_matches_times_as_instants_not_as_text(tmp_path):
+    # 06:05, 06:05:00, 06:05Z and 08:05+02:00 are one instant (ISO 8601; Python's
+    # datetime.fromisoformat says so); the files were refused as having different times
+    spellings = {"a": "2026-05-14T06:{m:02d}", "b": "2026-05-14T06:{m:02d}:00",
+                 "c": "2026-05-14T06:{m:02d}Z", "d": "2026-05-14T08:{m:02d}+02:00"}
+    stamps = [datetime.fromisoformat(f.format(m=5)) for f in spellings.values()]
+    assert len({t if t.tzinfo else t.replace(tzinfo=UTC) for t in stamps}) == 1  # naive: UTC
+    folder = tmp_path / "records"
+    folder.mkdir()
+    for k, (gauge, spelled) in enumerate(spellings.items()):
+        (folder / f"{gauge}.csv").write_text("time,depth\n" + "".join(
+            f"{spelled.format(m=5 * (i + 1))},{k + i}\n" for i in range(3)))
+    records = read_gauge_records(folder, units=unit_system("si"))
+    assert records.ids == ("a", "b", "c", "d") and records.step_s == 300.0
+    assert records.start == "2026-05-14T06:00:00"
+    np.testing.assert_array_equal(records.depth_m * 1000,
+                                  np.array([[k + i for k in range(4)] for i in range(3)]))
+    (folder / "d.csv").write_text("time,depth\n" + "".join(
+        f"2026-05-14T06:{5 * (i + 1):02d}+02:00,1\n" for i in range(3)))  # two hours earlier
+    with pytest.raises(StormError, match=r"d\.csv: step 1 is at 2026-05-14T06:05\+02:00, in "
+                                         r".*a\.csv at 2026-05-14T06:05"):
+        read_gauge_records(folder, units=unit_system("si"))
 
 
 def test_two_gauges_at_one_place_are_refused():

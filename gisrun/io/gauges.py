@@ -5,7 +5,8 @@ by the gauge's id, or a folder with one CSV per gauge, ``<gauge id>.csv``, each 
 column and one value column. The time column is ``time`` (an ISO 8601 date-time; one without a
 UTC offset is read as written, whatever the computer's time zone), ``time_min`` or ``time_h``
 (elapsed); each row's time marks the end of its step (``time_marks = "start"``: its start). The
-step must be one fixed length, the same in every file. Values are rain depth per step in the
+step must be one fixed length, the same in every file, and so must the times (as instants,
+however written). Values are rain depth per step in the
 project's depth unit (``rain_is = "intensity"``: the project's rate unit). A blank cell, ``NA``
 or ``nan`` is a gap in that gauge's record (the storm kind says what happens to it). Lines
 starting with ``#`` are comments.
@@ -146,6 +147,7 @@ class _Table:
     step_s: float
     times: tuple[str, ...]
     start: float | None  # the first row's time as a POSIX timestamp (clock times only)
+    seconds: np.ndarray  # each row's time, s (POSIX for clock times, else elapsed)
 
 
 def _read_table(path: Path, *, single: str | None) -> _Table:
@@ -172,7 +174,7 @@ def _read_table(path: Path, *, single: str | None) -> _Table:
                        + [math.nan] * (len(ids) + 1 - len(cells)) for n, cells in rows])
     times = tuple(cells[0] for _, cells in rows)
     return _Table(src, tuple(ids), values.reshape(len(rows), len(ids)), step, times,
-                  float(seconds[0]) if time_col == "time" else None)
+                  float(seconds[0]) if time_col == "time" else None, seconds)
 
 
 def _rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]]]:
@@ -245,10 +247,15 @@ def _same_times(first: _Table, other: _Table) -> None:
         raise StormError(other.file, f"has a {other.step_s / 60:g}-min step, {first.file} a "
                          f"{first.step_s / 60:g}-min step (mismatched step)",
                          "give every gauge's record on the same step")
-    if other.times != first.times:
-        k = next((i for i, (a, b) in enumerate(zip(first.times, other.times, strict=False))
-                  if a != b),
-                 min(len(first.times), len(other.times)))
+    if (other.start is None) != (first.start is None):
+        raise StormError(other.file, f"has {'elapsed' if other.start is None else 'clock'} "
+                         f"times, {first.file} {'elapsed' if first.start is None else 'clock'} "
+                         "times", "give every gauge's record the same kind of time column")
+    n = min(len(first.times), len(other.times))
+    # the same instants, however written (06:05, 06:05:00, 06:05Z), to a millionth of a step
+    off = np.abs(other.seconds[:n] - first.seconds[:n]) > _STEP_TOL * first.step_s
+    if off.any() or len(other.times) != len(first.times):
+        k = int(np.argmax(off)) if off.any() else n
         shown = other.times[k] if k < len(other.times) else "the end of the file"
         raise StormError(other.file, f"step {k + 1} is at {shown}, in {first.file} at "
                          f"{first.times[k] if k < len(first.times) else 'its end'}",
