@@ -206,11 +206,13 @@ def _gauge_records(depth: dict[str, list[float | None]], step_min: int = 5) -> s
     return "\n".join(lines) + "\n"
 
 
-def _gauges(records: dict[str, str]) -> Callable[[Path], None]:
-    """Two invented gauges over the tiny project, the records files given, a gauge storm."""
+def _gauges(records: dict[str, str], at: tuple[tuple[float, float], ...] = (
+        (X0 + 25, Y0 + 50), (X0 + 75, Y0 + 50))) -> Callable[[Path], None]:
+    """Two invented gauges (over the tiny project unless ``at`` says where, in its CRS), the
+    records files given, a gauge storm."""
     def write(d: Path) -> None:
-        points = gpd.GeoDataFrame({"gauge_id": ["G1", "G2"]}, crs=CRS, geometry=[
-            Point(X0 + 25, Y0 + 50), Point(X0 + 75, Y0 + 50)])
+        points = gpd.GeoDataFrame({"gauge_id": ["G1", "G2"]}, crs=CRS,
+                                  geometry=[Point(x, y) for x, y in at])
         pyogrio.write_dataframe(points, d / "gauges.gpkg", layer="gauges")
         for name, text in records.items():
             (d / name).parent.mkdir(exist_ok=True)
@@ -584,6 +586,10 @@ CASES: dict[str, Case] = {
         _gauges({"records/G1.csv": _gauge_records({"G1": [1.0, 2.0, 0.0]}),
                  "records/G2.csv": _gauge_records({"G2": [1.0, 2.0, 0.0]}, step_min=10)}),
         re.compile(r"G2\.csv: has a 10-min step.*mismatched step")),
+    "gauges in degrees in a layer that says metres (a CRS mix-up)": Case(
+        _gauges({"records.csv": _gauge_records(_TWO_GAUGES)}, at=((-80.5, 39.6), (-80.4, 39.6))),
+        re.compile(r"\[\[storms\]\] 1\.gauges: gauge 'G1' lies 4,\d{3},\d{3} CRS units from the "
+                   r"subcatchments.*check the gauge layer's CRS")),
     # --- outputs ------------------------------------------------------------------------------
     "output under a regular file": Case(
         _both(_write("blocker", "a file, not a folder"),

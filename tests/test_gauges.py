@@ -20,6 +20,7 @@ import pandas as pd
 import pyogrio
 import pytest
 import shapely
+from bad_inputs_helpers import CRS, X0, Y0, edit_toml, make_project, run_cli
 from matplotlib.legend import Legend
 from pyproj import Transformer
 from scipy.spatial import cKDTree
@@ -149,6 +150,28 @@ def test_records_folder_matches_times_as_instants_not_as_text(tmp_path):
     with pytest.raises(StormError, match=r"d\.csv: step 1 is at 2026-05-14T06:05\+02:00, in "
                                          r".*a\.csv at 2026-05-14T06:05"):
         read_gauge_records(folder, units=unit_system("si"))
+
+
+def test_a_small_site_takes_gauges_kilometres_away(tmp_path, capsys):
+    # the tiny project is 100 m across; its gauges stand 2.5 and 3.5 km off (a site and the
+    # region's gauges), which was refused as a CRS mix-up (more than 10 times its extent).
+    # By hand (Thiessen 1911): the whole site is nearer G1, so every subcatchment takes G1's
+    # record, 1 + 2 + 0.5 = 3.5 mm
+    folder = tmp_path / "site"
+    make_project(folder)
+    gpd.GeoDataFrame({"gauge_id": ["G1", "G2"]}, crs=CRS, geometry=[
+        shapely.Point(X0 + 2500, Y0), shapely.Point(X0 - 1500, Y0 + 3200)]).to_file(
+        folder / "gauges.gpkg", engine="pyogrio")
+    (folder / "records.csv").write_text("time,G1,G2\n2026-05-14T06:05,1,4\n"
+                                        "2026-05-14T06:10,2,0\n2026-05-14T06:15,0.5,9\n")
+    edit_toml(folder / "gisrun.toml", 'kind = "file"\npath = "storm.csv"\n',
+              'kind = "gauges"\ngauges = "gauges.gpkg"\nid_field = "gauge_id"\n'
+              'records = "records.csv"\n')
+    code, _, err = run_cli(capsys, ["run", str(folder), "--no-extras"])
+    assert code == 0, err
+    table = pyogrio.read_dataframe(folder / "out" / "result.gpkg", layer="runoff_steady",
+                                   read_geometry=False)
+    np.testing.assert_allclose(table["rain_depth_mm"], [3.5, 3.5], rtol=1e-12)
 
 
 def test_two_gauges_at_one_place_are_refused():

@@ -40,7 +40,8 @@ from ..storm.gauges import fill_gaps, gauge_weights
 from ..units import UnitSystem
 from .reader import TableReader
 
-__all__ = ["GAUGE_KEYS", "GAUGE_REQUIRED", "GAUGE_FILE_KEYS", "build_gauges", "FAR_FACTOR"]
+__all__ = ["GAUGE_KEYS", "GAUGE_REQUIRED", "GAUGE_FILE_KEYS", "build_gauges", "FAR_FACTOR",
+           "FAR_M"]
 
 GAUGE_KEYS = ("gauges", "layer", "id_field", "records", "weighting", "power", "fill_gaps",
               "rain_is", "time_marks")
@@ -49,6 +50,10 @@ GAUGE_FILE_KEYS = ("gauges", "records")
 #: Gauges farther from the subcatchments than this many times the subcatchments' extent are
 #: taken for a CRS mix-up (longitude-latitude coordinates in a projected layer, say).
 FAR_FACTOR = 10.0
+#: ... unless they lie within this distance (m): a small site's gauges may stand several km off,
+#: many times its extent, while a mix-up of degrees, feet and metres puts them hundreds to
+#: thousands of km away.
+FAR_M = 100_000.0
 
 
 def build_gauges(table: TableReader, subcatchments: gpd.GeoDataFrame,
@@ -126,7 +131,8 @@ def _planar(points: gpd.GeoDataFrame, subcatchments: gpd.GeoDataFrame, table: Ta
     minx, miny, maxx, maxy = polygons.total_bounds
     size = max(maxx - minx, maxy - miny)
     distance = shapely.distance(gauges.to_numpy(), shapely.box(minx, miny, maxx, maxy))
-    far = np.flatnonzero(~(distance <= FAR_FACTOR * size))
+    unit_m = float(polygons.crs.axis_info[0].unit_conversion_factor) if polygons.crs else 1.0
+    far = np.flatnonzero(~(distance <= max(FAR_FACTOR * size, FAR_M / unit_m)))
     if far.size:
         raise StormError(table.where("gauges"), f"gauge {points.index[far[0]]!r} lies "
                          f"{distance[far[0]]:,.0f} CRS units from the subcatchments, "
