@@ -45,7 +45,7 @@ def describe_stack(settings: RainGridSettings) -> FoundStack:
     with _open(path) as src:
         grid = _grid(src, path.name, settings)
         marks = [_band_time(src, b) for b in range(1, src.count + 1)]
-        unit = _unit(src)
+        unit = _unit(src, path.name)
     if all(m is None for m in marks):
         times = _stated_times(settings, len(marks), path.name)
     else:
@@ -121,11 +121,15 @@ def _grid(src: Any, where: str, settings: RainGridSettings) -> dict[str, Any]:
 def _folder_grid(files: list[Path], settings: RainGridSettings
                  ) -> tuple[dict[str, Any], str | None]:
     with _open(files[0]) as src:
-        grid, unit = _grid(src, files[0].name, settings), _unit(src)
+        grid, unit = _grid(src, files[0].name, settings), _unit(src, files[0].name)
     for p in files:
         with _open(p) as src:
             if src.count != 1:
                 raise StormError(p.name, f"has {src.count} bands", "give one band per file")
+            own = _unit(src, p.name)
+            if own is not None and own != unit:
+                raise StormError(p.name, f"has unit {own!r}, {files[0].name} {unit or 'none'!r}",
+                                 "give every file of the folder the same rain unit")
             if (src.transform, src.width, src.height) != (grid["transform"], grid["width"],
                                                           grid["height"]) or (
                     src.crs is not None and not grid["crs"].equals(src.crs.to_wkt())):
@@ -142,8 +146,15 @@ def _band_time(src: Any, band: int) -> str | None:
     return text or None
 
 
-def _unit(src: Any) -> str | None:
-    text = (src.units[0] if src.units else "") or src.tags().get("units", "")
+def _unit(src: Any, where: str) -> str | None:
+    """The bands' unit (or the file's ``units`` tag); every band that states one must agree."""
+    stated = [(b, str(u).strip()) for b, u in enumerate(src.units or (), start=1)
+              if u and str(u).strip()]
+    other = next(((b, u) for b, u in stated if u != stated[0][1]), None)
+    if other is not None:
+        raise StormError(f"{where}:band {other[0]}", f"has unit {other[1]!r}, band "
+                         f"{stated[0][0]} {stated[0][1]!r}", "give every band the same rain unit")
+    text = stated[0][1] if stated else src.tags().get("units", "")
     return str(text).strip() or None
 
 

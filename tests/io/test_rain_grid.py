@@ -232,6 +232,24 @@ def test_folder_errors_name_the_file(tmp_path):
         open_rain_grid(RainGridSettings(folder))
 
 
+def test_band_and_file_units_must_agree(tmp_path):
+    # a band (or a folder's file) in "mm" among ones in "mm/h" was read as mm/h, its own unit
+    # passed over
+    times = [f"2026-07-01T00:{m:02d}:00" for m in (5, 10, 15)]
+    path = _write_bands(tmp_path / "r.tif", np.ones((3, 2, 2)), times, unit="mm/h")
+    with rasterio.open(path, "r+") as dst:
+        dst.set_band_unit(3, "mm")
+    with pytest.raises(GisrunError, match=r"r\.tif:band 3: has unit 'mm', band 1 'mm/h'; give "
+                                          r"every band the same rain unit"):
+        open_rain_grid(RainGridSettings(path))
+    folder = _folder(tmp_path, ["rain_20260701_0005.tif", "rain_20260701_0010.tif"])
+    with rasterio.open(folder / "rain_20260701_0010.tif", "r+") as dst:
+        dst.set_band_unit(1, "in")
+    with pytest.raises(GisrunError, match=r"rain_20260701_0010\.tif: has unit 'in', "
+                                          r"rain_20260701_0005\.tif 'mm'"):
+        open_rain_grid(RainGridSettings(folder, time_pattern="rain_%Y%m%d_%H%M.tif"))
+
+
 def test_cf_times_decoded_by_xarray_agree_with_pandas(tmp_path):
     # The decoded labels are xarray's; pandas' own arithmetic is the independent check.
     minutes = np.array([7.0, 12.0, 17.0])
