@@ -377,6 +377,11 @@ CASES: dict[str, Case] = {
         re.compile(r"rain\.tif: has rain -0\.83325 m < 0 \(stored value -9999\) at time "
                    r"2026-07-01T00:10:00 in cell r2_c3; .* declare a value that marks missing "
                    r"data as the file's nodata")),
+    "rain grid's own CRS and another in the project file": Case(  # the project's was ignored
+        _rain_grid('crs = "EPSG:32616"\n'),
+        re.compile(r"rain\.nc:precip: has its own CRS \(WGS 84 / UTM zone 17N\) but the project "
+                   r"file says crs = 'EPSG:32616', which puts the grid [\d,]+ m away; leave crs "
+                   r"out")),
     "rain grid in an unknown unit": Case(
         _rain_grid(units="furlongs"), re.compile(r"rain\.nc:precip: rain unit 'furlongs'")),
     # --- parameter overrides ------------------------------------------------------------------

@@ -115,6 +115,7 @@ def _grid(src: Any, where: str, settings: RainGridSettings) -> dict[str, Any]:
     if t.b != 0 or t.d != 0:
         raise StormError(where, "grid is rotated or sheared", "warp it to a north-up grid first")
     return {"crs": checked_crs(src.crs, where, stated=settings.crs), "transform": t,
+            "own_crs": src.crs is not None,
             "width": int(src.width), "height": int(src.height)}
 
 

@@ -22,8 +22,9 @@ from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
-from pyproj import CRS
+from pyproj import CRS, Geod, Transformer
 
+from ..crs import checked_crs
 from ..errors import StormError
 from ..options import RAIN_GRID_FORMATS
 from ..units import rain_unit
@@ -34,6 +35,10 @@ __all__ = ["RainGridSettings", "RainStack", "open_rain_grid"]
 
 #: Largest difference between two steps, as a share of the step, taken as rounding.
 STEP_TOLERANCE = 1e-6
+#: Largest distance (m) between where a stack's own CRS and the project file's ``crs`` put the
+#: grid's middle for the two to be taken as one CRS (realisations of one datum, WGS 84 and
+#: NAD83, differ by a metre or two; a wrong zone or datum by far more).
+CRS_AGREEMENT_M = 10.0
 
 
 @dataclass(frozen=True)
@@ -129,11 +134,33 @@ def open_rain_grid(settings: RainGridSettings) -> RainStack:
         found = rain_geotiff.describe_stack(settings)
     else:
         found = rain_geotiff.describe_folder(settings)
+    if settings.crs is not None and found.own_crs:
+        _stated_crs_agrees(found, settings.crs)
     step_s, start, labels = _steps(found, settings)
     factor = _depth_factor(found, settings, step_s)
     return RainStack(str(settings.path), fmt, found.crs, found.transform, found.width,
                      found.height, step_s, labels, start, factor, found.where,
                      variable=found.variable, files=found.files)
+
+
+def _stated_crs_agrees(found: Any, stated: str) -> None:
+    """Refuse a project ``crs`` that would put the stack elsewhere than its own CRS does.
+
+    The middle of the grid, read in each CRS, must land within :data:`CRS_AGREEMENT_M` on the
+    ground; so one CRS written two ways (EPSG code, CF grid mapping) passes.
+    """
+    said = checked_crs(stated, f"{found.where}: project file crs")
+    if said.equals(found.crs, ignore_axis_order=True):
+        return
+    x, y = found.transform * (found.width / 2, found.height / 2)
+    places = [Transformer.from_crs(c, "EPSG:4326", always_xy=True).transform(x, y)
+              for c in (found.crs, said)]
+    apart = Geod(ellps="WGS84").inv(*places[0], *places[1])[2]
+    if not apart <= CRS_AGREEMENT_M:
+        raise StormError(found.where, f"has its own CRS ({found.crs.name}) but the project file "
+                         f"says crs = {stated!r}, which puts the grid {apart:,.0f} m away",
+                         "leave crs out of the project file (it is for a stack without a CRS), "
+                         "or correct the file's CRS")
 
 
 def _format(settings: RainGridSettings) -> str:

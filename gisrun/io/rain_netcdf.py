@@ -58,12 +58,13 @@ def describe(settings: RainGridSettings) -> FoundStack:
         times = _times(ds[tdim], f"{path.name}:{tdim}")
         step_s, start = _bounds(ds, tdim, times, f"{path.name}:{tdim}")
         crs = _crs(ds, var, _is_lonlat(ds[xdim], ds[ydim]), settings.crs, where)
+        own = bool(_mapping(ds, var)) or settings.crs is None
         x = _in_crs_units(ds[xdim], crs)
         y = _in_crs_units(ds[ydim], crs)
         transform = affine_from_centres(x, y, where)
         unit = var.attrs.get("units")
         return FoundStack(crs, transform, x.size, y.size, times, _text(unit), where,
-                          step_s=step_s, start=start, variable=name)
+                          step_s=step_s, start=start, variable=name, own_crs=own)
 
 
 def read_steps(path: str, variable: str, first: int, stop: int, where: str
@@ -224,9 +225,9 @@ def _is_lonlat(x: xr.DataArray, y: xr.DataArray) -> bool:
 
 def _crs(ds: xr.Dataset, var: xr.DataArray, lonlat: bool, stated: str | None,
          where: str) -> CRS:
-    mapping = var.attrs.get("grid_mapping") or var.encoding.get("grid_mapping")
-    if mapping and str(mapping).split(":")[0] in ds.variables:
-        attrs = ds[str(mapping).split(":")[0]].attrs
+    mapping = _mapping(ds, var)
+    if mapping:
+        attrs = ds[mapping].attrs
         try:
             return CRS.from_cf(attrs)
         except _PyprojCRSError as err:
@@ -236,6 +237,13 @@ def _crs(ds: xr.Dataset, var: xr.DataArray, lonlat: bool, stated: str | None,
     if stated is None and lonlat:
         return CRS.from_epsg(4326)
     return checked_crs(None, where, stated=stated)
+
+
+def _mapping(ds: xr.Dataset, var: xr.DataArray) -> str:
+    """The name of the variable's CF grid mapping variable, or "" without one."""
+    mapping = str(var.attrs.get("grid_mapping") or var.encoding.get("grid_mapping") or "")
+    name = mapping.split(":")[0]
+    return name if name and name in ds.variables else ""
 
 
 def _text(value: object) -> str | None:

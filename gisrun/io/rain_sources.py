@@ -54,6 +54,7 @@ class FoundStack:
     start: Any = None  # likewise
     variable: str | None = None
     files: tuple[str, ...] = ()
+    own_crs: bool = True  # the CRS is the file's own, not the project file's ``crs``
 
 
 def affine_from_centres(x: NDArray[np.float64], y: NDArray[np.float64], where: str) -> Affine:

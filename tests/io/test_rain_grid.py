@@ -250,6 +250,26 @@ def test_band_and_file_units_must_agree(tmp_path):
         open_rain_grid(RainGridSettings(folder, time_pattern="rain_%Y%m%d_%H%M.tif"))
 
 
+def test_a_project_crs_that_names_the_stacks_own_is_taken(tmp_path):
+    # the same CRS written two ways: an EPSG code in the project file, a CF grid mapping in the
+    # file (pyproj does not call them equal; they put the grid at the same place)
+    path = write_netcdf(tmp_path / "r.nc", np.ones((2, 3, 4)), projected=True)
+    assert open_rain_grid(RainGridSettings(path, crs="EPSG:32617")).crs.to_epsg() == 32617
+    ds = xr.open_dataset(write_netcdf(tmp_path / "ll.nc", np.ones((2, 3, 4))),
+                         decode_times=False).load()
+    ds["precip"].attrs["grid_mapping"] = "crs"
+    ds["crs"] = ((), 0, {"grid_mapping_name": "latitude_longitude", "semi_major_axis": 6378137.0,
+                         "inverse_flattening": 298.257223563})
+    ds.to_netcdf(tmp_path / "mapped.nc")
+    own = CRS.from_cf(ds["crs"].attrs)
+    assert not own.equals(CRS("EPSG:4326"), ignore_axis_order=True)
+    stack = open_rain_grid(RainGridSettings(tmp_path / "mapped.nc", crs="EPSG:4326"))
+    assert stack.crs.equals(own)
+    with pytest.raises(GisrunError, match=r"r\.nc:precip: has its own CRS \(WGS 84 / UTM zone "
+                                          r"17N\) but the project file says crs = 'EPSG:32616'"):
+        open_rain_grid(RainGridSettings(path, crs="EPSG:32616"))  # the next zone west
+
+
 def test_cf_times_decoded_by_xarray_agree_with_pandas(tmp_path):
     # The decoded labels are xarray's; pandas' own arithmetic is the independent check.
     minutes = np.array([7.0, 12.0, 17.0])
