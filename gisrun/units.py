@@ -356,12 +356,14 @@ def rain_unit(text: str, where: str) -> RainUnit:
                      "write a depth such as 'mm' or an intensity such as 'mm/h'")
 
 
-#: Metres in one unit of a projected coordinate as CF/UDUNITS files write it (the US survey
-#: foot is 1200/3937 m by its definition; the international foot 0.3048 m).
+#: Metres in one unit of a projected coordinate as CF/UDUNITS files write it: the spellings of
+#: :data:`FACTORS_TO_SI`'s metre and (international) foot, the kilometre, and the US survey
+#: foot (1200/3937 m by its definition).
 COORDINATE_LENGTHS_M: dict[str, float] = {
-    **dict.fromkeys(("m", "meter", "meters", "metre", "metres"), 1.0),
-    **dict.fromkeys(("km", "kilometer", "kilometers", "kilometre", "kilometres"), 1000.0),
-    **dict.fromkeys(("ft", "foot", "feet", "international_foot"), 0.3048),
+    **dict.fromkeys(("m", "meter", "meters", "metre", "metres"), FACTORS_TO_SI["m"]),
+    **dict.fromkeys(("km", "kilometer", "kilometers", "kilometre", "kilometres"),
+                    1000.0 * FACTORS_TO_SI["m"]),
+    **dict.fromkeys(("ft", "foot", "feet", "international_foot"), FACTORS_TO_SI["ft"]),
     **dict.fromkeys(("us_survey_foot", "us_survey_feet", "us survey foot", "ftus", "ft_us"),
                     1200.0 / 3937.0),
 }
