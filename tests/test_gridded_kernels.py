@@ -11,7 +11,7 @@ for nodata and negative rain.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pytest
@@ -49,8 +49,11 @@ class StackInMemory:
     def width(self) -> int:
         return self.values.shape[2]
 
-    def read_steps(self, first: int, stop: int) -> np.ndarray:
-        return self.values[first:stop].astype(np.float64)
+    #: A stored value times this is a depth in m (1.0: stored as depths).
+    to_depth_m: float = 1.0
+
+    def read_stored(self, first: int, stop: int) -> np.ndarray:
+        return self.values[first:stop].copy()
 
     def step_label(self, step: int) -> str:
         return f"2026-07-01 step {step + 1}"
@@ -109,14 +112,48 @@ def test_gather_keeps_the_used_cells_by_series_and_finds_numpys_minimum():
     block = random_rain(rng, 11).reshape(11, -1)
     kept = np.full((weights.cells.size, 20), np.nan)
     low = np.empty(11)
-    assert gather_block(block, weights.cells, 4, kept, low)
+    assert gather_block(block, weights.cells, 4, 1.0, kept, low)
     assert np.array_equal(kept[:, 4:15], block[:, weights.cells].T)
     assert np.isnan(kept[:, :4]).all() and np.isnan(kept[:, 15:]).all()  # other steps left
     assert np.array_equal(low, block[:, weights.cells].min(axis=1))
     for bad in (np.nan, -1e-9, np.inf):  # any bad used value is seen
         spoiled = block.copy()
         spoiled[7, weights.cells[200]] = bad
-        assert not gather_block(spoiled, weights.cells, 4, kept, low)
+        assert not gather_block(spoiled, weights.cells, 4, 1.0, kept, low)
+
+
+@pytest.mark.parametrize("factor", [5 / 60 / 1000, 0.0254 / 12, 1e-3, 7.0])
+def test_gather_of_stored_float32_gives_the_depths_read_steps_gives_to_the_bit(factor):
+    # RainStack.read_steps widens the stored float32 to float64, then multiplies by the
+    # stack's factor; the gather does both per value and must keep the same bits.
+    rng = np.random.default_rng(11)
+    weights = random_weights(rng, 80, 333)
+    stored = (random_rain(rng, 9) * 1e4).astype(np.float32).reshape(9, -1)
+    depths = np.array(stored, dtype=np.float64)
+    depths *= factor
+    kept = np.empty((weights.cells.size, 9))
+    low = np.empty(9)
+    assert gather_block(stored, weights.cells, 0, factor, kept, low)
+    assert np.array_equal(kept, depths[:, weights.cells].T)
+    assert np.array_equal(low, depths[:, weights.cells].min(axis=1))
+    for bad in (np.nan, -1e-30, -np.inf):  # a tiny negative float32 stays negative
+        spoiled = stored.copy()
+        spoiled[3, weights.cells[17]] = bad
+        assert not gather_block(spoiled, weights.cells, 0, factor, kept, low)
+
+
+def test_a_stack_of_stored_values_gives_the_mix_of_its_depths_to_the_bit():
+    rng = np.random.default_rng(12)
+    weights = random_weights(rng, 200, 500)
+    stored = (random_rain(rng, 15) * 1e4).astype(np.float32)
+    factor = 5 / 60 / 1000
+    depths = np.array(stored, dtype=np.float64)
+    depths *= factor
+    as_stored = replace(StackInMemory(stored), to_depth_m=factor)
+    got = grid_rain_mix(weights, as_stored, block_bytes=4 * 8 * HEIGHT * WIDTH)[0]
+    want = grid_rain_mix(weights, StackInMemory(depths))[0]
+    assert np.array_equal(got.values_m, want.values_m)
+    assert np.array_equal(got.columns(), scipy_means(depths, weights))
 
 
 def test_areal_depth_by_blocks_gives_scipys_product_to_the_bit():
@@ -198,7 +235,9 @@ def test_nodata_and_negative_rain_stop_with_the_messages_of_before():
     with pytest.raises(StormError) as err:  # negative: value, time and cell, as before
         grid_areal_depth(weights, StackInMemory(values), block_bytes=3 * 8 * HEIGHT * WIDTH)
     assert str(err.value) == (f"memory.nc:rain: has rain -0.0025 m < 0 at 2026-07-01 step 8 "
-                              f"in cell {name}; give rain depths or intensities >= 0")
+                              f"in cell {name}; give rain depths or intensities >= 0, or "
+                              "declare a value that marks missing data as the file's nodata "
+                              "(NetCDF _FillValue or missing_value, the GeoTIFF's nodata)")
     values.reshape(10, -1)[8, cell] = np.nan
     with pytest.raises(StormError) as err:  # nodata in the same block comes first
         grid_areal_depth(weights, StackInMemory(values), block_bytes=3 * 8 * HEIGHT * WIDTH)

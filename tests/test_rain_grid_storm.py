@@ -93,10 +93,10 @@ def test_the_grid_is_read_in_blocks_of_a_share_of_the_memory_budget(demo, tmp_pa
     ds["time"] = ("time", 5.0 * np.arange(1, 21), {"units": "minutes since 2026-07-14 15:00:00"})
     ds.to_netcdf(tmp_path / "random.nc")
     reads: list[tuple[int, int]] = []
-    read_steps = RainStack.read_steps
-    monkeypatch.setattr(RainStack, "read_steps",
+    read_stored = RainStack.read_stored
+    monkeypatch.setattr(RainStack, "read_stored",
                         lambda self, first, stop: reads.append((first, stop))
-                        or read_steps(self, first, stop))
+                        or read_stored(self, first, stop))
     spec = {"name": "random", "kind": "rain_grid", "path": "random.nc"}
 
     def build(**budget):

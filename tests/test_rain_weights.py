@@ -51,7 +51,10 @@ class ArrayGrid:
     def steps(self) -> int:
         return self.values.shape[0]
 
-    def read_steps(self, first: int, stop: int) -> np.ndarray:
+    #: Stored as depths in m.
+    to_depth_m = 1.0
+
+    def read_stored(self, first: int, stop: int) -> np.ndarray:
         return self.values[first:stop].astype(np.float64)
 
     def step_label(self, step: int) -> str:

@@ -3,8 +3,9 @@
 :func:`open_rain_grid` looks at the file once (grid, CRS, times, unit) and returns a
 :class:`RainStack`, which holds no open file: :meth:`RainStack.read_steps` opens it for each
 block of steps, so the stack pickles and memory holds one block
-(:func:`gisrun.storm.gridded.grid_areal_depth`). Values come back as rain depth per step in
-metres, NaN where the source has no value.
+(:func:`gisrun.storm.gridded.grid_areal_depth`). Values come back as stored
+(:meth:`RainStack.read_stored`, float32 or float64), or as rain depth per step in metres
+(:meth:`RainStack.read_steps`), NaN where the source has no value.
 
 Times are decoded by the library made for them (xarray's CF decoding for NetCDF,
 ``datetime.strptime`` with the user's pattern for file names, ISO 8601 for band
@@ -95,16 +96,25 @@ class RainStack:
         return f"time {self.labels[step]}"
 
     def read_steps(self, first: int, stop: int) -> NDArray[np.float64]:
-        """Rain depth in m of steps ``first:stop``, shape ``(k, height, width)``; NaN: nodata."""
+        """Rain depth in m of steps ``first:stop``, shape ``(k, height, width)``; NaN: nodata.
+
+        The stored values (:meth:`read_stored`) times :attr:`to_depth_m`, in one pass.
+        """
+        return np.multiply(self.read_stored(first, stop), self.to_depth_m, dtype=np.float64)
+
+    def read_stored(self, first: int, stop: int) -> NDArray[np.floating]:
+        """The values of steps ``first:stop`` as stored, ``(k, height, width)``; NaN: nodata.
+
+        float32 or float64 (scale and offset applied, missing values NaN); times
+        :attr:`to_depth_m` they are rain depths in m, as :meth:`read_steps` gives them.
+        """
         if self.format == "netcdf":
-            raw = rain_netcdf.read_steps(self.path, self.variable or "", first, stop, self.where)
-        elif self.format == "geotiff":
-            raw = rain_geotiff.read_bands(self.path, range(first + 1, stop + 1), self.where)
-        else:
-            raw = np.stack([rain_geotiff.read_bands(f, [1], self.where)[0]
-                            for f in self.files[first:stop]])
-        raw *= self.to_depth_m
-        return raw
+            return rain_netcdf.read_steps(self.path, self.variable or "", first, stop,
+                                          self.where)
+        if self.format == "geotiff":
+            return rain_geotiff.read_bands(self.path, range(first + 1, stop + 1), self.where)
+        return np.stack([rain_geotiff.read_bands(f, [1], self.where)[0]
+                         for f in self.files[first:stop]])
 
 
 def open_rain_grid(settings: RainGridSettings) -> RainStack:

@@ -68,14 +68,19 @@ def describe(settings: RainGridSettings) -> FoundStack:
 
 
 def read_steps(path: str, variable: str, first: int, stop: int, where: str
-               ) -> NDArray[np.float64]:
-    """Values of ``variable`` at time steps ``first:stop``, ``(k, y, x)``; NaN where missing."""
+               ) -> NDArray[np.floating]:
+    """Values of ``variable`` at time steps ``first:stop``, ``(k, y, x)``; NaN where missing.
+
+    As xarray decodes them (CF scale, offset and missing values), float32 kept as float32
+    (it widens to float64 exactly); any other type as float64.
+    """
     with _open(Path(path), decode_times=False) as ds:
         var = ds[variable]
         tdim, ydim, xdim, extra = _dims(var, where)
         block = var.isel({tdim: slice(first, stop), **{d: 0 for d in extra}})
-        block = block.transpose(tdim, ydim, xdim)
-        return np.array(block.values, dtype=np.float64)
+        values = np.ascontiguousarray(block.transpose(tdim, ydim, xdim).values)
+        return values if values.dtype in (np.float32, np.float64) else \
+            values.astype(np.float64)
 
 
 def _open(path: Path, decode_times: bool = True) -> xr.Dataset:

@@ -1,12 +1,14 @@
 """Areal rain per subcatchment from a gridded rainfall product (all SI).
 
-A rain grid reaches this module as a :class:`RainGrid`: its georeferencing, its steps and a
-``read_steps`` method, the only door to the file (``gisrun.io.rain_grid.RainStack`` is the
-file-backed one; tests pass arrays). :func:`grid_rain_mix` reads the stack once, in blocks of
-steps, checks it and keeps the depths of the cells the subcatchments use, each cell's series
-together; each subcatchment's area-weighted mean of the cells over its polygon (the weights
-of :func:`gisrun.grid.rain_weights.rain_grid_weights`) is then made when a chunk of
-subcatchments runs (:class:`gisrun.storm.mix.SourceMix`), never for all of them at once.
+A rain grid reaches this module as a :class:`RainGrid`: its georeferencing, its steps, the
+factor from its stored values to depths and a ``read_stored`` method, the only door to the file
+(``gisrun.io.rain_grid.RainStack`` is the file-backed one; tests pass arrays).
+:func:`grid_rain_mix` reads the stack once, in blocks of steps as stored (float32 stays
+float32), and in one pass over each block makes the depths of the cells the subcatchments use,
+each cell's series together, and checks them; each subcatchment's area-weighted mean of the
+cells over its polygon (the weights of :func:`gisrun.grid.rain_weights.rain_grid_weights`) is
+then made when a chunk of subcatchments runs (:class:`gisrun.storm.mix.SourceMix`), never for
+all of them at once.
 
 The mean is :func:`gisrun.storm.areal.weighted_mean`'s, ``min + W (x - min)`` with the
 smallest value of the cells used in each step: a grid whose cells all hold the same depth
@@ -55,9 +57,14 @@ class RainGrid(RainGridGeometry, Protocol):
 
     steps: int
     step_s: float
+    #: A stored value times this is the step's rain depth in m (1.0 for a stack of depths).
+    to_depth_m: float
 
-    def read_steps(self, first: int, stop: int) -> NDArray[np.float64]:
-        """Rain depth in m of steps ``first:stop``, shape ``(k, height, width)``; NaN: nodata."""
+    def read_stored(self, first: int, stop: int) -> NDArray[np.floating]:
+        """Values of steps ``first:stop`` as stored, ``(k, height, width)``; NaN: nodata.
+
+        float32 or float64; times :attr:`to_depth_m` they are rain depths in m.
+        """
 
     def step_label(self, step: int) -> str:
         """The time of step ``step`` as the source writes it, for messages."""
@@ -79,10 +86,11 @@ def grid_rain_mix(weights: RainGridWeights, grid: RainGrid, *, block_bytes: int 
                   fill_gaps: bool = False) -> tuple[SourceMix, tuple[str, ...]]:
     """The grid's rain as a :class:`~gisrun.storm.mix.SourceMix` over its used cells.
 
-    Reads the stack ``block_bytes`` at a time and, in one pass over each block
-    (:func:`gisrun.storm.mix_kernels.gather_block`), checks every used cell of every step,
-    takes each step's smallest used value and keeps the used cells' depths, a cell's series
-    together (used cells x steps, 8 bytes each: at most the stack's own size as float64).
+    Reads the stack ``block_bytes`` at a time as stored and, in one pass over each block
+    (:func:`gisrun.storm.mix_kernels.gather_block`), keeps the used cells' depths (each stored
+    value widened to float64 times ``grid.to_depth_m``, the bits ``RainStack.read_steps``
+    gives), a cell's series together (used cells x steps, 8 bytes each: at most the stack's
+    own size as float64), checks every one and takes each step's smallest.
     Each subcatchment's means are then made when asked for (:meth:`SourceMix.columns`), a
     chunk of subcatchments at a time in a run.
 
@@ -115,13 +123,13 @@ def grid_rain_mix(weights: RainGridWeights, grid: RainGrid, *, block_bytes: int 
     low = np.zeros(grid.steps, dtype=np.float64)
     for first in range(0, grid.steps, k):
         stop = min(first + k, grid.steps)
-        block = np.ascontiguousarray(grid.read_steps(first, stop).reshape(stop - first, -1),
-                                     dtype=np.float64)
-        if gather_block(block, weights.cells, first, kept, low[first:stop]):
+        block = np.ascontiguousarray(grid.read_stored(first, stop).reshape(stop - first, -1))
+        if gather_block(block, weights.cells, first, grid.to_depth_m, kept, low[first:stop]):
             continue
+        block = np.multiply(block, grid.to_depth_m, dtype=np.float64)  # depths, to fill or name
         if fill_gaps:
             filled.append(fill_block_gaps(block, weights, grid, first))
-            if gather_block(block, weights.cells, first, kept, low[first:stop]):
+            if gather_block(block, weights.cells, first, 1.0, kept, low[first:stop]):
                 continue
         _raise_first_bad(block, weights, grid, first)
     low[np.isinf(low)] = 0.0  # no cell used: nothing subtracted
@@ -207,13 +215,10 @@ def _raise_bad_value(status: int, value: float, weights: RainGridWeights, grid: 
                          f" in cell {_cell_name(weights, col)} used by subcatchment {sub!r}",
                          "fill the gap in the rain grid, or give a grid without nodata over the "
                          "subcatchments")
-    to_depth = getattr(grid, "to_depth_m", None)  # a file's stack: what the file holds
-    if to_depth is None:
-        raise StormError(grid.where, f"has rain {value:g} m < 0 at "
-                         f"{grid.step_label(step)} in cell {_cell_name(weights, col)}",
-                         "give rain depths or intensities >= 0")
-    raise StormError(grid.where, f"has rain {value:g} m < 0 (stored value {value / to_depth:g}) "
-                     f"at {grid.step_label(step)} in cell {_cell_name(weights, col)}",
+    to_depth = grid.to_depth_m
+    stored = "" if to_depth == 1.0 else f" (stored value {value / to_depth:g})"
+    raise StormError(grid.where, f"has rain {value:g} m < 0{stored} at "
+                     f"{grid.step_label(step)} in cell {_cell_name(weights, col)}",
                      "give rain depths or intensities >= 0, or declare a value that marks "
                      "missing data as the file's nodata (NetCDF _FillValue or missing_value, "
                      "the GeoTIFF's nodata)")

@@ -5,8 +5,9 @@ steps)``: a subcatchment's column is then a sum of a few whole rows, ``low + sum
 low)``, which runs over contiguous memory, step after step, and vectorises. Two kernels:
 
 - :func:`gather_block`: a block of a rain stack as it is read, ``(steps, height * width)``,
-  into the kept sources (its used cells, by series), taking each step's smallest used value and
-  telling whether every used value is finite and >= 0;
+  into the kept sources (its used cells, by series, as depths: each stored value widened to
+  float64 and multiplied by the stack's factor, as ``RainStack.read_steps`` makes them), taking
+  each step's smallest used depth and telling whether every used depth is finite and >= 0;
 - :func:`mix_columns`: the columns of some subcatchments (rows of the weights, picked by
   position: a chunk's subcatchments need no weights of their own), each straight into its row
   of the result (a subcatchment of one to four sources has its own loop without an
@@ -34,18 +35,21 @@ _CELLS_AT_ONCE = 16
 
 
 @numba.njit(cache=True, nogil=True)
-def gather_block(block: NDArray[np.float64], cells: NDArray[np.int64], first: int,
-                 kept: NDArray[np.float64], low: NDArray[np.float64]) -> bool:
-    """``kept[c, first + j] = block[j, cells[c]]`` and each step's smallest used value.
+def gather_block(block: NDArray[np.floating], cells: NDArray[np.int64], first: int,
+                 factor: float, kept: NDArray[np.float64], low: NDArray[np.float64]) -> bool:
+    """``kept[c, first + j] = float64(block[j, cells[c]]) * factor``, and step minima.
 
     Parameters
     ----------
     block : ndarray, shape (steps, height * width)
-        A block of the rain stack, C order.
+        A block of the rain stack as stored (float32 or float64), C order.
     cells : ndarray of int64
         The used cells (columns of ``block``), in the order of the kept rows.
     first : int
         The block's first step in the stack.
+    factor : float
+        Stored value -> depth (``RainStack.to_depth_m``; 1.0 for a block of depths, which it
+        leaves unchanged to the bit).
     kept : ndarray, shape (len(cells), steps of the stack)
         The kept sources, C order; the block's columns are written.
     low : ndarray, shape (steps of the block,)
@@ -70,7 +74,7 @@ def gather_block(block: NDArray[np.float64], cells: NDArray[np.int64], first: in
             cell = cells[c]
             row = kept[c]
             for j in range(k):
-                row[first + j] = block[j, cell]
+                row[first + j] = np.float64(block[j, cell]) * factor
     low[:] = np.inf
     bad = np.zeros(k, dtype=np.bool_)
     for c in range(n):

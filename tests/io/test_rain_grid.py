@@ -61,6 +61,24 @@ def test_netcdf_intensity_becomes_depth_per_step_with_cf_times(tmp_path):
     np.testing.assert_allclose(stack.read_steps(1, 3), values[1:3] * 5 / 60 / 1000, rtol=1e-12)
 
 
+
+@pytest.mark.parametrize("dtype", [np.float32, np.float64, np.int16, ">f4"])
+def test_stored_values_keep_float32_and_times_the_factor_are_the_depths(tmp_path, dtype):
+    # read_stored gives what xarray decodes (float32 stays float32, so the areal rain widens
+    # it as it keeps the used cells); read_steps is those values widened to float64, then
+    # multiplied by the factor, to the bit (the bits the areal rain keeps).
+    values = np.round(RNG.uniform(0, 30, (4, 3, 5))).astype(dtype)
+    stack = open_rain_grid(RainGridSettings(write_netcdf(tmp_path / "r.nc", values)))
+    stored = stack.read_stored(0, 4)
+    assert stored.dtype == (np.float32 if np.dtype(dtype).char == "f" else np.float64)
+    assert stored.flags.c_contiguous and stored.dtype.isnative
+    np.testing.assert_array_equal(stored, values.astype(np.float64))
+    depths = np.array(stored, dtype=np.float64)
+    depths *= 5 / 60 / 1000
+    assert stack.to_depth_m == 5 / 60 / 1000 * 1.0
+    np.testing.assert_array_equal(stack.read_steps(0, 4), depths)
+
+
 def test_netcdf_time_bounds_give_the_step_and_its_start(tmp_path):
     path = write_netcdf(tmp_path / "r.nc", np.ones((3, 2, 2)), units="kg m-2", bounds=True)
     stack = open_rain_grid(RainGridSettings(path, time_marks="start"))  # bounds win
