@@ -173,6 +173,30 @@ def test_scale_bar_is_off_the_data_and_in_the_run_units(unit, ends):
     assert labels[0].get_window_extent().y1 < frame.y0
 
 
+@pytest.mark.parametrize(("crs", "metres_per_crs_unit"), [
+    ("EPSG:32617", 1.0),               # UTM zone 17N, metres
+    ("EPSG:2263", 1200.0 / 3937.0),    # NY Long Island, US survey feet (1 ftUS = 1200/3937 m)
+])
+@pytest.mark.parametrize("unit", ["m", "ft"])
+def test_scale_bar_length_matches_its_label(crs, metres_per_crs_unit, unit):
+    """The bar drawn is as long on the ground as its label says. Exact factors from NIST SP 811
+    (2008) Appendix B: 1 ft = 0.3048 m, 1 mi = 5280 ft; the US survey foot is 1200/3937 m
+    by its definition (also NIST SP 811 App. B)."""
+    ground = gpd.GeoDataFrame({"v": [1.0, 2.0]}, crs=crs,
+                              geometry=[box(0, 0, 3000, 2000), box(3000, 0, 6000, 2000)])
+    fig = maps.subcatchment_map(ground, "v", title="t", label="mm", crs=crs, distance_unit=unit)
+    ax = fig.axes[0]
+    bars = [p for p in ax.patches if type(p).__name__ == "Rectangle" and p.get_facecolor()[:3]
+            in ((0.0, 0.0, 0.0), (1.0, 1.0, 1.0))]
+    span_crs = sum(bar.get_width() for bar in bars)
+    label = next(t.get_text() for t in ax.texts
+                 if t.get_text().endswith((" m", " km", " ft", " mi")))
+    number, word = label.replace(",", "").split()
+    metres = float(number) * {"m": 1.0, "km": 1000.0, "ft": 0.3048, "mi": 5280 * 0.3048}[word]
+    assert word in (("m", "km") if unit == "m" else ("ft", "mi"))
+    assert_allclose(span_crs * metres_per_crs_unit, metres, rtol=1e-12)
+
+
 def test_methods_are_hatched_with_a_legend_where_they_differ():
     """Defect: maps did not say which loss method each subcatchment used."""
     gdf = boxes([1.0, 2.0, 3.0], how=["green_ampt", "green_ampt", "curve_number"])

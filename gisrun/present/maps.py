@@ -30,6 +30,7 @@ from numpy.typing import NDArray
 from pyproj import CRS
 from shapely.geometry import box
 
+from ..units import FACTORS_TO_SI
 from .canvas import PRINT_DPI, figure_png, new_figure
 from .classes import MISSING_COLOUR, Classes, class_breaks, shared_classes
 from .display import distance_label, method_name
@@ -211,9 +212,9 @@ def nice_length(target: float) -> float:
 def _scale_bar(ax: Axes, metres_per_unit: float, distance_unit: str) -> None:
     """A scale bar below the map's frame (so never on the data), in ``m`` or ``ft`` terms."""
     x0, x1 = ax.get_xlim()
-    unit_m = 0.3048 if distance_unit == "ft" else 1.0
+    unit_m = FACTORS_TO_SI["ft" if distance_unit == "ft" else "m"]
     target = (x1 - x0) * metres_per_unit / unit_m / 4  # in display units
-    big = 5280.0 if distance_unit == "ft" else 1000.0
+    big = 5280.0 if distance_unit == "ft" else 1000.0  # feet in a mile, metres in a km
     length = nice_length(target / big) * big if target >= big else nice_length(target)
     span = length * unit_m / metres_per_unit  # in CRS units
     trans = blended_transform_factory(ax.transData, ax.transAxes)
