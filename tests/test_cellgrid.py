@@ -240,6 +240,32 @@ def test_unaligned_cover_is_sampled_at_the_cell_centre_and_says_so(tmp_path):
     assert_allclose(runoff[2, 0] / 1000, unit(result, "P1", "A", "open_space_good"), rtol=1e-6)
 
 
+def test_rasters_say_what_they_hold_and_us_runs_write_inches(tmp_path):
+    """Defect: the GeoTIFFs had no band description and no unit, so a GIS showed bare numbers
+    (mm or in told only by the file name). Each band now names its quantity and unit, and a
+    US run's runoff raster holds inches: 1 in = 0.0254 m exactly (NIST SP 811, App. B)."""
+    toml = tiny_project(tmp_path / "p")
+    toml.write_text(toml.read_text().replace('units = "si"', 'units = "us"')
+                    .replace("depth = 60", "depth = 2.4"))
+    result = run(toml)
+    paths = write_cell_rasters(result, tmp_path / "rasters")["uniform_60mm"]
+    assert paths["runoff"].name == "runoff_depth_in_uniform_60mm.tif"
+    with rasterio.open(paths["runoff"]) as src:
+        assert src.units == ("in",)
+        assert src.descriptions == ("runoff depth, uniform_60mm",)
+    with rasterio.open(paths["time_to_ponding"]) as src:
+        assert src.units == ("min",)
+        assert src.descriptions == ("time to ponding, uniform_60mm",)
+    runoff, _ = read(paths["runoff"])
+    assert_allclose(runoff[2, 0] * 0.0254, unit(result, "P1", "A", "open_space_good"),
+                    rtol=1e-6)  # float32 raster
+    ponding, _ = read(paths["time_to_ponding"])
+    assert np.isfinite(ponding[2, 0]) and np.isfinite(runoff[2, 0]) and runoff[2, 0] > 0
+    assert_allclose(ponding[2, 0] * 60.0,
+                    unit(result, "P1", "A", "open_space_good", col="time_to_ponding_s"),
+                    rtol=1e-6)
+
+
 def test_dominant_rule_fills_nodata_slots_from_the_largest_unit():
     import pandas as pd
 

@@ -42,7 +42,8 @@ def grid_of(raster: Any) -> GridSpec:
 
 def write_float_rasters(targets: Mapping[str, Path], grid: GridSpec,
                         bands: Iterable[tuple[int, Mapping[str, NDArray[np.float64]]]],
-                        *, overwrite: bool = False) -> dict[str, Path]:
+                        *, overwrite: bool = False,
+                        labels: Mapping[str, tuple[str, str]] | None = None) -> dict[str, Path]:
     """Write several float32 rasters at once from row bands (NaN = nodata).
 
     Parameters
@@ -58,6 +59,9 @@ def write_float_rasters(targets: Mapping[str, Path], grid: GridSpec,
         value as nodata, hence :data:`FLOAT_NODATA`).
     overwrite : bool
         Replace existing files.
+    labels : mapping of key to (description, unit), optional
+        The band's description (``"runoff depth"``) and unit (``"mm"``), written into the
+        GeoTIFF (GDAL band description and unit type), so a GIS shows what the values are.
 
     Returns
     -------
@@ -73,6 +77,9 @@ def write_float_rasters(targets: Mapping[str, Path], grid: GridSpec,
                 for k, p in targets.items()}
         dsts = {k: stack.enter_context(rasterio.open(tmp, "w", **profile))
                 for k, tmp in tmps.items()}
+        for key, (description, unit) in (labels or {}).items():
+            dsts[key].set_band_description(1, description)
+            dsts[key].set_band_unit(1, unit)
         for row0, arrays in bands:
             for key, arr in arrays.items():
                 out = arr.astype(np.float32)

@@ -2,7 +2,8 @@
 
 Per storm, ``runoff_depth_<unit>_<storm>.tif`` (in the run's depth unit) and
 ``time_to_ponding_min_<storm>.tif`` on the soil raster's grid, from
-:attr:`gisrun.model.RunResult.cells`. Nothing is read from the inputs.
+:attr:`gisrun.model.RunResult.cells`; each band carries its description and unit (``mm`` or
+``in``, ``min``). Nothing is read from the inputs.
 """
 
 from __future__ import annotations
@@ -42,15 +43,17 @@ def write_cell_rasters(result: RunResult, folder: Path, *, overwrite: bool = Fal
     if cells is None:
         raise ValueError("this run made no cell values; run it with cells=True")
     depth_unit = result.project.units.depth
-    targets, paths = {}, {}
+    targets, paths, labels = {}, {}, {}
     for k, storm in enumerate(result.storms):
         runoff = folder / f"runoff_depth_{depth_unit}_{storm.file_stem}.tif"
         ponding = folder / f"time_to_ponding_min_{storm.file_stem}.tif"
         targets[(k, "runoff")], targets[(k, "ponding")] = runoff, ponding
+        labels[(k, "runoff")] = (f"runoff depth, {storm.name}", depth_unit)
+        labels[(k, "ponding")] = (f"time to ponding, {storm.name}", "min")
         paths[storm.name] = {"runoff": runoff, "time_to_ponding": ponding}
     folder.mkdir(parents=True, exist_ok=True)
     write_float_rasters(targets, cells.grid, _bands(cells, depth_unit, progress),
-                        overwrite=overwrite)
+                        overwrite=overwrite, labels=labels)
     return paths
 
 
@@ -63,7 +66,7 @@ def _bands(cells: CellRasters, depth_unit: str, progress: Progress | None
         for k, (runoff, ponding) in enumerate(zip(cells.runoff_depth_m, cells.time_to_ponding_s,
                                                   strict=True)):
             arrays[(k, "runoff")] = from_si(runoff[r0:r1], depth_unit)
-            arrays[(k, "ponding")] = ponding[r0:r1] / 60.0
+            arrays[(k, "ponding")] = from_si(ponding[r0:r1], "min")
         if progress:
             progress("cell rasters", r1, height)
         yield r0, arrays
