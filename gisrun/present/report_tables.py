@@ -220,7 +220,13 @@ def provenance_section(result: RunResult, files: list[str]) -> str:
     """The run's key facts (version, time, settings, checksums) and the files written."""
     info = run_info(result)
     info = info[info["key"] != "parameter_source"]  # listed with the parameter sheet
-    info = info.assign(key=info["key"].str.replace("_", " ", regex=False))
+    info = info.assign(key=[_plain_key(k) for k in info["key"].astype(str)])
     listed = "".join(f'<li class="mono">{esc(f)}</li>' for f in files)
     return table(info) + (
         f"<p>Files written beside this report:</p><ul>{listed}</ul>" if listed else "")
+
+
+def _plain_key(key: str) -> str:
+    """``time_step_min`` -> ``time step min``; a file name after ``sha256:`` is kept as it is."""
+    head, colon, name = key.partition(":")
+    return head.replace("_", " ") + colon + name
