@@ -9,7 +9,7 @@ The notebook API, step by step (see :mod:`gisrun.workflow.steps`)::
 
 Every name here is loaded on first use (``_LAZY``), so importing gisrun, or one of
 its modules, loads only what is used: the overlay alone does not load the run's
-workflow, scipy.stats or matplotlib.
+workflow, the uncertainty modules or matplotlib.
 
 Results are planning-level estimates: check them against local codes and agency
 methods and have them reviewed by a licensed engineer.

@@ -19,6 +19,7 @@ from gisrun import load_project, read_inputs, run, write_extras, write_outputs
 from gisrun.config.areal import AREAL_KINDS, ArealKind
 from gisrun.config.storms import storm_from_config
 from gisrun.errors import InputError, StormError
+from gisrun.present import maps, plots
 from gisrun.storm import ArealRain, Hyetograph, areal_storm, weighted_mean
 from gisrun.storm.areal import interpolate_columns
 from gisrun.workflow.bands import check_named_ids
@@ -194,13 +195,20 @@ def test_an_areal_kind_is_read_from_the_project_file(flat_kind, tmp_path):
                           base_dir=tmp_path, units=project.units, where="t")
 
 
-def test_areal_storm_gets_a_rain_map_and_weights_in_run_info(demo, tmp_path):
+def test_areal_storm_gets_a_rain_map_and_weights_in_run_info(demo, tmp_path, monkeypatch):
     project, inputs = demo
     h = inputs.storms[0]
     storm = _uniform_areal(inputs, lambda i: h.depth_m * (1.0 + int(i[-1]) % 3))
     result = run(project, inputs=dataclasses.replace(inputs, storms=(storm,)))
     gpkg = write_outputs(result, output=tmp_path / "areal.gpkg")
+    titles: list[str] = []
+    drawn = maps.subcatchment_map
+    monkeypatch.setattr(maps, "subcatchment_map", lambda gdf, column, **kw: titles.append(
+        kw["title"]) or drawn(gdf, column, **kw))
     made = write_extras(result, gpkg, options=ExtrasOptions(rasters=False))
+    # the rain map's own title says it is each subcatchment's storm total and its source
+    assert (f"Total rain depth per subcatchment, {storm.name}\neach subcatchment's "
+            "area-weighted mean of one invented gauge") in titles
     key = f"rain_depth_{result.storms[0].file_stem}"
     assert made.maps[key].is_file() and made.maps[key].stat().st_size > 10_000
     report = made.report.read_text(encoding="utf-8")
@@ -221,3 +229,19 @@ def test_uncertainty_bands_take_an_areal_storm_and_still_check_tornado_ids(demo)
     unknown = SimpleNamespace(sensitivity_subcatchments=("no_such_id",))
     with pytest.raises(InputError, match="names subcatchment 'no_such_id'"):
         check_named_ids(dataclasses.replace(project, uncertainty=unknown), areal)
+
+
+@pytest.mark.parametrize(("source", "made"), [
+    ("3 rain gauges (storms/gauge_records.csv), Thiessen polygons",
+     "3 rain gauges, Thiessen polygons"),
+    ("2 rain gauges (g.csv), inverse distance from each centroid, power 2",
+     "2 rain gauges, inverse distance from each centroid, power 2"),
+    ("rain grid radar.nc:rain (13 x 9 cells of 0.005 x 0.005 degrees, WGS 84; 36 steps of "
+     "5 min from 2026-07-14T15:00:00; exact area weights)", "rain grid radar.nc:rain")])
+def test_rain_panels_and_maps_name_the_source_and_the_weighting(source, made):
+    # A reviewer must tell gauges weighted by Thiessen polygons from inverse distance, and a
+    # map of storm totals from one step's rain, from the figure alone.
+    h = SimpleNamespace(name="ev", areal=SimpleNamespace(source=source), reduction=None)
+    assert plots.hyetograph_title(h) == f"ev: area-weighted mean over the subcatchments of {made}"
+    assert plots.rain_map_title(h) == (f"Total rain depth per subcatchment, ev\n"
+                                       f"each subcatchment's area-weighted mean of {made}")

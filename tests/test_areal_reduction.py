@@ -211,3 +211,8 @@ def test_the_hyetograph_panels_say_which_series_they_show():
                                 rate_unit="mm/h", title="Rain intensity of each storm")
     assert fig.get_suptitle() == "Rain intensity of each storm"
     assert [ax.get_title(loc="left") for ax in fig.axes] == titles
+    # The map of rain per subcatchment (a reduced storm's is drawn when factors differ) says
+    # it shows the storm's total and what it was made from.
+    assert plots.rain_map_title(mixed) == (
+        f"Total rain depth per subcatchment, {h.name}\npoint design depths times each "
+        "subcatchment's areal reduction factor")

@@ -12,6 +12,7 @@ names the loss method.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
@@ -27,7 +28,7 @@ from .canvas import new_figure
 from .display import human, method_name
 
 __all__ = ["PerviousSeries", "pervious_series", "infiltration_plot", "hyetograph_plot",
-           "hyetograph_title", "BAND_COLOURS"]
+           "hyetograph_title", "rain_map_title", "BAND_COLOURS"]
 
 #: Colours of the stacked bands (colour-blind safe, Okabe-Ito).
 BAND_COLOURS = {"infiltration": "#e69f00", "storage": "#999999", "excess": "#56b4e9"}
@@ -191,13 +192,32 @@ def hyetograph_title(h: Hyetograph) -> str:
     reduced by one areal reduction factor plots the reduced depths.
     """
     if h.areal is not None:
-        return (f"{h.name}: area-weighted mean over the subcatchments of "
-                f"{h.areal.source.split(' (')[0]}")
+        return f"{h.name}: area-weighted mean over the subcatchments of {_made_from(h)}"
     if h.reduction is not None and h.reduction.factor.size:
         return (f"{h.name}: point depths x areal reduction factor "
                 f"{float(h.reduction.factor[0]):.3g} ({h.reduction.relation})")
     return h.name
 
+
+
+def rain_map_title(h: Hyetograph) -> str:
+    """What a storm's map of rain per subcatchment shows, in words (two lines).
+
+    Each subcatchment's rain over the whole storm, and what it was made from: the area-weighted
+    mean of a rain grid's cells or of rain gauges, or point design depths times each
+    subcatchment's areal reduction factor. For a storm of areal rain only.
+    """
+    made = _made_from(h)
+    how = made if h.reduction is not None else f"each subcatchment's area-weighted mean of {made}"
+    return f"Total rain depth per subcatchment, {h.name}\n{how}"
+
+
+def _made_from(h: Hyetograph) -> str:
+    """The areal rain's source without its details in brackets, or the storm's name.
+
+    For example ``3 rain gauges, Thiessen polygons`` or ``rain grid radar.nc:rain``.
+    """
+    return re.sub(r" \([^()]*\)", "", h.areal.source) if h.areal is not None else h.name
 
 def hyetograph_plot(storms: Sequence[tuple[str, NDArray[np.float64], NDArray[np.float64]]], *,
                     rate_unit: str, title: str | None = None) -> Figure:

@@ -161,7 +161,7 @@ def _rain_map(result: RunResult, storm: StormResult, classes: Classes, folder: P
     gdf["rain"] = from_si(gdf["rain_depth_m"].to_numpy(float), system.depth)
     areal = storm.hyetograph.areal
     points = areal.points if areal is not None else None
-    fig = maps.subcatchment_map(gdf, "rain", title=f"Rain depth per subcatchment, {storm.name}",
+    fig = maps.subcatchment_map(gdf, "rain", title=plots.rain_map_title(storm.hyetograph),
                                 label=f"rain depth ({system.depth})", classes=classes,
                                 crs=result.subcatchments.crs, id_column="subcatchment_id",
                                 distance_unit=distance_unit(system), points=points)

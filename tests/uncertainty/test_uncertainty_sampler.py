@@ -14,8 +14,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy import stats
+from scipy.stats import qmc
 
-from gisrun.uncertainty.sampler import draw_columns
+from gisrun.uncertainty.sampler import draw_columns, draw_seed
 from gisrun.uncertainty.spread import SPREADS, Z_10_90, values_from_uniform
 
 N = 400
@@ -109,3 +110,15 @@ def test_zero_width_gives_the_central_value_exactly(column):
     u = np.array([1e-15, 0.3, 0.999, 1.0])
     values = values_from_uniform(u, c, c, c, SPREADS[column])
     assert np.array_equal(values, c)
+
+
+@pytest.mark.parametrize("n", [1, 2, 7, 400])
+@pytest.mark.parametrize("name", ["ks_m_per_s|texture loam", "cn", "arc"])
+def test_the_column_is_scipys_latin_hypercube_number_for_number(name, n):
+    # scipy.stats.qmc.LatinHypercube (scipy >= 1.15, d = 1, scrambled; McKay, Beckman and
+    # Conover 1979) is the reference the numpy column must equal to the bit, so a run's
+    # uncertainty bands are those scipy's sampler gives for the same seed.
+    got = draw_columns([name], n, seed=20261203)[name]
+    rng = np.random.default_rng(draw_seed(20261203, name))
+    want = qmc.LatinHypercube(d=1, rng=rng).random(n)[:, 0]
+    assert got.dtype == want.dtype and np.array_equal(got, want)
