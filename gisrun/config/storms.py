@@ -137,7 +137,7 @@ def storm_from_config(
         h = read_hyetograph_csv(_file_path(table, "path"), units=units, name=name)
     else:
         h = _design_storm(KINDS[kind], table, units, name)
-    warn_if_implausible(h, where)
+    warn_if_implausible(h, where, units)
     if reduction is not None:
         h = apply_reduction(h, reduction, subcatchments, step_s)
     return h

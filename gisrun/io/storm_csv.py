@@ -104,7 +104,7 @@ def read_hyetograph_csv(
     _check_gaps(time_s, rows_used, src)
     depth_m = value * to_si(1.0, unit) * (np.diff(time_s) if quantity == "intensity" else 1.0)
     h = Hyetograph(name or comment_name or path.stem, time_s, depth_m)
-    warn_if_implausible(h, src)
+    warn_if_implausible(h, src, units)
     return h
 
 
@@ -311,17 +311,28 @@ def _check_gaps(time_s: np.ndarray, rows: np.ndarray, src: str) -> None:
         )
 
 
-def warn_if_implausible(h: Hyetograph, where: str) -> None:
-    """Warn (``GisrunWarning``) if the storm holds more rain than is plausible anywhere on Earth."""
+def warn_if_implausible(h: Hyetograph, where: str, units: UnitSystem | None = None) -> None:
+    """Warn (``GisrunWarning``) if the storm holds more rain than is plausible anywhere on Earth.
+
+    The depths are written in ``units`` (the project's; mm when not given).
+    """
+    unit = (units or SI).depth
     for window_s, limit_m in IMPLAUSIBLE_DEPTH_M:
         depth = max_depth_in_window_m(h, window_s)
         if depth > limit_m:
             warnings.warn(
-                f"{where}: {depth * 1000:.0f} mm of rain within {window_s / 3600:g} h exceeds the "
-                f"world record (about {limit_m * 1000:.0f} mm); check the units and values",
+                f"{where}: {_depth_text(depth, unit)} of rain within {window_s / 3600:g} h "
+                f"exceeds the world record (about {_depth_text(limit_m, unit)}); check the "
+                "units and values",
                 GisrunWarning, stacklevel=3,
             )
             return
+
+
+def _depth_text(depth_m: float, unit: str) -> str:
+    """``2540 mm``, ``100 in``, ``15.7 in``: whole millimetres, inches to a tenth."""
+    value = float(from_si(depth_m, unit))
+    return f"{value:.0f} {unit}" if unit == "mm" else f"{round(value, 1):g} {unit}"
 
 
 def write_hyetograph_csv(

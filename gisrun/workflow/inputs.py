@@ -176,7 +176,8 @@ def warn_if_rain_scale_implausible(project: Project, subs: gpd.GeoDataFrame,
     for storm in storms:
         warn_if_implausible(storm.scaled(float(factor[largest])),
                             f"{project.subcatchments.path.name}:{field_name}:id={sid} "
-                            f"(rain scale {factor[largest]:g} x storm {storm.name!r})")
+                            f"(rain scale {factor[largest]:g} x storm {storm.name!r})",
+                            project.units)
 
 
 #: Overlaps smaller than this share of the smaller polygon are rounding, not overlaps.

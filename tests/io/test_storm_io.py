@@ -134,6 +134,21 @@ def test_implausible_depth_warns(tmp_path):
         read_hyetograph_csv(_csv(tmp_path, "time_min,depth_mm\n30,50\n60,50\n", "ok.csv"))
 
 
+def test_implausible_depth_is_told_in_the_project_units(tmp_path):
+    """Defect: a US project (storm file in inches) was warned in millimetres. 20 in in one hour
+    is 508 mm (1 in = 25.4 mm exactly, NIST SP 811 App. B), above the one-hour limit of
+    400 mm = 15.7 in; an SI project still reads millimetres."""
+    path = _csv(tmp_path, "time_min,depth_in\n30,10\n60,10\n")
+    with pytest.warns(GisrunWarning) as us_warned:
+        read_hyetograph_csv(path, units=US)
+    assert "20 in of rain within 1 h exceeds the world record (about 15.7 in)" in str(
+        us_warned[0].message)
+    with pytest.warns(GisrunWarning) as si_warned:
+        read_hyetograph_csv(path, units=SI)
+    assert "508 mm of rain within 1 h exceeds the world record (about 400 mm)" in str(
+        si_warned[0].message)
+
+
 # --- writing ------------------------------------------------------------------------------
 
 
