@@ -22,7 +22,7 @@ from typing import Any
 import geopandas as gpd
 
 from ..errors import StormError
-from ..io.storm_csv import read_hyetograph_csv, read_idf_table_csv, warn_if_implausible
+from ..io.storm_csv import read_hyetograph_csv, read_idf_table_csv
 from ..options import did_you_mean
 from ..storm import (
     KINDS,
@@ -33,6 +33,7 @@ from ..storm import (
     StormKind,
     check_step_count,
 )
+from ..storm.plausibility import warn_if_implausible
 from ..units import UnitSystem, to_si
 from .areal import AREAL_KINDS, build_areal_storm
 from .areal_reduction import REDUCTION_KEY, ReductionSpec, apply_reduction, read_reduction

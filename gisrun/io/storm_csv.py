@@ -24,15 +24,15 @@ import csv
 import io
 import math
 import os
-import warnings
 from datetime import UTC, datetime
 from pathlib import Path
 
 import numpy as np
 
-from ..errors import GisrunWarning, StormError
+from ..errors import StormError
 from ..options import did_you_mean
-from ..storm import Hyetograph, IdfTable, max_depth_in_window_m
+from ..storm import Hyetograph, IdfTable
+from ..storm.plausibility import warn_if_implausible
 from ..units import FACTORS_TO_SI, SI, US, UnitSystem, from_si, to_si
 from .csv_rows import row_cells
 from .files import atomic_target
@@ -41,8 +41,6 @@ __all__ = [
     "read_hyetograph_csv",
     "write_hyetograph_csv",
     "read_idf_table_csv",
-    "IMPLAUSIBLE_DEPTH_M",
-    "warn_if_implausible",
 ]
 
 #: Time column -> seconds per unit (None: clock times).
@@ -56,11 +54,6 @@ _VALUE_COLUMNS: dict[str, tuple[str, str | None]] = {
     **{f"{q}_{u}": (q, u) for q, units in _UNITS.items() for u in units},
     **{q: (q, None) for q in _QUANTITIES},
 }
-#: Windows (s) and the depth (m) above which a storm is implausible. The world-record point
-#: rainfalls are about 1.83 m in 24 h (Foc-Foc, La Reunion, January 1966) and 0.305 m in
-#: 42 min (Holt, Missouri, June 1947), per the WMO World Weather and Climate Extremes Archive
-#: (from memory); the limits sit a little above them.
-IMPLAUSIBLE_DEPTH_M: tuple[tuple[float, float], ...] = ((3600.0, 0.4), (86400.0, 2.0))
 
 
 def read_hyetograph_csv(
@@ -309,30 +302,6 @@ def _check_gaps(time_s: np.ndarray, rows: np.ndarray, src: str) -> None:
             f"a {steps[i] / 60:g}-min gap in a regular {base / 60:g}-min series",
             "add rows with zero rain for the missing steps",
         )
-
-
-def warn_if_implausible(h: Hyetograph, where: str, units: UnitSystem | None = None) -> None:
-    """Warn (``GisrunWarning``) if the storm holds more rain than is plausible anywhere on Earth.
-
-    The depths are written in ``units`` (the project's; mm when not given).
-    """
-    unit = (units or SI).depth
-    for window_s, limit_m in IMPLAUSIBLE_DEPTH_M:
-        depth = max_depth_in_window_m(h, window_s)
-        if depth > limit_m:
-            warnings.warn(
-                f"{where}: {_depth_text(depth, unit)} of rain within {window_s / 3600:g} h "
-                f"exceeds the world record (about {_depth_text(limit_m, unit)}); check the "
-                "units and values",
-                GisrunWarning, stacklevel=3,
-            )
-            return
-
-
-def _depth_text(depth_m: float, unit: str) -> str:
-    """``2540 mm``, ``100 in``, ``15.7 in``: whole millimetres, inches to a tenth."""
-    value = float(from_si(depth_m, unit))
-    return f"{value:.0f} {unit}" if unit == "mm" else f"{round(value, 1):g} {unit}"
 
 
 def write_hyetograph_csv(

@@ -21,13 +21,13 @@ from pyproj import CRS, Transformer
 from ..crs import ground_areas, is_web_mercator
 from ..errors import GisrunWarning, RasterError, VectorError
 from ..io.raster import ClassRaster, read_class_raster, read_value_raster
-from ..io.storm_csv import warn_if_implausible
 from ..io.tables import read_parameter_overrides
 from ..io.vector import read_subcatchments
 from ..model import Inputs
 from ..parameters.tables import UNSPECIFIED_COVER_STANDS_FOR, cover_table
 from ..project import Project
 from ..storm import Hyetograph
+from ..storm.plausibility import warn_if_implausible
 from .polygon_inputs import ClassPolygons, align_polygon_layers, read_class_polygons
 from .storms import check_storm_names, read_storms
 
@@ -160,7 +160,7 @@ def warn_if_rain_scale_implausible(project: Project, subs: gpd.GeoDataFrame,
     """Warn (``GisrunWarning``) if the largest rain scale factor makes a storm implausible.
 
     Uses the storm plausibility limits of the storm reader
-    (:func:`gisrun.io.storm_csv.warn_if_implausible`). Factors that are not
+    (:func:`gisrun.storm.plausibility.warn_if_implausible`). Factors that are not
     non-negative numbers are left to :func:`gisrun.workflow.steps.rain_scale_for_units`,
     which stops on them.
     """
