@@ -61,6 +61,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import ParameterError
+from ..units import FACTORS_TO_SI
 from .base import (
     FloatArray,
     StepResult,
@@ -99,7 +100,8 @@ PARAMETERS: tuple[Parameter, ...] = (
               allowed=(1.0, 2.0, 3.0), missing=2.0, overridable=False),
 )
 
-INCH_M = 0.0254
+#: Metres in an inch (TR-55 states S in inches), from the one unit table.
+INCH_M = FACTORS_TO_SI["in"]
 
 
 def adjust_for_antecedent_condition(cn_ii: FloatArray, condition: FloatArray) -> FloatArray:
