@@ -16,9 +16,10 @@ from .hyetograph import Hyetograph, max_depth_in_window_m
 __all__ = ["IMPLAUSIBLE_DEPTH_M", "warn_if_implausible"]
 
 #: Windows (s) and the depth (m) above which a storm is implausible. The world-record point
-#: rainfalls are about 1.83 m in 24 h (Foc-Foc, La Reunion, January 1966) and 0.305 m in
-#: 42 min (Holt, Missouri, June 1947), per the WMO World Weather and Climate Extremes Archive
-#: (from memory); the limits sit a little above them.
+#: rainfalls are 1.825 m in 24 h (Foc-Foc, La Reunion, 7-8 January 1966) and 0.305 m in one
+#: hour, fallen in 42 min (Holt, Missouri, 22 June 1947), per the WMO World Weather and Climate
+#: Extremes Archive (wmo.asu.edu, "World: Greatest Twenty-four-Hour (1 Day) Rainfall" and
+#: "World: Greatest Sixty-Minute (One Hour) Rainfall"); the limits sit a little above them.
 IMPLAUSIBLE_DEPTH_M: tuple[tuple[float, float], ...] = ((3600.0, 0.4), (86400.0, 2.0))
 
 
