@@ -21,6 +21,7 @@ from numpy.testing import assert_allclose
 from gisrun.engine import run_losses
 from gisrun.present import plots
 from gisrun.present.canvas import figure_png
+from gisrun.runon import run_with_runon
 
 MM_PER_H = 1e-3 / 3600.0  # m/s in one mm/h
 
@@ -100,6 +101,35 @@ def test_infiltration_storage_and_excess_add_up_to_the_rain():
     # per area: the weighted excess is the pervious units' excess, weighted 1:3
     assert s.excess_m_per_s.sum() * 300.0 == pytest.approx(
         (loss.excess_m[:, 0].sum() + 3 * loss.excess_m[:, 1].sum()) / 4, rel=1e-12)
+
+
+def test_run_on_is_drawn_as_run_on_not_as_water_drawn_back_from_storage():
+    """Defect: with disconnected roofs the pervious area's infiltration and excess exceed the
+    rain by the run-on it receives, and the plot drew that excess above the rain line as
+    "water drawn back from storage" (storage was filling). The run-on now has its own band on
+    top of the rain, and the bands add up to rain plus run-on.
+
+    A roof (impervious, no infiltration, 1.5 mm depression storage, all of it disconnected)
+    beside a lawn of the same area under 10 mm/h for 2 h: the roof sheds 20 - 1.5 = 18.5 mm,
+    which lands on the lawn as 18.5 mm of run-on (equal areas; mass balance of gisrun.runon).
+    """
+    lawn = green_ampt_unit(1.0, 2.0, area=100.0)
+    roof = {**green_ampt_unit(0.0, 1.5, area=100.0), "surface": "impervious",
+            "suction_head_m": 0.0, "moisture_deficit": 0.0, "disconnected_fraction": 1.0}
+    lawn["disconnected_fraction"] = 0.0
+    params = pd.DataFrame([lawn, roof])
+    loss = run_with_runon(params, np.full(24, 10.0 * MM_PER_H * 300.0), 300.0)
+    s = plots.pervious_series(loss, params, "S", 300.0)
+    assert s.runon_m_per_s.sum() * 300.0 == pytest.approx(0.0185, rel=1e-12)
+    assert_allclose(s.infiltration_m_per_s + s.storage_m_per_s + s.excess_m_per_s,
+                    s.rain_m_per_s + s.runon_m_per_s, rtol=0, atol=1e-18)
+    assert (s.storage_m_per_s >= 0).all()  # storage only fills under steady rain
+    fig = plots.infiltration_plot(s, title="S", rate_unit="mm/h", to_rate=to_mm_per_h)
+    assert band_area(fig, "run-on") / 60.0 == pytest.approx(18.5, rel=1e-9)
+    labels = [str(a.get_label()) for a in [*fig.axes[0].patches, *fig.axes[0].collections]]
+    assert not any("drawn back" in label for label in labels)
+    shaded = sum(band_area(fig, p) for p in ("infiltration", "filling", "excess"))
+    assert shaded / 60.0 == pytest.approx(20.0 + 18.5, rel=1e-9)
 
 
 def test_ponding_is_marked_on_the_curve_of_the_unit_that_ponds():

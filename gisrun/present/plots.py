@@ -2,8 +2,10 @@
 
 The infiltration plot draws what becomes of the rain on the pervious area step by
 step as three stacked bands that add up to the rain: what infiltrates, what fills
-depression storage and what runs off (excess). Water drawn back out of storage in
-a later step shows as the part of the stack above the rain line. The
+depression storage and what runs off (excess). With disconnected impervious area the
+run-on the pervious area receives is added to the rain (a hatched band above the rain
+line), and the bands add up to both. Water drawn back out of storage in a later step
+shows as the part of the stack above the rain (and run-on) line. The
 infiltration capacity is drawn area-weighted over the pervious units and, beside
 it, for the unit that ponds first, on whose curve the ponding instant is marked
 (the subcatchment's time to ponding is that unit's). Every title and legend
@@ -38,9 +40,10 @@ BAND_COLOURS = {"infiltration": "#e69f00", "storage": "#999999", "excess": "#56b
 class PerviousSeries:
     """One subcatchment's pervious-area rates through a storm (m/s; step ends in s).
 
-    ``infiltration + storage + excess == rain`` in every step, where ``storage``
+    ``infiltration + storage + excess == rain + runon`` in every step, where ``storage``
     is the change of depression storage (positive while it fills, negative when
-    stored water is offered again and infiltrates or runs off).
+    stored water is offered again and infiltrates or runs off) and ``runon`` the run-on
+    received from disconnected impervious area (zero without it).
     """
 
     time_end_s: NDArray[np.float64]
@@ -54,6 +57,8 @@ class PerviousSeries:
     #: The pervious unit that ponds first (``soil / cover``) and its capacity; "" and NaN if none.
     first_unit: str = ""
     first_capacity_m_per_s: NDArray[np.float64] | None = None
+    #: Run-on received from disconnected impervious area (:mod:`gisrun.runon`); None without.
+    runon_m_per_s: NDArray[np.float64] | None = None
 
 
 def pervious_series(loss: LossResult, params: pd.DataFrame, sub_id: str, dt_s: float
@@ -84,6 +89,8 @@ def pervious_series(loss: LossResult, params: pd.DataFrame, sub_id: str, dt_s: f
     ponding = loss.time_to_ponding_s[rows]
     rain, infil, excess = (np.asarray(a[:, rows] @ w) / dt_s
                            for a in (loss.rain_m, loss.infil_m, loss.excess_m))
+    runon = None if loss.runon_m is None else np.asarray(loss.runon_m[:, rows] @ w) / dt_s
+    supply = rain if runon is None else rain + runon
     first, first_cap = "", None
     if np.isfinite(ponding).any():
         k = int(np.nanargmin(ponding))
@@ -94,7 +101,8 @@ def pervious_series(loss: LossResult, params: pd.DataFrame, sub_id: str, dt_s: f
     methods = np.asarray(loss.methods)[rows] if len(loss.methods) else np.array([])
     return PerviousSeries(
         time_end_s=np.arange(1, n + 1) * dt_s, rain_m_per_s=rain, capacity_m_per_s=capacity,
-        infiltration_m_per_s=infil, storage_m_per_s=rain - infil - excess, excess_m_per_s=excess,
+        infiltration_m_per_s=infil, storage_m_per_s=supply - infil - excess,
+        excess_m_per_s=excess, runon_m_per_s=runon,
         ponding_s=float(np.nanmin(ponding)) if np.isfinite(ponding).any() else float("nan"),
         method=str(methods[0]) if methods.size else "", first_unit=first,
         first_capacity_m_per_s=first_cap)
@@ -123,7 +131,10 @@ def infiltration_plot(series: PerviousSeries, *, title: str, rate_unit: str,
     edges = _edges(t)
     rain, infil, excess = (to_rate(a) for a in (series.rain_m_per_s, series.infiltration_m_per_s,
                                                 series.excess_m_per_s))
-    fill = np.maximum(rain - infil - excess, 0.0)
+    runon = (np.zeros_like(rain) if series.runon_m_per_s is None
+             else to_rate(series.runon_m_per_s))
+    supply = rain + runon
+    fill = np.maximum(supply - infil - excess, 0.0)
     fig = new_figure((10, 5))
     ax = fig.subplots()
     base = np.zeros_like(rain)
@@ -134,13 +145,19 @@ def infiltration_plot(series: PerviousSeries, *, title: str, rate_unit: str,
         ax.stairs(base + values, edges, baseline=base.copy(), fill=True, alpha=0.75,
                   color=BAND_COLOURS[name], label=label, linewidth=0)
         base = base + values
-    release = np.maximum(base - rain, 0.0)
-    if (release > 1e-12 * max(float(rain.max()), 1e-300)).any():
-        ax.stairs(rain + release, edges, baseline=rain.copy(), fill=True, facecolor="none",
+    above = "above the rain"
+    if (runon > 0).any():
+        ax.stairs(supply, edges, baseline=rain.copy(), fill=True, facecolor="none",
+                  edgecolor="#0072b2", hatch="\\\\", linewidth=0,
+                  label="run-on from disconnected impervious area, on top of the rain")
+        above = "above the rain and run-on"
+    release = np.maximum(base - supply, 0.0)
+    if (release > 1e-12 * max(float(supply.max()), 1e-300)).any():
+        ax.stairs(supply + release, edges, baseline=supply.copy(), fill=True, facecolor="none",
                   edgecolor="#555555", hatch="//", linewidth=0,
-                  label="above the rain: water drawn back from storage")
+                  label=f"{above}: water drawn back from storage")
     ax.stairs(rain, edges, color="#1f4e79", linewidth=1.4, label="rain intensity")
-    top = max(float(np.nanmax(base)) if base.size else 0.0, float(np.nanmax(rain)))
+    top = max(float(np.nanmax(base)) if base.size else 0.0, float(np.nanmax(supply)))
     _capacity_curves(ax, series, t, to_rate, method)
     ax.set_ylim(0, top * 1.3 if top > 0 else 1.0)
     _ponding_mark(ax, series, t, to_rate)

@@ -205,9 +205,12 @@ def _infiltration_plots(result: RunResult, storm: StormResult, named: list[str],
             series, title=f"{sid}, {storm.name}", rate_unit=rate_label(system),
             to_rate=lambda v: from_si(np.asarray(v, float), system.rate))
         key = f"infiltration_{storm.file_stem}_{layer_name(sid)}"
+        runon = series.runon_m_per_s is not None and bool((series.runon_m_per_s > 0).any())
+        supply = ("the rain and the run-on from disconnected impervious area" if runon
+                  else "the rain")
         caption = (f"{sid}, {storm.name} ({method_name(series.method)}): what becomes of the "
-                   "rain on the pervious area (infiltration, storage filling and excess add up "
-                   "to the rain), the infiltration capacity and the ponding instant")
+                   f"rain on the pervious area (infiltration, storage filling and excess add up "
+                   f"to {supply}), the infiltration capacity and the ponding instant")
         made.append(SubcatchmentPlot(sid, storm.name, caption,
                                      out.save(figure_png(fig), folder / f"{key}.png", key)))
     return made
