@@ -15,6 +15,10 @@ Layers (when the project has ``[uncertainty]``):
 ``uncertainty_ranges``
     What was sampled: each draw, its parameter, distribution and the source of
     its range.
+
+Parameters are named without a unit (``ks``, ``suction_head``, ``horton_fc``), as in the
+``lumped_parameters`` layer: the values these layers give are runoff depths in the run's
+units, and the SI column names inside (``ks_m_per_s``) would claim a unit nothing here is in.
 """
 
 from __future__ import annotations
@@ -27,6 +31,7 @@ from ..uncertainty.spread import SPREADS
 from ..units import present_frame
 from .display import display_frame, header
 from .html import esc, image, table
+from .model_inputs import parameter_name
 
 __all__ = ["BAND_LAYERS", "band_builders", "bands_layer", "sensitivity_layer",
            "ranges_layer", "bands_section", "band_width_label"]
@@ -47,6 +52,9 @@ def band_builders(result: RunResult) -> dict[str, object]:
 def bands_layer(result: RunResult) -> gpd.GeoDataFrame:
     """The bands as polygons, one per subcatchment and storm, in the run's units."""
     bands = present_frame(result.uncertainty.bands, result.project.units)
+    bands = bands.assign(most_influential_parameter=[
+        None if pd.isna(v) else parameter_name(str(v))
+        for v in bands["most_influential_parameter"]])
     geoms = result.subcatchments[["subcatchment_id", "geometry"]]
     layer = bands.merge(geoms, on="subcatchment_id", how="left")
     cols = ["storm", "subcatchment_id", *[c for c in bands.columns
@@ -58,12 +66,18 @@ def sensitivity_layer(result: RunResult) -> pd.DataFrame:
     """The one-at-a-time table in the run's units, with the parameter in words."""
     table_ = present_frame(result.uncertainty.sensitivity, result.project.units)
     words = table_["parameter"].map({c: s.what for c, s in SPREADS.items()})
-    return table_.assign(parameter_description=words.to_numpy(dtype=object))
+    return table_.assign(parameter=[parameter_name(str(v)) for v in table_["parameter"]],
+                         parameter_description=words.to_numpy(dtype=object))
 
 
 def ranges_layer(result: RunResult) -> pd.DataFrame:
     """Each draw: parameter, distribution, where its range came from."""
-    return result.uncertainty.draws.copy()
+    draws = result.uncertainty.draws
+    names = [parameter_name(str(v)) for v in draws["parameter"]]
+    return draws.assign(
+        draw=[f"{n}|{d.split('|', 1)[1]}" if "|" in d else n
+              for n, d in zip(names, draws["draw"].astype(str), strict=True)],
+        parameter=names)
 
 
 def band_width_label(result: RunResult) -> str:

@@ -60,7 +60,7 @@ def test_bands_layers_report_and_figures(tmp_path, capsys):
     assert np.all(p5 <= p50) and np.all(p50 <= p95) and np.all(p95 > p5)
     assert np.all((bands["ponding_probability"] >= 0) & (bands["ponding_probability"] <= 1))
     assert bands["first_to_pond_share"].sum() <= 1.0 + 1e-12  # top_k = 1: one per sample
-    assert set(bands["most_influential_parameter"]) <= {"ks_m_per_s", "suction_head_m",
+    assert set(bands["most_influential_parameter"]) <= {"ks", "suction_head",
                                                         "effective_porosity"}
     info = dict(_rows(gpkg, "run_info")[i][1:] for i in range(len(_rows(gpkg, "run_info"))))
     assert info.get("uncertainty_seed") == "99" and info.get("uncertainty_caution") == BAND_CAUTION
